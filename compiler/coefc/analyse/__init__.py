@@ -1,0 +1,1 @@
+"""Quantisation analysis of a realised channel (issue 4)."""

@@ -1,0 +1,78 @@
+"""The library API, one call per arrow of the data flow.
+
+>>> import coefc
+>>> desc = coefc.load("filters/three_way_monitor.toml")          # doctest: +SKIP
+>>> design = desc.design()                                         # float design
+>>> real = design.realise(target="mcu32", overrides=None)          # fixed-point program
+>>> y = real.simulate(x)                                           # {channel: output ints}
+
+The CLI is a thin layer over these calls.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Iterable
+from dataclasses import dataclass
+
+import numpy as np
+
+from .blocks import ChannelDesign
+from .program import ChannelProgram
+from .spec import Description, load_description
+from .targets import Overrides, Target, find_target, resolve_arithmetic
+
+
+@dataclass(frozen=True, eq=False)
+class Loaded:
+    """A validated description, ready to design."""
+
+    description: Description
+
+    def design(self, channels: Iterable[str] | None = None) -> "Design":
+        from .design import design_channel
+
+        d = self.description
+        specs = d.channels if channels is None else tuple(d.channel(c) for c in channels)
+        return Design(self, tuple(design_channel(ch, d.sample_rate_hz, d.source) for ch in specs))
+
+
+@dataclass(frozen=True, eq=False)
+class Design:
+    """Float designs of the chosen channels."""
+
+    loaded: Loaded
+    channels: tuple[ChannelDesign, ...]
+
+    def target(self, target: str | None = None, target_dirs: Iterable[str | os.PathLike] = ()) -> Target:
+        name = target or self.loaded.description.implementation.target or "mcu32"
+        return find_target(name, target_dirs)
+
+    def realise(self, target: str | Target | None = None, overrides: Overrides | None = None,
+                target_dirs: Iterable[str | os.PathLike] = ()) -> "Realisation":
+        from .realise import realise_channel
+
+        tgt = target if isinstance(target, Target) else self.target(target, target_dirs)
+        d = self.loaded.description
+        arith = resolve_arithmetic(tgt, d.implementation, overrides, d.source)
+        return Realisation(self, tgt, tuple(realise_channel(ch, arith) for ch in self.channels))
+
+
+@dataclass(frozen=True, eq=False)
+class Realisation:
+    """The fixed-point programs of the chosen channels on one target."""
+
+    design: Design
+    target: Target
+    programs: tuple[ChannelProgram, ...]
+
+    def simulate(self, x: np.ndarray) -> dict[str, np.ndarray]:
+        """Push the same input (data-word integers, or float32) through every channel."""
+        from .simulate import simulate
+
+        return {p.name: simulate(p, x) for p in self.programs}
+
+
+def load(path: str | os.PathLike) -> Loaded:
+    """Read and validate a description file (raises DescriptionError)."""
+    return Loaded(load_description(path))

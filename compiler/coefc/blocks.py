@@ -1,0 +1,107 @@
+"""Floating-point building blocks of a channel and their frequency response.
+
+The design step turns every stage of a description into one or more blocks; a
+channel's float design is the ordered chain of them.  Second-order sections are
+the working representation of every IIR filter (never a long b/a polynomial);
+rows use scipy's layout ``[b0, b1, b2, a0, a1, a2]`` with ``a0 == 1``.
+
+Frequencies are in Hz everywhere in the public API.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy import signal
+
+
+@dataclass(frozen=True, eq=False)
+class SosBlock:
+    """A cascade of second-order sections, shape (n, 6), a0 normalised to 1."""
+
+    sos: np.ndarray
+    label: str = ""
+
+
+@dataclass(frozen=True, eq=False)
+class FirBlock:
+    """A finite impulse response, ``taps[k]`` multiplying ``x[n-k]``."""
+
+    taps: np.ndarray
+    label: str = ""
+
+
+@dataclass(frozen=True)
+class GainBlock:
+    """A plain multiplication (negative for polarity inversion)."""
+
+    gain: float
+    label: str = ""
+
+
+@dataclass(frozen=True)
+class DelayBlock:
+    """An integer delay of ``samples`` samples."""
+
+    samples: int
+    label: str = ""
+
+
+Block = SosBlock | FirBlock | GainBlock | DelayBlock
+
+
+def block_response(block: Block, freqs_hz: np.ndarray, fs: float) -> np.ndarray:
+    """Complex response of one block at *freqs_hz* (scipy.signal.sosfreqz/freqz)."""
+    f = np.atleast_1d(np.asarray(freqs_hz, dtype=np.float64))
+    if isinstance(block, SosBlock):
+        return signal.sosfreqz(block.sos, worN=f, fs=fs)[1]
+    if isinstance(block, FirBlock):
+        return signal.freqz(block.taps, 1.0, worN=f, fs=fs)[1]
+    if isinstance(block, GainBlock):
+        return np.full(f.shape, complex(block.gain))
+    if isinstance(block, DelayBlock):
+        return np.exp(-2j * np.pi * f / fs * block.samples)
+    raise TypeError(f"not a block: {block!r}")
+
+
+def chain_response(blocks, freqs_hz, fs: float) -> np.ndarray:
+    """Complex response of a chain of blocks (the product of their responses)."""
+    f = np.atleast_1d(np.asarray(freqs_hz, dtype=np.float64))
+    h = np.ones(f.shape, dtype=complex)
+    for b in blocks:
+        h = h * block_response(b, f, fs)
+    return h
+
+
+@dataclass(frozen=True)
+class StageSummary:
+    """What one description stage became, for the design report."""
+
+    index: int  # 1-based, as in error messages
+    kind: str
+    text: str  # e.g. "lowpass linkwitz-riley order 4 at 2200 Hz"
+    order: int  # filter order (0 for gain/delay); FIR: taps - 1
+    sections: int  # second-order sections (IIR)
+    taps: int  # FIR taps
+    latency_samples: float  # pure delay or FIR group delay at DC, where defined
+
+
+@dataclass(frozen=True, eq=False)
+class ChannelDesign:
+    """The float design of one channel: its blocks in signal order."""
+
+    name: str
+    sample_rate_hz: float
+    blocks: tuple[Block, ...]
+    stages: tuple[StageSummary, ...] = ()
+    warnings: tuple[str, ...] = field(default_factory=tuple)
+
+    def response(self, freqs_hz) -> np.ndarray:
+        """Complex float response of the whole channel at *freqs_hz*."""
+        return chain_response(self.blocks, freqs_hz, self.sample_rate_hz)
+
+    def sos(self) -> np.ndarray:
+        """All IIR sections of the channel in one (n, 6) array (gains/FIR excluded)."""
+        parts = [b.sos for b in self.blocks if isinstance(b, SosBlock)]
+        return np.vstack(parts) if parts else np.zeros((0, 6))

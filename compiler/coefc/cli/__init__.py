@@ -1,0 +1,65 @@
+"""The ``coefc`` command line: a thin layer over the library API.
+
+Each command lives in its own module (``design_cmd``, ``run_cmd``, ``check_cmd``,
+``build_cmd``, ``sweep_cmd``, ``targets_cmd``) and registers itself on the one
+Typer app here.  Library errors (:class:`coefc.errors.CoefcError`) become one line
+on stderr and exit code 2; nothing else is caught.
+"""
+
+from __future__ import annotations
+
+import sys
+
+import typer
+
+from ..errors import CoefcError
+
+app = typer.Typer(
+    name="coefc",
+    help=(
+        "Coefficient compiler and fixed-point quantisation checker for embedded DSP.\n\n"
+        "Q formats are written Qm.n with the sign bit counted in m (Q1.15 is a 16-bit "
+        "word, Q2.30 a 32-bit one); Qn is shorthand for Q1.n.  Levels in dBFS follow "
+        "AES17: 0 dBFS is the RMS level of a full-scale sine."
+    ),
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_enable=False,
+    rich_markup_mode=None,
+)
+
+
+
+def _version(value: bool) -> None:
+    if value:
+        from .. import __version__
+
+        print(f"coefc {__version__}")
+        raise typer.Exit()
+
+
+@app.callback()
+def _root(
+    version: bool = typer.Option(False, "--version", callback=_version, is_eager=True, help="Print the version."),
+) -> None:
+    """Coefficient compiler and fixed-point quantisation checker for embedded DSP."""
+
+
+# Command modules register themselves on import.
+from . import design_cmd  # noqa: E402,F401
+
+for _optional in ("run_cmd", "check_cmd", "build_cmd", "targets_cmd", "sweep_cmd", "report_cmd"):
+    try:
+        __import__(f"{__name__}.{_optional}")
+    except ModuleNotFoundError as _e:  # a command not written yet
+        if _e.name != f"{__name__}.{_optional}":
+            raise
+
+
+def main() -> None:
+    """Entry point of the ``coefc`` script (usage errors exit 2 through Typer)."""
+    try:
+        app()
+    except CoefcError as e:
+        print(f"coefc: error: {e}", file=sys.stderr)
+        sys.exit(2)

@@ -1,0 +1,45 @@
+"""Options shared by several commands, declared once (one schema, one meaning)."""
+
+from __future__ import annotations
+
+import json
+import sys
+from pathlib import Path
+from typing import Annotated, Optional
+
+import typer
+
+from ..targets import Overrides
+
+Target = Annotated[Optional[str], typer.Option("--target", help="Target name (built-in or from --target-dir).")]
+TargetDirs = Annotated[
+    Optional[list[Path]],
+    typer.Option("--target-dir", help="Extra folder of targets (repeatable); also COEFC_TARGET_PATH."),
+]
+Data = Annotated[Optional[str], typer.Option("--data", help="Data word, Qm.n (sign bit counted in m; Qn = Q1.n).")]
+Coef = Annotated[Optional[str], typer.Option("--coef", help="Coefficient word, Qm.n (sign bit counted in m).")]
+Acc = Annotated[Optional[int], typer.Option("--acc", help="Accumulator width in bits.")]
+Rounding = Annotated[Optional[str], typer.Option("--rounding", help="nearest, floor, convergent or zero.")]
+Overflow = Annotated[Optional[str], typer.Option("--overflow", help="saturate or wrap.")]
+Structure = Annotated[Optional[str], typer.Option("--structure", help="df1, tdf2 or df1ef (DF1 with error feedback).")]
+Scaling = Annotated[Optional[str], typer.Option("--scaling", help="Section scaling norm: none, l1, l2 or linf.")]
+Channel = Annotated[Optional[list[str]], typer.Option("--channel", help="Only this channel (repeatable).")]
+JsonOut = Annotated[Optional[str], typer.Option("--json", help="Write the JSON report to PATH ('-' for stdout).")]
+
+
+def overrides(data=None, coef=None, acc=None, rounding=None, overflow=None, structure=None, scaling=None) -> Overrides:
+    return Overrides(structure=structure, data=data, coef=coef, acc_bits=acc, rounding=rounding,
+                     overflow=overflow, scaling=scaling)
+
+
+def write_json(obj, dest: str | None) -> None:
+    """Write *obj* as JSON to *dest* ('-' = stdout); the file is replaced atomically."""
+    if dest is None:
+        return
+    text = json.dumps(obj, indent=2, sort_keys=False, allow_nan=False) + "\n"
+    if dest == "-":
+        sys.stdout.write(text)
+    else:
+        from ..fileio import write_atomic
+
+        write_atomic(Path(dest), text)

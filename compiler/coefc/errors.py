@@ -1,0 +1,76 @@
+"""Error types of the library: every user-facing failure is a CoefcError.
+
+The CLI catches ``CoefcError`` (never a bare ``Exception``), prints ``str(err)`` as
+one line on stderr and exits with code 2.  A message names the file, the place in
+it (channel, stage index, key) and what to do about it, e.g.::
+
+    filters/x.toml: channel 'woofer', stage 2, key 'cutoff_hz': 30000 Hz is at or
+    above Nyquist (sample_rate_hz=48000 -> 24000 Hz); use a cutoff below 24000 Hz
+"""
+
+from __future__ import annotations
+
+import difflib
+from collections.abc import Iterable
+
+
+class CoefcError(Exception):
+    """Base class of every error the library raises on purpose."""
+
+
+class DescriptionError(CoefcError):
+    """A filter description (or override) is malformed or impossible.
+
+    Parameters
+    ----------
+    source : str
+        The file (as the user named it) or ``"<command line>"``.
+    message : str
+        What is wrong and how to fix it, one sentence.
+    channel, stage, key : optional
+        Where in the description; printed in that order when given.
+    line : optional
+        Line number in the file, for syntax errors.
+    """
+
+    def __init__(
+        self,
+        source: str,
+        message: str,
+        *,
+        channel: str | None = None,
+        stage: int | None = None,
+        key: str | None = None,
+        line: int | None = None,
+    ) -> None:
+        self.source = source
+        self.message = message
+        self.channel = channel
+        self.stage = stage
+        self.key = key
+        self.line = line
+        super().__init__(self.format())
+
+    def format(self) -> str:
+        where = [self.source + (f":{self.line}" if self.line is not None else "")]
+        if self.channel is not None:
+            where.append(f"channel '{self.channel}'")
+        if self.stage is not None:
+            where.append(f"stage {self.stage}")
+        if self.key is not None:
+            where.append(f"key '{self.key}'")
+        return ", ".join(where) + ": " + " ".join(self.message.split())
+
+
+class TargetError(CoefcError):
+    """A target folder, its target.toml or one of its templates is unusable."""
+
+
+class DataError(CoefcError):
+    """Input samples (WAV or text) cannot be read or converted."""
+
+
+def close_match(word: str, choices: Iterable[str]) -> str:
+    """Return ``" (did you mean 'x'?)"`` for the closest of *choices*, or ``""``."""
+    hits = difflib.get_close_matches(word, list(choices), n=1, cutoff=0.6)
+    return f" (did you mean '{hits[0]}'?)" if hits else ""
