@@ -2,13 +2,31 @@
 
 Every problem is raised as :class:`coefc.errors.DescriptionError` naming the file,
 channel, stage (1-based) and key, what is wrong and how to fix it.
+
+This module checks the *shape* of a description: known keys (a misspelt one gets a
+close match), types (a bool is never a number), finite numbers, ranges that do not
+depend on the filter mathematics (positive orders, frequencies below Nyquist, band
+edges in order), names that can become C identifiers.  Whether a design is
+possible (a stable raw section, an order that meets a requirement) is decided by
+:mod:`coefc.design`, which raises the same error type.
+
+Frequencies are in Hz.  A band is ``[low_hz, high_hz]``.
 """
 
 from __future__ import annotations
 
+import hashlib
+import math
+import re
+import tomllib
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from pathlib import Path
 from types import MappingProxyType
+
+from .errors import DescriptionError, close_match
+
+# --------------------------------------------------------------------------- model
 
 
 @dataclass(frozen=True)
@@ -27,7 +45,12 @@ class Implementation:
 
 @dataclass(frozen=True)
 class Budget:
-    """``[budget]``: the limits ``coefc check`` gates on; ``None`` = not checked."""
+    """``[budget]``: the limits ``coefc check`` gates on; ``None`` = not checked.
+
+    ``passband`` and ``stopband`` optionally name the bands (tuples of
+    ``(low_hz, high_hz)``) where the deviation and attenuation limits apply; when
+    absent the checker derives them from the design.
+    """
 
     passband_deviation_db: float | None = None
     stopband_attenuation_db: float | None = None
@@ -35,6 +58,8 @@ class Budget:
     limit_cycles: str | float | None = None  # "none" or a maximum amplitude in LSB
     overflow: str | None = None  # "none" or "allow"
     extra: Mapping = field(default_factory=lambda: MappingProxyType({}))  # keys added by later checks
+    passband: tuple[tuple[float, float], ...] | None = None
+    stopband: tuple[tuple[float, float], ...] | None = None
 
 
 @dataclass(frozen=True)
@@ -68,8 +93,6 @@ class Description:
         for ch in self.channels:
             if ch.name == name:
                 return ch
-        from .errors import DescriptionError, close_match
-
         raise DescriptionError(
             "<command line>",
             f"no channel '{name}' in {self.source}; channels are "
@@ -79,6 +102,491 @@ class Description:
         )
 
 
+# ------------------------------------------------------------------ vocabulary
+
+#: Responses of the classic IIR kinds (lowpass, highpass, bandpass, bandstop).
+IIR_RESPONSES = ("butterworth", "chebyshev1", "chebyshev2", "elliptic", "bessel", "linkwitz-riley", "biquad")
+IIR_KINDS = ("lowpass", "highpass", "bandpass", "bandstop")
+FIR_KINDS = ("fir-lowpass", "fir-highpass", "fir-bandpass", "fir-bandstop")
+FIR_METHODS = ("kaiser", "equiripple", "least-squares")
+EQ_KINDS = ("peaking", "lowshelf", "highshelf", "notch", "allpass")
+WEIGHTINGS = ("A", "C")
+
+#: Largest IIR order and FIR length accepted (beyond them no fixed-point
+#: realisation is sensible and the float design itself loses accuracy).
+MAX_IIR_ORDER = 40
+MAX_FIR_TAPS = 8191
+MAX_DELAY_SAMPLES = 1 << 20
+
+C99_KEYWORDS = frozenset(
+    "auto break case char const continue default do double else enum extern float for goto if "
+    "inline int long register restrict return short signed sizeof static struct switch typedef "
+    "union unsigned void volatile while _Bool _Complex _Imaginary".split()
+)
+_C_IDENT = re.compile(r"^[A-Za-z_][A-Za-z0-9_]*$")
+
+# Value checkers: each takes (value, where) and returns the normalised value or
+# raises through where.fail(...).  ``where`` is a _Place.
+
+
+class _Place:
+    """Where a value sits in the file, to build errors."""
+
+    def __init__(self, source: str, channel: str | None = None, stage: int | None = None,
+                 key: str | None = None, table: str | None = None) -> None:
+        self.source, self.channel, self.stage, self.key, self.table = source, channel, stage, key, table
+
+    def at(self, key: str) -> "_Place":
+        return _Place(self.source, self.channel, self.stage, key, self.table)
+
+    def fail(self, message: str) -> DescriptionError:
+        key = self.key
+        if self.table and key:
+            key = f"{self.table}.{key}"
+        elif self.table:
+            key = self.table
+        return DescriptionError(self.source, message, channel=self.channel, stage=self.stage, key=key)
+
+
+def _type_name(v) -> str:
+    if isinstance(v, bool):
+        return f"a boolean ({str(v).lower()})"
+    if isinstance(v, str):
+        return f"a string ({v!r})"
+    if isinstance(v, (int, float)):
+        return f"a number ({v})"
+    if isinstance(v, list):
+        return "a list"
+    if isinstance(v, dict):
+        return "a table"
+    return type(v).__name__
+
+
+def _number(v, where: _Place) -> float:
+    if isinstance(v, bool) or not isinstance(v, (int, float)):
+        raise where.fail(f"expected a number, got {_type_name(v)}; write a plain number such as 1000")
+    if isinstance(v, float) and not math.isfinite(v):
+        raise where.fail(f"{v} is not allowed; write a finite number")
+    if isinstance(v, int) and abs(v) > 1e300:
+        raise where.fail(f"{v} is too large; write a finite number of sensible size")
+    return float(v)
+
+
+def _positive(v, where: _Place) -> float:
+    x = _number(v, where)
+    if x <= 0:
+        raise where.fail(f"must be greater than 0, got {_fmt(x)}; write a positive number")
+    return x
+
+
+def _non_negative(v, where: _Place) -> float:
+    x = _number(v, where)
+    if x < 0:
+        raise where.fail(f"must not be negative, got {_fmt(x)}")
+    return x
+
+
+def _integer(v, where: _Place) -> int:
+    if isinstance(v, bool) or not isinstance(v, int):
+        if isinstance(v, float) and math.isfinite(v) and v == int(v):
+            raise where.fail(f"expected a whole number, got {v}; write it without a decimal point ({int(v)})")
+        raise where.fail(f"expected a whole number, got {_type_name(v)}")
+    return v
+
+
+def _positive_int(v, where: _Place) -> int:
+    n = _integer(v, where)
+    if n <= 0:
+        raise where.fail(f"must be a whole number greater than 0, got {n}")
+    return n
+
+
+def _boolean(v, where: _Place) -> bool:
+    if not isinstance(v, bool):
+        raise where.fail(f"expected true or false, got {_type_name(v)}")
+    return v
+
+
+def _string(v, where: _Place) -> str:
+    if not isinstance(v, str):
+        raise where.fail(f"expected a string, got {_type_name(v)}; put it in double quotes")
+    return v
+
+
+def _choice(*allowed: str):
+    def check(v, where: _Place) -> str:
+        s = _string(v, where)
+        if s not in allowed:
+            raise where.fail(f"unknown value '{s}'{close_match(s, allowed)}; use one of {', '.join(allowed)}")
+        return s
+
+    return check
+
+
+def _number_list(min_len: int = 1, max_len: int | None = None):
+    def check(v, where: _Place) -> tuple[float, ...]:
+        if not isinstance(v, list):
+            raise where.fail(f"expected a list of numbers, got {_type_name(v)}; write e.g. [1.0, 0.5]")
+        if len(v) < min_len:
+            raise where.fail(f"needs at least {min_len} number(s), got {len(v)}")
+        if max_len is not None and len(v) > max_len:
+            raise where.fail(f"has {len(v)} numbers; at most {max_len} are accepted")
+        out = []
+        for i, x in enumerate(v):
+            if isinstance(x, bool) or not isinstance(x, (int, float)):
+                raise where.fail(f"item {i + 1} is {_type_name(x)}; every item must be a number")
+            if not math.isfinite(float(x)):
+                raise where.fail(f"item {i + 1} is {x}; every item must be a finite number")
+            out.append(float(x))
+        return tuple(out)
+
+    return check
+
+
+def _sections(v, where: _Place) -> tuple[tuple[float, ...], ...]:
+    if not isinstance(v, list) or not v:
+        raise where.fail("expected a non-empty list of sections [[b0, b1, b2, a0, a1, a2], ...]")
+    if len(v) > MAX_IIR_ORDER:
+        raise where.fail(f"{len(v)} sections; at most {MAX_IIR_ORDER} are accepted")
+    rows = []
+    for i, row in enumerate(v):
+        if not isinstance(row, list) or len(row) != 6:
+            raise where.fail(f"section {i + 1} must be a list of 6 numbers [b0, b1, b2, a0, a1, a2]")
+        rows.append(_number_list(6, 6)(row, where.at(f"{where.key}[{i + 1}]") if where.key else where))
+    return tuple(rows)
+
+
+def _frequency(v, where: _Place) -> float:
+    return _positive(v, where)
+
+
+def _band(v, where: _Place) -> tuple[float, float]:
+    if not isinstance(v, list) or len(v) != 2:
+        raise where.fail(f"expected a band [low_hz, high_hz], got {_type_name(v) if not isinstance(v, list) else f'a list of {len(v)} items'}")
+    lo = _frequency(v[0], where)
+    hi = _frequency(v[1], where)
+    if lo >= hi:
+        raise where.fail(f"band [{_fmt(lo)}, {_fmt(hi)}] Hz: the low edge must be below the high edge")
+    return (lo, hi)
+
+
+def _fmt(x: float) -> str:
+    return f"{x:g}" if abs(x) < 1e15 else f"{x:.6g}"
+
+
+# Stage schemas: kind -> {key: checker}.  ``kind`` itself is always allowed.
+# Edge keys (cutoff_hz, passband_hz, stopband_hz) are a number for low/high-pass
+# kinds and a band for band-pass/stop kinds; see _edge_checker.
+_EDGE = "edge"
+
+_IIR_KEYS = {
+    "response": _choice(*IIR_RESPONSES),
+    "order": _positive_int,
+    "cutoff_hz": _EDGE,
+    "passband_hz": _EDGE,
+    "stopband_hz": _EDGE,
+    "ripple_db": _positive,
+    "attenuation_db": _positive,
+    "freq_hz": _frequency,
+    "q": _positive,
+    "bandwidth_oct": _positive,
+}
+_FIR_KEYS = {
+    "method": _choice(*FIR_METHODS),
+    "passband_hz": _EDGE,
+    "stopband_hz": _EDGE,
+    "attenuation_db": _positive,
+    "ripple_db": _positive,
+    "taps": _positive_int,
+}
+STAGE_KEYS: dict[str, dict] = {
+    **{k: _IIR_KEYS for k in IIR_KINDS},
+    **{k: _FIR_KEYS for k in FIR_KINDS},
+    "peaking": {"freq_hz": _frequency, "gain_db": _number, "q": _positive, "bandwidth_oct": _positive},
+    "lowshelf": {"freq_hz": _frequency, "gain_db": _number, "q": _positive, "slope": _positive},
+    "highshelf": {"freq_hz": _frequency, "gain_db": _number, "q": _positive, "slope": _positive},
+    "notch": {"freq_hz": _frequency, "q": _positive, "bandwidth_oct": _positive},
+    "allpass": {"freq_hz": _frequency, "q": _positive, "bandwidth_oct": _positive},
+    "weighting": {"weighting": _choice(*WEIGHTINGS)},
+    "dc-blocker": {"cutoff_hz": _frequency},
+    "gain": {"db": _number, "linear": _positive, "invert": _boolean},
+    "delay": {"samples": _integer, "ms": _non_negative, "metres": _non_negative, "air_temperature_c": _number},
+    "sos": {"sections": _sections},
+    "transfer": {"b": _number_list(1, MAX_FIR_TAPS), "a": _number_list(1, 2 * MAX_IIR_ORDER + 1)},
+    "fir": {"taps": _number_list(1, MAX_FIR_TAPS)},
+}
+STAGE_KINDS = tuple(STAGE_KEYS)
+
+#: Keys holding a frequency that must lie below Nyquist.
+_FREQ_KEYS = ("cutoff_hz", "passband_hz", "stopband_hz", "freq_hz")
+
+_TOP_KEYS = ("name", "sample_rate_hz", "implementation", "budget", "channel")
+_IMPL_KEYS = ("target", "structure", "data", "coef", "acc_bits", "rounding", "overflow", "scaling")
+_BUDGET_KEYS = ("passband_deviation_db", "stopband_attenuation_db", "output_noise_dbfs", "limit_cycles",
+                "overflow", "passband", "stopband")
+_CHANNEL_KEYS = ("name", "stages")
+
+
+# ------------------------------------------------------------------- loading
+
+
 def load_description(path) -> Description:
-    """Read and validate a description file."""
-    raise NotImplementedError("spec parsing: issue 2")
+    """Read and validate a description file.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The TOML file, as the user named it (kept verbatim in messages).
+
+    Returns
+    -------
+    Description
+        The validated description (stage parameters normalised: numbers as
+        floats, whole numbers as ints, lists as tuples).
+
+    Raises
+    ------
+    DescriptionError
+        For a missing or unreadable file, bad TOML, or any invalid content.
+    """
+    source = str(path)
+    p = Path(path)
+    try:
+        raw_bytes = p.read_bytes()
+    except FileNotFoundError:
+        raise DescriptionError(source, "file not found; check the path") from None
+    except IsADirectoryError:
+        raise DescriptionError(source, "is a directory; name a .toml description file inside it") from None
+    except PermissionError:
+        raise DescriptionError(source, "permission denied; make the file readable") from None
+    except OSError as e:
+        raise DescriptionError(source, f"cannot read the file ({e.strerror or e}); check the path") from None
+    return parse_description(raw_bytes, source)
+
+
+def parse_description(raw_bytes: bytes, source: str = "<description>") -> Description:
+    """Validate description *raw_bytes* (TOML, UTF-8); *source* names it in errors."""
+    try:
+        text = raw_bytes.decode("utf-8")
+    except UnicodeDecodeError as e:
+        line = raw_bytes[: e.start].count(b"\n") + 1
+        raise DescriptionError(source, f"not UTF-8 text (byte {e.start + 1}); save the file as UTF-8",
+                               line=line) from None
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as e:
+        msg = str(e)
+        m = re.search(r"\(at line (\d+), column (\d+)\)", msg)
+        line = int(m.group(1)) if m else None
+        if m:
+            msg = msg[: m.start()].strip() + f" at column {m.group(2)}"
+        elif "end of document" in msg:
+            line = text.count("\n") + 1
+        raise DescriptionError(source, f"TOML syntax error: {msg}; fix the TOML syntax", line=line) from None
+    return _validate(doc, source, hashlib.sha256(raw_bytes).hexdigest())
+
+
+def _check_keys(table: Mapping, allowed, where: _Place, what: str) -> None:
+    for key in table:
+        if key not in allowed:
+            raise where.at(key).fail(
+                f"unknown key in {what}{close_match(key, allowed)}; known keys: {', '.join(allowed)}")
+
+
+def _c_name(v, where: _Place, what: str) -> str:
+    s = _string(v, where)
+    if not _C_IDENT.match(s):
+        raise where.fail(f"{what} '{s}' cannot become a C identifier; use letters, digits and '_' "
+                         "and do not start with a digit")
+    if s in C99_KEYWORDS:
+        raise where.fail(f"{what} '{s}' is a C keyword; choose another name (e.g. '{s}_filter')")
+    return s
+
+
+def _validate(doc: dict, source: str, sha: str) -> Description:
+    top = _Place(source)
+    _check_keys(doc, _TOP_KEYS, top, "the file")
+    for key in ("name", "sample_rate_hz"):
+        if key not in doc:
+            raise top.at(key).fail(f"missing; add `{key} = ...` at the top of the file")
+    name = _c_name(doc["name"], top.at("name"), "name")
+    fs = _positive(doc["sample_rate_hz"], top.at("sample_rate_hz"))
+    impl = _implementation(doc.get("implementation", {}), source)
+    budget = _budget(doc.get("budget", {}), source, fs)
+
+    if "channel" not in doc:
+        raise top.at("channel").fail("no channels; add at least one [[channel]] table with name and stages")
+    chans = doc["channel"]
+    if not isinstance(chans, list) or not all(isinstance(c, dict) for c in chans):
+        raise top.at("channel").fail("must be an array of tables; write each channel as [[channel]]")
+    if not chans:
+        raise top.at("channel").fail("no channels; add at least one [[channel]] table with name and stages")
+    channels: list[ChannelSpec] = []
+    seen: set[str] = set()
+    for i, ch in enumerate(chans):
+        channels.append(_channel(ch, i + 1, source, fs, seen))
+    return Description(source=source, name=name, sample_rate_hz=fs, implementation=impl, budget=budget,
+                       channels=tuple(channels), sha256=sha)
+
+
+def _table(v, where: _Place, header: str) -> dict:
+    if not isinstance(v, dict):
+        raise where.fail(f"must be a table; write it as [{header}]")
+    return v
+
+
+def _implementation(t, source: str) -> Implementation:
+    from .program import SCALINGS, STRUCTURES
+    from .qformat import OVERFLOW_MODES, ROUNDING_MODES, QFormat
+
+    where = _Place(source, table="implementation")
+    t = _table(t, _Place(source, key="implementation"), "implementation")
+    _check_keys(t, _IMPL_KEYS, where, "[implementation]")
+    out: dict = {}
+    if "target" in t:
+        out["target"] = _string(t["target"], where.at("target"))
+        if not out["target"].strip():
+            raise where.at("target").fail("is empty; name a target such as mcu32")
+    for key, allowed in (("structure", STRUCTURES), ("rounding", ROUNDING_MODES),
+                         ("overflow", OVERFLOW_MODES), ("scaling", SCALINGS)):
+        if key in t:
+            out[key] = _choice(*allowed)(t[key], where.at(key))
+    for key in ("data", "coef"):
+        if key in t:
+            s = _string(t[key], where.at(key))
+            try:
+                QFormat.parse(s)
+            except ValueError as e:
+                raise where.at(key).fail(str(e)) from None
+            out[key] = s
+    if "acc_bits" in t:
+        n = _integer(t["acc_bits"], where.at("acc_bits"))
+        if not 2 <= n <= 128:
+            raise where.at("acc_bits").fail(f"{n} bits is out of range; use 2..128")
+        out["acc_bits"] = n
+    return Implementation(**out)
+
+
+def _budget(t, source: str, fs: float) -> Budget:
+    where = _Place(source, table="budget")
+    t = _table(t, _Place(source, key="budget"), "budget")
+    _check_keys(t, _BUDGET_KEYS, where, "[budget]")
+    out: dict = {}
+    if "passband_deviation_db" in t:
+        out["passband_deviation_db"] = _positive(t["passband_deviation_db"], where.at("passband_deviation_db"))
+    if "stopband_attenuation_db" in t:
+        out["stopband_attenuation_db"] = _positive(t["stopband_attenuation_db"], where.at("stopband_attenuation_db"))
+    if "output_noise_dbfs" in t:
+        x = _number(t["output_noise_dbfs"], where.at("output_noise_dbfs"))
+        if x >= 0:
+            raise where.at("output_noise_dbfs").fail(
+                f"{_fmt(x)} dBFS is not a noise limit; write a negative level such as -120")
+        out["output_noise_dbfs"] = x
+    if "limit_cycles" in t:
+        v = t["limit_cycles"]
+        w = where.at("limit_cycles")
+        if isinstance(v, str):
+            if v != "none":
+                raise w.fail(f"'{v}' is not understood; write \"none\" or a maximum amplitude in LSB (e.g. 1)")
+            out["limit_cycles"] = "none"
+        else:
+            x = _number(v, w)
+            if x < 0:
+                raise w.fail(f"{_fmt(x)} LSB: an amplitude cannot be negative")
+            out["limit_cycles"] = x
+    if "overflow" in t:
+        out["overflow"] = _choice("none", "allow")(t["overflow"], where.at("overflow"))
+    nyq = fs / 2
+    for key in ("passband", "stopband"):
+        if key in t:
+            w = where.at(key)
+            v = t[key]
+            if not isinstance(v, list) or not v:
+                raise w.fail("expected a list of bands [[low_hz, high_hz], ...]")
+            bands = []
+            for b in v:
+                lo, hi = _band(b, w) if isinstance(b, list) else _band_error(b, w)
+                if hi > nyq:
+                    raise w.fail(f"band edge {_fmt(hi)} Hz is above Nyquist ({_nyq_text(fs)}); "
+                                 f"end the band at or below {_fmt(nyq)} Hz")
+                bands.append((lo, hi))
+            out[key] = tuple(bands)
+    return Budget(**out)
+
+
+def _band_error(b, w: _Place):
+    raise w.fail(f"each band must be a list [low_hz, high_hz], got {_type_name(b)}")
+
+
+def _nyq_text(fs: float) -> str:
+    return f"sample_rate_hz={_fmt(fs)} -> {_fmt(fs / 2)} Hz"
+
+
+def _channel(ch: dict, number: int, source: str, fs: float, seen: set[str]) -> ChannelSpec:
+    where = _Place(source, key=None)
+    if "name" not in ch:
+        raise _Place(source, key="name").fail(f"channel {number} has no name; add name = \"...\" to it")
+    name = _c_name(ch["name"], _Place(source, key="name"), "channel name")
+    where = _Place(source, channel=name)
+    _check_keys(ch, _CHANNEL_KEYS, where, "[[channel]]")
+    if name in seen:
+        raise where.at("name").fail("duplicate channel name; give every channel its own name")
+    seen.add(name)
+    if "stages" not in ch:
+        raise where.at("stages").fail("missing; add stages = [ { kind = \"...\", ... }, ... ]")
+    stages = ch["stages"]
+    if not isinstance(stages, list):
+        raise where.at("stages").fail(f"expected a list of stage tables, got {_type_name(stages)}")
+    if not stages:
+        raise where.at("stages").fail("empty channel; add at least one stage (e.g. { kind = \"gain\", db = 0 })")
+    return ChannelSpec(name=name, stages=tuple(_stage(s, i + 1, source, name, fs) for i, s in enumerate(stages)))
+
+
+def _stage(s, index: int, source: str, channel: str, fs: float) -> StageSpec:
+    where = _Place(source, channel=channel, stage=index)
+    if not isinstance(s, dict):
+        raise where.fail(f"expected a table {{ kind = \"...\", ... }}, got {_type_name(s)}")
+    if "kind" not in s:
+        raise where.at("kind").fail("missing; every stage needs kind = \"...\" "
+                                    f"(one of {', '.join(STAGE_KINDS)})")
+    kind = _string(s["kind"], where.at("kind"))
+    if kind not in STAGE_KEYS:
+        raise where.at("kind").fail(f"unknown stage kind '{kind}'{close_match(kind, STAGE_KINDS)}; "
+                                    f"use one of {', '.join(STAGE_KINDS)}")
+    schema = STAGE_KEYS[kind]
+    allowed = ("kind", *schema)
+    _check_keys(s, allowed, where, f"a '{kind}' stage")
+    banded = kind.endswith("bandpass") or kind.endswith("bandstop")
+    params: dict = {}
+    for key, value in s.items():
+        if key == "kind":
+            continue
+        check = schema[key]
+        w = where.at(key)
+        if check is _EDGE:
+            if banded:
+                if not isinstance(value, list):
+                    raise w.fail(f"a {kind} needs a band [low_hz, high_hz], got {_type_name(value)}")
+                params[key] = _band(value, w)
+            else:
+                if isinstance(value, list):
+                    raise w.fail(f"a {kind} needs a single frequency in Hz, not a list")
+                params[key] = _frequency(value, w)
+        else:
+            params[key] = check(value, w)
+        if key in _FREQ_KEYS:
+            edges = params[key] if isinstance(params[key], tuple) else (params[key],)
+            for f in edges:
+                if f >= fs / 2:
+                    raise w.fail(f"{_fmt(f)} Hz is at or above Nyquist ({_nyq_text(fs)}); "
+                                 f"use a frequency below {_fmt(fs / 2)} Hz")
+    if "order" in params and params["order"] > MAX_IIR_ORDER:
+        raise where.at("order").fail(f"order {params['order']} is too high; use at most {MAX_IIR_ORDER} "
+                                     "(split the filter or relax the requirement)")
+    if kind in FIR_KINDS and "taps" in params and params["taps"] > MAX_FIR_TAPS:
+        raise where.at("taps").fail(f"{params['taps']} taps is too many; use at most {MAX_FIR_TAPS}")
+    if kind == "delay" and "samples" in params:
+        n = params["samples"]
+        if n < 0:
+            raise where.at("samples").fail(f"{n} samples: a delay cannot be negative")
+    return StageSpec(index=index, kind=kind, params=MappingProxyType(params))

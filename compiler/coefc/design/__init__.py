@@ -1,5 +1,171 @@
-"""Float design: a channel's stages in, a :class:`coefc.blocks.ChannelDesign` out."""
+"""Float design: a channel's stages in, a :class:`coefc.blocks.ChannelDesign` out.
+
+Stage kinds (``kind = ...`` in a description) and the module that designs them:
+
+``lowpass``, ``highpass``, ``bandpass``, ``bandstop``
+    with ``response`` = ``butterworth``, ``chebyshev1``, ``chebyshev2``,
+    ``elliptic``, ``bessel`` (by ``order`` + ``cutoff_hz``, or by requirements
+    ``passband_hz``/``stopband_hz``/``ripple_db``/``attenuation_db``) -- :mod:`.iir`;
+    ``linkwitz-riley`` (orders 2, 4, 8; lowpass/highpass) -- :mod:`.linkwitz_riley`;
+    ``biquad`` (cookbook section, ``freq_hz`` + ``q``) -- :mod:`.eq`.
+``fir-lowpass``, ``fir-highpass``, ``fir-bandpass``, ``fir-bandstop``
+    linear-phase FIR from ``passband_hz``, ``stopband_hz``, ``attenuation_db``
+    by ``method`` = ``kaiser`` (default), ``equiripple`` or ``least-squares`` -- :mod:`.fir`.
+``peaking``, ``lowshelf``, ``highshelf``, ``notch``, ``allpass``
+    audio EQ biquads (``freq_hz``, ``gain_db``, ``q``/``bandwidth_oct``/``slope``) -- :mod:`.eq`.
+``weighting``
+    IEC 61672 A or C frequency weighting (``weighting = "A"``) -- :mod:`.weighting`.
+``dc-blocker``
+    first-order high-pass with corner ``cutoff_hz`` -- :mod:`.basic`.
+``gain``
+    ``db`` or ``linear``, ``invert`` -- :mod:`.basic`.
+``delay``
+    ``samples``, ``ms`` or ``metres`` (+ ``air_temperature_c``) -- :mod:`.basic`.
+``sos``, ``transfer``, ``fir``
+    raw coefficients: ``sections``, ``b``/``a``, ``taps`` -- :mod:`.basic`.
+
+:func:`design_channel` also collects warnings worth a designer's attention: very
+high-Q sections, poles very near the unit circle, requirements that needed a very
+high order, and a channel gain above 0 dB (headroom).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+from ..blocks import ChannelDesign, SosBlock, StageSummary
+from ..spec import FIR_KINDS, IIR_KINDS, ChannelSpec
+from .stage import StageContext, StageResult
+
+__all__ = ["design_channel", "section_q", "HIGH_Q", "POLE_RADIUS_WARN"]
+
+#: A section whose poles have a quality factor above this is reported.
+HIGH_Q = 20.0
+#: A pole with a radius above this is reported (it needs long coefficient words
+#: and long accumulators; at 48 kHz this is a pole below about 3.8 Hz).
+POLE_RADIUS_WARN = 0.9995
 
 
-def design_channel(channel, sample_rate_hz, source):
-    raise NotImplementedError("issue 2")
+def _designer(ctx: StageContext):
+    kind = ctx.kind
+    if kind in IIR_KINDS:
+        response = ctx.require("response", "give the response family, e.g. response = \"butterworth\"")
+        if response == "linkwitz-riley":
+            from .linkwitz_riley import design_linkwitz_riley
+
+            return design_linkwitz_riley
+        if response == "biquad":
+            from .eq import design_biquad_filter
+
+            return design_biquad_filter
+        from .iir import design_iir
+
+        return design_iir
+    if kind in FIR_KINDS:
+        from .fir import design_fir
+
+        return design_fir
+    if kind in ("peaking", "lowshelf", "highshelf", "notch", "allpass"):
+        from .eq import design_eq
+
+        return design_eq
+    if kind == "weighting":
+        from .weighting import design_weighting
+
+        return design_weighting
+    from . import basic
+
+    return {"dc-blocker": basic.design_dc_blocker, "gain": basic.design_gain, "delay": basic.design_delay,
+            "sos": basic.design_sos, "transfer": basic.design_transfer, "fir": basic.design_fir_taps}[kind]
+
+
+def section_q(row) -> float:
+    """Quality factor of a section's pole pair (0 for real poles).
+
+    The z-plane pole ``r e^{j theta}`` is mapped to ``s = fs (ln r + j theta)``
+    (impulse invariance of the pole), and ``Q = |s| / (2 |Re s|)``, the analog
+    definition.
+    """
+    a1, a2 = float(row[4]), float(row[5])
+    if a2 <= 0 or a1 * a1 >= 4 * a2:
+        return 0.0
+    r = math.sqrt(a2)
+    theta = math.acos(max(-1.0, min(1.0, -a1 / (2 * r))))
+    ln_r = math.log(r)
+    if ln_r == 0.0:
+        return math.inf
+    return math.hypot(ln_r, theta) / (2 * abs(ln_r))
+
+
+def _channel_warnings(blocks, stages: list[tuple[int, StageResult]], fs: float) -> list[str]:
+    out: list[str] = []
+    for index, res in stages:
+        for w in res.warnings:
+            out.append(f"stage {index}: {w}")
+        for b in res.blocks:
+            if not isinstance(b, SosBlock):
+                continue
+            for j, row in enumerate(b.sos):
+                q = section_q(row)
+                if q > HIGH_Q:
+                    out.append(f"stage {index}, section {j + 1}: very high Q ({q:.1f}); expect coefficient "
+                               "sensitivity and large internal gain")
+                a = np.trim_zeros(row[3:], "b")
+                if len(a) > 1:
+                    r = float(np.max(np.abs(np.roots(a))))
+                    if r > POLE_RADIUS_WARN:
+                        out.append(f"stage {index}, section {j + 1}: pole radius {r:.6f} is very near the unit "
+                                   "circle; it needs long coefficient words and may limit-cycle")
+    from ..blocks import chain_response
+
+    f = np.linspace(0.0, fs / 2, 2049)[:-1]
+    f = np.unique(np.concatenate([f, np.geomspace(1.0, fs / 2 * 0.999, 512)]))
+    mag = np.abs(chain_response(blocks, f, fs))
+    peak = float(np.max(mag)) if mag.size else 1.0
+    if peak > 1.0 + 1e-9:
+        i = int(np.argmax(mag))
+        out.append(f"channel gain peaks at {20 * math.log10(peak):+.2f} dB near {f[i]:.0f} Hz; a full-scale "
+                   "input would clip unless the signal has that much headroom")
+    return out
+
+
+def design_channel(channel: ChannelSpec, sample_rate_hz: float, source: str) -> ChannelDesign:
+    """Design every stage of *channel* in floating point.
+
+    Parameters
+    ----------
+    channel : coefc.spec.ChannelSpec
+        The validated channel.
+    sample_rate_hz : float
+        The description's sample rate.
+    source : str
+        The description file, for error messages.
+
+    Returns
+    -------
+    coefc.blocks.ChannelDesign
+        Blocks in signal order, one StageSummary per stage, and warnings.
+
+    Raises
+    ------
+    coefc.errors.DescriptionError
+        When a stage cannot be designed (unstable raw coefficients, impossible
+        requirements, keys that do not apply to the chosen response).
+    """
+    blocks = []
+    summaries = []
+    results: list[tuple[int, StageResult]] = []
+    for st in channel.stages:
+        ctx = StageContext(source=source, channel=channel.name, index=st.index, kind=st.kind,
+                           fs=float(sample_rate_hz), params=st.params)
+        res = _designer(ctx)(ctx)
+        blocks.extend(res.blocks)
+        results.append((st.index, res))
+        summaries.append(StageSummary(index=st.index, kind=st.kind, text=res.text, order=res.order,
+                                      sections=res.sections, taps=res.taps,
+                                      latency_samples=res.latency_samples))
+    warnings = _channel_warnings(blocks, results, float(sample_rate_hz))
+    return ChannelDesign(name=channel.name, sample_rate_hz=float(sample_rate_hz), blocks=tuple(blocks),
+                         stages=tuple(summaries), warnings=tuple(warnings))
