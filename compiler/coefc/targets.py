@@ -10,6 +10,7 @@ or hold target folders.
 from __future__ import annotations
 
 import os
+import re
 import tomllib
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass, field
@@ -87,7 +88,10 @@ def load_target(folder: Path) -> Target:
     try:
         raw = tomllib.loads(path.read_text(encoding="utf-8"))
     except tomllib.TOMLDecodeError as e:
-        raise TargetError(f"{path}: {e}; fix the TOML syntax") from None
+        m = re.search(r"\(at line (\d+), column (\d+)\)", str(e))
+        at = f"{path}:{m.group(1)}" if m else str(path)
+        msg = re.sub(r"\s*\(at line \d+, column \d+\)", "", str(e))
+        raise TargetError(f"{at}: {msg}; fix the TOML syntax") from None
     except (OSError, UnicodeDecodeError) as e:
         raise TargetError(f"{path}: cannot read ({e})") from None
     ar = raw.get("arithmetic")
@@ -185,3 +189,173 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
         raise DescriptionError(source, f"accumulator of {arith.acc_bits} bits is narrower than the "
                                f"{arith.data.width}-bit data word; widen acc_bits", key="acc_bits")
     return arith
+
+
+# ---------------------------------------------------------------------------
+# Build tables: what `coefc build` needs besides the arithmetic.
+#
+# A target that can emit headers adds these tables to its target.toml (all are
+# checked here, with the file and line of the offending key):
+#
+#   [c]        data_type, coef_type, state_type    C types of the containers
+#   [limits]   max_data_bits, max_coef_bits, max_acc_bits
+#              the widest words its kernel computes exactly
+#   [layout]   section = ["b0", "b1", "b2", "a1", "a2"]  memory order of one
+#              second-order section; "-a1"/"-a2" store the a terms negated (the
+#              kernel then adds every product, as a MAC-only core does)
+#              post_shift = true   whether a per-operation post-shift is allowed
+#   [memory]   alignment (bytes, power of two), linker_section ("" = default)
+#   [kernel]   prefix (C prefix of the kernel's names), abi (interface version),
+#              header (file the generated header includes), sources (list)
+#   [templates] header (Jinja2 template of the header), source (optional,
+#              template of a companion .c file)
+# ---------------------------------------------------------------------------
+
+SECTION_TERMS = ("b0", "b1", "b2", "a1", "a2")
+_IDENT_RE = re.compile(r"^[A-Za-z][A-Za-z0-9_]*$")
+_SECTION_RE = re.compile(r"^[A-Za-z0-9_.$]*$")
+
+
+@dataclass(frozen=True)
+class BuildInfo:
+    """The validated build tables of a target (see the comment above)."""
+
+    data_type: str
+    coef_type: str
+    state_type: str
+    max_data_bits: int
+    max_coef_bits: int
+    max_acc_bits: int
+    section_layout: tuple[str, ...]  # e.g. ("b0", "b1", "b2", "-a1", "-a2")
+    post_shift: bool
+    alignment: int
+    linker_section: str
+    kernel_prefix: str
+    kernel_abi: int
+    kernel_header: str  # relative to the target folder
+    kernel_sources: tuple[str, ...]  # relative to the target folder
+    header_template: str  # relative to the target folder
+    source_template: str | None
+
+    def kernel_files(self, folder: Path) -> tuple[Path, ...]:
+        """The kernel header and sources as paths inside *folder*."""
+        return tuple(folder / p for p in (self.kernel_header, *self.kernel_sources))
+
+
+def key_line(path: Path, table: str, key: str) -> int | None:
+    """1-based line of ``key = ...`` inside ``[table]`` of a TOML file, if found."""
+    try:
+        lines = path.read_text(encoding="utf-8").splitlines()
+    except (OSError, UnicodeDecodeError):
+        return None
+    current = ""
+    key_re = re.compile(r"^\s*" + re.escape(key) + r"\s*=")
+    for i, line in enumerate(lines, 1):
+        m = re.match(r"^\s*\[\s*([A-Za-z0-9_.\-]+)\s*\]", line)
+        if m:
+            current = m.group(1)
+            continue
+        if current == table and key_re.match(line):
+            return i
+    return None
+
+
+def build_info(target: Target) -> BuildInfo:
+    """Validate and return the build tables of *target* (raises TargetError)."""
+    path = target.folder / "target.toml"
+    raw = target.raw
+
+    def where(table: str, key: str | None = None) -> str:
+        line = key_line(path, table, key) if key else None
+        if line is None and key is None:
+            for i, text in enumerate(path.read_text(encoding="utf-8").splitlines(), 1):
+                if text.strip() == f"[{table}]":
+                    line = i
+                    break
+        return f"{path}:{line}" if line else str(path)
+
+    def table(name: str) -> Mapping:
+        t = raw.get(name)
+        if not isinstance(t, dict):
+            raise TargetError(f"{path}: target '{target.name}' has no table [{name}], so it cannot build "
+                              "headers; add it (see the README section on writing a target)")
+        return t
+
+    def get(tname: str, key: str, typ, *, allowed=None, default=None, optional=False):
+        t = table(tname)
+        if key not in t:
+            if optional:
+                return default
+            raise TargetError(f"{where(tname)}: [{tname}] needs key '{key}'"
+                              f"{close_match(key, t.keys())}")
+        v = t[key]
+        if typ is int and (isinstance(v, bool) or not isinstance(v, int)):
+            raise TargetError(f"{where(tname, key)}: [{tname}] key '{key}' must be an integer, got {v!r}")
+        if typ is not int and not isinstance(v, typ):
+            raise TargetError(f"{where(tname, key)}: [{tname}] key '{key}' must be a {typ.__name__}, got {v!r}")
+        if allowed is not None and v not in allowed:
+            raise TargetError(f"{where(tname, key)}: [{tname}] key '{key}' = {v!r}; use one of "
+                              f"{', '.join(map(str, allowed))}")
+        return v
+
+    fixed = not target.arithmetic.is_float
+    types = ("int16_t", "int32_t", "int64_t") if fixed else ("float",)
+    data_type = get("c", "data_type", str, allowed=types)
+    coef_type = get("c", "coef_type", str, allowed=types)
+    state_type = get("c", "state_type", str, allowed=types)
+    width = {"int16_t": 16, "int32_t": 32, "int64_t": 64, "float": 32}
+    if fixed:
+        max_data = get("limits", "max_data_bits", int)
+        max_coef = get("limits", "max_coef_bits", int)
+        max_acc = get("limits", "max_acc_bits", int)
+        for key, v, cont in (("max_data_bits", max_data, width[data_type]),
+                             ("max_coef_bits", max_coef, width[coef_type])):
+            if not 2 <= v <= cont:
+                raise TargetError(f"{where('limits', key)}: [limits] {key} = {v} does not fit the "
+                                  f"{cont}-bit container of [c]; use 2..{cont}")
+        if not 2 <= max_acc <= 64 or max_acc > width[state_type]:
+            raise TargetError(f"{where('limits', 'max_acc_bits')}: [limits] max_acc_bits = {max_acc}; "
+                              f"use 2..{min(64, width[state_type])} (the state word must hold an accumulator)")
+        a = target.arithmetic
+        for key, bits, lim in (("data", a.data.width, max_data), ("coef", a.coef.width, max_coef),
+                               ("acc_bits", a.acc_bits, max_acc)):
+            if bits > lim:
+                raise TargetError(f"{where('arithmetic', key)}: [arithmetic] {key} is {bits} bits wide but "
+                                  f"[limits] allows at most {lim}; make them agree")
+    else:
+        max_data = max_coef = max_acc = 32
+    layout = get("layout", "section", list)
+    terms = [str(t).lstrip("-") for t in layout]
+    if (sorted(terms) != sorted(SECTION_TERMS) or any(not isinstance(t, str) for t in layout)
+            or any(t.startswith("-") and t[1:] not in ("a1", "a2") for t in layout)):
+        raise TargetError(f"{where('layout', 'section')}: [layout] section = {layout!r} must list each of "
+                          "b0 b1 b2 a1 a2 once, in memory order ('-a1'/'-a2' store a negated)")
+    post_shift = get("layout", "post_shift", bool, default=True, optional=True)
+    alignment = get("memory", "alignment", int, default=0, optional=True)
+    if alignment < 0 or (alignment & (alignment - 1)):
+        raise TargetError(f"{where('memory', 'alignment')}: [memory] alignment = {alignment}; "
+                          "use 0 (none) or a power of two")
+    section = get("memory", "linker_section", str, default="", optional=True)
+    if not _SECTION_RE.match(section):
+        raise TargetError(f"{where('memory', 'linker_section')}: [memory] linker_section = {section!r}; "
+                          "use letters, digits, '_', '.' and '$' only")
+    prefix = get("kernel", "prefix", str)
+    if not _IDENT_RE.match(prefix):
+        raise TargetError(f"{where('kernel', 'prefix')}: [kernel] prefix = {prefix!r} is not a C identifier")
+    abi = get("kernel", "abi", int)
+    header = get("kernel", "header", str)
+    sources = get("kernel", "sources", list, default=[], optional=True)
+    header_t = get("templates", "header", str)
+    source_t = get("templates", "source", str, optional=True)
+    for tname, key, rel in [("kernel", "header", header), ("templates", "header", header_t)] + \
+            [("kernel", "sources", s) for s in sources] + \
+            ([("templates", "source", source_t)] if source_t else []):
+        if not isinstance(rel, str) or not (target.folder / rel).is_file():
+            raise TargetError(f"{where(tname, key)}: [{tname}] {key}: file {rel!r} not found in "
+                              f"{target.folder}; fix the path")
+    return BuildInfo(data_type=data_type, coef_type=coef_type, state_type=state_type,
+                     max_data_bits=max_data, max_coef_bits=max_coef, max_acc_bits=max_acc,
+                     section_layout=tuple(layout), post_shift=post_shift, alignment=alignment,
+                     linker_section=section, kernel_prefix=prefix, kernel_abi=abi,
+                     kernel_header=header, kernel_sources=tuple(sources),
+                     header_template=header_t, source_template=source_t)

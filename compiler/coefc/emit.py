@@ -1,0 +1,594 @@
+"""C header emission: a realised description (and its check report) in,
+``{filename: text}`` out.
+
+Everything the header holds is computed here, in Python: the coefficient words in
+the target's memory order and sign convention, the operation table the target's
+reference kernel interprets, the state sizes, and the golden vectors (a fixed,
+deterministic input and the bit-exact output of :func:`coefc.simulate.simulate`).
+The target's Jinja2 template receives finished integers and strings and does no
+arithmetic.  Templates are rendered in a sandbox with undefined variables as
+errors, so a missing value can never become an empty coefficient.
+
+Nothing here writes a file; the CLI writes the returned texts atomically.  For
+identical inputs the text is byte-identical: the banner carries the tool version
+and the SHA-256 of the description and of the target.toml, never a time.
+
+Interface version 1 of a kernel (``[kernel] abi = 1``) is the operation table
+written here; the state words each operation uses are:
+
+====================  ===========================================================
+operation             state words
+====================  ===========================================================
+section, df1          4  (x[n-1], x[n-2], y[n-1], y[n-2])
+section, tdf2         2  (S1, S2 at accumulator precision)
+section, df1ef        5  (as df1, then the previous rounding residual E)
+FIR of N taps         N + 1  (position of the newest sample, then N samples)
+gain                  0
+delay of D samples    D + 1  (position, then D samples)
+====================  ===========================================================
+
+References
+----------
+The generated-code habits (version and source hash in the banner, compile-time
+guards against the wrong kernel or word width, byte-identical regeneration)
+follow common practice of code generators for microcontrollers (common practice,
+no source).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import math
+import re
+import sys
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+from .errors import CoefcError, DescriptionError, TargetError
+from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from .targets import BuildInfo, Target, build_info
+
+__all__ = ["render", "c_identifier", "golden_input", "GOLDEN_DEFAULT", "EmitError"]
+
+#: Default number of golden-vector samples per channel.
+GOLDEN_DEFAULT = 256
+#: The kernel interface versions this emitter writes.
+SUPPORTED_ABI = (1,)
+
+_STATE_WORDS = {"df1": 4, "tdf2": 2, "df1ef": 5}
+
+# C99 keywords and the names the standard headers we include reserve.
+C_KEYWORDS = frozenset("""
+    auto break case char const continue default do double else enum extern float
+    for goto if inline int long register restrict return short signed sizeof static
+    struct switch typedef union unsigned void volatile while _Bool _Complex _Imaginary
+""".split())
+
+
+class EmitError(CoefcError):
+    """A realised program cannot be written for the chosen target."""
+
+
+@dataclass(frozen=True)
+class _Names:
+    name: str  # description prefix, sanitised
+    channels: tuple[str, ...]  # "<name>_<channel>"
+
+
+def c_identifier(text: str, what: str, source: str) -> str:
+    """Sanitise *text* into a C identifier fragment or raise DescriptionError.
+
+    Runs of characters other than letters, digits and ``_`` become one ``_``;
+    leading and trailing ``_`` are dropped.  A fragment must start with a letter
+    and must not be a C keyword.
+
+    >>> c_identifier("mid-high 2", "channel", "x.toml")
+    'mid_high_2'
+    """
+    ident = re.sub(r"[^A-Za-z0-9_]+", "_", str(text)).strip("_")
+    if not ident or not ident[0].isalpha():
+        raise DescriptionError(source, f"{what} '{text}' cannot become a C identifier (it must start "
+                               "with a letter); rename it", key="name")
+    if ident in C_KEYWORDS:
+        raise DescriptionError(source, f"{what} '{text}' is a C keyword; rename it", key="name")
+    return ident
+
+
+def _names(desc_name: str, channel_names, source: str) -> _Names:
+    name = c_identifier(desc_name, "description name", source)
+    seen: dict[str, str] = {}
+    chans = []
+    for ch in channel_names:
+        ident = f"{name}_{c_identifier(ch, 'channel name', source)}"
+        key = ident.upper()  # macros are upper case: 'Mid' and 'mid' collide there
+        if key in seen:
+            raise DescriptionError(source, f"channel names '{seen[key]}' and '{ch}' both become the C name "
+                                   f"'{ident}'; rename one of them", channel=ch, key="name")
+        seen[key] = ch
+        chans.append(ident)
+    # Every generated identifier (and macro) must be unique, e.g. a channel
+    # 'woofer_ops' would collide with the operation table of channel 'woofer'.
+    suffixes = ("", "_coefs", "_ops", "_golden_out", "_N_OPS", "_N_COEFS", "_STATE_WORDS")
+    globals_ = ("_channels", "_channel_names", "_golden_in", "_golden_out", "_COEF_ATTR", "_N_CHANNELS",
+                "_MAX_STATE_WORDS", "_GOLDEN_LEN", "_DATA_BITS", "_DATA_FRAC_BITS", "_COEF_BITS",
+                "_COEF_FRAC_BITS", "_ACC_BITS", "_SAMPLE_RATE_HZ", "_OVER_BUDGET", "_COEFC_H")
+    made: dict[str, str] = {(name + g).upper(): "the description" for g in globals_}
+    for ch, ident in zip(channel_names, chans):
+        for suf in suffixes:
+            key = (ident + suf).upper()
+            if key in made:
+                raise DescriptionError(source, f"channel '{ch}' makes the C name '{ident}{suf}', which "
+                                       f"{made[key]} also uses; rename the channel", channel=ch, key="name")
+            made[key] = f"channel '{ch}'"
+    return _Names(name, tuple(chans))
+
+
+# ---------------------------------------------------------------------------
+# literals
+# ---------------------------------------------------------------------------
+
+def _int_literal(v: int) -> str:
+    v = int(v)
+    if v == -(1 << 31):
+        return "(-2147483647 - 1)"
+    if not -(1 << 31) < v < (1 << 31):
+        return f"INT64_C({v})" if v != -(1 << 63) else "(-INT64_C(9223372036854775807) - 1)"
+    return str(v)
+
+
+def _float_literal(v: float) -> str:
+    f = float(np.float32(v))
+    if not math.isfinite(f):
+        raise EmitError(f"value {v!r} is not finite and cannot be written as a float32 constant")
+    return f.hex() + "f"
+
+
+def _lines(literals: list[str], per_line: int = 8) -> list[str]:
+    """Group literals into comma-terminated lines."""
+    return [", ".join(literals[i:i + per_line]) + "," for i in range(0, len(literals), per_line)]
+
+
+# ---------------------------------------------------------------------------
+# golden vectors
+# ---------------------------------------------------------------------------
+
+def golden_input(n: int, width: int) -> list[int]:
+    """The deterministic golden input: *n* integers of a signed *width*-bit word.
+
+    Four parts of (about) equal length, computed with integers only, so the
+    sequence is identical on every machine:
+
+    1. a full-scale impulse, then silence (the impulse response);
+    2. a triangle-wave chirp at half scale, its frequency rising linearly;
+    3. pseudo-random noise at a quarter of full scale (xorshift32, fixed seed);
+    4. full-scale steps alternating between the largest and the smallest word
+       every 16 samples, to drive saturation (or wrapping).
+
+    >>> golden_input(8, 16)[:3]
+    [32767, 0, 16383]
+    """
+    hi, lo = (1 << (width - 1)) - 1, -(1 << (width - 1))
+    q = max(1, n // 4)
+    out: list[int] = []
+    phase, inc = 0, 1 << 24
+    dinc = max(1, ((1 << 31) - inc) // max(1, q))
+    state = 0x2545F491
+    for t in range(n):
+        part = min(3, t // q)
+        i = t - part * q
+        if part == 0:
+            v = hi if i == 0 else 0
+        elif part == 1:
+            p = (phase >> 16) & 0xFFFF  # 16-bit phase
+            tri = (p << 1) if p < 0x8000 else ((0xFFFF - p) << 1)  # 0 .. 65534
+            v = ((tri - 32767) * (hi >> 1)) // 32767
+            phase = (phase + inc) & 0xFFFFFFFF
+            inc = min(inc + dinc, 1 << 31)
+        elif part == 2:
+            state ^= (state << 13) & 0xFFFFFFFF
+            state ^= state >> 17
+            state ^= (state << 5) & 0xFFFFFFFF
+            v = ((state & 0xFFFF) - 0x8000) * (hi >> 2) // 0x8000
+        else:
+            v = hi if (i // 16) % 2 == 0 else lo
+        out.append(max(lo, min(hi, int(v))))
+    return out
+
+
+def _golden(programs, n: int, fixed: bool, data_bits: int):
+    from .simulate import simulate
+
+    if fixed:
+        x_int = golden_input(n, data_bits)
+        x = np.asarray(x_int, dtype=np.int64)
+        inputs = [_int_literal(v) for v in x_int]
+    else:
+        x = (np.asarray(golden_input(n, 24), dtype=np.float64) / float(1 << 23)).astype(np.float32)
+        inputs = [_float_literal(v) for v in x]
+    outs = []
+    for p in programs:
+        y = np.asarray(simulate(p, x.copy()))
+        if fixed:
+            outs.append([_int_literal(int(v)) for v in y])
+        else:
+            if not np.all(np.isfinite(y)):
+                raise EmitError(f"channel '{p.name}': the float32 golden output is not finite; the realised "
+                                "filter is unstable, fix the design before building")
+            outs.append([_float_literal(float(v)) for v in y])
+    return inputs, outs
+
+
+# ---------------------------------------------------------------------------
+# the operation table
+# ---------------------------------------------------------------------------
+
+def _check_word(v: int, bits: int, what: str, channel: str) -> None:
+    if not -(1 << (bits - 1)) <= v < (1 << (bits - 1)):
+        raise EmitError(f"channel '{channel}': {what} {v} does not fit a {bits}-bit word")
+
+
+def _ops(program: ChannelProgram, info: BuildInfo, prefix: str, target: Target):
+    """Op initialisers, coefficient literals and state size of one channel."""
+    arith = program.arithmetic
+    fixed = not arith.is_float
+    P = prefix.upper()
+    lit = _int_literal if fixed else _float_literal
+    coefs: list[str] = []
+    ops = []
+    state = 0
+    fc = arith.coef.frac_bits if fixed else 0
+    cbits = arith.coef.width if fixed else 32
+    max_k = 64 if info.state_type == "int64_t" else 32
+
+    def rshift(shift: int, what: str) -> int:
+        if not fixed:
+            if shift:
+                raise EmitError(f"channel '{program.name}': {what} has post-shift {shift}, which float32 "
+                                "arithmetic does not use")
+            return 0
+        if shift and not info.post_shift:
+            raise EmitError(f"channel '{program.name}': {what} needs post-shift {shift} but target "
+                            f"'{target.name}' has none ([layout] post_shift = false); give the coefficient "
+                            "word more integer bits (--coef)")
+        k = fc - shift
+        if not 1 <= k < max_k:
+            raise EmitError(f"channel '{program.name}': {what} needs a right shift of {k} bits "
+                            f"(Fc={fc} minus post-shift {shift}); the kernel supports 1..{max_k - 1}")
+        return k
+
+    def add(values, what: str) -> int:
+        at = len(coefs)
+        for v in values:
+            if fixed:
+                if isinstance(v, float) and not float(v).is_integer():
+                    raise EmitError(f"channel '{program.name}': {what} coefficient {v!r} is not an integer")
+                _check_word(int(v), cbits, f"{what} coefficient", program.name)
+            coefs.append(lit(v))
+        return at
+
+    n_sec = 0
+    for i, op in enumerate(program.ops, 1):
+        if isinstance(op, SectionOp):
+            n_sec += 1
+            what = f"section {n_sec}"
+            if op.structure not in _STATE_WORDS:
+                raise EmitError(f"channel '{program.name}': {what} has structure '{op.structure}', which "
+                                "the kernel interface does not know")
+            if op.structure not in target.structures:
+                raise EmitError(f"channel '{program.name}': target '{target.name}' has no kernel for "
+                                f"structure '{op.structure}'; it supports {', '.join(target.structures)}")
+            terms = {"b0": op.b[0], "b1": op.b[1], "b2": op.b[2], "a1": op.a[0], "a2": op.a[1]}
+            values = []
+            for t in info.section_layout:
+                v = terms[t.lstrip("-")]
+                values.append(-v if t.startswith("-") else v)
+            k = rshift(op.shift, what)
+            at = add(values, what)
+            words = _STATE_WORDS[op.structure]
+            ops.append((f"{P}_OP_{op.structure.upper()}", k, 1, at, state,
+                        f"{what}, {op.structure}, post-shift {op.shift}"))
+            state += words
+        elif isinstance(op, FirOp):
+            taps = list(op.taps)
+            if not taps:
+                raise EmitError(f"channel '{program.name}': op {i} is an FIR without taps")
+            k = rshift(op.shift, f"FIR (op {i})")
+            at = add(taps, f"FIR (op {i})")
+            ops.append((f"{P}_OP_FIR", k, len(taps), at, state,
+                        f"FIR, {len(taps)} taps{' (symmetric)' if op.symmetric else ''}, post-shift {op.shift}"))
+            state += len(taps) + 1
+        elif isinstance(op, GainOp):
+            k = rshift(op.shift, f"gain (op {i})")
+            at = add([op.coef], f"gain (op {i})")
+            ops.append((f"{P}_OP_GAIN", k, 1, at, state, f"gain, post-shift {op.shift}"))
+        elif isinstance(op, DelayOp):
+            d = int(op.samples)
+            if d < 0:
+                raise EmitError(f"channel '{program.name}': op {i} is a negative delay ({d} samples)")
+            ops.append((f"{P}_OP_DELAY", 0, d, 0, state, f"delay, {d} samples"))
+            state += d + 1 if d else 0
+        else:
+            raise EmitError(f"channel '{program.name}': op {i} ({type(op).__name__}) has no C form")
+    return ops, coefs, state
+
+
+# ---------------------------------------------------------------------------
+# rendering
+# ---------------------------------------------------------------------------
+
+def _environment(folder: Path):
+    """The one Jinja2 environment: sandboxed, strict, templates from *folder*."""
+    import jinja2
+    from jinja2.sandbox import SandboxedEnvironment
+
+    return SandboxedEnvironment(
+        loader=jinja2.FileSystemLoader(str(folder)),
+        undefined=jinja2.StrictUndefined,
+        keep_trailing_newline=True,
+        autoescape=False,
+        trim_blocks=True,
+        lstrip_blocks=True,
+    )
+
+
+def _template_line(tb, template_path: Path) -> int | None:
+    """The template line of the innermost traceback frame inside the template."""
+    line = None
+    name = str(template_path)
+    while tb is not None:
+        if tb.tb_frame.f_code.co_filename == name:
+            line = tb.tb_lineno
+        tb = tb.tb_next
+    return line
+
+
+def render_template(folder: Path, rel: str, context: dict) -> str:
+    """Render ``folder/rel`` with *context*; errors become TargetError with file:line."""
+    import jinja2
+
+    path = folder / rel
+    env = _environment(folder)
+    try:
+        template = env.get_template(Path(rel).as_posix())
+    except jinja2.TemplateSyntaxError as e:
+        raise TargetError(f"{path}:{e.lineno}: template syntax error: {e.message}; fix the template") from None
+    except jinja2.TemplateNotFound:
+        raise TargetError(f"{path}: template not found; fix [templates] in target.toml") from None
+    try:
+        return template.render(**context)
+    except jinja2.UndefinedError as e:
+        line = _template_line(sys.exc_info()[2], path.resolve()) or _template_line(sys.exc_info()[2], path)
+        at = f"{path}:{line}" if line else str(path)
+        raise TargetError(f"{at}: {e.message}; the template uses a value coefc does not provide "
+                          "(see the README section on writing a target)") from None
+    except jinja2.TemplateError as e:
+        line = _template_line(sys.exc_info()[2], path.resolve()) or _template_line(sys.exc_info()[2], path)
+        at = f"{path}:{line}" if line else str(path)
+        raise TargetError(f"{at}: template error: {e}") from None
+
+
+def _fmt(v) -> str:
+    if isinstance(v, bool) or v is None:
+        return str(v).lower() if isinstance(v, bool) else "-"
+    if isinstance(v, int):
+        return str(v)
+    if isinstance(v, float):
+        return f"{v:.4g}"
+    if isinstance(v, dict):
+        return ", ".join(f"{k} {_fmt(x)}" for k, x in v.items())
+    return str(v)
+
+
+def _check_rows(ch_report):
+    """(name, value, limit, ok) rows of one channel of a CheckReport."""
+    rows = []
+    for c in getattr(ch_report, "checks", ()) or ():
+        if isinstance(c, dict):
+            rows.append((c["name"], c.get("value"), c.get("limit"), bool(c.get("ok"))))
+        elif isinstance(c, (tuple, list)):
+            rows.append((c[0], c[1], c[2], bool(c[3])))
+        else:
+            rows.append((c.name, c.value, c.limit, bool(c.ok)))
+    return rows
+
+
+_KEY_METRICS = ("passband_deviation_db", "stopband_attenuation_db", "output_noise_dbfs",
+                "headroom_bits", "overflow_count", "max_pole_radius")
+
+CAUTION = ("Caution: a fixed-point filter that overflows or limit-cycles can drive an amplifier or "
+           "actuator to full scale; verify on the hardware and follow the standards and sign-off "
+           "practice that apply to your product.")
+
+
+def _wrap(text: str, width: int = 76) -> list[str]:
+    import textwrap
+
+    return textwrap.wrap(text, width) or [""]
+
+
+def render(realisation, report=None, *, header_name: str = "filters.h",
+           vectors: int = GOLDEN_DEFAULT, forced: bool = False) -> dict[str, str]:
+    """Render the C header (and the target's optional companion source).
+
+    Parameters
+    ----------
+    realisation : coefc.api.Realisation
+        The realised channels, their target and the description they came from.
+    report : coefc.budget.CheckReport, optional
+        The check of *realisation*; its verdict and key metrics go into the
+        banner.  ``None`` writes "not checked".
+    header_name : str
+        File name of the header (a bare name; it also names the companion source).
+    vectors : int
+        Golden-vector samples per channel (0 = none).
+    forced : bool
+        The report is over budget and the caller insists: the header says so in
+        its first lines and defines ``<NAME>_OVER_BUDGET 1``.
+
+    Returns
+    -------
+    dict
+        ``{file name: text}``: the header, and ``<stem>.c`` when the target has a
+        ``[templates] source``.
+    """
+    from . import __version__
+
+    desc = realisation.design.loaded.description
+    target: Target = realisation.target
+    programs = tuple(realisation.programs)
+    if not programs:
+        raise EmitError(f"{desc.source}: no channel to write")
+    info = build_info(target)
+    if info.kernel_abi not in SUPPORTED_ABI:
+        raise TargetError(f"{target.folder / 'target.toml'}: [kernel] abi = {info.kernel_abi}; this coefc "
+                          f"writes interface {', '.join(map(str, SUPPORTED_ABI))}")
+    if vectors < 0:
+        raise CoefcError(f"<command line>: --vectors {vectors}: use 0 (none) or a positive count")
+    header_name = Path(header_name).name
+    names = _names(desc.name, [p.name for p in programs], desc.source)
+
+    arith = programs[0].arithmetic
+    if any(p.arithmetic != arith for p in programs):
+        raise EmitError(f"{desc.source}: channels were realised in different arithmetic; one header holds one")
+    fixed = not arith.is_float
+    if fixed:
+        for what, bits, lim, flag in (("data word", arith.data.width, info.max_data_bits, "--data"),
+                                      ("coefficient word", arith.coef.width, info.max_coef_bits, "--coef"),
+                                      ("accumulator", arith.acc_bits, info.max_acc_bits, "--acc")):
+            if bits > lim:
+                raise EmitError(f"{desc.source}: the {what} is {bits} bits wide but the kernel of target "
+                                f"'{target.name}' handles at most {lim}; narrow it ({flag}) or choose another target")
+
+    prefix = info.kernel_prefix
+    P = prefix.upper()
+    NAME = names.name.upper()
+    toml_bytes = (target.folder / "target.toml").read_bytes()
+    over = report is not None and not bool(report.ok)
+    if over and not forced:
+        raise EmitError(f"{desc.source}: over budget; the header is not written (use --force to write it anyway)")
+
+    golden = None
+    golden_outs: list[list[str]] = [[] for _ in programs]
+    if vectors:
+        inputs, golden_outs = _golden(programs, vectors, fixed, arith.data.width if fixed else 32)
+        golden = {
+            "n": vectors,
+            "input_lines": _lines(inputs),
+            "summary": (f"{vectors} samples: impulse, triangle chirp, noise, full-scale steps; "
+                        "expected output is coefc's bit-true simulation"),
+        }
+
+    report_channels = {c.name: c for c in getattr(report, "channels", ())} if report is not None else {}
+    channels = []
+    banner_metrics: list[str] = []
+    for p, ident, gout in zip(programs, names.channels, golden_outs):
+        ops, coefs, state = _ops(p, info, prefix, target)
+        n_sec = sum(isinstance(o, SectionOp) for o in p.ops)
+        taps = sum(len(o.taps) for o in p.ops if isinstance(o, FirOp))
+        delay = sum(o.samples for o in p.ops if isinstance(o, DelayOp))
+        parts = [f"{n_sec} section{'s' if n_sec != 1 else ''} ({p.arithmetic.structure})"] if n_sec else []
+        parts += [f"FIR {taps} taps"] if taps else []
+        parts += [f"{sum(isinstance(o, GainOp) for o in p.ops)} gain"] if any(isinstance(o, GainOp) for o in p.ops) else []
+        parts += [f"delay {delay} samples"] if delay else []
+        summary = ", ".join(parts) or "pass-through"
+        channels.append({
+            "name": p.name,
+            "ident": ident,
+            "IDENT": ident.upper(),
+            "summary": summary,
+            "n_ops": len(ops),
+            "n_coefs": len(coefs),
+            "state_words": max(1, state),
+            "coef_lines": _lines(coefs, 5),
+            "ops": [{"init": f"{{{kind}, {k}u, {cnt}u, {at}u, {st}u}}", "comment": cm}
+                    for kind, k, cnt, at, st, cm in ops],
+            "ops_ref": f"{ident}_ops" if ops else "0",
+            "coefs_ref": f"{ident}_coefs" if coefs else "0",
+            "data_bits": arith.data.width if fixed else 32,
+            "acc_bits": arith.acc_bits if fixed else 32,
+            "rounding": f"{P}_ROUND_{arith.rounding.upper()}" if fixed else "0",
+            "overflow": f"{P}_OVERFLOW_{arith.overflow.upper()}" if fixed else "0",
+            "golden_lines": _lines(gout),
+        })
+        rc = report_channels.get(p.name)
+        if rc is not None:
+            metrics = getattr(rc, "metrics", {}) or {}
+            shown = [f"{k} {_fmt(metrics[k])}" for k in _KEY_METRICS if k in metrics]
+            lc = metrics.get("limit_cycle")
+            if isinstance(lc, dict) and "status" in lc:
+                shown.append(f"limit cycles {lc['status']}")
+            banner_metrics += _wrap(f"'{p.name}': {summary}; " + "; ".join(shown))
+            for name, value, limit, ok in _check_rows(rc):
+                if not ok:
+                    banner_metrics.append(f"  OVER BUDGET '{p.name}': {name} = {_fmt(value)} (limit {_fmt(limit)})")
+        else:
+            banner_metrics.append(f"'{p.name}': {summary}")
+
+    if report is None:
+        verdict = "not checked"
+    elif over:
+        verdict = "OVER BUDGET (written with --force)"
+    else:
+        verdict = "within budget"
+    if fixed:
+        fmt_text = (f"data {arith.data} ({arith.data.width}-bit), coefficients {arith.coef}, "
+                    f"{arith.acc_bits}-bit accumulator, rounding {arith.rounding}, overflow {arith.overflow}, "
+                    f"structure {arith.structure}, scaling {arith.scaling}")
+    else:
+        fmt_text = f"float32 (IEEE 754 single, no fused multiply-add), structure {arith.structure}"
+    lines: list[str] = []
+    if over:
+        lines += ["!!! OVER BUDGET: this header was written with --force although the check",
+                  "!!! failed; do not ship it without a review of the failed checks below."]
+    lines += [
+        f"{header_name}: generated by coefc {__version__}; do not edit, regenerate with coefc build.",
+        f"description  {Path(desc.source).name} (sha256 {desc.sha256})",
+        f"target       {target.name} (target.toml sha256 {hashlib.sha256(toml_bytes).hexdigest()})",
+        f"kernel       {Path(info.kernel_header).name}, interface {info.kernel_abi}",
+    ]
+    lines += _wrap("arithmetic   " + fmt_text)
+    lines += [f"verdict      {verdict}", "channels:"]
+    lines += ["  " + m for m in banner_metrics]
+    lines += ["Levels in dBFS: 0 dBFS is the RMS level of a full-scale sine (AES17)."]
+    lines += _wrap(CAUTION)
+    banner = [(" * " + line).rstrip() for line in lines]
+
+    attrs = []
+    if info.alignment:
+        attrs.append(f"aligned({info.alignment})")
+    if info.linker_section:
+        attrs.append(f'section("{info.linker_section}")')
+    coef_attr_gnu = f"__attribute__(({', '.join(attrs)}))" if attrs else ""
+    sr = float(desc.sample_rate_hz)
+    context = {
+        "banner": banner,
+        "header_name": header_name,
+        "guard": f"{NAME}_COEFC_H",
+        "name": names.name,
+        "NAME": NAME,
+        "fixed": fixed,
+        "over_budget": 1 if over else 0,
+        "sample_rate_hz": str(int(sr)) if sr.is_integer() else repr(sr),
+        "kernel": {"prefix": prefix, "PREFIX": P, "abi": info.kernel_abi,
+                   "include": Path(info.kernel_header).name,
+                   "a_negated": 1 if any(t.startswith("-") for t in info.section_layout) else 0},
+        "types": {"data": info.data_type, "coef": info.coef_type, "state": info.state_type},
+        "arithmetic": {
+            "data_bits": arith.data.width if fixed else 32,
+            "data_frac_bits": arith.data.frac_bits if fixed else 0,
+            "coef_bits": arith.coef.width if fixed else 32,
+            "coef_frac_bits": arith.coef.frac_bits if fixed else 0,
+            "acc_bits": arith.acc_bits if fixed else 32,
+            "structure": arith.structure,
+        },
+        "coef_attr_gnu": coef_attr_gnu,
+        "channels": channels,
+        "max_state_words": max(c["state_words"] for c in channels),
+        "golden": golden,
+    }
+    out = {header_name: render_template(target.folder, info.header_template, context)}
+    if info.source_template:
+        out[Path(header_name).stem + ".c"] = render_template(target.folder, info.source_template, context)
+    return out
