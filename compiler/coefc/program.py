@@ -1,6 +1,6 @@
 """The realised fixed-point (or float32) program of a channel.
 
-Produced by :mod:`coefc.realise`, executed by :mod:`coefc.engine`, measured by
+Produced by :mod:`coefc.realise`, executed by :mod:`coefc.simulate`, measured by
 :mod:`coefc.analyse` and written out by :mod:`coefc.emit`.  It holds finished
 integers: nothing downstream re-derives a coefficient.
 
@@ -15,6 +15,46 @@ The physical coefficient of an integer ``C`` is ``C * 2^(s - Fc)``.  Gains and F
 blocks follow the same rule (``acc = sum(C_k * x[n-k])``).  For a float32
 arithmetic the coefficients are float32 values and every operation is a float32
 operation in the order written above, with no fused multiply-add.
+
+Exact definitions shared by the engine, the C kernels and the noise analysis
+(``k = Fc - s >= 1``; all states start at zero; ``wrapA(v)`` reduces ``v`` modulo
+``2^acc_bits`` into ``[-2^(acc_bits-1), 2^(acc_bits-1))``)::
+
+    round_shift(v, k)  exact: (v + 2^(k-1)) >> k etc. (coefc.qformat); the rounding
+                       addition never wraps, it acts on the accumulator's value
+    fit_data(v)        saturate or wrap into the data word (coefc.qformat.fit_word)
+
+    df1    acc  = wrapA(B0*x[n] + B1*x[n-1] + B2*x[n-2] - A1*y[n-1] - A2*y[n-2])
+           y[n] = fit_data(round_shift(acc, k))
+
+    tdf2   (transposed direct form II; states at accumulator precision, unrounded)
+           acc   = wrapA(B0*x[n] + S1)
+           y[n]  = fit_data(round_shift(acc, k))
+           S1    = wrapA(B1*x[n] - A1*y[n] + S2)          (S2 of the previous sample)
+           S2    = wrapA(B2*x[n] - A2*y[n])
+
+    df1ef  (df1 with first-order error feedback; E = the previous residual)
+           acc  = wrapA(B0*x[n] + B1*x[n-1] + B2*x[n-2] - A1*y[n-1] - A2*y[n-2] + E)
+           v    = round_shift(acc, k)
+           E    = acc - v * 2^k                (the rounding residual, |E| < 2^k)
+           y[n] = fit_data(v)
+           so the rounding error is shaped by (1 - z^-1) before 1/A(z).
+
+    fir    acc  = wrapA(sum_k C_k * x[n-k]);   y[n] = fit_data(round_shift(acc, k))
+           (folding symmetric taps gives the identical integer result)
+    gain   acc  = wrapA(C * x[n]);             y[n] = fit_data(round_shift(acc, k))
+    delay  y[n] = x[n - D]
+
+An *accumulator overflow* is a sample where the exact (unwrapped) sum of that
+sample's terms lies outside the accumulator's range (for tdf2: any of its three
+sums); wrapping in between is harmless and not counted.  A *data overflow* is a
+sample where ``fit_data`` changed the value.
+
+float32 order (every step rounded to float32, no fused multiply-add)::
+
+    df1    acc = b0*x0; acc += b1*x1; acc += b2*x2; acc -= a1*y1; acc -= a2*y2; y = acc
+    tdf2   y = b0*x + s1; s1 = (b1*x - a1*y) + s2; s2 = b2*x - a2*y
+    fir    acc = t0*x[n]; acc += t_k*x[n-k] for k = 1, 2, ...;  gain  y = g*x
 """
 
 from __future__ import annotations
