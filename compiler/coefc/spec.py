@@ -260,10 +260,11 @@ def _frequency(v, where: _Place) -> float:
     return _positive(v, where)
 
 
-def _band(v, where: _Place) -> tuple[float, float]:
+def _band(v, where: _Place, allow_zero: bool = False) -> tuple[float, float]:
     if not isinstance(v, list) or len(v) != 2:
-        raise where.fail(f"expected a band [low_hz, high_hz], got {_type_name(v) if not isinstance(v, list) else f'a list of {len(v)} items'}")
-    lo = _frequency(v[0], where)
+        got = _type_name(v) if not isinstance(v, list) else f"a list of {len(v)} items"
+        raise where.fail(f"expected a band [low_hz, high_hz], got {got}")
+    lo = _non_negative(v[0], where) if allow_zero else _frequency(v[0], where)
     hi = _frequency(v[1], where)
     if lo >= hi:
         raise where.fail(f"band [{_fmt(lo)}, {_fmt(hi)}] Hz: the low edge must be below the high edge")
@@ -505,7 +506,7 @@ def _budget(t, source: str, fs: float) -> Budget:
                 raise w.fail("expected a list of bands [[low_hz, high_hz], ...]")
             bands = []
             for b in v:
-                lo, hi = _band(b, w) if isinstance(b, list) else _band_error(b, w)
+                lo, hi = _band(b, w, allow_zero=True) if isinstance(b, list) else _band_error(b, w)
                 if hi > nyq:
                     raise w.fail(f"band edge {_fmt(hi)} Hz is above Nyquist ({_nyq_text(fs)}); "
                                  f"end the band at or below {_fmt(nyq)} Hz")

@@ -55,9 +55,11 @@ def render_text(desc, summaries: list[dict]) -> str:
              + ("s" if len(summaries) != 1 else "")]
     for ch in summaries:
         lines.append("")
-        lines.append(f"channel {ch['name']}: {len(ch['stages'])} stages, {ch['sections']} second-order "
-                     f"sections, {ch['fir_taps']} FIR taps; latency {ch['latency_samples']:g} samples "
-                     f"({ch['latency_ms']:.3f} ms) plus the IIR group delay below")
+        n = len(ch["stages"])
+        lines.append(f"channel {ch['name']}: {n} stage{'s' if n != 1 else ''}, {ch['sections']} second-order "
+                     f"section{'s' if ch['sections'] != 1 else ''}, {ch['fir_taps']} FIR taps; latency "
+                     f"{ch['latency_samples']:g} samples ({ch['latency_ms']:.3f} ms)"
+                     + (" plus the IIR group delay below" if ch["sections"] else ""))
         for s in ch["stages"]:
             facts = []
             if s["order"]:
