@@ -1,0 +1,189 @@
+"""Linear model of a realised program: a ChannelProgram in, float transfer functions out.
+
+Every operation of a :class:`coefc.program.ChannelProgram` is modelled by the
+physical value of its realised integers (``C * 2^(shift - Fc)``) and, where it
+rounds, by an additive error source at its output (the linear noise model of
+Jackson 1970).  From these the analysis computes impulse responses from the
+channel input to every node, and from every rounding node to the channel output.
+
+Structures (the recurrences are those of :mod:`coefc.program`):
+
+``df1``    the rounding error ``e`` enters ``y`` and is fed back: ``E -> Y`` is ``1/A(z)``.
+``tdf2``   the output is rounded once and fed back through the states; the states
+           are kept at accumulator precision, so ``E -> Y`` is ``1/A(z)`` as well.
+``df1ef``  DF1 with first-order error feedback: the residual of the last rounding is
+           added back before the next, so ``E -> Y`` is ``(1 - z^-1)/A(z)``.
+
+References
+----------
+L. B. Jackson, "Roundoff-noise analysis for fixed-point digital filters realized in
+cascade or parallel form", IEEE Trans. Audio Electroacoust. AU-18(2), 1970.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+
+#: impulse responses stop where the slowest pole has decayed below this factor
+DECAY = 1e-13
+MAX_LENGTH = 1 << 18
+MIN_LENGTH = 256
+
+
+@dataclass(frozen=True, eq=False)
+class OpModel:
+    """One operation as a linear system plus its rounding source.
+
+    ``b``/``a`` are the physical transfer function of the operation; ``noise_b``/
+    ``noise_a`` the transfer from its rounding error to its output.  ``k`` is the
+    number of fractional bits the rounding drops (0: the operation is exact);
+    ``full_scale`` and ``acc_full_scale`` are the largest magnitudes (physical
+    units) of its output word and of its accumulator.
+    """
+
+    index: int  # 0-based position in program.ops
+    kind: str  # "section", "fir", "gain", "delay"
+    b: np.ndarray
+    a: np.ndarray
+    noise_b: np.ndarray
+    noise_a: np.ndarray
+    k: int
+    full_scale: float
+    acc_full_scale: float | None
+
+    @property
+    def recursive(self) -> bool:
+        return len(self.a) > 1 and bool(np.any(self.a[1:] != 0))
+
+    @property
+    def label(self) -> str:
+        return f"op {self.index + 1} ({self.kind})"
+
+
+def _v2(n: int) -> int:
+    """2-adic valuation of a nonzero integer (how many times 2 divides it)."""
+    n = abs(int(n))
+    return (n & -n).bit_length() - 1
+
+
+def effective_drop(coefs, k: int) -> int:
+    """Bits a ``round_shift(acc, k)`` really drops when every product is ``C * x``.
+
+    When every integer coefficient is a multiple of ``2^m`` the accumulator's low
+    ``m`` bits are always zero and only ``k - m`` bits are rounded away.
+    """
+    nz = [int(c) for c in coefs if int(c) != 0]
+    if not nz or k <= 0:
+        return 0
+    return max(0, k - min(_v2(c) for c in nz))
+
+
+def op_models(program: ChannelProgram) -> list[OpModel]:
+    """Linear models of every operation of *program*, in signal order."""
+    ar = program.arithmetic
+    out: list[OpModel] = []
+    if ar.is_float:
+        fs_data, fc = float(np.finfo(np.float32).max), 0
+    else:
+        fs_data, fc = ar.data.max_value + ar.data.lsb, ar.coef.frac_bits
+
+    def phys(c, shift):
+        return float(c) * 2.0 ** (shift - fc) if not ar.is_float else float(c) * 2.0 ** shift
+
+    def acc_fs(shift):
+        if ar.is_float:
+            return None
+        # acc * 2^(shift - Fc - Fd) is the physical pre-rounding value
+        return 2.0 ** (ar.acc_bits - 1 + shift - fc - ar.data.frac_bits)
+
+    one = np.array([1.0])
+    for i, op in enumerate(program.ops):
+        if isinstance(op, SectionOp):
+            b = np.array([phys(c, op.shift) for c in op.b])
+            a = np.array([1.0] + [phys(c, op.shift) for c in op.a])
+            k = 0 if ar.is_float else effective_drop(tuple(op.b) + tuple(op.a), fc - op.shift)
+            structure = op.structure or ar.structure
+            nb = np.array([1.0, -1.0]) if structure == "df1ef" else one
+            out.append(OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift)))
+        elif isinstance(op, FirOp):
+            b = np.array([phys(c, op.shift) for c in op.taps])
+            k = 0 if ar.is_float else effective_drop(op.taps, fc - op.shift)
+            out.append(OpModel(i, "fir", b, one, one, one, k, fs_data, acc_fs(op.shift)))
+        elif isinstance(op, GainOp):
+            b = np.array([phys(op.coef, op.shift)])
+            k = 0 if ar.is_float else effective_drop((op.coef,), fc - op.shift)
+            out.append(OpModel(i, "gain", b, one, one, one, k, fs_data, acc_fs(op.shift)))
+        elif isinstance(op, DelayOp):
+            b = np.zeros(op.samples + 1)
+            b[-1] = 1.0
+            out.append(OpModel(i, "delay", b, one, one, one, 0, fs_data, None))
+        else:  # pragma: no cover - program.Op is closed
+            raise TypeError(f"unknown operation {op!r}")
+    return out
+
+
+def pole_radius(models: list[OpModel]) -> float:
+    """Largest pole radius over all recursive operations (0 when there is none)."""
+    r = 0.0
+    for m in models:
+        if m.recursive:
+            r = max(r, float(np.max(np.abs(np.roots(m.a)))))
+    return r
+
+
+def response_length(models: list[OpModel]) -> int:
+    """Impulse-response length that captures every node to a relative ``DECAY``."""
+    r = pole_radius(models)
+    fir = sum(len(m.b) - 1 for m in models if not m.recursive)
+    if r >= 1.0:
+        n = 1 << 14
+    elif r > 0:
+        n = int(np.ceil(np.log(DECAY) / np.log(r))) * 2
+    else:
+        n = 0
+    n += fir + 8
+    return int(min(max(n, MIN_LENGTH), MAX_LENGTH))
+
+
+def _run(b, a, x):
+    from scipy import signal
+
+    if len(a) == 1 and a[0] == 1.0:
+        if len(b) == 1:
+            return x * b[0]
+        return signal.lfilter(b, [1.0], x) if len(b) < 64 else signal.oaconvolve(x, b)[: len(x)]
+    return signal.lfilter(b, a, x)
+
+
+def node_impulses(models: list[OpModel], n: int) -> list[np.ndarray]:
+    """Impulse response from the channel input to the output of every operation."""
+    h = np.zeros(n)
+    h[0] = 1.0
+    out = []
+    for m in models:
+        h = _run(m.b, m.a, h)
+        out.append(h)
+    return out
+
+
+def noise_impulse(models: list[OpModel], j: int, n: int) -> np.ndarray:
+    """Impulse response from the rounding error of operation *j* to the channel output."""
+    g = np.zeros(n)
+    g[0] = 1.0
+    m = models[j]
+    g = _run(m.noise_b, m.noise_a, g)
+    for m in models[j + 1:]:
+        g = _run(m.b, m.a, g)
+    return g
+
+
+def chain_filter(models: list[OpModel], x: np.ndarray) -> np.ndarray:
+    """Float64 output of the realised coefficients for input *x* (no rounding)."""
+    y = np.asarray(x, dtype=np.float64)
+    for m in models:
+        y = _run(m.b, m.a, y)
+    return y

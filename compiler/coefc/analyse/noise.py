@@ -1,0 +1,281 @@
+"""Roundoff noise of a realised channel: a ChannelProgram in, output noise figures out.
+
+Two independent estimates that must agree:
+
+analytic
+    Every rounding node ``j`` adds an error of mean ``mu_j`` and variance
+    ``sigma_j^2`` (in LSB^2 of the data word) that reaches the output through its
+    own noise transfer function ``G_j``; the output noise spectrum is
+    ``N(w) = sum_j sigma_j^2 |G_j(w)|^2`` (Jackson 1970) and the output mean is
+    ``sum_j mu_j G_j(1)`` (the mean passes at DC gain).
+measured
+    The bit-true engine (:func:`coefc.simulate.simulate`) against a float64 run of
+    the same realised coefficients, on uniform white noise whose peak keeps every
+    node below half of full scale (so nothing overflows).  The uniform error model
+    needs signals well above one LSB at every rounding node (Widrow, Kollar & Liu
+    1996); a node whose signal RMS falls below one LSB is reported.
+
+Error statistics per rounding mode, for a value whose dropped ``k`` bits are
+uniformly distributed (exact for the discrete residues, q = 1 LSB):
+
+=============  ==========================  ===============================
+mode           mean                        variance
+=============  ==========================  ===============================
+nearest        +q/2^(k+1)                  (q^2/12)(1 - 2^-2k)
+convergent     0                           (q^2/12)(1 + 2^(1-2k))
+floor          -(q/2)(1 - 2^-k)            (q^2/12)(1 - 2^-2k)
+zero           0 (symmetric signals)       q^2 (1 - 2^-k)(2 - 2^-k)/6  (-> q^2/3)
+=============  ==========================  ===============================
+
+Magnitude truncation (``zero``) is modelled as an error of magnitude uniform in
+[0, q) with the sign opposite to the value; for a zero-mean symmetric signal its
+mean is 0 and its mean square q^2/3.
+
+Levels are in dBFS as in AES17: full scale = 1.0, 0 dBFS is the RMS level of a
+full-scale sine, so a noise of power ``P`` reads ``10*log10(P/0.5)`` dBFS.
+
+References
+----------
+L. B. Jackson, "Roundoff-noise analysis for fixed-point digital filters realized in
+cascade or parallel form", IEEE Trans. Audio Electroacoust. AU-18(2), 1970.
+B. Widrow, I. Kollar, M.-C. Liu, "Statistical theory of quantization", IEEE Trans.
+Instrum. Meas. 45(2), 1996.
+A. V. Oppenheim, R. W. Schafer, *Discrete-Time Signal Processing*, 3rd ed., ch. 6.
+AES17, *AES standard method for digital audio engineering - Measurement of digital
+audio equipment* (definition of dBFS).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..program import ChannelProgram
+from .linear import OpModel, chain_filter, node_impulses, noise_impulse, op_models, response_length
+
+#: power of a full-scale sine (full scale = 1.0): the 0 dBFS reference of AES17
+FULL_SCALE_SINE_POWER = 0.5
+
+
+def dbfs(power: float | None) -> float | None:
+    """Power (full scale = 1.0) in dBFS per AES17; ``None`` for no value, -inf floored.
+
+    >>> round(dbfs(0.5), 6)
+    0.0
+    >>> round(dbfs((2.0 ** -15) ** 2 / 12), 2)   # one rounding of a 16-bit word
+    -101.08
+    """
+    if power is None or not math.isfinite(power):
+        return None
+    if power <= 0:
+        return -math.inf
+    return 10.0 * math.log10(power / FULL_SCALE_SINE_POWER)
+
+
+def rounding_error_stats(k: int, mode: str) -> tuple[float, float]:
+    """Mean and variance, in LSB units, of the error of dropping *k* bits by *mode*.
+
+    The ``2^k`` residues are taken as equally likely (the uniform model).
+
+    >>> rounding_error_stats(30, "nearest")[1] * 12
+    1.0
+    >>> rounding_error_stats(1, "floor")
+    (-0.25, 0.0625)
+    """
+    if k <= 0:
+        return 0.0, 0.0
+    if k <= 16:
+        from ..qformat import round_shift
+
+        r = np.arange(1 << k, dtype=np.int64)
+        if mode == "zero":
+            # symmetric signal: half the values are positive (error -frac), half negative (+frac)
+            frac = r / float(1 << k)
+            return 0.0, float(np.mean(frac ** 2))
+        # residue r of a value v = M*2^k + r: the error is round_shift(v) - v/2^k
+        big = (1 << 20) << k  # an even multiple, so convergent ties see an even quotient half the time
+        v = np.concatenate([big + r, big + (1 << k) + r])
+        e = round_shift(v, k, mode) - v / float(1 << k)
+        return float(np.mean(e)), float(np.var(e))
+    if mode == "nearest":
+        return 0.0, 1.0 / 12.0
+    if mode == "convergent":
+        return 0.0, 1.0 / 12.0
+    if mode == "floor":
+        return -0.5, 1.0 / 12.0
+    if mode == "zero":
+        return 0.0, 1.0 / 3.0
+    raise ValueError(f"unknown rounding mode '{mode}'")
+
+
+@dataclass(frozen=True)
+class NoiseSource:
+    """One rounding node and what it contributes at the output (LSB^2 units)."""
+
+    op_index: int  # 0-based
+    k: int  # bits dropped
+    mean_lsb: float
+    variance_lsb2: float
+    power_gain: float  # sum of g^2 of its noise transfer to the output
+    dc_gain: float
+    output_variance_lsb2: float
+
+
+@dataclass(frozen=True, eq=False)
+class NoiseAnalysis:
+    """Analytic output noise of a fixed-point channel."""
+
+    sources: tuple[NoiseSource, ...]
+    variance: float  # physical units (full scale = 1.0)
+    mean: float
+    power: float  # variance + mean^2
+    dbfs: float | None
+    snr_db: float | None  # full-scale sine over the noise power
+    lsb: float
+    _models: tuple = field(default=(), repr=False)
+    _impulses: tuple = field(default=(), repr=False)
+
+    def spectrum(self, freqs_hz, fs: float) -> np.ndarray:
+        """One-sided noise density in dBFS/Hz (AES17 reference) at *freqs_hz*."""
+        f = np.asarray(freqs_hz, dtype=np.float64)
+        psd = np.zeros(f.shape)
+        w = 2 * np.pi * f / fs
+        for src, g in zip(self.sources, self._impulses):
+            n = np.arange(len(g))
+            G = np.exp(-1j * np.outer(w, n)) @ g if len(g) <= 4096 else _freq(g, w)
+            psd += src.variance_lsb2 * self.lsb ** 2 * np.abs(G) ** 2
+        with np.errstate(divide="ignore"):
+            return 10 * np.log10(2.0 * psd / fs / FULL_SCALE_SINE_POWER)
+
+
+def _freq(g, w):
+    from scipy import signal
+
+    return signal.freqz(g, 1.0, worN=w)[1]
+
+
+def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
+                   n: int | None = None) -> NoiseAnalysis | None:
+    """Output roundoff noise by the linear model (``None`` for float32 arithmetic).
+
+    Parameters
+    ----------
+    program : ChannelProgram
+        The realised channel (fixed-point arithmetic).
+
+    Returns
+    -------
+    NoiseAnalysis
+        Per-source contributions, output variance, mean, power and dBFS.
+
+    References
+    ----------
+    Jackson (1970), eq. for the output noise spectrum
+    ``N(w) = sigma0^2 sum_j k_j |G_j(w)|^2``.
+    """
+    ar = program.arithmetic
+    if ar.is_float:
+        return None
+    models = models if models is not None else op_models(program)
+    n = n or response_length(models)
+    lsb = ar.data.lsb
+    sources, imps = [], []
+    var = mean = 0.0
+    for m in models:
+        if m.k <= 0:
+            continue
+        mu, s2 = rounding_error_stats(m.k, ar.rounding)
+        g = noise_impulse(models, m.index, n)
+        pg = float(np.dot(g, g))
+        dc = float(np.sum(g))
+        sources.append(NoiseSource(m.index, m.k, mu, s2, pg, dc, s2 * pg))
+        imps.append(g)
+        var += s2 * pg
+        mean += mu * dc
+    var *= lsb ** 2
+    mean *= lsb
+    power = var + mean ** 2
+    d = dbfs(power)
+    snr = None if d is None or d == -math.inf else -d
+    return NoiseAnalysis(tuple(sources), var, mean, power, d, snr, lsb, tuple(models), tuple(imps))
+
+
+@dataclass(frozen=True)
+class MeasuredNoise:
+    """Output noise measured with the bit-true engine."""
+
+    power: float
+    mean: float
+    dbfs: float | None
+    samples: int
+    stimulus_peak: float  # physical, full scale = 1.0
+    stimulus_rms: float
+    min_node_rms_lsb: float | None  # smallest signal RMS at a rounding node, in LSB
+    model_holds: bool  # every rounding node sees at least 1 LSB RMS
+    overflow_events: int
+    note: str = ""
+
+
+def stimulus_level(models: list[OpModel], impulses: list[np.ndarray]) -> float:
+    """Peak input level (full scale = 1.0) keeping every node and accumulator below half scale."""
+    worst = 1.0
+    for m, h in zip(models, impulses):
+        l1 = float(np.sum(np.abs(h)))
+        worst = max(worst, l1 / m.full_scale)
+        if m.acc_full_scale:
+            worst = max(worst, l1 / m.acc_full_scale)
+    return 0.5 / worst
+
+
+def measured_noise(program: ChannelProgram, *, samples: int = 1 << 15, seed: int = 20261201,
+                   models: list[OpModel] | None = None, n: int | None = None) -> MeasuredNoise:
+    """Output noise of the bit-true engine against a float64 reference.
+
+    The stimulus is uniform white noise of peak ``stimulus_level`` (see there),
+    quantised to the data word; the first samples, while the slowest pole settles,
+    are excluded from the measurement.
+    """
+    from ..simulate import simulate
+
+    ar = program.arithmetic
+    models = models if models is not None else op_models(program)
+    n = n or response_length(models)
+    imps = node_impulses(models, n)
+    peak = stimulus_level(models, imps)
+    settle = n // 4  # the slowest pole's transient power is below 1e-6 by then
+    rng = np.random.default_rng(seed)
+    u = rng.uniform(-1.0, 1.0, samples + settle)
+    if ar.is_float:
+        x = (u * peak).astype(np.float32)
+        xin = x.astype(np.float64)
+        tr = simulate(program, x, trace=True)
+        y = np.asarray(tr.y, dtype=np.float64)
+    else:
+        scale = 2.0 ** ar.data.frac_bits
+        x = np.round(u * peak * scale).astype(np.int64)
+        xin = x / scale
+        tr = simulate(program, x, trace=True)
+        y = np.asarray(tr.y, dtype=np.float64) / scale
+    overflows = int(sum(int(c) for c in tr.overflow_counts)) + int(sum(int(c) for c in tr.acc_overflow_counts))
+    ref = chain_filter(models, xin)
+    e = (y - ref)[settle:]
+    power = float(np.mean(e ** 2))
+    rms_in = float(np.sqrt(np.mean(xin ** 2)))
+    min_rms = None
+    holds = True
+    note = ""
+    if not ar.is_float:
+        # signal RMS at the input of each rounding node = output of the op in the linear model
+        rms = [rms_in * float(np.sqrt(np.dot(h, h))) / ar.data.lsb for m, h in zip(models, imps) if m.k > 0]
+        if rms:
+            min_rms = min(rms)
+            holds = min_rms >= 1.0
+            if not holds:
+                note = (f"the signal at a rounding node is only {min_rms:.2g} LSB RMS; the uniform "
+                        "error model needs signals well above one LSB (Widrow, Kollar & Liu 1996)")
+    if overflows:
+        note = (note + "; " if note else "") + f"{overflows} overflow events during the noise run"
+    return MeasuredNoise(power, float(np.mean(e)), dbfs(power), samples, peak, rms_in, min_rms, holds,
+                         overflows, note)

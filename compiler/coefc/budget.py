@@ -1,0 +1,331 @@
+"""The merge gate: a realisation and a budget in, a :class:`CheckReport` (verdict per check) out.
+
+Every channel is analysed (:func:`coefc.analyse.analyse_channel`) and compared with
+the budget; each comparison is a check ``(name, value, limit, ok)`` with a one-line
+reason.  The rules:
+
+==========================  =====================================================
+check                       passes when
+==========================  =====================================================
+``stable``                  every realised pole lies inside the unit circle (always checked)
+``passband_deviation_db``   max |quantised - float| in the passband <= limit
+``stopband_attenuation_db`` achieved attenuation >= limit (no stopband: not applicable)
+``output_noise_dbfs``       the larger of the analytic and the measured noise <= limit
+``limit_cycles``            ``"none"``: a proven ``none``; a number N: a cycle found by an
+                            exhaustive search of amplitude <= N, otherwise the rigorous
+                            bound <= N
+``overflow``                ``"none"``: no overflow event under the worst-case inputs and no
+                            overflow oscillation found; ``"allow"``: always (with a caution)
+==========================  =====================================================
+
+Levels in dBFS follow AES17 (0 dBFS = RMS of a full-scale sine, full scale = 1.0).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+from typing import NamedTuple
+
+from .errors import DescriptionError
+from .program import SectionOp
+from .spec import Budget
+
+SCHEMA = 1
+
+CAUTION = (
+    "caution: this budget tolerates {what}. A fixed-point filter that overflows or "
+    "limit-cycles can drive an amplifier to full scale, damage drivers and hearing, and "
+    "in control loops damage machines. Verify against the standards and sign-off "
+    "practice that apply to your product before it drives real hardware."
+)
+
+
+class Check(NamedTuple):
+    """One comparison with the budget (``value``/``limit`` None = not measurable)."""
+
+    name: str
+    value: object
+    limit: object
+    ok: bool
+
+
+@dataclass(frozen=True, eq=False)
+class ChannelReport:
+    name: str
+    sample_rate_hz: float
+    arithmetic: dict
+    sections: list
+    metrics: dict
+    checks: list[Check]
+    reasons: dict[str, str]
+    analysis: object = field(default=None, repr=False)  # coefc.analyse.Metrics
+
+    @property
+    def ok(self) -> bool:
+        return all(c.ok for c in self.checks)
+
+    def as_dict(self) -> dict:
+        return {
+            "name": self.name,
+            "sample_rate_hz": self.sample_rate_hz,
+            "arithmetic": self.arithmetic,
+            "sections": self.sections,
+            "metrics": self.metrics,
+            "checks": [{"name": c.name, "value": _json_num(c.value), "limit": _json_num(c.limit), "ok": c.ok,
+                        "reason": self.reasons.get(c.name, "")} for c in self.checks],
+            "ok": self.ok,
+        }
+
+
+@dataclass(frozen=True, eq=False)
+class CheckReport:
+    """The verdict of ``coefc check``: per-channel checks and the cautions to show."""
+
+    source: str
+    target: str
+    channels: tuple[ChannelReport, ...]
+    budget: Budget
+    cautions: tuple[str, ...] = ()
+
+    @property
+    def ok(self) -> bool:
+        return all(ch.ok for ch in self.channels)
+
+    def failures(self) -> list[tuple[str, Check, str]]:
+        return [(ch.name, c, ch.reasons.get(c.name, "")) for ch in self.channels for c in ch.checks if not c.ok]
+
+    def to_json(self) -> dict:
+        """The JSON report contract (schema 1); no NaN or infinity anywhere."""
+        from . import __version__
+
+        return {
+            "schema": SCHEMA,
+            "tool_version": __version__,
+            "source": self.source,
+            "target": self.target,
+            "ok": self.ok,
+            "channels": [ch.as_dict() for ch in self.channels],
+            "budget": _budget_dict(self.budget),
+            "cautions": list(self.cautions),
+            "dbfs_definition": "AES17: 0 dBFS is the RMS level of a full-scale sine (full scale = 1.0); "
+                               "a noise of variance s2 reads 10*log10(s2/0.5) dBFS",
+        }
+
+
+def _json_num(v):
+    if isinstance(v, float) and not math.isfinite(v):
+        return None
+    return v
+
+
+def _budget_dict(b: Budget) -> dict:
+    return {"passband_deviation_db": b.passband_deviation_db, "stopband_attenuation_db": b.stopband_attenuation_db,
+            "output_noise_dbfs": b.output_noise_dbfs, "limit_cycles": b.limit_cycles, "overflow": b.overflow,
+            "passband": [list(x) for x in b.passband] if b.passband else None,
+            "stopband": [list(x) for x in b.stopband] if b.stopband else None}
+
+
+# ------------------------------------------------------------------ overrides
+
+def apply_overrides(budget: Budget, *, passband_deviation_db: float | None = None,
+                    stopband_attenuation_db: float | None = None, output_noise_dbfs: float | None = None,
+                    limit_cycles: str | None = None, overflow: str | None = None) -> Budget:
+    """Budget with command-line overrides applied (``None`` = keep the file's value).
+
+    ``limit_cycles`` is ``"none"`` or a number of LSB as text; ``overflow`` is
+    ``"none"`` or ``"allow"``.  Bad values raise :class:`DescriptionError`.
+    """
+    where = "<command line>"
+    ch = {}
+    if passband_deviation_db is not None:
+        if not passband_deviation_db > 0:
+            raise DescriptionError(where, f"{passband_deviation_db} dB: use a positive deviation such as 0.05",
+                                   key="--max-passband-deviation-db")
+        ch["passband_deviation_db"] = float(passband_deviation_db)
+    if stopband_attenuation_db is not None:
+        if not stopband_attenuation_db > 0:
+            raise DescriptionError(where, f"{stopband_attenuation_db} dB: use a positive attenuation such as 80",
+                                   key="--min-stopband-attenuation-db")
+        ch["stopband_attenuation_db"] = float(stopband_attenuation_db)
+    if output_noise_dbfs is not None:
+        if not output_noise_dbfs < 0:
+            raise DescriptionError(where, f"{output_noise_dbfs} dBFS is not a noise limit; write a negative "
+                                   "level such as -120", key="--max-noise-dbfs")
+        ch["output_noise_dbfs"] = float(output_noise_dbfs)
+    if limit_cycles is not None:
+        text = str(limit_cycles).strip().lower()
+        if text == "none":
+            ch["limit_cycles"] = "none"
+        else:
+            try:
+                v = float(text)
+            except ValueError:
+                v = -1.0
+            if not (v >= 0 and math.isfinite(v)):
+                raise DescriptionError(where, f"'{limit_cycles}' is not understood; write none or a maximum "
+                                       "amplitude in LSB such as 2", key="--limit-cycles")
+            ch["limit_cycles"] = v
+    if overflow is not None:
+        if overflow not in ("none", "allow"):
+            raise DescriptionError(where, f"'{overflow}': write none or allow", key="--overflow-budget")
+        ch["overflow"] = overflow
+    return replace(budget, **ch)
+
+
+# ------------------------------------------------------------------ checks
+
+def _fmt(v, unit=""):
+    if v is None:
+        return "n/a"
+    if isinstance(v, float):
+        return f"{v:.4g}{unit}"
+    return f"{v}{unit}"
+
+
+def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]]:
+    """The checks of one channel: (list of Check, reasons by check name)."""
+    r, lc, ov = metrics.response, metrics.limit_cycles, metrics.overflow
+    checks: list[Check] = []
+    why: dict[str, str] = {}
+
+    ok = r.stable
+    checks.append(Check("stable", r.max_pole_radius, 1.0, ok))
+    why["stable"] = (f"largest realised pole radius {r.max_pole_radius:.6f} "
+                     + ("< 1" if ok else ">= 1: the quantised filter is unstable; use wider coefficients"))
+
+    if budget.passband_deviation_db is not None:
+        v, lim = r.passband_deviation_db, budget.passband_deviation_db
+        ok = v is not None and v <= lim
+        checks.append(Check("passband_deviation_db", v, lim, ok))
+        why["passband_deviation_db"] = (
+            f"passband ({r.passband_rule}) deviates by up to {_fmt(v, ' dB')}"
+            + ("" if ok else f", over the {lim:g} dB limit; widen the coefficient word"))
+
+    if budget.stopband_attenuation_db is not None:
+        v, lim = r.stopband_attenuation_db, budget.stopband_attenuation_db
+        if v is None:
+            checks.append(Check("stopband_attenuation_db", None, lim, True))
+            why["stopband_attenuation_db"] = f"not applicable: no stopband ({r.stopband_rule})"
+        else:
+            ok = v >= lim
+            checks.append(Check("stopband_attenuation_db", v, lim, ok))
+            why["stopband_attenuation_db"] = (
+                f"stopband ({r.stopband_rule}) is {v:.4g} dB down (float design {_fmt(r.float_stopband_attenuation_db)} dB)"
+                + ("" if ok else f", short of {lim:g} dB; widen the coefficient word or name the stopband bands"))
+
+    if budget.output_noise_dbfs is not None:
+        lim = budget.output_noise_dbfs
+        an = metrics.noise.dbfs if metrics.noise else None
+        me = metrics.measured.dbfs if metrics.measured else None
+        vals = [x for x in (an, me) if x is not None]
+        v = max(vals) if vals else None
+        ok = v is not None and v <= lim
+        checks.append(Check("output_noise_dbfs", v, lim, ok))
+        why["output_noise_dbfs"] = (
+            f"roundoff noise {_fmt(v, ' dBFS')} (analytic {_fmt(an)}, measured {_fmt(me)}; AES17 dBFS)"
+            + ("" if ok else f", above the {lim:g} dBFS limit; widen the data word or the accumulator"))
+
+    if budget.limit_cycles is not None:
+        lim = budget.limit_cycles
+        if metrics.is_float:
+            checks.append(Check("limit_cycles", None, lim, True))
+            why["limit_cycles"] = "not applicable: float32 arithmetic has no fixed LSB (not analysed)"
+        else:
+            st, amp, bound = lc.status, lc.amplitude_lsb, lc.bound_lsb
+            if lim == "none":
+                ok = st == "none"
+                v = "none" if ok else (amp if st == "found" else f"unproven (bound {_fmt(bound)} LSB)")
+                if ok:
+                    reason = f"no zero-input limit cycle: exhaustive search inside the bound of {_fmt(bound)} LSB"
+                elif st == "found":
+                    s = max((s for s in lc.sections if s.amplitude_lsb), key=lambda s: s.amplitude_lsb)
+                    reason = (f"limit cycle of {amp} LSB, period {s.period}, in op {s.op_index + 1} from state "
+                              f"{s.start_state}; use error feedback (df1ef), another rounding or a wider data word")
+                else:
+                    reason = (f"absence not proven: bound {_fmt(bound)} LSB has too many states to search; "
+                              "allow a number of LSB or raise the search limit")
+            else:
+                if st == "none":
+                    ok, v = True, 0
+                elif st == "found" and lc.complete:
+                    ok, v = amp <= lim, amp
+                else:
+                    ok, v = bound is not None and bound <= lim and (amp or 0) <= lim, bound
+                if st == "none":
+                    reason = "no zero-input limit cycle (exhaustive search)"
+                elif st == "found" and lc.complete:
+                    reason = f"largest limit cycle {amp} LSB (exhaustive search)"
+                else:
+                    reason = (f"rigorous bound {_fmt(bound)} LSB" + (f", cycles of {amp} LSB found" if amp else ""))
+                if not ok:
+                    reason += f", over the {lim:g} LSB limit"
+            checks.append(Check("limit_cycles", v, lim, ok))
+            why["limit_cycles"] = reason
+
+    if budget.overflow is not None:
+        lim = budget.overflow
+        n = ov.overflow_count
+        osc = "none" if metrics.is_float else lc.overflow_status
+        if lim == "allow":
+            ok = True
+        else:
+            ok = (n == 0) and osc != "found"
+        checks.append(Check("overflow", n, lim, ok))
+        parts = [f"{_fmt(n)} overflow events under worst-case inputs ({ov.runs} runs), "
+                 f"worst node {ov.worst_node} headroom {_fmt(ov.headroom_bits, ' bits')}"]
+        if osc == "found":
+            bad = next(s for s in lc.sections if s.overflow_status == "found")
+            parts.append(f"overflow oscillation in op {bad.op_index + 1}: {bad.overflow_note}")
+        if not ok:
+            parts.append("scale the input down (a gain stage or scaling = \"l1\") or use saturation")
+        why["overflow"] = "; ".join(parts)
+    return checks, why
+
+
+def _sections(program) -> list[dict]:
+    out = []
+    for op in program.ops:
+        if isinstance(op, SectionOp):
+            conv = float if program.arithmetic.is_float else int
+            out.append({"b": [conv(c) for c in op.b], "a": [conv(c) for c in op.a], "shift": int(op.shift),
+                        "structure": op.structure})
+    return out
+
+
+def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
+    """Analyse every channel of *realisation* and compare it with *budget*.
+
+    Parameters
+    ----------
+    realisation : coefc.api.Realisation
+    budget : Budget
+        Usually ``description.budget`` with :func:`apply_overrides` applied.
+    options : coefc.analyse.AnalysisOptions, optional
+        Bands and search effort; bands default to the budget's ``passband``/``stopband``.
+    """
+    from .analyse import AnalysisOptions, analyse_channel
+
+    opt = options or AnalysisOptions()
+    if opt.passband is None and budget.passband:
+        opt = replace(opt, passband=tuple(budget.passband))
+    if opt.stopband is None and budget.stopband:
+        opt = replace(opt, stopband=tuple(budget.stopband))
+    designs = {d.name: d for d in realisation.design.channels}
+    reports = []
+    for prog in realisation.programs:
+        m = analyse_channel(designs[prog.name], prog, opt)
+        checks, why = channel_checks(m, budget)
+        checks.sort(key=lambda c: c.ok)  # failing rows first
+        reports.append(ChannelReport(prog.name, prog.sample_rate_hz, prog.arithmetic.as_dict(), _sections(prog),
+                                     m.as_dict(), checks, why, m))
+    cautions = []
+    tolerated = []
+    if budget.overflow == "allow":
+        tolerated.append("overflow")
+    if budget.limit_cycles is not None and budget.limit_cycles != "none":
+        tolerated.append(f"limit cycles up to {budget.limit_cycles:g} LSB")
+    if tolerated:
+        cautions.append(CAUTION.format(what=" and ".join(tolerated)))
+    return CheckReport(realisation.design.loaded.description.source, realisation.target.name, tuple(reports),
+                       budget, tuple(cautions))

@@ -1,0 +1,88 @@
+"""``coefc check FILE``: a description in, the quantisation verdict against its budget out.
+
+Realises every channel on the target, analyses it (response error, roundoff noise,
+overflow, limit cycles) and compares with ``[budget]`` (overridable here).  Exit
+codes: 0 every check passes, 1 something is over budget, 2 bad input.
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+from typing import Annotated, Optional
+
+import typer
+
+from . import app, options
+
+MaxDeviation = Annotated[Optional[float], typer.Option(
+    "--max-passband-deviation-db", help="Budget override: largest |quantised - float| in the passband, dB.")]
+MinStopband = Annotated[Optional[float], typer.Option(
+    "--min-stopband-attenuation-db", help="Budget override: smallest stopband attenuation, dB.")]
+MaxNoise = Annotated[Optional[float], typer.Option(
+    "--max-noise-dbfs", help="Budget override: largest output roundoff noise, dBFS (AES17).")]
+LimitCycles = Annotated[Optional[str], typer.Option(
+    "--limit-cycles", help="Budget override: 'none' (must be proven) or a largest amplitude in LSB.")]
+OverflowBudget = Annotated[Optional[str], typer.Option(
+    "--overflow-budget", help="Budget override: 'none' (no overflow under worst-case input) or 'allow'.")]
+JUnit = Annotated[Optional[str], typer.Option("--junit", help="Also write a JUnit XML report to PATH.")]
+NoiseSamples = Annotated[int, typer.Option(
+    "--noise-samples", min=1024, help="Length of the measured-noise stimulus in samples.")]
+SearchLimit = Annotated[int, typer.Option(
+    "--search-limit", min=1, help="Largest number of states searched exhaustively per section for limit cycles.")]
+
+
+@app.command()
+def check(
+    file: Annotated[Path, typer.Argument(help="Filter description (.toml).")],
+    target: options.Target = None,
+    target_dir: options.TargetDirs = None,
+    data: options.Data = None,
+    coef: options.Coef = None,
+    acc: options.Acc = None,
+    rounding: options.Rounding = None,
+    overflow: options.Overflow = None,
+    structure: options.Structure = None,
+    scaling: options.Scaling = None,
+    channel: options.Channel = None,
+    json_out: options.JsonOut = None,
+    junit: JUnit = None,
+    max_passband_deviation_db: MaxDeviation = None,
+    min_stopband_attenuation_db: MinStopband = None,
+    max_noise_dbfs: MaxNoise = None,
+    limit_cycles: LimitCycles = None,
+    overflow_budget: OverflowBudget = None,
+    noise_samples: NoiseSamples = 1 << 15,
+    search_limit: SearchLimit = 1 << 21,
+) -> None:
+    """Realise, analyse and gate against the budget (exit 0 pass, 1 over budget, 2 bad input).
+
+    dBFS per AES17: 0 dBFS is the RMS level of a full-scale sine.
+    """
+    from ..analyse import AnalysisOptions
+    from ..api import load
+    from ..budget import apply_overrides, run_check
+    from ..reporting import render
+
+    loaded = load(file)
+    desc = loaded.description
+    budget = apply_overrides(desc.budget, passband_deviation_db=max_passband_deviation_db,
+                             stopband_attenuation_db=min_stopband_attenuation_db,
+                             output_noise_dbfs=max_noise_dbfs, limit_cycles=limit_cycles,
+                             overflow=overflow_budget)
+    ov = options.overrides(data=data, coef=coef, acc=acc, rounding=rounding, overflow=overflow,
+                           structure=structure, scaling=scaling)
+    real = loaded.design(channel or None).realise(target, ov, target_dir or ())
+    report = run_check(real, budget, options=AnalysisOptions(noise_samples=noise_samples, max_states=search_limit))
+    if junit:
+        from ..fileio import write_atomic
+
+        write_atomic(Path(junit), render(report, "junit"))
+    if json_out:
+        options.write_json(report.to_json(), json_out)
+    if json_out != "-":
+        sys.stdout.write(render(report, "text"))
+    for c in report.cautions:
+        print(f"coefc: {c}", file=sys.stderr)
+    if not report.ok:
+        raise typer.Exit(1)
