@@ -1,0 +1,91 @@
+/*
+ * coefc reference kernel for the mcu16 target: 16-bit data words, 16-bit
+ * coefficient words, accumulator of up to 32 bits (formed in uint32_t, as a
+ * 16 x 16 -> 32-bit multiply-accumulate unit does).
+ *
+ * A header written by `coefc build` describes each channel as a list of
+ * operations (second-order sections, FIR, gain, delay) over one coefficient array;
+ * this kernel executes that list bit for bit as coefc's simulator does:
+ *
+ *   acc  = sum of exact products, kept modulo 2^acc_bits (two's complement)
+ *   y    = fit_data(round_shift(acc, rshift))
+ *
+ * with the rounding and overflow modes named in the channel descriptor.  The
+ * code is C99 with no undefined behaviour: sums are formed in unsigned
+ * arithmetic and floor division by 2^k is written portably.
+ *
+ * Second-order section layout in memory: b0 b1 b2 a1 a2, denominator
+ * 1 + a1 z^-1 + a2 z^-2, the a terms subtracted from the accumulator.
+ */
+#ifndef COEFC_MCU16_H
+#define COEFC_MCU16_H
+
+#include <stddef.h>
+#include <stdint.h>
+
+/* Kernel interface version: a generated header refuses any other. */
+#define COEFC_MCU16_ABI 1
+#define COEFC_MCU16_DATA_CONTAINER_BITS 16
+#define COEFC_MCU16_COEF_CONTAINER_BITS 16
+#define COEFC_MCU16_MAX_ACC_BITS 32
+/* 0 = a coefficients stored as in 1 + a1 z^-1 + a2 z^-2 and subtracted. */
+#define COEFC_MCU16_SECTION_A_NEGATED 0
+
+typedef int16_t coefc_mcu16_data_t;
+typedef int16_t coefc_mcu16_coef_t;
+/* One word of channel state: holds samples, accumulator-precision states and
+   circular-buffer positions. */
+typedef int32_t coefc_mcu16_state_t;
+
+/* Operation kinds. */
+#define COEFC_MCU16_OP_DF1 1   /* section, direct form I; 4 state words */
+#define COEFC_MCU16_OP_TDF2 2  /* section, transposed direct form II; 2 state words */
+#define COEFC_MCU16_OP_DF1EF 3 /* section, direct form I with error feedback; 5 state words */
+#define COEFC_MCU16_OP_FIR 4   /* direct-form FIR of `count` taps; count + 1 state words */
+#define COEFC_MCU16_OP_GAIN 5  /* one coefficient; no state */
+#define COEFC_MCU16_OP_DELAY 6 /* `count` samples; count + 1 state words */
+
+/* Rounding of acc / 2^rshift. */
+#define COEFC_MCU16_ROUND_NEAREST 0    /* ties towards +infinity */
+#define COEFC_MCU16_ROUND_FLOOR 1      /* towards -infinity */
+#define COEFC_MCU16_ROUND_CONVERGENT 2 /* ties to even */
+#define COEFC_MCU16_ROUND_ZERO 3       /* towards zero */
+
+/* Bringing a result into the data word. */
+#define COEFC_MCU16_OVERFLOW_SATURATE 0
+#define COEFC_MCU16_OVERFLOW_WRAP 1
+
+typedef struct {
+    uint8_t kind;      /* COEFC_MCU16_OP_* */
+    uint8_t rshift;    /* right shift of the accumulator: Fc - post-shift */
+    uint32_t count;    /* taps (FIR), samples (delay), 1 otherwise */
+    uint32_t coef_at;  /* index of the first coefficient in the channel's array */
+    uint32_t state_at; /* index of the first state word */
+} coefc_mcu16_op_t;
+
+typedef struct {
+    const coefc_mcu16_op_t *ops;
+    uint32_t n_ops;
+    const coefc_mcu16_coef_t *coefs;
+    uint32_t state_words; /* length of the state array the caller provides */
+    uint8_t data_bits;    /* width of the data word (<= container) */
+    uint8_t acc_bits;     /* accumulator width */
+    uint8_t rounding;     /* COEFC_MCU16_ROUND_* */
+    uint8_t overflow;     /* COEFC_MCU16_OVERFLOW_* */
+} coefc_mcu16_channel_t;
+
+/* Zero the state (call once before the first block). */
+void coefc_mcu16_reset(const coefc_mcu16_channel_t *ch, coefc_mcu16_state_t *state);
+
+/* Filter n samples; `in` and `out` may be the same array. */
+void coefc_mcu16_process(const coefc_mcu16_channel_t *ch, coefc_mcu16_state_t *state,
+                         const coefc_mcu16_data_t *in, coefc_mcu16_data_t *out, size_t n);
+
+/* Reset, run the golden input in blocks of irregular length and compare with
+   the expected output.  Returns -1 when every sample matches, otherwise the
+   index of the first sample that differs. */
+long coefc_mcu16_selftest(const coefc_mcu16_channel_t *ch, coefc_mcu16_state_t *state,
+                          const coefc_mcu16_data_t *in, const coefc_mcu16_data_t *expected,
+                          size_t n);
+
+#endif /* COEFC_MCU16_H */
