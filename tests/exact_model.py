@@ -1,0 +1,194 @@
+"""Independent exact reference of the bit-true arithmetic, for the tests only.
+
+Written from the definitions in the docstring of ``coefc.program`` (not from the
+engine's code): rounding through ``fractions.Fraction`` (``round()`` of a Fraction
+is round-half-even), wrapping through ``%``, unlimited Python integers.  Slow by
+design; the tests push short signals through it.
+"""
+
+from __future__ import annotations
+
+import math
+from fractions import Fraction
+
+import numpy as np
+
+
+def rshift(v: int, k: int, mode: str) -> int:
+    """v / 2^k rounded by *mode*, through exact rationals."""
+    q = Fraction(v, 1 << k) if k >= 0 else Fraction(v * (1 << -k))
+    if mode == "nearest":
+        return math.floor(q + Fraction(1, 2))
+    if mode == "floor":
+        return math.floor(q)
+    if mode == "convergent":
+        return round(q)
+    if mode == "zero":
+        return math.trunc(q)
+    raise ValueError(mode)
+
+
+def wrap(v: int, bits: int) -> int:
+    m = 1 << bits
+    r = v % m
+    return r - m if r >= m // 2 else r
+
+
+def fit(v: int, bits: int, overflow: str) -> tuple[int, bool]:
+    hi = (1 << (bits - 1)) - 1
+    lo = -hi - 1
+    if lo <= v <= hi:
+        return v, False
+    if overflow == "saturate":
+        return max(lo, min(hi, v)), True
+    return wrap(v, bits), True
+
+
+class Model:
+    """The arithmetic: data width, coefficient frac bits, acc bits, rounding, overflow."""
+
+    def __init__(self, data_width: int, coef_frac: int, acc_bits: int, rounding: str, overflow: str):
+        self.W, self.Fc, self.A, self.rnd, self.ovf = data_width, coef_frac, acc_bits, rounding, overflow
+
+    def _acc(self, exact: int) -> tuple[int, bool]:
+        w = wrap(exact, self.A)
+        return w, w != exact
+
+    def _out(self, acc: int, k: int) -> tuple[int, int, bool]:
+        v = rshift(acc, k, self.rnd)
+        y, bad = fit(v, self.W, self.ovf)
+        return y, v, bad
+
+    def section(self, x, b, a, shift, structure):
+        """Returns (y, data overflow count, accumulator overflow count)."""
+        k = self.Fc - shift
+        b0, b1, b2 = b
+        a1, a2 = a
+        xh = [0, 0]  # x[n-1], x[n-2]
+        yh = [0, 0]
+        s1 = s2 = 0
+        e = 0
+        ys, no, na = [], 0, 0
+        for xn in x:
+            if structure == "tdf2":
+                acc, w0 = self._acc(b0 * xn + s1)
+                yn, _, bad = self._out(acc, k)
+                s1, w1 = self._acc(b1 * xn - a1 * yn + s2)
+                s2, w2 = self._acc(b2 * xn - a2 * yn)
+                na += w0 or w1 or w2
+            else:
+                total = b0 * xn + b1 * xh[0] + b2 * xh[1] - a1 * yh[0] - a2 * yh[1]
+                if structure == "df1ef":
+                    total += e
+                acc, w = self._acc(total)
+                na += w
+                yn, v, bad = self._out(acc, k)
+                if structure == "df1ef":
+                    e = acc - v * 2 ** k
+            no += bad
+            ys.append(yn)
+            xh = [xn, xh[0]]
+            yh = [yn, yh[0]]
+        return ys, no, na
+
+    def fir(self, x, taps, shift):
+        k = self.Fc - shift
+        ys, no, na = [], 0, 0
+        for n in range(len(x)):
+            total = sum(t * x[n - j] for j, t in enumerate(taps) if n - j >= 0)
+            acc, w = self._acc(total)
+            yn, _, bad = self._out(acc, k)
+            ys.append(yn)
+            no += bad
+            na += w
+        return ys, no, na
+
+    def fir_folded(self, x, taps, shift):
+        """The same FIR with symmetric taps folded: t_j (x[n-j] + x[n-N+1+j])."""
+        N = len(taps)
+        assert list(taps) == list(taps)[::-1]
+        k = self.Fc - shift
+        ys = []
+        for n in range(len(x)):
+            xv = lambda i: x[i] if 0 <= i else 0  # noqa: E731
+            total = sum(taps[j] * (xv(n - j) + xv(n - (N - 1 - j))) for j in range(N // 2))
+            if N % 2:
+                total += taps[N // 2] * xv(n - N // 2)
+            acc, _ = self._acc(total)
+            ys.append(self._out(acc, k)[0])
+        return ys
+
+    def gain(self, x, c, shift):
+        k = self.Fc - shift
+        ys, no, na = [], 0, 0
+        for xn in x:
+            acc, w = self._acc(c * xn)
+            yn, _, bad = self._out(acc, k)
+            ys.append(yn)
+            no += bad
+            na += w
+        return ys, no, na
+
+    @staticmethod
+    def delay(x, d):
+        return ([0] * d + list(x))[: len(x)], 0, 0
+
+
+def run_program(program, x):
+    """Run a ChannelProgram through the model: (y, per-op outputs, ovf, acc ovf)."""
+    from coefc.program import DelayOp, FirOp, GainOp, SectionOp
+
+    ar = program.arithmetic
+    m = Model(ar.data.width, ar.coef.frac_bits, ar.acc_bits, ar.rounding, ar.overflow)
+    cur = [int(v) for v in x]
+    nodes, ovf, aovf = [], [], []
+    for op in program.ops:
+        if isinstance(op, SectionOp):
+            r = m.section(cur, [int(v) for v in op.b], [int(v) for v in op.a], op.shift, op.structure)
+        elif isinstance(op, FirOp):
+            r = m.fir(cur, [int(v) for v in op.taps], op.shift)
+        elif isinstance(op, GainOp):
+            r = m.gain(cur, int(op.coef), op.shift)
+        elif isinstance(op, DelayOp):
+            r = m.delay(cur, op.samples)
+        cur = r[0]
+        nodes.append(cur)
+        ovf.append(r[1])
+        aovf.append(r[2])
+    return cur, nodes, ovf, aovf
+
+
+def run_float32(program, x):
+    """float32 reference with numpy float32 scalars in the stated order."""
+    from coefc.program import DelayOp, FirOp, GainOp, SectionOp
+
+    f = np.float32
+    cur = [f(v) for v in x]
+    for op in program.ops:
+        out = []
+        if isinstance(op, GainOp):
+            out = [f(op.coef) * v for v in cur]
+        elif isinstance(op, DelayOp):
+            out = ([f(0)] * op.samples + cur)[: len(cur)]
+        elif isinstance(op, FirOp):
+            t = [f(v) for v in op.taps]
+            for n in range(len(cur)):
+                acc = t[0] * cur[n]
+                for j in range(1, len(t)):
+                    acc = acc + t[j] * (cur[n - j] if n - j >= 0 else f(0))
+                out.append(acc)
+        elif isinstance(op, SectionOp):
+            b0, b1, b2 = (f(v) for v in op.b)
+            a1, a2 = (f(v) for v in op.a)
+            x1 = x2 = y1 = y2 = s1 = s2 = f(0)
+            for xn in cur:
+                if op.structure == "tdf2":
+                    yn = b0 * xn + s1
+                    s1 = (b1 * xn - a1 * yn) + s2
+                    s2 = b2 * xn - a2 * yn
+                else:
+                    yn = ((((b0 * xn) + b1 * x1) + b2 * x2) - a1 * y1) - a2 * y2
+                out.append(yn)
+                x2, x1, y2, y1 = x1, xn, y1, yn
+        cur = out
+    return np.array(cur, dtype=np.float32)

@@ -1,0 +1,175 @@
+"""The bit-true engine against the independent exact model (tests/exact_model.py).
+
+Random sections, FIRs, gains and delays, random formats, every rounding mode,
+saturation and wrap, accumulators narrower than the products (wrap events) and
+wider than 64 bits (the exact Python path).  Equality is exact: outputs, per-op
+outputs and both overflow counts.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from coefc import simulate as sim
+from coefc.program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from coefc.qformat import OVERFLOW_MODES, ROUNDING_MODES, QFormat
+
+import exact_model
+
+SETTINGS = dict(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+
+
+@st.composite
+def arithmetics(draw, max_acc=64, wide=False):
+    wd = draw(st.integers(4, 40 if wide else 32))
+    wc = draw(st.integers(4, 40 if wide else min(32, 64 - wd)))
+    fc = draw(st.integers(2, wc - 1))
+    acc = draw(st.integers(wd, max_acc))
+    return Arithmetic(data=QFormat(1, wd - 1), coef=QFormat(wc - fc, fc), acc_bits=acc,
+                      rounding=draw(st.sampled_from(ROUNDING_MODES)),
+                      overflow=draw(st.sampled_from(OVERFLOW_MODES)),
+                      structure=draw(st.sampled_from(("df1", "tdf2", "df1ef"))))
+
+
+def _word(draw, fmt):
+    edge = st.sampled_from([fmt.min_int, fmt.max_int, 0, -1, 1])
+    return draw(st.one_of(edge, st.integers(fmt.min_int, fmt.max_int)))
+
+
+@st.composite
+def ops(draw, ar):
+    fc = ar.coef.frac_bits
+    kind = draw(st.sampled_from(("sos", "sos", "sos", "fir", "gain", "delay")))
+    shift = draw(st.integers(max(fc - 62, -4), fc - 1))
+    if kind == "sos":
+        c = [_word(draw, ar.coef) for _ in range(5)]
+        return SectionOp(b=tuple(c[:3]), a=tuple(c[3:]), shift=shift, structure=ar.structure)
+    if kind == "fir":
+        n = draw(st.integers(1, 9))
+        taps = [_word(draw, ar.coef) for _ in range(n)]
+        if draw(st.booleans()):
+            taps = taps[: (n + 1) // 2] + taps[: n // 2][::-1]
+        return FirOp(taps=tuple(taps), shift=shift, symmetric=taps == taps[::-1])
+    if kind == "gain":
+        return GainOp(coef=_word(draw, ar.coef), shift=shift)
+    return DelayOp(draw(st.integers(0, 5)))
+
+
+@st.composite
+def programs(draw, max_acc=64, wide=False):
+    ar = draw(arithmetics(max_acc, wide))
+    n_ops = draw(st.integers(1, 3))
+    prog = ChannelProgram("t", 48000, ar, tuple(draw(ops(ar)) for _ in range(n_ops)))
+    n = draw(st.integers(0, 40))
+    x = [_word(draw, ar.data) for _ in range(n)]
+    return prog, x
+
+
+def _compare(prog, x, exact=False):
+    t = sim.simulate(prog, np.array(x, dtype=np.int64), trace=True, _exact=exact)
+    y, nodes, ovf, aovf = exact_model.run_program(prog, x)
+    assert t.y.tolist() == y
+    assert [n.tolist() for n in t.node_outputs] == nodes
+    assert t.overflow_counts == ovf
+    assert t.acc_overflow_counts == aovf
+
+
+def test_compiled_core_is_built():
+    assert sim.HAVE_ENGINE, "coefc._engine did not build; reinstall with a C compiler"
+
+
+@settings(**SETTINGS)
+@given(programs())
+def test_compiled_engine_equals_exact_model(case):
+    prog, x = case
+    assert sim._fast_ok(prog)
+    _compare(prog, x)
+
+
+@settings(**SETTINGS)
+@given(programs())
+def test_python_path_equals_exact_model(case):
+    prog, x = case
+    _compare(prog, x, exact=True)
+
+
+@settings(**dict(SETTINGS, max_examples=60))
+@given(programs(max_acc=100, wide=True))
+def test_wide_accumulators_and_words_equal_exact_model(case):
+    # acc_bits up to 100 and data + coefficient words up to 80 bits: exact path
+    prog, x = case
+    _compare(prog, x)
+
+
+@pytest.mark.parametrize("structure", ["df1", "tdf2", "df1ef"])
+@pytest.mark.parametrize("acc", [32, 40, 64])
+def test_full_scale_32_bit_words_hit_both_accumulator_paths(structure, acc):
+    # Q1.31 data and Q2.30 coefficients with extreme coefficients: sums leave int64
+    ar = Arithmetic(data=QFormat(1, 31), coef=QFormat(2, 30), acc_bits=acc, structure=structure)
+    big = (1 << 31) - 1
+    prog = ChannelProgram("t", 48000, ar, (
+        SectionOp(b=(big, -big - 1, big), a=(-big - 1, big), shift=0, structure=structure),
+        SectionOp(b=(1 << 28, 1 << 29, 1 << 28), a=(-(1 << 31) + 5, (1 << 30) - 9), shift=0, structure=structure),
+    ))
+    rng = np.random.default_rng(7)
+    x = rng.choice([-(1 << 31), (1 << 31) - 1, 0, 12345], size=200).tolist()
+    _compare(prog, x)
+
+
+def test_symmetric_fir_folding_gives_identical_results():
+    # folding symmetric taps is exact in integer arithmetic (common practice, no source)
+    rng = np.random.default_rng(3)
+    ar = Arithmetic(data=QFormat(1, 15), coef=QFormat(1, 15), acc_bits=32, rounding="convergent")
+    for n in (6, 7):
+        half = rng.integers(-30000, 30000, (n + 1) // 2).tolist()
+        taps = half + half[: n // 2][::-1]
+        x = rng.integers(-32768, 32768, 100).tolist()
+        prog = ChannelProgram("t", 48000, ar, (FirOp(taps=tuple(taps), shift=0, symmetric=True),))
+        m = exact_model.Model(16, 15, 32, "convergent", "saturate")
+        assert sim.simulate(prog, x).tolist() == m.fir_folded(x, taps, 0)
+
+
+@pytest.mark.parametrize("structure", ["df1", "tdf2"])
+def test_float32_engine_equals_float32_model(structure):
+    rng = np.random.default_rng(5)
+    ar = Arithmetic(kind="float32", structure=structure, data=None, coef=None)
+    f = lambda v: float(np.float32(v))  # noqa: E731
+    prog = ChannelProgram("t", 48000, ar, (
+        GainOp(coef=f(0.7)),
+        SectionOp(b=(f(0.2), f(0.3), f(0.1)), a=(f(-1.6), f(0.81)), structure=structure),
+        FirOp(taps=tuple(f(v) for v in rng.standard_normal(7) / 4)),
+        DelayOp(3),
+    ))
+    x = (rng.standard_normal(500) * 0.3).astype(np.float32)
+    y = sim.simulate(prog, x)
+    assert y.dtype == np.float32
+    assert np.array_equal(y, exact_model.run_float32(prog, x))
+    assert np.array_equal(y, sim.simulate(prog, x, _exact=True))
+
+
+def test_float32_engine_close_to_scipy_sosfilt():
+    # scipy.signal.sosfilt (float64) as the reference library; float32 error ~1e-6
+    from scipy import signal
+
+    sos = signal.butter(4, 2000, fs=48000, output="sos")
+    ar = Arithmetic(kind="float32", data=None, coef=None)
+    ops_ = tuple(SectionOp(b=tuple(float(np.float32(v)) for v in r[:3]),
+                           a=tuple(float(np.float32(v)) for v in r[4:])) for r in sos)
+    prog = ChannelProgram("t", 48000, ar, ops_)
+    x = (np.random.default_rng(1).standard_normal(4000) * 0.2).astype(np.float32)
+    ref = signal.sosfilt(sos, x.astype(np.float64))
+    assert np.max(np.abs(sim.simulate(prog, x) - ref)) < 1e-5
+
+
+def test_input_out_of_range_is_a_data_error():
+    from coefc.errors import DataError
+
+    ar = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 14), acc_bits=32)
+    prog = ChannelProgram("t", 48000, ar, (GainOp(coef=1 << 14),))
+    with pytest.raises(DataError, match="outside Q1.15"):
+        sim.simulate(prog, [0, 40000])
+    with pytest.raises(DataError, match="integer data words"):
+        sim.simulate(prog, np.zeros(3))
