@@ -103,8 +103,10 @@ class QFormat:
 def round_shift(v, k: int, mode: str):
     """Divide integers ``v`` by ``2^k`` and round by *mode* (see module docstring).
 
-    Works on Python ints (exact, any size) and on int64 numpy arrays (exact as
-    long as ``v + 2^(k-1)`` fits in 64 bits).  ``k <= 0`` shifts left exactly.
+    Works on Python ints (exact, any size) and on int64 numpy arrays (exact for
+    every int64 value: the rounding is done on the remainder, so ``v + 2^(k-1)``
+    is never formed).  ``k <= 0`` shifts left exactly (Python ints) or modulo
+    2^64 (arrays).
 
     >>> [round_shift(x, 1, "nearest") for x in (-3, -1, 1, 3)]
     [-1, 0, 1, 2]
@@ -113,25 +115,28 @@ def round_shift(v, k: int, mode: str):
     >>> [round_shift(x, 2, "zero") for x in (-7, 7)]
     [-1, 1]
     """
+    if mode not in ROUNDING_MODES:
+        raise ValueError(f"unknown rounding mode '{mode}'; use one of {', '.join(ROUNDING_MODES)}")
     if k <= 0:
         return v * (1 << -k) if isinstance(v, int) else np.left_shift(v, -k)
+    scalar = isinstance(v, int)
+    if not scalar:
+        v = np.asarray(v, dtype=np.int64)
+    half = 1 << (k - 1)
+    mask = (1 << k) - 1
+    q = v >> k  # floor
+    rem = v & mask  # v - q * 2^k, in [0, 2^k)
     if mode == "floor":
-        return v >> k
+        return q
     if mode == "nearest":
-        return (v + (1 << (k - 1))) >> k
-    if mode == "zero":
-        if isinstance(v, int):
-            return v >> k if v >= 0 else -((-v) >> k)
-        return np.where(v >= 0, v >> k, -((-v) >> k))
-    if mode == "convergent":
-        half = 1 << (k - 1)
-        mask = (1 << k) - 1
-        q = (v + half) >> k
-        tie = (v & mask) == half
-        if isinstance(v, int):
-            return q - 1 if tie and (q & 1) else q
-        return np.where(tie & ((q & 1) == 1), q - 1, q)
-    raise ValueError(f"unknown rounding mode '{mode}'; use one of {', '.join(ROUNDING_MODES)}")
+        up = rem >= half
+    elif mode == "zero":
+        up = (v < 0) & (rem != 0)
+    else:  # convergent
+        up = (rem > half) | ((rem == half) & ((q & 1) == 1))
+    if scalar:
+        return q + 1 if up else q
+    return q + up.astype(np.int64)
 
 
 def fit_word(v, width: int, overflow: str):
@@ -152,10 +157,16 @@ def fit_word(v, width: int, overflow: str):
 
 
 def round_real(x: np.ndarray, mode: str) -> np.ndarray:
-    """Round real numbers to integers (float64 in, float64 of integer values out)."""
+    """Round real numbers to integers (float64 in, float64 of integer values out).
+
+    ``nearest`` rounds ties towards +infinity like :func:`round_shift`; it is
+    computed from the exact fractional part (``x - floor(x)``), so values just
+    below one half (0.49999999999999994) are not pushed up by ``x + 0.5``.
+    """
     x = np.asarray(x, dtype=np.float64)
     if mode == "nearest":
-        return np.floor(x + 0.5)
+        fl = np.floor(x)
+        return fl + ((x - fl) >= 0.5)
     if mode == "floor":
         return np.floor(x)
     if mode == "zero":
