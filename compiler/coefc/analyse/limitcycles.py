@@ -137,8 +137,20 @@ def zero_input_step(y1, y2, a1: int, a2: int, k: int, arith: Arithmetic):
         y = np.asarray([fit_word(round_shift(int(v), k, arith.rounding), arith.data.width, arith.overflow)
                         for v in acc], dtype=object)
         return y
-    y = round_shift(acc, k, arith.rounding)
+    y = _round_shift64(acc, k, arith.rounding)
     return fit_word(y, arith.data.width, arith.overflow)
+
+
+def _round_shift64(v: np.ndarray, k: int, mode: str) -> np.ndarray:
+    """``round_shift`` on int64 without the rounding addition wrapping (as in program.py)."""
+    if mode in ("floor", "zero") or k <= 0:
+        return round_shift(v, k, mode)
+    q = v >> k
+    r = v & ((1 << k) - 1)
+    half = 1 << (k - 1)
+    if mode == "nearest":
+        return q + (r >= half)
+    return q + (r > half) + ((r == half) & ((q & 1) == 1))  # convergent: ties to even
 
 
 # ---------------------------------------------------------------- bounds
@@ -226,18 +238,28 @@ def cycle_states(a1: int, a2: int, k: int, arith: Arithmetic, B: int, D: int, S:
     """
     y1, y2 = _candidates(B, D, S, order)
     W = 2 * B + 1
-    it = 0
+    size = len(y1)
     while True:
-        it += 1
-        y0 = zero_input_step(y1, y2, a1, a2 if order == 2 else 0, k, arith)
-        n1, n2 = y0, (y1 if order == 2 else np.zeros_like(y1))
-        keep = (np.abs(n1) <= B) & (np.abs(n1 - n2) <= D) & (np.abs(n1 + n2) <= S)
-        key = np.unique((n1[keep] + B) * W + (n2[keep] + B))
-        if len(key) == len(y1):
-            break
+        # S_(i+1) = f(S_i) & region is a subset of S_i; deduplicate every few steps and stop
+        # when eight more steps leave the set as large as it was (then f maps it onto itself)
+        for _ in range(8):
+            y0 = zero_input_step(y1, y2, a1, a2 if order == 2 else 0, k, arith)
+            n1, n2 = y0, (y1 if order == 2 else np.zeros_like(y1))
+            keep = (np.abs(n1) <= B) & (np.abs(n1 - n2) <= D) & (np.abs(n1 + n2) <= S)
+            y1, y2 = n1[keep], n2[keep]
+        key = np.unique((y1 + B) * W + (y2 + B))
         y1, y2 = key // W - B, key % W - B
+        if len(key) == size:
+            break
+        size = len(key)
     nz = (y1 != 0) | (y2 != 0)
     return y1[nz], y2[nz]
+
+
+def step_int(y1: int, y2: int, a1: int, a2: int, k: int, arith: Arithmetic) -> int:
+    """The zero-input recursion for one state, in exact Python integers."""
+    acc = fit_word(-a1 * y1 - a2 * y2, arith.acc_bits, "wrap")
+    return fit_word(round_shift(acc, k, arith.rounding), arith.data.width, arith.overflow)
 
 
 def _walk(y1: int, y2: int, a1: int, a2: int, k: int, arith: Arithmetic, limit: int = 1 << 16):
@@ -251,9 +273,7 @@ def _walk(y1: int, y2: int, a1: int, a2: int, k: int, arith: Arithmetic, limit: 
             return len(cyc), max(max(abs(p[0]), abs(p[1])) for p in cyc), cyc
         seen[s] = i
         path.append(s)
-        y0 = int(zero_input_step(_int_array([s[0]], arith.acc_bits), _int_array([s[1]], arith.acc_bits),
-                                 a1, a2, k, arith)[0])
-        s = (y0, s[0])
+        s = (step_int(s[0], s[1], a1, a2, k, arith), s[0])
     return None, None, []
 
 
@@ -265,7 +285,7 @@ def _section_phys(op: SectionOp, arith: Arithmetic):
 
 
 def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states: int = MAX_STATES,
-                    sample_starts: int = 512, sample_steps: int = 2048, overflow_starts: int = 512,
+                    sample_starts: int = 512, sample_steps: int = 2048, overflow_starts: int = 256,
                     seed: int = 1969) -> SectionLimitCycles:
     """Granular limit cycles and overflow oscillations of one section with zero input."""
     a1, a2 = int(op.a[0]), int(op.a[1])
@@ -352,13 +372,12 @@ def _sampled(a1, a2, k, arith, B, starts, steps, seed):
     alive = (y1 != 0) | (y2 != 0)
     if not np.any(alive):
         return None
+    finals = sorted(set(zip(y1[alive].tolist(), y2[alive].tolist())), key=lambda p: -max(abs(p[0]), abs(p[1])))
     best = None
-    for s in set(zip(y1[alive].tolist(), y2[alive].tolist())):
+    for s in finals[:8]:
         per, am, cyc = _walk(s[0], s[1], a1, a2, k, arith, limit=4 * steps)
         if per and am and (best is None or am > best[1]):
             best = (per, am, max(cyc, key=lambda p: abs(p[0])))
-        if len(cyc) > 0 and best and len(cyc) > 1000:
-            break
     if best is None:
         return None
     return dict(amplitude_lsb=int(best[1]), period=int(best[0]), start_state=tuple(int(v) for v in best[2]))
@@ -388,6 +407,8 @@ def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed) -> dict:
         y1, y2 = y0, (y1 if order == 2 else np.zeros_like(y1))
         if i >= steps:
             big = np.maximum(big, np.abs(y1).astype(float))
+        elif i % 64 == 63 and max(int(np.max(np.abs(y1))), int(np.max(np.abs(y2)))) <= gran:
+            break  # every trajectory is back inside the granular bound: none can be an overflow oscillation
     bad = np.nonzero(big > gran)[0]
     mode = "wrap-around" if arith.overflow == "wrap" else "saturation"
     if len(bad) == 0:
@@ -401,7 +422,12 @@ def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed) -> dict:
     j = int(bad[np.argmax(big[bad])])
     s0 = (int(st[j, 0]), int(st[j, 1]) if order == 2 else 0)
     # settle the trajectory, then measure its period
-    per, am, cyc = _walk(int(y1[j]), int(y2[j]), a1, a2 if order == 2 else 0, k, arith, limit=1 << 14)
+    per, am, cyc = _walk(int(y1[j]), int(y2[j]), a1, a2 if order == 2 else 0, k, arith, limit=1 << 15)
+    if not per or am <= gran:
+        return dict(overflow_status="unproven",
+                    overflow_note=f"|a1| + |a2| >= 1; from state {s0} the zero-input output is still "
+                                  f"{big[j] / (hi + 1):.3g} of full scale after {steps} steps ({mode}) but no "
+                                  "period was found: a very slow decay or a long oscillation")
     return dict(overflow_status="found",
                 overflow_note=f"zero-input overflow oscillation with {mode} from state {s0}",
                 overflow_amplitude=float(big[j]) / (hi + 1), overflow_period=per, overflow_start=s0)
