@@ -243,8 +243,10 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
                     reason = (f"limit cycle of {amp} LSB, period {s.period}, in op {s.op_index + 1} from state "
                               f"{s.start_state}; use error feedback (df1ef), another rounding or a wider data word")
                 else:
-                    reason = (f"absence not proven: bound {_fmt(bound)} LSB has too many states to search; "
-                              "allow a number of LSB or raise the search limit")
+                    why_not = next((s.note for s in lc.sections if s.status == "unproven" and s.note), "")
+                    reason = (f"absence not proven (bound {_fmt(bound)} LSB"
+                              + (f"; {why_not}" if why_not else "") + "); allow a number of LSB"
+                              + (" or raise --search-limit" if "search limit" in why_not else ""))
             else:
                 if st == "none":
                     ok, v = True, 0
@@ -278,7 +280,8 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
             bad = next(s for s in lc.sections if s.overflow_status == "found")
             parts.append(f"overflow oscillation in op {bad.op_index + 1}: {bad.overflow_note}")
         if not ok:
-            parts.append("scale the input down (a gain stage or scaling = \"l1\") or use saturation")
+            parts.append("scale the input down (a gain stage or scaling = \"l1\")"
+                         + (" or use saturation" if metrics.overflow_mode == "wrap" else ""))
         why["overflow"] = "; ".join(parts)
     return checks, why
 

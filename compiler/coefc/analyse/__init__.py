@@ -57,6 +57,7 @@ class Metrics:
     overflow: OverflowAnalysis
     limit_cycles: LimitCycleAnalysis
     is_float: bool
+    overflow_mode: str = "saturate"
 
     @property
     def output_noise_dbfs(self) -> float | None:
@@ -165,4 +166,4 @@ def analyse_channel(design: ChannelDesign, program: ChannelProgram,
             if opt.measure_noise else None)
     ovf = analyse_overflow(program, run_engine=opt.worst_case_runs, models=models, n=n)
     lc = analyse_limit_cycles(program, max_states=opt.max_states)
-    return Metrics(resp, noise, meas, ovf, lc, program.arithmetic.is_float)
+    return Metrics(resp, noise, meas, ovf, lc, program.arithmetic.is_float, program.arithmetic.overflow)

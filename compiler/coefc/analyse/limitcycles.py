@@ -65,7 +65,7 @@ class SectionLimitCycles:
     states_searched: int
     amplitude_lsb: int | None = None
     period: int | None = None
-    start_state: tuple[int, ...] | None = None  # (y[n-1], y[n-2]) in data-word integers
+    start_state: tuple[int, ...] | None = None  # (y[n-1], y[n-2]) data words; df1ef adds the residual E
     overflow_status: str = "none"  # "none" | "found" | "unproven"
     overflow_note: str = ""
     overflow_amplitude: float | None = None  # fraction of full scale
@@ -302,11 +302,11 @@ def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states:
         status = "none" if bounds is not None else "unproven"
         res = dict(status=status, bound_lsb=0.0 if bounds else None, exhaustive=True, states_searched=0,
                    note="the loop does not round (shift >= coefficient fraction bits)")
-        return SectionLimitCycles(index, **res, **_overflow(a1, a2, k, a_phys, arith, order, bounds, overflow_starts, seed))
+        return SectionLimitCycles(index, **res, **_overflow(a1, a2, k, a_phys, arith, order, bounds, overflow_starts, seed, structure == "df1ef"))
     if bounds is None:
         return SectionLimitCycles(index, "unproven", None, False, 0,
                                   note="the realised section is not stable: no amplitude bound",
-                                  **_overflow(a1, a2, k, a_phys, arith, order, bounds, overflow_starts, seed))
+                                  **_overflow(a1, a2, k, a_phys, arith, order, bounds, overflow_starts, seed, structure == "df1ef"))
     Bf, Df, Sf = bounds
     B, D, S = int(math.floor(Bf)), int(math.floor(Df)), int(math.floor(Sf))
     if order == 1:
@@ -314,7 +314,8 @@ def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states:
     exhaustive_ok = structure in ("df1", "tdf2") and B < fs_lsb
     count = _count_candidates(B, D, S, order) if exhaustive_ok else 0
     if structure == "df1ef":
-        notes.append("df1ef keeps the rounding residual as state: the bound holds, no exhaustive search")
+        notes.append("df1ef keeps the rounding residual as state: the bound holds but the state space is "
+                     "too large for an exhaustive search; sampled search only")
     if B >= fs_lsb:
         notes.append("the bound reaches full scale: the granular model gives no useful bound")
     if exhaustive_ok and count <= max_states:
@@ -328,14 +329,15 @@ def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states:
         if exhaustive_ok:
             notes.append(f"{count} candidate states exceed the search limit of {max_states}")
         res = dict(status="unproven", bound_lsb=Bf, exhaustive=False, states_searched=0)
-        if structure in ("df1", "tdf2"):
-            found = _sampled(a1, a2 if order == 2 else 0, k, arith, B, sample_starts, sample_steps, seed)
+        if structure in ("df1", "tdf2") or B < fs_lsb:
+            search = _sampled if structure in ("df1", "tdf2") else _sampled_ef
+            found = search(a1, a2 if order == 2 else 0, k, arith, B, sample_starts, sample_steps, seed)
             if found:
                 res.update(found)
                 res.update(status="found")
                 res["states_searched"] = sample_starts
     res["note"] = "; ".join(notes)
-    return SectionLimitCycles(index, **res, **_overflow(a1, a2, k, a_phys, arith, order, bounds, overflow_starts, seed))
+    return SectionLimitCycles(index, **res, **_overflow(a1, a2, k, a_phys, arith, order, bounds, overflow_starts, seed, structure == "df1ef"))
 
 
 def _describe(y1, y2, a1, a2, k, arith, cap: int = 4096):
@@ -383,7 +385,63 @@ def _sampled(a1, a2, k, arith, B, starts, steps, seed):
     return dict(amplitude_lsb=int(best[1]), period=int(best[0]), start_state=tuple(int(v) for v in best[2]))
 
 
-def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed) -> dict:
+def step_ef_int(y1: int, y2: int, e: int, a1: int, a2: int, k: int, arith: Arithmetic) -> tuple[int, int]:
+    """Zero-input df1ef step in exact integers: (y[n], new residual E)."""
+    acc = fit_word(-a1 * y1 - a2 * y2 + e, arith.acc_bits, "wrap")
+    v = round_shift(acc, k, arith.rounding)
+    return fit_word(v, arith.data.width, arith.overflow), acc - (v << k)
+
+
+def zero_input_step_ef(y1, y2, e, a1: int, a2: int, k: int, arith: Arithmetic):
+    """One zero-input df1ef step on int64 arrays (accumulators up to 64 bits): (y, E)."""
+    acc = -(np.int64(a1) * y1) - (np.int64(a2) * y2) + e
+    if arith.acc_bits < 64:
+        acc = fit_word(acc, arith.acc_bits, "wrap")
+    v = round_shift(acc, k, arith.rounding)
+    return fit_word(v, arith.data.width, arith.overflow), acc - np.left_shift(v, k)
+
+
+def _walk_ef(y1, y2, e, a1, a2, k, arith, limit):
+    seen, path = {}, []
+    s = (y1, y2, e)
+    for i in range(limit):
+        if s in seen:
+            cyc = path[seen[s]:]
+            return len(cyc), max(abs(p[0]) for p in cyc), cyc
+        seen[s] = i
+        path.append(s)
+        y0, en = step_ef_int(s[0], s[1], s[2], a1, a2, k, arith)
+        s = (y0, s[0], en)
+    return None, None, []
+
+
+def _sampled_ef(a1, a2, k, arith, B, starts, steps, seed):
+    """Random (y1, y2, E) states of a df1ef section; the largest cycle they settle in, if any."""
+    rng = np.random.default_rng(seed)
+    best = None
+    states = [(int(rng.integers(-B, B + 1)), int(rng.integers(-B, B + 1)),
+               int(rng.integers(-(1 << (k - 1)), 1 << (k - 1)))) for _ in range(min(starts, 64))]
+    for y1, y2, e in states:
+        seen = {}
+        path = []
+        s = (y1, y2, e)
+        for i in range(steps):
+            if s in seen:
+                cyc = path[seen[s]:]
+                am = max(abs(p[0]) for p in cyc)
+                if am and (best is None or am > best[1]):
+                    best = (len(cyc), am, max(cyc, key=lambda p: abs(p[0])))
+                break
+            seen[s] = i
+            path.append(s)
+            y0, e = step_ef_int(s[0], s[1], s[2], a1, a2, k, arith)
+            s = (y0, s[0], e)
+    if best is None:
+        return None
+    return dict(amplitude_lsb=int(best[1]), period=int(best[0]), start_state=tuple(int(v) for v in best[2]))
+
+
+def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed, ef=False) -> dict:
     """Overflow-oscillation verdict of one section (keyword fields of SectionLimitCycles)."""
     suff = abs(a_phys[1]) + abs(a_phys[2]) < 1.0
     if arith.overflow == "wrap" and suff:
@@ -398,12 +456,16 @@ def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed) -> dict:
     rnd = rng.integers(lo, hi + 1, size=(starts, 2), dtype=np.int64)
     st = np.vstack([corners, rnd])
     y1, y2 = st[:, 0].copy(), st[:, 1].copy() if order == 2 else np.zeros(len(st), np.int64)
+    e = np.zeros(len(st), dtype=np.int64)
     r = float(np.max(np.abs(np.roots(a_phys[: order + 1])))) if order else 0.0
     steps = int(min(8192, max(256, 40.0 / max(1e-6, 1.0 - r)))) if r < 1 else 1024
     gran = (bounds[0] if bounds else 0.0) + 1.0
     big = np.zeros(len(st))
     for i in range(steps + 64):
-        y0 = zero_input_step(y1, y2, a1, a2 if order == 2 else 0, k, arith)
+        if ef:
+            y0, e = zero_input_step_ef(y1, y2, e, a1, a2 if order == 2 else 0, k, arith)
+        else:
+            y0 = zero_input_step(y1, y2, a1, a2 if order == 2 else 0, k, arith)
         y1, y2 = y0, (y1 if order == 2 else np.zeros_like(y1))
         if i >= steps:
             big = np.maximum(big, np.abs(y1).astype(float))
@@ -422,7 +484,10 @@ def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed) -> dict:
     j = int(bad[np.argmax(big[bad])])
     s0 = (int(st[j, 0]), int(st[j, 1]) if order == 2 else 0)
     # settle the trajectory, then measure its period
-    per, am, cyc = _walk(int(y1[j]), int(y2[j]), a1, a2 if order == 2 else 0, k, arith, limit=1 << 15)
+    if ef:
+        per, am, cyc = _walk_ef(int(y1[j]), int(y2[j]), int(e[j]), a1, a2 if order == 2 else 0, k, arith, 1 << 15)
+    else:
+        per, am, cyc = _walk(int(y1[j]), int(y2[j]), a1, a2 if order == 2 else 0, k, arith, limit=1 << 15)
     if not per or am <= gran:
         return dict(overflow_status="unproven",
                     overflow_note=f"|a1| + |a2| >= 1; from state {s0} the zero-input output is still "

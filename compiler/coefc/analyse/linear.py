@@ -92,7 +92,7 @@ def op_models(program: ChannelProgram) -> list[OpModel]:
         fs_data, fc = ar.data.max_value + ar.data.lsb, ar.coef.frac_bits
 
     def phys(c, shift):
-        return float(c) * 2.0 ** (shift - fc) if not ar.is_float else float(c) * 2.0 ** shift
+        return float(c) * 2.0 ** (shift - fc) if not ar.is_float else float(c)  # float32: shift is 0
 
     def acc_fs(shift):
         if ar.is_float:

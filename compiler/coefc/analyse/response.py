@@ -133,7 +133,7 @@ def analyse_response(design: ChannelDesign, program: ChannelProgram, *, passband
     rows_q = []
     for op in program.ops:
         if isinstance(op, SectionOp):
-            sc = 2.0 ** op.shift if fc is None else 2.0 ** (op.shift - fc)
+            sc = 1.0 if fc is None else 2.0 ** (op.shift - fc)
             rows_q.append([float(c) * sc for c in op.b] + [1.0] + [float(c) * sc for c in op.a])
     rows_f = [row for blk in design.blocks if isinstance(blk, SosBlock) for row in np.asarray(blk.sos)]
     pq, pf = _roots(rows_q, "poles"), _roots(rows_f, "poles")

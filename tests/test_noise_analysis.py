@@ -1,0 +1,150 @@
+"""Roundoff noise: the analytic model against published values, and against the
+bit-true engine on every example description."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from coefc.analyse.linear import op_models
+from coefc.analyse.noise import analytic_noise, dbfs, measured_noise, rounding_error_stats
+from coefc.program import Arithmetic, ChannelProgram, GainOp, SectionOp
+from coefc.qformat import QFormat
+
+from conftest import example_files
+
+Q15 = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 30), acc_bits=64, rounding="nearest", overflow="saturate")
+
+
+def one_section(a1: float, a2: float, arith: Arithmetic = Q15, b0: float = 1.0) -> ChannelProgram:
+    fc = arith.coef.frac_bits
+    op = SectionOp(b=(round(b0 * 2 ** fc), 0, 0), a=(round(a1 * 2 ** fc), round(a2 * 2 ** fc)), shift=0,
+                   structure=arith.structure)
+    return ChannelProgram("t", 48000.0, arith, (op,))
+
+
+@pytest.mark.parametrize("a, expected", [(0.5, 1.0348e-10), (0.9, 4.0847e-10)])
+def test_first_order_one_rounding(a, expected):
+    # 1/(1 - a z^-1) with one rounding: (q^2/12)/(1 - a^2), q = 2^-15
+    # (REFERENCES: derived; Widrow & Kollar, Quantization Noise, ch. 16 treats this filter [confirmed])
+    # b0 = 1 - 2^-30 makes the products use all 30 dropped bits (a = 0.5 alone drops only one)
+    res = analytic_noise(one_section(-a, 0.0, b0=1 - 2.0 ** -30))
+    assert res.variance == pytest.approx(expected, rel=2e-4)
+    assert res.variance == pytest.approx((2.0 ** -15) ** 2 / 12 / (1 - a * a), rel=1e-6)
+
+
+@pytest.mark.parametrize("r, t, expected", [(0.9, math.pi / 4, 5.752258794), (0.5, 2.0, 1.199626072)])
+def test_second_order_all_pole_noise_gain(r, t, expected):
+    # sum h^2 of 1/(1 - 2 r cos t z^-1 + r^2 z^-2) = ((1 + r^2)/(1 - r^2)) / (r^4 + 1 - 2 r^2 cos 2t)
+    # (REFERENCES: derived from the closed form; values 5.752258794 and 1.199626072)
+    res = analytic_noise(one_section(-2 * r * math.cos(t), r * r, b0=1 - 2.0 ** -30))
+    assert len(res.sources) == 1
+    assert res.sources[0].power_gain == pytest.approx(expected, rel=1e-7)
+
+
+def test_error_statistics_of_rounding_modes():
+    # rounding: mean 0, variance q^2/12; two's-complement truncation: mean -q/2, variance q^2/12;
+    # magnitude truncation |e| < q (Oppenheim & Schafer, finite-precision chapter; from memory)
+    m, v = rounding_error_stats(40, "nearest")
+    assert (m, v) == (0.0, pytest.approx(1 / 12))
+    m, v = rounding_error_stats(40, "floor")
+    assert m == -0.5 and v == pytest.approx(1 / 12)
+    # the discrete residues approach the continuous values as more bits are dropped
+    for mode in ("nearest", "convergent", "floor"):
+        assert rounding_error_stats(16, mode)[1] == pytest.approx(1 / 12, rel=1e-8)
+    assert rounding_error_stats(16, "zero")[1] == pytest.approx(1 / 3, rel=1e-4)
+
+
+def test_full_scale_sine_snr_of_one_rounding():
+    # full-scale sine SNR = 6.0206 N + 1.7609 dB: 98.09 dB for N = 16 (REFERENCES [confirmed])
+    ar = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 30), acc_bits=64)
+    p = ChannelProgram("g", 48000.0, ar, (GainOp(coef=round(2 ** 29.5) | 1),))
+    res = analytic_noise(p)
+    assert res.snr_db == pytest.approx(6.0206 * 16 + 1.7609, abs=0.01)
+    assert res.dbfs == pytest.approx(-98.09, abs=0.01)
+
+
+def test_dbfs_follows_aes17():
+    # AES17: 0 dBFS = RMS level of a full-scale sine, so a power of 0.5 reads 0 dBFS and a
+    # full-scale square wave (power 1) reads +3.01 dBFS (common practice, no source)
+    assert dbfs(0.5) == pytest.approx(0.0)
+    assert dbfs(1.0) == pytest.approx(3.0103, abs=1e-4)
+
+
+def test_exact_operations_add_no_noise():
+    # a gain of exactly 0.5 on Q2.30 coefficients drops no bits of a data word? it drops one:
+    # 2^29 * x >> 30 keeps only half; a gain of 1.0 (2^30) drops none (common practice, no source)
+    ar = Q15
+    unity = ChannelProgram("u", 48000.0, ar, (GainOp(coef=1 << 30),))
+    assert analytic_noise(unity).sources == ()
+    half = ChannelProgram("h", 48000.0, ar, (GainOp(coef=1 << 29),))
+    (src,) = analytic_noise(half).sources
+    assert src.k == 1 and src.variance_lsb2 == pytest.approx(1 / 16)
+
+
+@pytest.mark.parametrize("rounding", ["nearest", "convergent", "floor"])
+def test_measured_matches_analytic_on_a_resonator(rounding):
+    # the engine's measured noise against Jackson's model within 1 dB (Jackson 1970,
+    # N(w) = sigma0^2 sum_j k_j |G_j(w)|^2 [confirmed]); floor adds its mean at DC gain
+    ar = Q15.with_(rounding=rounding)
+    p = one_section(-2 * 0.95 * math.cos(0.3), 0.95 ** 2, ar, b0=0.05)
+    an = analytic_noise(p)
+    me = measured_noise(p, samples=1 << 15)
+    assert me.model_holds
+    assert abs(an.dbfs - me.dbfs) < 1.0, (an.dbfs, me.dbfs)
+    if rounding == "floor":
+        assert me.mean == pytest.approx(an.mean, rel=0.05)
+
+
+def test_magnitude_truncation_mean_square_on_a_gain():
+    # (the gain is 1/sqrt(2), so the dropped fractions spread evenly; 0.7 would give tenths only)
+    # magnitude truncation: |e| < q with the sign opposite to the value (Claasen, Mecklenbrauker
+    # & Peek 1976; from memory); for a uniform fraction its mean square is q^2/3 (derived).  On a
+    # recursive path the error is correlated with the signal and the white model is only a
+    # rough guide, so the agreement is checked where the error reaches the output directly.
+    ar = Q15.with_(rounding="zero")
+    p = ChannelProgram("g", 48000.0, ar, (GainOp(coef=round(2 ** 29.5) | 1),))
+    an = analytic_noise(p)
+    me = measured_noise(p, samples=1 << 15)
+    assert an.power == pytest.approx((2.0 ** -15) ** 2 / 3, rel=1e-6)
+    assert abs(an.dbfs - me.dbfs) < 0.2
+
+
+def test_df1ef_shapes_the_noise():
+    # first-order error feedback shapes the error by (1 - z^-1) before 1/A(z): for a low
+    # resonance the output noise falls by many dB (Oppenheim & Schafer, ch. 6; from memory)
+    a1, a2 = -2 * 0.99 * math.cos(0.05), 0.99 ** 2
+    plain = analytic_noise(one_section(a1, a2, Q15, b0=0.01))
+    ef_ar = Q15.with_(structure="df1ef")
+    ef = analytic_noise(one_section(a1, a2, ef_ar, b0=0.01))
+    assert ef.dbfs < plain.dbfs - 20
+    me = measured_noise(one_section(a1, a2, ef_ar, b0=0.01), samples=1 << 15)
+    assert abs(ef.dbfs - me.dbfs) < 1.0
+
+
+def test_small_stimulus_is_flagged():
+    # the uniform model fails for signals below about one LSB (Widrow, Kollar & Liu 1996 [confirmed])
+    ar = Arithmetic(data=QFormat(1, 7), coef=QFormat(2, 14), acc_bits=32)
+    # a huge-gain resonance forces a tiny stimulus, so the first node sees less than 1 LSB
+    p = ChannelProgram("tiny", 48000.0, ar, (
+        GainOp(coef=round(0.01 * 2 ** 14)),
+        SectionOp(b=(1 << 14, 0, 0), a=(round(-1.98 * 2 ** 14), round(0.985 * 2 ** 14)), shift=0),
+    ))
+    me = measured_noise(p, samples=4096)
+    assert not me.model_holds and "LSB" in me.note
+
+
+@pytest.mark.parametrize("path", example_files(), ids=lambda p: p.stem)
+def test_measured_within_1_db_on_every_example(path):
+    # analytic (Jackson 1970) and measured (bit-true engine) output noise agree within 1 dB
+    import coefc
+
+    real = coefc.load(path).design().realise()
+    for prog in real.programs:
+        models = op_models(prog)
+        an = analytic_noise(prog, models)
+        me = measured_noise(prog, samples=1 << 15, models=models)
+        assert an.dbfs is not None and me.dbfs is not None
+        assert abs(an.dbfs - me.dbfs) < 1.0, (path.name, prog.name, an.dbfs, me.dbfs)
