@@ -80,7 +80,7 @@ def render_text(desc, summaries: list[dict]) -> str:
 
 @app.command()
 def design(
-    file: Annotated[str, typer.Argument(help="The filter description (.toml).", show_default=False)],
+    file: Annotated[str, typer.Argument(help="The filter description (.toml).", metavar="FILE", show_default=False)],
     freqs: Freqs = None,
     json_out: options.JsonOut = None,
     channel: options.Channel = None,

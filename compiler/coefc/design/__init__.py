@@ -43,6 +43,8 @@ __all__ = ["design_channel", "section_q", "HIGH_Q", "POLE_RADIUS_WARN"]
 
 #: A section whose poles have a quality factor above this is reported.
 HIGH_Q = 20.0
+#: A channel whose gain peaks above this many dB is reported (headroom).
+HEADROOM_WARN_DB = 0.1
 #: A pole with a radius above this is reported (it needs long coefficient words
 #: and long accumulators; at 48 kHz this is a pole below about 3.8 Hz).
 POLE_RADIUS_WARN = 0.9995
@@ -124,7 +126,7 @@ def _channel_warnings(blocks, stages: list[tuple[int, StageResult]], fs: float) 
     f = np.unique(np.concatenate([f, np.geomspace(1.0, fs / 2 * 0.999, 512)]))
     mag = np.abs(chain_response(blocks, f, fs))
     peak = float(np.max(mag)) if mag.size else 1.0
-    if peak > 1.0 + 1e-9:
+    if 20 * math.log10(max(peak, 1e-300)) > HEADROOM_WARN_DB:
         i = int(np.argmax(mag))
         out.append(f"channel gain peaks at {20 * math.log10(peak):+.2f} dB near {f[i]:.0f} Hz; a full-scale "
                    "input would clip unless the signal has that much headroom")

@@ -174,7 +174,7 @@ def design_fir(ctx: StageContext) -> StageResult:
         else:
             n = fix_parity(int(signal.kaiserord(att, width / nyq)[0]))
 
-        def build(n_taps: int) -> np.ndarray:
+        def build(n_taps: int) -> tuple[np.ndarray | None, str]:
             with warnings.catch_warnings(record=True) as caught:
                 warnings.simplefilter("always")
                 try:
@@ -184,24 +184,31 @@ def design_fir(ctx: StageContext) -> StageResult:
                         pairs = [g for d in desired for g in (d, d)]
                         h = signal.firls(n_taps, edges, pairs, weight=weights, fs=fs)
                 except (ValueError, np.linalg.LinAlgError) as e:
-                    raise ctx.error(f"the {method} design failed at {n_taps} taps ({e}); "
-                                    "change the edges or give taps") from None
+                    return None, str(e)
+            if not np.all(np.isfinite(h)):
+                return None, "non-finite taps"
             if caught:
                 warns.append(f"{method} design at {n_taps} taps: {caught[-1].message}")
-            return h
+            return h, ""
 
         if n > MAX_FIR_TAPS:
             raise ctx.error(f"the requirements need about {n} taps, above the limit of {MAX_FIR_TAPS}; "
                             "widen the transition band or lower attenuation_db", "stopband_hz")
-        taps = build(n)
+        taps, why = build(n)
+        if taps is None:
+            raise ctx.error(f"the {method} design failed at {n} taps ({why}); widen the transition band "
+                            "or use method = \"kaiser\"", "method" if ctx.has("method") else "stopband_hz")
         dev, got = measure(taps, edges, passbands, fs)
         steps = 0
         while given is None and (got < att or dev > rp) and steps < _MAX_SEARCH_STEPS:
             step = max(2, (n // 40) * 2)
             if n + step > MAX_FIR_TAPS:
                 break
-            n += step
-            taps = build(n)
+            longer, why = build(n + step)
+            if longer is None:
+                warns.append(f"the {method} design stopped at {n} taps ({why})")
+                break
+            n, taps = n + step, longer
             dev, got = measure(taps, edges, passbands, fs)
             steps += 1
         if got < att - 1e-6 or dev > rp + 1e-6:
@@ -209,7 +216,7 @@ def design_fir(ctx: StageContext) -> StageResult:
                          f"{dev:.3f} dB passband deviation, short of attenuation_db = {att:g} / ripple_db = {rp:g}")
         how = ("equiripple (Parks-McClellan)" if method == "equiripple" else "least squares") + f", {n} taps"
     if not np.all(np.isfinite(taps)):
-        raise ctx.error(f"the {method} design is not numerically sound; change the edges or give taps")
+        raise ctx.error("the Kaiser design is not numerically sound; change the edges or give taps")
     if n > MANY_TAPS:
         warns.append(f"{n} taps is a long filter for an embedded target; consider a wider transition band "
                      "or a multi-stage design")
