@@ -402,10 +402,10 @@ CAUTION = ("Caution: a fixed-point filter that overflows or limit-cycles can dri
            "practice that apply to your product.")
 
 
-def _wrap(text: str, width: int = 76) -> list[str]:
+def _wrap(text: str, width: int = 76, indent: str = "") -> list[str]:
     import textwrap
 
-    return textwrap.wrap(text, width) or [""]
+    return textwrap.wrap(text, width, subsequent_indent=indent) or [""]
 
 
 def render(realisation, report=None, *, header_name: str = "filters.h",
@@ -519,7 +519,7 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
             lc = metrics.get("limit_cycle")
             if isinstance(lc, dict) and "status" in lc:
                 shown.append(f"limit cycles {lc['status']}")
-            banner_metrics += _wrap(f"'{p.name}': {summary}; " + "; ".join(shown))
+            banner_metrics += _wrap(f"'{p.name}': {summary}; " + "; ".join(shown), indent="    ")
             for name, value, limit, ok in _check_rows(rc):
                 if not ok:
                     banner_metrics.append(f"  OVER BUDGET '{p.name}': {name} = {_fmt(value)} (limit {_fmt(limit)})")
@@ -548,7 +548,7 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
         f"target       {target.name} (target.toml sha256 {hashlib.sha256(toml_bytes).hexdigest()})",
         f"kernel       {Path(info.kernel_header).name}, interface {info.kernel_abi}",
     ]
-    lines += _wrap("arithmetic   " + fmt_text)
+    lines += _wrap("arithmetic   " + fmt_text, indent="             ")
     lines += [f"verdict      {verdict}", "channels:"]
     lines += ["  " + m for m in banner_metrics]
     lines += ["Levels in dBFS: 0 dBFS is the RMS level of a full-scale sine (AES17)."]

@@ -1,0 +1,88 @@
+"""``coefc build FILE -o OUT.h``: a description in, a checked C header out.
+
+Runs the check first and refuses to write when it fails (exit 1, the output is
+left untouched) unless ``--force``; writes every file atomically; ``--check``
+writes nothing and reports whether the output is missing or stale (exit 1) or
+current (exit 0).  Bad input exits 2.
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+from typing import Annotated, Optional
+
+import typer
+
+from . import app, options
+
+Output = Annotated[Path, typer.Option("-o", "--output", help="Header to write (OUT.h).")]
+Vectors = Annotated[int, typer.Option(
+    "--vectors", min=0, help="Golden-vector samples per channel in the header (0 = none).")]
+CheckOnly = Annotated[bool, typer.Option(
+    "--check", help="Write nothing; exit 1 if OUT.h is missing or differs from what would be written.")]
+Force = Annotated[bool, typer.Option(
+    "--force", help="Write the header even when the check fails; its first lines then say so.")]
+
+
+@app.command()
+def build(
+    file: Annotated[Path, typer.Argument(help="Filter description (.toml).")],
+    output: Output,
+    target: options.Target = None,
+    target_dir: options.TargetDirs = None,
+    data: options.Data = None,
+    coef: options.Coef = None,
+    acc: options.Acc = None,
+    rounding: options.Rounding = None,
+    overflow: options.Overflow = None,
+    structure: options.Structure = None,
+    scaling: options.Scaling = None,
+    channel: options.Channel = None,
+    vectors: Vectors = 256,
+    check_only: CheckOnly = False,
+    force: Force = False,
+) -> None:
+    """Check, then write the C header for the target's reference kernel (exit 0 / 1 / 2).
+
+    The header is byte-identical for identical inputs: its banner names the coefc
+    version and the SHA-256 of the description and of the target.toml, never a time.
+    """
+    from ..api import load
+    from ..budget import run_check
+    from ..emit import render
+    from ..fileio import write_atomic
+
+    loaded = load(file)
+    ov = options.overrides(data=data, coef=coef, acc=acc, rounding=rounding, overflow=overflow,
+                           structure=structure, scaling=scaling)
+    real = loaded.design(channel or None).realise(target, ov, target_dir or ())
+    report = run_check(real, loaded.description.budget)
+    for c in report.cautions:
+        print(f"coefc: {c}", file=sys.stderr)
+    if not report.ok and not force:
+        for ch, chk, why in report.failures():
+            print(f"coefc: over budget: channel '{ch}': {chk.name} = {chk.value} (limit {chk.limit})"
+                  + (f": {why}" if why else ""), file=sys.stderr)
+        print(f"coefc: {output}: not written (the check failed; --force writes it anyway)", file=sys.stderr)
+        raise typer.Exit(1)
+    files = render(real, report, header_name=output.name, vectors=vectors, forced=not report.ok)
+    folder = output.parent
+    paths = {folder / name: text for name, text in files.items()}
+    if check_only:
+        stale = []
+        for path, text in paths.items():
+            try:
+                current = path.read_bytes() == text.encode("utf-8")
+            except OSError:
+                current = False
+            if not current:
+                stale.append(str(path))
+        if stale:
+            print(f"coefc: stale or missing: {', '.join(stale)}; run coefc build", file=sys.stderr)
+            raise typer.Exit(1)
+        print(f"{output}: up to date")
+        return
+    for path, text in paths.items():
+        write_atomic(path, text)
+        print(f"wrote {path}" + ("  (OVER BUDGET, forced)" if not report.ok else ""))

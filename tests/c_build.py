@@ -1,0 +1,168 @@
+"""Test helpers: build emitted headers with a target's reference kernel and run
+their golden vectors in a small C main (used by test_c_kernels*.py and
+test_emit*.py).
+
+The expected outputs inside a header come from coefc's Python/C bit-true engine;
+the reference kernel is a separate C implementation written from the arithmetic
+stated in coefc.program, so a pass is an agreement of two implementations.
+"""
+
+from __future__ import annotations
+
+import functools
+import shutil
+import subprocess
+from pathlib import Path
+
+import numpy as np
+
+from coefc.api import Design, Loaded, Realisation
+from coefc.emit import render
+from coefc.program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from coefc.spec import Budget, Description, Implementation
+from coefc.targets import build_info, find_target
+
+STRICT = ["-std=c99", "-Wall", "-Wextra", "-Werror", "-pedantic", "-ffp-contract=off"]
+UBSAN = ["-fsanitize=undefined", "-fno-sanitize-recover=all"]
+
+
+@functools.cache
+def compilers() -> tuple[str, ...]:
+    """gcc and clang, whichever are installed."""
+    return tuple(c for c in ("gcc", "clang") if shutil.which(c))
+
+
+@functools.cache
+def m32_works(cc: str) -> bool:
+    """True when *cc* can build and link a 32-bit program (multilib present)."""
+    tmp = Path(subprocess.run(["mktemp", "-d"], capture_output=True, text=True).stdout.strip())
+    try:
+        (tmp / "a.c").write_text("int main(void) { return 0; }\n")
+        r = subprocess.run([cc, "-m32", str(tmp / "a.c"), "-o", str(tmp / "a")], capture_output=True)
+        return r.returncode == 0
+    finally:
+        shutil.rmtree(tmp, ignore_errors=True)
+
+
+@functools.cache
+def ubsan_works(cc: str) -> bool:
+    tmp = Path(subprocess.run(["mktemp", "-d"], capture_output=True, text=True).stdout.strip())
+    try:
+        (tmp / "a.c").write_text("int main(void) { return 0; }\n")
+        r = subprocess.run([cc, *UBSAN, str(tmp / "a.c"), "-o", str(tmp / "a")], capture_output=True)
+        return r.returncode == 0
+    finally:
+        shutil.rmtree(tmp, ignore_errors=True)
+
+
+def fake_realisation(programs, target_name: str, name: str = "bench", source: str = "bench.toml",
+                     sample_rate_hz: float = 48000.0) -> Realisation:
+    """A Realisation around hand-built programs (no description file needed)."""
+    desc = Description(source=source, name=name, sample_rate_hz=sample_rate_hz,
+                       implementation=Implementation(), budget=Budget(), channels=(), sha256="0" * 64)
+    return Realisation(Design(Loaded(desc), ()), find_target(target_name), tuple(programs))
+
+
+def run_headers(workdir: Path, target_name: str, headers: list[tuple[str, str, str]], *,
+                cc: str = "gcc", extra: tuple[str, ...] = (), opt: str = "-O2") -> tuple[int, str]:
+    """Compile every header with the target's kernel and run all golden vectors.
+
+    *headers* is a list of ``(file name, description C name, text)``; each header
+    goes into its own translation unit.  Returns (exit code, stdout + stderr);
+    exit code 0 means every channel of every header matched bit for bit.
+    """
+    target = find_target(target_name)
+    info = build_info(target)
+    prefix = info.kernel_prefix
+    workdir.mkdir(parents=True, exist_ok=True)
+    kdir = target.folder / Path(info.kernel_header).parent
+    sources = [str(p) for p in info.kernel_files(target.folder)[1:]]
+    calls = []
+    for i, (fname, cname, text) in enumerate(headers):
+        (workdir / fname).write_text(text)
+        up = cname.upper()
+        (workdir / f"tu{i}.c").write_text(f"""#include <stdio.h>
+#include "{fname}"
+int run{i}(void);
+static {prefix}_state_t state[{up}_MAX_STATE_WORDS];
+int run{i}(void)
+{{
+    int c, bad = 0;
+    for (c = 0; c < {up}_N_CHANNELS; c++) {{
+        long r = {prefix}_selftest({cname}_channels[c], state, {cname}_golden_in,
+                                   {cname}_golden_out[c], {up}_GOLDEN_LEN);
+        if (r >= 0) {{
+            printf("MISMATCH {fname} channel %s at sample %ld\\n", {cname}_channel_names[c], r);
+            bad++;
+        }} else {{
+            printf("ok {fname} channel %s\\n", {cname}_channel_names[c]);
+        }}
+    }}
+    return bad;
+}}
+""")
+        calls.append(i)
+    decls = "".join(f"int run{i}(void);\n" for i in calls)
+    body = "".join(f"    bad += run{i}();\n" for i in calls)
+    (workdir / "main.c").write_text(f"{decls}int main(void)\n{{\n    int bad = 0;\n{body}    return bad ? 1 : 0;\n}}\n")
+    exe = workdir / "selftest"
+    cmd = [cc, *STRICT, opt, *extra, "-I", str(kdir), "-I", str(workdir), str(workdir / "main.c"),
+           *[str(workdir / f"tu{i}.c") for i in calls], *sources, "-o", str(exe)]
+    r = subprocess.run(cmd, capture_output=True, text=True)
+    if r.returncode != 0:
+        return 100, "compile failed: " + " ".join(cmd) + "\n" + r.stdout + r.stderr
+    r = subprocess.run([str(exe)], capture_output=True, text=True, timeout=60)
+    return r.returncode, r.stdout + r.stderr
+
+
+# ---------------------------------------------------------------------------
+# hand-built programs covering every operation
+# ---------------------------------------------------------------------------
+
+def _section(rng, arith: Arithmetic, structure: str, shift: int) -> SectionOp:
+    """A stable section with poles of radius 0.6..0.98 and random zeros."""
+    r = rng.uniform(0.6, 0.98)
+    th = rng.uniform(0.05, 3.0)
+    a1, a2 = -2 * r * np.cos(th), r * r
+    b = rng.uniform(-0.6, 0.6, 3)
+    if arith.is_float:
+        f = lambda v: float(np.float32(v))  # noqa: E731
+        return SectionOp(tuple(f(v) for v in b), (f(a1), f(a2)), 0, structure)
+    scale = 2.0 ** (arith.coef.frac_bits - shift)
+    q = lambda v: int(round(v * scale))  # noqa: E731
+    return SectionOp(tuple(q(v) for v in b), (q(a1), q(a2)), shift, structure)
+
+
+def _coef(arith: Arithmetic, v: float, shift: int = 0):
+    if arith.is_float:
+        return float(np.float32(v))
+    return int(round(v * 2.0 ** (arith.coef.frac_bits - shift)))
+
+
+def hand_programs(arith: Arithmetic, structures, seed: int = 1) -> list[ChannelProgram]:
+    """Channels exercising each structure, FIR, gain (saturating), delay, and a mix."""
+    rng = np.random.default_rng(seed)
+    fixed = not arith.is_float
+    progs = []
+    for s in structures:
+        ops = tuple(_section(rng, arith, s, shift) for shift in ((0, 1, 0) if fixed else (0, 0, 0)))
+        progs.append(ChannelProgram(f"sec_{s}", 48000.0, arith, ops))
+    taps = rng.uniform(-0.4, 0.4, 17)
+    progs.append(ChannelProgram("fir", 48000.0, arith,
+                                (FirOp(tuple(_coef(arith, t, 1 if fixed else 0) for t in taps), 1 if fixed else 0),)))
+    # a gain of 1.75 drives the full-scale steps of the golden input into saturation/wrap
+    progs.append(ChannelProgram("gain", 48000.0, arith,
+                                (GainOp(_coef(arith, 1.75, 1 if fixed else 0), 1 if fixed else 0),)))
+    progs.append(ChannelProgram("delay", 48000.0, arith, (DelayOp(5),)))
+    mixed = (GainOp(_coef(arith, 0.5), 0), DelayOp(2), _section(rng, arith, structures[0], 0),
+             FirOp(tuple(_coef(arith, t) for t in rng.uniform(-0.3, 0.3, 4)), 0),
+             _section(rng, arith, structures[-1], 1 if fixed else 0), GainOp(_coef(arith, 1.2, 1 if fixed else 0), 1 if fixed else 0))
+    progs.append(ChannelProgram("mixed", 48000.0, arith, mixed))
+    return progs
+
+
+def emit_text(programs, target_name: str, name: str, vectors: int = 256) -> tuple[str, str, str]:
+    """(file name, C name, header text) of hand-built programs."""
+    real = fake_realisation(programs, target_name, name=name, source=f"{name}.toml")
+    files = render(real, None, header_name=f"{name}.h", vectors=vectors)
+    return f"{name}.h", name, files[f"{name}.h"]
