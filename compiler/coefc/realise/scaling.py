@@ -15,8 +15,8 @@ Norms (Jackson 1970), for the impulse response ``f`` and frequency response ``F`
 ``linf``  ``max |F(w)|``: no overflow for a full-scale sinusoid.
 
 Impulse responses are truncated where the slowest pole has decayed by 10^-12
-(at most 2^18 samples); ``linf`` is read from a zero-padded FFT of that response
-and at the pole angles.
+(at most 2^18 samples); ``linf`` is read from a zero-padded FFT of that response,
+refined around its largest bin, and at the pole angles.
 
 References
 ----------
@@ -67,7 +67,13 @@ def norm(h: np.ndarray, p: str, pole_angles=()) -> float:
         return float(np.sqrt(np.sum(h * h)))
     if p == "linf":
         nfft = max(4 * len(h), 1 << 14)
-        peak = float(np.max(np.abs(np.fft.rfft(h, nfft))))
+        spec = np.abs(np.fft.rfft(h, nfft))
+        i = int(np.argmax(spec))
+        peak = float(spec[i])
+        # refine between the neighbouring bins of the largest one
+        w_ref = 2 * np.pi * (i + np.linspace(-1.0, 1.0, 65)) / nfft
+        n_idx = np.arange(len(h))
+        peak = max(peak, float(np.max(np.abs(np.exp(-1j * np.outer(w_ref, n_idx)) @ h))))
         if len(pole_angles):
             w = np.asarray(pole_angles, dtype=float)
             n = np.arange(len(h))
