@@ -409,7 +409,8 @@ def _wrap(text: str, width: int = 76, indent: str = "") -> list[str]:
 
 
 def render(realisation, report=None, *, header_name: str = "filters.h",
-           vectors: int = GOLDEN_DEFAULT, forced: bool = False) -> dict[str, str]:
+           vectors: int = GOLDEN_DEFAULT, forced: bool = False,
+           with_kernel: bool = False) -> dict[str, str]:
     """Render the C header (and the target's optional companion source).
 
     Parameters
@@ -426,6 +427,10 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
     forced : bool
         The report is over budget and the caller insists: the header says so in
         its first lines and defines ``<NAME>_OVER_BUDGET 1``.
+    with_kernel : bool
+        Also return the target's reference kernel files (header and sources,
+        unchanged, under their own names) so a firmware build can take them
+        from the same place as the header.
 
     Returns
     -------
@@ -591,4 +596,13 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
     out = {header_name: render_template(target.folder, info.header_template, context)}
     if info.source_template:
         out[Path(header_name).stem + ".c"] = render_template(target.folder, info.source_template, context)
+    if with_kernel:
+        for path in info.kernel_files(target.folder):
+            if path.name in out:
+                raise TargetError(f"{path}: kernel file name '{path.name}' clashes with the generated "
+                                  "header; choose another output name")
+            try:
+                out[path.name] = path.read_text(encoding="utf-8")
+            except (OSError, UnicodeDecodeError) as e:
+                raise TargetError(f"{path}: cannot read the kernel file ({e})") from None
     return out

@@ -23,6 +23,8 @@ CheckOnly = Annotated[bool, typer.Option(
     "--check", help="Write nothing; exit 1 if OUT.h is missing or differs from what would be written.")]
 Force = Annotated[bool, typer.Option(
     "--force", help="Write the header even when the check fails; its first lines then say so.")]
+Kernel = Annotated[bool, typer.Option(
+    "--kernel", help="Also write the target's reference kernel (.h and .c) beside OUT.h.")]
 
 
 @app.command()
@@ -42,6 +44,7 @@ def build(
     vectors: Vectors = 256,
     check_only: CheckOnly = False,
     force: Force = False,
+    kernel: Kernel = False,
 ) -> None:
     """Check, then write the C header for the target's reference kernel (exit 0 / 1 / 2).
 
@@ -52,11 +55,13 @@ def build(
     from ..budget import run_check
     from ..emit import render
     from ..fileio import write_atomic
+    from ..targets import build_info
 
     loaded = load(file)
     ov = options.overrides(data=data, coef=coef, acc=acc, rounding=rounding, overflow=overflow,
                            structure=structure, scaling=scaling)
     real = loaded.design(channel or None).realise(target, ov, target_dir or ())
+    build_info(real.target)  # a target that cannot build fails before the (slower) check
     report = run_check(real, loaded.description.budget)
     for c in report.cautions:
         print(f"coefc: {c}", file=sys.stderr)
@@ -66,7 +71,8 @@ def build(
                   + (f": {why}" if why else ""), file=sys.stderr)
         print(f"coefc: {output}: not written (the check failed; --force writes it anyway)", file=sys.stderr)
         raise typer.Exit(1)
-    files = render(real, report, header_name=output.name, vectors=vectors, forced=not report.ok)
+    files = render(real, report, header_name=output.name, vectors=vectors, forced=not report.ok,
+                   with_kernel=kernel)
     folder = output.parent
     paths = {folder / name: text for name, text in files.items()}
     if check_only:
