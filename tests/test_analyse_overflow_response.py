@@ -88,7 +88,7 @@ def test_explicit_stopband_and_unstable_quantisation():
     # down (Butterworth magnitude, common practice, no source)
     assert res.stopband_attenuation_db > 62.2
     assert "12000-24000 Hz" in res.stopband_rule
-    assert res.passband_deviation_db < 1e-6  # 30 fraction bits: the passband is untouched
+    assert res.passband_deviation_db < 0.01  # 24 to 30 fraction bits: the passband barely moves
     # a pole pair pushed onto the unit circle is reported unstable
     bad = np.array(sos)
     bad[-1, 4:] = [-2 * math.cos(0.3), 1.0]
