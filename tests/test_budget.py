@@ -1,0 +1,117 @@
+"""The budget gate: overrides, the pass rules of each check, cautions and the JSON contract."""
+
+from __future__ import annotations
+
+import json
+from types import SimpleNamespace
+
+import pytest
+
+import coefc
+from coefc.analyse import AnalysisOptions
+from coefc.budget import apply_overrides, channel_checks, run_check
+from coefc.errors import DescriptionError
+from coefc.spec import Budget
+
+from conftest import FILTERS
+
+
+def fake_metrics(status="none", amplitude=None, bound=3.0, complete=True, overflow_count=0, osc="none"):
+    lc = SimpleNamespace(status=status, amplitude_lsb=amplitude if status != "none" else 0, bound_lsb=bound,
+                         complete=complete, overflow_status=osc,
+                         sections=[SimpleNamespace(op_index=0, status=status, amplitude_lsb=amplitude, period=2,
+                                                   start_state=(3, -3), note="", overflow_status=osc,
+                                                   overflow_note="x")])
+    resp = SimpleNamespace(stable=True, max_pole_radius=0.9, passband_deviation_db=0.01, passband_rule="r",
+                           stopband_attenuation_db=None, stopband_rule="s", float_stopband_attenuation_db=None)
+    ov = SimpleNamespace(overflow_count=overflow_count, runs=1, worst_node="op 1 output", headroom_bits=0.5)
+    return SimpleNamespace(response=resp, limit_cycles=lc, overflow=ov, noise=None, measured=None,
+                           is_float=False, overflow_mode="saturate")
+
+
+def verdict(metrics, **budget):
+    checks, why = channel_checks(metrics, Budget(**budget))
+    return {c.name: c.ok for c in checks}, why
+
+
+@pytest.mark.parametrize("status, amplitude, bound, complete, limit, ok", [
+    ("none", None, 3.0, True, "none", True),          # proven none passes "none"
+    ("found", 2, 3.0, True, "none", False),           # any cycle fails "none"
+    ("unproven", None, 3.0, False, "none", False),    # not proven fails "none"
+    ("found", 2, 30.0, True, 2.0, True),              # exhaustive: the amplitude decides
+    ("found", 3, 30.0, True, 2.0, False),
+    ("unproven", None, 1.5, False, 2.0, True),        # unproven: the bound decides
+    ("unproven", None, 2.5, False, 2.0, False),
+    ("found", 1, 2.5, False, 2.0, False),             # sampled search only: the bound still decides
+])
+def test_limit_cycle_rule(status, amplitude, bound, complete, limit, ok):
+    res, why = verdict(fake_metrics(status, amplitude, bound, complete), limit_cycles=limit)
+    assert res["limit_cycles"] is ok
+    assert why["limit_cycles"]
+
+
+def test_overflow_rule():
+    assert verdict(fake_metrics(overflow_count=0), overflow="none")[0]["overflow"] is True
+    assert verdict(fake_metrics(overflow_count=4), overflow="none")[0]["overflow"] is False
+    assert verdict(fake_metrics(overflow_count=0, osc="found"), overflow="none")[0]["overflow"] is False
+    assert verdict(fake_metrics(overflow_count=4), overflow="allow")[0]["overflow"] is True
+
+
+def test_stopband_not_applicable_without_a_stopband():
+    res, why = verdict(fake_metrics(), stopband_attenuation_db=80.0)
+    assert res["stopband_attenuation_db"] and "not applicable" in why["stopband_attenuation_db"]
+
+
+def test_overrides():
+    b = apply_overrides(Budget(passband_deviation_db=0.05, limit_cycles="none"), passband_deviation_db=0.1,
+                        limit_cycles="3", overflow="allow", output_noise_dbfs=-100)
+    assert (b.passband_deviation_db, b.limit_cycles, b.overflow, b.output_noise_dbfs) == (0.1, 3.0, "allow", -100)
+    for kw, key in [({"limit_cycles": "few"}, "--limit-cycles"), ({"output_noise_dbfs": 3.0}, "--max-noise-dbfs"),
+                    ({"overflow": "sometimes"}, "--overflow-budget"),
+                    ({"passband_deviation_db": -1.0}, "--max-passband-deviation-db")]:
+        with pytest.raises(DescriptionError, match=key):
+            apply_overrides(Budget(), **kw)
+
+
+@pytest.fixture(scope="module")
+def tweeter_report():
+    real = coefc.load(FILTERS / "three_way_monitor.toml").design(["tweeter"]).realise()
+    budget = Budget(passband_deviation_db=0.05, output_noise_dbfs=-120.0, limit_cycles=8.0, overflow="allow",
+                    stopband_attenuation_db=30.0)
+    return run_check(real, budget, options=AnalysisOptions(noise_samples=1 << 14))
+
+
+def test_json_contract(tweeter_report):
+    d = tweeter_report.to_json()
+    text = json.dumps(d, allow_nan=False)  # no NaN or infinity anywhere
+    assert json.loads(text) == d
+    assert d["schema"] == 1 and d["tool_version"] == coefc.__version__ and d["target"] == "mcu32"
+    assert d["source"].endswith("three_way_monitor.toml") and isinstance(d["ok"], bool)
+    (ch,) = d["channels"]
+    assert ch["name"] == "tweeter" and ch["sample_rate_hz"] == 48000
+    assert {"structure", "data", "coef", "acc_bits", "rounding", "overflow"} <= set(ch["arithmetic"])
+    for sec in ch["sections"]:
+        assert len(sec["b"]) == 3 and len(sec["a"]) == 2 and isinstance(sec["shift"], int)
+        assert all(isinstance(v, int) for v in sec["b"] + sec["a"])
+    m = ch["metrics"]
+    for key in ("passband_deviation_db", "stopband_attenuation_db", "output_noise_dbfs",
+                "output_noise_dbfs_simulated", "max_pole_radius", "headroom_bits", "overflow_count"):
+        assert key in m
+    assert m["limit_cycle"]["status"] in ("none", "found", "unproven")
+    assert {"amplitude_lsb", "period"} <= set(m["limit_cycle"])
+    for c in ch["checks"]:
+        assert {"name", "value", "limit", "ok"} <= set(c)
+    assert {c["name"] for c in ch["checks"]} >= {"passband_deviation_db", "output_noise_dbfs", "limit_cycles",
+                                                 "overflow", "stable"}
+
+
+def test_caution_when_the_budget_tolerates_overflow_or_limit_cycles(tweeter_report):
+    (c,) = tweeter_report.cautions
+    assert "overflow" in c and "limit cycles up to 8 LSB" in c
+    assert "amplifier" in c and "hearing" in c and "machines" in c and "sign-off" in c
+
+
+def test_failing_rows_come_first(tweeter_report):
+    for ch in tweeter_report.channels:
+        oks = [c.ok for c in ch.checks]
+        assert oks == sorted(oks)
