@@ -154,14 +154,14 @@ def test_l1_scaling_prevents_overflow_for_the_worst_input():
 
 def test_linf_scaling_holds_a_full_scale_sine_at_the_peak():
     # L-inf scaling: no overflow for a full-scale sinusoid (from memory: Jackson 1970);
-    # the sine fades in over 0.1 s so that the onset transient does not count, and
+    # the sine fades in over 0.2 s so that the onset transient does not count, and
     # stays 0.01 dB below full scale to leave room for the first section's roundoff
     sos = signal.butter(2, [900, 1100], "bandpass", fs=FS, output="sos")
     p = realise_channel(_design(SosBlock(sos)), MCU32.with_(scaling="linf"))
     f = np.linspace(800, 1200, 4001)
     f0 = f[np.argmax(np.abs(signal.sosfreqz(sos, f, fs=FS)[1]))]
     n = np.arange(96000)
-    fade = np.minimum(1.0, n / 4800.0)
+    fade = 0.5 - 0.5 * np.cos(np.pi * np.minimum(1.0, n / 9600.0))  # raised-cosine fade-in
     x = np.round(np.sin(2 * np.pi * f0 / FS * n) * fade * 0.999 * 2 ** 31).astype(np.int64)
     t = simulate(p, x, trace=True)
     assert sum(t.overflow_counts[:-1]) == 0
