@@ -64,19 +64,20 @@ def fake_realisation(programs, target_name: str, name: str = "bench", source: st
 
 
 def run_headers(workdir: Path, target_name: str, headers: list[tuple[str, str, str]], *,
-                cc: str = "gcc", extra: tuple[str, ...] = (), opt: str = "-O2") -> tuple[int, str]:
+                cc: str = "gcc", extra: tuple[str, ...] = (), opt: str = "-O2", target_dirs=(),
+                extra_sources=()) -> tuple[int, str]:
     """Compile every header with the target's kernel and run all golden vectors.
 
     *headers* is a list of ``(file name, description C name, text)``; each header
     goes into its own translation unit.  Returns (exit code, stdout + stderr);
     exit code 0 means every channel of every header matched bit for bit.
     """
-    target = find_target(target_name)
+    target = find_target(target_name, target_dirs)
     info = build_info(target)
     prefix = info.kernel_prefix
     workdir.mkdir(parents=True, exist_ok=True)
     kdir = target.folder / Path(info.kernel_header).parent
-    sources = [str(p) for p in info.kernel_files(target.folder)[1:]]
+    sources = [str(p) for p in info.kernel_files(target.folder)[1:]] + [str(p) for p in extra_sources]
     calls = []
     for i, (fname, cname, text) in enumerate(headers):
         (workdir / fname).write_text(text)
