@@ -14,9 +14,10 @@ Norms (Jackson 1970), for the impulse response ``f`` and frequency response ``F`
 ``l2``    ``sqrt(sum f[n]^2)``: the statistical rule (unit-variance white input).
 ``linf``  ``max |F(w)|``: no overflow for a full-scale sinusoid.
 
-Impulse responses are truncated where the slowest pole has decayed by 10^-12
-(at most 2^18 samples); ``linf`` is read from a zero-padded FFT of that response,
-refined around its largest bin, and at the pole angles.
+Impulse responses (for ``l1``, ``l2``) are truncated where the slowest pole has
+decayed by 10^-12 (at most 2^18 samples); ``linf`` is read from the exact
+frequency response on a grid of 16384 frequencies plus the pole angles, refined
+three times around the largest value.
 
 References
 ----------
@@ -59,47 +60,67 @@ def apply_op(kind: str, op, h: np.ndarray) -> np.ndarray:
     return np.convolve(h, np.asarray(op, dtype=float))[: len(h)]
 
 
-def norm(h: np.ndarray, p: str, pole_angles=()) -> float:
-    """The l1, l2 or linf norm of a truncated impulse response *h*."""
+def norm(h: np.ndarray, p: str) -> float:
+    """The l1 or l2 norm of a truncated impulse response *h*."""
     if p == "l1":
         return float(np.sum(np.abs(h)))
     if p == "l2":
         return float(np.sqrt(np.sum(h * h)))
-    if p == "linf":
-        nfft = max(4 * len(h), 1 << 14)
-        spec = np.abs(np.fft.rfft(h, nfft))
-        i = int(np.argmax(spec))
-        peak = float(spec[i])
-        # refine between the neighbouring bins of the largest one
-        w_ref = 2 * np.pi * (i + np.linspace(-1.0, 1.0, 65)) / nfft
-        n_idx = np.arange(len(h))
-        peak = max(peak, float(np.max(np.abs(np.exp(-1j * np.outer(w_ref, n_idx)) @ h))))
-        if len(pole_angles):
-            w = np.asarray(pole_angles, dtype=float)
-            n = np.arange(len(h))
-            peak = max(peak, float(np.max(np.abs(np.exp(-1j * np.outer(w, n)) @ h))))
-        return peak
     raise ValueError(f"unknown norm '{p}'")
 
 
-def _pole_angles(chain) -> np.ndarray:
-    ang = []
-    for kind, op in chain:
-        if kind == "sos" and np.any(op[1][1:]):
-            ang.extend(np.abs(np.angle(np.roots(op[1]))))
-    return np.asarray(ang)
+def op_freq(kind: str, op, w: np.ndarray) -> np.ndarray:
+    """Complex response of one float op at angular frequencies *w* (rad/sample)."""
+    zi = np.exp(-1j * np.asarray(w, dtype=float))
+    if kind == "sos":
+        b, a = op
+        return np.polyval(np.asarray(b, dtype=float)[::-1], zi) / np.polyval(np.asarray(a, dtype=float)[::-1], zi)
+    return np.polyval(np.asarray(op, dtype=float)[::-1], zi)
+
+
+def _prefix_freq(chain, i: int, w: np.ndarray, factors) -> np.ndarray:
+    h = np.full(len(w), float(np.prod(factors)) if len(factors) else 1.0, dtype=complex)
+    for kind, op in chain[: i + 1]:
+        h *= op_freq(kind, op, w)
+    return h
+
+
+def _linf_factors(chain, target: float) -> list[float]:
+    """linf scale factors from the exact response on a grid, refined at the peak."""
+    grid = np.linspace(0.0, np.pi, 1 << 14)
+    angles = [np.abs(np.angle(np.roots(op[1]))) for kind, op in chain if kind == "sos" and np.any(op[1][1:])]
+    w = np.concatenate([grid] + angles)
+    h = np.ones(len(w), dtype=complex)
+    factors: list[float] = []
+    for i, (kind, op) in enumerate(chain):
+        h *= op_freq(kind, op, w)
+        mag = np.abs(h)
+        j = int(np.argmax(mag))
+        peak, w0, step = float(mag[j]), float(w[j]), float(grid[1])
+        for _ in range(3):  # zoom around the largest value
+            wr = np.clip(w0 + np.linspace(-step, step, 41), 0.0, np.pi)
+            m = np.abs(_prefix_freq(chain, i, wr, factors))
+            k = int(np.argmax(m))
+            if m[k] > peak:
+                peak, w0 = float(m[k]), float(wr[k])
+            step /= 20
+        c = target / peak if peak > 0 else 1.0
+        h *= c
+        factors.append(c)
+    return factors
 
 
 def scale_factors(chain, p: str, target: float = 1.0, length: int | None = None) -> list[float]:
     """One factor per op so that every op output has norm *target* (see module doc)."""
+    if p == "linf":
+        return _linf_factors(chain, target)
     n = length or response_length(chain)
     h = np.zeros(n)
     h[0] = 1.0
-    angles = _pole_angles(chain) if p == "linf" else ()
     factors = []
     for kind, op in chain:
         h = apply_op(kind, op, h)
-        nv = norm(h, p, angles)
+        nv = norm(h, p)
         c = target / nv if nv > 0 else 1.0
         h = h * c
         factors.append(c)
