@@ -1,0 +1,94 @@
+"""``coefc check`` end to end: the project's own examples gate themselves, a starved word
+length fails with exit 1, bad input exits 2 with one line, and the reports are well formed."""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+import xml.etree.ElementTree as ET
+
+import pytest
+
+from conftest import FILTERS, example_files
+
+MAIN = "from coefc.cli import main; main()"
+
+
+def run(*args, cwd=None):
+    return subprocess.run([sys.executable, "-c", MAIN, "check", *map(str, args)], capture_output=True, text=True,
+                          cwd=cwd, timeout=300)
+
+
+@pytest.mark.parametrize("path", example_files(), ids=lambda p: p.stem)
+def test_every_example_passes_its_own_budget(path):
+    r = run(path)
+    assert r.returncode == 0, r.stdout + r.stderr
+    assert "all checks pass" in r.stdout
+
+
+def test_starved_word_length_fails_and_names_the_check(tmp_path):
+    junit = tmp_path / "check.xml"
+    r = run(FILTERS / "three_way_monitor.toml", "--data", "Q1.11", "--coef", "Q2.10", "--channel", "mid",
+            "--json", "-", "--junit", junit)
+    assert r.returncode == 1, r.stderr
+    report = json.loads(r.stdout)
+    assert report["ok"] is False
+    (ch,) = report["channels"]
+    failed = {c["name"] for c in ch["checks"] if not c["ok"]}
+    assert "output_noise_dbfs" in failed  # 12-bit data cannot reach the -130 dBFS budget
+    assert ch["arithmetic"]["data"] == "Q1.11" and ch["arithmetic"]["coef"] == "Q2.10"
+    # JUnit: one suite per channel, one case per check, failures marked
+    root = ET.parse(junit).getroot()
+    (suite,) = root.findall("testsuite")
+    cases = suite.findall("testcase")
+    assert len(cases) == len(ch["checks"])
+    bad = {c.get("name") for c in cases if c.find("failure") is not None}
+    assert bad == failed
+
+
+def test_human_table_puts_failures_first_with_reasons():
+    r = run(FILTERS / "three_way_monitor.toml", "--data", "Q1.11", "--coef", "Q2.10", "--channel", "tweeter",
+            "--max-noise-dbfs", "-140", "--limit-cycles", "1000", "--overflow-budget", "allow")
+    assert r.returncode == 1
+    rows = [ln for ln in r.stdout.splitlines() if ln.startswith("  ")]
+    marks = [ln.split()[0] for ln in rows]
+    assert marks[0] == "FAIL" and marks == sorted(marks, key=lambda m: m != "FAIL")
+    noise = next(ln for ln in rows if "output_noise_dbfs" in ln)
+    assert "above the -140 dBFS limit" in noise
+    assert "AES17" in r.stdout
+    # the budget tolerates overflow and limit cycles: the caution is shown
+    assert "caution" in r.stderr and "amplifier" in r.stderr
+
+
+def test_overrides_can_relax_a_failing_budget():
+    r = run(FILTERS / "three_way_monitor.toml", "--channel", "tweeter", "--data", "Q1.11", "--coef", "Q2.10",
+            "--max-noise-dbfs", "-40", "--max-passband-deviation-db", "3", "--limit-cycles", "100000",
+            "--overflow-budget", "allow")
+    assert r.returncode == 0, r.stdout + r.stderr
+
+
+@pytest.mark.parametrize("args, words", [
+    (["missing.toml"], ["missing.toml"]),
+    ([FILTERS / "three_way_monitor.toml", "--limit-cycles", "few"], ["--limit-cycles", "none"]),
+    ([FILTERS / "three_way_monitor.toml", "--data", "Q1.x"], ["Q1.x"]),
+    ([FILTERS / "three_way_monitor.toml", "--channel", "wofer"], ["wofer", "woofer"]),
+    ([FILTERS / "three_way_monitor.toml", "--target", "mcu99"], ["mcu99"]),
+])
+def test_bad_input_exits_2_with_one_line(args, words):
+    r = run(*args)
+    assert r.returncode == 2, r.stdout + r.stderr
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and "Traceback" not in r.stderr
+    for w in words:
+        assert w in lines[0]
+
+
+def test_json_to_a_file_is_written_whole(tmp_path):
+    out = tmp_path / "report.json"
+    r = run(FILTERS / "three_way_monitor.toml", "--channel", "tweeter", "--json", out, "--limit-cycles", "10",
+            "--overflow-budget", "allow")
+    assert r.returncode in (0, 1)
+    d = json.loads(out.read_text())
+    assert d["schema"] == 1 and d["channels"][0]["name"] == "tweeter"
+    assert "channel tweeter" in r.stdout  # the human table still goes to stdout
