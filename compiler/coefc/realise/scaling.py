@@ -14,7 +14,8 @@ Norms (Jackson 1970), for the impulse response ``f`` and frequency response ``F`
 ``l2``    ``sqrt(sum f[n]^2)``: the statistical rule (unit-variance white input).
 ``linf``  ``max |F(w)|``: no overflow for a full-scale sinusoid.
 
-Impulse responses (for ``l1``, ``l2``) are truncated where the slowest pole has
+``l2`` norms are exact (Gramian of the cascade's state-space form, for up to 40
+states).  Impulse responses (for ``l1``) are truncated where the slowest pole has
 decayed by 10^-12 (at most 2^18 samples); ``linf`` is read from the exact
 frequency response on a grid of 16384 frequencies plus the pole angles, refined
 three times around the largest value.
@@ -110,10 +111,80 @@ def _linf_factors(chain, target: float) -> list[float]:
     return factors
 
 
+def _op_ss(kind: str, op):
+    """State-space (A, B, C, D) of one op (controllable form / shift register)."""
+    if kind == "sos":
+        b, a = (np.asarray(v, dtype=float) for v in op)
+        A = np.array([[-a[1], -a[2]], [1.0, 0.0]])
+        B = np.array([1.0, 0.0])
+        C = np.array([b[1] - b[0] * a[1], b[2] - b[0] * a[2]])
+        return A, B, C, float(b[0])
+    t = np.asarray(op, dtype=float)
+    m = len(t) - 1
+    A = np.eye(m, k=-1) if m else np.zeros((0, 0))
+    B = np.zeros(m)
+    if m:
+        B[0] = 1.0
+    return A, B, t[1:].copy(), float(t[0])
+
+
+def _cascade_ss(ops):
+    A, B, C, D = np.zeros((0, 0)), np.zeros(0), np.zeros(0), 1.0
+    for kind, op in ops:
+        A2, B2, C2, D2 = _op_ss(kind, op)
+        n1, n2 = len(B), len(B2)
+        An = np.zeros((n1 + n2, n1 + n2))
+        An[:n1, :n1] = A
+        An[n1:, :n1] = np.outer(B2, C)
+        An[n1:, n1:] = A2
+        A, B, C, D = An, np.concatenate([B, B2 * D]), np.concatenate([D2 * C, C2]), D2 * D
+    return A, B, C, D
+
+
+def _impulse_energy(ops) -> float:
+    n = response_length(ops)
+    h = np.zeros(n)
+    h[0] = 1.0
+    for kind, op in ops:
+        h = apply_op(kind, op, h)
+    return float(np.sum(h * h))
+
+
+def energy(ops) -> float:
+    """``sum h[n]^2`` of the cascade *ops*.
+
+    Exact for cascades of up to 40 states: the Gramian ``P = sum A^k B B' A'^k``
+    by repeated squaring (Smith's doubling iteration for the discrete Lyapunov
+    equation), then ``C P C' + D^2``.  Longer or unstable cascades use a truncated
+    impulse response.
+    """
+    A, B, C, D = _cascade_ss(ops)
+    if len(B) == 0:
+        return D * D
+    if len(B) > 40:
+        return _impulse_energy(ops)
+    P = np.outer(B, B)
+    Ak = A.copy()
+    for _ in range(64):
+        P = P + Ak @ P @ Ak.T
+        Ak = Ak @ Ak
+        if not np.all(np.isfinite(Ak)):
+            return _impulse_energy(ops)
+        if np.max(np.abs(Ak)) < 1e-20:
+            return float(C @ P @ C + D * D)
+    return _impulse_energy(ops)
+
+
 def scale_factors(chain, p: str, target: float = 1.0, length: int | None = None) -> list[float]:
     """One factor per op so that every op output has norm *target* (see module doc)."""
     if p == "linf":
         return _linf_factors(chain, target)
+    if p == "l2":
+        factors = []
+        for i in range(len(chain)):
+            nv = np.sqrt(energy(chain[: i + 1])) * float(np.prod(factors))
+            factors.append(target / nv if nv > 0 else 1.0)
+        return factors
     n = length or response_length(chain)
     h = np.zeros(n)
     h[0] = 1.0
@@ -141,25 +212,21 @@ def output_noise_lsb2(chain, final_gain: float, structure: str = "df1", has_gain
     Each op rounds its output once (variance 1/12 LSB^2, white, independent); the
     error of a section feeds back through its own denominator (``1/A(z)``; with
     first-order error feedback ``(1 - z^-1)/A(z)``) and then through every later
-    op and *final_gain*.  A final gain op adds one more source of 1/12.
+    op and *final_gain*.  A final gain op adds one more source of 1/12.  The noise
+    gains ``sum g[n]^2`` are computed exactly (discrete Lyapunov equation).
 
     References
     ----------
     Jackson, IEEE Trans. Audio Electroacoust. AU-18(2), 1970: output noise spectrum
     ``N(w) = sigma0^2 sum_j k_j |G_j(w)|^2``.
     """
-    n = length or response_length(chain)
     total = 0.0
     for i, (kind, op) in enumerate(chain):
-        e = np.zeros(n)
-        e[0] = 1.0
+        path = list(chain[i + 1:])
         if kind == "sos":
-            if structure == "df1ef":
-                e[1] = -1.0
-            e = signal.lfilter([1.0], op[1], e)
-        for kind2, op2 in chain[i + 1:]:
-            e = apply_op(kind2, op2, e)
-        total += float(np.sum(e * e)) * final_gain * final_gain / 12.0
+            num = [1.0, -1.0, 0.0] if structure == "df1ef" else [1.0, 0.0, 0.0]
+            path = [("sos", (num, op[1]))] + path
+        total += energy(path) * final_gain * final_gain / 12.0
     if has_gain_op:
         total += 1.0 / 12.0
     return total
