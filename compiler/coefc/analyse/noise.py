@@ -53,7 +53,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..program import ChannelProgram
-from .linear import OpModel, chain_filter, node_impulses, noise_impulse, op_models, response_length
+from .linear import OpModel, chain_filter, node_impulses, noise_impulse, op_models, pole_radius, response_length
 
 #: power of a full-scale sine (full scale = 1.0): the 0 dBFS reference of AES17
 FULL_SCALE_SINE_POWER = 0.5
@@ -158,7 +158,7 @@ def _freq(g, w):
 
 def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
                    n: int | None = None) -> NoiseAnalysis | None:
-    """Output roundoff noise by the linear model (``None`` for float32 arithmetic).
+    """Output roundoff noise by the linear model (``None`` for float32 arithmetic or an unstable program).
 
     Parameters
     ----------
@@ -179,6 +179,8 @@ def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
     if ar.is_float:
         return None
     models = models if models is not None else op_models(program)
+    if pole_radius(models) >= 1.0:
+        return None  # an unstable realisation has no finite noise gain
     n = n or response_length(models)
     lsb = ar.data.lsb
     sources, imps = [], []
@@ -235,7 +237,8 @@ def measured_noise(program: ChannelProgram, *, samples: int = 1 << 15, seed: int
 
     The stimulus is uniform white noise of peak ``stimulus_level`` (see there),
     quantised to the data word; the first samples, while the slowest pole settles,
-    are excluded from the measurement.
+    are excluded from the measurement.  Slow poles make the noise narrow-band, so
+    the record is lengthened to at least 32 settling times (at most 2^18 samples).
     """
     from ..simulate import simulate
 
@@ -245,6 +248,9 @@ def measured_noise(program: ChannelProgram, *, samples: int = 1 << 15, seed: int
     imps = node_impulses(models, n)
     peak = stimulus_level(models, imps)
     settle = n // 4  # the slowest pole's transient power is below 1e-6 by then
+    # narrow-band noise (slow poles) needs a longer record for the same confidence:
+    # at least 32 settling times, at most 2^18 samples
+    samples = int(min(max(samples, 32 * settle), max(samples, 1 << 18)))
     rng = np.random.default_rng(seed)
     u = rng.uniform(-1.0, 1.0, samples + settle)
     if ar.is_float:
