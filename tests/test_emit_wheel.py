@@ -1,0 +1,41 @@
+"""The built wheel carries every built-in target: target.toml, templates and the
+reference kernels, so `coefc build` works from an installed package."""
+
+from __future__ import annotations
+
+import importlib.util
+import shutil
+import subprocess
+import sys
+import zipfile
+from pathlib import Path
+
+import pytest
+
+REPO = Path(__file__).resolve().parent.parent
+BUILTINS = ("mcu16", "mcu32", "dsp24", "float32")
+
+
+@pytest.mark.skipif(importlib.util.find_spec("build") is None, reason="the 'build' package is not installed")
+def test_wheel_contains_targets_templates_and_kernels(tmp_path):
+    src = tmp_path / "src"
+    src.mkdir()
+    # build from a clean copy so the shared work tree gets no build/ folder
+    ignore = shutil.ignore_patterns("__pycache__", "*.so", "*.egg-info", "build")
+    for name in ("compiler", "targets"):
+        shutil.copytree(REPO / name, src / name, ignore=ignore)
+    for name in ("pyproject.toml", "setup.py", "README.md"):
+        shutil.copy2(REPO / name, src / name)
+    cmd = [sys.executable, "-m", "build", "--wheel", "--outdir", str(tmp_path / "dist"), str(src)]
+    if importlib.util.find_spec("wheel") is not None:
+        cmd.insert(4, "--no-isolation")
+    r = subprocess.run(cmd, capture_output=True, text=True, timeout=600)
+    assert r.returncode == 0, r.stdout[-3000:] + r.stderr[-3000:]
+    (wheel,) = (tmp_path / "dist").glob("coefc-*.whl")
+    names = set(zipfile.ZipFile(wheel).namelist())
+    for t in BUILTINS:
+        base = f"coefc/_builtin_targets/{t}"
+        for rel in ("target.toml", "templates/header.h.j2", f"kernel/coefc_{t}.h", f"kernel/coefc_{t}.c"):
+            assert f"{base}/{rel}" in names, f"{base}/{rel} missing from {wheel.name}"
+    assert "coefc/emit.py" in names and "coefc/cli/build_cmd.py" in names
+    assert not any("target_fixtures" in n or "cmake_project" in n for n in names)
