@@ -1,0 +1,69 @@
+"""``coefc run FILE IN OUT``: samples in, the bit-true outputs of every channel out.
+
+The input (mono WAV, or ``.txt`` with one raw data word per line) is fed to each
+chosen channel; the output is a WAV with one channel per filter channel, or a
+``.txt`` with a ``# channels: a b c`` header and one column per channel.  See
+:mod:`coefc.sampleio` for the scaling between WAV and data words.
+"""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from . import app, options
+
+
+@app.command()
+def run(
+    file: Annotated[Path, typer.Argument(metavar="FILE", help="Filter description (.toml).")],
+    input_path: Annotated[Path, typer.Argument(metavar="IN", help="Input samples: mono .wav, or .txt with one raw data word per line.")],
+    output_path: Annotated[Path, typer.Argument(metavar="OUT", help="Output: .wav (one channel per filter channel) or .txt (one column per channel).")],
+    channel: options.Channel = None,
+    target: options.Target = None,
+    target_dir: options.TargetDirs = None,
+    data: options.Data = None,
+    coef: options.Coef = None,
+    acc: options.Acc = None,
+    rounding: options.Rounding = None,
+    overflow: options.Overflow = None,
+    structure: options.Structure = None,
+    scaling: options.Scaling = None,
+) -> None:
+    """Push samples through the bit-true model of the realised filters.
+
+    Integer WAV full scale maps to the data word's full scale by shifting; float WAV
+    in [-1, 1) is rounded by the target's rounding mode and saturated.  Output WAV
+    uses the data word's container (16-bit words -> int16, 24/32-bit -> int32,
+    float32 -> float).
+    """
+    from ..api import load
+    from ..sampleio import read_samples, write_samples
+    from ..simulate import simulate
+
+    loaded = load(file)
+    desc = loaded.description
+    ov = options.overrides(data=data, coef=coef, acc=acc, rounding=rounding, overflow=overflow,
+                           structure=structure, scaling=scaling)
+    real = loaded.design(channel or None).realise(target, ov, target_dir or ())
+    ar = real.programs[0].arithmetic
+    x = read_samples(input_path, ar, desc.sample_rate_hz)
+    outputs, overflowed = {}, []
+    for prog in real.programs:
+        t = simulate(prog, x, trace=True)
+        outputs[prog.name] = t.y
+        n_ovf = sum(t.overflow_counts)
+        if n_ovf:
+            overflowed.append(f"{prog.name} ({n_ovf} overflowed samples)")
+    write_samples(output_path, outputs, ar, desc.sample_rate_hz)
+    arith = "float32" if ar.is_float else f"data {ar.data}, coef {ar.coef}, acc {ar.acc_bits} bits"
+    sys.stdout.write(f"{output_path}: {len(x)} samples x {len(outputs)} channel(s) "
+                     f"({', '.join(outputs)}) on target {real.target.name} ({arith}, {ar.structure})\n")
+    if overflowed:
+        print("coefc: caution: overflow in " + "; ".join(overflowed) + f" ({ar.overflow}). A filter that "
+              "overflows can drive an amplifier or actuator to full scale and damage drivers, hearing or "
+              "machines; check headroom and follow the standards and sign-off practice of your product.",
+              file=sys.stderr)

@@ -1,0 +1,220 @@
+"""Reading and writing sample files: WAV or text in, data words out (and back).
+
+Formats
+-------
+``.wav``  PCM WAV read and written with :mod:`scipy.io.wavfile`: 16-, 24- and 32-bit
+          integer, or 32/64-bit float.  Input must be mono (one signal feeds every
+          channel); output has one WAV channel per filter channel.
+``.txt``  One sample per line: a raw integer data word (fixed point) or a number
+          (float32 arithmetic).  Blank lines and ``#`` comments are allowed.  Output
+          starts with a header line ``# channels: a b c`` and has one column per
+          channel, separated by single spaces.
+
+Scaling (fixed-point arithmetic with a ``W``-bit data word)
+-----------------------------------------------------------
+- integer PCM of ``P`` bits: full scale maps to full scale by shifting, ``word =
+  pcm * 2^(W-P)`` when ``W >= P``, otherwise ``pcm / 2^(P-W)`` rounded by the
+  arithmetic's rounding mode and saturated.  24-bit WAV arrives left-justified in
+  32-bit integers and is handled as 32-bit PCM (the low byte is zero).
+- float WAV ``[-1, 1)``: ``word = x * 2^(W-1)`` rounded by the arithmetic's rounding
+  mode and saturated to the word.
+- output WAV uses the data word's container: ``W <= 16`` -> int16, ``W <= 32`` ->
+  int32, both left-justified (``word * 2^(16-W)`` or ``word * 2^(32-W)``); float32
+  arithmetic -> float32 WAV.  Wider words can only be written as text.
+
+For float32 arithmetic integer PCM becomes ``pcm / 2^(P-1)`` and float WAV is read
+as float32.  Every problem is a :class:`coefc.errors.DataError` naming the file and,
+for text, the line.
+"""
+
+from __future__ import annotations
+
+import io
+import struct
+from pathlib import Path
+
+import numpy as np
+
+from .errors import DataError
+from .program import Arithmetic
+from .qformat import fit_word, round_real, round_shift
+
+SUFFIXES = (".wav", ".txt")
+
+
+def _kind(path: Path, what: str) -> str:
+    suf = path.suffix.lower()
+    if suf not in SUFFIXES:
+        raise DataError(f"{path}: unsupported {what} format '{suf or '(no suffix)'}'; use a .wav file or a .txt "
+                        "file with one sample per line")
+    return suf[1:]
+
+
+def _wav_bits(path: Path, raw: bytes) -> int:
+    """Bits per sample from the 'fmt ' chunk (scipy does not report 24 vs 32)."""
+    if len(raw) < 12 or raw[:4] not in (b"RIFF", b"RIFX") or raw[8:12] != b"WAVE":
+        raise DataError(f"{path}: not a WAV file (no RIFF/WAVE header); give a PCM .wav or a .txt file")
+    end = "<" if raw[:4] == b"RIFF" else ">"
+    pos = 12
+    while pos + 8 <= len(raw):
+        cid, size = raw[pos:pos + 4], struct.unpack(end + "I", raw[pos + 4:pos + 8])[0]
+        if cid == b"fmt " and size >= 16:
+            return struct.unpack(end + "H", raw[pos + 22:pos + 24])[0]
+        pos += 8 + size + (size & 1)
+    raise DataError(f"{path}: WAV file has no 'fmt ' chunk; re-export it as PCM WAV")
+
+
+def read_samples(path, arithmetic: Arithmetic, sample_rate_hz: float | None = None) -> np.ndarray:
+    """Read a mono input file as data words (int64) or float32 samples.
+
+    Parameters
+    ----------
+    path : path-like
+        ``.wav`` or ``.txt`` (see the module docstring).
+    arithmetic : Arithmetic
+        Gives the data word (or float32) the samples are converted to.
+    sample_rate_hz : float, optional
+        When given, a WAV file of another rate is an error.
+    """
+    path = Path(path)
+    kind = _kind(path, "input")
+    if not path.is_file():
+        raise DataError(f"{path}: input file not found")
+    if kind == "txt":
+        return _read_text(path, arithmetic)
+    try:
+        raw = path.read_bytes()
+    except OSError as e:
+        raise DataError(f"{path}: cannot read ({e.strerror or e})") from None
+    bits = _wav_bits(path, raw)
+    from scipy.io import wavfile
+
+    try:
+        import warnings
+
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", wavfile.WavFileWarning)
+            rate, data = wavfile.read(io.BytesIO(raw))
+    except (ValueError, EOFError, OSError, struct.error) as e:
+        raise DataError(f"{path}: unreadable WAV ({e}); give 16/24/32-bit integer or float PCM WAV") from None
+    if data.ndim == 2 and data.shape[1] == 1:
+        data = data[:, 0]
+    if data.ndim != 1:
+        raise DataError(f"{path}: WAV has {data.shape[1]} channels; the input must be mono (one signal feeds "
+                        "every channel): split or mix it down first")
+    if sample_rate_hz is not None and abs(rate - sample_rate_hz) > 1e-9 * sample_rate_hz:
+        raise DataError(f"{path}: WAV sample rate is {rate} Hz but the description is designed for "
+                        f"{sample_rate_hz:g} Hz; resample the input or design for {rate} Hz")
+    if data.dtype.kind == "f":
+        if not np.all(np.isfinite(data)):
+            raise DataError(f"{path}: float WAV contains NaN or infinity")
+        return _from_float(data.astype(np.float64), arithmetic)
+    if data.dtype in (np.int16, np.int32):
+        pcm_bits = 16 if data.dtype == np.int16 else 32  # 24-bit arrives left-justified in int32
+        return _from_pcm(data.astype(np.int64), pcm_bits, arithmetic)
+    raise DataError(f"{path}: {bits}-bit {data.dtype} WAV is not supported; use 16, 24 or 32-bit integer "
+                    "or float PCM")
+
+
+def _from_pcm(pcm: np.ndarray, bits: int, ar: Arithmetic) -> np.ndarray:
+    if ar.is_float:
+        return (pcm / float(1 << (bits - 1))).astype(np.float32)
+    w = ar.data.width
+    if w >= bits:
+        return pcm << (w - bits)
+    return fit_word(round_shift(pcm, bits - w, ar.rounding), w, "saturate")
+
+
+def _from_float(x: np.ndarray, ar: Arithmetic) -> np.ndarray:
+    if ar.is_float:
+        return x.astype(np.float32)
+    w = ar.data.width
+    r = round_real(np.ldexp(x, w - 1), ar.rounding)
+    if w <= 53:
+        return np.clip(r, ar.data.min_int, ar.data.max_int).astype(np.int64)
+    return np.array([fit_word(int(v), w, "saturate") for v in r], dtype=np.int64)
+
+
+def _read_text(path: Path, ar: Arithmetic) -> np.ndarray:
+    try:
+        text = path.read_text(encoding="utf-8")
+    except (OSError, UnicodeDecodeError) as e:
+        raise DataError(f"{path}: cannot read as UTF-8 text ({e})") from None
+    vals: list = []
+    for lineno, line in enumerate(text.splitlines(), 1):
+        body = line.split("#", 1)[0].strip()
+        if not body:
+            continue
+        parts = body.split()
+        if len(parts) != 1:
+            raise DataError(f"{path}:{lineno}: {len(parts)} values on one line; the input takes one sample per "
+                            "line")
+        tok = parts[0]
+        if ar.is_float:
+            try:
+                v = float(tok)
+            except ValueError:
+                raise DataError(f"{path}:{lineno}: '{tok}' is not a number") from None
+            if not np.isfinite(v):
+                raise DataError(f"{path}:{lineno}: '{tok}' is not finite")
+            vals.append(v)
+            continue
+        try:
+            v = int(tok, 10)
+        except ValueError:
+            raise DataError(f"{path}:{lineno}: '{tok}' is not an integer data word; write raw {ar.data} words "
+                            f"({ar.data.min_int} .. {ar.data.max_int}), one per line") from None
+        if not ar.data.min_int <= v <= ar.data.max_int:
+            raise DataError(f"{path}:{lineno}: {v} is outside the {ar.data} data word "
+                            f"({ar.data.min_int} .. {ar.data.max_int})")
+        vals.append(v)
+    if ar.is_float:
+        return np.array(vals, dtype=np.float32)
+    return np.array(vals, dtype=np.int64)
+
+
+def format_samples(path, outputs: dict[str, np.ndarray], arithmetic: Arithmetic, sample_rate_hz: float) -> bytes:
+    """The bytes of the output file for *outputs* (channel name -> samples, same length)."""
+    path = Path(path)
+    kind = _kind(path, "output")
+    names = list(outputs)
+    if not names:
+        raise DataError(f"{path}: no channel to write")
+    cols = [np.asarray(outputs[n]) for n in names]
+    if kind == "txt":
+        lines = ["# channels: " + " ".join(names)]
+        if arithmetic.is_float:
+            fmt = lambda v: np.format_float_positional(np.float32(v), unique=True, trim="-")  # noqa: E731
+            strs = [[fmt(v) for v in c] for c in cols]
+        else:
+            strs = [[str(int(v)) for v in c] for c in cols]
+        lines += [" ".join(row) for row in zip(*strs)]
+        return ("\n".join(lines) + "\n").encode("ascii")
+    if arithmetic.is_float:
+        data = np.stack(cols, axis=1).astype(np.float32)
+    else:
+        w = arithmetic.data.width
+        if w > 32:
+            raise DataError(f"{path}: {arithmetic.data} data words are wider than 32 bits and cannot be written "
+                            "to WAV; write a .txt file instead")
+        cont, dt = (16, np.int16) if w <= 16 else (32, np.int32)
+        data = (np.stack(cols, axis=1).astype(np.int64) << (cont - w)).astype(dt)
+    if data.shape[1] == 1:
+        data = data[:, 0]
+    rate = int(round(sample_rate_hz))
+    from scipy.io import wavfile
+
+    buf = io.BytesIO()
+    wavfile.write(buf, rate, data)
+    return buf.getvalue()
+
+
+def write_samples(path, outputs: dict[str, np.ndarray], arithmetic: Arithmetic, sample_rate_hz: float) -> None:
+    """Write *outputs* to *path* atomically (no half-written file on any error)."""
+    from .fileio import write_atomic
+
+    payload = format_samples(path, outputs, arithmetic, sample_rate_hz)
+    try:
+        write_atomic(Path(path), payload)
+    except OSError as e:
+        raise DataError(f"{path}: cannot write ({e.strerror or e})") from None
