@@ -16,6 +16,7 @@ import math
 import numpy as np
 
 from ..blocks import DelayBlock, FirBlock, GainBlock, SosBlock
+from ..spec import MAX_DELAY_SAMPLES, MAX_IIR_ORDER
 from .acoustics import AIR_TEMPERATURE_RANGE_C, DEFAULT_AIR_TEMPERATURE_C, speed_of_sound
 from .stage import StageContext, StageResult
 
@@ -77,13 +78,14 @@ def design_delay(ctx: StageContext) -> StageResult:
         c = speed_of_sound(t)
         exact = metres / c * fs
         what = f"{metres:g} m at {t:g} C (c = {c:.3f} m/s)"
-    if exact > (1 << 20):
-        raise ctx.error(f"{what} is {exact:.0f} samples; at most {1 << 20} samples are accepted", which)
+    if exact > MAX_DELAY_SAMPLES:
+        raise ctx.error(f"{what} is {exact:.0f} samples; at most {MAX_DELAY_SAMPLES} samples are accepted", which)
     n = int(math.floor(exact + 0.5))
     residual = exact - n
-    text = f"delay {what} -> {n} samples"
-    if which != "samples":
-        text += f" (residual {residual:+.3f} sample)"
+    if which == "samples":
+        text = f"delay {n} samples"
+    else:
+        text = f"delay {what} -> {n} samples (residual {residual:+.3f} sample)"
     return StageResult(blocks=(DelayBlock(n, label=text),), text=text, latency_samples=float(n))
 
 
@@ -158,9 +160,9 @@ def design_transfer(ctx: StageContext) -> StageResult:
         raise ctx.error("a[0] is 0; the first denominator coefficient must be non-zero (normally 1)", "a")
     if not np.any(b):
         raise ctx.error("the numerator is all zeros; the stage would output silence", "b")
-    if len(b) > 2 * 40 + 1:
-        raise ctx.error(f"{len(b)} numerator coefficients; at most 81 are accepted (use kind = \"fir\" "
-                        "for long FIR filters)", "b")
+    if len(b) > 2 * MAX_IIR_ORDER + 1:
+        raise ctx.error(f"{len(b)} numerator coefficients; at most {2 * MAX_IIR_ORDER + 1} are accepted "
+                        "(use kind = \"fir\" for long FIR filters)", "b")
     scale = a[0]
     b, a = b / scale, a / scale
     if not (np.all(np.isfinite(b)) and np.all(np.isfinite(a))):

@@ -67,7 +67,7 @@ def cookbook_biquad(kind: str, f0: float, fs: float, alpha: float, gain_db: floa
     --------
     >>> import math
     >>> row = cookbook_biquad("peaking", 1000, 48000, math.sin(2*math.pi/48)/2, 6.0)
-    >>> [round(x, 8) for x in row]
+    >>> [round(float(x), 8) for x in row]
     [1.04395309, -1.89532072, 0.86772228, 1.0, -1.89532072, 0.91167537]
     """
     w0 = 2.0 * math.pi * f0 / fs

@@ -138,6 +138,15 @@ def design_fir(ctx: StageContext) -> StageResult:
         if given < 3:
             raise ctx.error("use at least 3 taps", "taps")
     edges, desired, passbands = _bands(band, wp, ws, nyq)
+    # The optimal methods design against equal transition widths (the wider one
+    # moved in to match the narrower): an unequal, unconstrained transition band
+    # lets the response overshoot there.  This only tightens the requirement.
+    if band == "bandpass":
+        design_edges = _bands(band, wp, (wp[0] - width, wp[1] + width), nyq)[0]
+    elif band == "bandstop":
+        design_edges = _bands(band, wp, (wp[0] + width, wp[1] - width), nyq)[0]
+    else:
+        design_edges = edges
     warns: list[str] = []
 
     def fix_parity(n: int) -> int:
@@ -179,10 +188,10 @@ def design_fir(ctx: StageContext) -> StageResult:
                 warnings.simplefilter("always")
                 try:
                     if method == "equiripple":
-                        h = signal.remez(n_taps, edges, desired, weight=weights, fs=fs, maxiter=50)
+                        h = signal.remez(n_taps, design_edges, desired, weight=weights, fs=fs, maxiter=50)
                     else:
                         pairs = [g for d in desired for g in (d, d)]
-                        h = signal.firls(n_taps, edges, pairs, weight=weights, fs=fs)
+                        h = signal.firls(n_taps, design_edges, pairs, weight=weights, fs=fs)
                 except (ValueError, np.linalg.LinAlgError) as e:
                     return None, str(e)
             if not np.all(np.isfinite(h)):
@@ -217,6 +226,10 @@ def design_fir(ctx: StageContext) -> StageResult:
         how = ("equiripple (Parks-McClellan)" if method == "equiripple" else "least squares") + f", {n} taps"
     if not np.all(np.isfinite(taps)):
         raise ctx.error("the Kaiser design is not numerically sound; change the edges or give taps")
+    peak = float(np.max(np.abs(signal.freqz(taps, 1.0, worN=4096, fs=fs)[1])))
+    if 20 * math.log10(peak) > 20 * math.log10(1 + delta_p) + 0.1:
+        warns.append(f"the response overshoots to {20 * math.log10(peak):+.1f} dB in a transition band; "
+                     "narrow the transition bands or change the method")
     if n > MANY_TAPS:
         warns.append(f"{n} taps is a long filter for an embedded target; consider a wider transition band "
                      "or a multi-stage design")
