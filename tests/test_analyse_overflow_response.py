@@ -41,11 +41,24 @@ def test_peak_gains_of_a_first_order_section():
 @pytest.mark.parametrize("gain, overflows", [(0.45, False), (0.55, True)])
 def test_worst_case_input_through_the_engine(gain, overflows):
     # l1 scaling prevents overflow for every bounded input; above it the sign pattern of the
-    # time-reversed impulse response drives the node past full scale (Jackson 1970)
-    res = analyse_overflow(first_order(0.5, gain))
-    assert res.runs >= 1
+    # time-reversed impulse response drives the node past full scale (Jackson 1970).  A final
+    # gain of 1/2 keeps the channel output inside full scale, so the overflow is internal.
+    p = first_order(0.5, gain)
+    p = ChannelProgram("f", 48000.0, AR, p.ops + (GainOp(coef=1 << 13),))
+    res = analyse_overflow(p)
+    assert res.runs >= 1 and res.input_peak == 1.0
     assert (res.overflow_count > 0) == overflows
     assert (res.headroom_bits < 0) == overflows
+
+
+def test_design_gain_above_one_scales_the_worst_case_input():
+    # the channel's own peak gain is 1.1: inputs are limited to where the ideal output stays
+    # inside full scale, so only the full-scale runs overflow (the design asks for that gain)
+    res = analyse_overflow(first_order(0.5, 0.55))
+    assert res.output_peak_gain == pytest.approx(1.1, rel=1e-3)
+    assert res.input_peak == pytest.approx(1 / 1.1, rel=1e-3) and res.input_peak < 1 / 1.1
+    assert res.overflow_count == 0
+    assert res.overflow_count_full_scale > 0
 
 
 def test_passband_deviation_against_scipy():

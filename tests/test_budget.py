@@ -24,7 +24,8 @@ def fake_metrics(status="none", amplitude=None, bound=3.0, complete=True, overfl
                                                    overflow_note="x")])
     resp = SimpleNamespace(stable=True, max_pole_radius=0.9, passband_deviation_db=0.01, passband_rule="r",
                            stopband_attenuation_db=None, stopband_rule="s", float_stopband_attenuation_db=None)
-    ov = SimpleNamespace(overflow_count=overflow_count, runs=1, worst_node="op 1 output", headroom_bits=0.5)
+    ov = SimpleNamespace(overflow_count=overflow_count, runs=1, worst_node="op 1 output", headroom_bits=0.5,
+                         input_peak=1.0, output_peak_gain=0.9, overflow_count_full_scale=overflow_count)
     return SimpleNamespace(response=resp, limit_cycles=lc, overflow=ov, noise=None, measured=None,
                            is_float=False, overflow_mode="saturate")
 

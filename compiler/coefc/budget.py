@@ -14,8 +14,9 @@ check                       passes when
 ``limit_cycles``            ``"none"``: a proven ``none``; a number N: a cycle found by an
                             exhaustive search of amplitude <= N, otherwise the rigorous
                             bound <= N
-``overflow``                ``"none"``: no overflow event under the worst-case inputs and no
-                            overflow oscillation found; ``"allow"``: always (with a caution)
+``overflow``                ``"none"``: no overflow event under the worst-case inputs (at the
+                            largest level whose ideal output stays within full scale) and
+                            no overflow oscillation found; ``"allow"``: always (with a caution)
 ==========================  =====================================================
 
 Levels in dBFS follow AES17 (0 dBFS = RMS of a full-scale sine, full scale = 1.0).
@@ -274,8 +275,13 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
         else:
             ok = (n == 0) and osc != "found"
         checks.append(Check("overflow", n, lim, ok))
-        parts = [f"{_fmt(n)} overflow events under worst-case inputs ({ov.runs} runs), "
+        at = "full scale" if ov.input_peak >= 1.0 else (
+            f"{20 * math.log10(ov.input_peak):.2f} dBFS peak, where the design's own output "
+            f"(peak gain {ov.output_peak_gain:.3g}) reaches full scale" if ov.input_peak > 0 else "no legal level")
+        parts = [f"{_fmt(n)} overflow events under worst-case inputs at {at} ({ov.runs} runs); "
                  f"worst node {ov.worst_node} headroom {_fmt(ov.headroom_bits, ' bits')}"]
+        if ov.input_peak < 1.0 and ov.overflow_count_full_scale:
+            parts.append(f"{ov.overflow_count_full_scale} events at full scale")
         if osc == "found":
             bad = next(s for s in lc.sections if s.overflow_status == "found")
             parts.append(f"overflow oscillation in op {bad.op_index + 1}: {bad.overflow_note}")

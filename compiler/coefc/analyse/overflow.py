@@ -10,8 +10,12 @@ accumulator) the peak gain from the channel input is given two ways:
 
 Headroom in bits is ``log2(node full scale / peak)``, negative when a node can
 overflow.  The worst-case input for a node is the sign pattern of its
-time-reversed impulse response at full scale; driven through the bit-true engine
-it shows how many overflow (saturation or wrap) events the chip really sees.
+time-reversed impulse response; driven through the bit-true engine it shows how
+many overflow (saturation or wrap) events the chip really sees.  Its peak is the
+largest input for which the float design's own output cannot exceed full scale
+(full scale itself when the channel's ||h||_1 <= 1), so that a count above zero
+is an overflow the fixed-point realisation adds; the same runs at full scale are
+reported as well.
 
 References
 ----------
@@ -56,8 +60,11 @@ class OverflowAnalysis:
     headroom_bits: float | None  # smallest worst-case headroom over all nodes
     headroom_bits_sine: float | None
     worst_node: str | None
-    overflow_count: int | None  # events in the worst-case runs (None: not run)
+    overflow_count: int | None  # events in the worst-case runs at the legal input peak (None: not run)
     runs: int  # worst-case sequences driven
+    input_peak: float = 1.0  # peak of those runs, fraction of full scale
+    output_peak_gain: float | None = None  # ||h||_1 from the input to the channel output
+    overflow_count_full_scale: int | None = None  # the same runs at full scale
 
 
 def _headroom(fs: float, peak: float) -> float:
@@ -86,15 +93,28 @@ def worst_case_input(h: np.ndarray, peak_int: int, min_int: int) -> np.ndarray:
     return x
 
 
+def roundoff_bound_lsb(models: list[OpModel], n: int, rounding: str) -> float:
+    """Largest roundoff error at the output, in LSB: sum of e_max * ||g_j||_1 over rounding nodes."""
+    from .limitcycles import error_interval
+    from .linear import noise_impulse
+
+    c, r = error_interval(rounding)
+    return sum((abs(c) + r) * float(np.sum(np.abs(noise_impulse(models, m.index, n)))) for m in models if m.k > 0)
+
+
 def analyse_overflow(program: ChannelProgram, *, run_engine: bool = True,
                      models: list[OpModel] | None = None, n: int | None = None,
                      max_runs: int = 16) -> OverflowAnalysis:
     """Peak gains of every node and overflow events under worst-case inputs.
 
     One worst-case sequence is driven per distinct node (up to *max_runs*, worst
-    headroom first); ``overflow_count`` adds up the saturation/wrap events of every
-    operation (``Trace.overflow_counts``) and accumulator wraps
-    (``Trace.acc_overflow_counts``) over those runs.
+    headroom first).  Its peak is the largest for which the channel's own output
+    cannot pass full scale -- ``(1 - roundoff bound) / ||h_out||_1``, or full scale
+    when that is larger -- so every event counted is an overflow the realisation
+    adds, not one the design itself asks for; ``overflow_count`` adds up the
+    saturation/wrap events (``Trace.overflow_counts``) and accumulator wraps
+    (``Trace.acc_overflow_counts``) of every operation over those runs.  The same
+    runs at full scale give ``overflow_count_full_scale``.
     """
     ar = program.arithmetic
     models = models if models is not None else op_models(program)
@@ -106,12 +126,18 @@ def analyse_overflow(program: ChannelProgram, *, run_engine: bool = True,
     worst = min(nodes, key=lambda g: g.headroom_bits)
     hb = min(g.headroom_bits for g in nodes)
     hs = min(g.headroom_bits_sine for g in nodes)
-    count = None
+    out_gain = float(np.sum(np.abs(imps[-1]))) if imps else None
+    count = full = None
     runs = 0
+    peak = 1.0
     if run_engine and not ar.is_float:
         from ..simulate import simulate
 
-        count = 0
+        fs_out = models[-1].full_scale
+        margin = roundoff_bound_lsb(models, n, ar.rounding) * ar.data.lsb
+        if out_gain and out_gain * (1.0 + margin) > fs_out:
+            peak = max(0.0, (fs_out - margin) / out_gain)
+        count = full = 0
         done = set()
         for g in sorted(nodes, key=lambda g: g.headroom_bits):
             if g.op_index in done or runs >= max_runs:
@@ -123,15 +149,21 @@ def analyse_overflow(program: ChannelProgram, *, run_engine: bool = True,
             if len(nz) == 0:
                 continue
             h = h[: nz[-1] + 1]
-            x = worst_case_input(h, ar.data.max_int, ar.data.min_int)
-            x = np.concatenate([x, np.zeros(64, dtype=np.int64)])
-            tr = simulate(program, x, trace=True)
-            count += int(sum(int(c) for c in tr.overflow_counts))
-            count += int(sum(int(c) for c in tr.acc_overflow_counts))
+            for amp in ((peak, 1.0) if peak < 1.0 else (1.0,)):
+                hi = int(np.floor(amp * ar.data.max_int))
+                lo = ar.data.min_int if amp >= 1.0 else -hi
+                x = worst_case_input(h, hi, lo)
+                x = np.concatenate([x, np.zeros(64, dtype=np.int64)])
+                tr = simulate(program, x, trace=True)
+                ev = int(sum(int(c) for c in tr.overflow_counts)) + int(sum(int(c) for c in tr.acc_overflow_counts))
+                if amp == peak:
+                    count += ev
+                if amp == 1.0:
+                    full += ev
             runs += 1
     elif ar.is_float:
-        count = 0  # float32 words do not overflow below 3.4e38
-    return OverflowAnalysis(tuple(nodes), _finite(hb), _finite(hs), worst.label, count, runs)
+        count = full = 0  # float32 words do not overflow below 3.4e38
+    return OverflowAnalysis(tuple(nodes), _finite(hb), _finite(hs), worst.label, count, runs, peak, out_gain, full)
 
 
 def _finite(v: float) -> float | None:
