@@ -54,6 +54,7 @@ class OpModel:
     k: int
     full_scale: float
     acc_full_scale: float | None
+    structure: str = ""
 
     @property
     def recursive(self) -> bool:
@@ -108,7 +109,7 @@ def op_models(program: ChannelProgram) -> list[OpModel]:
             k = 0 if ar.is_float else effective_drop(tuple(op.b) + tuple(op.a), fc - op.shift)
             structure = op.structure or ar.structure
             nb = np.array([1.0, -1.0]) if structure == "df1ef" else one
-            out.append(OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift)))
+            out.append(OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift), structure))
         elif isinstance(op, FirOp):
             b = np.array([phys(c, op.shift) for c in op.taps])
             k = 0 if ar.is_float else effective_drop(op.taps, fc - op.shift)

@@ -40,7 +40,7 @@ class NodeGain:
     """Peak gains of one node (full scale of the input = 1.0)."""
 
     op_index: int  # 0-based
-    node: str  # "output" or "accumulator"
+    node: str  # "output", "accumulator", or "state 1"/"state 2" (tdf2 states, accumulator width)
     l1: float
     linf: float
     full_scale: float
@@ -71,17 +71,38 @@ def _headroom(fs: float, peak: float) -> float:
     return math.inf if peak <= 0 else math.log2(fs / peak)
 
 
+def _node_responses(models: list[OpModel], impulses: list[np.ndarray]):
+    """(op index, node name, impulse response from the channel input, full scale) of every node."""
+    out = []
+    prev = None
+    for m, h in zip(models, impulses):
+        out.append((m.index, "output", h, m.full_scale))
+        if m.acc_full_scale is not None and m.kind != "delay":
+            out.append((m.index, "accumulator", h, m.acc_full_scale))
+            if m.kind == "section" and m.structure == "tdf2":
+                x = prev if prev is not None else _unit(len(h))
+                # S2 = b2 x - a2 y;  S1 = b1 x - a1 y + S2[n-1]  (program.py, tdf2)
+                s2 = m.b[2] * x - m.a[2] * h
+                s1 = m.b[1] * x - m.a[1] * h + np.concatenate([[0.0], s2[:-1]])
+                out.append((m.index, "state 1", s1, m.acc_full_scale))
+                out.append((m.index, "state 2", s2, m.acc_full_scale))
+        prev = h
+    return out
+
+
+def _unit(n: int) -> np.ndarray:
+    x = np.zeros(n)
+    x[0] = 1.0
+    return x
+
+
 def node_gains(models: list[OpModel], impulses: list[np.ndarray]) -> list[NodeGain]:
     out = []
-    for m, h in zip(models, impulses):
+    for idx, name, h, fs in _node_responses(models, impulses):
         l1 = float(np.sum(np.abs(h)))
         nfft = 1 << max(12, int(np.ceil(np.log2(len(h)))) + 2)
         linf = float(np.max(np.abs(np.fft.rfft(h, nfft))))
-        out.append(NodeGain(m.index, "output", l1, linf, m.full_scale,
-                            _headroom(m.full_scale, l1), _headroom(m.full_scale, linf)))
-        if m.acc_full_scale is not None and m.kind != "delay":
-            out.append(NodeGain(m.index, "accumulator", l1, linf, m.acc_full_scale,
-                                _headroom(m.acc_full_scale, l1), _headroom(m.acc_full_scale, linf)))
+        out.append(NodeGain(idx, name, l1, linf, fs, _headroom(fs, l1), _headroom(fs, linf)))
     return out
 
 
@@ -139,11 +160,13 @@ def analyse_overflow(program: ChannelProgram, *, run_engine: bool = True,
             peak = max(0.0, (fs_out - margin) / out_gain)
         count = full = 0
         done = set()
+        resp = {(i, name): h for i, name, h, _ in _node_responses(models, imps)}
         for g in sorted(nodes, key=lambda g: g.headroom_bits):
-            if g.op_index in done or runs >= max_runs:
+            key = (g.op_index, "output" if g.node == "accumulator" else g.node)
+            if key in done or runs >= max_runs:
                 continue
-            done.add(g.op_index)
-            h = imps[g.op_index]
+            done.add(key)
+            h = resp[(g.op_index, g.node)]
             # trim the negligible tail: the sign of a 1e-13 term changes nothing that matters
             nz = np.nonzero(np.abs(h) > 1e-12 * np.max(np.abs(h)))[0] if np.any(h) else []
             if len(nz) == 0:
