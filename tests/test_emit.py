@@ -243,3 +243,16 @@ def test_template_errors_name_file_and_line():
         real = type(real)(real.design, t, real.programs)
         with pytest.raises(TargetError, match=pat):
             render(real, None, header_name="x.h")
+
+
+def test_unbudgeted_overflow_and_limit_cycles_are_noted():
+    prog = ChannelProgram("woofer", 48000.0, MCU32, (SEC,))
+    report = SimpleNamespace(ok=True, cautions=(), channels=[SimpleNamespace(
+        name="woofer", metrics={"overflow_count": 3, "limit_cycle": {"status": "found"}},
+        checks=[("passband_deviation_db", 0.01, 0.05, True)])])
+    text = render(fake_realisation([prog], "mcu32"), report, header_name="b.h")["b.h"]
+    assert "NOTE 'woofer': overflow under the worst-case input and limit cycles found" in text
+    report.channels[0].checks.append(("overflow", 0, "none", True))
+    report.channels[0].metrics["overflow_count"] = 0
+    text = render(fake_realisation([prog], "mcu32"), report, header_name="b.h")["b.h"]
+    assert "NOTE 'woofer': limit cycles found" in text and "overflow under" not in text

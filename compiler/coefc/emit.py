@@ -525,9 +525,19 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
             if isinstance(lc, dict) and "status" in lc:
                 shown.append(f"limit cycles {lc['status']}")
             banner_metrics += _wrap(f"'{p.name}': {summary}; " + "; ".join(shown), indent="    ")
-            for name, value, limit, ok in _check_rows(rc):
+            rows = _check_rows(rc)
+            for name, value, limit, ok in rows:
                 if not ok:
                     banner_metrics.append(f"  OVER BUDGET '{p.name}': {name} = {_fmt(value)} (limit {_fmt(limit)})")
+            checked = {r[0] for r in rows}
+            risks = []
+            if (metrics.get("overflow_count") or 0) > 0 and "overflow" not in checked:
+                risks.append("overflow under the worst-case input")
+            if isinstance(lc, dict) and lc.get("status") in ("found", "unproven") and "limit_cycles" not in checked:
+                risks.append(f"limit cycles {lc['status']}")
+            if risks:
+                banner_metrics += _wrap(f"  NOTE '{p.name}': {' and '.join(risks)}, which the budget does not "
+                                        "limit; see the caution below", indent="    ")
         else:
             banner_metrics.append(f"'{p.name}': {summary}")
 
@@ -556,6 +566,8 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
     lines += _wrap("arithmetic   " + fmt_text, indent="             ")
     lines += [f"verdict      {verdict}", "channels:"]
     lines += ["  " + m for m in banner_metrics]
+    for c in getattr(report, "cautions", ()) or ():
+        lines += _wrap(f"Caution from the check: {c}", indent="  ")
     lines += ["Levels in dBFS: 0 dBFS is the RMS level of a full-scale sine (AES17)."]
     lines += _wrap(CAUTION)
     banner = [(" * " + line).rstrip() for line in lines]
