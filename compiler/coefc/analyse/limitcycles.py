@@ -417,25 +417,25 @@ def _walk_ef(y1, y2, e, a1, a2, k, arith, limit):
 
 def _sampled_ef(a1, a2, k, arith, B, starts, steps, seed):
     """Random (y1, y2, E) states of a df1ef section; the largest cycle they settle in, if any."""
+    if arith.acc_bits > 64:
+        return None
     rng = np.random.default_rng(seed)
+    y1 = rng.integers(-B, B + 1, starts).astype(np.int64)
+    y2 = rng.integers(-B, B + 1, starts).astype(np.int64) if a2 else np.zeros(starts, np.int64)
+    e = rng.integers(-(1 << (k - 1)), 1 << (k - 1), starts).astype(np.int64)
+    for _ in range(steps):
+        y0, e = zero_input_step_ef(y1, y2, e, a1, a2, k, arith)
+        y1, y2 = y0, (y1 if a2 else np.zeros_like(y1))
+    alive = (y1 != 0) | (y2 != 0)
+    if not np.any(alive):
+        return None
+    finals = sorted(set(zip(y1[alive].tolist(), y2[alive].tolist(), e[alive].tolist())),
+                    key=lambda p: -max(abs(p[0]), abs(p[1])))
     best = None
-    states = [(int(rng.integers(-B, B + 1)), int(rng.integers(-B, B + 1)),
-               int(rng.integers(-(1 << (k - 1)), 1 << (k - 1)))) for _ in range(min(starts, 64))]
-    for y1, y2, e in states:
-        seen = {}
-        path = []
-        s = (y1, y2, e)
-        for i in range(steps):
-            if s in seen:
-                cyc = path[seen[s]:]
-                am = max(abs(p[0]) for p in cyc)
-                if am and (best is None or am > best[1]):
-                    best = (len(cyc), am, max(cyc, key=lambda p: abs(p[0])))
-                break
-            seen[s] = i
-            path.append(s)
-            y0, e = step_ef_int(s[0], s[1], s[2], a1, a2, k, arith)
-            s = (y0, s[0], e)
+    for s in finals[:8]:
+        per, am, cyc = _walk_ef(s[0], s[1], s[2], a1, a2, k, arith, 4 * steps)
+        if per and am and (best is None or am > best[1]):
+            best = (per, am, max(cyc, key=lambda p: abs(p[0])))
     if best is None:
         return None
     return dict(amplitude_lsb=int(best[1]), period=int(best[0]), start_state=tuple(int(v) for v in best[2]))
