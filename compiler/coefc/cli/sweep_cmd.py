@@ -1,0 +1,202 @@
+"""``coefc sweep FILE``: word-length ranges in, a trade-off table (and plot) out.
+
+Exit codes: 0 when at least one configuration passes the budget (or, with
+``--minimise``, every channel found passing widths), 1 when none does, 2 bad input.
+"""
+
+from __future__ import annotations
+
+import csv
+import io
+import sys
+from pathlib import Path
+from typing import Annotated, Optional
+
+import typer
+
+from . import app, options
+from .check_cmd import LimitCycles, MaxDeviation, MaxNoise, MinStopband, OverflowBudget
+
+Widths = "Word lengths in bits: LO:HI, LO:HI:STEP or W1,W2,..."
+
+
+@app.command()
+def sweep(
+    file: Annotated[Path, typer.Argument(help="Filter description (.toml).")],
+    target: Annotated[Optional[str], typer.Option("--target", help="Target name(s), comma separated.")] = None,
+    target_dir: options.TargetDirs = None,
+    data: Annotated[Optional[str], typer.Option("--data", help=f"Data word lengths. {Widths} (default 16:32:4).")] = None,
+    coef: Annotated[Optional[str], typer.Option("--coef", help=f"Coefficient word lengths. {Widths} (default 16:32:4).")] = None,
+    acc: Annotated[Optional[str], typer.Option("--acc", help=f"Accumulator widths. {Widths} (default: the target's).")] = None,
+    structure: Annotated[Optional[str], typer.Option("--structure", help="Structure(s), comma separated: df1, tdf2, df1ef.")] = None,
+    rounding: options.Rounding = None,
+    overflow: options.Overflow = None,
+    scaling: options.Scaling = None,
+    channel: options.Channel = None,
+    minimise: Annotated[bool, typer.Option("--minimise", help="Find the smallest passing widths per channel by a monotone search.")] = False,
+    measure_noise: Annotated[bool, typer.Option("--measure-noise", help="Also measure noise with the bit-true engine (slower).")] = False,
+    json_out: options.JsonOut = None,
+    csv_out: Annotated[Optional[str], typer.Option("--csv", help="Write one CSV row per configuration and channel to PATH ('-' for stdout).")] = None,
+    plot_out: Annotated[Optional[Path], typer.Option("--plot", help="Draw each metric against word length to PATH (.png or .svg; needs matplotlib).")] = None,
+    max_passband_deviation_db: MaxDeviation = None,
+    min_stopband_attenuation_db: MinStopband = None,
+    max_noise_dbfs: MaxNoise = None,
+    limit_cycles: LimitCycles = None,
+    overflow_budget: OverflowBudget = None,
+) -> None:
+    """Word-length trade-off table; the cheapest passing configuration is marked.
+
+    Cheapest = fewest data plus coefficient bits, ties broken by memory.  Q formats
+    keep the target's integer bits (sign bit counted in m).  Noise in dBFS per AES17.
+    """
+    from ..analyse import AnalysisOptions
+    from ..api import load
+    from ..budget import apply_overrides
+    from ..errors import CoefcError
+    from ..sweep import Sweeper, minimise as run_minimise, parse_names, parse_widths, plot
+
+    if plot_out is not None and plot_out.suffix.lower() not in (".png", ".svg"):
+        raise CoefcError(f"{plot_out}: the plot is written as .png or .svg; choose one of those suffixes")
+    datas = parse_widths(data or "16:32:4", "--data")
+    coefs = parse_widths(coef or "16:32:4", "--coef")
+    accs = parse_widths(acc, "--acc")
+    structures = parse_names(structure)
+    targets = parse_names(target) or (None,)
+    loaded = load(file)
+    desc = loaded.description
+    budget = apply_overrides(desc.budget, passband_deviation_db=max_passband_deviation_db,
+                             stopband_attenuation_db=min_stopband_attenuation_db,
+                             output_noise_dbfs=max_noise_dbfs, limit_cycles=limit_cycles,
+                             overflow=overflow_budget)
+    design = loaded.design(channel or None)
+    sweeper = Sweeper(design, budget, options.overrides(rounding=rounding, overflow=overflow, scaling=scaling),
+                      target_dir or (), AnalysisOptions(measure_noise=measure_noise))
+    configs, skipped = sweeper.configs(targets, structures, accs, datas, coefs)
+    if not configs:
+        raise CoefcError(f"{file}: no configuration to evaluate ({'; '.join(skipped) or 'empty ranges'})")
+
+    with _progress() as tick:
+        if minimise:
+            found = []
+            groups = sorted({(c.target, c.structure, c.acc_bits) for c in configs})
+            total = len(groups) * len(design.channels)
+            for gi, (t, st, a) in enumerate(groups):
+                for ci, ch in enumerate(design.channels):
+                    found.append(run_minimise(sweeper, ci, ch.name, t, st, a, datas, coefs))
+                    tick(gi * len(design.channels) + ci + 1, total)
+            result = None
+        else:
+            result = sweeper.run(configs, skipped, progress=tick)
+
+    if minimise:
+        if json_out != "-":
+            _print_minimise(found)
+        options.write_json({"source": desc.source, "minimise": [m.to_json() for m in found]}, json_out)
+        ok = all(m.data_bits is not None or m.acc_bits is None for m in found)
+    else:
+        if json_out != "-" and csv_out != "-":
+            _print_table(result)
+        options.write_json(result.to_json(), json_out)
+        if csv_out:
+            buf = io.StringIO()
+            csv.writer(buf, lineterminator="\n").writerows(result.csv_rows())
+            if csv_out == "-":
+                sys.stdout.write(buf.getvalue())
+            else:
+                from ..fileio import write_atomic
+
+                write_atomic(Path(csv_out), buf.getvalue())
+        if plot_out is not None:
+            plot(result, plot_out)
+        ok = result.cheapest() is not None
+    if not ok:
+        raise typer.Exit(1)
+
+
+class _progress:
+    """A rich progress bar on stderr when it is a terminal; silent otherwise."""
+
+    def __enter__(self):
+        if not sys.stderr.isatty():
+            return lambda done, total: None
+        from rich.console import Console
+        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeRemainingColumn
+
+        self._p = Progress("evaluating", BarColumn(), MofNCompleteColumn(), TimeRemainingColumn(),
+                           console=Console(stderr=True), transient=True)
+        self._p.start()
+        self._task = self._p.add_task("sweep", total=None)
+
+        def tick(done, total):
+            self._p.update(self._task, completed=done, total=total)
+
+        return tick
+
+    def __exit__(self, *exc):
+        if hasattr(self, "_p"):
+            self._p.stop()
+        return False
+
+
+def _fmt(v, spec=".3g") -> str:
+    if v is None:
+        return "-"
+    return format(v, spec)
+
+
+_SHORT = {"passband_deviation_db": "passband", "stopband_attenuation_db": "stopband",
+          "output_noise_dbfs": "noise", "limit_cycles": "limit-cycles", "overflow": "overflow",
+          "stable": "stability"}
+
+
+def _print_table(result) -> None:
+    from rich.console import Console
+    from rich.table import Table
+
+    best = result.cheapest()
+    con = Console(highlight=False, soft_wrap=False, width=max(140, Console().width))
+    t = Table(title=f"coefc sweep {result.source}", title_justify="left")
+    for col, just in (("target", "left"), ("struct", "left"), ("acc", "right"), ("data", "right"),
+                      ("coef", "right"), ("passband dev dB", "right"), ("stopband dB", "right"),
+                      ("noise dBFS", "right"), ("headroom bits", "right"), ("limit cycles", "left"),
+                      ("memory B", "right"), ("verdict", "left")):
+        t.add_column(col, justify=just)
+    for r in result.results:
+        c = r.config
+        lcs = sorted({ch.metrics.get("limit_cycle") or "-" for ch in r.channels})
+        failing = sorted({_SHORT.get(f, f) for ch in r.channels for f in ch.failing})
+        verdict = "pass" if r.ok else "fail: " + ",".join(failing)
+        if best is not None and r is best:
+            verdict += "  <- cheapest"
+        t.add_row(c.target, c.structure, _fmt(c.acc_bits, "d"), _fmt(c.data_bits, "d"), _fmt(c.coef_bits, "d"),
+                  _fmt(r.worst("passband_deviation_db")), _fmt(r.worst("stopband_attenuation_db"), ".1f"),
+                  _fmt(r.worst("output_noise_dbfs"), ".1f"), _fmt(r.worst("headroom_bits"), ".2f"),
+                  "/".join(lcs), str(r.memory_bytes), verdict,
+                  style=None if r.ok else "dim")
+    con.print(t)
+    print("Metrics are the worst over the channels (per-channel rows: --json or --csv); "
+          "noise in dBFS per AES17 (0 dBFS = RMS of a full-scale sine).")
+    for s in result.skipped:
+        print(f"skipped: {s}")
+    if best is None:
+        print("no configuration passes the budget")
+    else:
+        print(f"cheapest passing configuration: {best.config.label()} "
+              f"({best.bits} data+coef bits, {best.memory_bytes} bytes)")
+    for name, r in result.cheapest_per_channel().items():
+        print(f"  channel {name}: " + ("no passing configuration" if r is None else r.config.label()))
+
+
+def _print_minimise(found) -> None:
+    for m in found:
+        head = f"channel {m.channel} on {m.target} {m.structure}" + (f" acc {m.acc_bits}" if m.acc_bits else "")
+        if m.acc_bits is None and m.data_bits is None:
+            print(f"{head}: float32 target, no word lengths to minimise")
+            continue
+        if m.data_bits is None:
+            print(f"{head}: no passing widths in the ranges given ({m.evaluated} of {m.grid} evaluated)")
+        else:
+            print(f"{head}: smallest passing data {m.data_bits} bits, coef {m.coef_bits} bits "
+                  f"({m.evaluated} of {m.grid} grid points evaluated)")
+        for n in m.non_monotone:
+            print(f"  not monotone: {n}")

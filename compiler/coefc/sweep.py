@@ -1,0 +1,496 @@
+"""Word-length trade-offs: a design, a budget and ranges of word lengths in, a table out.
+
+For every configuration (target x structure x accumulator x data word x coefficient
+word) the channel is realised and analysed exactly as ``coefc check`` does, and the
+key metrics are compared with the budget.  The float design is made once and shared
+by every configuration; nothing that does not depend on the word lengths is redone.
+
+Word lengths are total widths in bits (sign included).  The integer part of each Q
+format stays what the target (or the description) uses, so with a target whose
+coefficients are Q2.30, ``--coef 16`` means Q2.14.
+
+Cost of a configuration, used to mark the cheapest passing one: the number of data
+plus coefficient bits, ties broken by the memory the channel needs (coefficient and
+state words, each in the smallest standard container of 8, 16, 32 or 64 bits).
+
+:func:`minimise` finds the smallest passing word lengths per channel without blind
+enumeration: for a fixed coefficient width the verdict is usually monotone in the
+data width and vice versa, so a saddleback walk over the grid (start at the widest
+data word and the narrowest coefficient word; a pass moves to a narrower data word,
+a fail to a wider coefficient word) visits at most ``n_data + n_coef`` points.  Where
+monotonicity might not hold -- coefficient quantisation can pass by luck at one width
+and fail at the next -- the neighbours one bit narrower of the winner are checked
+too, and any non-monotone pass found is reported and followed.
+
+References
+----------
+Saddleback search of a matrix sorted along both axes: D. Gries, *The Science of
+Programming*, Springer 1981 (from memory).
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+import re
+from collections.abc import Callable, Iterable, Sequence
+from dataclasses import dataclass, field
+
+from .budget import CheckReport, run_check
+from .errors import DescriptionError
+from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from .qformat import QFormat
+from .spec import Budget
+from .targets import Overrides
+
+METRICS = (
+    ("passband_deviation_db", "max"),
+    ("stopband_attenuation_db", "min"),
+    ("output_noise_dbfs", "max"),
+    ("headroom_bits", "min"),
+)
+
+_RANGE_RE = re.compile(r"^\s*(\d+)\s*:\s*(\d+)\s*(?::\s*(\d+)\s*)?$")
+
+
+def parse_widths(text: str | None, option: str) -> tuple[int, ...] | None:
+    """Parse ``"12:32"`` (inclusive), ``"12:32:4"`` (with a step) or ``"16,24,32"``.
+
+    >>> parse_widths("12:20:4", "--coef")
+    (12, 16, 20)
+    >>> parse_widths("32,16", "--data")
+    (16, 32)
+    """
+    if text is None:
+        return None
+    m = _RANGE_RE.match(text)
+    try:
+        if m:
+            lo, hi, step = int(m.group(1)), int(m.group(2)), int(m.group(3) or 1)
+            if lo > hi or step < 1:
+                raise ValueError
+            vals = tuple(range(lo, hi + 1, step))
+        else:
+            vals = tuple(sorted({int(v) for v in text.split(",") if v.strip()}))
+        if not vals or any(v < 2 or v > 64 for v in vals):
+            raise ValueError
+    except ValueError:
+        raise DescriptionError("<command line>", f"'{text}' is not a list of word lengths; write LO:HI, "
+                               "LO:HI:STEP or W1,W2,... with widths from 2 to 64 bits", key=option) from None
+    return tuple(sorted(set(vals)))
+
+
+def parse_names(text: str | None) -> tuple[str, ...] | None:
+    if text is None:
+        return None
+    names = tuple(dict.fromkeys(v.strip() for v in text.split(",") if v.strip()))
+    return names or None
+
+
+@dataclass(frozen=True, order=True)
+class Config:
+    """One point of the sweep; widths are ``None`` for float32 targets."""
+
+    target: str
+    structure: str
+    acc_bits: int | None
+    data_bits: int | None
+    coef_bits: int | None
+
+    def label(self) -> str:
+        if self.data_bits is None:
+            return f"{self.target} {self.structure} float32"
+        return f"{self.target} {self.structure} data {self.data_bits} coef {self.coef_bits} acc {self.acc_bits}"
+
+
+@dataclass(frozen=True)
+class ChannelRow:
+    """One channel at one configuration."""
+
+    channel: str
+    ok: bool
+    metrics: dict  # the METRICS plus limit_cycle status
+    failing: tuple[str, ...]  # names of the failing checks
+    memory_bytes: int
+    data: str | None  # Q formats as realised
+    coef: str | None
+
+
+@dataclass(frozen=True)
+class ConfigResult:
+    config: Config
+    channels: tuple[ChannelRow, ...]
+
+    @property
+    def ok(self) -> bool:
+        return all(c.ok for c in self.channels)
+
+    @property
+    def bits(self) -> int:
+        c = self.config
+        return 64 if c.data_bits is None else c.data_bits + c.coef_bits  # float32: 32 + 32
+
+    @property
+    def memory_bytes(self) -> int:
+        return sum(c.memory_bytes for c in self.channels)
+
+    def cost(self) -> tuple:
+        return (self.bits, self.memory_bytes, self.config.acc_bits or 0)
+
+    def worst(self, name: str):
+        """The worst value of a metric over the channels (None when not measured)."""
+        sense = dict(METRICS)[name]
+        vals = [c.metrics.get(name) for c in self.channels if c.metrics.get(name) is not None]
+        if not vals:
+            return None
+        return max(vals) if sense == "max" else min(vals)
+
+
+@dataclass(frozen=True)
+class SweepResult:
+    source: str
+    budget: Budget
+    results: tuple[ConfigResult, ...]
+    skipped: tuple[str, ...] = ()
+
+    def cheapest(self) -> ConfigResult | None:
+        """The cheapest configuration where every channel passes."""
+        passing = [r for r in self.results if r.ok]
+        return min(passing, key=ConfigResult.cost) if passing else None
+
+    def cheapest_per_channel(self) -> dict[str, ConfigResult | None]:
+        names = [c.channel for c in self.results[0].channels] if self.results else []
+        out = {}
+        for i, name in enumerate(names):
+            passing = [r for r in self.results if r.channels[i].ok]
+            out[name] = min(passing, key=lambda r: (r.bits, r.channels[i].memory_bytes)) if passing else None
+        return out
+
+    def to_json(self) -> dict:
+        from . import __version__
+
+        best = self.cheapest()
+        return {
+            "schema": 1,
+            "tool_version": __version__,
+            "source": self.source,
+            "ok": best is not None,
+            "cheapest": None if best is None else _config_dict(best.config),
+            "cheapest_per_channel": {k: None if v is None else _config_dict(v.config)
+                                     for k, v in self.cheapest_per_channel().items()},
+            "skipped": list(self.skipped),
+            "configurations": [
+                {**_config_dict(r.config), "ok": r.ok, "bits": r.bits, "memory_bytes": r.memory_bytes,
+                 "channels": [{"name": c.channel, "ok": c.ok, "data": c.data, "coef": c.coef,
+                               "memory_bytes": c.memory_bytes, "failing": list(c.failing), **c.metrics}
+                              for c in r.channels]}
+                for r in self.results],
+        }
+
+    def csv_rows(self) -> list[list]:
+        """One row per configuration and channel, with a header row first."""
+        head = ["target", "structure", "acc_bits", "data_bits", "coef_bits", "channel", "ok",
+                *[m for m, _ in METRICS], "limit_cycle", "memory_bytes", "failing"]
+        rows = [head]
+        for r in self.results:
+            c = r.config
+            for ch in r.channels:
+                rows.append([c.target, c.structure, c.acc_bits, c.data_bits, c.coef_bits, ch.channel, ch.ok,
+                             *[ch.metrics.get(m) for m, _ in METRICS], ch.metrics.get("limit_cycle"),
+                             ch.memory_bytes, " ".join(ch.failing)])
+        return rows
+
+
+def _config_dict(c: Config) -> dict:
+    return {"target": c.target, "structure": c.structure, "acc_bits": c.acc_bits,
+            "data_bits": c.data_bits, "coef_bits": c.coef_bits}
+
+
+def _container_bytes(bits: int) -> int:
+    for c in (8, 16, 32, 64):
+        if bits <= c:
+            return c // 8
+    return 16
+
+
+def program_memory_bytes(program: ChannelProgram) -> int:
+    """Coefficient plus state memory of a realised channel, in standard containers.
+
+    DF1 keeps four data words per section, TDF2 two accumulator words, DF1 with error
+    feedback four data words and one error word; an FIR of N taps keeps N - 1 data
+    words; a delay of D samples D data words.
+    """
+    a = program.arithmetic
+    if a.is_float:
+        dw = cw = aw = 4
+    else:
+        dw, cw, aw = _container_bytes(a.data.width), _container_bytes(a.coef.width), _container_bytes(a.acc_bits)
+    total = 0
+    for op in program.ops:
+        if isinstance(op, SectionOp):
+            total += 5 * cw
+            total += {"df1": 4 * dw, "tdf2": 2 * aw, "df1ef": 4 * dw + aw}.get(op.structure, 4 * dw)
+        elif isinstance(op, FirOp):
+            n = len(op.taps)
+            total += (n + 1) // 2 * cw if op.symmetric else n * cw
+            total += (n - 1) * dw
+        elif isinstance(op, GainOp):
+            total += cw
+        elif isinstance(op, DelayOp):
+            total += op.samples * dw
+    return total
+
+
+class Sweeper:
+    """Evaluates configurations of one design, reusing everything word-length free.
+
+    Parameters
+    ----------
+    design : coefc.api.Design
+        The float design (made once).
+    budget : Budget
+        Limits to judge each configuration by.
+    overrides : Overrides
+        Arithmetic settings held fixed over the sweep (rounding, overflow, scaling...).
+    target_dirs : extra target folders.
+    options : coefc.analyse.AnalysisOptions, optional
+        Analysis effort; by default the measured noise is skipped (the analytic figure
+        is used; ``coefc check`` measures it) to keep large sweeps fast.
+    """
+
+    def __init__(self, design, budget: Budget, overrides: Overrides | None = None,
+                 target_dirs: Iterable = (), options=None) -> None:
+        from .analyse import AnalysisOptions
+
+        self.design = design
+        self.budget = budget
+        self.overrides = overrides or Overrides()
+        self.target_dirs = tuple(target_dirs)
+        self.options = options or AnalysisOptions(measure_noise=False)
+        self._targets: dict = {}
+        self._cache: dict[Config, ConfigResult] = {}
+
+    def target(self, name: str | None):
+        key = name or ""
+        if key not in self._targets:
+            self._targets[key] = self.design.target(name, self.target_dirs)
+        return self._targets[key]
+
+    def base_arithmetic(self, target_name: str | None):
+        from .targets import resolve_arithmetic
+
+        d = self.design.loaded.description
+        return resolve_arithmetic(self.target(target_name), d.implementation, self.overrides, d.source)
+
+    def overrides_for(self, config: Config) -> Overrides:
+        base = self.base_arithmetic(config.target)
+        ch = dict(structure=config.structure)
+        if not base.is_float:
+            ch["data"] = str(QFormat(base.data.int_bits, config.data_bits - base.data.int_bits))
+            ch["coef"] = str(QFormat(base.coef.int_bits, config.coef_bits - base.coef.int_bits))
+            ch["acc_bits"] = config.acc_bits
+        o = self.overrides
+        return Overrides(rounding=o.rounding, overflow=o.overflow, scaling=o.scaling, **ch)
+
+    def evaluate(self, config: Config) -> ConfigResult:
+        """Realise, analyse and judge one configuration (cached)."""
+        if config in self._cache:
+            return self._cache[config]
+        real = self.design.realise(self.target(config.target), self.overrides_for(config))
+        report: CheckReport = run_check(real, self.budget, options=self.options)
+        rows = []
+        for prog, ch in zip(real.programs, report.channels):
+            lc = ch.metrics.get("limit_cycle") or {}
+            metrics = {m: ch.metrics.get(m) for m, _ in METRICS}
+            metrics["limit_cycle"] = lc.get("status")
+            metrics["limit_cycle_bound_lsb"] = lc.get("bound_lsb")
+            a = prog.arithmetic
+            rows.append(ChannelRow(ch.name, ch.ok, metrics, tuple(c.name for c in ch.checks if not c.ok),
+                                   program_memory_bytes(prog), str(a.data) if a.data else None,
+                                   str(a.coef) if a.coef else None))
+        res = ConfigResult(config, tuple(rows))
+        self._cache[config] = res
+        return res
+
+    def configs(self, targets: Sequence[str | None], structures: Sequence[str] | None,
+                accs: Sequence[int] | None, datas: Sequence[int] | None,
+                coefs: Sequence[int] | None) -> tuple[list[Config], list[str]]:
+        """Every configuration of the grid, and the reasons some were skipped."""
+        out, skipped = [], []
+        for tname in targets:
+            base = self.base_arithmetic(tname)
+            tgt = self.target(tname)
+            for st in structures or (base.structure,):
+                if st not in tgt.structures:
+                    skipped.append(f"{tgt.name}: structure {st} not supported")
+                    continue
+                if base.is_float:
+                    out.append(Config(tgt.name, st, None, None, None))
+                    continue
+                for acc, d, c in itertools.product(accs or (base.acc_bits,), datas or (base.data.width,),
+                                                   coefs or (base.coef.width,)):
+                    why = _infeasible(base, acc, d, c)
+                    if why:
+                        skipped.append(f"{tgt.name} {st} data {d} coef {c} acc {acc}: {why}")
+                        continue
+                    out.append(Config(tgt.name, st, acc, d, c))
+        return out, skipped
+
+    def run(self, configs: Sequence[Config], skipped: Sequence[str] = (),
+            progress: Callable[[int, int], None] | None = None) -> SweepResult:
+        results = []
+        for i, cfg in enumerate(configs):
+            results.append(self.evaluate(cfg))
+            if progress:
+                progress(i + 1, len(configs))
+        return SweepResult(self.design.loaded.description.source, self.budget, tuple(results), tuple(skipped))
+
+
+def _infeasible(base, acc: int, d: int, c: int) -> str:
+    if d <= base.data.int_bits:
+        return f"a {d}-bit data word leaves no fractional bits after {base.data.int_bits} integer bits"
+    if c <= base.coef.int_bits + 1:
+        return f"a {c}-bit coefficient word leaves too few fractional bits after {base.coef.int_bits} integer bits"
+    if acc < d:
+        return "accumulator narrower than the data word"
+    return ""
+
+
+@dataclass(frozen=True)
+class MinimiseResult:
+    """Smallest passing word lengths of one channel at a fixed target/structure/acc."""
+
+    channel: str
+    target: str
+    structure: str
+    acc_bits: int | None
+    data_bits: int | None
+    coef_bits: int | None
+    evaluated: int  # configurations evaluated (out of the grid size)
+    grid: int
+    non_monotone: tuple[str, ...] = field(default_factory=tuple)
+
+    def to_json(self) -> dict:
+        return {"channel": self.channel, "target": self.target, "structure": self.structure,
+                "acc_bits": self.acc_bits, "data_bits": self.data_bits, "coef_bits": self.coef_bits,
+                "evaluated": self.evaluated, "grid": self.grid, "non_monotone": list(self.non_monotone)}
+
+
+def minimise(sweeper: Sweeper, channel_index: int, channel: str, target: str, structure: str,
+             acc_bits: int | None, datas: Sequence[int], coefs: Sequence[int]) -> MinimiseResult:
+    """Smallest (data + coef) passing widths of one channel by a saddleback walk.
+
+    The walk assumes the verdict is monotone (more bits never hurt); it then checks
+    the neighbours one step narrower of every passing point on its frontier and
+    follows any pass found there, recording it as non-monotone.
+    """
+    datas, coefs = sorted(datas), sorted(coefs)
+    seen: dict[tuple[int, int], bool] = {}
+
+    def passes(d: int, c: int) -> bool:
+        if (d, c) not in seen:
+            cfg = Config(target, structure, acc_bits, d, c)
+            seen[(d, c)] = sweeper.evaluate(cfg).channels[channel_index].ok
+        return seen[(d, c)]
+
+    base = sweeper.base_arithmetic(target)
+    if base.is_float:
+        return MinimiseResult(channel, target, structure, None, None, None, 0, 1)
+    # Frontier: for each coefficient width (narrow to wide) the narrowest passing data
+    # width, found by walking data widths down from the widest while passing.
+    frontier: list[tuple[int, int]] = []
+    di = len(datas) - 1
+    for c in coefs:
+        if di < 0:
+            break
+        if not passes(datas[di], c):
+            continue  # even this data width fails here: a wider coefficient word is needed
+        while di > 0 and passes(datas[di - 1], c):
+            di -= 1
+        frontier.append((datas[di], c))
+        if di == 0:
+            break  # the narrowest data word passes: wider coefficients cannot be cheaper
+    notes = []
+    # Check monotonicity where it might not hold: the narrower neighbours of each
+    # frontier point (and one coefficient step below it) must fail.
+    extra = []
+    for d, c in frontier:
+        for dd, cc in ((_prev(datas, d), c), (d, _prev(coefs, c))):
+            if dd is None or cc is None:
+                continue
+            if passes(dd, cc):
+                notes.append(f"passes at data {dd} coef {cc} below the monotone frontier point data {d} coef {c}")
+                extra.append((dd, cc))
+    candidates = [p for p in frontier + extra if seen.get(p)]
+    grid = len(datas) * len(coefs)
+    evaluated = len(seen)
+    if not candidates:
+        return MinimiseResult(channel, target, structure, acc_bits, None, None, evaluated, grid, tuple(notes))
+    d, c = min(candidates, key=lambda p: (p[0] + p[1], p[0]))
+    return MinimiseResult(channel, target, structure, acc_bits, d, c, evaluated, grid, tuple(notes))
+
+
+def _prev(values: Sequence[int], v: int) -> int | None:
+    i = values.index(v)
+    return values[i - 1] if i > 0 else None
+
+
+def plot(result: SweepResult, path) -> None:
+    """Each metric against word length, budget lines drawn; PNG or SVG by suffix.
+
+    Coefficient-driven metrics (passband deviation, stopband attenuation) are drawn
+    against the coefficient width at the widest data word; data-driven ones (noise,
+    headroom) against the data width at the widest coefficient word.
+    """
+    try:
+        import matplotlib
+
+        matplotlib.use("Agg")
+        import matplotlib.pyplot as plt
+    except ImportError:
+        from .errors import CoefcError
+
+        raise CoefcError("plotting needs matplotlib: pip install 'coefc[plot]'") from None
+    from pathlib import Path
+
+    fixed = [r for r in result.results if r.config.data_bits is not None]
+    if not fixed:
+        from .errors import CoefcError
+
+        raise CoefcError("nothing to plot: the sweep has no fixed-point configuration")
+    names = [c.channel for c in fixed[0].channels]
+    b = result.budget
+    panels = (("passband_deviation_db", "coef", "passband deviation (dB)", b.passband_deviation_db, True),
+              ("stopband_attenuation_db", "coef", "stopband attenuation (dB)", b.stopband_attenuation_db, False),
+              ("output_noise_dbfs", "data", "output noise (dBFS, AES17)", b.output_noise_dbfs, False),
+              ("headroom_bits", "data", "headroom (bits)", 0.0 if b.overflow == "none" else None, False))
+    fig, axes = plt.subplots(2, 2, figsize=(11, 8), constrained_layout=True)
+    groups = sorted({(r.config.target, r.config.structure, r.config.acc_bits) for r in fixed})
+    for ax, (metric, axis, title, limit, logy) in zip(axes.flat, panels):
+        for grp in groups:
+            rows = [r for r in fixed if (r.config.target, r.config.structure, r.config.acc_bits) == grp]
+            if axis == "coef":
+                top = max(r.config.data_bits for r in rows)
+                rows = sorted((r for r in rows if r.config.data_bits == top), key=lambda r: r.config.coef_bits)
+                xs = [r.config.coef_bits for r in rows]
+            else:
+                top = max(r.config.coef_bits for r in rows)
+                rows = sorted((r for r in rows if r.config.coef_bits == top), key=lambda r: r.config.data_bits)
+                xs = [r.config.data_bits for r in rows]
+            for i, name in enumerate(names):
+                ys = [r.channels[i].metrics.get(metric) for r in rows]
+                pts = [(x, y) for x, y in zip(xs, ys) if y is not None and math.isfinite(y) and (y > 0 or not logy)]
+                if pts:
+                    lab = name if len(groups) == 1 else f"{name} ({grp[0]} {grp[1]} acc {grp[2]})"
+                    ax.plot(*zip(*pts), marker="o", ms=3, label=lab)
+        if limit is not None:
+            ax.axhline(limit, color="red", ls="--", lw=1, label="budget")
+        if logy:
+            ax.set_yscale("log")
+        ax.set_xlabel(f"{'coefficient' if axis == 'coef' else 'data'} word length (bits)")
+        ax.set_title(title)
+        ax.grid(True, alpha=0.3)
+        ax.legend(fontsize=7)
+    fig.suptitle(f"coefc sweep: {result.source}")
+    fig.savefig(Path(path), format=Path(path).suffix.lstrip(".").lower())
+    plt.close(fig)
