@@ -148,3 +148,16 @@ def test_measured_within_1_db_on_every_example(path):
         me = measured_noise(prog, samples=1 << 15, models=models)
         assert an.dbfs is not None and me.dbfs is not None
         assert abs(an.dbfs - me.dbfs) < 1.0, (path.name, prog.name, an.dbfs, me.dbfs)
+
+
+def test_noise_spectrum_integrates_to_the_variance():
+    # Parseval: the one-sided density integrated over 0..fs/2 equals sum_j sigma_j^2 sum g_j^2
+    # (numpy's trapezoid rule as the reference integrator)
+    p = one_section(-2 * 0.9 * math.cos(0.4), 0.81, b0=1 - 2.0 ** -30)
+    p = ChannelProgram("s", 48000.0, Q15, p.ops + (GainOp(coef=round(2 ** 29.5) | 1),))
+    res = analytic_noise(p)
+    f = np.linspace(0.0, 24000.0, 200001)
+    density = 0.5 * 10 ** (res.spectrum(f, 48000.0) / 10)  # back from dBFS/Hz to full-scale^2/Hz
+    assert np.trapezoid(density, f) == pytest.approx(res.variance, rel=1e-4)
+    # the resonance shows: the density peaks near the pole angle 0.4 rad = 3056 Hz
+    assert abs(f[np.argmax(density)] - 0.4 / (2 * math.pi) * 48000) < 300

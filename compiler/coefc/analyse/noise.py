@@ -138,14 +138,17 @@ class NoiseAnalysis:
     _impulses: tuple = field(default=(), repr=False)
 
     def spectrum(self, freqs_hz, fs: float) -> np.ndarray:
-        """One-sided noise density in dBFS/Hz (AES17 reference) at *freqs_hz*."""
+        """One-sided noise density in dBFS/Hz (AES17 reference) at *freqs_hz*.
+
+        ``2 sum_j sigma_j^2 |G_j(f)|^2 / fs`` relative to 0.5 (the power of a
+        full-scale sine); integrated from 0 to fs/2 it gives the output variance.
+        The DC offset of ``floor`` rounding (``mean``) is not part of it.
+        """
         f = np.asarray(freqs_hz, dtype=np.float64)
         psd = np.zeros(f.shape)
         w = 2 * np.pi * f / fs
         for src, g in zip(self.sources, self._impulses):
-            n = np.arange(len(g))
-            G = np.exp(-1j * np.outer(w, n)) @ g if len(g) <= 4096 else _freq(g, w)
-            psd += src.variance_lsb2 * self.lsb ** 2 * np.abs(G) ** 2
+            psd += src.variance_lsb2 * self.lsb ** 2 * np.abs(_freq(g, w)) ** 2
         with np.errstate(divide="ignore"):
             return 10 * np.log10(2.0 * psd / fs / FULL_SCALE_SINE_POWER)
 
