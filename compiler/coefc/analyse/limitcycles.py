@@ -163,13 +163,20 @@ def _impulse(b, a, n):
     return signal.lfilter(b, a, x)
 
 
+MAX_BOUND_LENGTH = 1 << 22
+
+
 def _length(a) -> int:
+    """Samples after which the impulse response of 1/A has decayed below 1e-16 (0: no bound)."""
     r = float(np.max(np.abs(np.roots(a)))) if len(a) > 1 else 0.0
     if r >= 1.0:
         return 0
     if r == 0.0:
         return 8
-    return int(min(1 << 22, max(64, np.ceil(np.log(1e-16) / np.log(r)) * 2)))
+    n = np.ceil(np.log(1e-16) / np.log(r)) * 2
+    if n > MAX_BOUND_LENGTH:
+        return 0  # too slow a decay to sum rigorously: report no bound rather than a short one
+    return int(max(64, n))
 
 
 def error_interval(rounding: str) -> tuple[float, float]:
@@ -220,13 +227,21 @@ def _candidates(B: int, D: int, S: int, order: int):
     return rows, starts + offs
 
 
-def _count_candidates(B: int, D: int, S: int, order: int) -> int:
+def _count_candidates(B: int, D: int, S: int, order: int, cap: int) -> int:
+    """Number of candidate states, or ``cap + 1`` as soon as it certainly exceeds *cap*."""
     if order == 1:
-        return 2 * B + 1
-    y1 = np.arange(-B, B + 1, dtype=np.int64)
-    lo = np.maximum.reduce([np.full_like(y1, -B), y1 - D, -S - y1])
-    hi = np.minimum.reduce([np.full_like(y1, B), y1 + D, S - y1])
-    return int(np.maximum(hi - lo + 1, 0).sum())
+        return min(2 * B + 1, cap + 1)
+    if 2 * B + 1 > 64 * cap:
+        return cap + 1
+    total = 0
+    for lo_row in range(-B, B + 1, 1 << 20):  # in chunks: B may be large
+        y1 = np.arange(lo_row, min(B, lo_row + (1 << 20) - 1) + 1, dtype=np.int64)
+        lo = np.maximum.reduce([np.full_like(y1, -B), y1 - D, -S - y1])
+        hi = np.minimum.reduce([np.full_like(y1, B), y1 + D, S - y1])
+        total += int(np.maximum(hi - lo + 1, 0).sum())
+        if total > cap:
+            return cap + 1
+    return total
 
 
 def cycle_states(a1: int, a2: int, k: int, arith: Arithmetic, B: int, D: int, S: int, order: int):
@@ -305,14 +320,17 @@ def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states:
         return SectionLimitCycles(index, **res, **_overflow(a1, a2, k, a_phys, arith, order, bounds, overflow_starts, seed, structure == "df1ef"))
     if bounds is None:
         return SectionLimitCycles(index, "unproven", None, False, 0,
-                                  note="the realised section is not stable: no amplitude bound",
+                                  note="no amplitude bound: the realised section is not stable, or its "
+                                       "poles lie too close to the unit circle to sum the bound rigorously",
                                   **_overflow(a1, a2, k, a_phys, arith, order, bounds, overflow_starts, seed, structure == "df1ef"))
     Bf, Df, Sf = bounds
     B, D, S = int(math.floor(Bf)), int(math.floor(Df)), int(math.floor(Sf))
     if order == 1:
         D = S = 2 * B
+    else:
+        B = min(B, (D + S) // 2)  # |y1 - y2| <= D and |y1 + y2| <= S bound |y1| and |y2| too
     exhaustive_ok = structure in ("df1", "tdf2") and B < fs_lsb
-    count = _count_candidates(B, D, S, order) if exhaustive_ok else 0
+    count = _count_candidates(B, D, S, order, max_states) if exhaustive_ok else 0
     if structure == "df1ef":
         notes.append("df1ef keeps the rounding residual as state: the bound holds but the state space is "
                      "too large for an exhaustive search; sampled search only")
@@ -327,7 +345,7 @@ def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states:
             res.update(status="found", bound_lsb=Bf, exhaustive=True, states_searched=count)
     else:
         if exhaustive_ok:
-            notes.append(f"{count} candidate states exceed the search limit of {max_states}")
+            notes.append(f"more candidate states than the search limit of {max_states}")
         res = dict(status="unproven", bound_lsb=Bf, exhaustive=False, states_searched=0)
         if structure in ("df1", "tdf2") or B < fs_lsb:
             search = _sampled if structure in ("df1", "tdf2") else _sampled_ef
