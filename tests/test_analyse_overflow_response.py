@@ -116,3 +116,27 @@ def _exact_program(sos, fs, fc):
     # numerators were scaled by 2^-6; one gain restores them (keeps the test independent of realise)
     ops.append(GainOp(coef=1 << (fc - 2), shift=len(sos) * 6 + 2))  # 2^(fc-2) * 2^(shift-fc) = 2^(6 n)
     return ChannelProgram("p", fs, ar, tuple(ops))
+
+
+def test_tdf2_state_nodes():
+    # the two states of a transposed direct form II section are nodes too; their peak gains
+    # come from the float recursion (Oppenheim & Schafer, sec. 6.5, transposed forms) run here
+    ar = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 14), acc_bits=32, structure="tdf2")
+    b = (0.3, -0.5, 0.25)
+    a = (-1.6, 0.8)
+    op = SectionOp(b=tuple(round(v * 2 ** 14) for v in b), a=tuple(round(v * 2 ** 14) for v in a), shift=0,
+                   structure="tdf2")
+    res = analyse_overflow(ChannelProgram("t", 48000.0, ar, (op,)), run_engine=False)
+    bq = [c / 2 ** 14 for c in op.b]
+    aq = [c / 2 ** 14 for c in op.a]
+    s1 = s2 = 0.0
+    l1_s1 = l1_s2 = 0.0
+    for n in range(20000):
+        x = 1.0 if n == 0 else 0.0
+        y = bq[0] * x + s1
+        s1, s2 = bq[1] * x - aq[0] * y + s2, bq[2] * x - aq[1] * y
+        l1_s1 += abs(s1)
+        l1_s2 += abs(s2)
+    got = {g.node: g.l1 for g in res.nodes}
+    assert got["state 1"] == pytest.approx(l1_s1, rel=1e-9)
+    assert got["state 2"] == pytest.approx(l1_s2, rel=1e-9)
