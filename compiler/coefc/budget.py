@@ -231,7 +231,8 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
         lim = budget.limit_cycles
         if metrics.is_float:
             checks.append(Check("limit_cycles", None, lim, True))
-            why["limit_cycles"] = "not applicable: float32 arithmetic has no fixed LSB (not analysed)"
+            why["limit_cycles"] = ("not applicable: float32 rounding is relative to the value, so zero-input "
+                                   "decay can only stall near the denormal range (about -759 dBFS); not analysed")
         else:
             st, amp, bound = lc.status, lc.amplitude_lsb, lc.bound_lsb
             if lim == "none":
