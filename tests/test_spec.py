@@ -22,8 +22,9 @@ def test_example_loads_into_the_model():
     assert d.name == "bench_monitor"
     assert d.sample_rate_hz == 48000.0
     assert d.implementation.target == "mcu32"
-    assert d.implementation.structure == "df1"
-    assert d.budget.limit_cycles == "none"
+    assert d.implementation.structure == "df1ef"
+    assert d.implementation.scaling == "l1"
+    assert d.budget.limit_cycles == 256.0
     assert d.budget.overflow == "none"
     assert [c.name for c in d.channels] == ["woofer", "mid", "tweeter"]
     first = d.channels[0].stages[0]
