@@ -148,3 +148,19 @@ def test_targets_command_broken_target_is_one_line_exit_2():
     assert "Traceback" not in r.stderr
     assert len(r.stderr.strip().splitlines()) == 1
     assert "bad_syntax/target.toml:4:" in r.stderr
+
+
+def test_command_line_structure_wins_before_the_target_is_asked():
+    """A description asking for df1ef can still be built for float32 with --structure tdf2."""
+    from coefc.errors import DescriptionError
+    from coefc.spec import Implementation
+    from coefc.targets import Overrides, resolve_arithmetic
+
+    t = find_target("float32")
+    impl = Implementation(structure="df1ef")
+    assert resolve_arithmetic(t, impl, Overrides(structure="tdf2"), "x.toml").structure == "tdf2"
+    with pytest.raises(DescriptionError, match=r"x\.toml, key 'structure': target 'float32' does not support "
+                                               r"structure 'df1ef'; it supports df1, tdf2"):
+        resolve_arithmetic(t, impl, None, "x.toml")
+    with pytest.raises(DescriptionError, match=r"<command line>, key 'structure': unknown structure 'df2'"):
+        resolve_arithmetic(t, impl, Overrides(structure="df2"), "x.toml")

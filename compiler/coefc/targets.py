@@ -155,6 +155,7 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
     One options schema, several ways to set it, same effect however given.
     """
     arith = target.arithmetic
+    structure_from = None
     layers = [(implementation, source)]
     if overrides is not None:
         layers.append((overrides, "<command line>"))
@@ -171,10 +172,11 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
                     v = QFormat.parse(v)
                 except ValueError as e:
                     raise DescriptionError(where, str(e), key=key) from None
-            elif key == "structure" and v not in target.structures:
-                raise DescriptionError(
-                    where, f"target '{target.name}' does not support structure '{v}'; "
-                    f"it supports {', '.join(target.structures)}", key=key)
+            elif key == "structure":
+                if v not in STRUCTURES:
+                    raise DescriptionError(where, f"unknown structure '{v}'; use one of {', '.join(STRUCTURES)}",
+                                           key=key)
+                structure_from = where  # checked against the target once every layer is applied
             elif key == "rounding" and v not in ROUNDING_MODES:
                 raise DescriptionError(where, f"unknown rounding '{v}'; use one of {', '.join(ROUNDING_MODES)}", key=key)
             elif key == "overflow" and v not in OVERFLOW_MODES:
@@ -185,6 +187,10 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
                 continue
             changes[key] = v
         arith = arith.with_(**changes)
+    if structure_from is not None and arith.structure not in target.structures:
+        raise DescriptionError(
+            structure_from, f"target '{target.name}' does not support structure '{arith.structure}'; "
+            f"it supports {', '.join(target.structures)}", key="structure")
     if not arith.is_float and arith.acc_bits < arith.data.width:
         raise DescriptionError(source, f"accumulator of {arith.acc_bits} bits is narrower than the "
                                f"{arith.data.width}-bit data word; widen acc_bits", key="acc_bits")
