@@ -84,10 +84,11 @@ def test_exact_operations_add_no_noise():
     assert src.k == 1 and src.variance_lsb2 == pytest.approx(1 / 16)
 
 
-@pytest.mark.parametrize("rounding", ["nearest", "convergent", "floor"])
+@pytest.mark.parametrize("rounding", ["nearest", "convergent", "floor", "zero"])
 def test_measured_matches_analytic_on_a_resonator(rounding):
     # the engine's measured noise against Jackson's model within 1 dB (Jackson 1970,
-    # N(w) = sigma0^2 sum_j k_j |G_j(w)|^2 [confirmed]); floor adds its mean at DC gain
+    # N(w) = sigma0^2 sum_j k_j |G_j(w)|^2 [confirmed]); floor adds its mean at DC gain;
+    # magnitude truncation adds its signal-correlated part (Bussgang 1952, from memory)
     ar = Q15.with_(rounding=rounding)
     p = one_section(-2 * 0.95 * math.cos(0.3), 0.95 ** 2, ar, b0=0.05)
     an = analytic_noise(p)
@@ -101,14 +102,15 @@ def test_measured_matches_analytic_on_a_resonator(rounding):
 def test_magnitude_truncation_mean_square_on_a_gain():
     # (the gain is 1/sqrt(2), so the dropped fractions spread evenly; 0.7 would give tenths only)
     # magnitude truncation: |e| < q with the sign opposite to the value (Claasen, Mecklenbrauker
-    # & Peek 1976; from memory); for a uniform fraction its mean square is q^2/3 (derived).  On a
-    # recursive path the error is correlated with the signal and the white model is only a
-    # rough guide, so the agreement is checked where the error reaches the output directly.
+    # & Peek 1976; from memory); for a uniform fraction its mean square is q^2/3 (derived),
+    # whatever part of it follows the signal.
     ar = Q15.with_(rounding="zero")
     p = ChannelProgram("g", 48000.0, ar, (GainOp(coef=round(2 ** 29.5) | 1),))
     an = analytic_noise(p)
     me = measured_noise(p, samples=1 << 15)
     assert an.power == pytest.approx((2.0 ** -15) ** 2 / 3, rel=1e-6)
+    # white part var(u) + E[u]^2 (1 - 2/pi), correlated part E[u]^2 2/pi (Bussgang 1952, from memory)
+    assert an.correlated_variance == pytest.approx((2.0 ** -15) ** 2 / 4 * 2 / math.pi, rel=1e-6)
     assert abs(an.dbfs - me.dbfs) < 0.2
 
 

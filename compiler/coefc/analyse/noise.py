@@ -27,9 +27,17 @@ floor          -(q/2)(1 - 2^-k)            (q^2/12)(1 - 2^-2k)
 zero           0 (symmetric signals)       q^2 (1 - 2^-k)(2 - 2^-k)/6  (-> q^2/3)
 =============  ==========================  ===============================
 
-Magnitude truncation (``zero``) is modelled as an error of magnitude uniform in
-[0, q) with the sign opposite to the value; for a zero-mean symmetric signal its
-mean is 0 and its mean square q^2/3.
+Magnitude truncation (``zero``) is an error of magnitude uniform in [0, q) with the
+sign opposite to the value: ``e = -sign(v) u``.  For a zero-mean Gaussian value its
+mean is 0 and its mean square q^2/3, but it is correlated with ``v``: by Bussgang's
+theorem ``sign(v) = sqrt(2/pi) v/sigma_v + d`` with ``d`` uncorrelated with ``v`` and of
+variance ``1 - 2/pi``.  The model therefore splits each source into a white part of
+variance ``var(u) + E[u]^2 (1 - 2/pi)`` (about 0.174 q^2) and a part
+``-E[u] sqrt(2/pi) v/sigma_v`` that reaches the output along the signal's own path;
+for a white input its output power is ``||sum_j c_j g_j * h_j||^2`` with
+``c_j = E[u] sqrt(2/pi)/||h_j||`` (``h_j``: input to node ``j``), independent of the
+input level, and the sources add coherently.  Inside a recursive section this part
+acts like a small change of the feedback gain and can dominate.
 
 Levels are in dBFS as in AES17: full scale = 1.0, 0 dBFS is the RMS level of a
 full-scale sine, so a noise of power ``P`` reads ``10*log10(P/0.5)`` dBFS.
@@ -43,6 +51,8 @@ Instrum. Meas. 45(2), 1996.
 A. V. Oppenheim, R. W. Schafer, *Discrete-Time Signal Processing*, 3rd ed., ch. 6.
 AES17, *AES standard method for digital audio engineering - Measurement of digital
 audio equipment* (definition of dBFS).
+J. J. Bussgang, "Crosscorrelation functions of amplitude-distorted Gaussian signals",
+MIT RLE Tech. Rep. 216, 1952 (from memory).
 """
 
 from __future__ import annotations
@@ -136,6 +146,8 @@ class NoiseAnalysis:
     lsb: float
     _models: tuple = field(default=(), repr=False)
     _impulses: tuple = field(default=(), repr=False)
+    correlated_variance: float = 0.0  # magnitude truncation: the part that follows the signal
+    _correlated: object = field(default=None, repr=False)
 
     def spectrum(self, freqs_hz, fs: float) -> np.ndarray:
         """One-sided noise density in dBFS/Hz (AES17 reference) at *freqs_hz*.
@@ -149,6 +161,8 @@ class NoiseAnalysis:
         w = 2 * np.pi * f / fs
         for src, g in zip(self.sources, self._impulses):
             psd += src.variance_lsb2 * self.lsb ** 2 * np.abs(_freq(g, w)) ** 2
+        if self._correlated is not None:
+            psd += self.lsb ** 2 * np.abs(_freq(self._correlated, w)) ** 2
         with np.errstate(divide="ignore"):
             return 10 * np.log10(2.0 * psd / fs / FULL_SCALE_SINE_POWER)
 
@@ -188,6 +202,8 @@ def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
     lsb = ar.data.lsb
     sources, imps = [], []
     var = mean = 0.0
+    corr = np.zeros(n)
+    node_imps = node_impulses(models, n) if ar.rounding == "zero" else None
     for m in models:
         if m.k <= 0:
             continue
@@ -195,16 +211,35 @@ def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
         g = noise_impulse(models, m.index, n)
         pg = float(np.dot(g, g))
         dc = float(np.sum(g))
+        if ar.rounding == "zero":
+            # e = -sign(v) u: split into a white part and a part proportional to the value v
+            # (Bussgang), which reaches the output along the signal's own path
+            eu = 0.5 * (1.0 - 2.0 ** -m.k)
+            white = (s2 - eu * eu) + eu * eu * (1.0 - 2.0 / math.pi)
+            h = node_imps[m.index]
+            hn = math.sqrt(float(np.dot(h, h)))
+            if hn > 0:
+                corr -= eu * math.sqrt(2.0 / math.pi) / hn * _conv(g, h)
+            s2 = white
         sources.append(NoiseSource(m.index, m.k, mu, s2, pg, dc, s2 * pg))
         imps.append(g)
         var += s2 * pg
         mean += mu * dc
+    correlated = float(np.dot(corr, corr))
+    var += correlated
     var *= lsb ** 2
     mean *= lsb
     power = var + mean ** 2
     d = dbfs(power)
     snr = None if d is None or d == -math.inf else -d
-    return NoiseAnalysis(tuple(sources), var, mean, power, d, snr, lsb, tuple(models), tuple(imps))
+    return NoiseAnalysis(tuple(sources), var, mean, power, d, snr, lsb, tuple(models), tuple(imps),
+                         correlated * lsb ** 2, corr if correlated else None)
+
+
+def _conv(g: np.ndarray, h: np.ndarray) -> np.ndarray:
+    from scipy import signal
+
+    return signal.oaconvolve(g, h)[: len(g)]
 
 
 @dataclass(frozen=True)
