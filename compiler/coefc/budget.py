@@ -225,7 +225,8 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
         checks.append(Check("output_noise_dbfs", v, lim, ok))
         why["output_noise_dbfs"] = (
             f"roundoff noise {_fmt(v, ' dBFS')} (analytic {_fmt(an)}, measured {_fmt(me)}; AES17 dBFS)"
-            + ("" if ok else f", above the {lim:g} dBFS limit; widen the data word or the accumulator"))
+            + ("" if ok else f", above the {lim:g} dBFS limit; widen the data word or use error feedback (df1ef)")
+            + (f"; note: {metrics.measured.note}" if metrics.measured is not None and metrics.measured.note else ""))
 
     if budget.limit_cycles is not None:
         lim = budget.limit_cycles
