@@ -138,6 +138,8 @@ def test_overrides_and_kernel_files(desc, tmp_path):
     ("kernel too narrow", ["probe.toml", "--target", "mcu16", "--data", "Q1.23", "-o", "x.h"],
      r"handles at most 16"),
     ("missing folder", ["probe.toml", "-o", "nowhere/x.h"], r"folder 'nowhere' does not exist"),
+    ("output is a folder", ["probe.toml", "-o", "."], r"is a folder; give the header's file name"),
+    ("output not a header", ["probe.toml", "-o", "x.c"], r"must be a C header ending in \.h"),
 ])
 def test_bad_input_is_one_line_exit_2(desc, tmp_path, case, args, pattern):
     (tmp_path / "broken.toml").write_text('name = "x"\nsample_rate_hz = \n')

@@ -14,6 +14,7 @@ from typing import Annotated, Optional
 
 import typer
 
+from ..errors import CoefcError
 from . import app, options
 
 Output = Annotated[Path, typer.Option("-o", "--output", help="Header to write (OUT.h).")]
@@ -57,6 +58,10 @@ def build(
     from ..fileio import write_atomic
     from ..targets import build_info
 
+    if output.is_dir():
+        raise CoefcError(f"{output}: is a folder; give the header's file name, e.g. -o {output / 'filters.h'}")
+    if output.suffix != ".h":
+        raise CoefcError(f"{output}: the output must be a C header ending in .h")
     loaded = load(file)
     ov = options.overrides(data=data, coef=coef, acc=acc, rounding=rounding, overflow=overflow,
                            structure=structure, scaling=scaling)
@@ -90,5 +95,8 @@ def build(
         print(f"{output}: up to date")
         return
     for path, text in paths.items():
-        write_atomic(path, text)
+        try:
+            write_atomic(path, text)
+        except OSError as e:
+            raise CoefcError(f"{path}: cannot write ({e.strerror or e}); check the folder's permissions") from None
         print(f"wrote {path}" + ("  (OVER BUDGET, forced)" if not report.ok else ""))
