@@ -310,6 +310,238 @@ static PyObject *py_gain(PyObject *self, PyObject *args)
     return Py_BuildValue("LL", ovf, aovf);
 }
 
+/* ------------------------------------------------------------ fused cascade
+ * Consecutive sections run sample by sample (section loop inside the sample
+ * loop), so the recursions of different sections overlap in the processor;
+ * every section still writes its own output buffer and counts its overflows.
+ * Exact sums use __int128 where the compiler has it, else the carry-tracking
+ * wide_t above.  Rounding mode and structure are compile-time constants of each
+ * instantiated loop.
+ */
+#if defined(__GNUC__) || defined(__clang__)
+#define ALWAYS_INLINE static inline __attribute__((always_inline))
+#else
+#define ALWAYS_INLINE static inline
+#endif
+
+#if defined(__SIZEOF_INT128__) && !defined(COEFC_NO_INT128)
+typedef __int128 wsum_t;
+#define WS_INIT(w) ((w) = 0)
+#define WS_ADD(w, p) ((w) += (int64_t)(p))
+ALWAYS_INLINE int64_t ws_finish(wsum_t w, const arith_t *ar, long long *aovf)
+{
+    if (w < (wsum_t)ar->acc_lo || w > (wsum_t)ar->acc_hi) {
+        (*aovf)++;
+        return sext((uint64_t)w, ar->acc_bits);
+    }
+    return (int64_t)w;
+}
+#define WS_FINISH(w, ar, aovf) ws_finish((w), (ar), (aovf))
+#else
+typedef wide_t wsum_t;
+#define WS_INIT(w) ((w).s = 0, (w).c = 0)
+#define WS_ADD(w, p) wadd(&(w), (int64_t)(p))
+#define WS_FINISH(w, ar, aovf) wfinish(&(w), (ar), (aovf))
+#endif
+
+typedef struct {
+    int64_t b0, b1, b2, a1, a2;
+    int k;
+    uint64_t kmask, khalf;
+    int64_t x1, x2, y1, y2, e, s1, s2;
+    long long ovf, aovf;
+    int64_t *y;
+    int split; /* b1 x1 + b2 x2 (+ e) and a1 y1 + a2 y2 each provably exact in int64 */
+    int64_t t_lo, t_hi; /* acc range shifted by the rounding bias */
+} sec_t;
+
+ALWAYS_INLINE int64_t rshift_m(int64_t v, const sec_t *c, const int mode)
+{
+    int64_t q = v >> c->k;
+    uint64_t rem = (uint64_t)v & c->kmask;
+    if (mode == 0) return q + (rem >= c->khalf);
+    if (mode == 1) return q;
+    if (mode == 2) return q + (rem > c->khalf || (rem == c->khalf && (q & 1)));
+    return q + (v < 0 && rem != 0);
+}
+
+ALWAYS_INLINE int64_t fit_m(int64_t v, const arith_t *ar, long long *ovf, const int sat)
+{
+    int64_t r;
+    if (sat) {
+        r = v > ar->hi ? ar->hi : v;
+        r = r < ar->lo ? ar->lo : r;
+    } else {
+        r = sext((uint64_t)v, ar->width);
+    }
+    if (r != v) (*ovf)++;
+    return r;
+}
+
+#if defined(__GNUC__) || defined(__clang__)
+#define NOINLINE __attribute__((noinline))
+#else
+#define NOINLINE
+#endif
+
+/* the exact wide sum of a df1 / df1ef section, kept out of the hot loop */
+static NOINLINE int64_t df1_wide_acc(sec_t *c, int64_t in, int64_t x1, int64_t x2, int64_t y1, int64_t y2,
+                                     const arith_t *ar, int ef, int mode, int64_t *v)
+{
+    wsum_t w;
+    WS_INIT(w);
+    WS_ADD(w, c->b0 * in); WS_ADD(w, c->b1 * x1); WS_ADD(w, c->b2 * x2);
+    WS_ADD(w, -(c->a1 * y1)); WS_ADD(w, -(c->a2 * y2));
+    if (ef) WS_ADD(w, c->e);
+    int64_t acc = WS_FINISH(w, ar, &c->aovf);
+    *v = rshift_m(acc, c, mode);
+    return acc;
+}
+
+ALWAYS_INLINE void cascade_body(const int64_t *restrict x, Py_ssize_t n, sec_t *restrict s, int ns,
+                                const arith_t *ar_in, const int structure, const int mode, const int sat)
+{
+    const arith_t A = *ar_in; /* a local copy: no store below can change it */
+    const arith_t *ar = &A;
+    /* DF1: a section's input history is the previous section's output history
+       before this sample's update, so it is handed on in registers (px1, px2);
+       the first section's comes from the channel input (ix1, ix2). */
+    int64_t ix1 = 0, ix2 = 0;
+    for (Py_ssize_t i = 0; i < n; i++) {
+        int64_t in = x[i];
+        int64_t px1 = ix1, px2 = ix2;
+        ix2 = ix1;
+        ix1 = in;
+        for (int j = 0; j < ns; j++) {
+            sec_t *restrict c = &s[j];
+            int64_t *restrict yo = c->y;
+            int64_t out;
+            if (structure == 1) { /* tdf2 */
+                long long bad = 0;
+                wsum_t w, w1, w2;
+                WS_INIT(w); WS_ADD(w, c->b0 * in); WS_ADD(w, c->s1);
+                int64_t acc = WS_FINISH(w, ar, &bad);
+                out = fit_m(rshift_m(acc, c, mode), ar, &c->ovf, sat);
+                WS_INIT(w1); WS_ADD(w1, c->b1 * in); WS_ADD(w1, -(c->a1 * out)); WS_ADD(w1, c->s2);
+                WS_INIT(w2); WS_ADD(w2, c->b2 * in); WS_ADD(w2, -(c->a2 * out));
+                c->s1 = WS_FINISH(w1, ar, &bad);
+                c->s2 = WS_FINISH(w2, ar, &bad);
+                c->aovf += bad != 0;
+            } else {
+                const int64_t x1 = px1, x2 = px2, y1 = c->y1, y2 = c->y2;
+                int64_t acc, v;
+                int done = 0;
+                if (c->split) {
+                    /* Fast exact path.  The terms that do not involve the current input
+                       (ff' and fb, each provably exact in int64) are combined with the
+                       rounding bias off the critical path; then t = acc + bias and the
+                       quotient is one arithmetic shift.  Any int64 overflow or an acc
+                       out of range falls through to the exact wide sum below. */
+                    const int64_t bias = (mode == 0 || mode == 2) ? (int64_t)c->khalf : 0;
+                    int64_t ffp = c->b1 * x1 + c->b2 * x2;
+                    if (structure == 2) ffp += c->e;
+                    int64_t fb = c->a1 * y1 + c->a2 * y2;
+                    uint64_t ur = (uint64_t)ffp - (uint64_t)fb;
+                    int64_t r = (int64_t)ur;
+                    int64_t p0 = c->b0 * in;
+                    if (((ffp ^ fb) & (ffp ^ r)) >= 0 && r <= INT64_MAX - bias) {
+                        int64_t pb = r + bias;
+                        int64_t t = (int64_t)((uint64_t)pb + (uint64_t)p0);
+                        if (((pb ^ t) & (p0 ^ t)) >= 0 && t >= c->t_lo && t <= c->t_hi) {
+                            acc = t - bias;
+                            v = t >> c->k;
+                            if (mode == 2 && (((uint64_t)t & c->kmask) == 0) && (v & 1)) v -= 1;
+                            if (mode == 3) v += (t < 0) & (((uint64_t)t & c->kmask) != 0);
+                            done = 1;
+                        }
+                    }
+                }
+                if (!done) acc = df1_wide_acc(c, in, x1, x2, y1, y2, ar, structure == 2, mode, &v);
+                if (structure == 2) c->e = (int64_t)((uint64_t)acc - ((uint64_t)v << c->k));
+                out = fit_m(v, ar, &c->ovf, sat);
+                px1 = y1; px2 = y2;
+                c->y2 = y1; c->y1 = out;
+            }
+            yo[i] = out;
+            in = out;
+        }
+    }
+}
+
+typedef void (*cascade_fn)(const int64_t *, Py_ssize_t, sec_t *, int, const arith_t *);
+#define CASC(S, M, O) \
+    static void casc_##S##_##M##_##O(const int64_t *x, Py_ssize_t n, sec_t *s, int ns, const arith_t *ar) \
+    { cascade_body(x, n, s, ns, ar, S, M, O); }
+#define CASC_S(S) CASC(S, 0, 1) CASC(S, 1, 1) CASC(S, 2, 1) CASC(S, 3, 1) \
+                  CASC(S, 0, 0) CASC(S, 1, 0) CASC(S, 2, 0) CASC(S, 3, 0)
+CASC_S(0) CASC_S(1) CASC_S(2)
+#define ROW(S) {{casc_##S##_0_1, casc_##S##_1_1, casc_##S##_2_1, casc_##S##_3_1}, \
+                {casc_##S##_0_0, casc_##S##_1_0, casc_##S##_2_0, casc_##S##_3_0}}
+/* [structure][overflow: 0 saturate, 1 wrap][rounding] */
+static const cascade_fn cascade_table[3][2][4] = {ROW(0), ROW(1), ROW(2)};
+
+static PyObject *py_cascade(PyObject *self, PyObject *args)
+{
+    PyObject *xo, *yso, *co;
+    int structure, acc_bits, rounding, overflow, width;
+    if (!PyArg_ParseTuple(args, "OOOiiiii", &xo, &yso, &co, &structure, &acc_bits, &rounding, &overflow, &width))
+        return NULL;
+    if (structure < 0 || structure > 2) { PyErr_SetString(PyExc_ValueError, "engine: unknown structure"); return NULL; }
+    arith_t ar;
+    if (arith_init(&ar, 1, acc_bits, rounding, overflow, width) < 0) return NULL;
+    PyObject *ys = PySequence_Fast(yso, "engine: ys must be a sequence of int64 buffers");
+    if (!ys) return NULL;
+    Py_ssize_t ns = PySequence_Fast_GET_SIZE(ys);
+    Py_buffer xb, cb;
+    Py_buffer *yb = PyMem_Calloc(ns ? ns : 1, sizeof(Py_buffer));
+    sec_t *secs = PyMem_Calloc(ns ? ns : 1, sizeof(sec_t));
+    Py_ssize_t got = 0;
+    PyObject *result = NULL;
+    int have_x = 0, have_c = 0;
+    if (!yb || !secs) { PyErr_NoMemory(); goto done; }
+    if (get_buf(xo, &xb, 0, 'i', "x") < 0) goto done;
+    have_x = 1;
+    if (get_buf(co, &cb, 0, 'i', "coefs") < 0) goto done;
+    have_c = 1;
+    if (cb.len / 8 != 6 * ns) { PyErr_SetString(PyExc_ValueError, "engine: coefs must hold 6 integers per section"); goto done; }
+    for (; got < ns; got++) {
+        if (get_buf(PySequence_Fast_GET_ITEM(ys, got), &yb[got], 1, 'i', "y") < 0) goto done;
+        if (yb[got].len != xb.len) { got++; PyErr_SetString(PyExc_ValueError, "engine: x and y differ in length"); goto done; }
+    }
+    const int64_t *c = (const int64_t *)cb.buf;
+    for (Py_ssize_t j = 0; j < ns; j++) {
+        const int64_t *cj = c + 6 * j;
+        int k = (int)cj[5];
+        if (k < 1 || k > 62) { PyErr_SetString(PyExc_ValueError, "engine: rounding shift k must be 1..62"); goto done; }
+        secs[j].b0 = cj[0]; secs[j].b1 = cj[1]; secs[j].b2 = cj[2]; secs[j].a1 = cj[3]; secs[j].a2 = cj[4];
+        secs[j].k = k;
+        secs[j].kmask = (UINT64_C(1) << k) - 1;
+        secs[j].khalf = UINT64_C(1) << (k - 1);
+        secs[j].y = (int64_t *)yb[j].buf;
+        secs[j].split = sum_bound_ok(cj + 1, 2, width, structure == 2 ? (UINT64_C(1) << k) : 0) &&
+                        sum_bound_ok(cj + 3, 2, width, 0) && sum_bound_ok(cj, 1, width, 0);
+        {
+            int64_t bias = (rounding == 0 || rounding == 2) ? (int64_t)secs[j].khalf : 0;
+            secs[j].t_lo = ar.acc_lo + bias;
+            secs[j].t_hi = acc_bits == 64 ? INT64_MAX : ar.acc_hi + bias;
+        }
+    }
+    Py_BEGIN_ALLOW_THREADS
+    if (ns > 0) cascade_table[structure][overflow][rounding]((const int64_t *)xb.buf, xb.len / 8, secs, (int)ns, &ar);
+    Py_END_ALLOW_THREADS
+    result = PyList_New(ns);
+    for (Py_ssize_t j = 0; result && j < ns; j++)
+        PyList_SET_ITEM(result, j, Py_BuildValue("LL", secs[j].ovf, secs[j].aovf));
+done:
+    for (Py_ssize_t j = 0; j < got; j++) PyBuffer_Release(&yb[j]);
+    if (have_x) PyBuffer_Release(&xb);
+    if (have_c) PyBuffer_Release(&cb);
+    PyMem_Free(yb);
+    PyMem_Free(secs);
+    Py_DECREF(ys);
+    return result;
+}
+
 /* ------------------------------------------------------------ float32 ops */
 
 static PyObject *py_sos_f32(PyObject *self, PyObject *args)
@@ -394,6 +626,9 @@ static PyMethodDef engine_methods[] = {
      "sos(x, y, B0, B1, B2, A1, A2, k, structure, acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)\n"
      "structure: 0 df1, 1 tdf2, 2 df1ef; rounding: 0 nearest, 1 floor, 2 convergent, 3 zero; "
      "overflow: 0 saturate, 1 wrap."},
+    {"cascade", py_cascade, METH_VARARGS,
+     "cascade(x, ys, coefs, structure, acc_bits, rounding, overflow, data_width) -> [(ovf, acc_ovf), ...]\n"
+     "coefs: int64 buffer of B0, B1, B2, A1, A2, k per section; ys: one writable int64 buffer per section."},
     {"fir", py_fir, METH_VARARGS, "fir(x, y, taps, k, acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)"},
     {"gain", py_gain, METH_VARARGS, "gain(x, y, C, k, acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)"},
     {"sos_f32", py_sos_f32, METH_VARARGS, "sos_f32(x, y, b0, b1, b2, a1, a2, structure) -> None (float32)"},

@@ -13,7 +13,6 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy import signal
 
 
 @dataclass(frozen=True, eq=False)
@@ -53,6 +52,8 @@ Block = SosBlock | FirBlock | GainBlock | DelayBlock
 
 def block_response(block: Block, freqs_hz: np.ndarray, fs: float) -> np.ndarray:
     """Complex response of one block at *freqs_hz* (scipy.signal.sosfreqz/freqz)."""
+    from scipy import signal  # imported here: scipy.signal takes ~1 s to import
+
     f = np.atleast_1d(np.asarray(freqs_hz, dtype=np.float64))
     if isinstance(block, SosBlock):
         return signal.sosfreqz(block.sos, worN=f, fs=fs)[1]

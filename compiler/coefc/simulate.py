@@ -10,7 +10,9 @@ word), output an int64 array; for float32 programs input and output are float32.
 Two paths compute the same thing:
 
 - the compiled core ``coefc._engine`` (C99, buffer protocol): products of two
-  words summed modulo ``2^64`` and sign-extended from ``acc_bits``; used when
+  words summed exactly (128-bit sums, or carries tracked out of 64 bits) and
+  wrapped to ``acc_bits``; consecutive sections run fused, sample by sample, so
+  their recursions overlap in the processor; used when
   ``acc_bits <= 64``, the data and coefficient words together are at most 64 bits
   wide and every rounding shift is below 63;
 - an exact Python-integer path for everything else (``acc_bits > 64``, ...):
@@ -122,7 +124,21 @@ def simulate(program: ChannelProgram, x, *, trace: bool = False, _exact: bool = 
     ar = program.arithmetic
     nodes, ovf, aovf = [], [], []
     cur = x
-    for op in program.ops:
+    ops = program.ops
+    i = 0
+    while i < len(ops):
+        op = ops[i]
+        if fast and not ar.is_float and isinstance(op, SectionOp):
+            j = i
+            while j < len(ops) and isinstance(ops[j], SectionOp) and ops[j].structure == op.structure:
+                j += 1
+            for y, o, a in _run_cascade(program, ops[i:j], cur):
+                nodes.append(y)
+                ovf.append(int(o))
+                aovf.append(int(a))
+                cur = y
+            i = j
+            continue
         if ar.is_float:
             y, o, a = _run_float(op, cur, fast)
         else:
@@ -131,6 +147,7 @@ def simulate(program: ChannelProgram, x, *, trace: bool = False, _exact: bool = 
         ovf.append(int(o))
         aovf.append(int(a))
         cur = y
+        i += 1
     y = cur if program.ops else cur.copy()
     if trace:
         return Trace(y=y, node_outputs=nodes, overflow_counts=ovf, acc_overflow_counts=aovf)
@@ -156,6 +173,16 @@ def _run_fast(program: ChannelProgram, op, x: np.ndarray):
     else:
         raise TypeError(f"not an op: {op!r}")
     return y, o, a
+
+
+def _run_cascade(program: ChannelProgram, secs, x: np.ndarray):
+    """Consecutive sections of one structure in one fused call of the compiled core."""
+    ar = program.arithmetic
+    coefs = np.array([[int(v) for v in (*op.b, *op.a)] + [_k(program, op)] for op in secs], dtype=np.int64)
+    ys = [np.empty_like(x) for _ in secs]
+    counts = _engine.cascade(x, ys, np.ascontiguousarray(coefs.ravel()), _STRUCT_CODE[secs[0].structure],
+                             ar.acc_bits, _ROUND_CODE[ar.rounding], _OVF_CODE[ar.overflow], ar.data.width)
+    return [(y, o, a) for y, (o, a) in zip(ys, counts)]
 
 
 def _delay(x: np.ndarray, d: int) -> np.ndarray:
