@@ -26,7 +26,9 @@ Pairing, ordering and scaling (``arithmetic.scaling`` = ``l1``, ``l2`` or ``linf
 The poles and zeros of the gathered cascade are re-paired (pole pair closest to the
 unit circle first, with its nearest zeros) and the sections ordered by pole radius,
 the direction chosen by the lower analytic output noise, then improved by pairwise
-exchanges of sections while that noise drops (:mod:`.pairing`).  Then
+exchanges of sections while that noise drops (:mod:`.pairing`); an order that
+would leave a scaled numerator with fewer than 8 significant coefficient bits is
+avoided whenever another order does better on that count.  Then
 every FIR and section output is scaled so that the transfer function from the
 channel input to that output has norm ``1 - 2 LSB`` (:mod:`.scaling`); the scale
 factors are arbitrary reals folded into the numerators (or taps), and the final
@@ -125,8 +127,9 @@ def _float_plan(design: ChannelDesign, arithmetic: Arithmetic):
             h_new = k0 * _chain_freq([("sos", s) for s in rep], f)
             if np.max(np.abs(h_new - h_old)) > 1e-8 * max(1e-300, float(np.max(np.abs(h_old)))):
                 raise pairing.NotRepairable("response changed")
-            sections, noise = pairing.order_sections(pre, rep, post, norm, target, arithmetic.structure,
-                                                     k0 * gain)
+            sections, noise = pairing.order_sections(
+                pre, rep, post, norm, target, arithmetic.structure, k0 * gain,
+                coef_lsb=0.0 if arithmetic.is_float else arithmetic.coef.lsb)
             notes.append("sections re-paired (poles closest to the unit circle first, each with its nearest "
                          f"zeros) and ordered for the lowest analytic output noise under {norm} scaling "
                          f"({10 * np.log10(noise['exchanged'] / (1 / 12)):.1f} dB above one rounding)")
@@ -255,16 +258,24 @@ def realise_channel(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelPro
     if arithmetic.scaling == "none":
         return _build(design, arithmetic, pre_gain, delay, chain0, final0, notes)
     target = _target(arithmetic)
+    first = None
     for _ in range(4):
         chain, final_gain = _scale(chain0, final0, arithmetic.scaling, target)
         prog = _build(design, arithmetic, pre_gain, delay, chain, final_gain, list(notes))
-        if arithmetic.scaling != "l1" or arithmetic.is_float:
+        if arithmetic.scaling != "l1" or arithmetic.is_float or any("unstable" in n for n in prog.notes):
             return prog
+        first = first or prog
         peak = _l1_worst_peak(prog)
         if peak <= arithmetic.data.max_value:
             return prog
+        if target * arithmetic.data.max_value / peak < _target(arithmetic) / 16:
+            break
         target *= arithmetic.data.max_value / peak * (1.0 - 1e-9)
-    return prog
+    worst = _l1_worst_peak(first)
+    return ChannelProgram(first.name, first.sample_rate_hz, first.arithmetic, first.ops, first.notes + (
+        f"l1 scaling: with the quantised coefficients and roundoff a section output can reach "
+        f"{20 * np.log10(worst / arithmetic.data.max_value):.1f} dB above full scale; not corrected "
+        "(more than 4 bits of headroom would be lost): use a wider coefficient or data word",))
 
 
 def _build(design, arithmetic, pre_gain, delay, chain, final_gain, notes) -> ChannelProgram:

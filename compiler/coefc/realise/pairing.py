@@ -96,13 +96,18 @@ def pole_radius(a) -> float:
 
 
 def order_sections(pre, sections, post, norm: str, target: float, structure: str,
-                   extra_gain: float = 1.0) -> tuple[list, dict]:
+                   extra_gain: float = 1.0, coef_lsb: float = 0.0) -> tuple[list, dict]:
     """Choose the order of *sections* (Jackson's rule, then pairwise exchanges).
 
     1. Sort the sections by pole radius, both ways; keep the direction with the
        lower analytic output noise (:func:`chain_noise`).
     2. For up to ``MAX_EXCHANGE`` sections, exchange pairs of sections while an
        exchange lowers the analytic noise (at most three passes).
+
+    With *coef_lsb* (the coefficient word's LSB), an order whose scaling leaves a
+    numerator with fewer than 8 significant bits of that word loses to any order
+    with fewer such numerators, whatever its noise: a numerator rounded to a few
+    LSB (or to zero) would destroy the response.
 
     *pre* and *post* are the float FIR ops (``("fir", taps)``) before and after the
     IIR cascade.  Returns the ordered sections and a dict of the analytic output
@@ -112,11 +117,14 @@ def order_sections(pre, sections, post, norm: str, target: float, structure: str
     desc = sorted(sections, key=lambda s: -pole_radius(s[1]))
     chain = list(pre) + [("sos", s) for s in sections] + list(post)
     n = scaling.response_length(chain)
+
+    def cost(secs):
+        return chain_cost(pre, secs, post, norm, target, structure, extra_gain, n, coef_lsb)
+
     cands = {"descending": desc, "ascending": desc[::-1]}
-    noise = {name: chain_noise(pre, secs, post, norm, target, structure, extra_gain, n)
-             for name, secs in cands.items()}
-    first = min(noise, key=noise.get)
-    best, best_noise = list(cands[first]), noise[first]
+    costs = {name: cost(secs) for name, secs in cands.items()}
+    first = min(costs, key=costs.get)
+    best, best_cost = list(cands[first]), costs[first]
     if len(best) <= MAX_EXCHANGE:
         for _ in range(3):
             improved = False
@@ -124,24 +132,34 @@ def order_sections(pre, sections, post, norm: str, target: float, structure: str
                 for j in range(i + 1, len(best)):
                     trial = list(best)
                     trial[i], trial[j] = trial[j], trial[i]
-                    v = chain_noise(pre, trial, post, norm, target, structure, extra_gain, n)
-                    if v < best_noise * (1 - 1e-9):
-                        best, best_noise, improved = trial, v, True
+                    v = cost(trial)
+                    if v[0] < best_cost[0] or (v[0] == best_cost[0] and v[1] < best_cost[1] * (1 - 1e-9)):
+                        best, best_cost, improved = trial, v, True
             if not improved:
                 break
-    noise["exchanged"] = best_noise
+    noise = {name: c[1] for name, c in costs.items()}
+    noise["exchanged"] = best_cost[1]
     return best, noise
 
 
 MAX_EXCHANGE = 6
 
 
-def chain_noise(pre, sections, post, norm: str, target: float, structure: str, extra_gain: float = 1.0,
-                length: int | None = None) -> float:
-    """Analytic output noise (data LSB^2) of the chain scaled by *norm*."""
+def chain_cost(pre, sections, post, norm: str, target: float, structure: str, extra_gain: float = 1.0,
+               length: int | None = None, coef_lsb: float = 0.0) -> tuple[int, float]:
+    """(numerators with fewer than 8 significant bits, analytic output noise in LSB^2)."""
     chain = list(pre) + [("sos", s) for s in sections] + list(post)
     n = length or scaling.response_length(chain)
     f = scaling.scale_factors(chain, norm, target, n)
     sc = [(k, scaling.scaled(k, op, c)) for (k, op), c in zip(chain, f)]
     g = extra_gain / float(np.prod(f))
-    return scaling.output_noise_lsb2(sc, g, structure, True, n)
+    thin = 0
+    if coef_lsb > 0:
+        thin = sum(1 for k, op in sc if k == "sos" and float(np.max(np.abs(op[0]))) < 128 * coef_lsb)
+    return thin, scaling.output_noise_lsb2(sc, g, structure, True, n)
+
+
+def chain_noise(pre, sections, post, norm: str, target: float, structure: str, extra_gain: float = 1.0,
+                length: int | None = None) -> float:
+    """Analytic output noise (data LSB^2) of the chain scaled by *norm*."""
+    return chain_cost(pre, sections, post, norm, target, structure, extra_gain, length)[1]
