@@ -155,6 +155,12 @@ def hand_programs(arith: Arithmetic, structures, seed: int = 1) -> list[ChannelP
     progs.append(ChannelProgram("gain", 48000.0, arith,
                                 (GainOp(_coef(arith, 1.75, 1 if fixed else 0), 1 if fixed else 0),)))
     progs.append(ChannelProgram("delay", 48000.0, arith, (DelayOp(5),)))
+    if fixed:
+        # very small gains: rounding shifts as wide as or wider than a 32-bit accumulator
+        fc = arith.coef.frac_bits
+        cmax = (1 << (arith.coef.width - 1)) - 1
+        for k, c in ((32, cmax), (40, -cmax), (62, cmax)):
+            progs.append(ChannelProgram(f"gain_k{k}", 48000.0, arith, (GainOp(c, fc - k),)))
     mixed = (GainOp(_coef(arith, 0.5), 0), DelayOp(2), _section(rng, arith, structures[0], 0),
              FirOp(tuple(_coef(arith, t) for t in rng.uniform(-0.3, 0.3, 4)), 0),
              _section(rng, arith, structures[-1], 1 if fixed else 0), GainOp(_coef(arith, 1.2, 1 if fixed else 0), 1 if fixed else 0))

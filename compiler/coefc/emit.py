@@ -240,7 +240,10 @@ def _ops(program: ChannelProgram, info: BuildInfo, prefix: str, target: Target):
     state = 0
     fc = arith.coef.frac_bits if fixed else 0
     cbits = arith.coef.width if fixed else 32
-    max_k = 64 if info.state_type == "int64_t" else 32
+    # the kernels round by 1..62 bits (as coefc's engine); a section's shift is
+    # also below its state word, since df1ef keeps the residual there
+    max_k = 63
+    state_bits = {"int16_t": 16, "int32_t": 32, "int64_t": 64}.get(info.state_type, 32)
 
     def rshift(shift: int, what: str) -> int:
         if not fixed:
@@ -285,6 +288,9 @@ def _ops(program: ChannelProgram, info: BuildInfo, prefix: str, target: Target):
                 v = terms[t.lstrip("-")]
                 values.append(-v if t.startswith("-") else v)
             k = rshift(op.shift, what)
+            if k >= state_bits - 1:
+                raise EmitError(f"channel '{program.name}': {what} needs a right shift of {k} bits, too many "
+                                f"for the {state_bits}-bit state word of target '{target.name}'")
             at = add(values, what)
             words = _STATE_WORDS[op.structure]
             ops.append((f"{P}_OP_{op.structure.upper()}", k, 1, at, state,

@@ -49,6 +49,10 @@ static sacc_t round_shift(sacc_t v, unsigned k, unsigned mode)
     if (k == 0u) {
         return v;
     }
+    if (k >= ACC_CONTAINER_BITS) {
+        /* |v| <= 2^(k-1): every mode gives 0, except floor of a negative value */
+        return (mode == COEFC_DSP24_ROUND_FLOOR && v < 0) ? -1 : 0;
+    }
     q = floor_shift(v, k);
     r = (uacc_t)v & (((uacc_t)1 << k) - 1u); /* v - q * 2^k */
     half = (uacc_t)1 << (k - 1u);
