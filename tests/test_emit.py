@@ -256,3 +256,26 @@ def test_unbudgeted_overflow_and_limit_cycles_are_noted():
     report.channels[0].metrics["overflow_count"] = 0
     text = render(fake_realisation([prog], "mcu32"), report, header_name="b.h")["b.h"]
     assert "NOTE 'woofer': limit cycles found" in text and "overflow under" not in text
+
+
+def test_memory_attributes_and_post_shift_switch(tmp_path):
+    """[memory] and [layout] post_shift of a user target reach the header."""
+    import shutil
+
+    folder = tmp_path / "board"
+    shutil.copytree(find_target("mcu32").folder, folder)
+    toml = folder / "target.toml"
+    text = toml.read_text().replace('linker_section = ""', 'linker_section = ".fast_coefs"')
+    toml.write_text(text.replace("alignment = 4", "alignment = 32"))
+    t = find_target("board", [tmp_path])
+    real = fake_realisation([ChannelProgram("a", 48000.0, MCU32, (SEC,))], "mcu32")
+    real = type(real)(real.design, t, real.programs)
+    header = render(real, None, header_name="b.h", vectors=8)["b.h"]
+    assert '#define BENCH_COEF_ATTR __attribute__((aligned(32), section(".fast_coefs")))' in header
+    rc, out = run_headers(tmp_path / "run", "board", [("b.h", "bench", header)], target_dirs=[tmp_path])
+    assert rc == 0, out
+    toml.write_text(toml.read_text().replace("post_shift = true", "post_shift = false"))
+    t = find_target("board", [tmp_path])
+    real = type(real)(real.design, t, real.programs)
+    with pytest.raises(EmitError, match=r"section 1 needs post-shift 1 but target 'board' has none"):
+        render(real, None, header_name="b.h")
