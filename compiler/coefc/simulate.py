@@ -75,7 +75,7 @@ def _input(program: ChannelProgram, x) -> np.ndarray:
         if lo < ar.data.min_int or hi > ar.data.max_int:
             raise DataError(f"channel '{program.name}': input word {lo if lo < ar.data.min_int else hi} is outside "
                             f"{ar.data} [{ar.data.min_int}, {ar.data.max_int}]")
-    return np.ascontiguousarray(x.astype(np.int64))
+    return np.ascontiguousarray(x, dtype=np.int64)
 
 
 def _k(program: ChannelProgram, op) -> int:
@@ -132,7 +132,7 @@ def simulate(program: ChannelProgram, x, *, trace: bool = False, _exact: bool = 
             j = i
             while j < len(ops) and isinstance(ops[j], SectionOp) and ops[j].structure == op.structure:
                 j += 1
-            for y, o, a in _run_cascade(program, ops[i:j], cur):
+            for y, o, a in _run_cascade(program, ops[i:j], cur, keep_nodes=trace):
                 nodes.append(y)
                 ovf.append(int(o))
                 aovf.append(int(a))
@@ -175,11 +175,15 @@ def _run_fast(program: ChannelProgram, op, x: np.ndarray):
     return y, o, a
 
 
-def _run_cascade(program: ChannelProgram, secs, x: np.ndarray):
-    """Consecutive sections of one structure in one fused call of the compiled core."""
+def _run_cascade(program: ChannelProgram, secs, x: np.ndarray, keep_nodes: bool = True):
+    """Consecutive sections of one structure in one fused call of the compiled core.
+
+    Without *keep_nodes* every section writes the same buffer (the last one wins),
+    which saves memory traffic when only the output is wanted.
+    """
     ar = program.arithmetic
     coefs = np.array([[int(v) for v in (*op.b, *op.a)] + [_k(program, op)] for op in secs], dtype=np.int64)
-    ys = [np.empty_like(x) for _ in secs]
+    ys = [np.empty_like(x) for _ in secs] if keep_nodes else [np.empty_like(x)] * len(secs)
     counts = _engine.cascade(x, ys, np.ascontiguousarray(coefs.ravel()), _STRUCT_CODE[secs[0].structure],
                              ar.acc_bits, _ROUND_CODE[ar.rounding], _OVF_CODE[ar.overflow], ar.data.width)
     return [(y, o, a) for y, (o, a) in zip(ys, counts)]
