@@ -241,3 +241,59 @@ def test_float_programs_have_no_sections_to_search():
     p = ChannelProgram("f", 48000.0, Arithmetic(kind="float32", data=None, coef=None),
                        (SectionOp(b=(1.0, 0.0, 0.0), a=(-1.8, 0.95), shift=0),))
     assert analyse_limit_cycles(p).sections == ()
+
+
+# ---------------------------------------------------------------- df1ef (error feedback)
+
+def brute_force_ef(op: SectionOp, ar: Arithmetic, box: int):
+    """Largest zero-input cycle amplitude of a df1ef section over every (y1, y2, E), written
+    from the recurrence: acc = -A1 y1 - A2 y2 + E; v = round(acc / 2^k); E' = acc - v 2^k."""
+    A1, A2 = op.a
+    k = ar.coef.frac_bits - op.shift
+    K = 1 << k
+    e_all = range(-K + 1, K)  # wide enough for every rounding mode; unreachable residuals are harmless
+    best = 0
+    done = set()
+    for s1 in range(-box, box + 1):
+        for s2 in range(-box, box + 1):
+            for e in e_all:
+                path, idx, s = [], {}, (s1, s2, e)
+                while s not in idx and s not in done:
+                    idx[s] = len(path)
+                    path.append(s)
+                    acc = -A1 * s[0] - A2 * s[1] + s[2]
+                    v = ref_round(acc, k, ar.rounding)
+                    y = min(max(v, -(1 << (ar.data.width - 1))), (1 << (ar.data.width - 1)) - 1)
+                    s = (y, s[0], acc - v * K)
+                if s in idx:
+                    cyc = path[idx[s]:]
+                    best = max(best, max(max(abs(a), abs(b)) for a, b, _ in cyc))
+                done.update(path)
+    return best
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_error_feedback_search_matches_brute_force(seed):
+    # the residual-interval search against every (y1, y2, E) state at a short word length
+    rng = np.random.default_rng(100 + seed)
+    r, t = rng.uniform(0.5, 0.9), rng.uniform(0.1, math.pi - 0.1)
+    rounding = ["nearest", "convergent", "floor", "zero"][seed % 4]
+    ar = arith(data=(1, 9), coef=(2, 5), acc=24, rounding=rounding, structure="df1ef")
+    op = section(-2 * r * math.cos(t), r * r, ar)
+    res = analyse_section(op, 0, ar)
+    assert res.exhaustive, res.note
+    expected = brute_force_ef(op, ar, int(res.bound_lsb) + 1)
+    assert (res.amplitude_lsb or 0) == expected
+    assert res.status == ("found" if expected else "none")
+    assert expected <= res.bound_lsb
+
+
+def test_error_feedback_removes_the_dc_dead_band():
+    # plain df1 rounding holds a DC offset of about (q/2)/A(1) for poles near z = 1 (the dead
+    # band, Jones CNX m11928 [confirmed]); first-order error feedback leaves none (proven here)
+    a1, a2 = -2 * 0.98 * math.cos(0.02), 0.98 ** 2
+    plain = analyse_section(section(a1, a2, arith()), 0, arith())
+    ef_ar = arith(structure="df1ef")
+    ef = analyse_section(section(a1, a2, ef_ar), 0, ef_ar)
+    assert plain.status == "found" and plain.period == 1 and plain.amplitude_lsb > 5
+    assert ef.status == "none" and ef.exhaustive

@@ -292,6 +292,95 @@ def _walk(y1: int, y2: int, a1: int, a2: int, k: int, arith: Arithmetic, limit: 
     return None, None, []
 
 
+# ---------------------------------------------------------------- df1ef: residual intervals
+
+def _residual_range(k: int, mode: str) -> tuple[int, int]:
+    """Inclusive range of the df1ef residual ``E = acc - round_shift(acc, k) * 2^k``."""
+    K, h = 1 << k, 1 << (k - 1)
+    return {"nearest": (-h, h - 1), "convergent": (-h, h), "floor": (0, K - 1), "zero": (-(K - 1), K - 1)}[mode]
+
+
+def _pieces(lo: int, hi: int, k: int, mode: str):
+    """Split the accumulator interval [lo, hi] where ``round_shift(acc, k, mode)`` is constant."""
+    K, h = 1 << k, 1 << (k - 1)
+    a = lo
+    while a <= hi:
+        m = a // K
+        if (mode == "convergent" and a == m * K + h) or (mode == "zero" and a == m * K):
+            yield a, a  # a tie (convergent) or an exact multiple (zero) rounds on its own
+            a += 1
+            continue
+        nxt = min(c for c in (m * K + h, (m + 1) * K) if c > a)
+        b = min(hi, nxt - 1)
+        yield a, b
+        a = b + 1
+
+
+def _merge(iv: list) -> list:
+    iv.sort()
+    out: list = []
+    for a, b in iv:
+        if out and a <= out[-1][1] + 1:
+            if b > out[-1][1]:
+                out[-1][1] = b
+        else:
+            out.append([a, b])
+    return out
+
+
+def ef_interval_search(a1: int, a2: int, k: int, arith: Arithmetic, B: int, D: int, S: int, order: int,
+                       max_work: int = 40_000):
+    """Exhaustive zero-input search of a df1ef section over (y1, y2) and every residual E.
+
+    For fixed outputs ``(y1, y2)`` the next output is constant on at most a few
+    intervals of ``E`` and the new residual is ``E`` shifted by a constant there, so
+    sets of states are kept exactly as unions of residual intervals per output pair.
+    The candidate set (every state with outputs inside the bounds) is mapped until it
+    stops shrinking, as in :func:`cycle_states`.  Returns ``(status, pairs, found)``
+    with status ``none`` or ``found``, or ``None`` when it did not settle within
+    *max_work* interval steps (or the accumulator could wrap).
+    """
+    K = 1 << k
+    lo_e, hi_e = _residual_range(k, arith.rounding)
+    if (abs(a1) + abs(a2)) * B + K >= 1 << (arith.acc_bits - 1):
+        return None
+    mode = arith.rounding
+    st = {}
+    for y1 in range(-B, B + 1):
+        for y2 in (range(-B, B + 1) if order == 2 else (0,)):
+            if order == 1 or (abs(y1 - y2) <= D and abs(y1 + y2) <= S):
+                st[(y1, y2)] = [[lo_e, hi_e]]
+    pairs = len(st)
+    size = sum(b - a + 1 for v in st.values() for a, b in v)
+    work = 0
+    while work <= max_work:
+        new: dict = {}
+        for (y1, y2), ivs in st.items():
+            P = -a1 * y1 - a2 * y2
+            for a, b in ivs:
+                for pa, pb in _pieces(P + a, P + b, k, mode):
+                    work += 1
+                    v = round_shift(pa, k, mode)
+                    if abs(v) > B or (order == 2 and (abs(v - y1) > D or abs(v + y1) > S)):
+                        continue
+                    new.setdefault((v, y1 if order == 2 else 0), []).append([pa - v * K, pb - v * K])
+        st = {key: _merge(v) for key, v in new.items()}
+        nsize = sum(b - a + 1 for v in st.values() for a, b in v)
+        if nsize == size:
+            live = [key for key in st if key != (0, 0)]
+            if not live:
+                return "none", pairs, None
+            y1, y2 = max(live, key=lambda p: max(abs(p[0]), abs(p[1])))
+            per, am, cyc = _walk_ef(y1, y2, st[(y1, y2)][0][0], a1, a2, k, arith, 1 << 20)
+            if not per:  # pragma: no cover - every state of the settled set lies on a cycle
+                return None
+            start = max(cyc, key=lambda p: abs(p[0]))
+            return "found", pairs, dict(amplitude_lsb=int(am), period=int(per),
+                                        start_state=tuple(int(v) for v in start))
+        size = nsize
+    return None
+
+
 # ---------------------------------------------------------------- per section
 
 def _section_phys(op: SectionOp, arith: Arithmetic):
@@ -301,7 +390,7 @@ def _section_phys(op: SectionOp, arith: Arithmetic):
 
 def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states: int = MAX_STATES,
                     sample_starts: int = 512, sample_steps: int = 2048, overflow_starts: int = 256,
-                    seed: int = 1969) -> SectionLimitCycles:
+                    seed: int = 1969, ef_work: int = 40_000) -> SectionLimitCycles:
     """Granular limit cycles and overflow oscillations of one section with zero input."""
     a1, a2 = int(op.a[0]), int(op.a[1])
     order = 2 if a2 != 0 else 1
@@ -331,12 +420,21 @@ def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states:
         B = min(B, (D + S) // 2)  # |y1 - y2| <= D and |y1 + y2| <= S bound |y1| and |y2| too
     exhaustive_ok = structure in ("df1", "tdf2") and B < fs_lsb
     count = _count_candidates(B, D, S, order, max_states) if exhaustive_ok else 0
-    if structure == "df1ef":
-        notes.append("df1ef keeps the rounding residual as state: the bound holds but the state space is "
-                     "too large for an exhaustive search; sampled search only")
+    ef_result = None
+    if structure == "df1ef" and B < fs_lsb:
+        ef_result = ef_interval_search(a1, a2 if order == 2 else 0, k, arith, B, D, S, order, max_work=ef_work)
+        if ef_result is None:
+            notes.append("df1ef keeps the rounding residual as state; the search over residual intervals did "
+                         f"not settle within its work limit ({ef_work} interval steps); sampled search only")
     if B >= fs_lsb:
         notes.append("the bound reaches full scale: the granular model gives no useful bound")
-    if exhaustive_ok and count <= max_states:
+    if ef_result is not None:
+        status, keys, found = ef_result
+        res = dict(status=status, bound_lsb=Bf, exhaustive=True, states_searched=keys)
+        if found:
+            res.update(found)
+        notes.append(f"searched {keys} output-state pairs, each with every rounding residual (as intervals)")
+    elif exhaustive_ok and count <= max_states:
         y1, y2 = cycle_states(a1, a2, k, arith, B, D, S, order)
         if len(y1) == 0:
             res = dict(status="none", bound_lsb=Bf, exhaustive=True, states_searched=count)
