@@ -1,20 +1,27 @@
 /*
  * coefc._engine: compiled core of the bit-true engine (coefc.simulate).
  *
- * In:  a contiguous int64 (or float32) input buffer, a writable output buffer of
- *      the same length and type, the op's integer coefficients and arithmetic.
- * Out: the output buffer filled; returns (data overflow count, accumulator
- *      overflow count) for fixed point.
+ * In:  a contiguous int64 (or float32) input buffer, writable output buffer(s) of
+ *      the same length and type, the ops' integer coefficients and arithmetic.
+ * Out: the output buffers filled; for fixed point the (data overflow count,
+ *      accumulator overflow count) of each op.
+ *
+ *   cascade(x, ys, coefs, structure, acc_bits, rounding, overflow, data_width)
+ *       consecutive second-order sections, fused sample by sample
+ *   fir(x, y, taps, k, acc_bits, rounding, overflow, data_width)
+ *   gain(x, y, C, k, acc_bits, rounding, overflow, data_width)
+ *   sos_f32 / fir_f32 / gain_f32: float32 in the stated operation order
  *
  * The arithmetic is the one stated in the docstring of coefc/program.py.
  * Accumulators: products of two words (together at most 64 bits wide, so every
- * product fits in int64) are summed exactly; when a sum could leave int64 the
- * engine tracks the carries out of 64 bits in a second word, so the exact sum is
- * known to lie inside or outside the acc_bits range.  The wrapped accumulator is
- * the low acc_bits of the exact sum, sign-extended.  Signed overflow is never
- * relied upon: additions that may wrap are done in uint64_t.  Right shifts of
- * negative values and uint64 -> int64 conversions assume two's complement with
- * arithmetic shift (gcc, clang, MSVC).
+ * product fits in int64) are summed exactly -- in int64 where bounds on the
+ * coefficients prove it exact, else in __int128 (or, without it, in a 64-bit word
+ * plus a count of carries out of it) -- so the exact sum is known to lie inside or
+ * outside the acc_bits range.  The wrapped accumulator is the low acc_bits of the
+ * exact sum, sign-extended.  Signed overflow is never relied upon: additions that
+ * may wrap are done in uint64_t.  Right shifts of negative values and uint64 ->
+ * int64 conversions assume two's complement with arithmetic shift (gcc, clang,
+ * MSVC).  Define COEFC_NO_INT128 to build the portable carry-counting sums.
  *
  * float32 ops use float arithmetic in the stated order; build with
  * -ffp-contract=off so no multiply-add is fused.
@@ -158,94 +165,6 @@ static int get_xy(PyObject *xo, PyObject *yo, Py_buffer *xb, Py_buffer *yb, char
 }
 
 /* ------------------------------------------------------------ fixed-point ops */
-
-static void sos_df1_fast(const int64_t *x, int64_t *y, Py_ssize_t n, const int64_t *c, int ef,
-                         const arith_t *ar, long long *ovf, long long *aovf)
-{
-    const int64_t b0 = c[0], b1 = c[1], b2 = c[2], a1 = c[3], a2 = c[4];
-    int64_t x1 = 0, x2 = 0, y1 = 0, y2 = 0, e = 0;
-    for (Py_ssize_t i = 0; i < n; i++) {
-        int64_t xn = x[i];
-        int64_t acc = b0 * xn + b1 * x1 + b2 * x2 - a1 * y1 - a2 * y2 + e;
-        acc = afinish(acc, ar, aovf);
-        int64_t v = rshift(acc, ar);
-        if (ef) e = (int64_t)((uint64_t)acc - ((uint64_t)v << ar->k));
-        int64_t yn = fit(v, ar, ovf);
-        y[i] = yn;
-        x2 = x1; x1 = xn; y2 = y1; y1 = yn;
-    }
-}
-
-static void sos_df1_wide(const int64_t *x, int64_t *y, Py_ssize_t n, const int64_t *c, int ef,
-                         const arith_t *ar, long long *ovf, long long *aovf)
-{
-    const int64_t b0 = c[0], b1 = c[1], b2 = c[2], a1 = c[3], a2 = c[4];
-    int64_t x1 = 0, x2 = 0, y1 = 0, y2 = 0, e = 0;
-    for (Py_ssize_t i = 0; i < n; i++) {
-        int64_t xn = x[i];
-        wide_t w = {0, 0};
-        wadd(&w, b0 * xn); wadd(&w, b1 * x1); wadd(&w, b2 * x2);
-        wadd(&w, -(a1 * y1)); wadd(&w, -(a2 * y2)); wadd(&w, e);
-        int64_t acc = wfinish(&w, ar, aovf);
-        int64_t v = rshift(acc, ar);
-        if (ef) e = (int64_t)((uint64_t)acc - ((uint64_t)v << ar->k));
-        int64_t yn = fit(v, ar, ovf);
-        y[i] = yn;
-        x2 = x1; x1 = xn; y2 = y1; y1 = yn;
-    }
-}
-
-static void sos_tdf2(const int64_t *x, int64_t *y, Py_ssize_t n, const int64_t *c,
-                     const arith_t *ar, long long *ovf, long long *aovf)
-{
-    const int64_t b0 = c[0], b1 = c[1], b2 = c[2], a1 = c[3], a2 = c[4];
-    int64_t s1 = 0, s2 = 0;
-    for (Py_ssize_t i = 0; i < n; i++) {
-        int64_t xn = x[i];
-        long long bad = 0;
-        wide_t w = {0, 0};
-        wadd(&w, b0 * xn); wadd(&w, s1);
-        int64_t acc = wfinish(&w, ar, &bad);
-        int64_t yn = fit(rshift(acc, ar), ar, ovf);
-        wide_t w1 = {0, 0}, w2 = {0, 0};
-        wadd(&w1, b1 * xn); wadd(&w1, -(a1 * yn)); wadd(&w1, s2);
-        wadd(&w2, b2 * xn); wadd(&w2, -(a2 * yn));
-        s1 = wfinish(&w1, ar, &bad);
-        s2 = wfinish(&w2, ar, &bad);
-        if (bad) (*aovf)++;
-        y[i] = yn;
-    }
-}
-
-static PyObject *py_sos(PyObject *self, PyObject *args)
-{
-    PyObject *xo, *yo;
-    long long c[5];
-    int k, structure, acc_bits, rounding, overflow, width;
-    if (!PyArg_ParseTuple(args, "OOLLLLLiiiiii", &xo, &yo, &c[0], &c[1], &c[2], &c[3], &c[4], &k, &structure,
-                          &acc_bits, &rounding, &overflow, &width))
-        return NULL;
-    arith_t ar;
-    if (arith_init(&ar, k, acc_bits, rounding, overflow, width) < 0) return NULL;
-    if (structure < 0 || structure > 2) { PyErr_SetString(PyExc_ValueError, "engine: unknown structure"); return NULL; }
-    Py_buffer xb, yb;
-    if (get_xy(xo, yo, &xb, &yb, 'i') < 0) return NULL;
-    int64_t cc[5];
-    for (int i = 0; i < 5; i++) cc[i] = (int64_t)c[i];
-    Py_ssize_t n = xb.len / 8;
-    long long ovf = 0, aovf = 0;
-    const int64_t *x = (const int64_t *)xb.buf;
-    int64_t *y = (int64_t *)yb.buf;
-    int ef = structure == 2;
-    int fast = structure != 1 && sum_bound_ok(cc, 5, width, ef ? (UINT64_C(1) << k) : 0);
-    Py_BEGIN_ALLOW_THREADS
-    if (structure == 1) sos_tdf2(x, y, n, cc, &ar, &ovf, &aovf);
-    else if (fast) sos_df1_fast(x, y, n, cc, ef, &ar, &ovf, &aovf);
-    else sos_df1_wide(x, y, n, cc, ef, &ar, &ovf, &aovf);
-    Py_END_ALLOW_THREADS
-    PyBuffer_Release(&xb); PyBuffer_Release(&yb);
-    return Py_BuildValue("LL", ovf, aovf);
-}
 
 static PyObject *py_fir(PyObject *self, PyObject *args)
 {
@@ -622,10 +541,6 @@ static PyObject *py_gain_f32(PyObject *self, PyObject *args)
 }
 
 static PyMethodDef engine_methods[] = {
-    {"sos", py_sos, METH_VARARGS,
-     "sos(x, y, B0, B1, B2, A1, A2, k, structure, acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)\n"
-     "structure: 0 df1, 1 tdf2, 2 df1ef; rounding: 0 nearest, 1 floor, 2 convergent, 3 zero; "
-     "overflow: 0 saturate, 1 wrap."},
     {"cascade", py_cascade, METH_VARARGS,
      "cascade(x, ys, coefs, structure, acc_bits, rounding, overflow, data_width) -> [(ovf, acc_ovf), ...]\n"
      "coefs: int64 buffer of B0, B1, B2, A1, A2, k per section; ys: one writable int64 buffer per section."},

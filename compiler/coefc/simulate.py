@@ -39,7 +39,7 @@ try:  # the compiled core; the exact Python path covers its absence
 except ImportError:  # pragma: no cover - a broken build; see HAVE_ENGINE
     _engine = None
 
-HAVE_ENGINE = _engine is not None and hasattr(_engine, "sos")
+HAVE_ENGINE = _engine is not None and hasattr(_engine, "cascade")
 
 _STRUCT_CODE = {"df1": 0, "tdf2": 1, "df1ef": 2}
 _ROUND_CODE = {m: i for i, m in enumerate(ROUNDING_MODES)}  # nearest, floor, convergent, zero
