@@ -173,3 +173,24 @@ def test_input_out_of_range_is_a_data_error():
         sim.simulate(prog, [0, 40000])
     with pytest.raises(DataError, match="integer data words"):
         sim.simulate(prog, np.zeros(3))
+
+
+@settings(**dict(SETTINGS, max_examples=60))
+@given(st.integers(0, 2 ** 31 - 1), st.sampled_from(ROUNDING_MODES))
+def test_tdf2_equals_df1_without_accumulator_wrap(seed, rounding):
+    # with unrounded accumulator-width states, tdf2's states hold exactly the
+    # partial sums of df1 (Oppenheim & Schafer sec. 6.3-6.5: both realise
+    # (b0 + b1 z^-1 + b2 z^-2)/(1 + a1 z^-1 + a2 z^-2)), so outputs agree bit for bit
+    rng = np.random.default_rng(seed)
+    r, th = rng.uniform(0.1, 0.99), rng.uniform(0, np.pi)
+    a = (round(-2 * r * np.cos(th) * 2 ** 30), round(r * r * 2 ** 30))
+    b = tuple(int(v) for v in rng.integers(-(1 << 28), 1 << 28, 3))
+    x = rng.integers(-(1 << 31), 1 << 31, 300)
+    out = {}
+    for structure in ("df1", "tdf2"):
+        ar = Arithmetic(structure=structure, rounding=rounding, acc_bits=64)
+        prog = ChannelProgram("t", 48000, ar, (SectionOp(b=b, a=a, shift=0, structure=structure),))
+        t = sim.simulate(prog, x, trace=True)
+        assert t.acc_overflow_counts == [0]
+        out[structure] = t.y
+    assert np.array_equal(out["df1"], out["tdf2"])
