@@ -335,7 +335,34 @@ ALWAYS_INLINE void cascade_body(const int64_t *restrict x, Py_ssize_t n, sec_t *
             sec_t *restrict c = &s[j];
             int64_t *restrict yo = c->y;
             int64_t out;
-            if (structure == 1) { /* tdf2 */
+            int tdone = 0;
+            if (structure == 1 && c->split) {
+                /* tdf2 fast path: the products pair up into int64-exact partial sums
+                   (checked bounds); each addition of a state is sign-tested and
+                   range-checked; any doubt falls through to the exact wide sums */
+                const int64_t s1 = c->s1, s2 = c->s2;
+                int64_t p0 = c->b0 * in;
+                int64_t a0 = (int64_t)((uint64_t)p0 + (uint64_t)s1);
+                if (((p0 ^ a0) & (s1 ^ a0)) >= 0 && a0 >= ar->acc_lo && a0 <= ar->acc_hi) {
+                    int64_t v = rshift_m(a0, c, mode), o;
+                    if (sat) { o = v > ar->hi ? ar->hi : v; o = o < ar->lo ? ar->lo : o; }
+                    else o = sext((uint64_t)v, ar->width);
+                    int64_t q1 = c->b1 * in - c->a1 * o;
+                    int64_t n1 = (int64_t)((uint64_t)q1 + (uint64_t)s2);
+                    int64_t n2 = c->b2 * in - c->a2 * o;
+                    if (((q1 ^ n1) & (s2 ^ n1)) >= 0 && n1 >= ar->acc_lo && n1 <= ar->acc_hi &&
+                        n2 >= ar->acc_lo && n2 <= ar->acc_hi) {
+                        if (o != v) c->ovf++;
+                        c->s1 = n1;
+                        c->s2 = n2;
+                        out = o;
+                        tdone = 1;
+                    }
+                }
+            }
+            if (tdone) {
+                /* done above */
+            } else if (structure == 1) { /* tdf2, exact wide sums */
                 long long bad = 0;
                 wsum_t w, w1, w2;
                 WS_INIT(w); WS_ADD(w, c->b0 * in); WS_ADD(w, c->s1);
@@ -437,8 +464,14 @@ static PyObject *py_cascade(PyObject *self, PyObject *args)
         secs[j].kmask = (UINT64_C(1) << k) - 1;
         secs[j].khalf = UINT64_C(1) << (k - 1);
         secs[j].y = (int64_t *)yb[j].buf;
-        secs[j].split = sum_bound_ok(cj + 1, 2, width, structure == 2 ? (UINT64_C(1) << k) : 0) &&
-                        sum_bound_ok(cj + 3, 2, width, 0) && sum_bound_ok(cj, 1, width, 0);
+        if (structure == 1) {
+            int64_t p1[2] = {cj[1], cj[3]}, p2[2] = {cj[2], cj[4]};
+            secs[j].split = sum_bound_ok(cj, 1, width, 0) && sum_bound_ok(p1, 2, width, 0) &&
+                            sum_bound_ok(p2, 2, width, 0);
+        } else {
+            secs[j].split = sum_bound_ok(cj + 1, 2, width, structure == 2 ? (UINT64_C(1) << k) : 0) &&
+                            sum_bound_ok(cj + 3, 2, width, 0) && sum_bound_ok(cj, 1, width, 0);
+        }
         {
             int64_t bias = (rounding == 0 || rounding == 2) ? (int64_t)secs[j].khalf : 0;
             secs[j].t_lo = ar.acc_lo + bias;
