@@ -99,6 +99,14 @@ def test_json_contract(tweeter_report):
                 "output_noise_dbfs_simulated", "max_pole_radius", "headroom_bits", "overflow_count"):
         assert key in m
     assert m["limit_cycle"]["status"] in ("none", "found", "unproven")
+    # the noise density for reports: integrated over 0..fs/2 it is the analytic output noise
+    import numpy as np
+
+    f = np.array([p["freq_hz"] for p in m["noise_spectrum"]])
+    dens = 0.5 * 10 ** (np.array([p["dbfs_per_hz"] for p in m["noise_spectrum"]]) / 10)
+    assert f[-1] == 24000.0 and np.all(np.isfinite(dens))
+    total = 10 * np.log10(np.trapezoid(dens, f) / 0.5)
+    assert abs(total - m["output_noise_dbfs"]) < 3.0  # a coarse 48-point grid
     assert {"amplitude_lsb", "period"} <= set(m["limit_cycle"])
     for c in ch["checks"]:
         assert {"name", "value", "limit", "ok"} <= set(c)

@@ -58,6 +58,7 @@ class Metrics:
     limit_cycles: LimitCycleAnalysis
     is_float: bool
     overflow_mode: str = "saturate"
+    sample_rate_hz: float = 48000.0
 
     @property
     def output_noise_dbfs(self) -> float | None:
@@ -121,8 +122,20 @@ class Metrics:
                        "full_scale": g.full_scale, "headroom_bits": g.headroom_bits,
                        "headroom_bits_sine": g.headroom_bits_sine} for g in o.nodes],
             "overflow_oscillation": "none" if self.is_float else lc.overflow_status,
+            "noise_spectrum": self.noise_spectrum(),
         }
         return _clean(d)
+
+    def noise_spectrum(self, points: int = 48) -> list[dict] | None:
+        """Analytic output-noise density (dBFS/Hz, AES17 reference) on a log grid, for reports."""
+        if self.noise is None or not self.noise.sources:
+            return None
+        import numpy as np
+
+        fs = self.sample_rate_hz
+        f = np.geomspace(min(10.0, fs / 4800.0), fs / 2.0, points)
+        dens = self.noise.spectrum(f, fs)
+        return [{"freq_hz": float(a), "dbfs_per_hz": float(b)} for a, b in zip(f, dens)]
 
 
 def _clean(v):
@@ -170,4 +183,5 @@ def analyse_channel(design: ChannelDesign, program: ChannelProgram,
             if opt.measure_noise else None)
     ovf = analyse_overflow(program, run_engine=opt.worst_case_runs, models=models, n=n)
     lc = analyse_limit_cycles(program, max_states=opt.max_states)
-    return Metrics(resp, noise, meas, ovf, lc, program.arithmetic.is_float, program.arithmetic.overflow)
+    return Metrics(resp, noise, meas, ovf, lc, program.arithmetic.is_float, program.arithmetic.overflow,
+                   float(program.sample_rate_hz))
