@@ -272,6 +272,7 @@ typedef struct {
     int64_t *y;
     int split; /* b1 x1 + b2 x2 (+ e) and a1 y1 + a2 y2 each provably exact in int64 */
     int64_t t_lo, t_hi; /* acc range shifted by the rounding bias */
+    int64_t r_max;      /* INT64_MAX - rounding bias */
 } sec_t;
 
 ALWAYS_INLINE int64_t rshift_m(int64_t v, const sec_t *c, const int mode)
@@ -284,17 +285,23 @@ ALWAYS_INLINE int64_t rshift_m(int64_t v, const sec_t *c, const int mode)
     return q + (v < 0 && rem != 0);
 }
 
+#if defined(__GNUC__) || defined(__clang__)
+#define UNLIKELY(c) __builtin_expect(!!(c), 0)
+#else
+#define UNLIKELY(c) (c)
+#endif
+
+/* fit into the data word.  A (predicted) branch rather than a conditional move:
+   overflow is rare, and a branch keeps the clamp off the data dependence chain
+   from one section to the next. */
 ALWAYS_INLINE int64_t fit_m(int64_t v, const arith_t *ar, long long *ovf, const int sat)
 {
-    int64_t r;
-    if (sat) {
-        r = v > ar->hi ? ar->hi : v;
-        r = r < ar->lo ? ar->lo : r;
-    } else {
-        r = sext((uint64_t)v, ar->width);
+    if (UNLIKELY(v > ar->hi || v < ar->lo)) {
+        (*ovf)++;
+        if (sat) return v > ar->hi ? ar->hi : ar->lo;
+        return sext((uint64_t)v, ar->width);
     }
-    if (r != v) (*ovf)++;
-    return r;
+    return v;
 }
 
 #if defined(__GNUC__) || defined(__clang__)
@@ -318,7 +325,8 @@ static NOINLINE int64_t df1_wide_acc(sec_t *c, int64_t in, int64_t x1, int64_t x
 }
 
 ALWAYS_INLINE void cascade_body(const int64_t *restrict x, Py_ssize_t n, sec_t *restrict s, int ns,
-                                const arith_t *ar_in, const int structure, const int mode, const int sat)
+                                const arith_t *ar_in, const int structure, const int mode, const int sat,
+                                const int acc64)
 {
     const arith_t A = *ar_in; /* a local copy: no store below can change it */
     const arith_t *ar = &A;
@@ -344,9 +352,9 @@ ALWAYS_INLINE void cascade_body(const int64_t *restrict x, Py_ssize_t n, sec_t *
                 int64_t p0 = c->b0 * in;
                 int64_t a0 = (int64_t)((uint64_t)p0 + (uint64_t)s1);
                 if (((p0 ^ a0) & (s1 ^ a0)) >= 0 && a0 >= ar->acc_lo && a0 <= ar->acc_hi) {
-                    int64_t v = rshift_m(a0, c, mode), o;
-                    if (sat) { o = v > ar->hi ? ar->hi : v; o = o < ar->lo ? ar->lo : o; }
-                    else o = sext((uint64_t)v, ar->width);
+                    int64_t v = rshift_m(a0, c, mode), o = v;
+                    if (UNLIKELY(v > ar->hi || v < ar->lo))
+                        o = sat ? (v > ar->hi ? ar->hi : ar->lo) : sext((uint64_t)v, ar->width);
                     int64_t q1 = c->b1 * in - c->a1 * o;
                     int64_t n1 = (int64_t)((uint64_t)q1 + (uint64_t)s2);
                     int64_t n2 = c->b2 * in - c->a2 * o;
@@ -390,10 +398,11 @@ ALWAYS_INLINE void cascade_body(const int64_t *restrict x, Py_ssize_t n, sec_t *
                     uint64_t ur = (uint64_t)ffp - (uint64_t)fb;
                     int64_t r = (int64_t)ur;
                     int64_t p0 = c->b0 * in;
-                    if (((ffp ^ fb) & (ffp ^ r)) >= 0 && r <= INT64_MAX - bias) {
+                    if (((ffp ^ fb) & (ffp ^ r)) >= 0 && r <= c->r_max) {
                         int64_t pb = r + bias;
                         int64_t t = (int64_t)((uint64_t)pb + (uint64_t)p0);
-                        if (((pb ^ t) & (p0 ^ t)) >= 0 && t >= c->t_lo && t <= c->t_hi) {
+                        /* with a 64-bit accumulator only t >= INT64_MIN + bias remains to check */
+                        if (((pb ^ t) & (p0 ^ t)) >= 0 && t >= c->t_lo && (acc64 || t <= c->t_hi)) {
                             acc = t - bias;
                             v = t >> c->k;
                             if (mode == 2 && (((uint64_t)t & c->kmask) == 0) && (v & 1)) v -= 1;
@@ -415,16 +424,16 @@ ALWAYS_INLINE void cascade_body(const int64_t *restrict x, Py_ssize_t n, sec_t *
 }
 
 typedef void (*cascade_fn)(const int64_t *, Py_ssize_t, sec_t *, int, const arith_t *);
-#define CASC(S, M, O) \
-    static void casc_##S##_##M##_##O(const int64_t *x, Py_ssize_t n, sec_t *s, int ns, const arith_t *ar) \
-    { cascade_body(x, n, s, ns, ar, S, M, O); }
-#define CASC_S(S) CASC(S, 0, 1) CASC(S, 1, 1) CASC(S, 2, 1) CASC(S, 3, 1) \
-                  CASC(S, 0, 0) CASC(S, 1, 0) CASC(S, 2, 0) CASC(S, 3, 0)
+#define CASC(S, M, O, A) \
+    static void casc_##S##_##M##_##O##_##A(const int64_t *x, Py_ssize_t n, sec_t *s, int ns, const arith_t *ar) \
+    { cascade_body(x, n, s, ns, ar, S, M, O, A); }
+#define CASC_A(S, O, A) CASC(S, 0, O, A) CASC(S, 1, O, A) CASC(S, 2, O, A) CASC(S, 3, O, A)
+#define CASC_S(S) CASC_A(S, 1, 0) CASC_A(S, 0, 0) CASC_A(S, 1, 1) CASC_A(S, 0, 1)
 CASC_S(0) CASC_S(1) CASC_S(2)
-#define ROW(S) {{casc_##S##_0_1, casc_##S##_1_1, casc_##S##_2_1, casc_##S##_3_1}, \
-                {casc_##S##_0_0, casc_##S##_1_0, casc_##S##_2_0, casc_##S##_3_0}}
-/* [structure][overflow: 0 saturate, 1 wrap][rounding] */
-static const cascade_fn cascade_table[3][2][4] = {ROW(0), ROW(1), ROW(2)};
+#define ROW_A(S, O, A) {casc_##S##_0_##O##_##A, casc_##S##_1_##O##_##A, casc_##S##_2_##O##_##A, casc_##S##_3_##O##_##A}
+#define ROW(S) {{ROW_A(S, 1, 0), ROW_A(S, 0, 0)}, {ROW_A(S, 1, 1), ROW_A(S, 0, 1)}}
+/* [structure][acc_bits == 64][overflow: 0 saturate, 1 wrap][rounding] */
+static const cascade_fn cascade_table[3][2][2][4] = {ROW(0), ROW(1), ROW(2)};
 
 static PyObject *py_cascade(PyObject *self, PyObject *args)
 {
@@ -476,10 +485,11 @@ static PyObject *py_cascade(PyObject *self, PyObject *args)
             int64_t bias = (rounding == 0 || rounding == 2) ? (int64_t)secs[j].khalf : 0;
             secs[j].t_lo = ar.acc_lo + bias;
             secs[j].t_hi = acc_bits == 64 ? INT64_MAX : ar.acc_hi + bias;
+            secs[j].r_max = INT64_MAX - bias;
         }
     }
     Py_BEGIN_ALLOW_THREADS
-    if (ns > 0) cascade_table[structure][overflow][rounding]((const int64_t *)xb.buf, xb.len / 8, secs, (int)ns, &ar);
+    if (ns > 0) cascade_table[structure][acc_bits == 64][overflow][rounding]((const int64_t *)xb.buf, xb.len / 8, secs, (int)ns, &ar);
     Py_END_ALLOW_THREADS
     result = PyList_New(ns);
     for (Py_ssize_t j = 0; result && j < ns; j++)
