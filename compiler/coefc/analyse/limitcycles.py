@@ -300,20 +300,40 @@ def _residual_range(k: int, mode: str) -> tuple[int, int]:
     return {"nearest": (-h, h - 1), "convergent": (-h, h), "floor": (0, K - 1), "zero": (-(K - 1), K - 1)}[mode]
 
 
-def _pieces(lo: int, hi: int, k: int, mode: str):
-    """Split the accumulator interval [lo, hi] where ``round_shift(acc, k, mode)`` is constant."""
+def _window(v: int, k: int, mode: str) -> tuple[int, int]:
+    """Inclusive accumulator range that ``round_shift(acc, k, mode)`` maps to *v*."""
     K, h = 1 << k, 1 << (k - 1)
-    a = lo
-    while a <= hi:
-        m = a // K
-        if (mode == "convergent" and a == m * K + h) or (mode == "zero" and a == m * K):
-            yield a, a  # a tie (convergent) or an exact multiple (zero) rounds on its own
-            a += 1
-            continue
-        nxt = min(c for c in (m * K + h, (m + 1) * K) if c > a)
-        b = min(hi, nxt - 1)
-        yield a, b
-        a = b + 1
+    if mode == "nearest":
+        return v * K - h, v * K + h - 1
+    if mode == "floor":
+        return v * K, v * K + K - 1
+    if mode == "convergent":
+        return (v * K - h, v * K + h) if v % 2 == 0 else (v * K - h + 1, v * K + h - 1)
+    if v > 0:  # zero: magnitude truncation
+        return v * K, v * K + K - 1
+    if v < 0:
+        return v * K - K + 1, v * K
+    return -K + 1, K - 1
+
+
+def _run_exit(ea: int, eb: int, lo: int, hi: int, d: int) -> list:
+    """Residuals where a run of repeated outputs ends.
+
+    While the output repeats, the residual moves by ``d`` each sample and stays in
+    [lo, hi]; the run from ``E`` ends at the first ``E + t d`` outside it.  Returns
+    the exit residuals of every start in [ea, eb] as a list of intervals.
+    """
+    if d == 0:
+        return [[ea, eb]]  # a fixed point: the run never ends
+    if d < 0:  # mirror
+        return [[-b, -a] for a, b in _run_exit(-eb, -ea, -hi, -lo, -d)]
+    z = hi + 1  # exits lie in [hi + 1, hi + d]
+    if eb - ea + 1 >= d:
+        return [[z, z + d - 1]]
+    ra, rb = (ea - z) % d, (eb - z) % d
+    if ra <= rb:
+        return [[z + ra, z + rb]]
+    return [[z + ra, z + d - 1], [z, z + rb]]
 
 
 def _merge(iv: list) -> list:
@@ -328,55 +348,138 @@ def _merge(iv: list) -> list:
     return out
 
 
+def _windows(v: np.ndarray, k: int, mode: str) -> tuple[np.ndarray, np.ndarray]:
+    """Vectorised :func:`_window`."""
+    K, h = 1 << k, 1 << (k - 1)
+    if mode == "nearest":
+        return v * K - h, v * K + h - 1
+    if mode == "floor":
+        return v * K, v * K + K - 1
+    if mode == "convergent":
+        odd = (v & 1).astype(bool)
+        return v * K - h + odd, v * K + h - odd
+    lo = np.where(v > 0, v * K, np.where(v < 0, v * K - K + 1, -K + 1))
+    hi = np.where(v > 0, v * K + K - 1, np.where(v < 0, v * K, K - 1))
+    return lo, hi
+
+
+def _runs_exit(ea, eb, lo, hi, d):
+    """Vectorised :func:`_run_exit` for d != 0: (index, lo, hi) of the exit intervals."""
+    neg = d < 0
+    # mirror the negative drifts so that every drift is positive
+    ea, eb, lo, hi, d = (np.where(neg, -eb, ea), np.where(neg, -ea, eb), np.where(neg, -hi, lo),
+                         np.where(neg, -lo, hi), np.abs(d))
+    z = hi + 1
+    full = eb - ea + 1 >= d
+    ra, rb = np.mod(ea - z, d), np.mod(eb - z, d)
+    one = ~full & (ra <= rb)
+    two = ~full & (ra > rb)
+    idx = np.arange(len(d))
+    parts = [
+        (idx[full], z[full], (z + d - 1)[full]),
+        (idx[one], (z + ra)[one], (z + rb)[one]),
+        (idx[two], (z + ra)[two], (z + d - 1)[two]),
+        (idx[two], z[two], (z + rb)[two]),
+    ]
+    i = np.concatenate([p[0] for p in parts])
+    a = np.concatenate([p[1] for p in parts])
+    b = np.concatenate([p[2] for p in parts])
+    m = neg[i]
+    return i, np.where(m, -b, a), np.where(m, -a, b)
+
+
 def ef_interval_search(a1: int, a2: int, k: int, arith: Arithmetic, B: int, D: int, S: int, order: int,
-                       max_work: int = 40_000):
+                       max_work: int = 3_000_000):
     """Exhaustive zero-input search of a df1ef section over (y1, y2) and every residual E.
 
     For fixed outputs ``(y1, y2)`` the next output is constant on at most a few
     intervals of ``E`` and the new residual is ``E`` shifted by a constant there, so
     sets of states are kept exactly as unions of residual intervals per output pair.
     The candidate set (every state with outputs inside the bounds) is mapped until it
-    stops shrinking, as in :func:`cycle_states`.  Returns ``(status, pairs, found)``
-    with status ``none`` or ``found``, or ``None`` when it did not settle within
-    *max_work* interval steps (or the accumulator could wrap).
+    stops shrinking, as in :func:`cycle_states`.  A run of equal outputs (poles near
+    z = 1 make them long: the residual drifts by a constant each sample until the
+    output steps) is taken in one jump to the state where it ends; cycles of the
+    jumping map are exactly the cycles of the recursion, since a run with a nonzero
+    drift always ends.  Returns ``(status, pairs, found)`` with status ``none`` or
+    ``found``, or ``None`` when it did not settle within *max_work* interval steps
+    (or the numbers would not fit 64 bits).
     """
     K = 1 << k
     lo_e, hi_e = _residual_range(k, arith.rounding)
-    if (abs(a1) + abs(a2)) * B + K >= 1 << (arith.acc_bits - 1):
-        return None
     mode = arith.rounding
-    st = {}
-    for y1 in range(-B, B + 1):
-        for y2 in (range(-B, B + 1) if order == 2 else (0,)):
-            if order == 1 or (abs(y1 - y2) <= D and abs(y1 + y2) <= S):
-                st[(y1, y2)] = [[lo_e, hi_e]]
-    pairs = len(st)
-    size = sum(b - a + 1 for v in st.values() for a, b in v)
+    W = 2 * B + 1
+    big = 1 << (k + 2)  # separates the residual ranges of different output pairs
+    if ((abs(a1) + abs(a2)) * B + 2 * K >= 1 << min(arith.acc_bits - 1, 62)
+            or W * W * big >= 1 << 62 or k < 1):
+        return None
+    y1 = np.arange(-B, B + 1, dtype=np.int64)
+    if order == 2:
+        y1, y2 = np.repeat(y1, W), np.tile(y1, W)
+        keep = (np.abs(y1 - y2) <= D) & (np.abs(y1 + y2) <= S)
+        y1, y2 = y1[keep], y2[keep]
+    else:
+        y2 = np.zeros_like(y1)
+    pairs = len(y1)
+    ea = np.full(pairs, lo_e, dtype=np.int64)
+    eb = np.full(pairs, hi_e, dtype=np.int64)
+    size = int(np.sum(eb - ea + 1))
     work = 0
     while work <= max_work:
-        new: dict = {}
-        for (y1, y2), ivs in st.items():
-            P = -a1 * y1 - a2 * y2
-            for a, b in ivs:
-                for pa, pb in _pieces(P + a, P + b, k, mode):
-                    work += 1
-                    v = round_shift(pa, k, mode)
-                    if abs(v) > B or (order == 2 and (abs(v - y1) > D or abs(v + y1) > S)):
-                        continue
-                    new.setdefault((v, y1 if order == 2 else 0), []).append([pa - v * K, pb - v * K])
-        st = {key: _merge(v) for key, v in new.items()}
-        nsize = sum(b - a + 1 for v in st.values() for a, b in v)
+        P = -np.int64(a1) * y1 - np.int64(a2) * y2
+        lo, hi = P + ea, P + eb
+        v0 = round_shift(lo, k, mode)
+        m = round_shift(hi, k, mode) - v0 + 1  # windows of consecutive outputs tile the range
+        idx = np.repeat(np.arange(len(lo)), m)
+        v = np.repeat(v0, m) + (np.arange(len(idx)) - np.repeat(np.cumsum(m) - m, m))
+        wlo, whi = _windows(v, k, mode)
+        pa, pb = np.maximum(lo[idx], wlo), np.minimum(hi[idx], whi)
+        work += len(idx)
+        o1, o2, Pi = y1[idx], y2[idx], P[idx]
+        ok = np.abs(v) <= B
+        if order == 2:
+            ok &= (np.abs(v - o1) <= D) & (np.abs(v + o1) <= S)
+        v, o1, o2, pa, pb, Pi, wlo, whi = (x[ok] for x in (v, o1, o2, pa, pb, Pi, wlo, whi))
+        n1, n2 = v, (o1 if order == 2 else np.zeros_like(v))
+        d = Pi - v * K
+        loop = (n1 == o1) & (n2 == o2) & (v != 0) & (d != 0)
+        step = ~loop
+        # ordinary step: the residual shifts by -v*2^k
+        na, nb = pa[step] - v[step] * K, pb[step] - v[step] * K
+        k1, k2 = n1[step], n2[step]
+        # runs of equal outputs: jump to their ends
+        j, ja, jb = _runs_exit(pa[loop] - Pi[loop], pb[loop] - Pi[loop], wlo[loop] - Pi[loop],
+                               whi[loop] - Pi[loop], d[loop])
+        k1 = np.concatenate([k1, n1[loop][j]])
+        k2 = np.concatenate([k2, n2[loop][j]])
+        na = np.concatenate([na, ja])
+        nb = np.concatenate([nb, jb])
+        # merge the intervals of every output pair (pairs kept apart by the offset big)
+        key = (k1 + B) * W + (k2 + B)
+        ga, gb = key * big + (na - lo_e), key * big + (nb - lo_e)
+        order_ = np.lexsort((ga, key))
+        ga, gb = ga[order_], gb[order_]
+        if len(ga) == 0:
+            return "none", pairs, None
+        reach = np.maximum.accumulate(gb)
+        start = np.ones(len(ga), dtype=bool)
+        start[1:] = ga[1:] > reach[:-1] + 1
+        first = np.flatnonzero(start)
+        ga, gb = ga[first], np.maximum.reduceat(gb, first)
+        key = ga // big
+        y1, y2 = key // W - B, key % W - B
+        ea, eb = ga - key * big + lo_e, gb - key * big + lo_e
+        nsize = int(np.sum(eb - ea + 1))
         if nsize == size:
-            live = [key for key in st if key != (0, 0)]
-            if not live:
+            live = (y1 != 0) | (y2 != 0)
+            if not np.any(live):
                 return "none", pairs, None
-            y1, y2 = max(live, key=lambda p: max(abs(p[0]), abs(p[1])))
-            per, am, cyc = _walk_ef(y1, y2, st[(y1, y2)][0][0], a1, a2, k, arith, 1 << 20)
+            i = int(np.argmax(np.where(live, np.maximum(np.abs(y1), np.abs(y2)), -1)))
+            per, am, cyc = _walk_ef(int(y1[i]), int(y2[i]), int(ea[i]), a1, a2, k, arith, 1 << 20)
             if not per:  # pragma: no cover - every state of the settled set lies on a cycle
                 return None
-            start = max(cyc, key=lambda p: abs(p[0]))
+            start_state = max(cyc, key=lambda p: abs(p[0]))
             return "found", pairs, dict(amplitude_lsb=int(am), period=int(per),
-                                        start_state=tuple(int(v) for v in start))
+                                        start_state=tuple(int(x) for x in start_state))
         size = nsize
     return None
 
@@ -390,7 +493,7 @@ def _section_phys(op: SectionOp, arith: Arithmetic):
 
 def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states: int = MAX_STATES,
                     sample_starts: int = 512, sample_steps: int = 2048, overflow_starts: int = 256,
-                    seed: int = 1969, ef_work: int = 40_000) -> SectionLimitCycles:
+                    seed: int = 1969, ef_work: int = 3_000_000) -> SectionLimitCycles:
     """Granular limit cycles and overflow oscillations of one section with zero input."""
     a1, a2 = int(op.a[0]), int(op.a[1])
     order = 2 if a2 != 0 else 1
