@@ -188,7 +188,7 @@ def test_run_float32_target(desc, tmp_path, capsys, monkeypatch):
 
 def test_run_reports_overflow_with_a_caution(desc, tmp_path, capsys, monkeypatch):
     # a full-scale step into a 4th-order Butterworth low-pass overshoots by about 11 %
-    # (common practice, no source), so without scaling the output saturates
+    # (from memory: Butterworth step-response tables), so without scaling the output saturates
     (tmp_path / "in.txt").write_text("2147483647\n" * 400)
     code, out, err = cli(["run", desc, tmp_path / "in.txt", tmp_path / "out.txt", "--channel", "low",
                           "--scaling", "none"], capsys, monkeypatch)

@@ -1,8 +1,8 @@
 """Realisation: coefficient fitting, scaling norms, pairing and ordering, float32.
 
 References are scipy.signal (designs, sosfreqz, zpk2sos as the pairing baseline),
-Jackson's scaling rules and the roundoff-noise formulas of REFERENCES-style
-textbook facts named beside each check.
+Jackson's scaling rules and textbook roundoff-noise formulas, each source named
+beside its check.
 """
 
 from __future__ import annotations
@@ -59,6 +59,7 @@ def test_quantised_response_matches_the_float_design(scaling):
 
 
 def test_physical_coefficients_are_within_half_an_lsb():
+    # rounding to nearest errs by at most half a step (common practice, no source)
     sos = signal.butter(2, 100, fs=FS, output="sos")
     p = realise_channel(_design(SosBlock(sos)), MCU16)
     (sec,) = p.sections()
@@ -272,6 +273,7 @@ def test_float32_realisation():
         assert sec.b == tuple(float(np.float32(v)) for v in row[:3])
         assert sec.shift == 0
     x = (np.random.default_rng(2).standard_normal(3000) * 0.1).astype(np.float32)
+    # scipy.signal.sosfilt in float64 as the reference library
     assert np.max(np.abs(simulate(p, x) - signal.sosfilt(sos, x.astype(float)))) < 1e-5
     with pytest.raises(RealisationError, match="df1ef"):
         realise_channel(_design(SosBlock(sos)), ar.with_(structure="df1ef"))

@@ -179,7 +179,7 @@ def test_input_out_of_range_is_a_data_error():
 @given(st.integers(0, 2 ** 31 - 1), st.sampled_from(ROUNDING_MODES))
 def test_tdf2_equals_df1_without_accumulator_wrap(seed, rounding):
     # with unrounded accumulator-width states, tdf2's states hold exactly the
-    # partial sums of df1 (Oppenheim & Schafer sec. 6.3-6.5: both realise
+    # partial sums of df1 (from memory: Oppenheim & Schafer sec. 6.3-6.5, both realise
     # (b0 + b1 z^-1 + b2 z^-2)/(1 + a1 z^-1 + a2 z^-2)), so outputs agree bit for bit
     rng = np.random.default_rng(seed)
     r, th = rng.uniform(0.1, 0.99), rng.uniform(0, np.pi)

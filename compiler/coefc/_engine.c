@@ -31,7 +31,7 @@
 #include <stdint.h>
 #include <string.h>
 
-/* ------------------------------------------------------------ integer helpers */
+/* ------------------------------------------------------------ integer arithmetic */
 
 typedef struct {
     int acc_bits, rounding, overflow, width, k;
