@@ -288,3 +288,10 @@ def test_fixed_point_channel_tracks_the_float_reference():
     y = simulate(p, x) / 2 ** 31
     ref = _float_ref(d.blocks, x / 2 ** 31)
     assert np.sqrt(np.mean((y - ref) ** 2)) < 1e-7
+
+
+def test_unstable_float_design_is_a_clear_error_with_scaling():
+    sos = np.array([[1.0, 0.0, 0.0, 1.0, -2.1, 1.2]])  # poles at radius sqrt(1.2) > 1
+    with pytest.raises(RealisationError, match="unstable"):
+        realise_channel(_design(SosBlock(sos)), MCU32.with_(scaling="l2"))
+    assert realise_channel(_design(SosBlock(sos)), MCU32.with_(scaling="none")).sections()

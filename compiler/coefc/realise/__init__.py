@@ -117,6 +117,11 @@ def _float_plan(design: ChannelDesign, arithmetic: Arithmetic):
             return gain, delay, chain, 1.0, notes
         return 1.0, delay, chain, gain, notes
     norm = arithmetic.scaling
+    radius = max([pairing.pole_radius(a) for _, a in sections] + [0.0])
+    if radius >= 1.0:
+        raise RealisationError(f"channel '{design.name}': the float design has a pole at radius {radius:.6f} "
+                               f">= 1 (unstable), so its {norm} norms are infinite; fix the design (or realise it "
+                               "with scaling 'none' to study it)")
     target = _target(arithmetic)
     k0 = 1.0
     if len(sections) > 1:
