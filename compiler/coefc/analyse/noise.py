@@ -131,6 +131,7 @@ class NoiseSource:
     power_gain: float  # sum of g^2 of its noise transfer to the output
     dc_gain: float
     output_variance_lsb2: float
+    correlated_gain: float = 0.0  # magnitude truncation: c_j of the signal-following part
 
 
 @dataclass(frozen=True, eq=False)
@@ -145,9 +146,7 @@ class NoiseAnalysis:
     snr_db: float | None  # full-scale sine over the noise power
     lsb: float
     _models: tuple = field(default=(), repr=False)
-    _impulses: tuple = field(default=(), repr=False)
     correlated_variance: float = 0.0  # magnitude truncation: the part that follows the signal
-    _correlated: object = field(default=None, repr=False)
 
     def spectrum(self, freqs_hz, fs: float) -> np.ndarray:
         """One-sided noise density in dBFS/Hz (AES17 reference) at *freqs_hz*.
@@ -159,18 +158,29 @@ class NoiseAnalysis:
         f = np.asarray(freqs_hz, dtype=np.float64)
         psd = np.zeros(f.shape)
         w = 2 * np.pi * f / fs
-        for src, g in zip(self.sources, self._impulses):
-            psd += src.variance_lsb2 * self.lsb ** 2 * np.abs(_freq(g, w)) ** 2
-        if self._correlated is not None:
-            psd += self.lsb ** 2 * np.abs(_freq(self._correlated, w)) ** 2
+        models = self._models
+        resp = [_freq(m.b, m.a, w) for m in models]  # every op as a rational function
+        corr = np.zeros(f.shape, dtype=complex)
+        for src in self.sources:
+            m = models[src.op_index]
+            G = _freq(m.noise_b, m.noise_a, w)
+            for r in resp[src.op_index + 1:]:
+                G = G * r
+            psd += src.variance_lsb2 * self.lsb ** 2 * np.abs(G) ** 2
+            if src.correlated_gain:
+                H = np.ones(f.shape, dtype=complex)
+                for r in resp[: src.op_index + 1]:
+                    H = H * r
+                corr += src.correlated_gain * G * H
+        psd += self.lsb ** 2 * np.abs(corr) ** 2
         with np.errstate(divide="ignore"):
             return 10 * np.log10(2.0 * psd / fs / FULL_SCALE_SINE_POWER)
 
 
-def _freq(g, w):
+def _freq(b, a, w):
     from scipy import signal
 
-    return signal.freqz(g, 1.0, worN=w)[1]
+    return signal.freqz(b, a, worN=w)[1]
 
 
 def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
@@ -200,7 +210,7 @@ def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
         return None  # an unstable realisation has no finite noise gain
     n = n or response_length(models)
     lsb = ar.data.lsb
-    sources, imps = [], []
+    sources = []
     var = mean = 0.0
     corr = np.zeros(n)
     node_imps = node_impulses(models, n) if ar.rounding == "zero" else None
@@ -218,11 +228,13 @@ def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
             white = (s2 - eu * eu) + eu * eu * (1.0 - 2.0 / math.pi)
             h = node_imps[m.index]
             hn = math.sqrt(float(np.dot(h, h)))
-            if hn > 0:
-                corr -= eu * math.sqrt(2.0 / math.pi) / hn * _conv(g, h)
+            cg = -eu * math.sqrt(2.0 / math.pi) / hn if hn > 0 else 0.0
+            if cg:
+                corr += cg * _conv(g, h)
             s2 = white
-        sources.append(NoiseSource(m.index, m.k, mu, s2, pg, dc, s2 * pg))
-        imps.append(g)
+        else:
+            cg = 0.0
+        sources.append(NoiseSource(m.index, m.k, mu, s2, pg, dc, s2 * pg, cg))
         var += s2 * pg
         mean += mu * dc
     correlated = float(np.dot(corr, corr))
@@ -232,8 +244,7 @@ def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
     power = var + mean ** 2
     d = dbfs(power)
     snr = None if d is None or d == -math.inf else -d
-    return NoiseAnalysis(tuple(sources), var, mean, power, d, snr, lsb, tuple(models), tuple(imps),
-                         correlated * lsb ** 2, corr if correlated else None)
+    return NoiseAnalysis(tuple(sources), var, mean, power, d, snr, lsb, tuple(models), correlated * lsb ** 2)
 
 
 def _conv(g: np.ndarray, h: np.ndarray) -> np.ndarray:
