@@ -303,3 +303,16 @@ def test_error_feedback_removes_the_dc_dead_band():
     ef = analyse_section(section(a1, a2, ef_ar), 0, ef_ar)
     assert plain.status == "found" and plain.period == 1 and plain.amplitude_lsb > 5
     assert ef.status == "none" and ef.exhaustive
+
+
+@pytest.mark.parametrize("fc", [20, 24])
+def test_eleven_against_ten_lsb(fc):
+    # "exhaustive search found 11 LSB against 10 for a1 = -1.8, a2 = 0.95" (REFERENCES: derived;
+    # the word length is not stated there).  With ties to even and 20-24 coefficient bits the
+    # search here finds the same 11 LSB, above Jackson's estimate (q/2)/(1 - a2) = 10 LSB
+    # (Jackson, Proc. 7th Allerton Conf., 1969; from memory); the brute force above agrees.
+    ar = arith(coef=(2, fc), acc=64, rounding="convergent")
+    op = section(-1.8, 0.95, ar)
+    res = analyse_section(op, 0, ar)
+    assert res.status == "found" and res.amplitude_lsb == 11 > 0.5 / (1 - 0.95)
+    assert brute_force_cycles(op, ar, int(res.bound_lsb) + 2) == 11
