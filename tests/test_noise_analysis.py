@@ -74,8 +74,8 @@ def test_dbfs_follows_aes17():
 
 
 def test_exact_operations_add_no_noise():
-    # a gain of exactly 0.5 on Q2.30 coefficients drops no bits of a data word? it drops one:
-    # 2^29 * x >> 30 keeps only half; a gain of 1.0 (2^30) drops none (common practice, no source)
+    # a gain of 1.0 (2^30 in Q2.30) rounds nothing away; a gain of exactly 0.5 (2^29) drops a
+    # single bit, whose error is 0 or 1/2 LSB: variance 1/16, not 1/12 (common practice, no source)
     ar = Q15
     unity = ChannelProgram("u", 48000.0, ar, (GainOp(coef=1 << 30),))
     assert analytic_noise(unity).sources == ()
