@@ -179,8 +179,9 @@ def analyse_channel(design: ChannelDesign, program: ChannelProgram,
                             passband_threshold_db=opt.passband_threshold_db,
                             stopband_threshold_db=opt.stopband_threshold_db)
     noise = analytic_noise(program, models, n)
+    # float32 has no analytic figure: its noise is always measured
     meas = (measured_noise(program, samples=opt.noise_samples, seed=opt.seed, models=models, n=n)
-            if opt.measure_noise else None)
+            if opt.measure_noise or noise is None else None)
     ovf = analyse_overflow(program, run_engine=opt.worst_case_runs, models=models, n=n)
     lc = analyse_limit_cycles(program, max_states=opt.max_states)
     return Metrics(resp, noise, meas, ovf, lc, program.arithmetic.is_float, program.arithmetic.overflow,
