@@ -19,7 +19,7 @@ from coefc.qformat import OVERFLOW_MODES, ROUNDING_MODES, QFormat
 
 import exact_model
 
-SETTINGS = dict(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+SETTINGS = dict(max_examples=300, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
 
 @st.composite

@@ -349,10 +349,15 @@ ALWAYS_INLINE void cascade_body(const int64_t *restrict x, Py_ssize_t n, sec_t *
                    (checked bounds); each addition of a state is sign-tested and
                    range-checked; any doubt falls through to the exact wide sums */
                 const int64_t s1 = c->s1, s2 = c->s2;
+                const int64_t bias = (mode == 0 || mode == 2) ? (int64_t)c->khalf : 0;
                 int64_t p0 = c->b0 * in;
-                int64_t a0 = (int64_t)((uint64_t)p0 + (uint64_t)s1);
-                if (((p0 ^ a0) & (s1 ^ a0)) >= 0 && a0 >= ar->acc_lo && a0 <= ar->acc_hi) {
-                    int64_t v = rshift_m(a0, c, mode), o = v;
+                int64_t sb = s1 + (s1 <= c->r_max ? bias : 0); /* the bias rides on the state */
+                int64_t t = (int64_t)((uint64_t)p0 + (uint64_t)sb);
+                if (s1 <= c->r_max && ((p0 ^ t) & (sb ^ t)) >= 0 && t >= c->t_lo && (acc64 || t <= c->t_hi)) {
+                    int64_t v = t >> c->k, o;
+                    if (mode == 2 && (((uint64_t)t & c->kmask) == 0) && (v & 1)) v -= 1;
+                    if (mode == 3) v += (t < 0) & (((uint64_t)t & c->kmask) != 0);
+                    o = v;
                     if (UNLIKELY(v > ar->hi || v < ar->lo))
                         o = sat ? (v > ar->hi ? ar->hi : ar->lo) : sext((uint64_t)v, ar->width);
                     int64_t q1 = c->b1 * in - c->a1 * o;
