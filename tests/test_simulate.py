@@ -194,3 +194,28 @@ def test_tdf2_equals_df1_without_accumulator_wrap(seed, rounding):
         assert t.acc_overflow_counts == [0]
         out[structure] = t.y
     assert np.array_equal(out["df1"], out["tdf2"])
+
+
+@pytest.mark.parametrize("structure", ["df1", "df1ef"])
+def test_fast_path_detects_a_difference_that_leaves_int64(structure):
+    # Each partial sum (b1 x1 + b2 x2, a1 y1 + a2 y2) fits int64 here, but their
+    # difference reaches 2^63 on this full-scale input: the engine must see the
+    # accumulator overflow exactly as the exact model does.
+    ar = Arithmetic(data=QFormat(1, 31), coef=QFormat(2, 30), acc_bits=64, structure=structure)
+    sec = SectionOp(b=(796896755, -1734506556, -1956332619), a=(-2144487839, 1728701087), structure=structure)
+    M, m = (1 << 31) - 1, -(1 << 31)
+    x = [M] * 5 + [m, M, m, M, M, M, M, m, m, m, m, M, M, m, M, M, m, M, M, m, m, M, M, M, m]
+    prog = ChannelProgram("t", 48000, ar, (sec,))
+    _compare(prog, x)
+    assert sim.simulate(prog, x, trace=True).acc_overflow_counts[0] > 0
+
+
+@pytest.mark.parametrize("structure", ["df1", "tdf2", "df1ef"])
+@pytest.mark.parametrize("rounding", ROUNDING_MODES)
+def test_first_sum_wraps_while_the_states_stay_in_range(structure, rounding):
+    # a single large tap and a 40-bit accumulator: only B0 x[n] leaves the range
+    ar = Arithmetic(data=QFormat(1, 31), coef=QFormat(2, 30), acc_bits=40, structure=structure, rounding=rounding)
+    prog = ChannelProgram("t", 48000, ar, (SectionOp(b=(1 << 29, 0, 0), a=(0, 0), structure=structure),))
+    x = [(1 << 31) - 1, -(1 << 31), 1 << 20, -(1 << 25), 12345, (1 << 31) - 1]
+    _compare(prog, x)
+    assert sim.simulate(prog, x, trace=True).acc_overflow_counts[0] > 0
