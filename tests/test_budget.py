@@ -27,7 +27,7 @@ def fake_metrics(status="none", amplitude=None, bound=3.0, complete=True, overfl
     ov = SimpleNamespace(overflow_count=overflow_count, runs=1, worst_node="op 1 output", headroom_bits=0.5,
                          input_peak=1.0, output_peak_gain=0.9, overflow_count_full_scale=overflow_count)
     return SimpleNamespace(response=resp, limit_cycles=lc, overflow=ov, noise=None, measured=None,
-                           is_float=False, overflow_mode="saturate")
+                           is_float=False, overflow_mode="saturate", structure="df1")
 
 
 def verdict(metrics, **budget):

@@ -225,7 +225,8 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
         checks.append(Check("output_noise_dbfs", v, lim, ok))
         why["output_noise_dbfs"] = (
             f"roundoff noise {_fmt(v, ' dBFS')} (analytic {_fmt(an)}, measured {_fmt(me)}; AES17 dBFS)"
-            + ("" if ok else f", above the {lim:g} dBFS limit; widen the data word or use error feedback (df1ef)")
+            + ("" if ok else f", above the {lim:g} dBFS limit; widen the data word"
+               + ("" if metrics.structure == "df1ef" or metrics.is_float else " or use error feedback (df1ef)"))
             + (f"; note: {metrics.measured.note}" if metrics.measured is not None and metrics.measured.note else ""))
 
     if budget.limit_cycles is not None:
@@ -261,10 +262,13 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
                     reason = "no zero-input limit cycle (exhaustive search)"
                 elif st == "found" and lc.complete:
                     reason = f"largest limit cycle {amp} LSB (exhaustive search)"
+                elif bound is None:
+                    why_not = next((s.note for s in lc.sections if s.bound_lsb is None and s.note), "")
+                    reason = why_not or "no amplitude bound"
                 else:
                     reason = (f"rigorous bound {_fmt(bound)} LSB" + (f", cycles of {amp} LSB found" if amp else ""))
                 if not ok:
-                    reason += f", over the {lim:g} LSB limit"
+                    reason += f"; over the {lim:g} LSB limit"
             checks.append(Check("limit_cycles", v, lim, ok))
             why["limit_cycles"] = reason
 

@@ -59,6 +59,7 @@ class Metrics:
     is_float: bool
     overflow_mode: str = "saturate"
     sample_rate_hz: float = 48000.0
+    structure: str = "df1"
 
     @property
     def output_noise_dbfs(self) -> float | None:
@@ -185,4 +186,4 @@ def analyse_channel(design: ChannelDesign, program: ChannelProgram,
     ovf = analyse_overflow(program, run_engine=opt.worst_case_runs, models=models, n=n)
     lc = analyse_limit_cycles(program, max_states=opt.max_states)
     return Metrics(resp, noise, meas, ovf, lc, program.arithmetic.is_float, program.arithmetic.overflow,
-                   float(program.sample_rate_hz))
+                   float(program.sample_rate_hz), program.arithmetic.structure)
