@@ -219,3 +219,26 @@ def test_first_sum_wraps_while_the_states_stay_in_range(structure, rounding):
     x = [(1 << 31) - 1, -(1 << 31), 1 << 20, -(1 << 25), 12345, (1 << 31) - 1]
     _compare(prog, x)
     assert sim.simulate(prog, x, trace=True).acc_overflow_counts[0] > 0
+
+
+@pytest.mark.parametrize("rounding", ROUNDING_MODES)
+def test_tdf2_fast_path_detects_state_sums_that_leave_int64(rounding):
+    # Q1.30 data with 33-bit Q3.30 coefficients (64 bits together): the paired
+    # products stay exact in int64, but adding a state to them leaves int64 on
+    # these full-scale samples (both the output sum and the first state sum)
+    ar = Arithmetic(data=QFormat(1, 30), coef=QFormat(3, 30), acc_bits=64, structure="tdf2", rounding=rounding)
+    sec = SectionOp(b=(-1323187808, 2974090473, -4194493868), a=(95055989, 2367076241), structure="tdf2")
+    M, m = (1 << 30) - 1, -(1 << 30)
+    prog = ChannelProgram("t", 48000, ar, (sec,))
+    assert sim._fast_ok(prog)
+    x = [M, M, m, m, M, m, M, M, m, m, m, M]
+    _compare(prog, x)
+    assert sim.simulate(prog, x, trace=True).acc_overflow_counts[0] > 0
+
+
+def test_tdf2_second_state_wraps_alone():
+    ar = Arithmetic(data=QFormat(1, 31), coef=QFormat(2, 30), acc_bits=40, structure="tdf2")
+    prog = ChannelProgram("t", 48000, ar, (SectionOp(b=(0, 0, 1 << 29), a=(0, 0), structure="tdf2"),))
+    x = [(1 << 31) - 1, -(1 << 31), 1 << 20, -(1 << 25), 12345, (1 << 31) - 1, 0, 0]
+    _compare(prog, x)
+    assert sim.simulate(prog, x, trace=True).acc_overflow_counts[0] > 0
