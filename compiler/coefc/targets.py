@@ -152,7 +152,10 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
                        source: str = "<description>") -> Arithmetic:
     """Target defaults, then the description's ``[implementation]``, then CLI overrides.
 
-    One options schema, several ways to set it, same effect however given.
+    One options schema, several ways to set it, same effect however given.  On a
+    float32 target the description's fixed-point settings (Q formats, accumulator,
+    and ``df1ef``, which becomes ``df1``: float32 has no rounding residual to feed
+    back) do not apply; a structure named on the command line is never changed.
     """
     arith = target.arithmetic
     structure_from = None
@@ -173,6 +176,10 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
                 except ValueError as e:
                     raise DescriptionError(where, str(e), key=key) from None
             elif key == "structure":
+                if arith.is_float and v == "df1ef" and where != "<command line>":
+                    # Error feedback re-injects a fixed-point rounding residual; float32
+                    # has none, so a description's df1ef means plain df1 there.
+                    v = "df1"
                 if v not in STRUCTURES:
                     raise DescriptionError(where, f"unknown structure '{v}'; use one of {', '.join(STRUCTURES)}",
                                            key=key)

@@ -154,13 +154,14 @@ def _print_table(result) -> None:
     from rich.table import Table
 
     best = result.cheapest()
-    con = Console(highlight=False, soft_wrap=False, width=max(140, Console().width))
+    con = Console(highlight=False, soft_wrap=False, width=max(170, Console().width))
     t = Table(title=f"coefc sweep {result.source}", title_justify="left")
     for col, just in (("target", "left"), ("struct", "left"), ("acc", "right"), ("data", "right"),
                       ("coef", "right"), ("passband dev dB", "right"), ("stopband dB", "right"),
                       ("noise dBFS", "right"), ("headroom bits", "right"), ("limit cycles", "left"),
-                      ("memory B", "right"), ("verdict", "left")):
+                      ("memory B", "right")):
         t.add_column(col, justify=just)
+    t.add_column("verdict", justify="left", no_wrap=True)
     for r in result.results:
         c = r.config
         lcs = sorted({ch.metrics.get("limit_cycle") or "-" for ch in r.channels})
