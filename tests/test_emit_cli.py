@@ -119,7 +119,7 @@ def test_over_budget_refuses_then_force_writes(desc, tmp_path):
 def test_overrides_and_kernel_files(desc, tmp_path):
     out = tmp_path / "fw" / "probe.h"
     out.parent.mkdir()
-    r = coefc("build", desc, "--target", "mcu16", "--structure", "tdf2", "--rounding", "floor",
+    r = coefc("build", desc, "--target", "mcu16", "--structure", "tdf2", "--rounding", "floor", "--scaling", "l2",
               "-o", out, "--kernel", "--vectors", "200")
     assert r.returncode == 0, r.stderr
     text = out.read_text()

@@ -159,8 +159,19 @@ def test_command_line_structure_wins_before_the_target_is_asked():
     t = find_target("float32")
     impl = Implementation(structure="df1ef")
     assert resolve_arithmetic(t, impl, Overrides(structure="tdf2"), "x.toml").structure == "tdf2"
-    with pytest.raises(DescriptionError, match=r"x\.toml, key 'structure': target 'float32' does not support "
-                                               r"structure 'df1ef'; it supports df1, tdf2"):
-        resolve_arithmetic(t, impl, None, "x.toml")
+    # A description's df1ef means plain df1 on float32 (no rounding residual to feed back) ...
+    assert resolve_arithmetic(t, impl, None, "x.toml").structure == "df1"
+    # ... but a structure named on the command line is never changed.
+    with pytest.raises(DescriptionError, match=r"<command line>, key 'structure': target 'float32' does not "
+                                               r"support structure 'df1ef'; it supports df1, tdf2"):
+        resolve_arithmetic(t, impl, Overrides(structure="df1ef"), "x.toml")
+    mcu16 = find_target("mcu16")
+    bad = Implementation(structure="tdf2")
+    import dataclasses
+
+    narrow = dataclasses.replace(mcu16, structures=("df1",))
+    with pytest.raises(DescriptionError, match=r"x\.toml, key 'structure': target 'mcu16' does not support "
+                                               r"structure 'tdf2'; it supports df1"):
+        resolve_arithmetic(narrow, bad, None, "x.toml")
     with pytest.raises(DescriptionError, match=r"<command line>, key 'structure': unknown structure 'df2'"):
         resolve_arithmetic(t, impl, Overrides(structure="df2"), "x.toml")
