@@ -22,6 +22,15 @@ def write_atomic(path: Path, data: str | bytes) -> None:
     raw = data.encode("utf-8") if isinstance(data, str) else data
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
     try:
+        # mkstemp makes the file private (0600); give it the mode a plain open()
+        # would: the old file's mode, or 0666 less the umask.
+        try:
+            mode = path.stat().st_mode & 0o7777
+        except OSError:
+            umask = os.umask(0)
+            os.umask(umask)
+            mode = 0o666 & ~umask
+        os.chmod(tmp, mode)
         with os.fdopen(fd, "wb") as f:
             f.write(raw)
             f.flush()
