@@ -11,6 +11,9 @@
  *   fir(x, y, taps, k, acc_bits, rounding, overflow, data_width)
  *   gain(x, y, C, k, acc_bits, rounding, overflow, data_width)
  *   sos_f32 / fir_f32 / gain_f32: float32 in the stated operation order
+ *   zero_input(y1, y2, e, big, A1, A2, k, ...): the zero-input recursion of one
+ *       section on many states at once (the overflow-oscillation and sampled
+ *       limit-cycle searches of coefc.analyse.limitcycles)
  *
  * The arithmetic is the one stated in the docstring of coefc/program.py.
  * Accumulators: products of two words (together at most 64 bits wide, so every
@@ -30,6 +33,7 @@
 #include <Python.h>
 #include <stdint.h>
 #include <string.h>
+#include <math.h>
 
 /* ------------------------------------------------------------ integer arithmetic */
 
@@ -142,10 +146,11 @@ static int get_buf(PyObject *o, Py_buffer *v, int writable, char kind, const cha
     const char *f = v->format ? v->format : "B";
     if (*f == '@' || *f == '=' || *f == '<') f++;
     int ok = kind == 'i' ? (v->itemsize == 8 && (*f == 'q' || *f == 'l') && f[1] == 0)
+           : kind == 'd' ? (v->itemsize == 8 && *f == 'd' && f[1] == 0)
                          : (v->itemsize == 4 && *f == 'f' && f[1] == 0);
     if (!ok || v->ndim > 1) {
         PyErr_Format(PyExc_TypeError, "engine: %s must be a contiguous 1-D %s buffer", name,
-                     kind == 'i' ? "int64" : "float32");
+                     kind == 'i' ? "int64" : kind == 'd' ? "float64" : "float32");
         PyBuffer_Release(v);
         return -1;
     }
@@ -509,6 +514,89 @@ done:
     return result;
 }
 
+/* ------------------------------------------------------------ zero-input iteration */
+
+/* The zero-input recursion of a section (coefc.analyse.limitcycles), run on many
+ * states at once:
+ *
+ *   df1/tdf2  acc = wrapA(-A1*y1 - A2*y2);      y = fit_data(round_shift(acc, k))
+ *   df1ef     acc = wrapA(-A1*y1 - A2*y2 + E);  v = round_shift(acc, k);
+ *             E = acc - v * 2^k (modulo 2^64);  y = fit_data(v)
+ *
+ * then y2 = y1 (second order) or 0, y1 = y.  The products and sums are taken modulo
+ * 2^64 (as numpy's int64 arithmetic does) before the accumulator wrap, which is
+ * exact for acc_bits <= 64.  Over `steps + tail` iterations; in the last `tail`
+ * iterations big[j] = max(big[j], (double)|y1[j]|); when check is set, at every
+ * iteration i < steps with i % 64 == 63, stop when max |y1|, |y2| over the states
+ * (|INT64_MIN| staying negative, as numpy's abs) is <= gran.  Returns the number of
+ * iterations done. */
+static PyObject *py_zero_input(PyObject *self, PyObject *args)
+{
+    PyObject *y1o, *y2o, *eo, *bo;
+    long long a1, a2;
+    int k, acc_bits, rounding, overflow, width, ef, order2, check;
+    Py_ssize_t steps, tail;
+    double gran;
+    if (!PyArg_ParseTuple(args, "OOOOLLiiiiiiinnid", &y1o, &y2o, &eo, &bo, &a1, &a2, &k, &acc_bits, &rounding,
+                          &overflow, &width, &ef, &order2, &steps, &tail, &check, &gran))
+        return NULL;
+    arith_t ar;
+    if (arith_init(&ar, k, acc_bits, rounding, overflow, width) < 0) return NULL;
+    if (steps < 0 || tail < 0) { PyErr_SetString(PyExc_ValueError, "engine: negative step count"); return NULL; }
+    Py_buffer b1, b2, be, bb;
+    if (get_buf(y1o, &b1, 1, 'i', "y1") < 0) return NULL;
+    if (get_buf(y2o, &b2, 1, 'i', "y2") < 0) { PyBuffer_Release(&b1); return NULL; }
+    if (get_buf(eo, &be, 1, 'i', "e") < 0) { PyBuffer_Release(&b1); PyBuffer_Release(&b2); return NULL; }
+    if (get_buf(bo, &bb, 1, 'd', "big") < 0) {
+        PyBuffer_Release(&b1); PyBuffer_Release(&b2); PyBuffer_Release(&be); return NULL;
+    }
+    Py_ssize_t n = b1.len / 8;
+    if (b2.len != b1.len || be.len != b1.len || bb.len != b1.len) {
+        PyErr_SetString(PyExc_ValueError, "engine: y1, y2, e and big differ in length");
+        PyBuffer_Release(&b1); PyBuffer_Release(&b2); PyBuffer_Release(&be); PyBuffer_Release(&bb);
+        return NULL;
+    }
+    int64_t *y1 = (int64_t *)b1.buf, *y2 = (int64_t *)b2.buf, *e = (int64_t *)be.buf;
+    double *big = (double *)bb.buf;
+    /* m <= gran for an integer m  <=>  m <= floor(gran) */
+    int gran_all = gran >= 9223372036854775808.0, gran_none = !(gran >= -9223372036854775808.0);
+    int64_t gran_i = (gran_all || gran_none) ? 0 : (int64_t)floor(gran);
+    const uint64_t ua1 = (uint64_t)a1, ua2 = (uint64_t)a2;
+    Py_ssize_t i, total = steps + tail;
+    Py_BEGIN_ALLOW_THREADS
+    for (i = 0; i < total; i++) {
+        for (Py_ssize_t j = 0; j < n; j++) {
+            uint64_t u = (uint64_t)0 - ua1 * (uint64_t)y1[j] - ua2 * (uint64_t)y2[j];
+            if (ef) u += (uint64_t)e[j];
+            int64_t acc = sext(u, acc_bits);
+            int64_t v = rshift(acc, &ar);
+            if (ef) e[j] = (int64_t)((uint64_t)acc - ((uint64_t)v << k));
+            int64_t y = v;
+            if (y > ar.hi || y < ar.lo) y = overflow == 0 ? (y > ar.hi ? ar.hi : ar.lo) : sext((uint64_t)y, width);
+            y2[j] = order2 ? y1[j] : 0;
+            y1[j] = y;
+        }
+        if (i >= steps) {
+            for (Py_ssize_t j = 0; j < n; j++) {
+                double m = (double)(int64_t)(y1[j] < 0 ? (uint64_t)0 - (uint64_t)y1[j] : (uint64_t)y1[j]);
+                if (m > big[j]) big[j] = m;
+            }
+        } else if (check && i % 64 == 63) {
+            int64_t m = INT64_MIN;
+            for (Py_ssize_t j = 0; j < n; j++) {
+                int64_t p = (int64_t)(y1[j] < 0 ? (uint64_t)0 - (uint64_t)y1[j] : (uint64_t)y1[j]);
+                int64_t q = (int64_t)(y2[j] < 0 ? (uint64_t)0 - (uint64_t)y2[j] : (uint64_t)y2[j]);
+                if (p > m) m = p;
+                if (q > m) m = q;
+            }
+            if (n > 0 && (gran_all || (!gran_none && m <= gran_i))) { i++; break; }
+        }
+    }
+    Py_END_ALLOW_THREADS
+    PyBuffer_Release(&b1); PyBuffer_Release(&b2); PyBuffer_Release(&be); PyBuffer_Release(&bb);
+    return PyLong_FromSsize_t(i);
+}
+
 /* ------------------------------------------------------------ float32 ops */
 
 static PyObject *py_sos_f32(PyObject *self, PyObject *args)
@@ -597,6 +685,10 @@ static PyMethodDef engine_methods[] = {
     {"sos_f32", py_sos_f32, METH_VARARGS, "sos_f32(x, y, b0, b1, b2, a1, a2, structure) -> None (float32)"},
     {"fir_f32", py_fir_f32, METH_VARARGS, "fir_f32(x, y, taps) -> None (float32)"},
     {"gain_f32", py_gain_f32, METH_VARARGS, "gain_f32(x, y, g) -> None (float32)"},
+    {"zero_input", py_zero_input, METH_VARARGS,
+     "zero_input(y1, y2, e, big, A1, A2, k, acc_bits, rounding, overflow, data_width, ef, order2, steps, tail,\n"
+     "           check, gran) -> iterations done; the zero-input recursion of a section on int64 state\n"
+     "buffers y1, y2, e (updated in place), float64 big (peak |y1| over the last `tail` iterations)."},
     {NULL, NULL, 0, NULL}};
 
 static struct PyModuleDef engine_module = {

@@ -525,7 +525,9 @@ def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states:
     count = _count_candidates(B, D, S, order, max_states) if exhaustive_ok else 0
     ef_result = None
     if structure == "df1ef" and B < fs_lsb:
-        ef_result = ef_interval_search(a1, a2 if order == 2 else 0, k, arith, B, D, S, order, max_work=ef_work)
+        ef_result = _granular_cached(("ef", a1, a2 if order == 2 else 0, k, B, D, S, order, ef_work), arith,
+                                     lambda: ef_interval_search(a1, a2 if order == 2 else 0, k, arith, B, D, S,
+                                                                order, max_work=ef_work))
         if ef_result is None:
             notes.append("df1ef keeps the rounding residual as state; the search over residual intervals did "
                          f"not settle within its work limit ({ef_work} interval steps); sampled search only")
@@ -538,11 +540,12 @@ def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states:
             res.update(found)
         notes.append(f"searched {keys} output-state pairs, each with every rounding residual (as intervals)")
     elif exhaustive_ok and count <= max_states:
-        y1, y2 = cycle_states(a1, a2, k, arith, B, D, S, order)
-        if len(y1) == 0:
+        found = _granular_cached(("cycles", a1, a2, k, B, D, S, order), arith,
+                                 lambda: _cycle_search(a1, a2, k, arith, B, D, S, order))
+        if found is None:
             res = dict(status="none", bound_lsb=Bf, exhaustive=True, states_searched=count)
         else:
-            res = _describe(y1, y2, a1, a2 if order == 2 else 0, k, arith)
+            res = dict(found)
             res.update(status="found", bound_lsb=Bf, exhaustive=True, states_searched=count)
     else:
         if exhaustive_ok:
@@ -557,6 +560,41 @@ def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states:
                 res["states_searched"] = sample_starts
     res["note"] = "; ".join(notes)
     return SectionLimitCycles(index, **res, **_overflow(a1, a2, k, a_phys, arith, order, bounds, overflow_starts, seed, structure == "df1ef"))
+
+
+def _cycle_search(a1, a2, k, arith, B, D, S, order) -> dict | None:
+    """The largest cycle among every state on a zero-input cycle in the region, or ``None``."""
+    y1, y2 = cycle_states(a1, a2, k, arith, B, D, S, order)
+    if len(y1) == 0:
+        return None
+    return _describe(y1, y2, a1, a2 if order == 2 else 0, k, arith)
+
+
+_GRANULAR_CACHE: dict = {}
+
+
+def _granular_cached(key: tuple, arith: Arithmetic, search):
+    """The result of an exhaustive granular search, computed once per process.
+
+    The searches (:func:`_cycle_search`, :func:`ef_interval_search`) are called only
+    with bounds below full scale, and every state they keep or walk stays inside the
+    bounds, so the data word enters them only through ``fit_data``: with
+    ``saturate`` it changes no kept state (a clamped value lands on full scale,
+    outside the bounds, as the unclamped one would), so the result is the same for
+    every data width; with ``wrap`` a wrapped value may land inside the bounds, so
+    the width is part of the key.  Everything else they read is in the key: the
+    integer coefficients, rounding shift, bounds, rounding mode and accumulator
+    width.
+    """
+    full = key + (arith.rounding, arith.acc_bits, arith.overflow,
+                  arith.data.width if arith.overflow != "saturate" else None)
+    if full in _GRANULAR_CACHE:
+        return _GRANULAR_CACHE[full]
+    out = search()
+    if len(_GRANULAR_CACHE) >= 4096:
+        _GRANULAR_CACHE.clear()
+    _GRANULAR_CACHE[full] = out
+    return out
 
 
 def _describe(y1, y2, a1, a2, k, arith, cap: int = 4096):
@@ -587,9 +625,7 @@ def _sampled(a1, a2, k, arith, B, starts, steps, seed):
     rng = np.random.default_rng(seed)
     y1 = rng.integers(-B, B + 1, starts).astype(np.int64)
     y2 = rng.integers(-B, B + 1, starts).astype(np.int64) if a2 else np.zeros(starts, np.int64)
-    for _ in range(steps):
-        y0 = zero_input_step(y1, y2, a1, a2, k, arith)
-        y1, y2 = y0, (y1 if a2 else np.zeros_like(y1))
+    y1, y2, _, _ = run_zero_input(y1, y2, np.zeros_like(y1), a1, a2, k, arith, False, 2 if a2 else 1, steps)
     alive = (y1 != 0) | (y2 != 0)
     if not np.any(alive):
         return None
@@ -642,9 +678,7 @@ def _sampled_ef(a1, a2, k, arith, B, starts, steps, seed):
     y1 = rng.integers(-B, B + 1, starts).astype(np.int64)
     y2 = rng.integers(-B, B + 1, starts).astype(np.int64) if a2 else np.zeros(starts, np.int64)
     e = rng.integers(-(1 << (k - 1)), 1 << (k - 1), starts).astype(np.int64)
-    for _ in range(steps):
-        y0, e = zero_input_step_ef(y1, y2, e, a1, a2, k, arith)
-        y1, y2 = y0, (y1 if a2 else np.zeros_like(y1))
+    y1, y2, e, _ = run_zero_input(y1, y2, e, a1, a2, k, arith, True, 2 if a2 else 1, steps)
     alive = (y1 != 0) | (y2 != 0)
     if not np.any(alive):
         return None
@@ -658,6 +692,50 @@ def _sampled_ef(a1, a2, k, arith, B, starts, steps, seed):
     if best is None:
         return None
     return dict(amplitude_lsb=int(best[1]), period=int(best[0]), start_state=tuple(int(v) for v in best[2]))
+
+
+def run_zero_input(y1, y2, e, a1: int, a2: int, k: int, arith: Arithmetic, ef: bool, order: int, steps: int,
+                   tail: int = 0, gran: float | None = None, *, engine: bool = True):
+    """Run int64 states through ``steps + tail`` zero-input steps: ``(y1, y2, e, big)``.
+
+    df1/tdf2 use :func:`zero_input_step`, df1ef (*ef*) :func:`zero_input_step_ef`
+    with the residuals *e*; ``y2`` takes the old ``y1`` (second order) or stays 0.
+    Over the last *tail* steps ``big`` collects the peak ``|y1|`` of every state.
+    With *gran*, every 64 steps (before the tail) the run stops as soon as every
+    ``|y1|`` and ``|y2|`` is within *gran*.  The compiled core does the same
+    integer steps (accumulators up to 64 bits, ``1 <= k <= 62``); with
+    ``engine=False``, or outside its range, the numpy steps here (the reference).
+    """
+    y1 = np.array(y1, dtype=np.int64)
+    y2 = np.array(y2, dtype=np.int64)
+    e = np.array(e, dtype=np.int64)
+    big = np.zeros(len(y1))
+    if engine and _zero_input_engine() is not None and arith.acc_bits <= 64 and 1 <= k <= 62 \
+            and -(1 << 63) <= a1 < 1 << 63 and -(1 << 63) <= a2 < 1 << 63:
+        from ..simulate import _OVF_CODE, _ROUND_CODE
+
+        _zero_input_engine()(y1, y2, e, big, int(a1), int(a2), int(k), arith.acc_bits, _ROUND_CODE[arith.rounding],
+                             _OVF_CODE[arith.overflow], arith.data.width, int(bool(ef)), int(order == 2),
+                             int(steps), int(tail), int(gran is not None), float(0.0 if gran is None else gran))
+        return y1, y2, e, big
+    for i in range(steps + tail):
+        if ef:
+            y0, e = zero_input_step_ef(y1, y2, e, a1, a2, k, arith)
+        else:
+            y0 = zero_input_step(y1, y2, a1, a2, k, arith)
+        y1, y2 = y0, (y1 if order == 2 else np.zeros_like(y1))
+        if i >= steps:
+            big = np.maximum(big, np.abs(y1).astype(float))
+        elif gran is not None and i % 64 == 63 and max(int(np.max(np.abs(y1))), int(np.max(np.abs(y2)))) <= gran:
+            break
+    return y1, y2, e, big
+
+
+def _zero_input_engine():
+    """The compiled zero-input stepper, or ``None`` without the compiled core."""
+    from ..simulate import HAVE_ENGINE, _engine
+
+    return getattr(_engine, "zero_input", None) if HAVE_ENGINE else None
 
 
 def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed, ef=False) -> dict:
@@ -679,17 +757,9 @@ def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed, ef=False) -
     r = float(np.max(np.abs(np.roots(a_phys[: order + 1])))) if order else 0.0
     steps = int(min(8192, max(256, 40.0 / max(1e-6, 1.0 - r)))) if r < 1 else 1024
     gran = (bounds[0] if bounds else 0.0) + 1.0
-    big = np.zeros(len(st))
-    for i in range(steps + 64):
-        if ef:
-            y0, e = zero_input_step_ef(y1, y2, e, a1, a2 if order == 2 else 0, k, arith)
-        else:
-            y0 = zero_input_step(y1, y2, a1, a2 if order == 2 else 0, k, arith)
-        y1, y2 = y0, (y1 if order == 2 else np.zeros_like(y1))
-        if i >= steps:
-            big = np.maximum(big, np.abs(y1).astype(float))
-        elif i % 64 == 63 and max(int(np.max(np.abs(y1))), int(np.max(np.abs(y2)))) <= gran:
-            break  # every trajectory is back inside the granular bound: none can be an overflow oscillation
+    # after `steps` steps, 64 more record the peaks; every 64 steps before that, stop once every
+    # trajectory is back inside the granular bound: none can then be an overflow oscillation
+    y1, y2, e, big = run_zero_input(y1, y2, e, a1, a2 if order == 2 else 0, k, arith, ef, order, steps, 64, gran)
     bad = np.nonzero(big > gran)[0]
     mode = "wrap-around" if arith.overflow == "wrap" else "saturation"
     if len(bad) == 0:
