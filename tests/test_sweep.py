@@ -16,7 +16,6 @@ import io
 import json
 import subprocess
 import sys
-import textwrap
 
 import pytest
 

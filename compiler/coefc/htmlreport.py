@@ -13,13 +13,13 @@ Levels in dBFS follow AES17 (0 dBFS is the RMS level of a full-scale sine).
 from __future__ import annotations
 
 import io
-import math
 import re
 from pathlib import Path
 
 import numpy as np
 
 from .errors import CoefcError
+from .reporting import format_number
 
 TEMPLATE_DIR = Path(__file__).parent / "templates"
 
@@ -133,20 +133,6 @@ def pole_zero_svg(plt, design, program) -> str | None:
     return _svg(fig)
 
 
-def _num(v) -> str:
-    if v is None:
-        return "n/a"
-    if isinstance(v, bool):
-        return "yes" if v else "no"
-    if isinstance(v, float):
-        if not math.isfinite(v):
-            return "n/a"
-        if v != 0 and (abs(v) >= 1e5 or abs(v) < 1e-3):
-            return f"{v:.3e}"
-        return f"{v:.4g}"
-    return str(v)
-
-
 def render_report(report, realisation) -> str:
     """The HTML page of a :class:`coefc.budget.CheckReport` (raises CoefcError without matplotlib)."""
     from . import __version__
@@ -164,16 +150,16 @@ def render_report(report, realisation) -> str:
             "name": ch.name,
             "ok": ch.ok,
             "arithmetic": ", ".join(f"{k} {v}" for k, v in ch.arithmetic.items() if v is not None),
-            "checks": [{"name": c.name, "value": _num(c.value), "limit": _num(c.limit), "ok": c.ok,
+            "checks": [{"name": c.name, "value": format_number(c.value), "limit": format_number(c.limit), "ok": c.ok,
                         "reason": ch.reasons.get(c.name, "")} for c in ch.checks],
             "sections": [{"index": i + 1, "b": s["b"], "a": s["a"], "shift": s["shift"],
                           "structure": s.get("structure", "")} for i, s in enumerate(ch.sections)],
-            "limit_cycles": [{"op": s.get("op"), "status": s.get("status"), "bound": _num(s.get("bound_lsb")),
-                              "amplitude": _num(s.get("amplitude_lsb")), "period": _num(s.get("period")),
+            "limit_cycles": [{"op": s.get("op"), "status": s.get("status"), "bound": format_number(s.get("bound_lsb")),
+                              "amplitude": format_number(s.get("amplitude_lsb")), "period": format_number(s.get("period")),
                               "overflow": s.get("overflow_oscillation") or "-", "note": s.get("note") or ""}
                              for s in lc.get("sections", []) or []],
-            "nodes": [{"op": n["op"], "node": n["node"], "l1": _num(n["l1_gain"]), "linf": _num(n["linf_gain"]),
-                       "headroom": _num(n["headroom_bits"])} for n in ch.metrics.get("nodes", []) or []],
+            "nodes": [{"op": n["op"], "node": n["node"], "l1": format_number(n["l1_gain"]), "linf": format_number(n["linf_gain"]),
+                       "headroom": format_number(n["headroom_bits"])} for n in ch.metrics.get("nodes", []) or []],
             "notes": list(program.notes),
             "response_svg": response_svg(plt, m, ch.sample_rate_hz, budget.passband_deviation_db),
             "noise_svg": noise_svg(plt, m, ch.sample_rate_hz),

@@ -9,17 +9,21 @@ test case per check, for CI dashboards).
 from __future__ import annotations
 
 import json
+import math
 from xml.sax.saxutils import escape, quoteattr
 
 DBFS_NOTE = "dBFS per AES17: 0 dBFS = RMS of a full-scale sine (full scale = 1.0)."
 
 
-def _num(v) -> str:
+def format_number(v) -> str:
+    """A metric for people: 4 significant digits, scientific when very large or small."""
     if v is None:
         return "n/a"
     if isinstance(v, bool):
         return "yes" if v else "no"
     if isinstance(v, float):
+        if not math.isfinite(v):
+            return "n/a"
         if abs(v) >= 1e5 or (v != 0 and abs(v) < 1e-3):
             return f"{v:.3e}"
         return f"{v:.4g}"
@@ -30,7 +34,7 @@ def _limit(name: str, limit) -> str:
     if isinstance(limit, str):
         return limit
     op = ">=" if name == "stopband_attenuation_db" else "<" if name == "stable" else "<="
-    return f"{op} {_num(limit)}"
+    return f"{op} {format_number(limit)}"
 
 
 def render_text(report) -> str:
@@ -47,7 +51,7 @@ def render_text(report) -> str:
         w = max([len(c.name) for c in ch.checks] + [10])
         for c in ch.checks:
             mark = "ok  " if c.ok else "FAIL"
-            lines.append(f"  {mark} {c.name:<{w}} {_num(c.value):>14}  {_limit(c.name, c.limit):<12} "
+            lines.append(f"  {mark} {c.name:<{w}} {format_number(c.value):>14}  {_limit(c.name, c.limit):<12} "
                          f"{ch.reasons.get(c.name, '')}")
     lines.append(DBFS_NOTE)
     nfail = len(report.failures())
@@ -71,7 +75,7 @@ def render_junit(report) -> str:
         for c in ch.checks:
             cls = quoteattr(f"{report.source}.{ch.name}")
             reason = ch.reasons.get(c.name, "")
-            msg = f"{c.name} = {_num(c.value)}, limit {_limit(c.name, c.limit)}: {reason}"
+            msg = f"{c.name} = {format_number(c.value)}, limit {_limit(c.name, c.limit)}: {reason}"
             if c.ok:
                 out.append(f'    <testcase classname={cls} name={quoteattr(c.name)}>'
                            f'<system-out>{escape(msg)}</system-out></testcase>')

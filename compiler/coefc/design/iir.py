@@ -144,7 +144,7 @@ def design_iir(ctx: StageContext) -> StageResult:
         how = f"order {order} (minimal for passband {_show(wp)} Hz, stopband {_show(ws)} Hz, " \
               f"{rp:g} dB ripple, {rs:g} dB attenuation)"
     else:
-        order = ctx.require("order", f"give the order, e.g. order = 4 (or passband_hz and stopband_hz "
+        order = ctx.require("order", "give the order, e.g. order = 4 (or passband_hz and stopband_hz "
                                      "for a minimal order)")
         edges = ctx.require("cutoff_hz", "give the cutoff frequency in Hz (a band [low, high] for "
                                          "bandpass/bandstop)")
