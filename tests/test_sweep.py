@@ -17,6 +17,7 @@ import json
 import subprocess
 import sys
 
+import numpy as np
 import pytest
 
 import coefc
@@ -154,3 +155,81 @@ def test_cli_minimise(lp_file):
     js = json.loads(r.stdout)
     for m in js["minimise"]:
         assert m["data_bits"] is not None and m["evaluated"] < m["grid"]
+
+
+# ---------------------------------------------------------------- per-op widths
+
+TWO_SECTIONS = """
+name = "per_op"
+sample_rate_hz = 48000
+
+[implementation]
+target = "mcu32"
+structure = "df1ef"
+scaling = "l1"
+
+[budget]
+passband_deviation_db = 0.05
+output_noise_dbfs = -100
+
+[[channel]]
+name = "eq"
+stages = [
+  { kind = "peaking", freq_hz = 30, q = 4.0, gain_db = -6 },
+  { kind = "peaking", freq_hz = 6000, q = 0.7, gain_db = 3 },
+]
+"""
+
+
+def test_hybrid_is_exactly_the_narrow_op_in_the_wide_format(tmp_path):
+    from coefc.opwidths import hybrid
+    from coefc.program import SectionOp
+    from coefc.realise import as_float_blocks
+    from coefc.targets import Overrides
+
+    def rows(prog):  # physical section rows in op order, and the gains
+        sos = np.vstack([b.sos for b in as_float_blocks(prog) if hasattr(b, "sos")])
+        gains = [b.gain for b in as_float_blocks(prog) if hasattr(b, "gain")]
+        return sos, gains
+
+    p = tmp_path / "two.toml"
+    p.write_text(TWO_SECTIONS)
+    d = coefc.load(p).design()
+    wide = d.realise("mcu32", Overrides(coef="Q2.30")).programs[0]
+    narrow = d.realise("mcu32", Overrides(coef="Q2.14")).programs[0]
+    section_ops = [k for k, op in enumerate(wide.ops) if isinstance(op, SectionOp)]
+    (ws, wg), (ns, ng) = rows(wide), rows(narrow)
+    done = 0
+    for i in section_ops:
+        h = hybrid(wide, narrow, i)
+        assert h is not None
+        hs, hg = rows(h)
+        r = section_ops.index(i)
+        expect = ws.copy()
+        expect[r] = ns[r]
+        assert np.array_equal(hs, expect) and hg == wg  # same physical values, exactly
+        assert not np.array_equal(ns[r], ws[r])  # and the narrow op really differs
+        done += 1
+    assert done == 2
+
+
+def test_low_frequency_section_needs_the_longer_coefficient_word(tmp_path):
+    # Fact of the trade (common practice, no source; direct-form pole sensitivity
+    # grows as poles crowd towards z = 1 -- Oppenheim & Schafer, finite-precision
+    # chapter, from memory): a 30 Hz peaking section at 48 kHz needs more
+    # coefficient bits than a 6 kHz one for the same response error.
+    from coefc.opwidths import minimise_op_widths
+
+    p = tmp_path / "two.toml"
+    p.write_text(TWO_SECTIONS)
+    d = coefc.load(p).design()
+    sw = Sweeper(d, d.loaded.description.budget, options=AnalysisOptions(measure_noise=False))
+    widths = minimise_op_widths(sw, 0, "mcu32", "df1ef", 64, 32, range(8, 33, 2))
+    by_freq = {}
+    for w in widths:
+        if w.kind == "section":
+            op = sw.design.realise("mcu32").programs[0].ops[w.op - 1]
+            by_freq[op.a[1]] = w.coef_bits  # A2 ~ r^2: the larger, the closer to the unit circle
+    assert len(by_freq) == 2
+    (_, narrow_ok), (_, wide_needed) = sorted(by_freq.items())
+    assert wide_needed > narrow_ok

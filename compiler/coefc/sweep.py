@@ -19,8 +19,9 @@ data width and vice versa, so a saddleback walk over the grid (start at the wide
 data word and the narrowest coefficient word; a pass moves to a narrower data word,
 a fail to a wider coefficient word) visits at most ``n_data + n_coef`` points.  Where
 monotonicity might not hold -- coefficient quantisation can pass by luck at one width
-and fail at the next -- the neighbours one bit narrower of the winner are checked
-too, and any non-monotone pass found is reported and followed.
+and fail at the next -- the coefficient width one step narrower than each frontier
+point is checked too, and any non-monotone pass found is reported and used.
+:mod:`coefc.opwidths` refines the result per operation (section, FIR, gain).
 
 References
 ----------
@@ -369,11 +370,13 @@ class MinimiseResult:
     evaluated: int  # configurations evaluated (out of the grid size)
     grid: int
     non_monotone: tuple[str, ...] = field(default_factory=tuple)
+    per_op: list = field(default_factory=list)  # coefc.opwidths.OpWidth, filled on request
 
     def to_json(self) -> dict:
         return {"channel": self.channel, "target": self.target, "structure": self.structure,
                 "acc_bits": self.acc_bits, "data_bits": self.data_bits, "coef_bits": self.coef_bits,
-                "evaluated": self.evaluated, "grid": self.grid, "non_monotone": list(self.non_monotone)}
+                "evaluated": self.evaluated, "grid": self.grid, "non_monotone": list(self.non_monotone),
+                "per_op": [w.to_json() for w in self.per_op]}
 
 
 def minimise(sweeper: Sweeper, channel_index: int, channel: str, target: str, structure: str,
@@ -381,8 +384,8 @@ def minimise(sweeper: Sweeper, channel_index: int, channel: str, target: str, st
     """Smallest (data + coef) passing widths of one channel by a saddleback walk.
 
     The walk assumes the verdict is monotone (more bits never hurt); it then checks
-    the neighbours one step narrower of every passing point on its frontier and
-    follows any pass found there, recording it as non-monotone.
+    the coefficient width one step narrower at every frontier point and uses any pass
+    found there, recording it as non-monotone.
     """
     datas, coefs = sorted(datas), sorted(coefs)
     seen: dict[tuple[int, int], bool] = {}
@@ -396,31 +399,29 @@ def minimise(sweeper: Sweeper, channel_index: int, channel: str, target: str, st
     base = sweeper.base_arithmetic(target)
     if base.is_float:
         return MinimiseResult(channel, target, structure, None, None, None, 0, 1)
-    # Frontier: for each coefficient width (narrow to wide) the narrowest passing data
-    # width, found by walking data widths down from the widest while passing.
+    # Saddleback walk: from the widest data word and the narrowest coefficient word, a
+    # pass records a frontier point and tries one data step narrower, a fail tries one
+    # coefficient step wider.  Each frontier point is the narrowest coefficient word
+    # found for its data width; at most n_data + n_coef points are evaluated.
     frontier: list[tuple[int, int]] = []
-    di = len(datas) - 1
-    for c in coefs:
-        if di < 0:
-            break
-        if not passes(datas[di], c):
-            continue  # even this data width fails here: a wider coefficient word is needed
-        while di > 0 and passes(datas[di - 1], c):
+    di, ci = len(datas) - 1, 0
+    while di >= 0 and ci < len(coefs):
+        if passes(datas[di], coefs[ci]):
+            frontier.append((datas[di], coefs[ci]))
             di -= 1
-        frontier.append((datas[di], c))
-        if di == 0:
-            break  # the narrowest data word passes: wider coefficients cannot be cheaper
+        else:
+            ci += 1
     notes = []
-    # Check monotonicity where it might not hold: the narrower neighbours of each
-    # frontier point (and one coefficient step below it) must fail.
+    # Check monotonicity where it might not hold: one coefficient step below each
+    # frontier point must fail (the walk already saw it fail when it arrived there by
+    # a coefficient step; when it arrived by a data step it did not look).
     extra = []
     for d, c in frontier:
-        for dd, cc in ((_prev(datas, d), c), (d, _prev(coefs, c))):
-            if dd is None or cc is None:
-                continue
-            if passes(dd, cc):
-                notes.append(f"passes at data {dd} coef {cc} below the monotone frontier point data {d} coef {c}")
-                extra.append((dd, cc))
+        cc = _prev(coefs, c)
+        if cc is not None and passes(d, cc):
+            notes.append(f"passes at data {d} coef {cc}, one coefficient step below the walk's frontier "
+                         f"point data {d} coef {c}: the verdict is not monotone there")
+            extra.append((d, cc))
     candidates = [p for p in frontier + extra if seen.get(p)]
     grid = len(datas) * len(coefs)
     evaluated = len(seen)
@@ -433,6 +434,7 @@ def minimise(sweeper: Sweeper, channel_index: int, channel: str, target: str, st
 def _prev(values: Sequence[int], v: int) -> int | None:
     i = values.index(v)
     return values[i - 1] if i > 0 else None
+
 
 
 def plot(result: SweepResult, path) -> None:

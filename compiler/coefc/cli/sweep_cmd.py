@@ -34,6 +34,7 @@ def sweep(
     scaling: options.Scaling = None,
     channel: options.Channel = None,
     minimise: Annotated[bool, typer.Option("--minimise", help="Find the smallest passing widths per channel by a monotone search.")] = False,
+    per_op: Annotated[bool, typer.Option("--per-op", help="With --minimise: also the smallest coefficient width of each section, FIR and gain.")] = False,
     measure_noise: Annotated[bool, typer.Option("--measure-noise", help="Also measure noise with the bit-true engine (slower).")] = False,
     json_out: options.JsonOut = None,
     csv_out: Annotated[Optional[str], typer.Option("--csv", help="Write one CSV row per configuration and channel to PATH ('-' for stdout).")] = None,
@@ -53,8 +54,11 @@ def sweep(
     from ..api import load
     from ..budget import apply_overrides
     from ..errors import CoefcError
+    from ..opwidths import minimise_op_widths
     from ..sweep import Sweeper, minimise as run_minimise, parse_names, parse_widths, plot
 
+    if per_op and not minimise:
+        raise CoefcError("--per-op refines --minimise; give both")
     if plot_out is not None and plot_out.suffix.lower() not in (".png", ".svg"):
         raise CoefcError(f"{plot_out}: the plot is written as .png or .svg; choose one of those suffixes")
     datas = parse_widths(data or "16:32:4", "--data")
@@ -82,7 +86,11 @@ def sweep(
             total = len(groups) * len(design.channels)
             for gi, (t, st, a) in enumerate(groups):
                 for ci, ch in enumerate(design.channels):
-                    found.append(run_minimise(sweeper, ci, ch.name, t, st, a, datas, coefs))
+                    m = run_minimise(sweeper, ci, ch.name, t, st, a, datas, coefs)
+                    if per_op and m.data_bits is not None:
+                        m.per_op.extend(minimise_op_widths(sweeper, ci, t, st, a, m.data_bits,
+                                                           [c for c in coefs if c <= m.coef_bits]))
+                    found.append(m)
                     tick(gi * len(design.channels) + ci + 1, total)
             result = None
         else:
@@ -201,3 +209,6 @@ def _print_minimise(found) -> None:
                   f"({m.evaluated} of {m.grid} grid points evaluated)")
         for n in m.non_monotone:
             print(f"  not monotone: {n}")
+        for w in m.per_op:
+            bits = "no width in range passes" if w.coef_bits is None else f"{w.coef_bits}-bit coefficients"
+            print(f"  op {w.op} ({w.kind}): {bits}" + (f"  [{w.note}]" if w.note else ""))
