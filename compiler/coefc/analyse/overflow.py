@@ -98,10 +98,12 @@ def _unit(n: int) -> np.ndarray:
 
 def node_gains(models: list[OpModel], impulses: list[np.ndarray]) -> list[NodeGain]:
     out = []
+    norms: dict[int, tuple[float, float]] = {}  # an op's output and accumulator share one response
     for idx, name, h, fs in _node_responses(models, impulses):
-        l1 = float(np.sum(np.abs(h)))
-        nfft = 1 << max(12, int(np.ceil(np.log2(len(h)))) + 2)
-        linf = float(np.max(np.abs(np.fft.rfft(h, nfft))))
+        if id(h) not in norms:
+            nfft = 1 << max(12, int(np.ceil(np.log2(len(h)))) + 2)
+            norms[id(h)] = (float(np.sum(np.abs(h))), float(np.max(np.abs(np.fft.rfft(h, nfft)))))
+        l1, linf = norms[id(h)]
         out.append(NodeGain(idx, name, l1, linf, fs, _headroom(fs, l1), _headroom(fs, linf)))
     return out
 

@@ -150,13 +150,37 @@ def chain_cost(pre, sections, post, norm: str, target: float, structure: str, ex
     """(numerators with fewer than 8 significant bits, analytic output noise in LSB^2)."""
     chain = list(pre) + [("sos", s) for s in sections] + list(post)
     n = length or scaling.response_length(chain)
+    peaks, noise = _scaled_cost(chain, norm, target, structure, extra_gain, n)
+    thin = 0
+    if coef_lsb > 0:
+        thin = sum(1 for v in peaks if v < 128 * coef_lsb)
+    return thin, noise
+
+
+_COST_CACHE: dict = {}
+
+
+def _scaled_cost(chain, norm: str, target: float, structure: str, extra_gain: float, n: int):
+    """(largest |numerator coefficient| of every scaled section, analytic output noise).
+
+    A pure function of its arguments, so it is kept per process by their exact
+    values: a sweep over coefficient widths orders the same float sections for the
+    same data word (the same *target*) again and again.
+    """
+    key = (tuple((k, *(np.asarray(v, dtype=float).tobytes() for v in (op if k == "sos" else (op,))))
+                 for k, op in chain), norm, float(target), structure, float(extra_gain), int(n))
+    hit = _COST_CACHE.get(key)
+    if hit is not None:
+        return hit
     f = scaling.scale_factors(chain, norm, target, n)
     sc = [(k, scaling.scaled(k, op, c)) for (k, op), c in zip(chain, f)]
     g = extra_gain / float(np.prod(f))
-    thin = 0
-    if coef_lsb > 0:
-        thin = sum(1 for k, op in sc if k == "sos" and float(np.max(np.abs(op[0]))) < 128 * coef_lsb)
-    return thin, scaling.output_noise_lsb2(sc, g, structure, True, n)
+    peaks = tuple(float(np.max(np.abs(op[0]))) for k, op in sc if k == "sos")
+    out = (peaks, scaling.output_noise_lsb2(sc, g, structure, True, n))
+    if len(_COST_CACHE) >= 8192:
+        _COST_CACHE.clear()
+    _COST_CACHE[key] = out
+    return out
 
 
 def chain_noise(pre, sections, post, norm: str, target: float, structure: str, extra_gain: float = 1.0,
