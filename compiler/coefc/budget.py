@@ -140,19 +140,19 @@ def apply_overrides(budget: Budget, *, passband_deviation_db: float | None = Non
     where = "<command line>"
     ch = {}
     if passband_deviation_db is not None:
-        if not passband_deviation_db > 0:
-            raise DescriptionError(where, f"{passband_deviation_db} dB: use a positive deviation such as 0.05",
+        if not (passband_deviation_db > 0 and math.isfinite(passband_deviation_db)):
+            raise DescriptionError(where, f"{passband_deviation_db} dB: use a positive, finite deviation such as 0.05",
                                    key="--max-passband-deviation-db")
         ch["passband_deviation_db"] = float(passband_deviation_db)
     if stopband_attenuation_db is not None:
-        if not stopband_attenuation_db > 0:
-            raise DescriptionError(where, f"{stopband_attenuation_db} dB: use a positive attenuation such as 80",
+        if not (stopband_attenuation_db > 0 and math.isfinite(stopband_attenuation_db)):
+            raise DescriptionError(where, f"{stopband_attenuation_db} dB: use a positive, finite attenuation such as 80",
                                    key="--min-stopband-attenuation-db")
         ch["stopband_attenuation_db"] = float(stopband_attenuation_db)
     if output_noise_dbfs is not None:
-        if not output_noise_dbfs < 0:
-            raise DescriptionError(where, f"{output_noise_dbfs} dBFS is not a noise limit; write a negative "
-                                   "level such as -120", key="--max-noise-dbfs")
+        if not (output_noise_dbfs < 0 and math.isfinite(output_noise_dbfs)):
+            raise DescriptionError(where, f"{output_noise_dbfs} dBFS is not a noise limit; write a finite "
+                                   "negative level such as -120", key="--max-noise-dbfs")
         ch["output_noise_dbfs"] = float(output_noise_dbfs)
     if limit_cycles is not None:
         text = str(limit_cycles).strip().lower()

@@ -54,6 +54,9 @@ __all__ = ["render", "c_identifier", "golden_input", "GOLDEN_DEFAULT", "EmitErro
 
 #: Default number of golden-vector samples per channel.
 GOLDEN_DEFAULT = 256
+#: Most golden-vector samples per channel (each is a line of C; a million already
+#: makes a header of tens of megabytes).
+GOLDEN_MAX = 1 << 20
 #: The kernel interface versions this emitter writes.
 SUPPORTED_ABI = (1,)
 
@@ -455,8 +458,9 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
     if info.kernel_abi not in SUPPORTED_ABI:
         raise TargetError(f"{target.folder / 'target.toml'}: [kernel] abi = {info.kernel_abi}; this coefc "
                           f"writes interface {', '.join(map(str, SUPPORTED_ABI))}")
-    if vectors < 0:
-        raise CoefcError(f"<command line>: --vectors {vectors}: use 0 (none) or a positive count")
+    if not 0 <= vectors <= GOLDEN_MAX:
+        raise CoefcError(f"<command line>: --vectors {vectors}: use 0 (none) up to {GOLDEN_MAX} samples "
+                         "per channel")
     header_name = Path(header_name).name
     names = _names(desc.name, [p.name for p in programs], desc.source)
 

@@ -1,44 +1,135 @@
-"""Writing files safely: all or nothing."""
+"""Writing files safely: an output path and its bytes in, the whole file (or nothing) out.
+
+:func:`check_output` validates an output path before any slow work starts (its
+folder exists, it is not a folder, it is not one of the command's inputs);
+:func:`write_atomic` writes through a temporary file and an atomic rename.  Every
+problem is a :class:`coefc.errors.CoefcError` naming the path and the fix.
+"""
 
 from __future__ import annotations
 
 import os
 import tempfile
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 
 from .errors import CoefcError
+
+
+def _same_file(a: Path, b: Path) -> bool:
+    try:
+        return a.exists() and b.exists() and os.path.samefile(a, b)
+    except OSError:
+        return False
+
+
+def check_output(path, inputs=(), what: str = "output") -> Path:
+    """Refuse an output *path* that cannot be written or would destroy an input.
+
+    Parameters
+    ----------
+    path : path-like
+        The file about to be written.
+    inputs : iterable of path-like
+        Files the command reads (the description, sample input); writing over
+        one of them would lose it.
+    what : str
+        What the file is, for the message (``"output"``, ``"JSON report"`` ...).
+
+    Raises
+    ------
+    CoefcError
+        When the folder is missing, the path is a folder, or it is an input.
+    """
+    path = Path(path)
+    folder = path.parent if str(path.parent) else Path(".")
+    if path.is_dir():
+        raise CoefcError(f"{path}: is a folder; give the {what} a file name inside it")
+    if not folder.is_dir():
+        raise CoefcError(f"{path}: folder '{folder}' does not exist; create it or choose another output path")
+    for inp in inputs:
+        if inp is not None and _same_file(path, Path(inp)):
+            raise CoefcError(f"{path}: is also an input of this command and would be overwritten; "
+                             f"choose another {what} path")
+    return path
+
+
+@contextmanager
+def atomic_path(path) -> Iterator[Path]:
+    """A temporary path beside *path* (same suffix) for a writer that wants a file name.
+
+    On success the temporary file replaces *path* atomically; on any error it is
+    removed and *path* is left as it was.  OS errors become :class:`CoefcError`.
+    """
+    path = check_output(path)
+    folder = path.parent if str(path.parent) else Path(".")
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=path.suffix, dir=folder)
+        os.close(fd)
+    except OSError as e:
+        raise CoefcError(f"{path}: cannot create a file in folder '{folder}' ({e.strerror or e}); "
+                         "check the folder's permissions or choose another output path") from None
+    try:
+        yield Path(tmp)
+        os.chmod(tmp, _plain_mode(path))
+        os.replace(tmp, path)
+    except BaseException as e:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        if isinstance(e, OSError):
+            raise CoefcError(f"{path}: cannot write ({e.strerror or e}); check the folder's permissions "
+                             "and free space, or choose another output path") from None
+        raise
+
+
+def _plain_mode(path: Path) -> int:
+    """The mode a plain open() would give: the old file's mode, or 0666 less the umask."""
+    try:
+        return path.stat().st_mode & 0o7777
+    except OSError:
+        umask = os.umask(0)
+        os.umask(umask)
+        return 0o666 & ~umask
 
 
 def write_atomic(path: Path, data: str | bytes) -> None:
     """Write *data* to *path* through a temporary file and an atomic rename.
 
     A crash or an error at any point leaves either the old file or the new one,
-    never a half-written file.
+    never a half-written file; no temporary file is left behind.
+
+    Raises
+    ------
+    CoefcError
+        When the path is a folder, its folder is missing, or the system refuses
+        the write (permissions, full disk); the message names the path.
     """
-    path = Path(path)
+    path = check_output(path)
     folder = path.parent if str(path.parent) else Path(".")
-    if not folder.is_dir():
-        raise CoefcError(f"{path}: folder '{folder}' does not exist; create it or choose another output path")
     raw = data.encode("utf-8") if isinstance(data, str) else data
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
+    except OSError as e:
+        raise CoefcError(f"{path}: cannot create a file in folder '{folder}' ({e.strerror or e}); "
+                         "check the folder's permissions or choose another output path") from None
     try:
         # mkstemp makes the file private (0600); give it the mode a plain open()
         # would: the old file's mode, or 0666 less the umask.
-        try:
-            mode = path.stat().st_mode & 0o7777
-        except OSError:
-            umask = os.umask(0)
-            os.umask(umask)
-            mode = 0o666 & ~umask
-        os.chmod(tmp, mode)
+        os.chmod(tmp, _plain_mode(path))
         with os.fdopen(fd, "wb") as f:
             f.write(raw)
             f.flush()
             os.fsync(f.fileno())
         os.replace(tmp, path)
-    except BaseException:
+    except BaseException as e:
         try:
             os.unlink(tmp)
         except FileNotFoundError:
             pass
+        if isinstance(e, OSError):
+            raise CoefcError(f"{path}: cannot write ({e.strerror or e}); check the folder's permissions "
+                             "and free space, or choose another output path") from None
         raise

@@ -50,18 +50,43 @@ def _kind(path: Path, what: str) -> str:
     return suf[1:]
 
 
+def output_kind(path) -> str:
+    """``"wav"`` or ``"txt"`` for an output path; DataError for any other suffix."""
+    return _kind(Path(path), "output")
+
+
 def _wav_bits(path: Path, raw: bytes) -> int:
-    """Bits per sample from the 'fmt ' chunk (scipy does not report 24 vs 32)."""
+    """Bits per sample from the 'fmt ' chunk (scipy does not report 24 vs 32).
+
+    Also refuses a file whose chunks run past its end (a truncated download or
+    copy), which scipy would otherwise read as a shorter signal without a word.
+    """
     if len(raw) < 12 or raw[:4] not in (b"RIFF", b"RIFX") or raw[8:12] != b"WAVE":
         raise DataError(f"{path}: not a WAV file (no RIFF/WAVE header); give a PCM .wav or a .txt file")
     end = "<" if raw[:4] == b"RIFF" else ">"
     pos = 12
+    bits = None
+    has_data = False
     while pos + 8 <= len(raw):
         cid, size = raw[pos:pos + 4], struct.unpack(end + "I", raw[pos + 4:pos + 8])[0]
-        if cid == b"fmt " and size >= 16:
-            return struct.unpack(end + "H", raw[pos + 22:pos + 24])[0]
+        body = raw[pos + 8:pos + 8 + size]
+        if cid == b"fmt ":
+            if size < 16 or len(body) < 16:
+                raise DataError(f"{path}: WAV 'fmt ' chunk is cut short ({len(body)} of at least 16 bytes); "
+                                "the file is damaged or truncated: export it again")
+            bits = struct.unpack(end + "H", body[14:16])[0]
+        elif cid == b"data":
+            has_data = True
+            if len(body) < size:
+                raise DataError(f"{path}: WAV data is truncated ({len(body)} of the {size} bytes its header "
+                                "announces); the file is damaged or incomplete: export it again")
         pos += 8 + size + (size & 1)
-    raise DataError(f"{path}: WAV file has no 'fmt ' chunk; re-export it as PCM WAV")
+    if bits is None:
+        raise DataError(f"{path}: WAV file has no 'fmt ' chunk; the file is damaged: re-export it as PCM WAV")
+    if not has_data:
+        raise DataError(f"{path}: WAV file has no 'data' chunk (no samples); the file is damaged or truncated: "
+                        "export it again")
+    return bits
 
 
 def read_samples(path, arithmetic: Arithmetic, sample_rate_hz: float | None = None) -> np.ndarray:
@@ -105,6 +130,8 @@ def read_samples(path, arithmetic: Arithmetic, sample_rate_hz: float | None = No
     if sample_rate_hz is not None and abs(rate - sample_rate_hz) > 1e-9 * sample_rate_hz:
         raise DataError(f"{path}: WAV sample rate is {rate} Hz but the description is designed for "
                         f"{sample_rate_hz:g} Hz; resample the input or design for {rate} Hz")
+    if data.shape[0] == 0:
+        raise DataError(f"{path}: WAV file holds no samples; give an input with at least one sample")
     if data.dtype.kind == "f":
         if not np.all(np.isfinite(data)):
             raise DataError(f"{path}: float WAV contains NaN or infinity")
@@ -168,6 +195,8 @@ def _read_text(path: Path, ar: Arithmetic) -> np.ndarray:
             raise DataError(f"{path}:{lineno}: {v} is outside the {ar.data} data word "
                             f"({ar.data.min_int} .. {ar.data.max_int})")
         vals.append(v)
+    if not vals:
+        raise DataError(f"{path}: no samples (only blank lines or comments); write one sample per line")
     if ar.is_float:
         return np.array(vals, dtype=np.float32)
     return np.array(vals, dtype=np.int64)

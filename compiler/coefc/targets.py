@@ -58,12 +58,24 @@ def _target_folders(d: Path) -> list[Path]:
     return sorted(p for p in d.iterdir() if (p / "target.toml").is_file())
 
 
+def _checked_dirs(extra_dirs: Iterable[str | os.PathLike]) -> list[Path]:
+    """:func:`search_dirs`, refusing a named folder that is missing or is a file."""
+    dirs = search_dirs(extra_dirs)
+    for d in dirs:
+        if d == builtin_dir():
+            continue
+        if not d.exists():
+            raise TargetError(f"{d}: target directory does not exist; fix --target-dir or {ENV_VAR}")
+        if not d.is_dir():
+            raise TargetError(f"{d}: is a file, not a target directory; give the folder that holds "
+                              f"target.toml (--target-dir or {ENV_VAR})")
+    return dirs
+
+
 def list_targets(extra_dirs: Iterable[str | os.PathLike] = ()) -> list[Target]:
     """Every target visible, first occurrence of a name winning."""
     seen: dict[str, Target] = {}
-    for d in search_dirs(extra_dirs):
-        if not Path(d).exists() and Path(d) != builtin_dir():
-            raise TargetError(f"{d}: target directory does not exist; fix --target-dir or {ENV_VAR}")
+    for d in _checked_dirs(extra_dirs):
         for folder in _target_folders(Path(d)):
             if folder.name not in seen:
                 seen[folder.name] = load_target(folder)
@@ -71,7 +83,10 @@ def list_targets(extra_dirs: Iterable[str | os.PathLike] = ()) -> list[Target]:
 
 
 def find_target(name: str, extra_dirs: Iterable[str | os.PathLike] = ()) -> Target:
-    for d in search_dirs(extra_dirs):
+    """The first target called *name* on the search path (TargetError when none)."""
+    if not name or not name.strip():
+        raise TargetError("the target name is empty; name one such as mcu32 (see coefc targets)")
+    for d in _checked_dirs(extra_dirs):
         for folder in _target_folders(Path(d)):
             if folder.name == name:
                 return load_target(folder)
@@ -159,6 +174,7 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
     """
     arith = target.arithmetic
     structure_from = None
+    width_from = {"data": str(target.folder / "target.toml"), "acc_bits": str(target.folder / "target.toml")}
     layers = [(implementation, source)]
     if overrides is not None:
         layers.append((overrides, "<command line>"))
@@ -168,6 +184,13 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
             v = getattr(layer, key, None)
             if v is None:
                 continue
+            if key in ("data", "coef", "acc_bits") and arith.is_float and where == "<command line>":
+                option = {"data": "--data", "coef": "--coef", "acc_bits": "--acc"}[key]
+                raise DescriptionError(where, f"target '{target.name}' computes in float32, which has no "
+                                       f"fixed-point words; drop {option} or choose a fixed-point target",
+                                       key=option)
+            if key in width_from:
+                width_from[key] = where
             if key in ("data", "coef"):
                 if arith.is_float:
                     continue  # float32 targets have no Q formats
@@ -190,17 +213,31 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
                 raise DescriptionError(where, f"unknown overflow '{v}'; use one of {', '.join(OVERFLOW_MODES)}", key=key)
             elif key == "scaling" and v not in SCALINGS:
                 raise DescriptionError(where, f"unknown scaling '{v}'; use one of {', '.join(SCALINGS)}", key=key)
-            elif key == "acc_bits" and arith.is_float:
-                continue
+            elif key == "acc_bits":
+                if arith.is_float:
+                    continue
+                if isinstance(v, bool) or not isinstance(v, int) or not 2 <= v <= 128:
+                    raise DescriptionError(where, f"accumulator of {v} bits is out of range; use 2..128 bits",
+                                           key="--acc" if where == "<command line>" else "acc_bits")
             changes[key] = v
         arith = arith.with_(**changes)
     if structure_from is not None and arith.structure not in target.structures:
         raise DescriptionError(
             structure_from, f"target '{target.name}' does not support structure '{arith.structure}'; "
             f"it supports {', '.join(target.structures)}", key="structure")
+    if not arith.is_float and arith.data.frac_bits < 2:
+        where = width_from["data"]
+        raise DescriptionError(where, f"data word {arith.data} has {arith.data.frac_bits} fractional bit(s); "
+                               "a data word needs at least 2 (scaling to 1 - 2 LSB of full scale needs them); "
+                               "use a wider data word such as Q1.15",
+                               key="--data" if where == "<command line>" else "data")
     if not arith.is_float and arith.acc_bits < arith.data.width:
-        raise DescriptionError(source, f"accumulator of {arith.acc_bits} bits is narrower than the "
-                               f"{arith.data.width}-bit data word; widen acc_bits", key="acc_bits")
+        where = width_from["acc_bits"] if width_from["acc_bits"] != str(target.folder / "target.toml") \
+            else width_from["data"]
+        raise DescriptionError(where, f"accumulator of {arith.acc_bits} bits is narrower than the "
+                               f"{arith.data.width}-bit data word ({arith.data}); widen the accumulator "
+                               "or narrow the data word",
+                               key={"<command line>": "--acc"}.get(where, "acc_bits"))
     return arith
 
 

@@ -56,10 +56,39 @@ for _optional in ("run_cmd", "check_cmd", "build_cmd", "targets_cmd", "sweep_cmd
             raise
 
 
+try:  # Typer 0.2x ships its own copy of click; older releases use click itself
+    from typer import TyperException as _TyperError
+except ImportError:  # pragma: no cover - older Typer
+    from click import ClickException as _TyperError
+
+
+def _usage_line(e) -> str:
+    """One line for a command-line usage error (unknown option, bad integer ...)."""
+    msg = " ".join(str(e.format_message()).split()).rstrip(".")
+    ctx = getattr(e, "ctx", None)
+    where = ctx.command_path if ctx is not None else "coefc"
+    return f"coefc: error: {msg}; see '{where} --help'"
+
+
 def main() -> None:
-    """Entry point of the ``coefc`` script (usage errors exit 2 through Typer)."""
+    """Entry point of the ``coefc`` script.
+
+    Library errors (:class:`CoefcError`) and command-line usage errors (unknown
+    option, a value of the wrong type) each become one line on stderr starting
+    ``coefc: error:`` and exit code 2; nothing else is caught.
+    """
     try:
-        app()
+        rv = app(prog_name="coefc", standalone_mode=False)
     except CoefcError as e:
         print(f"coefc: error: {e}", file=sys.stderr)
         sys.exit(2)
+    except _TyperError as e:
+        if type(e).__name__ == "NoArgsIsHelpError":  # bare `coefc` or `coefc check`: show the help
+            e.show()
+            sys.exit(2)
+        print(_usage_line(e), file=sys.stderr)
+        sys.exit(2)
+    except typer.Abort:
+        print("coefc: interrupted", file=sys.stderr)
+        sys.exit(130)
+    sys.exit(rv if isinstance(rv, int) else 0)

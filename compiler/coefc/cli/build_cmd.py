@@ -19,7 +19,7 @@ from . import app, options
 
 Output = Annotated[Path, typer.Option("-o", "--output", help="Header to write (OUT.h).")]
 Vectors = Annotated[int, typer.Option(
-    "--vectors", min=0, help="Golden-vector samples per channel in the header (0 = none).")]
+    "--vectors", min=0, max=1 << 20, help="Golden-vector samples per channel in the header (0 = none).")]
 CheckOnly = Annotated[bool, typer.Option(
     "--check", help="Write nothing; exit 1 if OUT.h is missing or differs from what would be written.")]
 Force = Annotated[bool, typer.Option(
@@ -55,13 +55,15 @@ def build(
     from ..api import load
     from ..budget import run_check
     from ..emit import render
-    from ..fileio import write_atomic
+    from ..fileio import check_output, write_atomic
     from ..targets import build_info
 
     if output.is_dir():
         raise CoefcError(f"{output}: is a folder; give the header's file name, e.g. -o {output / 'filters.h'}")
     if output.suffix != ".h":
         raise CoefcError(f"{output}: the output must be a C header ending in .h")
+    if not check_only:
+        check_output(output, [file], "header")
     loaded = load(file)
     ov = options.overrides(data=data, coef=coef, acc=acc, rounding=rounding, overflow=overflow,
                            structure=structure, scaling=scaling)
@@ -94,9 +96,8 @@ def build(
             raise typer.Exit(1)
         print(f"{output}: up to date")
         return
+    for path in paths:
+        check_output(path, [file], "header")
     for path, text in paths.items():
-        try:
-            write_atomic(path, text)
-        except OSError as e:
-            raise CoefcError(f"{path}: cannot write ({e.strerror or e}); check the folder's permissions") from None
+        write_atomic(path, text)
         print(f"wrote {path}" + ("  (OVER BUDGET, forced)" if not report.ok else ""))

@@ -64,6 +64,7 @@ def check(
     from ..budget import apply_overrides, run_check
     from ..reporting import render
 
+    options.check_outputs([(json_out, "JSON report"), (junit, "JUnit report")], [file])
     loaded = load(file)
     desc = loaded.description
     budget = apply_overrides(desc.budget, passband_deviation_db=max_passband_deviation_db,

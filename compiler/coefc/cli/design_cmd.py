@@ -89,6 +89,7 @@ def design(
     from ..api import load
     from ..design.response_table import channel_summary, default_freqs
 
+    options.check_outputs([(json_out, "JSON report")], [file])
     loaded = load(file)
     desc = loaded.description
     fq = parse_freqs(freqs, desc.sample_rate_hz) if freqs is not None else default_freqs(desc.sample_rate_hz)

@@ -11,7 +11,14 @@ import typer
 
 from ..targets import Overrides
 
-Target = Annotated[Optional[str], typer.Option("--target", help="Target name (built-in or from --target-dir).")]
+def _target_name(value: str | None) -> str | None:
+    if value is not None and not value.strip():
+        raise typer.BadParameter("the target name is empty; name one such as mcu32 (see coefc targets)")
+    return value
+
+
+Target = Annotated[Optional[str], typer.Option("--target", callback=_target_name,
+                                               help="Target name (built-in or from --target-dir).")]
 TargetDirs = Annotated[
     Optional[list[Path]],
     typer.Option("--target-dir", help="Extra folder of targets (repeatable); also COEFC_TARGET_PATH."),
@@ -30,6 +37,19 @@ JsonOut = Annotated[Optional[str], typer.Option("--json", help="Write the JSON r
 def overrides(data=None, coef=None, acc=None, rounding=None, overflow=None, structure=None, scaling=None) -> Overrides:
     return Overrides(structure=structure, data=data, coef=coef, acc_bits=acc, rounding=rounding,
                      overflow=overflow, scaling=scaling)
+
+
+def check_outputs(outputs, inputs=()) -> None:
+    """Refuse, before any work, output paths that cannot be written or would overwrite an input.
+
+    *outputs* holds ``(path or None, what)`` pairs; ``None`` and ``'-'`` (stdout)
+    are skipped.
+    """
+    from ..fileio import check_output
+
+    for dest, what in outputs:
+        if dest is not None and str(dest) != "-":
+            check_output(Path(dest), inputs, what)
 
 
 def write_json(obj, dest: str | None) -> None:

@@ -42,8 +42,12 @@ def run(
     """
     from ..api import load
     from ..sampleio import read_samples, write_samples
+    from ..fileio import check_output
+    from ..sampleio import output_kind
     from ..simulate import simulate
 
+    output_kind(output_path)
+    check_output(output_path, [file, input_path], "output")
     loaded = load(file)
     desc = loaded.description
     ov = options.overrides(data=data, coef=coef, acc=acc, rounding=rounding, overflow=overflow,

@@ -61,8 +61,19 @@ def sweep(
         raise CoefcError("--per-op refines --minimise; give both")
     if plot_out is not None and plot_out.suffix.lower() not in (".png", ".svg"):
         raise CoefcError(f"{plot_out}: the plot is written as .png or .svg; choose one of those suffixes")
-    datas = parse_widths(data or "16:32:4", "--data")
-    coefs = parse_widths(coef or "16:32:4", "--coef")
+    if plot_out is not None:
+        import importlib.util
+
+        if importlib.util.find_spec("matplotlib") is None:
+            raise CoefcError(f"{plot_out}: plotting needs matplotlib: pip install 'coefc[plot]' (or drop --plot)")
+    options.check_outputs([(json_out, "JSON report"), (csv_out, "CSV table"), (plot_out, "plot")], [file])
+    for text, opt in ((data, "--data"), (coef, "--coef"), (acc, "--acc"), (structure, "--structure"),
+                      (target, "--target")):
+        if text is not None and not text.replace(",", "").strip():
+            raise CoefcError(f"<command line>, key '{opt}': '{text}' names nothing; give a value or leave "
+                             f"{opt} out for the default")
+    datas = parse_widths(data if data is not None else "16:32:4", "--data")
+    coefs = parse_widths(coef if coef is not None else "16:32:4", "--coef")
     accs = parse_widths(acc, "--acc")
     structures = parse_names(structure)
     targets = parse_names(target) or (None,)
@@ -115,7 +126,10 @@ def sweep(
 
                 write_atomic(Path(csv_out), buf.getvalue())
         if plot_out is not None:
-            plot(result, plot_out)
+            from ..fileio import atomic_path
+
+            with atomic_path(plot_out) as tmp:
+                plot(result, tmp)
         ok = result.cheapest() is not None
     if not ok:
         raise typer.Exit(1)

@@ -24,6 +24,7 @@ def targets(target_dir: options.TargetDirs = None, json_out: options.JsonOut = N
     """List targets and their arithmetic (built-in, --target-dir, COEFC_TARGET_PATH)."""
     from ..targets import list_targets
 
+    options.check_outputs([(json_out, "JSON report")])
     found = list_targets(target_dir or ())
     if json_out:
         options.write_json({"schema": 1, "targets": [_row(t) for t in found]}, json_out)

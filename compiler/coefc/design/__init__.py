@@ -133,6 +133,35 @@ def _channel_warnings(blocks, stages: list[tuple[int, StageResult]], fs: float) 
     return out
 
 
+_FREQ_KEYS = ("cutoff_hz", "freq_hz", "passband_hz", "stopband_hz")
+
+
+def _check_sound(ctx: StageContext, res: StageResult) -> None:
+    """Refuse a designed stage that double precision could not represent.
+
+    Extreme parameters (a corner of 1e-300 Hz, a Q of 1e300) can push designed
+    coefficients to infinity or the poles onto the unit circle; every later stage
+    (response, scaling, realisation) would then fail far from the cause.
+    """
+    from ..blocks import FirBlock, GainBlock
+
+    key = next((k for k in _FREQ_KEYS if ctx.has(k)), None)
+    for b in res.blocks:
+        values = b.sos if isinstance(b, SosBlock) else b.taps if isinstance(b, FirBlock) else \
+            np.array([b.gain]) if isinstance(b, GainBlock) else np.zeros(0)
+        if not np.all(np.isfinite(values)):
+            raise ctx.error("the design has a coefficient that is not finite (NaN or infinity): these "
+                            "parameters are beyond double precision; move them towards ordinary values", key)
+        if isinstance(b, SosBlock):
+            for row in b.sos:
+                a = np.trim_zeros(np.asarray(row[3:], dtype=float), "b")
+                if len(a) > 1 and float(np.max(np.abs(np.roots(a)))) >= 1.0:
+                    raise ctx.error(
+                        f"the designed stage has a pole on the unit circle in double precision: the frequency "
+                        f"is too far below the sample rate ({ctx.fs:g} Hz) or the Q too extreme to represent; "
+                        "raise the frequency, lower sample_rate_hz or use a gentler Q", key)
+
+
 def design_channel(channel: ChannelSpec, sample_rate_hz: float, source: str) -> ChannelDesign:
     """Design every stage of *channel* in floating point.
 
@@ -163,6 +192,7 @@ def design_channel(channel: ChannelSpec, sample_rate_hz: float, source: str) -> 
         ctx = StageContext(source=source, channel=channel.name, index=st.index, kind=st.kind,
                            fs=float(sample_rate_hz), params=st.params)
         res = _designer(ctx)(ctx)
+        _check_sound(ctx, res)
         blocks.extend(res.blocks)
         results.append((st.index, res))
         summaries.append(StageSummary(index=st.index, kind=st.kind, text=res.text, order=res.order,

@@ -174,8 +174,9 @@ def design_iir(ctx: StageContext) -> StageResult:
         warnings.simplefilter("ignore")
         try:
             sos = family_sos(response, order, edges, ctx.kind, ctx.fs, rp, rs)
-        except (ValueError, ZeroDivisionError, np.linalg.LinAlgError) as e:
-            raise ctx.error(f"the {name} design failed ({e}); change the order or edges") from None
+        except (ValueError, ZeroDivisionError, OverflowError, np.linalg.LinAlgError) as e:
+            raise ctx.error(f"the {name} design failed ({e}); change the order or edges, or relax "
+                            "ripple_db/attenuation_db") from None
     if not np.all(np.isfinite(sos)):
         raise ctx.error(f"the {name} design is not numerically sound at this order and these edges; "
                         "lower the order or move the edges", "order" if ctx.has("order") else "stopband_hz")

@@ -112,6 +112,11 @@ def design_weighting(ctx: StageContext) -> StageResult:
     from scipy import signal
 
     letter = ctx.require("weighting", "give weighting = \"A\" or \"C\"")
+    if ctx.fs <= 2000.0:
+        # The weighting is normalised to 0 dB at 1 kHz (IEC 61672-1), which must lie below Nyquist.
+        raise ctx.error(f"{letter}-weighting is defined relative to 1 kHz, which must lie below Nyquist "
+                        f"(sample_rate_hz={ctx.fs:g} -> {ctx.nyquist:g} Hz); use a sample rate above 2000 Hz "
+                        "(IEC 61672-1 weightings need an audio rate, 48000 Hz is usual)", "weighting")
     sos = weighting_sos(letter, ctx.fs)
     # Compare the digital curve with the nominal values at the exact base-ten
     # frequencies (IEC 61672-1 computes its table there).
