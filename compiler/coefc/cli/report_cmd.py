@@ -39,6 +39,7 @@ def report(
         from ..errors import CoefcError
 
         raise CoefcError(f"{out}: the report is an HTML page; name the output file *.html")
+    options.check_outputs([(out, "report")], [file])
     loaded = load(file)
     ov = options.overrides(data=data, coef=coef, acc=acc, rounding=rounding, overflow=overflow,
                            structure=structure, scaling=scaling)
