@@ -153,6 +153,7 @@ CASES = [
     (["check", "tiny.toml", "--structure", "df2"], "unknown structure 'df2'"),
     (["check", "tiny.toml", "--scaling", "l3"], "unknown scaling 'l3'"),
     (["check", "tiny.toml", "--channel", "nope"], "no channel 'nope'"),
+    (["design", "tiny.toml", "--channel", "a", "--channel", "a"], "named twice"),
     (["check", "tiny.toml", "--target", "nope"], "no target 'nope'"),
     (["check", "tiny.toml", "--target", ""], "target name is empty"),
     (["check", "tiny.toml", "--target", "float32", "--data", "Q1.15"], "float32"),

@@ -17,9 +17,9 @@ import typer
 from ..errors import CoefcError
 from . import app, options
 
-Output = Annotated[Path, typer.Option("-o", "--output", help="Header to write (OUT.h).")]
+Output = Annotated[Path, typer.Option("-o", "--output", metavar="OUT.h", help="Header to write (OUT.h).")]
 Vectors = Annotated[int, typer.Option(
-    "--vectors", min=0, max=1 << 20, help="Golden-vector samples per channel in the header (0 = none).")]
+    "--vectors", metavar="N", min=0, max=1 << 20, help="Golden-vector samples per channel in the header (0 = none).")]
 CheckOnly = Annotated[bool, typer.Option(
     "--check", help="Write nothing; exit 1 if OUT.h is missing or differs from what would be written.")]
 Force = Annotated[bool, typer.Option(
@@ -30,7 +30,7 @@ Kernel = Annotated[bool, typer.Option(
 
 @app.command()
 def build(
-    file: Annotated[Path, typer.Argument(help="Filter description (.toml).")],
+    file: Annotated[Path, typer.Argument(metavar="FILE", help="Filter description (.toml).")],
     output: Output,
     target: options.Target = None,
     target_dir: options.TargetDirs = None,

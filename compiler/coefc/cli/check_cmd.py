@@ -16,25 +16,25 @@ import typer
 from . import app, options
 
 MaxDeviation = Annotated[Optional[float], typer.Option(
-    "--max-passband-deviation-db", help="Budget override: largest |quantised - float| in the passband, dB.")]
+    "--max-passband-deviation-db", metavar="DB", help="Budget override: largest |quantised - float| in the passband, dB.")]
 MinStopband = Annotated[Optional[float], typer.Option(
-    "--min-stopband-attenuation-db", help="Budget override: smallest stopband attenuation, dB.")]
+    "--min-stopband-attenuation-db", metavar="DB", help="Budget override: smallest stopband attenuation, dB.")]
 MaxNoise = Annotated[Optional[float], typer.Option(
-    "--max-noise-dbfs", help="Budget override: largest output roundoff noise, dBFS (AES17).")]
+    "--max-noise-dbfs", metavar="DBFS", help="Budget override: largest output roundoff noise, dBFS (AES17).")]
 LimitCycles = Annotated[Optional[str], typer.Option(
-    "--limit-cycles", help="Budget override: 'none' (must be proven) or a largest amplitude in LSB.")]
+    "--limit-cycles", metavar="none|N", help="Budget override: 'none' (must be proven) or a largest amplitude in LSB.")]
 OverflowBudget = Annotated[Optional[str], typer.Option(
-    "--overflow-budget", help="Budget override: 'none' (no overflow under worst-case input) or 'allow'.")]
-JUnit = Annotated[Optional[str], typer.Option("--junit", help="Also write a JUnit XML report to PATH.")]
+    "--overflow-budget", metavar="none|allow", help="Budget override: 'none' (no overflow under worst-case input) or 'allow'.")]
+JUnit = Annotated[Optional[str], typer.Option("--junit", metavar="PATH", help="Also write a JUnit XML report to PATH.")]
 NoiseSamples = Annotated[int, typer.Option(
-    "--noise-samples", min=1024, help="Length of the measured-noise stimulus in samples.")]
+    "--noise-samples", metavar="N", min=1024, help="Length of the measured-noise stimulus in samples.")]
 SearchLimit = Annotated[int, typer.Option(
-    "--search-limit", min=1, help="Largest number of states searched exhaustively per section for limit cycles.")]
+    "--search-limit", metavar="STATES", min=1, help="Largest number of states searched exhaustively per section for limit cycles.")]
 
 
 @app.command()
 def check(
-    file: Annotated[Path, typer.Argument(help="Filter description (.toml).")],
+    file: Annotated[Path, typer.Argument(metavar="FILE", help="Filter description (.toml).")],
     target: options.Target = None,
     target_dir: options.TargetDirs = None,
     data: options.Data = None,

@@ -18,7 +18,7 @@ from . import app, options
 
 Freqs = Annotated[
     Optional[str],
-    typer.Option("--freqs", help="Comma-separated frequencies in Hz (default: octave centres below Nyquist)."),
+    typer.Option("--freqs", metavar="F1,F2,...", help="Comma-separated frequencies in Hz (default: octave centres below Nyquist)."),
 ]
 
 

@@ -17,21 +17,31 @@ def _target_name(value: str | None) -> str | None:
     return value
 
 
-Target = Annotated[Optional[str], typer.Option("--target", callback=_target_name,
+Target = Annotated[Optional[str], typer.Option("--target", callback=_target_name, metavar="NAME",
                                                help="Target name (built-in or from --target-dir).")]
 TargetDirs = Annotated[
     Optional[list[Path]],
-    typer.Option("--target-dir", help="Extra folder of targets (repeatable); also COEFC_TARGET_PATH."),
+    typer.Option("--target-dir", metavar="DIR", help="Extra folder of targets (repeatable); also COEFC_TARGET_PATH."),
 ]
-Data = Annotated[Optional[str], typer.Option("--data", help="Data word, Qm.n (sign bit counted in m; Qn = Q1.n).")]
-Coef = Annotated[Optional[str], typer.Option("--coef", help="Coefficient word, Qm.n (sign bit counted in m).")]
-Acc = Annotated[Optional[int], typer.Option("--acc", help="Accumulator width in bits.")]
-Rounding = Annotated[Optional[str], typer.Option("--rounding", help="nearest, floor, convergent or zero.")]
-Overflow = Annotated[Optional[str], typer.Option("--overflow", help="saturate or wrap.")]
-Structure = Annotated[Optional[str], typer.Option("--structure", help="df1, tdf2 or df1ef (DF1 with error feedback).")]
-Scaling = Annotated[Optional[str], typer.Option("--scaling", help="Section scaling norm: none, l1, l2 or linf.")]
-Channel = Annotated[Optional[list[str]], typer.Option("--channel", help="Only this channel (repeatable).")]
-JsonOut = Annotated[Optional[str], typer.Option("--json", help="Write the JSON report to PATH ('-' for stdout).")]
+Data = Annotated[Optional[str], typer.Option("--data", metavar="Qm.n", help="Data word, Qm.n (sign bit counted in m; Qn = Q1.n).")]
+Coef = Annotated[Optional[str], typer.Option("--coef", metavar="Qm.n", help="Coefficient word, Qm.n (sign bit counted in m).")]
+Acc = Annotated[Optional[int], typer.Option("--acc", metavar="BITS", help="Accumulator width in bits.")]
+Rounding = Annotated[Optional[str], typer.Option("--rounding", metavar="MODE", help="nearest, floor, convergent or zero.")]
+Overflow = Annotated[Optional[str], typer.Option("--overflow", metavar="MODE", help="saturate or wrap.")]
+Structure = Annotated[Optional[str], typer.Option("--structure", metavar="NAME", help="df1, tdf2 or df1ef (DF1 with error feedback).")]
+Scaling = Annotated[Optional[str], typer.Option("--scaling", metavar="NORM", help="Section scaling norm: none, l1, l2 or linf.")]
+def _channel_names(value: list[str] | None) -> list[str] | None:
+    seen: set[str] = set()
+    for name in value or ():
+        if name in seen:
+            raise typer.BadParameter(f"channel '{name}' is named twice; name each channel once")
+        seen.add(name)
+    return value
+
+
+Channel = Annotated[Optional[list[str]], typer.Option("--channel", callback=_channel_names, metavar="NAME",
+                                                      help="Only this channel (repeatable).")]
+JsonOut = Annotated[Optional[str], typer.Option("--json", metavar="PATH", help="Write the JSON report to PATH ('-' for stdout).")]
 
 
 def overrides(data=None, coef=None, acc=None, rounding=None, overflow=None, structure=None, scaling=None) -> Overrides:

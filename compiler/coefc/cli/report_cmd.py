@@ -12,8 +12,8 @@ from . import app, options
 
 @app.command()
 def report(
-    file: Annotated[Path, typer.Argument(help="Filter description (.toml).")],
-    out: Annotated[Path, typer.Option("-o", "--output", help="HTML file to write (self-contained).")],
+    file: Annotated[Path, typer.Argument(metavar="FILE", help="Filter description (.toml).")],
+    out: Annotated[Path, typer.Option("-o", "--output", metavar="OUT.html", help="HTML file to write (self-contained).")],
     target: options.Target = None,
     target_dir: options.TargetDirs = None,
     data: options.Data = None,
