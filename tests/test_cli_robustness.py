@@ -57,6 +57,8 @@ def work(tmp_path_factory) -> Path:
     (d / "cheb2_huge.toml").write_text(_stage_file(
         '{ kind = "lowpass", response = "chebyshev2", order = 10, cutoff_hz = 1000, attenuation_db = 1e6 }'))
     (d / "weighting_1hz.toml").write_text(_stage_file('{ kind = "weighting", weighting = "A" }', "1"))
+    (d / "rate_1e300.toml").write_text(_stage_file('{ kind = "gain", db = -3 }', "1e300"))
+    (d / "rate_frac.toml").write_text(_stage_file('{ kind = "gain", db = -3 }', "44100.5"))
     (d / "dc_tiny.toml").write_text(_stage_file('{ kind = "dc-blocker", cutoff_hz = 1e-300 }'))
     (d / "allpass_tiny.toml").write_text(_stage_file('{ kind = "allpass", freq_hz = 1e-7, q = 1e300 }'))
     (d / "gain_zero.toml").write_text(_stage_file('{ kind = "gain", linear = 0 }'))
@@ -135,6 +137,8 @@ CASES = [
     # descriptions that load but cannot be designed
     (["design", "cheb2_huge.toml"], "stage 1"),
     (["design", "weighting_1hz.toml"], "above 2000 Hz"),
+    (["build", "rate_1e300.toml", "-o", "r.h"], "key 'sample_rate_hz'"),
+    (["run", "rate_frac.toml", "in.txt", "out.wav"], "whole number of Hz"),
     (["check", "dc_tiny.toml"], "key 'cutoff_hz'"),
     (["check", "allpass_tiny.toml"], "key 'freq_hz'"),
     (["check", "gain_zero.toml"], "key 'linear'"),

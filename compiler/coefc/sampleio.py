@@ -231,6 +231,9 @@ def format_samples(path, outputs: dict[str, np.ndarray], arithmetic: Arithmetic,
     if data.shape[1] == 1:
         data = data[:, 0]
     rate = int(round(sample_rate_hz))
+    if rate != sample_rate_hz or not 1 <= rate <= 0xFFFFFFFF:
+        raise DataError(f"{path}: a WAV header holds a whole number of Hz, and the description's sample rate "
+                        f"is {sample_rate_hz:g} Hz; write a .txt file instead")
     from scipy.io import wavfile
 
     buf = io.BytesIO()

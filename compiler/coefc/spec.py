@@ -117,6 +117,10 @@ WEIGHTINGS = ("A", "C")
 MAX_IIR_ORDER = 40
 MAX_FIR_TAPS = 8191
 MAX_DELAY_SAMPLES = 1 << 20
+#: Sample rates accepted: from slow sensors to fast converters; beyond them the
+#: header's rate macro and the WAV header cannot state the rate.
+MIN_SAMPLE_RATE_HZ = 0.001
+MAX_SAMPLE_RATE_HZ = 1e9
 
 C99_KEYWORDS = frozenset(
     "auto break case char const continue default do double else enum extern float for goto if "
@@ -412,6 +416,10 @@ def _validate(doc: dict, source: str, sha: str) -> Description:
             raise top.at(key).fail(f"missing; add `{key} = ...` at the top of the file")
     name = _c_name(doc["name"], top.at("name"), "name")
     fs = _positive(doc["sample_rate_hz"], top.at("sample_rate_hz"))
+    if not MIN_SAMPLE_RATE_HZ <= fs <= MAX_SAMPLE_RATE_HZ:
+        raise top.at("sample_rate_hz").fail(
+            f"{_fmt(fs)} Hz is outside {_fmt(MIN_SAMPLE_RATE_HZ)} Hz .. {_fmt(MAX_SAMPLE_RATE_HZ)} Hz; "
+            "write the rate the samples arrive at, in Hz")
     impl = _implementation(doc.get("implementation", {}), source)
     budget = _budget(doc.get("budget", {}), source, fs)
 
