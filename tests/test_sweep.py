@@ -198,7 +198,7 @@ def test_hybrid_is_exactly_the_narrow_op_in_the_wide_format(tmp_path):
     wide = d.realise("mcu32", Overrides(coef="Q2.30")).programs[0]
     narrow = d.realise("mcu32", Overrides(coef="Q2.14")).programs[0]
     section_ops = [k for k, op in enumerate(wide.ops) if isinstance(op, SectionOp)]
-    (ws, wg), (ns, ng) = rows(wide), rows(narrow)
+    (ws, wg), (ns, _) = rows(wide), rows(narrow)
     done = 0
     for i in section_ops:
         h = hybrid(wide, narrow, i)

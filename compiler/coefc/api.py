@@ -52,10 +52,17 @@ class Design:
                 target_dirs: Iterable[str | os.PathLike] = ()) -> "Realisation":
         from .realise import realise_channel
 
+        from .errors import CoefcError, DescriptionError
+
         tgt = target if isinstance(target, Target) else self.target(target, target_dirs)
         d = self.loaded.description
         arith = resolve_arithmetic(tgt, d.implementation, overrides, d.source)
-        return Realisation(self, tgt, tuple(realise_channel(ch, arith) for ch in self.channels))
+        try:
+            return Realisation(self, tgt, tuple(realise_channel(ch, arith) for ch in self.channels))
+        except DescriptionError:
+            raise
+        except CoefcError as e:  # name the file: realise only knows the channel
+            raise CoefcError(f"{d.source}: {e}") from None
 
 
 @dataclass(frozen=True, eq=False)

@@ -225,8 +225,10 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
         checks.append(Check("output_noise_dbfs", v, lim, ok))
         why["output_noise_dbfs"] = (
             f"roundoff noise {_fmt(v, ' dBFS')} (analytic {_fmt(an)}, measured {_fmt(me)}; AES17 dBFS)"
-            + ("" if ok else f", above the {lim:g} dBFS limit; widen the data word"
-               + ("" if metrics.structure == "df1ef" or metrics.is_float else " or use error feedback (df1ef)"))
+            + ("" if ok else f", above the {lim:g} dBFS limit; "
+               + ("try tdf2, or a fixed-point target with a wide data word and error feedback (df1ef)"
+                  if metrics.is_float else "widen the data word"
+                  + ("" if metrics.structure == "df1ef" else " or use error feedback (df1ef)")))
             + (f"; note: {metrics.measured.note}" if metrics.measured is not None and metrics.measured.note else ""))
 
     if budget.limit_cycles is not None:

@@ -49,6 +49,7 @@ import numpy as np
 from .errors import CoefcError, DescriptionError, TargetError
 from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
 from .targets import BuildInfo, Target, build_info
+from .templating import environment
 
 __all__ = ["render", "c_identifier", "golden_input", "GOLDEN_DEFAULT", "EmitError"]
 
@@ -327,21 +328,6 @@ def _ops(program: ChannelProgram, info: BuildInfo, prefix: str, target: Target):
 # rendering
 # ---------------------------------------------------------------------------
 
-def _environment(folder: Path):
-    """The one Jinja2 environment: sandboxed, strict, templates from *folder*."""
-    import jinja2
-    from jinja2.sandbox import SandboxedEnvironment
-
-    return SandboxedEnvironment(
-        loader=jinja2.FileSystemLoader(str(folder)),
-        undefined=jinja2.StrictUndefined,
-        keep_trailing_newline=True,
-        autoescape=False,
-        trim_blocks=True,
-        lstrip_blocks=True,
-    )
-
-
 def _template_line(tb, template_path: Path) -> int | None:
     """The template line of the innermost traceback frame inside the template."""
     line = None
@@ -358,7 +344,7 @@ def render_template(folder: Path, rel: str, context: dict) -> str:
     import jinja2
 
     path = folder / rel
-    env = _environment(folder)
+    env = environment(folder)
     try:
         template = env.get_template(Path(rel).as_posix())
     except jinja2.TemplateSyntaxError as e:

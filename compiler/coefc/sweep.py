@@ -348,8 +348,9 @@ class Sweeper:
 
 
 def _infeasible(base, acc: int, d: int, c: int) -> str:
-    if d <= base.data.int_bits:
-        return f"a {d}-bit data word leaves no fractional bits after {base.data.int_bits} integer bits"
+    if d < base.data.int_bits + 2:
+        return (f"a {d}-bit data word leaves fewer than 2 fractional bits after {base.data.int_bits} "
+                "integer bits")
     if c <= base.coef.int_bits + 1:
         return f"a {c}-bit coefficient word leaves too few fractional bits after {base.coef.int_bits} integer bits"
     if acc < d:
@@ -399,6 +400,8 @@ def minimise(sweeper: Sweeper, channel_index: int, channel: str, target: str, st
     base = sweeper.base_arithmetic(target)
     if base.is_float:
         return MinimiseResult(channel, target, structure, None, None, None, 0, 1)
+    datas = [d for d in datas if not _infeasible(base, acc_bits or base.acc_bits, d, max(coefs))]
+    coefs = [c for c in coefs if not _infeasible(base, acc_bits or base.acc_bits, min(datas or [64]), c)]
     # Saddleback walk: from the widest data word and the narrowest coefficient word, a
     # pass records a frontier point and tries one data step narrower, a fail tries one
     # coefficient step wider.  Each frontier point is the narrowest coefficient word

@@ -45,16 +45,16 @@ def _root(
     """Coefficient compiler and fixed-point quantisation checker for embedded DSP."""
 
 
-# Command modules register themselves on import.
-from . import design_cmd  # noqa: E402,F401
-
-for _optional in ("run_cmd", "check_cmd", "build_cmd", "targets_cmd", "sweep_cmd", "report_cmd"):
-    try:
-        __import__(f"{__name__}.{_optional}")
-    except ModuleNotFoundError as _e:  # a command not written yet
-        if _e.name != f"{__name__}.{_optional}":
-            raise
-
+# Command modules register themselves on the app when imported (order = help order).
+from . import (  # noqa: E402,F401
+    design_cmd,
+    check_cmd,
+    build_cmd,
+    run_cmd,
+    sweep_cmd,
+    report_cmd,
+    targets_cmd,
+)
 
 try:  # Typer 0.2x ships its own copy of click; older releases use click itself
     from typer import TyperException as _TyperError

@@ -57,6 +57,10 @@ def run(
     x = read_samples(input_path, ar, desc.sample_rate_hz)
     outputs, overflowed = {}, []
     for prog in real.programs:
+        for note in prog.notes:  # say so when the program is not what the design meant
+            if "unstable" in note or "saturated" in note:
+                print(f"coefc: warning: channel '{prog.name}': {note} (coefc check shows what this costs)",
+                      file=sys.stderr)
         t = simulate(prog, x, trace=True)
         outputs[prog.name] = t.y
         n_ovf = sum(t.overflow_counts)

@@ -61,7 +61,7 @@ import numpy as np
 from ..blocks import Block, ChannelDesign, DelayBlock, FirBlock, GainBlock, SosBlock
 from ..errors import CoefcError
 from ..program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
-from ..qformat import QFormat
+from ..qformat import QFormat  # noqa: F401 (used by the doctest)
 from . import coefficients, pairing, scaling
 
 __all__ = ["realise_channel", "as_float_blocks"]

@@ -166,9 +166,10 @@ def energy(ops) -> float:
     P = np.outer(B, B)
     Ak = A.copy()
     for _ in range(64):
-        P = P + Ak @ P @ Ak.T
-        Ak = Ak @ Ak
-        if not np.all(np.isfinite(Ak)):
+        with np.errstate(over="ignore", invalid="ignore"):  # a pole on the circle: squares blow up
+            P = P + Ak @ P @ Ak.T
+            Ak = Ak @ Ak
+        if not (np.all(np.isfinite(Ak)) and np.all(np.isfinite(P))):
             return _impulse_energy(ops)
         if np.max(np.abs(Ak)) < 1e-20:
             return float(C @ P @ C + D * D)
