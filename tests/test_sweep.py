@@ -233,3 +233,9 @@ def test_low_frequency_section_needs_the_longer_coefficient_word(tmp_path):
     assert len(by_freq) == 2
     (_, narrow_ok), (_, wide_needed) = sorted(by_freq.items())
     assert wide_needed > narrow_ok
+
+
+def test_data_words_without_two_fractional_bits_are_skipped(sweeper):
+    configs, skipped = sweeper.configs(["mcu32"], None, None, (2, 3, 24), (20,))
+    assert [c.data_bits for c in configs] == [3, 24]
+    assert any("2-bit data word" in s for s in skipped)
