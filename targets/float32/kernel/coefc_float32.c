@@ -9,7 +9,8 @@ typedef coefc_float32_state_t state_t;
 static float step(const coefc_float32_channel_t *ch, const coefc_float32_op_t *op,
                   state_t *s, float x)
 {
-    const float *c = ch->coefs + op->coef_at;
+    /* a channel of delays only has no coefficient array: no arithmetic on a null pointer */
+    const float *c = ch->coefs != 0 ? ch->coefs + op->coef_at : 0;
     float acc, p, y;
     uint32_t i, j, n;
 

@@ -97,7 +97,8 @@ static data_t finish(const coefc_mcu32_channel_t *ch, unsigned k, uacc_t acc)
 static data_t step(const coefc_mcu32_channel_t *ch, const coefc_mcu32_op_t *op,
                    state_t *s, data_t x)
 {
-    const coef_t *c = ch->coefs + op->coef_at;
+    /* a channel of delays only has no coefficient array: no arithmetic on a null pointer */
+    const coef_t *c = ch->coefs != 0 ? ch->coefs + op->coef_at : 0;
     unsigned k = op->rshift;
     uacc_t acc;
     data_t y;
