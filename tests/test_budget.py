@@ -124,3 +124,37 @@ def test_failing_rows_come_first(tweeter_report):
     for ch in tweeter_report.channels:
         oks = [c.ok for c in ch.checks]
         assert oks == sorted(oks)
+
+
+def test_overflow_fails_when_roundoff_alone_can_reach_full_scale(tmp_path):
+    # A 1 Hz first-order high-pass at 8 kHz in 16-bit DF1: its pole at radius
+    # 1 - 2*pi*1/8000 amplifies the output rounding error by about 1/(1 - r) ~ 1300
+    # (the dead-band bound (q/2)/(1 - |a|), Jones, OpenStax CNX m11928 [confirmed]),
+    # together with the rest of the chain enough to fill the word: no input level
+    # is safe, so zero overflow events at zero level must not pass the check.
+    import coefc
+    from coefc.budget import run_check
+
+    p = tmp_path / "dc.toml"
+    p.write_text("""
+name = "dc_only"
+sample_rate_hz = 8000
+[implementation]
+target = "mcu16"
+structure = "df1"
+[budget]
+overflow = "none"
+[[channel]]
+name = "x"
+stages = [
+  { kind = "dc-blocker", cutoff_hz = 1.0 },
+  { kind = "lowpass", response = "elliptic", passband_hz = 1000, stopband_hz = 1300, ripple_db = 0.1, attenuation_db = 60 },
+]
+""")
+    loaded = coefc.load(p)
+    rep = run_check(loaded.design().realise(), loaded.description.budget)
+    ch = rep.channels[0]
+    ov = next(c for c in ch.checks if c.name == "overflow")
+    assert ch.analysis.overflow.input_peak == 0  # the premise: no safe level exists
+    assert ov.value == 0 and not ov.ok
+    assert "no input level is safe" in ch.reasons["overflow"]

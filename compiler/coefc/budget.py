@@ -278,14 +278,19 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
         lim = budget.overflow
         n = ov.overflow_count
         osc = "none" if metrics.is_float else lc.overflow_status
+        # No safe input level at all: the worst-case roundoff alone can reach full scale,
+        # so the zero events of a zero-level test prove nothing.
+        no_level = not metrics.is_float and ov.runs > 0 and ov.input_peak <= 0
         if lim == "allow":
             ok = True
         else:
-            ok = (n == 0) and osc != "found"
+            ok = (n == 0) and osc != "found" and not no_level
         checks.append(Check("overflow", n, lim, ok))
         at = "full scale" if ov.input_peak >= 1.0 else (
             f"{20 * math.log10(ov.input_peak):.2f} dBFS peak, where the design's own output "
-            f"(peak gain {ov.output_peak_gain:.3g}) reaches full scale" if ov.input_peak > 0 else "no legal level")
+            f"(peak gain {ov.output_peak_gain:.3g}) reaches full scale" if ov.input_peak > 0 else
+            "zero level: no input level is safe, because the worst-case roundoff of the realisation alone "
+            "can reach full scale (widen the data word)")
         parts = [f"{_fmt(n)} overflow events under worst-case inputs at {at} ({ov.runs} runs); "
                  f"worst node {ov.worst_node} headroom {_fmt(ov.headroom_bits, ' bits')}"]
         if ov.input_peak < 1.0 and ov.overflow_count_full_scale:
