@@ -129,9 +129,10 @@ def test_failing_rows_come_first(tweeter_report):
 def test_overflow_fails_when_roundoff_alone_can_reach_full_scale(tmp_path):
     # A 1 Hz first-order high-pass at 8 kHz in 16-bit DF1: its pole at radius
     # 1 - 2*pi*1/8000 amplifies the output rounding error by about 1/(1 - r) ~ 1300
-    # (the dead-band bound (q/2)/(1 - |a|), Jones, OpenStax CNX m11928 [confirmed]),
-    # together with the rest of the chain enough to fill the word: no input level
-    # is safe, so zero overflow events at zero level must not pass the check.
+    # (the dead-band bound (q/2)/(1 - |a|), Jones, OpenStax CNX m11928 [confirmed]);
+    # with a sharp elliptic low-pass and a Q = 30 notch after it, the bounded
+    # roundoff fills the 16-bit word: no input level is safe, so zero overflow
+    # events at zero level must not pass the check.
     import coefc
     from coefc.budget import run_check
 
@@ -149,6 +150,7 @@ name = "x"
 stages = [
   { kind = "dc-blocker", cutoff_hz = 1.0 },
   { kind = "lowpass", response = "elliptic", passband_hz = 1000, stopband_hz = 1300, ripple_db = 0.1, attenuation_db = 60 },
+  { kind = "notch", freq_hz = 50, q = 30 },
 ]
 """)
     loaded = coefc.load(p)
