@@ -160,3 +160,38 @@ stages = [
     assert ch.analysis.overflow.input_peak == 0  # the premise: no safe level exists
     assert ov.value == 0 and not ov.ok
     assert "no input level is safe" in ch.reasons["overflow"]
+
+
+def test_stopband_defaults_to_the_stages_requirements(tmp_path):
+    # With no stopband bands in the budget, the stopband is where the stages asked
+    # for one (stopband_hz).  Reference: scipy.signal.ellipord/ellip meet the
+    # attenuation at the stopband edge (scipy docs), and a Kaiser design of 100 dB
+    # reaches about 100 dB (Kaiser 1974 [confirmed]); quantised to Q2.30 the
+    # channel keeps that within a fraction of a dB.
+    import coefc
+    from coefc.budget import run_check
+
+    p = tmp_path / "req.toml"
+    p.write_text("""
+name = "req"
+sample_rate_hz = 48000
+[budget]
+stopband_attenuation_db = 59.5
+[[channel]]
+name = "iir"
+stages = [ { kind = "lowpass", response = "elliptic", passband_hz = 4000, stopband_hz = 5000, ripple_db = 0.1, attenuation_db = 60 } ]
+[[channel]]
+name = "fir"
+stages = [ { kind = "fir-highpass", passband_hz = 3000, stopband_hz = 2000, attenuation_db = 80 } ]
+""")
+    loaded = coefc.load(p)
+    d = loaded.design()
+    assert d.channels[0].stopbands == ((5000.0, 24000.0),)
+    assert d.channels[1].stopbands == ((0.0, 2000.0),)
+    rep = run_check(d.realise("mcu32"), loaded.description.budget)
+    iir, fir = rep.channels
+    assert "stopband_hz of the stages" in iir.metrics["stopband_rule"]
+    assert iir.metrics["float_stopband_attenuation_db"] == pytest.approx(60.0, abs=0.05)
+    assert iir.metrics["stopband_attenuation_db"] == pytest.approx(60.0, abs=0.5)
+    assert fir.metrics["float_stopband_attenuation_db"] == pytest.approx(80.0, abs=1.5)
+    assert all(c.ok for c in iir.checks if c.name == "stopband_attenuation_db")

@@ -97,6 +97,9 @@ class ChannelDesign:
     blocks: tuple[Block, ...]
     stages: tuple[StageSummary, ...] = ()
     warnings: tuple[str, ...] = field(default_factory=tuple)
+    # Stopbands stated by the stages' own requirements (stopband_hz), as (lo, hi) Hz:
+    # where the quantised channel must keep its attenuation when the budget names none.
+    stopbands: tuple[tuple[float, float], ...] = ()
 
     def response(self, freqs_hz) -> np.ndarray:
         """Complex float response of the whole channel at *freqs_hz*."""

@@ -213,6 +213,7 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
             checks.append(Check("stopband_attenuation_db", v, lim, ok))
             why["stopband_attenuation_db"] = (
                 f"stopband ({r.stopband_rule}) is {v:.4g} dB down (float design {_fmt(r.float_stopband_attenuation_db)} dB)"
+                + ("" if ok or round(v, 2) < lim else f" -- {v:.6f} dB to be exact")
                 + ("" if ok else f", short of {lim:g} dB; widen the coefficient word or name the stopband bands"))
 
     if budget.output_noise_dbfs is not None:

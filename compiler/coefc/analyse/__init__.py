@@ -15,7 +15,7 @@ full-scale sine, so a noise of power P reads 10*log10(P/0.5) dBFS.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from ..blocks import ChannelDesign
 from ..program import ChannelProgram
@@ -176,9 +176,13 @@ def analyse_channel(design: ChannelDesign, program: ChannelProgram,
     opt = options or AnalysisOptions()
     models = op_models(program)
     n = response_length(models)
-    resp = analyse_response(design, program, passband=opt.passband, stopband=opt.stopband,
+    # Stopbands: the budget's, else those the stages' requirements state, else the threshold rule.
+    stopband = opt.stopband if opt.stopband is not None else (tuple(design.stopbands) or None)
+    resp = analyse_response(design, program, passband=opt.passband, stopband=stopband,
                             passband_threshold_db=opt.passband_threshold_db,
                             stopband_threshold_db=opt.stopband_threshold_db)
+    if opt.stopband is None and design.stopbands:
+        resp = replace(resp, stopband_rule="stopband_hz of the stages: " + resp.stopband_rule)
     noise = analytic_noise(program, models, n)
     # float32 has no analytic figure: its noise is always measured
     meas = (measured_noise(program, samples=opt.noise_samples, seed=opt.seed, models=models, n=n)

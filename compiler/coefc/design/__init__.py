@@ -200,4 +200,30 @@ def design_channel(channel: ChannelSpec, sample_rate_hz: float, source: str) -> 
                                       latency_samples=res.latency_samples))
     warnings = _channel_warnings(blocks, results, float(sample_rate_hz))
     return ChannelDesign(name=channel.name, sample_rate_hz=float(sample_rate_hz), blocks=tuple(blocks),
-                         stages=tuple(summaries), warnings=tuple(warnings))
+                         stages=tuple(summaries), warnings=tuple(warnings),
+                         stopbands=required_stopbands(channel, float(sample_rate_hz)))
+
+
+def required_stopbands(channel: ChannelSpec, fs: float) -> tuple[tuple[float, float], ...]:
+    """The stopbands the stages ask for through ``stopband_hz`` (filters given by requirements).
+
+    A chain multiplies its stages' responses, so a stopband of any stage is a stopband
+    of the channel: the union is returned, each band as ``(lo_hz, hi_hz)`` up to
+    Nyquist.  Stages given by order and cutoff state no stopband and add none.
+    """
+    bands = []
+    for st in channel.stages:
+        edge = st.params.get("stopband_hz")
+        if edge is None or st.kind not in IIR_KINDS + FIR_KINDS:
+            continue
+        kind = st.kind.removeprefix("fir-")
+        e = [float(v) for v in edge] if isinstance(edge, (list, tuple)) else [float(edge)]
+        if kind == "lowpass":
+            bands.append((e[0], fs / 2))
+        elif kind == "highpass":
+            bands.append((0.0, e[0]))
+        elif kind == "bandpass" and len(e) == 2:
+            bands += [(0.0, e[0]), (e[1], fs / 2)]
+        elif kind == "bandstop" and len(e) == 2:
+            bands.append((e[0], e[1]))
+    return tuple(bands)
