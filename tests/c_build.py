@@ -155,6 +155,7 @@ def hand_programs(arith: Arithmetic, structures, seed: int = 1) -> list[ChannelP
     progs.append(ChannelProgram("gain", 48000.0, arith,
                                 (GainOp(_coef(arith, 1.75, 1 if fixed else 0), 1 if fixed else 0),)))
     progs.append(ChannelProgram("delay", 48000.0, arith, (DelayOp(5),)))
+    progs += symmetric_fir_programs(arith, rng)
     if fixed:
         # very small gains: rounding shifts as wide as or wider than a 32-bit accumulator
         fc = arith.coef.frac_bits
@@ -165,6 +166,38 @@ def hand_programs(arith: Arithmetic, structures, seed: int = 1) -> list[ChannelP
              FirOp(tuple(_coef(arith, t) for t in rng.uniform(-0.3, 0.3, 4)), 0),
              _section(rng, arith, structures[-1], 1 if fixed else 0), GainOp(_coef(arith, 1.2, 1 if fixed else 0), 1 if fixed else 0))
     progs.append(ChannelProgram("mixed", 48000.0, arith, mixed))
+    return progs
+
+
+def _symmetric(half: list, n: int) -> tuple:
+    """The symmetric taps of length *n* whose first ceil(n/2) are *half*."""
+    return tuple(half[:(n + 1) // 2] + half[:n // 2][::-1])
+
+
+def symmetric_fir_programs(arith: Arithmetic, rng) -> list[ChannelProgram]:
+    """Symmetric FIRs (marked ``symmetric``) of odd and even length, so a
+    fixed-point header folds them: random taps with a post-shift, taps of the
+    most negative and largest coefficient word (the folded product
+    (x_a + x_b) * h then needs data + coef + 1 bits, 65 on mcu32), gains high
+    enough that the full-scale steps saturate (or wrap), and 1 and 2 taps."""
+    fixed = not arith.is_float
+    sh = 1 if fixed else 0
+    progs = []
+    for n in (17, 16):
+        half = [_coef(arith, t, sh) for t in rng.uniform(-0.4, 0.4, (n + 1) // 2)]
+        progs.append(ChannelProgram(f"sym{n}", 48000.0, arith, (FirOp(_symmetric(half, n), sh, True),)))
+    if fixed:
+        cmin, cmax = -(1 << (arith.coef.width - 1)), (1 << (arith.coef.width - 1)) - 1
+        for n in (7, 8):
+            half = [cmin, cmax, cmin // 3, cmax][:(n + 1) // 2]
+            progs.append(ChannelProgram(f"sym{n}_extreme", 48000.0, arith, (FirOp(_symmetric(half, n), 0, True),)))
+    else:
+        for n in (7, 8):
+            half = [_coef(arith, t) for t in (-1.5, 1.25, 0.75, -0.5)][:(n + 1) // 2]
+            progs.append(ChannelProgram(f"sym{n}_extreme", 48000.0, arith, (FirOp(_symmetric(half, n), 0, True),)))
+    for n in (1, 2):
+        progs.append(ChannelProgram(f"sym{n}", 48000.0, arith,
+                                    (FirOp(_symmetric([_coef(arith, 0.9, sh)], n), sh, True),)))
     return progs
 
 

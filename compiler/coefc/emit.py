@@ -13,8 +13,17 @@ Nothing here writes a file; the CLI writes the returned texts atomically.  For
 identical inputs the text is byte-identical: the banner carries the tool version
 and the SHA-256 of the description and of the target.toml, never a time.
 
-Interface version 1 of a kernel (``[kernel] abi = 1``) is the operation table
-written here; the state words each operation uses are:
+The operation table written here is the kernel interface (``[kernel] abi``).
+Interface 2 is interface 1 plus one operation kind, the folded symmetric FIR
+(``<PREFIX>_OP_FIR_SYM = 7``): for a fixed-point FIR the realisation marks
+symmetric (``taps[k] == taps[N-1-k]``), the coefficient array holds only the
+first ceil(N/2) taps, the op's ``count`` is still N, and the kernel computes
+``sum(h[k] * (x[n-k] + x[n-N+1-k]), k < N/2)`` plus the middle tap for odd N.
+In wrapping accumulator arithmetic that is the same integer as the unfolded
+sum, so the golden vectors (computed unfolded) still match bit for bit.
+Float32 FIRs are never folded (the pre-add would round differently), and a
+target that states interface 1 gets every FIR unfolded, as before.  The state
+words each operation uses are the same in both interfaces:
 
 ====================  ===========================================================
 operation             state words
@@ -22,7 +31,8 @@ operation             state words
 section, df1          4  (x[n-1], x[n-2], y[n-1], y[n-2])
 section, tdf2         2  (S1, S2 at accumulator precision)
 section, df1ef        5  (as df1, then the previous rounding residual E)
-FIR of N taps         N + 1  (position of the newest sample, then N samples)
+FIR of N taps         N + 1  (position of the newest sample, then N samples),
+                      folded or not
 gain                  0
 delay of D samples    D + 1  (position, then D samples)
 ====================  ===========================================================
@@ -59,7 +69,9 @@ GOLDEN_DEFAULT = 256
 #: makes a header of tens of megabytes).
 GOLDEN_MAX = 1 << 20
 #: The kernel interface versions this emitter writes.
-SUPPORTED_ABI = (1,)
+SUPPORTED_ABI = (1, 2)
+#: The first interface with the folded symmetric FIR operation.
+FOLDED_FIR_ABI = 2
 
 _STATE_WORDS = {"df1": 4, "tdf2": 2, "df1ef": 5}
 
@@ -305,10 +317,20 @@ def _ops(program: ChannelProgram, info: BuildInfo, prefix: str, target: Target):
             if not taps:
                 raise EmitError(f"channel '{program.name}': op {i} is an FIR without taps")
             k = rshift(op.shift, f"FIR (op {i})")
-            at = add(taps, f"FIR (op {i})")
-            ops.append((f"{P}_OP_FIR", k, len(taps), at, state,
-                        f"FIR, {len(taps)} taps{' (symmetric)' if op.symmetric else ''}, post-shift {op.shift}"))
-            state += len(taps) + 1
+            n = len(taps)
+            if op.symmetric and fixed and info.kernel_abi >= FOLDED_FIR_ABI:
+                if taps != taps[::-1]:
+                    raise EmitError(f"channel '{program.name}': op {i} is marked as a symmetric FIR but its "
+                                    "taps are not symmetric; realise the channel again")
+                stored = (n + 1) // 2
+                at = add(taps[:stored], f"FIR (op {i})")
+                ops.append((f"{P}_OP_FIR_SYM", k, n, at, state,
+                            f"FIR, {n} taps, symmetric: {stored} stored, folded, post-shift {op.shift}"))
+            else:
+                at = add(taps, f"FIR (op {i})")
+                ops.append((f"{P}_OP_FIR", k, n, at, state,
+                            f"FIR, {n} taps{' (symmetric)' if op.symmetric else ''}, post-shift {op.shift}"))
+            state += n + 1
         elif isinstance(op, GainOp):
             k = rshift(op.shift, f"gain (op {i})")
             at = add([op.coef], f"gain (op {i})")
@@ -488,9 +510,14 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
         ops, coefs, state = _ops(p, info, prefix, target)
         n_sec = sum(isinstance(o, SectionOp) for o in p.ops)
         taps = sum(len(o.taps) for o in p.ops if isinstance(o, FirOp))
+        folded = [op[2] for op in ops if op[0] == f"{P}_OP_FIR_SYM"]  # their tap counts
+        stored = taps - sum(n // 2 for n in folded)
         delay = sum(o.samples for o in p.ops if isinstance(o, DelayOp))
         parts = [f"{n_sec} section{'s' if n_sec != 1 else ''} ({p.arithmetic.structure})"] if n_sec else []
-        parts += [f"FIR {taps} taps"] if taps else []
+        if taps and folded:
+            parts += [f"FIR {taps} taps ({stored} stored, symmetric taps folded)"]
+        elif taps:
+            parts += [f"FIR {taps} taps"]
         parts += [f"{sum(isinstance(o, GainOp) for o in p.ops)} gain"] if any(isinstance(o, GainOp) for o in p.ops) else []
         parts += [f"delay {delay} samples"] if delay else []
         summary = ", ".join(parts) or "pass-through"

@@ -24,8 +24,9 @@
 #include <stddef.h>
 #include <stdint.h>
 
-/* Kernel interface version: a generated header refuses any other. */
-#define COEFC_DSP24_ABI 1
+/* Kernel interface version: a generated header refuses any other.  Interface 2
+   adds COEFC_DSP24_OP_FIR_SYM (symmetric FIR, half the taps stored, folded). */
+#define COEFC_DSP24_ABI 2
 #define COEFC_DSP24_DATA_CONTAINER_BITS 32
 #define COEFC_DSP24_COEF_CONTAINER_BITS 32
 #define COEFC_DSP24_MAX_ACC_BITS 56
@@ -46,6 +47,9 @@ typedef int64_t coefc_dsp24_state_t;
 #define COEFC_DSP24_OP_FIR 4   /* direct-form FIR of `count` taps; count + 1 state words */
 #define COEFC_DSP24_OP_GAIN 5  /* one coefficient; no state */
 #define COEFC_DSP24_OP_DELAY 6 /* `count` samples; count + 1 state words */
+/* symmetric FIR of `count` taps (h[k] = h[count-1-k]); only the first
+   (count + 1) / 2 taps are stored; count + 1 state words, as OP_FIR */
+#define COEFC_DSP24_OP_FIR_SYM 7
 
 /* Rounding of acc / 2^rshift. */
 #define COEFC_DSP24_ROUND_NEAREST 0    /* ties towards +infinity */
@@ -60,7 +64,7 @@ typedef int64_t coefc_dsp24_state_t;
 typedef struct {
     uint8_t kind;      /* COEFC_DSP24_OP_* */
     uint8_t rshift;    /* right shift of the accumulator: Fc - post-shift */
-    uint32_t count;    /* taps (FIR), samples (delay), 1 otherwise */
+    uint32_t count;    /* taps (FIR, also the symmetric FIR), samples (delay), 1 otherwise */
     uint32_t coef_at;  /* index of the first coefficient in the channel's array */
     uint32_t state_at; /* index of the first state word */
 } coefc_dsp24_op_t;

@@ -25,7 +25,11 @@
 #include <stddef.h>
 #include <stdint.h>
 
-/* Kernel interface version: a generated header refuses any other. */
+/* Kernel interface version: a generated header refuses any other.  float32
+   stays at interface 1: it never folds symmetric FIRs (the fixed-point kernels'
+   OP_FIR_SYM of interface 2), because x[n-k] + x[n-N+1-k] would be rounded to
+   float before the multiply, which coefc's float32 engine does not do, so the
+   results would differ.  A float32 header stores every tap. */
 #define COEFC_FLOAT32_ABI 1
 /* 0 = a coefficients stored as in 1 + a1 z^-1 + a2 z^-2 and subtracted. */
 #define COEFC_FLOAT32_SECTION_A_NEGATED 0
@@ -41,7 +45,8 @@ typedef union {
 /* Operation kinds. */
 #define COEFC_FLOAT32_OP_DF1 1   /* section, direct form I; 4 state words */
 #define COEFC_FLOAT32_OP_TDF2 2  /* section, transposed direct form II; 2 state words */
-#define COEFC_FLOAT32_OP_FIR 4   /* direct-form FIR of `count` taps; count + 1 state words */
+#define COEFC_FLOAT32_OP_FIR 4   /* direct-form FIR of `count` taps, all stored, symmetric
+                                    or not; count + 1 state words */
 #define COEFC_FLOAT32_OP_GAIN 5  /* one coefficient; no state */
 #define COEFC_FLOAT32_OP_DELAY 6 /* `count` samples; count + 1 state words */
 

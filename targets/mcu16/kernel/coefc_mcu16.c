@@ -9,6 +9,8 @@
  *                 floor(acc / 2^k) plus a correction from the k low bits, so
  *                 no intermediate can overflow
  *   fit_data      saturate to the data word, or wrap (keep the low bits)
+ *   folded FIR    symmetric taps: pre-add and product formed in the unsigned
+ *                 container (wrapping), which equals the unfolded sum there
  */
 #include "coefc_mcu16.h"
 
@@ -102,7 +104,7 @@ static data_t step(const coefc_mcu16_channel_t *ch, const coefc_mcu16_op_t *op,
     unsigned k = op->rshift;
     uacc_t acc;
     data_t y;
-    uint32_t i, j, n;
+    uint32_t i, j, m, n;
 
     switch (op->kind) {
     case COEFC_MCU16_OP_DF1:
@@ -156,6 +158,29 @@ static data_t step(const coefc_mcu16_channel_t *ch, const coefc_mcu16_op_t *op,
         for (i = 0u; i < n; i++) {
             acc = mac(acc, c[i], s[1 + j]);
             j = (j == 0u) ? n - 1u : j - 1u;
+        }
+        return finish(ch, k, acc);
+    case COEFC_MCU16_OP_FIR_SYM:
+        /* As OP_FIR, with c[0 .. (count+1)/2 - 1] stored and c[i] = c[count-1-i]:
+           acc = sum c[i] * (x[n-i] + x[n-count+1+i]) for i < count/2, plus the
+           middle tap for odd count.  The pre-add needs one bit more than a data
+           word and the product may exceed the signed container, so both are
+           formed in uacc_t, modulo 2^32; the unfolded sum is the same modulo
+           2^32, hence after the reduction to acc_bits in finish() too. */
+        n = op->count;
+        j = (uint32_t)s[0];
+        j = (j + 1u == n) ? 0u : j + 1u;
+        s[0] = (state_t)j;
+        s[1 + j] = x;
+        m = (j + 1u == n) ? 0u : j + 1u; /* the oldest sample, x[n-count+1] */
+        acc = 0u;
+        for (i = 0u; i < n / 2u; i++) {
+            acc += (uacc_t)c[i] * ((uacc_t)s[1 + j] + (uacc_t)s[1 + m]);
+            j = (j == 0u) ? n - 1u : j - 1u;
+            m = (m + 1u == n) ? 0u : m + 1u;
+        }
+        if (n & 1u) {
+            acc = mac(acc, c[i], s[1 + j]); /* the middle tap; here j == m */
         }
         return finish(ch, k, acc);
     case COEFC_MCU16_OP_GAIN:
