@@ -4,8 +4,9 @@ engine exactly.
 Each emitted header carries golden vectors: a fixed input and the output of
 coefc.simulate.  A small C main runs them through the target's reference kernel
 (an independent C implementation of the arithmetic stated in coefc.program) and
-requires bit-exact equality, for every structure the target supports, FIR, gain,
-delay, every rounding mode, saturation and wrap, narrow accumulators that wrap,
+requires bit-exact equality, for every structure the target supports, FIR,
+symmetric FIRs of odd and even length (folded by the fixed-point kernels, stored
+whole for float32), gain, delay, every rounding mode, saturation and wrap, narrow accumulators that wrap,
 and the example descriptions in filters/.  Builds are strict C99
 (-Wall -Wextra -Werror -pedantic), with -ffp-contract=off, once optimised and once
 under the undefined-behaviour sanitizer; -m32 and clang when present.
@@ -76,6 +77,22 @@ def test_every_example_can_be_written_for_every_target(target_name):
     each example realised on each built-in target has a C form."""
     _, refused = _example_headers(target_name)
     assert not refused, refused
+
+
+def test_hand_headers_exercise_the_folded_fir(target_headers):
+    """Every hand-built fixed-point header holds folded symmetric FIRs of odd and
+    even length (so the bit-exact, UBSan and -m32 runs cover the folded path,
+    also with saturation, wrap and a narrow wrapping accumulator); float32 folds
+    none."""
+    target_name, headers = target_headers
+    P = f"COEFC_{target_name.upper()}"
+    hand = [text for fname, _, text in headers if fname.startswith("hand_")]
+    assert hand
+    for text in hand:
+        for n in (17, 16, 7, 8, 1, 2):
+            folded = f"{{{P}_OP_FIR_SYM, " in text and f"FIR, {n} taps, symmetric: {(n + 1) // 2} stored" in text
+            assert folded == (target_name != "float32"), (target_name, n)
+    assert any("hand_narrow_acc" == fname[:-2] for fname, _, _ in headers) == (target_name != "float32")
 
 
 @pytest.mark.parametrize("cc", compilers())
