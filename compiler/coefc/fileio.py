@@ -107,29 +107,9 @@ def write_atomic(path: Path, data: str | bytes) -> None:
         When the path is a folder, its folder is missing, or the system refuses
         the write (permissions, full disk); the message names the path.
     """
-    path = check_output(path)
-    folder = path.parent if str(path.parent) else Path(".")
     raw = data.encode("utf-8") if isinstance(data, str) else data
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=folder)
-    except OSError as e:
-        raise CoefcError(f"{path}: cannot create a file in folder '{folder}' ({e.strerror or e}); "
-                         "check the folder's permissions or choose another output path") from None
-    try:
-        # mkstemp makes the file private (0600); give it the mode a plain open()
-        # would: the old file's mode, or 0666 less the umask.
-        os.chmod(tmp, _plain_mode(path))
-        with os.fdopen(fd, "wb") as f:
+    with atomic_path(path) as tmp:
+        with open(tmp, "wb") as f:
             f.write(raw)
             f.flush()
             os.fsync(f.fileno())
-        os.replace(tmp, path)
-    except BaseException as e:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        if isinstance(e, OSError):
-            raise CoefcError(f"{path}: cannot write ({e.strerror or e}); check the folder's permissions "
-                             "and free space, or choose another output path") from None
-        raise
