@@ -115,12 +115,6 @@ class LimitCycleAnalysis:
 
 # ---------------------------------------------------------------- the integer map
 
-def _int_array(v, acc_bits: int):
-    if acc_bits > 64:
-        return np.asarray([int(t) for t in np.ravel(v)], dtype=object)
-    return np.asarray(v, dtype=np.int64)
-
-
 def zero_input_step(y1, y2, a1: int, a2: int, k: int, arith: Arithmetic):
     """One zero-input step of the df1/tdf2 recursion on arrays of states (exact integers)."""
     if arith.acc_bits > 64:
@@ -300,22 +294,6 @@ def _residual_range(k: int, mode: str) -> tuple[int, int]:
     return {"nearest": (-h, h - 1), "convergent": (-h, h), "floor": (0, K - 1), "zero": (-(K - 1), K - 1)}[mode]
 
 
-def _window(v: int, k: int, mode: str) -> tuple[int, int]:
-    """Inclusive accumulator range that ``round_shift(acc, k, mode)`` maps to *v*."""
-    K, h = 1 << k, 1 << (k - 1)
-    if mode == "nearest":
-        return v * K - h, v * K + h - 1
-    if mode == "floor":
-        return v * K, v * K + K - 1
-    if mode == "convergent":
-        return (v * K - h, v * K + h) if v % 2 == 0 else (v * K - h + 1, v * K + h - 1)
-    if v > 0:  # zero: magnitude truncation
-        return v * K, v * K + K - 1
-    if v < 0:
-        return v * K - K + 1, v * K
-    return -K + 1, K - 1
-
-
 def _run_exit(ea: int, eb: int, lo: int, hi: int, d: int) -> list:
     """Residuals where a run of repeated outputs ends.
 
@@ -336,20 +314,8 @@ def _run_exit(ea: int, eb: int, lo: int, hi: int, d: int) -> list:
     return [[z + ra, z + d - 1], [z, z + rb]]
 
 
-def _merge(iv: list) -> list:
-    iv.sort()
-    out: list = []
-    for a, b in iv:
-        if out and a <= out[-1][1] + 1:
-            if b > out[-1][1]:
-                out[-1][1] = b
-        else:
-            out.append([a, b])
-    return out
-
-
 def _windows(v: np.ndarray, k: int, mode: str) -> tuple[np.ndarray, np.ndarray]:
-    """Vectorised :func:`_window`."""
+    """Inclusive accumulator ranges that ``round_shift(acc, k, mode)`` maps to each output *v*."""
     K, h = 1 << k, 1 << (k - 1)
     if mode == "nearest":
         return v * K - h, v * K + h - 1

@@ -26,7 +26,6 @@ A. V. Oppenheim, R. W. Schafer, *Discrete-Time Signal Processing*, 3rd ed., sec.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -142,6 +141,3 @@ def analyse_response(design: ChannelDesign, program: ChannelProgram, *, passband
     return ResponseAnalysis(f, df, dq, dev, att, fatt, prule, srule, radius, radius < 1.0,
                             _match(pq, pf), _match(zq, zf))
 
-
-def finite_or_none(v):
-    return v if v is not None and math.isfinite(v) else None

@@ -36,7 +36,7 @@ import math
 import numpy as np
 
 from ..blocks import ChannelDesign, SosBlock, StageSummary
-from ..spec import FIR_KINDS, IIR_KINDS, ChannelSpec
+from ..spec import EQ_KINDS, FIR_KINDS, IIR_KINDS, ChannelSpec
 from .stage import StageContext, StageResult
 
 __all__ = ["design_channel", "section_q", "HIGH_Q", "POLE_RADIUS_WARN"]
@@ -69,7 +69,7 @@ def _designer(ctx: StageContext):
         from .fir import design_fir
 
         return design_fir
-    if kind in ("peaking", "lowshelf", "highshelf", "notch", "allpass"):
+    if kind in EQ_KINDS:
         from .eq import design_eq
 
         return design_eq
