@@ -192,3 +192,22 @@ def run_float32(program, x):
                 x2, x1, y2, y1 = x1, xn, y1, yn
         cur = out
     return np.array(cur, dtype=np.float32)
+
+
+def float_reference(blocks, x):
+    """Float64 run of float blocks through scipy.signal.sosfilt / lfilter (the reference library)."""
+    from scipy import signal
+
+    from coefc.blocks import DelayBlock, FirBlock, GainBlock, SosBlock
+
+    y = np.asarray(x, dtype=float)
+    for b in blocks:
+        if isinstance(b, SosBlock):
+            y = signal.sosfilt(b.sos, y)
+        elif isinstance(b, FirBlock):
+            y = signal.lfilter(b.taps, [1.0], y)
+        elif isinstance(b, GainBlock):
+            y = y * b.gain
+        elif isinstance(b, DelayBlock):
+            y = np.concatenate([np.zeros(b.samples), y])[: len(y)]
+    return y

@@ -11,14 +11,13 @@
 
 from __future__ import annotations
 
-import math
-from fractions import Fraction
 
 import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from exact_model import rshift  # rounding of acc / 2^k through exact fractions, from the definitions
 from coefc.analyse import limitcycles as lc
 from coefc.program import Arithmetic, SectionOp
 from coefc.qformat import OVERFLOW_MODES, ROUNDING_MODES, QFormat
@@ -29,18 +28,6 @@ pytestmark = pytest.mark.skipif(lc._zero_input_engine() is None, reason="compile
 
 
 # ---------------------------------------------------------------- exact model (written from the definitions)
-
-def exact_round(acc: int, k: int, mode: str) -> int:
-    """acc / 2^k rounded as the README's definitions say, with exact fractions."""
-    v = Fraction(acc, 1 << k)
-    if mode == "nearest":  # to nearest, ties towards +infinity
-        return math.floor(v + Fraction(1, 2))
-    if mode == "floor":
-        return math.floor(v)
-    if mode == "convergent":  # Python's round() on a Fraction rounds ties to even
-        return round(v)
-    return math.trunc(v)  # zero: magnitude truncation
-
 
 def wrap(v: int, bits: int) -> int:
     """Two's-complement wrap into ``bits`` bits (common practice, no source)."""
@@ -53,7 +40,7 @@ def exact_steps(y1, y2, e, a1, a2, k, ar: Arithmetic, ef: bool, order: int, step
     lo, hi = ar.data.min_int, ar.data.max_int
     for _ in range(steps):
         acc = wrap(-a1 * y1 - a2 * y2 + (e if ef else 0), ar.acc_bits)
-        v = exact_round(acc, k, ar.rounding)
+        v = rshift(acc, k, ar.rounding)
         if ef:
             e = acc - v * (1 << k)
         y = (min(max(v, lo), hi) if ar.overflow == "saturate" else wrap(v, ar.data.width))

@@ -9,6 +9,7 @@ from fractions import Fraction
 import numpy as np
 import pytest
 
+from exact_model import rshift  # rounding of acc / 2^k through exact fractions, from the definitions
 from coefc.analyse.limitcycles import analyse_limit_cycles, analyse_section
 from coefc.program import Arithmetic, ChannelProgram, SectionOp
 from coefc.qformat import QFormat
@@ -27,22 +28,8 @@ def section(a1: float, a2: float, ar: Arithmetic) -> SectionOp:
 
 # ---------------------------------------------------------------- independent reference
 
-def ref_round(acc: int, k: int, mode: str) -> int:
-    """Rounding of acc / 2^k written from the definitions with exact fractions."""
-    v = Fraction(acc, 1 << k)
-    if mode == "nearest":  # to nearest, ties towards +infinity
-        return math.floor(v + Fraction(1, 2))
-    if mode == "floor":
-        return math.floor(v)
-    if mode == "convergent":  # Python's round() on a Fraction rounds ties to even
-        return round(v)
-    if mode == "zero":
-        return math.trunc(v)
-    raise ValueError(mode)
-
-
 def ref_step(y1: int, y2: int, A1: int, A2: int, k: int, mode: str, width: int) -> int:
-    y = ref_round(-A1 * y1 - A2 * y2, k, mode)
+    y = rshift(-A1 * y1 - A2 * y2, k, mode)
     lo, hi = -(1 << (width - 1)), (1 << (width - 1)) - 1
     return min(max(y, lo), hi)
 
@@ -157,7 +144,7 @@ def test_found_cycle_reproduces_in_the_engine(structure):
     # with b0 = 1: y[n] = x[n] + Q(-a1 y[n-1] - a2 y[n-2]); two input samples set the state
     k = 14
     x0 = y2
-    x1 = y1 - ref_round(-op.a[0] * y2, k, "nearest")
+    x1 = y1 - rshift(-op.a[0] * y2, k, "nearest")
     x = np.zeros(400, dtype=np.int64)
     x[:2] = (x0, x1)
     y = simulate(ChannelProgram("c", 48000.0, ar, (op,)), x)
@@ -235,7 +222,7 @@ def test_ebert_mazo_taylor_sufficient_condition():
     for _ in range(200):
         y1, y2 = (int(v) for v in rng.integers(-32768, 32768, 2))
         for _ in range(200):
-            v = ref_round(-op.a[0] * y1 - op.a[1] * y2, 14, "nearest")
+            v = rshift(-op.a[0] * y1 - op.a[1] * y2, 14, "nearest")
             y1, y2 = ((v + 32768) % 65536) - 32768, y1
         assert abs(y1) <= 2 and abs(y2) <= 2
 
@@ -265,7 +252,7 @@ def brute_force_ef(op: SectionOp, ar: Arithmetic, box: int):
                     idx[s] = len(path)
                     path.append(s)
                     acc = -A1 * s[0] - A2 * s[1] + s[2]
-                    v = ref_round(acc, k, ar.rounding)
+                    v = rshift(acc, k, ar.rounding)
                     y = min(max(v, -(1 << (ar.data.width - 1))), (1 << (ar.data.width - 1)) - 1)
                     s = (y, s[0], acc - v * K)
                 if s in idx:

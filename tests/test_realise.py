@@ -18,6 +18,7 @@ from coefc.program import Arithmetic, DelayOp, FirOp, GainOp, SectionOp
 from coefc.qformat import QFormat
 from coefc.realise import RealisationError, as_float_blocks, pairing, realise_channel
 from coefc.simulate import simulate
+from exact_model import float_reference
 
 FS = 48000
 MCU16 = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 14), acc_bits=32)
@@ -26,21 +27,6 @@ MCU32 = Arithmetic()
 
 def _design(*blocks):
     return ChannelDesign("t", FS, tuple(blocks))
-
-
-def _float_ref(blocks, x):
-    """Float64 reference through scipy.signal.sosfilt / lfilter."""
-    y = np.asarray(x, dtype=float)
-    for b in blocks:
-        if isinstance(b, SosBlock):
-            y = signal.sosfilt(b.sos, y)
-        elif isinstance(b, FirBlock):
-            y = signal.lfilter(b.taps, [1.0], y)
-        elif isinstance(b, GainBlock):
-            y = y * b.gain
-        else:
-            y = np.concatenate([np.zeros(b.samples), y])[: len(y)]
-    return y
 
 
 @pytest.mark.parametrize("scaling", ["none", "l1", "l2", "linf"])
@@ -220,7 +206,7 @@ def test_analytic_noise_matches_simulated_noise(structure, expect_db):
     rep, k0 = pairing.repair(sos)
     _, noise = pairing.order_sections([], rep, [], "l2", 1 - 2 ** -14, structure, k0)
     x = np.round(np.random.default_rng(0).uniform(-0.25, 0.25, 100_000) * 2 ** 15).astype(np.int64)
-    e = simulate(p, x) / 2 ** 15 - _float_ref(as_float_blocks(p), x / 2 ** 15)
+    e = simulate(p, x) / 2 ** 15 - float_reference(as_float_blocks(p), x / 2 ** 15)
     measured = np.var(e[1000:]) * 2 ** 30
     assert measured == pytest.approx(noise["exchanged"], rel=0.08)
 
@@ -236,7 +222,7 @@ def test_first_order_roundoff_noise_matches_the_textbook_value(a, expect):
     ar = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 30), acc_bits=64, scaling="none")
     p = realise_channel(_design(SosBlock(sos)), ar)
     x = np.round(np.random.default_rng(1).uniform(-0.09, 0.09, 400_000) * 2 ** 15).astype(np.int64)
-    e = simulate(p, x) / 2 ** 15 - _float_ref(as_float_blocks(p), x / 2 ** 15)
+    e = simulate(p, x) / 2 ** 15 - float_reference(as_float_blocks(p), x / 2 ** 15)
     assert np.var(e[100:]) == pytest.approx(expect, rel=0.03)
 
 
@@ -286,7 +272,7 @@ def test_fixed_point_channel_tracks_the_float_reference():
     p = realise_channel(d, MCU32.with_(scaling="l2"))
     x = np.round(np.random.default_rng(4).uniform(-0.3, 0.3, 20000) * 2 ** 31).astype(np.int64)
     y = simulate(p, x) / 2 ** 31
-    ref = _float_ref(d.blocks, x / 2 ** 31)
+    ref = float_reference(d.blocks, x / 2 ** 31)
     assert np.sqrt(np.mean((y - ref) ** 2)) < 1e-7
 
 

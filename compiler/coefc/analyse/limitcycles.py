@@ -518,8 +518,8 @@ def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states:
             notes.append(f"more candidate states than the search limit of {max_states}")
         res = dict(status="unproven", bound_lsb=Bf, exhaustive=False, states_searched=0)
         if structure in ("df1", "tdf2") or B < fs_lsb:
-            search = _sampled if structure in ("df1", "tdf2") else _sampled_ef
-            found = search(a1, a2 if order == 2 else 0, k, arith, B, sample_starts, sample_steps, seed)
+            found = _sampled(a1, a2 if order == 2 else 0, k, arith, B, sample_starts, sample_steps, seed,
+                             ef=structure == "df1ef")
             if found:
                 res.update(found)
                 res.update(status="found")
@@ -584,21 +584,29 @@ def _describe(y1, y2, a1, a2, k, arith, cap: int = 4096):
     return dict(amplitude_lsb=int(am), period=int(per), start_state=tuple(int(v) for v in start))
 
 
-def _sampled(a1, a2, k, arith, B, starts, steps, seed):
-    """Run random states inside the bound; return the largest cycle they settle in, if any."""
+def _sampled(a1, a2, k, arith, B, starts, steps, seed, ef=False):
+    """Run random states inside the bound (with a random residual E for df1ef); return
+    the largest cycle they settle in, if any."""
     if arith.acc_bits > 64:
         return None
     rng = np.random.default_rng(seed)
     y1 = rng.integers(-B, B + 1, starts).astype(np.int64)
     y2 = rng.integers(-B, B + 1, starts).astype(np.int64) if a2 else np.zeros(starts, np.int64)
-    y1, y2, _, _ = run_zero_input(y1, y2, np.zeros_like(y1), a1, a2, k, arith, False, 2 if a2 else 1, steps)
+    e = (rng.integers(-(1 << (k - 1)), 1 << (k - 1), starts).astype(np.int64) if ef
+         else np.zeros_like(y1))
+    y1, y2, e, _ = run_zero_input(y1, y2, e, a1, a2, k, arith, ef, 2 if a2 else 1, steps)
     alive = (y1 != 0) | (y2 != 0)
     if not np.any(alive):
         return None
-    finals = sorted(set(zip(y1[alive].tolist(), y2[alive].tolist())), key=lambda p: -max(abs(p[0]), abs(p[1])))
+    states = zip(y1[alive].tolist(), y2[alive].tolist(), e[alive].tolist()) if ef else \
+        zip(y1[alive].tolist(), y2[alive].tolist())
+    finals = sorted(set(states), key=lambda p: -max(abs(p[0]), abs(p[1])))
     best = None
     for s in finals[:8]:
-        per, am, cyc = _walk(s[0], s[1], a1, a2, k, arith, limit=4 * steps)
+        if ef:
+            per, am, cyc = _walk_ef(s[0], s[1], s[2], a1, a2, k, arith, 4 * steps)
+        else:
+            per, am, cyc = _walk(s[0], s[1], a1, a2, k, arith, limit=4 * steps)
         if per and am and (best is None or am > best[1]):
             best = (per, am, max(cyc, key=lambda p: abs(p[0])))
     if best is None:
@@ -634,30 +642,6 @@ def _walk_ef(y1, y2, e, a1, a2, k, arith, limit):
         y0, en = step_ef_int(s[0], s[1], s[2], a1, a2, k, arith)
         s = (y0, s[0], en)
     return None, None, []
-
-
-def _sampled_ef(a1, a2, k, arith, B, starts, steps, seed):
-    """Random (y1, y2, E) states of a df1ef section; the largest cycle they settle in, if any."""
-    if arith.acc_bits > 64:
-        return None
-    rng = np.random.default_rng(seed)
-    y1 = rng.integers(-B, B + 1, starts).astype(np.int64)
-    y2 = rng.integers(-B, B + 1, starts).astype(np.int64) if a2 else np.zeros(starts, np.int64)
-    e = rng.integers(-(1 << (k - 1)), 1 << (k - 1), starts).astype(np.int64)
-    y1, y2, e, _ = run_zero_input(y1, y2, e, a1, a2, k, arith, True, 2 if a2 else 1, steps)
-    alive = (y1 != 0) | (y2 != 0)
-    if not np.any(alive):
-        return None
-    finals = sorted(set(zip(y1[alive].tolist(), y2[alive].tolist(), e[alive].tolist())),
-                    key=lambda p: -max(abs(p[0]), abs(p[1])))
-    best = None
-    for s in finals[:8]:
-        per, am, cyc = _walk_ef(s[0], s[1], s[2], a1, a2, k, arith, 4 * steps)
-        if per and am and (best is None or am > best[1]):
-            best = (per, am, max(cyc, key=lambda p: abs(p[0])))
-    if best is None:
-        return None
-    return dict(amplitude_lsb=int(best[1]), period=int(best[0]), start_state=tuple(int(v) for v in best[2]))
 
 
 def run_zero_input(y1, y2, e, a1: int, a2: int, k: int, arith: Arithmetic, ef: bool, order: int, steps: int,

@@ -52,7 +52,6 @@ def build(
     The header is byte-identical for identical inputs: its banner names the coefc
     version and the SHA-256 of the description and of the target.toml, never a time.
     """
-    from ..api import load
     from ..budget import run_check
     from ..emit import render
     from ..fileio import check_output, write_atomic
@@ -64,10 +63,9 @@ def build(
         raise CoefcError(f"{output}: the output must be a C header ending in .h")
     if not check_only:
         check_output(output, [file], "header")
-    loaded = load(file)
-    ov = options.overrides(data=data, coef=coef, acc=acc, rounding=rounding, overflow=overflow,
-                           structure=structure, scaling=scaling)
-    real = loaded.design(channel or None).realise(target, ov, target_dir or ())
+    loaded, real = options.realisation(file, channel=channel, target=target, target_dir=target_dir,
+                                       data=data, coef=coef, acc=acc, rounding=rounding,
+                                       overflow=overflow, structure=structure, scaling=scaling)
     build_info(real.target)  # a target that cannot build fails before the (slower) check
     report = run_check(real, loaded.description.budget)
     for c in report.cautions:

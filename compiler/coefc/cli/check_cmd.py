@@ -60,20 +60,18 @@ def check(
     dBFS per AES17: 0 dBFS is the RMS level of a full-scale sine.
     """
     from ..analyse import AnalysisOptions
-    from ..api import load
     from ..budget import apply_overrides, run_check
     from ..reporting import render
 
     options.check_outputs([(json_out, "JSON report"), (junit, "JUnit report")], [file])
-    loaded = load(file)
+    loaded, real = options.realisation(file, channel=channel, target=target, target_dir=target_dir,
+                                       data=data, coef=coef, acc=acc, rounding=rounding,
+                                       overflow=overflow, structure=structure, scaling=scaling)
     desc = loaded.description
     budget = apply_overrides(desc.budget, passband_deviation_db=max_passband_deviation_db,
                              stopband_attenuation_db=min_stopband_attenuation_db,
                              output_noise_dbfs=max_noise_dbfs, limit_cycles=limit_cycles,
                              overflow=overflow_budget)
-    ov = options.overrides(data=data, coef=coef, acc=acc, rounding=rounding, overflow=overflow,
-                           structure=structure, scaling=scaling)
-    real = loaded.design(channel or None).realise(target, ov, target_dir or ())
     report = run_check(real, budget, options=AnalysisOptions(noise_samples=noise_samples, max_states=search_limit))
     if junit:
         from ..fileio import write_atomic

@@ -44,6 +44,19 @@ Channel = Annotated[Optional[list[str]], typer.Option("--channel", callback=_cha
 JsonOut = Annotated[Optional[str], typer.Option("--json", metavar="PATH", help="Write the JSON report to PATH ('-' for stdout).")]
 
 
+def realisation(file, *, channel=None, target=None, target_dir=None, **arithmetic):
+    """Load, design and realise *file* as the command line says: ``(loaded, realisation)``.
+
+    *arithmetic* takes the override options (data, coef, acc, rounding, overflow,
+    structure, scaling) by their option names.
+    """
+    from ..api import load
+
+    loaded = load(file)
+    real = loaded.design(channel or None).realise(target, overrides(**arithmetic), target_dir or ())
+    return loaded, real
+
+
 def overrides(data=None, coef=None, acc=None, rounding=None, overflow=None, structure=None, scaling=None) -> Overrides:
     return Overrides(structure=structure, data=data, coef=coef, acc_bits=acc, rounding=rounding,
                      overflow=overflow, scaling=scaling)

@@ -30,7 +30,6 @@ def report(
     Needs matplotlib (pip install 'coefc[plot]').  The page loads nothing from
     elsewhere.  dBFS per AES17: 0 dBFS is the RMS level of a full-scale sine.
     """
-    from ..api import load
     from ..budget import run_check
     from ..fileio import write_atomic
     from ..htmlreport import render_report
@@ -40,10 +39,9 @@ def report(
 
         raise CoefcError(f"{out}: the report is an HTML page; name the output file *.html")
     options.check_outputs([(out, "report")], [file])
-    loaded = load(file)
-    ov = options.overrides(data=data, coef=coef, acc=acc, rounding=rounding, overflow=overflow,
-                           structure=structure, scaling=scaling)
-    real = loaded.design(channel or None).realise(target, ov, target_dir or ())
+    loaded, real = options.realisation(file, channel=channel, target=target, target_dir=target_dir,
+                                       data=data, coef=coef, acc=acc, rounding=rounding,
+                                       overflow=overflow, structure=structure, scaling=scaling)
     rep = run_check(real, loaded.description.budget)
     write_atomic(out, render_report(rep, real))
     print(f"wrote {out} ({'within budget' if rep.ok else 'over budget'})")

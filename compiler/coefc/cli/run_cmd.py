@@ -40,7 +40,6 @@ def run(
     uses the data word's container (16-bit words -> int16, 24/32-bit -> int32,
     float32 -> float).
     """
-    from ..api import load
     from ..sampleio import read_samples, write_samples
     from ..fileio import check_output
     from ..sampleio import output_kind
@@ -48,11 +47,10 @@ def run(
 
     output_kind(output_path)
     check_output(output_path, [file, input_path], "output")
-    loaded = load(file)
+    loaded, real = options.realisation(file, channel=channel, target=target, target_dir=target_dir,
+                                       data=data, coef=coef, acc=acc, rounding=rounding,
+                                       overflow=overflow, structure=structure, scaling=scaling)
     desc = loaded.description
-    ov = options.overrides(data=data, coef=coef, acc=acc, rounding=rounding, overflow=overflow,
-                           structure=structure, scaling=scaling)
-    real = loaded.design(channel or None).realise(target, ov, target_dir or ())
     ar = real.programs[0].arithmetic
     x = read_samples(input_path, ar, desc.sample_rate_hz)
     outputs, overflowed = {}, []
