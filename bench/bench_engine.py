@@ -49,7 +49,7 @@ def main() -> None:
     n = args.samples
     rng = np.random.default_rng(0)
     xf = rng.uniform(-0.5, 0.5, n)
-    ar = Arithmetic(structure="df1", acc_bits=64, rounding="nearest", overflow="saturate", scaling="linf")
+    ar = Arithmetic(structure="df1", acc_bits=64, rounding="add-half", overflow="saturate", scaling="linf")
     prog = realise_channel(ChannelDesign("bench", 48000, (SosBlock(sos),)), ar)
     prog = type(prog)(prog.name, prog.sample_rate_hz, prog.arithmetic, prog.sections(), prog.notes)  # sections only
     k = len(prog.sections())

@@ -176,7 +176,7 @@ def _symmetric(half: list, n: int) -> tuple:
 
 def symmetric_fir_programs(arith: Arithmetic, rng) -> list[ChannelProgram]:
     """Symmetric FIRs (marked ``symmetric``) of odd and even length, so a
-    fixed-point header folds them: random taps with a post-shift, taps of the
+    fixed-point header folds them: random taps with a coefficient shift, taps of the
     most negative and largest coefficient word (the folded product
     (x_a + x_b) * h then needs data + coef + 1 bits, 65 on mcu32), gains high
     enough that the full-scale steps saturate (or wrap), and 1 and 2 taps."""

@@ -17,13 +17,13 @@ import numpy as np
 def rshift(v: int, k: int, mode: str) -> int:
     """v / 2^k rounded by *mode*, through exact rationals."""
     q = Fraction(v, 1 << k) if k >= 0 else Fraction(v * (1 << -k))
-    if mode == "nearest":
+    if mode == "add-half":
         return math.floor(q + Fraction(1, 2))
-    if mode == "floor":
+    if mode == "truncate":
         return math.floor(q)
-    if mode == "convergent":
+    if mode == "half-even":
         return round(q)
-    if mode == "zero":
+    if mode == "toward-zero":
         return math.trunc(q)
     raise ValueError(mode)
 

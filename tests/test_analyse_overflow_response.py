@@ -15,7 +15,7 @@ from coefc.blocks import ChannelDesign, SosBlock
 from coefc.program import Arithmetic, ChannelProgram, GainOp, SectionOp
 from coefc.qformat import QFormat
 
-AR = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 14), acc_bits=32, rounding="nearest", overflow="saturate")
+AR = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 14), acc_bits=32, rounding="add-half", overflow="saturate")
 
 
 def first_order(a: float, gain: float):

@@ -92,7 +92,7 @@ def test_json_contract(tweeter_report):
     assert ch["name"] == "tweeter" and ch["sample_rate_hz"] == 48000
     assert {"structure", "data", "coef", "acc_bits", "rounding", "overflow"} <= set(ch["arithmetic"])
     for sec in ch["sections"]:
-        assert len(sec["b"]) == 3 and len(sec["a"]) == 2 and isinstance(sec["shift"], int)
+        assert len(sec["b"]) == 3 and len(sec["a"]) == 2 and isinstance(sec["coef_shift"], int)
         assert all(isinstance(v, int) for v in sec["b"] + sec["a"])
     m = ch["metrics"]
     for key in ("passband_deviation_db", "stopband_attenuation_db", "output_noise_dbfs",

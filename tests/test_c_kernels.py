@@ -40,7 +40,7 @@ def _headers(target_name: str) -> list[tuple[str, str, str]]:
             for overflow in ("saturate", "wrap"):
                 arith = base.with_(rounding=rounding, overflow=overflow)
                 out.append(emit_text(hand_programs(arith, structures, seed=len(out) + 1), target_name,
-                                     f"hand_{rounding}_{overflow}"))
+                                     f"hand_{rounding.replace('-', '_')}_{overflow}"))
         arith = base.with_(acc_bits=NARROW_ACC[target_name], overflow="wrap")
         out.append(emit_text(hand_programs(arith, structures, seed=99), target_name, "hand_narrow_acc"))
     return out

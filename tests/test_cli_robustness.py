@@ -292,7 +292,7 @@ _VALUES = {
     "--data": (["Q1.15", "Q4.12", "Q1.23"], ["Q0.15", "Q1.70", "Q1.1", "16", "x", "16:20:4", ""]),
     "--coef": (["Q2.14", "Q1.3", "Q40.2"], ["Q", "16", "2"]),
     "--acc": (["32", "64", "40"], ["0", "8", "200", "-5", "abc"]),
-    "--rounding": (["nearest", "floor", "convergent", "zero"], ["up"]),
+    "--rounding": (["add-half", "truncate", "half-even", "toward-zero"], ["up"]),
     "--overflow": (["saturate", "wrap"], ["clip"]),
     "--structure": (["df1", "tdf2", "df1ef"], ["df2", ","]),
     "--scaling": (["none", "l1", "l2", "linf"], ["l3"]),
@@ -312,7 +312,7 @@ _VALUES = {
     "--noise-samples": (["1024"], ["5"]),
     "--search-limit": (["1", "1000"], ["0"]),
 }
-_FLAGS = ["--check", "--force", "--kernel", "--minimise", "--help", "--bogus"]
+_FLAGS = ["--check", "--force", "--kernel", "--fewest-bits", "--help", "--bogus"]
 _FILES = ["tiny.toml"] * 4 + ["missing.toml", "empty.toml", "folder.toml", "binary.toml", "gain_zero.toml"]
 _SAMPLES = ["in.txt", "mono.wav"] * 2 + ["stereo.wav", "cut_data.wav", "empty.txt", "missing.wav"]
 _OUTS = ["fuzz.txt", "fuzz.wav"] * 2 + ["out.csv", "mono.wav", "nodir/o.txt"]

@@ -47,12 +47,12 @@ def test_header_patterns():
         r"#define BENCH_DATA_BITS 32\n#define BENCH_DATA_FRAC_BITS 31\n#define BENCH_COEF_BITS 32\n"
         r"#define BENCH_COEF_FRAC_BITS 30\n#define BENCH_ACC_BITS 64",
         r"static const int32_t bench_woofer_coefs\[9\] BENCH_COEF_ATTR = \{",
-        r"\{COEFC_MCU32_OP_DF1, 29u, 1u, 0u, 0u\}, /\* section 1, df1, post-shift 1 \*/",
+        r"\{COEFC_MCU32_OP_DF1, 29u, 1u, 0u, 0u\}, /\* section 1, df1, coefficient shift 1 \*/",
         r"\{COEFC_MCU32_OP_FIR, 30u, 3u, 5u, 4u\}",
         r"\{COEFC_MCU32_OP_GAIN, 30u, 1u, 8u, 8u\}",
         r"\{COEFC_MCU32_OP_DELAY, 0u, 7u, 0u, 8u\}",
         r"#define BENCH_WOOFER_STATE_WORDS 16\n",  # 4 (df1) + 4 (FIR 3 taps) + 8 (delay 7)
-        r"COEFC_MCU32_ROUND_NEAREST, COEFC_MCU32_OVERFLOW_SATURATE",
+        r"COEFC_MCU32_ROUND_ADD_HALF, COEFC_MCU32_OVERFLOW_SATURATE",
         r"#define BENCH_GOLDEN_LEN 32\n",
         r"description  bench\.toml \(sha256 0{64}\)",
         r"target       mcu32 \(target\.toml sha256 [0-9a-f]{64}\)",
@@ -246,7 +246,7 @@ def test_user_target_with_header_and_source_templates(tmp_path):
     files = render(real, None, header_name="lab.h", vectors=128)
     assert sorted(files) == ["lab.c", "lab.h"]
     assert 'section(".lab_coefs")' not in files["lab.h"]  # the user template chose not to use it
-    assert "COEFC_MCU32_ROUND_CONVERGENT" in files["lab.c"]
+    assert "COEFC_MCU32_ROUND_HALF_EVEN" in files["lab.c"]
     (tmp_path / "lab.c").write_text(files["lab.c"])
     rc, out = run_headers(tmp_path / "build", "lab_board", [("lab.h", "lab", files["lab.h"])],
                           target_dirs=[user], extra_sources=[tmp_path / "lab.c"])
@@ -279,8 +279,8 @@ def test_unbudgeted_overflow_and_limit_cycles_are_noted():
     assert "NOTE 'woofer': limit cycles found" in text and "overflow under" not in text
 
 
-def test_memory_attributes_and_post_shift_switch(tmp_path):
-    """[memory] and [layout] post_shift of a user target reach the header."""
+def test_memory_attributes_and_coef_shift_switch(tmp_path):
+    """[memory] and [layout] coef_shift of a user target reach the header."""
     import shutil
 
     folder = tmp_path / "board"
@@ -295,10 +295,10 @@ def test_memory_attributes_and_post_shift_switch(tmp_path):
     assert '#define BENCH_COEF_ATTR __attribute__((aligned(32), section(".fast_coefs")))' in header
     rc, out = run_headers(tmp_path / "run", "board", [("b.h", "bench", header)], target_dirs=[tmp_path])
     assert rc == 0, out
-    toml.write_text(toml.read_text().replace("post_shift = true", "post_shift = false"))
+    toml.write_text(toml.read_text().replace("coef_shift = true", "coef_shift = false"))
     t = find_target("board", [tmp_path])
     real = type(real)(real.design, t, real.programs)
-    with pytest.raises(EmitError, match=r"section 1 needs post-shift 1 but target 'board' has none"):
+    with pytest.raises(EmitError, match=r"section 1 needs coefficient shift 1 but target 'board' has none"):
         render(real, None, header_name="b.h")
 
 
@@ -324,7 +324,7 @@ def test_symmetric_fir_stores_ceil_half_the_taps(target, n):
     stored = (n + 1) // 2
     assert _array(text, "bench_x_coefs") == [str(v) for v in taps[:stored] + odd]
     assert re.search(rf"\{{{P}_OP_FIR_SYM, \d+u, {n}u, 0u, 0u\}}, /\* FIR, {n} taps, symmetric: "
-                     rf"{stored} stored, folded, post-shift 1 \*/", text), text
+                     rf"{stored} stored, folded, coefficient shift 1 \*/", text), text
     kind = "FIR_SYM" if n == 1 else "FIR"  # one tap is symmetric too
     assert re.search(rf"\{{{P}_OP_{kind}, \d+u, {n}u, {stored}u, {n + 1}u\}}", text)
     assert f"#define BENCH_X_N_COEFS {stored + n}\n" in text

@@ -119,11 +119,11 @@ def test_over_budget_refuses_then_force_writes(desc, tmp_path):
 def test_overrides_and_kernel_files(desc, tmp_path):
     out = tmp_path / "fw" / "probe.h"
     out.parent.mkdir()
-    r = coefc("build", desc, "--target", "mcu16", "--structure", "tdf2", "--rounding", "floor", "--scaling", "l2",
+    r = coefc("build", desc, "--target", "mcu16", "--structure", "tdf2", "--rounding", "truncate", "--scaling", "l2",
               "-o", out, "--kernel", "--vectors", "200")
     assert r.returncode == 0, r.stderr
     text = out.read_text()
-    assert "COEFC_MCU16_OP_TDF2" in text and "COEFC_MCU16_ROUND_FLOOR" in text
+    assert "COEFC_MCU16_OP_TDF2" in text and "COEFC_MCU16_ROUND_TRUNCATE" in text
     assert "static const int16_t probe_filter_left_coefs" in text
     assert (out.parent / "coefc_mcu16.h").is_file() and (out.parent / "coefc_mcu16.c").is_file()
     # the written header runs its golden vectors on the written kernel

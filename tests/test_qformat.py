@@ -16,8 +16,8 @@ from coefc.qformat import (OVERFLOW_MODES, ROUNDING_MODES, QFormat, fit_word, qu
 
 def _ref_round(q: Fraction, mode: str) -> int:
     # exact rational reference (Python's round() of a Fraction is round-half-even)
-    return {"nearest": math.floor(q + Fraction(1, 2)), "floor": math.floor(q),
-            "convergent": round(q), "zero": math.trunc(q)}[mode]
+    return {"add-half": math.floor(q + Fraction(1, 2)), "truncate": math.floor(q),
+            "half-even": round(q), "toward-zero": math.trunc(q)}[mode]
 
 
 def test_parse_and_print():
@@ -56,11 +56,11 @@ def test_round_shift_int64_arrays_are_exact_over_the_whole_range(vals, k, mode):
 def test_round_shift_ties():
     # the tie rules the module docstring states, on the four ties +-0.5, +-1.5
     v = [-3, -1, 1, 3]  # /2
-    assert [round_shift(x, 1, "nearest") for x in v] == [-1, 0, 1, 2]
-    assert [round_shift(x, 1, "convergent") for x in v] == [-2, 0, 0, 2]
-    assert [round_shift(x, 1, "floor") for x in v] == [-2, -1, 0, 1]
-    assert [round_shift(x, 1, "zero") for x in v] == [-1, 0, 0, 1]
-    assert round_shift(5, -3, "nearest") == 40
+    assert [round_shift(x, 1, "add-half") for x in v] == [-1, 0, 1, 2]
+    assert [round_shift(x, 1, "half-even") for x in v] == [-2, 0, 0, 2]
+    assert [round_shift(x, 1, "truncate") for x in v] == [-2, -1, 0, 1]
+    assert [round_shift(x, 1, "toward-zero") for x in v] == [-1, 0, 0, 1]
+    assert round_shift(5, -3, "add-half") == 40
 
 
 @settings(max_examples=300, deadline=None)
@@ -85,8 +85,8 @@ def test_fit_word_arrays_equal_python_ints(vals, width, mode):
 
 def test_round_real_nearest_is_exact_below_one_half():
     x = np.array([0.49999999999999994, -0.5, 0.5, 2.5, -2.5, 1e16 + 2])
-    assert round_real(x, "nearest").tolist() == [0.0, 0.0, 1.0, 3.0, -2.0, 1e16 + 2]
-    assert round_real(x, "convergent").tolist() == [0.0, -0.0, 0.0, 2.0, -2.0, 1e16 + 2]
+    assert round_real(x, "add-half").tolist() == [0.0, 0.0, 1.0, 3.0, -2.0, 1e16 + 2]
+    assert round_real(x, "half-even").tolist() == [0.0, -0.0, 0.0, 2.0, -2.0, 1e16 + 2]
 
 
 def test_quantise_reports_every_saturated_value():
@@ -104,9 +104,9 @@ def test_quantise_reports_every_saturated_value():
     # (floor): mean -q/2, variance q^2/12 (from memory: Oppenheim & Schafer,
     # Discrete-Time Signal Processing, finite-precision chapter; Widrow & Kollar,
     # Quantization Noise, 2008).
-    ("nearest", 0.0, 1 / 12),
-    ("convergent", 0.0, 1 / 12),
-    ("floor", -0.5, 1 / 12),
+    ("add-half", 0.0, 1 / 12),
+    ("half-even", 0.0, 1 / 12),
+    ("truncate", -0.5, 1 / 12),
 ])
 def test_rounding_error_statistics(mode, mean, var):
     rng = np.random.default_rng(11)
@@ -122,6 +122,6 @@ def test_magnitude_truncation_error_is_below_q_with_opposite_sign():
     # Oppenheim & Schafer, finite-precision chapter)
     rng = np.random.default_rng(12)
     v = rng.integers(-(1 << 30), 1 << 30, 50_000)
-    e = round_shift(v, 8, "zero") * 256 - v
+    e = round_shift(v, 8, "toward-zero") * 256 - v
     assert np.all(np.abs(e) < 256)
     assert np.all(e * np.sign(v) <= 0)

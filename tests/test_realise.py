@@ -55,8 +55,8 @@ def test_physical_coefficients_are_within_half_an_lsb():
     assert np.all(np.abs(phys - want) <= lsb / 2)
 
 
-def test_post_shift_when_a1_does_not_fit_the_coefficient_word():
-    # with Q1.15 coefficients |a1| >= 1 needs a post-shift: physical = C * 2^(s - Fc)
+def test_coef_shift_when_a1_does_not_fit_the_coefficient_word():
+    # with Q1.15 coefficients |a1| >= 1 needs a coefficient shift: physical = C * 2^(s - Fc)
     sos = signal.butter(2, 1000, fs=FS, output="sos")  # a1 ~ -1.8
     ar = MCU16.with_(coef=QFormat(1, 15))
     (sec,) = realise_channel(_design(SosBlock(sos)), ar).sections()

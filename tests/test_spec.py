@@ -106,7 +106,7 @@ def toml_doc(doc: dict) -> bytes:
 
 WORDS = sorted({*STAGE_KEYS, "butterworth", "chebyshev1", "chebyshev2", "elliptic", "bessel", "linkwitz-riley",
                 "biquad", "kaiser", "equiripple", "least-squares", "A", "C", "none", "allow", "Q1.15", "Q2.30",
-                "df1", "tdf2", "nearest", "wrap", "l2", "mcu32", "woofer", "int", "", "x y"})
+                "df1", "tdf2", "add-half", "wrap", "l2", "mcu32", "woofer", "int", "", "x y"})
 NUMBERS = [0, 1, 2, 3, 4, 8, 45, -1, 0.5, 0.707, 6.0, 60.0, 100.0, 440.0, 1000.0, 2000.0, 2500, 8000,
            20000, 23999.0, 24000, 30000, 1e9, -1e-3, 48000]
 scalars = st.one_of(

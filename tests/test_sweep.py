@@ -23,7 +23,7 @@ import pytest
 import coefc
 from coefc.analyse import AnalysisOptions
 from coefc.errors import DescriptionError
-from coefc.sweep import Config, Sweeper, minimise, parse_widths
+from coefc.sweep import Config, Sweeper, fewest_bits, parse_widths
 
 LOWPASS = """
 name = "sweep_lp"
@@ -95,10 +95,10 @@ def test_config_equals_check_with_same_overrides(sweeper, lp_file):
         assert ch_row.data == "Q1.19" and ch_row.coef == "Q2.16"
 
 
-def test_minimise_matches_brute_force(sweeper):
+def test_fewest_bits_matches_brute_force(sweeper):
     datas, coefs = tuple(range(16, 33, 4)), tuple(range(12, 29, 4))
     for ci, name in enumerate(("lp", "hp")):
-        found = minimise(sweeper, ci, name, "mcu32", "df1", 64, datas, coefs)
+        found = fewest_bits(sweeper, ci, name, "mcu32", "df1", 64, datas, coefs)
         brute = [(d, c) for d in datas for c in coefs
                  if sweeper.evaluate(Config("mcu32", "df1", 64, d, c)).channels[ci].ok]
         assert brute, "the grid must contain a passing point for this test to mean anything"
@@ -149,11 +149,11 @@ def test_cli_sweep_exit_codes(lp_file, tmp_path):
     assert "--coef" in r.stderr and len(r.stderr.strip().splitlines()) == 1
 
 
-def test_cli_minimise(lp_file):
-    r = run_cli("sweep", str(lp_file), "--data", "16:32:2", "--coef", "12:28:2", "--minimise", "--json", "-")
+def test_cli_fewest_bits(lp_file):
+    r = run_cli("sweep", str(lp_file), "--data", "16:32:2", "--coef", "12:28:2", "--fewest-bits", "--json", "-")
     assert r.returncode == 0, r.stderr
     js = json.loads(r.stdout)
-    for m in js["minimise"]:
+    for m in js["fewest_bits"]:
         assert m["data_bits"] is not None and m["evaluated"] < m["grid"]
 
 
@@ -218,13 +218,13 @@ def test_low_frequency_section_needs_the_longer_coefficient_word(tmp_path):
     # grows as poles crowd towards z = 1 -- Oppenheim & Schafer, finite-precision
     # chapter, from memory): a 30 Hz peaking section at 48 kHz needs more
     # coefficient bits than a 6 kHz one for the same response error.
-    from coefc.opwidths import minimise_op_widths
+    from coefc.opwidths import fewest_op_widths
 
     p = tmp_path / "two.toml"
     p.write_text(TWO_SECTIONS)
     d = coefc.load(p).design()
     sw = Sweeper(d, d.loaded.description.budget, options=AnalysisOptions(measure_noise=False))
-    widths = minimise_op_widths(sw, 0, "mcu32", "df1ef", 64, 32, range(8, 33, 2))
+    widths = fewest_op_widths(sw, 0, "mcu32", "df1ef", 64, 32, range(8, 33, 2))
     by_freq = {}
     for w in widths:
         if w.kind == "section":

@@ -38,7 +38,7 @@ def test_builtin_fixed_targets_state_their_arithmetic(name, data, coef, acc):
     t = find_target(name)
     a = t.arithmetic
     assert (str(a.data), str(a.coef), a.acc_bits) == (data, coef, acc)
-    assert (a.rounding, a.overflow) == ("nearest", "saturate")
+    assert (a.rounding, a.overflow) == ("add-half", "saturate")
     info = build_info(t)
     # the C containers hold the words: 16 bits for mcu16, 32 for the others
     width = {"int16_t": 16, "int32_t": 32, "int64_t": 64}
@@ -74,7 +74,7 @@ def test_user_target_by_dir_and_by_environment(monkeypatch):
     with pytest.raises(TargetError):
         find_target("lab_board")
     t = find_target("lab_board", [USER])
-    assert str(t.arithmetic.data) == "Q1.27" and t.arithmetic.rounding == "convergent"
+    assert str(t.arithmetic.data) == "Q1.27" and t.arithmetic.rounding == "half-even"
     assert build_info(t).source_template == "templates/lab.c.j2"
     monkeypatch.setenv(ENV_VAR, str(USER))
     assert find_target("lab_board").folder == USER / "lab_board"
@@ -114,7 +114,7 @@ def test_target_without_build_tables_lists_but_cannot_build(tmp_path):
     folder = tmp_path / "sketch"
     folder.mkdir()
     (folder / "target.toml").write_text('[arithmetic]\ndata = "Q1.15"\ncoef = "Q2.14"\nacc_bits = 40\n'
-                                        'rounding = "floor"\noverflow = "wrap"\n')
+                                        'rounding = "truncate"\noverflow = "wrap"\n')
     t = find_target("sketch", [tmp_path])
     assert t.arithmetic.acc_bits == 40
     with pytest.raises(TargetError, match=r"has no table \[c\], so it cannot build headers"):

@@ -104,10 +104,10 @@ static inline int64_t rshift(int64_t v, const arith_t *ar)
     int64_t q = v >> ar->k;
     uint64_t rem = (uint64_t)v & ar->kmask;
     switch (ar->rounding) {
-    case 0: return q + (rem >= ar->khalf);                                    /* nearest */
-    case 1: return q;                                                         /* floor */
-    case 2: return q + (rem > ar->khalf || (rem == ar->khalf && (q & 1)));    /* convergent */
-    default: return q + (v < 0 && rem != 0);                                  /* zero */
+    case 0: return q + (rem >= ar->khalf);                                    /* add-half */
+    case 1: return q;                                                         /* truncate */
+    case 2: return q + (rem > ar->khalf || (rem == ar->khalf && (q & 1)));    /* half-even */
+    default: return q + (v < 0 && rem != 0);                                  /* toward-zero */
     }
 }
 

@@ -311,7 +311,7 @@ def _sections(program) -> list[dict]:
     for op in program.ops:
         if isinstance(op, SectionOp):
             conv = float if program.arithmetic.is_float else int
-            out.append({"b": [conv(c) for c in op.b], "a": [conv(c) for c in op.a], "shift": int(op.shift),
+            out.append({"b": [conv(c) for c in op.b], "a": [conv(c) for c in op.a], "coef_shift": int(op.shift),
                         "structure": op.structure})
     return out
 

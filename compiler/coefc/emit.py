@@ -264,17 +264,17 @@ def _ops(program: ChannelProgram, info: BuildInfo, prefix: str, target: Target):
     def rshift(shift: int, what: str) -> int:
         if not fixed:
             if shift:
-                raise EmitError(f"channel '{program.name}': {what} has post-shift {shift}, which float32 "
+                raise EmitError(f"channel '{program.name}': {what} has coefficient shift {shift}, which float32 "
                                 "arithmetic does not use")
             return 0
-        if shift and not info.post_shift:
-            raise EmitError(f"channel '{program.name}': {what} needs post-shift {shift} but target "
-                            f"'{target.name}' has none ([layout] post_shift = false); give the coefficient "
+        if shift and not info.coef_shift:
+            raise EmitError(f"channel '{program.name}': {what} needs coefficient shift {shift} but target "
+                            f"'{target.name}' has none ([layout] coef_shift = false); give the coefficient "
                             "word more integer bits (--coef)")
         k = fc - shift
         if not 1 <= k < max_k:
             raise EmitError(f"channel '{program.name}': {what} needs a right shift of {k} bits "
-                            f"(Fc={fc} minus post-shift {shift}); the kernel supports 1..{max_k - 1}")
+                            f"(Fc={fc} minus coefficient shift {shift}); the kernel supports 1..{max_k - 1}")
         return k
 
     def add(values, what: str) -> int:
@@ -310,7 +310,7 @@ def _ops(program: ChannelProgram, info: BuildInfo, prefix: str, target: Target):
             at = add(values, what)
             words = _STATE_WORDS[op.structure]
             ops.append((f"{P}_OP_{op.structure.upper()}", k, 1, at, state,
-                        f"{what}, {op.structure}, post-shift {op.shift}"))
+                        f"{what}, {op.structure}, coefficient shift {op.shift}"))
             state += words
         elif isinstance(op, FirOp):
             taps = list(op.taps)
@@ -325,16 +325,16 @@ def _ops(program: ChannelProgram, info: BuildInfo, prefix: str, target: Target):
                 stored = (n + 1) // 2
                 at = add(taps[:stored], f"FIR (op {i})")
                 ops.append((f"{P}_OP_FIR_SYM", k, n, at, state,
-                            f"FIR, {n} taps, symmetric: {stored} stored, folded, post-shift {op.shift}"))
+                            f"FIR, {n} taps, symmetric: {stored} stored, folded, coefficient shift {op.shift}"))
             else:
                 at = add(taps, f"FIR (op {i})")
                 ops.append((f"{P}_OP_FIR", k, n, at, state,
-                            f"FIR, {n} taps{' (symmetric)' if op.symmetric else ''}, post-shift {op.shift}"))
+                            f"FIR, {n} taps{' (symmetric)' if op.symmetric else ''}, coefficient shift {op.shift}"))
             state += n + 1
         elif isinstance(op, GainOp):
             k = rshift(op.shift, f"gain (op {i})")
             at = add([op.coef], f"gain (op {i})")
-            ops.append((f"{P}_OP_GAIN", k, 1, at, state, f"gain, post-shift {op.shift}"))
+            ops.append((f"{P}_OP_GAIN", k, 1, at, state, f"gain, coefficient shift {op.shift}"))
         elif isinstance(op, DelayOp):
             d = int(op.samples)
             if d < 0:
@@ -536,7 +536,7 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
             "coefs_ref": f"{ident}_coefs" if coefs else "0",
             "data_bits": arith.data.width if fixed else 32,
             "acc_bits": arith.acc_bits if fixed else 32,
-            "rounding": f"{P}_ROUND_{arith.rounding.upper()}" if fixed else "0",
+            "rounding": f"{P}_ROUND_{arith.rounding.upper().replace('-', '_')}" if fixed else "0",
             "overflow": f"{P}_OVERFLOW_{arith.overflow.upper()}" if fixed else "0",
             "golden_lines": _lines(gout),
         })

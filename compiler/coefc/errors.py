@@ -70,7 +70,16 @@ class DataError(CoefcError):
     """Input samples (WAV or text) cannot be read or converted."""
 
 
-def close_match(word: str, choices: Iterable[str]) -> str:
-    """Return ``" (did you mean 'x'?)"`` for the closest of *choices*, or ``""``."""
+def close_match(word: str, choices: Iterable[str], stems: Iterable[tuple[str, str]] = ()) -> str:
+    """Return ``" (did you mean 'x'?)"`` for the closest of *choices*, or ``""``.
+
+    *stems* pairs a word stem with the choice it means (``("trunc", "truncate")``):
+    a word containing the stem is pointed at that choice, for names whose close
+    spelling is not close in meaning.  A hint only: the word is still refused.
+    """
+    low = str(word).lower()
+    for stem, choice in stems:
+        if stem in low:
+            return f" (did you mean '{choice}'?)"
     hits = difflib.get_close_matches(word, list(choices), n=1, cutoff=0.6)
     return f" (did you mean '{hits[0]}'?)" if hits else ""

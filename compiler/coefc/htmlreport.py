@@ -152,7 +152,7 @@ def render_report(report, realisation) -> str:
             "arithmetic": ", ".join(f"{k} {v}" for k, v in ch.arithmetic.items() if v is not None),
             "checks": [{"name": c.name, "value": format_number(c.value), "limit": format_number(c.limit), "ok": c.ok,
                         "reason": ch.reasons.get(c.name, "")} for c in ch.checks],
-            "sections": [{"index": i + 1, "b": s["b"], "a": s["a"], "shift": s["shift"],
+            "sections": [{"index": i + 1, "b": s["b"], "a": s["a"], "coef_shift": s["coef_shift"],
                           "structure": s.get("structure", "")} for i, s in enumerate(ch.sections)],
             "limit_cycles": [{"op": s.get("op"), "status": s.get("status"), "bound": format_number(s.get("bound_lsb")),
                               "amplitude": format_number(s.get("amplitude_lsb")), "period": format_number(s.get("period")),

@@ -86,7 +86,7 @@ def hybrid(wide: ChannelProgram, narrow: ChannelProgram, index: int) -> ChannelP
     return replace(wide, ops=tuple(ops))
 
 
-def minimise_op_widths(sweeper, channel_index: int, target: str, structure: str, acc_bits: int,
+def fewest_op_widths(sweeper, channel_index: int, target: str, structure: str, acc_bits: int,
                        data_bits: int, coefs: Sequence[int]) -> list[OpWidth]:
     """Smallest coefficient width of every op of one channel (the others at the widest width)."""
     from .api import Design, Realisation

@@ -5,7 +5,7 @@ Produced by :mod:`coefc.realise`, executed by :mod:`coefc.simulate`, measured by
 integers: nothing downstream re-derives a coefficient.
 
 Canonical integer DF1 section (the arithmetic every part agrees on; ``Fd``/``Fc``
-are the data/coefficient fractional bits, ``s`` the section's post-shift)::
+are the data/coefficient fractional bits, ``s`` the section's coefficient shift)::
 
     acc  = B0*x[n] + B1*x[n-1] + B2*x[n-2] - A1*y[n-1] - A2*y[n-2]
            (exact products, summed modulo 2^acc_bits, two's complement)
@@ -81,7 +81,7 @@ class Arithmetic:
     data: QFormat | None = QFormat(1, 31)
     coef: QFormat | None = QFormat(2, 30)
     acc_bits: int = 64
-    rounding: str = "nearest"
+    rounding: str = "add-half"
     overflow: str = "saturate"
     scaling: str = "none"
 
@@ -108,7 +108,7 @@ class Arithmetic:
 
 @dataclass(frozen=True)
 class SectionOp:
-    """One second-order section: ``b = (B0, B1, B2)``, ``a = (A1, A2)``, post-shift.
+    """One second-order section: ``b = (B0, B1, B2)``, ``a = (A1, A2)``, coefficient shift.
 
     ``structure`` is ``df1``, ``tdf2`` or ``df1ef`` (DF1 with first-order error
     feedback).  Integers for fixed-point arithmetic, float32 values otherwise.

@@ -8,11 +8,12 @@ the integer ``round(v * 2^n)``.
 
 Rounding modes (how ``v / 2^k`` becomes an integer, for an integer ``v``):
 
-``nearest``     ``(v + 2^(k-1)) >> k``: to nearest, ties towards +infinity
-                (the cheap "add half and shift" of every DSP).
-``floor``       ``v >> k``: two's-complement truncation, towards -infinity.
-``convergent``  to nearest, ties to even (unbiased).
-``zero``        magnitude truncation, towards zero.
+``add-half``     ``(v + 2^(k-1)) >> k``: add half an LSB, then drop the bits; to
+                 nearest with ties towards +infinity (the cheap "add half and
+                 shift" of every DSP).
+``truncate``     ``v >> k``: two's-complement truncation, towards -infinity.
+``half-even``    to nearest, ties to even (unbiased).
+``toward-zero``  magnitude truncation: ``sign(v) * (|v| >> k)``.
 
 ``>>`` is an arithmetic shift (floor division by ``2^k``).  Overflow modes:
 ``saturate`` clamps to the word's range, ``wrap`` keeps the low bits (two's
@@ -31,7 +32,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-ROUNDING_MODES = ("nearest", "floor", "convergent", "zero")
+from .errors import close_match
+
+ROUNDING_MODES = ("add-half", "truncate", "half-even", "toward-zero")
+# Stems of other words for these modes -> the mode they mean; error hints only.
+ROUNDING_HINTS = (("near", "add-half"), ("half-up", "add-half"), ("floor", "truncate"), ("trunc", "truncate"),
+                  ("conv", "half-even"), ("even", "half-even"), ("bank", "half-even"), ("zero", "toward-zero"),
+                  ("magn", "toward-zero"))
 OVERFLOW_MODES = ("saturate", "wrap")
 
 _Q_RE = re.compile(r"^[Qq](\d+)(?:\.(\d+))?$")
@@ -108,15 +115,16 @@ def round_shift(v, k: int, mode: str):
     is never formed).  ``k <= 0`` shifts left exactly (Python ints) or modulo
     2^64 (arrays).
 
-    >>> [round_shift(x, 1, "nearest") for x in (-3, -1, 1, 3)]
+    >>> [round_shift(x, 1, "add-half") for x in (-3, -1, 1, 3)]
     [-1, 0, 1, 2]
-    >>> [round_shift(x, 1, "convergent") for x in (-3, -1, 1, 3)]
+    >>> [round_shift(x, 1, "half-even") for x in (-3, -1, 1, 3)]
     [-2, 0, 0, 2]
-    >>> [round_shift(x, 2, "zero") for x in (-7, 7)]
+    >>> [round_shift(x, 2, "toward-zero") for x in (-7, 7)]
     [-1, 1]
     """
     if mode not in ROUNDING_MODES:
-        raise ValueError(f"unknown rounding mode '{mode}'; use one of {', '.join(ROUNDING_MODES)}")
+        raise ValueError(f"unknown rounding mode '{mode}'{close_match(mode, ROUNDING_MODES, ROUNDING_HINTS)}; "
+                         f"use one of {', '.join(ROUNDING_MODES)}")
     if k <= 0:
         return v * (1 << -k) if isinstance(v, int) else np.left_shift(v, -k)
     scalar = isinstance(v, int)
@@ -126,13 +134,13 @@ def round_shift(v, k: int, mode: str):
     mask = (1 << k) - 1
     q = v >> k  # floor
     rem = v & mask  # v - q * 2^k, in [0, 2^k)
-    if mode == "floor":
+    if mode == "truncate":
         return q
-    if mode == "nearest":
+    if mode == "add-half":
         up = rem >= half
-    elif mode == "zero":
+    elif mode == "toward-zero":
         up = (v < 0) & (rem != 0)
-    else:  # convergent
+    else:  # half-even
         up = (rem > half) | ((rem == half) & ((q & 1) == 1))
     if scalar:
         return q + 1 if up else q
@@ -159,21 +167,22 @@ def fit_word(v, width: int, overflow: str):
 def round_real(x: np.ndarray, mode: str) -> np.ndarray:
     """Round real numbers to integers (float64 in, float64 of integer values out).
 
-    ``nearest`` rounds ties towards +infinity like :func:`round_shift`; it is
+    ``add-half`` rounds ties towards +infinity like :func:`round_shift`; it is
     computed from the exact fractional part (``x - floor(x)``), so values just
     below one half (0.49999999999999994) are not pushed up by ``x + 0.5``.
     """
     x = np.asarray(x, dtype=np.float64)
-    if mode == "nearest":
+    if mode == "add-half":
         fl = np.floor(x)
         return fl + ((x - fl) >= 0.5)
-    if mode == "floor":
+    if mode == "truncate":
         return np.floor(x)
-    if mode == "zero":
+    if mode == "toward-zero":
         return np.trunc(x)
-    if mode == "convergent":
+    if mode == "half-even":
         return np.rint(x)  # IEEE round-half-even
-    raise ValueError(f"unknown rounding mode '{mode}'; use one of {', '.join(ROUNDING_MODES)}")
+    raise ValueError(f"unknown rounding mode '{mode}'{close_match(mode, ROUNDING_MODES, ROUNDING_HINTS)}; "
+                         f"use one of {', '.join(ROUNDING_MODES)}")
 
 
 @dataclass(frozen=True)
@@ -184,7 +193,7 @@ class Quantised:
     saturated: tuple[int, ...]  # indices whose value was clamped (or wrapped)
 
 
-def quantise(values, fmt: QFormat, rounding: str = "nearest", overflow: str = "saturate") -> Quantised:
+def quantise(values, fmt: QFormat, rounding: str = "add-half", overflow: str = "saturate") -> Quantised:
     """Quantise real *values* to integers of format *fmt*.
 
     Every value that did not fit (a coefficient of exactly +1.0 in Q1.15, say) is

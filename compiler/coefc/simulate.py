@@ -42,7 +42,7 @@ except ImportError:  # pragma: no cover - a broken build; see HAVE_ENGINE
 HAVE_ENGINE = _engine is not None and hasattr(_engine, "cascade")
 
 _STRUCT_CODE = {"df1": 0, "tdf2": 1, "df1ef": 2}
-_ROUND_CODE = {m: i for i, m in enumerate(ROUNDING_MODES)}  # nearest, floor, convergent, zero
+_ROUND_CODE = {m: i for i, m in enumerate(ROUNDING_MODES)}  # add-half, truncate, half-even, toward-zero
 _OVF_CODE = {"saturate": 0, "wrap": 1}
 
 

@@ -217,11 +217,11 @@ def _string(v, where: _Place) -> str:
     return v
 
 
-def _choice(*allowed: str):
+def _choice(*allowed: str, stems: tuple[tuple[str, str], ...] = ()):
     def check(v, where: _Place) -> str:
         s = _string(v, where)
         if s not in allowed:
-            raise where.fail(f"unknown value '{s}'{close_match(s, allowed)}; use one of {', '.join(allowed)}")
+            raise where.fail(f"unknown value '{s}'{close_match(s, allowed, stems)}; use one of {', '.join(allowed)}")
         return s
 
     return check
@@ -446,7 +446,7 @@ def _table(v, where: _Place, header: str) -> dict:
 
 def _implementation(t, source: str) -> Implementation:
     from .program import SCALINGS, STRUCTURES
-    from .qformat import OVERFLOW_MODES, ROUNDING_MODES, QFormat
+    from .qformat import OVERFLOW_MODES, ROUNDING_HINTS, ROUNDING_MODES, QFormat
 
     where = _Place(source, table="implementation")
     t = _table(t, _Place(source, key="implementation"), "implementation")
@@ -459,7 +459,8 @@ def _implementation(t, source: str) -> Implementation:
     for key, allowed in (("structure", STRUCTURES), ("rounding", ROUNDING_MODES),
                          ("overflow", OVERFLOW_MODES), ("scaling", SCALINGS)):
         if key in t:
-            out[key] = _choice(*allowed)(t[key], where.at(key))
+            stems = ROUNDING_HINTS if key == "rounding" else ()
+            out[key] = _choice(*allowed, stems=stems)(t[key], where.at(key))
     for key in ("data", "coef"):
         if key in t:
             s = _string(t[key], where.at(key))

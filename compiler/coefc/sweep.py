@@ -13,7 +13,7 @@ Cost of a configuration, used to mark the cheapest passing one: the number of da
 plus coefficient bits, ties broken by the memory the channel needs (coefficient and
 state words, each in the smallest standard container of 8, 16, 32 or 64 bits).
 
-:func:`minimise` finds the smallest passing word lengths per channel without blind
+:func:`fewest_bits` finds the smallest passing word lengths per channel without blind
 enumeration: for a fixed coefficient width the verdict is usually monotone in the
 data width and vice versa, so a saddleback walk over the grid (start at the widest
 data word and the narrowest coefficient word; a pass moves to a narrower data word,
@@ -359,7 +359,7 @@ def _infeasible(base, acc: int, d: int, c: int) -> str:
 
 
 @dataclass(frozen=True)
-class MinimiseResult:
+class FewestBitsResult:
     """Smallest passing word lengths of one channel at a fixed target/structure/acc."""
 
     channel: str
@@ -380,8 +380,8 @@ class MinimiseResult:
                 "per_op": [w.to_json() for w in self.per_op]}
 
 
-def minimise(sweeper: Sweeper, channel_index: int, channel: str, target: str, structure: str,
-             acc_bits: int | None, datas: Sequence[int], coefs: Sequence[int]) -> MinimiseResult:
+def fewest_bits(sweeper: Sweeper, channel_index: int, channel: str, target: str, structure: str,
+             acc_bits: int | None, datas: Sequence[int], coefs: Sequence[int]) -> FewestBitsResult:
     """Smallest (data + coef) passing widths of one channel by a saddleback walk.
 
     The walk assumes the verdict is monotone (more bits never hurt); it then checks
@@ -399,7 +399,7 @@ def minimise(sweeper: Sweeper, channel_index: int, channel: str, target: str, st
 
     base = sweeper.base_arithmetic(target)
     if base.is_float:
-        return MinimiseResult(channel, target, structure, None, None, None, 0, 1)
+        return FewestBitsResult(channel, target, structure, None, None, None, 0, 1)
     datas = [d for d in datas if not _infeasible(base, acc_bits or base.acc_bits, d, max(coefs))]
     coefs = [c for c in coefs if not _infeasible(base, acc_bits or base.acc_bits, min(datas or [64]), c)]
     # Saddleback walk: from the widest data word and the narrowest coefficient word, a
@@ -429,9 +429,9 @@ def minimise(sweeper: Sweeper, channel_index: int, channel: str, target: str, st
     grid = len(datas) * len(coefs)
     evaluated = len(seen)
     if not candidates:
-        return MinimiseResult(channel, target, structure, acc_bits, None, None, evaluated, grid, tuple(notes))
+        return FewestBitsResult(channel, target, structure, acc_bits, None, None, evaluated, grid, tuple(notes))
     d, c = min(candidates, key=lambda p: (p[0] + p[1], p[0]))
-    return MinimiseResult(channel, target, structure, acc_bits, d, c, evaluated, grid, tuple(notes))
+    return FewestBitsResult(channel, target, structure, acc_bits, d, c, evaluated, grid, tuple(notes))
 
 
 def _prev(values: Sequence[int], v: int) -> int | None:

@@ -20,7 +20,7 @@ from types import MappingProxyType
 
 from .errors import DescriptionError, TargetError, close_match
 from .program import KINDS, SCALINGS, STRUCTURES, Arithmetic
-from .qformat import OVERFLOW_MODES, ROUNDING_MODES, QFormat
+from .qformat import OVERFLOW_MODES, ROUNDING_HINTS, ROUNDING_MODES, QFormat
 
 ENV_VAR = "COEFC_TARGET_PATH"
 
@@ -122,7 +122,8 @@ def load_target(folder: Path) -> Target:
         if not isinstance(v, typ) or isinstance(v, bool):
             raise TargetError(f"{path}: [arithmetic] key '{key}' must be a {typ.__name__}, got {v!r}")
         if allowed and v not in allowed:
-            raise TargetError(f"{path}: [arithmetic] key '{key}' = {v!r}; use one of {', '.join(allowed)}")
+            hint = close_match(v, allowed, ROUNDING_HINTS if key == "rounding" else ())
+            raise TargetError(f"{path}: [arithmetic] key '{key}' = {v!r}{hint}; use one of {', '.join(allowed)}")
         return v
 
     kind = get("kind", KINDS, default="fixed")
@@ -133,7 +134,7 @@ def load_target(folder: Path) -> Target:
     scaling = get("scaling", SCALINGS, default="none")
     if kind == "float32":
         arith = Arithmetic(kind="float32", structure=structure, data=None, coef=None, acc_bits=32,
-                           rounding="nearest", overflow="saturate", scaling=scaling)
+                           rounding="add-half", overflow="saturate", scaling=scaling)
     else:
         try:
             data = QFormat.parse(get("data"))
@@ -208,7 +209,8 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
                                            key=key)
                 structure_from = where  # checked against the target once every layer is applied
             elif key == "rounding" and v not in ROUNDING_MODES:
-                raise DescriptionError(where, f"unknown rounding '{v}'; use one of {', '.join(ROUNDING_MODES)}", key=key)
+                raise DescriptionError(where, f"unknown rounding '{v}'{close_match(v, ROUNDING_MODES, ROUNDING_HINTS)}; "
+                                       f"use one of {', '.join(ROUNDING_MODES)}", key=key)
             elif key == "overflow" and v not in OVERFLOW_MODES:
                 raise DescriptionError(where, f"unknown overflow '{v}'; use one of {', '.join(OVERFLOW_MODES)}", key=key)
             elif key == "scaling" and v not in SCALINGS:
@@ -253,7 +255,7 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
 #   [layout]   section = ["b0", "b1", "b2", "a1", "a2"]  memory order of one
 #              second-order section; "-a1"/"-a2" store the a terms negated (the
 #              kernel then adds every product, as a MAC-only core does)
-#              post_shift = true   whether a per-operation post-shift is allowed
+#              coef_shift = true   whether a per-operation coefficient shift is allowed
 #   [memory]   alignment (bytes, power of two), linker_section ("" = default)
 #   [kernel]   prefix (C prefix of the kernel's names), abi (interface version),
 #              header (file the generated header includes), sources (list)
@@ -277,7 +279,7 @@ class BuildInfo:
     max_coef_bits: int
     max_acc_bits: int
     section_layout: tuple[str, ...]  # e.g. ("b0", "b1", "b2", "-a1", "-a2")
-    post_shift: bool
+    coef_shift: bool
     alignment: int
     linker_section: str
     kernel_prefix: str
@@ -380,7 +382,7 @@ def build_info(target: Target) -> BuildInfo:
             or any(t.startswith("-") and t[1:] not in ("a1", "a2") for t in layout)):
         raise TargetError(f"{where('layout', 'section')}: [layout] section = {layout!r} must list each of "
                           "b0 b1 b2 a1 a2 once, in memory order ('-a1'/'-a2' store a negated)")
-    post_shift = get("layout", "post_shift", bool, default=True, optional=True)
+    coef_shift = get("layout", "coef_shift", bool, default=True, optional=True)
     alignment = get("memory", "alignment", int, default=0, optional=True)
     if alignment < 0 or (alignment & (alignment - 1)):
         raise TargetError(f"{where('memory', 'alignment')}: [memory] alignment = {alignment}; "
@@ -405,7 +407,7 @@ def build_info(target: Target) -> BuildInfo:
                               f"{target.folder}; fix the path")
     return BuildInfo(data_type=data_type, coef_type=coef_type, state_type=state_type,
                      max_data_bits=max_data, max_coef_bits=max_coef, max_acc_bits=max_acc,
-                     section_layout=tuple(layout), post_shift=post_shift, alignment=alignment,
+                     section_layout=tuple(layout), coef_shift=coef_shift, alignment=alignment,
                      linker_section=section, kernel_prefix=prefix, kernel_abi=abi,
                      kernel_header=header, kernel_sources=tuple(sources),
                      header_template=header_t, source_template=source_t)

@@ -4,8 +4,8 @@ Two phenomena, checked for every recursive second-order (or first-order) section
 with its input held at zero:
 
 Granular limit cycles (zero-input, rounding)
-    With rounding error ``e`` bounded by ``e_max`` LSB (1/2 for ``nearest`` and
-    ``convergent``, 1 for ``zero``; ``floor`` errors lie in (-1, 0], i.e. 1/2
+    With rounding error ``e`` bounded by ``e_max`` LSB (1/2 for ``add-half`` and
+    ``half-even``, 1 for ``toward-zero``; ``truncate`` errors lie in (-1, 0], i.e. 1/2
     around -1/2), any periodic output obeys ``y = h * e`` with ``h`` the impulse
     response of ``1/A(z)`` (or of the section's noise transfer for ``df1ef``), so
     ``|y| <= e_max ||h||_1`` -- a rigorous bound (the linear model with bounded
@@ -137,14 +137,14 @@ def zero_input_step(y1, y2, a1: int, a2: int, k: int, arith: Arithmetic):
 
 def _round_shift64(v: np.ndarray, k: int, mode: str) -> np.ndarray:
     """``round_shift`` on int64 without the rounding addition wrapping (as in program.py)."""
-    if mode in ("floor", "zero") or k <= 0:
+    if mode in ("truncate", "toward-zero") or k <= 0:
         return round_shift(v, k, mode)
     q = v >> k
     r = v & ((1 << k) - 1)
     half = 1 << (k - 1)
-    if mode == "nearest":
+    if mode == "add-half":
         return q + (r >= half)
-    return q + (r > half) + ((r == half) & ((q & 1) == 1))  # convergent: ties to even
+    return q + (r > half) + ((r == half) & ((q & 1) == 1))  # half-even: ties to even
 
 
 # ---------------------------------------------------------------- bounds
@@ -176,12 +176,12 @@ def _length(a) -> int:
 def error_interval(rounding: str) -> tuple[float, float]:
     """Centre and radius (LSB) of the rounding error of one ``round_shift``.
 
-    nearest/convergent: [-1/2, 1/2]; floor: (-1, 0]; zero (magnitude truncation):
+    add-half/half-even: [-1/2, 1/2]; truncate: (-1, 0]; toward-zero (magnitude truncation):
     (-1, 1) with the sign opposite to the value.
     """
-    if rounding in ("nearest", "convergent"):
+    if rounding in ("add-half", "half-even"):
         return 0.0, 0.5
-    if rounding == "floor":
+    if rounding == "truncate":
         return -0.5, 0.5
     return 0.0, 1.0
 
@@ -291,7 +291,7 @@ def _walk(y1: int, y2: int, a1: int, a2: int, k: int, arith: Arithmetic, limit: 
 def _residual_range(k: int, mode: str) -> tuple[int, int]:
     """Inclusive range of the df1ef residual ``E = acc - round_shift(acc, k) * 2^k``."""
     K, h = 1 << k, 1 << (k - 1)
-    return {"nearest": (-h, h - 1), "convergent": (-h, h), "floor": (0, K - 1), "zero": (-(K - 1), K - 1)}[mode]
+    return {"add-half": (-h, h - 1), "half-even": (-h, h), "truncate": (0, K - 1), "toward-zero": (-(K - 1), K - 1)}[mode]
 
 
 def _run_exit(ea: int, eb: int, lo: int, hi: int, d: int) -> list:
@@ -317,11 +317,11 @@ def _run_exit(ea: int, eb: int, lo: int, hi: int, d: int) -> list:
 def _windows(v: np.ndarray, k: int, mode: str) -> tuple[np.ndarray, np.ndarray]:
     """Inclusive accumulator ranges that ``round_shift(acc, k, mode)`` maps to each output *v*."""
     K, h = 1 << k, 1 << (k - 1)
-    if mode == "nearest":
+    if mode == "add-half":
         return v * K - h, v * K + h - 1
-    if mode == "floor":
+    if mode == "truncate":
         return v * K, v * K + K - 1
-    if mode == "convergent":
+    if mode == "half-even":
         odd = (v & 1).astype(bool)
         return v * K - h + odd, v * K + h - odd
     lo = np.where(v > 0, v * K, np.where(v < 0, v * K - K + 1, -K + 1))

@@ -21,13 +21,13 @@ uniformly distributed (exact for the discrete residues, q = 1 LSB):
 =============  ==========================  ===============================
 mode           mean                        variance
 =============  ==========================  ===============================
-nearest        +q/2^(k+1)                  (q^2/12)(1 - 2^-2k)
-convergent     0                           (q^2/12)(1 + 2^(1-2k))
-floor          -(q/2)(1 - 2^-k)            (q^2/12)(1 - 2^-2k)
-zero           0 (symmetric signals)       q^2 (1 - 2^-k)(2 - 2^-k)/6  (-> q^2/3)
+add-half       +q/2^(k+1)                  (q^2/12)(1 - 2^-2k)
+half-even      0                           (q^2/12)(1 + 2^(1-2k))
+truncate       -(q/2)(1 - 2^-k)            (q^2/12)(1 - 2^-2k)
+toward-zero    0 (symmetric signals)       q^2 (1 - 2^-k)(2 - 2^-k)/6  (-> q^2/3)
 =============  ==========================  ===============================
 
-Magnitude truncation (``zero``) is an error of magnitude uniform in [0, q) with the
+Magnitude truncation (``toward-zero``) is an error of magnitude uniform in [0, q) with the
 sign opposite to the value: ``e = -sign(v) u``.  For a zero-mean Gaussian value its
 mean is 0 and its mean square q^2/3, but it is correlated with ``v``: by Bussgang's
 theorem ``sign(v) = sqrt(2/pi) v/sigma_v + d`` with ``d`` uncorrelated with ``v`` and of
@@ -89,9 +89,9 @@ def rounding_error_stats(k: int, mode: str) -> tuple[float, float]:
 
     The ``2^k`` residues are taken as equally likely (the uniform model).
 
-    >>> rounding_error_stats(30, "nearest")[1] * 12
+    >>> rounding_error_stats(30, "add-half")[1] * 12
     1.0
-    >>> rounding_error_stats(1, "floor")
+    >>> rounding_error_stats(1, "truncate")
     (-0.25, 0.0625)
     """
     if k <= 0:
@@ -100,22 +100,22 @@ def rounding_error_stats(k: int, mode: str) -> tuple[float, float]:
         from ..qformat import round_shift
 
         r = np.arange(1 << k, dtype=np.int64)
-        if mode == "zero":
+        if mode == "toward-zero":
             # symmetric signal: half the values are positive (error -frac), half negative (+frac)
             frac = r / float(1 << k)
             return 0.0, float(np.mean(frac ** 2))
         # residue r of a value v = M*2^k + r: the error is round_shift(v) - v/2^k
-        big = (1 << 20) << k  # an even multiple, so convergent ties see an even quotient half the time
+        big = (1 << 20) << k  # an even multiple, so half-even ties see an even quotient half the time
         v = np.concatenate([big + r, big + (1 << k) + r])
         e = round_shift(v, k, mode) - v / float(1 << k)
         return float(np.mean(e)), float(np.var(e))
-    if mode == "nearest":
+    if mode == "add-half":
         return 0.0, 1.0 / 12.0
-    if mode == "convergent":
+    if mode == "half-even":
         return 0.0, 1.0 / 12.0
-    if mode == "floor":
+    if mode == "truncate":
         return -0.5, 1.0 / 12.0
-    if mode == "zero":
+    if mode == "toward-zero":
         return 0.0, 1.0 / 3.0
     raise ValueError(f"unknown rounding mode '{mode}'")
 
@@ -153,7 +153,7 @@ class NoiseAnalysis:
 
         ``2 sum_j sigma_j^2 |G_j(f)|^2 / fs`` relative to 0.5 (the power of a
         full-scale sine); integrated from 0 to fs/2 it gives the output variance.
-        The DC offset of ``floor`` rounding (``mean``) is not part of it.
+        The DC offset of ``truncate`` rounding (``mean``) is not part of it.
         """
         f = np.asarray(freqs_hz, dtype=np.float64)
         psd = np.zeros(f.shape)
@@ -213,7 +213,7 @@ def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
     sources = []
     var = mean = 0.0
     corr = np.zeros(n)
-    node_imps = node_impulses(models, n) if ar.rounding == "zero" else None
+    node_imps = node_impulses(models, n) if ar.rounding == "toward-zero" else None
     for m in models:
         if m.k <= 0:
             continue
@@ -221,7 +221,7 @@ def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
         g = noise_impulse(models, m.index, n)
         pg = float(np.dot(g, g))
         dc = float(np.sum(g))
-        if ar.rounding == "zero":
+        if ar.rounding == "toward-zero":
             # e = -sign(v) u: split into a white part and a part proportional to the value v
             # (Bussgang), which reaches the output along the signal's own path
             eu = 0.5 * (1.0 - 2.0 ** -m.k)

@@ -26,7 +26,7 @@ TargetDirs = Annotated[
 Data = Annotated[Optional[str], typer.Option("--data", metavar="Qm.n", help="Data word, Qm.n (sign bit counted in m; Qn = Q1.n).")]
 Coef = Annotated[Optional[str], typer.Option("--coef", metavar="Qm.n", help="Coefficient word, Qm.n (sign bit counted in m).")]
 Acc = Annotated[Optional[int], typer.Option("--acc", metavar="BITS", help="Accumulator width in bits.")]
-Rounding = Annotated[Optional[str], typer.Option("--rounding", metavar="MODE", help="nearest, floor, convergent or zero.")]
+Rounding = Annotated[Optional[str], typer.Option("--rounding", metavar="MODE", help="add-half|truncate|half-even|toward-zero")]
 Overflow = Annotated[Optional[str], typer.Option("--overflow", metavar="MODE", help="saturate or wrap.")]
 Structure = Annotated[Optional[str], typer.Option("--structure", metavar="NAME", help="df1, tdf2 or df1ef (DF1 with error feedback).")]
 Scaling = Annotated[Optional[str], typer.Option("--scaling", metavar="NORM", help="Section scaling norm: none, l1, l2 or linf.")]

@@ -1,7 +1,7 @@
 """``coefc sweep FILE``: word-length ranges in, a trade-off table (and plot) out.
 
 Exit codes: 0 when at least one configuration passes the budget (or, with
-``--minimise``, every channel found passing widths), 1 when none does, 2 bad input.
+``--fewest-bits``, every channel found passing widths), 1 when none does, 2 bad input.
 """
 
 from __future__ import annotations
@@ -33,8 +33,8 @@ def sweep(
     overflow: options.Overflow = None,
     scaling: options.Scaling = None,
     channel: options.Channel = None,
-    minimise: Annotated[bool, typer.Option("--minimise", help="Find the smallest passing widths per channel by a monotone search.")] = False,
-    per_op: Annotated[bool, typer.Option("--per-op", help="With --minimise: also the smallest coefficient width of each section, FIR and gain.")] = False,
+    fewest: Annotated[bool, typer.Option("--fewest-bits", help="Find the smallest passing widths per channel by a monotone search.")] = False,
+    per_op: Annotated[bool, typer.Option("--per-op", help="With --fewest-bits: also the smallest coefficient width of each section, FIR and gain.")] = False,
     measure_noise: Annotated[bool, typer.Option("--measure-noise", help="Also measure noise with the bit-true engine (slower).")] = False,
     json_out: options.JsonOut = None,
     csv_out: Annotated[Optional[str], typer.Option("--csv", metavar="PATH", help="Write one CSV row per configuration and channel to PATH ('-' for stdout).")] = None,
@@ -54,11 +54,11 @@ def sweep(
     from ..api import load
     from ..budget import apply_overrides
     from ..errors import CoefcError
-    from ..opwidths import minimise_op_widths
-    from ..sweep import Sweeper, minimise as run_minimise, parse_names, parse_widths, plot
+    from ..opwidths import fewest_op_widths
+    from ..sweep import Sweeper, fewest_bits as run_fewest_bits, parse_names, parse_widths, plot
 
-    if per_op and not minimise:
-        raise CoefcError("--per-op refines --minimise; give both")
+    if per_op and not fewest:
+        raise CoefcError("--per-op refines --fewest-bits; give both")
     if plot_out is not None and plot_out.suffix.lower() not in (".png", ".svg"):
         raise CoefcError(f"{plot_out}: the plot is written as .png or .svg; choose one of those suffixes")
     if plot_out is not None:
@@ -91,15 +91,15 @@ def sweep(
         raise CoefcError(f"{file}: no configuration to evaluate ({'; '.join(skipped) or 'empty ranges'})")
 
     with _progress() as tick:
-        if minimise:
+        if fewest:
             found = []
             groups = sorted({(c.target, c.structure, c.acc_bits) for c in configs})
             total = len(groups) * len(design.channels)
             for gi, (t, st, a) in enumerate(groups):
                 for ci, ch in enumerate(design.channels):
-                    m = run_minimise(sweeper, ci, ch.name, t, st, a, datas, coefs)
+                    m = run_fewest_bits(sweeper, ci, ch.name, t, st, a, datas, coefs)
                     if per_op and m.data_bits is not None:
-                        m.per_op.extend(minimise_op_widths(sweeper, ci, t, st, a, m.data_bits,
+                        m.per_op.extend(fewest_op_widths(sweeper, ci, t, st, a, m.data_bits,
                                                            [c for c in coefs if c <= m.coef_bits]))
                     found.append(m)
                     tick(gi * len(design.channels) + ci + 1, total)
@@ -107,10 +107,10 @@ def sweep(
         else:
             result = sweeper.run(configs, skipped, progress=tick)
 
-    if minimise:
+    if fewest:
         if json_out != "-":
-            _print_minimise(found)
-        options.write_json({"source": desc.source, "minimise": [m.to_json() for m in found]}, json_out)
+            _print_fewest_bits(found)
+        options.write_json({"source": desc.source, "fewest_bits": [m.to_json() for m in found]}, json_out)
         ok = all(m.data_bits is not None or m.acc_bits is None for m in found)
     else:
         if json_out != "-" and csv_out != "-":
@@ -210,11 +210,11 @@ def _print_table(result) -> None:
         print(f"  channel {name}: " + ("no passing configuration" if r is None else r.config.label()))
 
 
-def _print_minimise(found) -> None:
+def _print_fewest_bits(found) -> None:
     for m in found:
         head = f"channel {m.channel} on {m.target} {m.structure}" + (f" acc {m.acc_bits}" if m.acc_bits else "")
         if m.acc_bits is None and m.data_bits is None:
-            print(f"{head}: float32 target, no word lengths to minimise")
+            print(f"{head}: float32 target, no word lengths to choose")
             continue
         if m.data_bits is None:
             print(f"{head}: no passing widths in the ranges given ({m.evaluated} of {m.grid} evaluated)")

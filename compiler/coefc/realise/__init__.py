@@ -159,13 +159,13 @@ def _l1_worst_peak(program: ChannelProgram) -> float:
     """Largest value any section or FIR output can reach for inputs bounded by 1.
 
     The l1 norm of the realised (quantised) response from the input to the node,
-    plus each rounding's largest error (q/2 when rounding to nearest, q otherwise)
+    plus each rounding's largest error (q/2 for add-half and half-even, q otherwise)
     times the l1 norm of its path to the node (Jackson's l1 argument, with the
     roundoff of earlier ops bounded instead of neglected).
     """
     ar = program.arithmetic
     q = ar.data.lsb
-    eps = q / 2 if ar.rounding in ("nearest", "convergent") else q
+    eps = q / 2 if ar.rounding in ("add-half", "half-even") else q
     chain = []
     for blk in as_float_blocks(program):
         if isinstance(blk, SosBlock):
@@ -313,7 +313,7 @@ def _build(design, arithmetic, pre_gain, delay, chain, final_gain, notes) -> Cha
             b, a = op
             ints, s, sat = coefficients.fit_group([*b, a[1], a[2]], fmt, arithmetic.rounding, min_shift=0)
             if sat:
-                notes.append(f"section {n_sec}: coefficients do not fit {fmt} even with a post-shift of {s}; "
+                notes.append(f"section {n_sec}: coefficients do not fit {fmt} even with a coefficient shift of {s}; "
                              "saturated (the response will be wrong): use a wider coefficient word")
             sec = SectionOp(b=tuple(ints[:3]), a=tuple(ints[3:]), shift=s, structure=arithmetic.structure)
             r = pairing.pole_radius([1.0, sec.a[0] * 2.0 ** (s - fmt.frac_bits),

@@ -1,6 +1,6 @@
 """Fitting real coefficients to the coefficient word: reals in, integers and shifts out.
 
-A group of coefficients that share one post-shift ``s`` (a section's five
+A group of coefficients that share one coefficient shift ``s`` (a section's five
 coefficients, a FIR's taps, a gain) is stored as integers ``C`` with physical value
 ``C * 2^(s - Fc)``; the op then rounds its accumulator by ``k = Fc - s`` bits.
 
@@ -13,7 +13,7 @@ coefficients, a FIR's taps, a gain) is stored as integers ``C`` with physical va
   shift is also raised until ``sum|C_k| * 2^(Wd-1)`` fits the accumulator, so a
   full-scale input cannot wrap it.
 
-Quantisation rounds by the arithmetic's rounding mode (nearest by default).
+Quantisation rounds by the arithmetic's rounding mode (add-half by default).
 
 References
 ----------

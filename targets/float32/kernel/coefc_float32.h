@@ -52,7 +52,7 @@ typedef union {
 
 typedef struct {
     uint8_t kind;      /* COEFC_FLOAT32_OP_* */
-    uint8_t rshift;    /* always 0: float32 has no post-shift */
+    uint8_t rshift;    /* always 0: float32 has no coefficient shift */
     uint32_t count;    /* taps (FIR), samples (delay), 1 otherwise */
     uint32_t coef_at;  /* index of the first coefficient in the channel's array */
     uint32_t state_at; /* index of the first state word */

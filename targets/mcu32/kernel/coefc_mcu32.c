@@ -52,19 +52,19 @@ static sacc_t round_shift(sacc_t v, unsigned k, unsigned mode)
     }
     if (k >= ACC_CONTAINER_BITS) {
         /* |v| <= 2^(k-1): every mode gives 0, except floor of a negative value */
-        return (mode == COEFC_MCU32_ROUND_FLOOR && v < 0) ? -1 : 0;
+        return (mode == COEFC_MCU32_ROUND_TRUNCATE && v < 0) ? -1 : 0;
     }
     q = floor_shift(v, k);
     r = (uacc_t)v & (((uacc_t)1 << k) - 1u); /* v - q * 2^k */
     half = (uacc_t)1 << (k - 1u);
     switch (mode) {
-    case COEFC_MCU32_ROUND_FLOOR:
+    case COEFC_MCU32_ROUND_TRUNCATE:
         return q;
-    case COEFC_MCU32_ROUND_CONVERGENT:
+    case COEFC_MCU32_ROUND_HALF_EVEN:
         return q + ((r > half || (r == half && ((uacc_t)q & 1u))) ? 1 : 0);
-    case COEFC_MCU32_ROUND_ZERO:
+    case COEFC_MCU32_ROUND_TOWARD_ZERO:
         return q + ((v < 0 && r != 0u) ? 1 : 0);
-    default: /* COEFC_MCU32_ROUND_NEAREST */
+    default: /* COEFC_MCU32_ROUND_ADD_HALF */
         return q + (r >= half ? 1 : 0);
     }
 }

@@ -49,10 +49,10 @@ typedef int64_t coefc_mcu32_state_t;
 #define COEFC_MCU32_OP_FIR_SYM 7
 
 /* Rounding of acc / 2^rshift. */
-#define COEFC_MCU32_ROUND_NEAREST 0    /* ties towards +infinity */
-#define COEFC_MCU32_ROUND_FLOOR 1      /* towards -infinity */
-#define COEFC_MCU32_ROUND_CONVERGENT 2 /* ties to even */
-#define COEFC_MCU32_ROUND_ZERO 3       /* towards zero */
+#define COEFC_MCU32_ROUND_ADD_HALF 0    /* ties towards +infinity */
+#define COEFC_MCU32_ROUND_TRUNCATE 1      /* towards -infinity */
+#define COEFC_MCU32_ROUND_HALF_EVEN 2 /* ties to even */
+#define COEFC_MCU32_ROUND_TOWARD_ZERO 3       /* towards zero */
 
 /* Bringing a result into the data word. */
 #define COEFC_MCU32_OVERFLOW_SATURATE 0
@@ -60,7 +60,7 @@ typedef int64_t coefc_mcu32_state_t;
 
 typedef struct {
     uint8_t kind;      /* COEFC_MCU32_OP_* */
-    uint8_t rshift;    /* right shift of the accumulator: Fc - post-shift */
+    uint8_t rshift;    /* right shift of the accumulator: Fc - coefficient shift */
     uint32_t count;    /* taps (FIR, also the symmetric FIR), samples (delay), 1 otherwise */
     uint32_t coef_at;  /* index of the first coefficient in the channel's array */
     uint32_t state_at; /* index of the first state word */
