@@ -182,8 +182,8 @@ def golden_input(n: int, width: int) -> list[int]:
     4. full-scale steps alternating between the largest and the smallest word
        every 16 samples, to drive saturation (or wrapping).
 
-    >>> golden_input(8, 16)[:3]
-    [32767, 0, 16383]
+    >>> golden_input(8, 16)[:3]    # the impulse, silence, the chirp's first (lowest) point
+    [32767, 0, -16383]
     """
     hi, lo = (1 << (width - 1)) - 1, -(1 << (width - 1))
     q = max(1, n // 4)

@@ -74,8 +74,8 @@ def dbfs(power: float | None) -> float | None:
 
     >>> round(dbfs(0.5), 6)
     0.0
-    >>> round(dbfs((2.0 ** -15) ** 2 / 12), 2)   # one rounding of a 16-bit word
-    -101.08
+    >>> round(dbfs((2.0 ** -15) ** 2 / 12), 2)   # one rounding of a 16-bit word: q^2/12 re 1/2
+    -98.09
     """
     if power is None or not math.isfinite(power):
         return None
