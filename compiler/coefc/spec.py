@@ -388,6 +388,8 @@ def parse_description(raw_bytes: bytes, source: str = "<description>") -> Descri
         elif "end of document" in msg:
             line = text.count("\n") + 1
         raise DescriptionError(source, f"TOML syntax error: {msg}; fix the TOML syntax", line=line) from None
+    except RecursionError:
+        raise DescriptionError(source, "arrays or tables nested too deeply to read; flatten the TOML") from None
     return _validate(doc, source, hashlib.sha256(raw_bytes).hexdigest())
 
 

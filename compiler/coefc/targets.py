@@ -109,6 +109,8 @@ def load_target(folder: Path) -> Target:
         raise TargetError(f"{at}: {msg}; fix the TOML syntax") from None
     except (OSError, UnicodeDecodeError) as e:
         raise TargetError(f"{path}: cannot read ({e})") from None
+    except RecursionError:
+        raise TargetError(f"{path}: arrays or tables nested too deeply to read; flatten the TOML") from None
     ar = raw.get("arithmetic")
     if not isinstance(ar, dict):
         raise TargetError(f"{path}: missing table [arithmetic]; see the README section on writing a target")

@@ -1,0 +1,107 @@
+"""A merge gate runs coefc as root on files anyone can change: outputs never replace
+special files, interrupts clean up, and exit 1 only ever means "over budget"
+(bad input 2, a bug of coefc 3).  Facts of the trade: POSIX file types and the
+128 + signal-number exit status of a process ended by a signal (common practice,
+no source)."""
+
+from __future__ import annotations
+
+import json
+import os
+import signal
+import stat
+import subprocess
+import sys
+import threading
+import time
+
+import pytest
+
+from conftest import FILTERS
+
+MAIN = "from coefc.cli import main; main()"
+EXAMPLE = FILTERS / "three_way_monitor.toml"
+
+
+def coefc(*args, **kw):
+    return subprocess.run([sys.executable, "-c", MAIN, *map(str, args)], capture_output=True, text=True,
+                          timeout=300, **kw)
+
+
+def test_json_through_a_symlink_lands_in_its_target_and_keeps_the_link(tmp_path):
+    real = tmp_path / "real.json"
+    real.write_text("old")
+    link = tmp_path / "link.json"
+    link.symlink_to(real)
+    r = coefc("check", EXAMPLE, "--channel", "woofer", "--json", link)
+    assert r.returncode == 0, r.stderr
+    assert link.is_symlink() and os.readlink(link) == str(real)
+    assert json.loads(real.read_text())["ok"] is True
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["link.json", "real.json"]  # no temporary left
+
+
+def test_json_to_a_fifo_is_streamed_not_replaced(tmp_path):
+    fifo = tmp_path / "pipe"
+    os.mkfifo(fifo)
+    got = []
+    def read():
+        with open(fifo, "rb") as f:
+            got.append(f.read())
+
+    reader = threading.Thread(target=read)
+    reader.start()
+    r = coefc("check", EXAMPLE, "--channel", "woofer", "--json", fifo)
+    reader.join(60)
+    assert r.returncode == 0, r.stderr
+    assert stat.S_ISFIFO(os.stat(fifo).st_mode)
+    assert json.loads(got[0])["ok"] is True
+
+
+def test_a_character_device_is_written_to_and_kept(tmp_path):
+    node = tmp_path / "null.h"
+    try:  # our own copy of /dev/null's node (char 1,3), so the real one is never at risk
+        os.mknod(node, stat.S_IFCHR | 0o666, os.makedev(1, 3))
+    except (PermissionError, OSError) as e:
+        pytest.skip(f"cannot create a device node here ({e})")
+    for args in (("check", EXAMPLE, "--channel", "woofer", "--json", node, "--junit", node),
+                 ("build", EXAMPLE, "-o", node)):
+        r = coefc(*args)
+        assert r.returncode == 0, r.stderr
+        assert stat.S_ISCHR(os.stat(node).st_mode), args
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["null.h"]
+
+
+def test_sigterm_unwinds_and_leaves_no_temporary_file(tmp_path):
+    out = tmp_path / "sweep.csv"
+    p = subprocess.Popen([sys.executable, "-c", MAIN, "sweep", str(EXAMPLE), "--data", "12:32:1",
+                          "--coef", "12:32:1", "--csv", str(out)], stdout=subprocess.PIPE,
+                         stderr=subprocess.PIPE, text=True)
+    time.sleep(4)
+    p.send_signal(signal.SIGTERM)
+    _, err = p.communicate(timeout=60)
+    assert p.returncode == 143, err
+    assert "terminated" in err and "Traceback" not in err
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_deeply_nested_toml_is_bad_input(tmp_path):
+    f = tmp_path / "deep.toml"
+    f.write_text('name = "x"\nsample_rate_hz = 48000\nz = ' + "[" * 5000 + "]" * 5000 + "\n")
+    r = coefc("check", f)
+    assert r.returncode == 2 and r.stderr.count("\n") == 1 and "nested too deeply" in r.stderr
+
+
+def test_an_internal_error_is_exit_3_with_one_line(monkeypatch, capsys):
+    import coefc.api
+    from coefc.cli import main
+
+    def broken(self, *a, **k):
+        raise ZeroDivisionError("simulated defect")
+
+    monkeypatch.setattr(coefc.api.Loaded, "design", broken)
+    monkeypatch.setattr(sys, "argv", ["coefc", "check", str(EXAMPLE)])
+    with pytest.raises(SystemExit) as e:
+        main()
+    assert e.value.code == 3
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "internal error" in err and "ZeroDivisionError" in err
