@@ -7,6 +7,7 @@ no source)."""
 from __future__ import annotations
 
 import json
+import shutil
 import os
 import signal
 import stat
@@ -16,6 +17,8 @@ import threading
 import time
 
 import pytest
+
+from pathlib import Path
 
 from conftest import FILTERS
 
@@ -105,3 +108,60 @@ def test_an_internal_error_is_exit_3_with_one_line(monkeypatch, capsys):
     assert e.value.code == 3
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and "internal error" in err and "ZeroDivisionError" in err
+
+
+@pytest.mark.skipif(shutil.which("g++") is None or shutil.which("gcc") is None, reason="g++ is not installed")
+def test_cpp_firmware_links_the_c_kernel(tmp_path):
+    """Kernel headers carry extern "C" guards: C++ firmware compiled with g++ links
+    the C kernel compiled with gcc and passes the golden vectors."""
+    r = coefc("build", EXAMPLE, "--kernel", "-o", tmp_path / "m.h")
+    assert r.returncode == 0, r.stderr
+    (tmp_path / "main.cpp").write_text(r"""
+#include <cstdio>
+#include "m.h"
+int main() {
+    static coefc_mcu32_state_t state[BENCH_MONITOR_MAX_STATE_WORDS];
+    for (unsigned c = 0; c < BENCH_MONITOR_N_CHANNELS; ++c)
+        if (coefc_mcu32_selftest(bench_monitor_channels[c], state, bench_monitor_golden_in,
+                                 bench_monitor_golden_out[c], BENCH_MONITOR_GOLDEN_LEN) >= 0) return 1;
+    std::printf("ok\n");
+    return 0;
+}
+""")
+    for cmd in (["gcc", "-std=c99", "-c", "coefc_mcu32.c", "-o", "k.o"],
+                ["g++", "-std=c++11", "-Wall", "-Wextra", "-Werror", "-I.", "main.cpp", "k.o", "-o", "fw"],
+                ["./fw"]):
+        p = subprocess.run(cmd, cwd=tmp_path, capture_output=True, text=True, timeout=120)
+        assert p.returncode == 0, " ".join(cmd) + "\n" + p.stdout + p.stderr
+    assert p.stdout.strip() == "ok"
+
+
+def test_output_into_the_target_folder_cannot_replace_its_files(tmp_path):
+    board = tmp_path / "targets" / "board"
+    shutil.copytree(Path(__file__).resolve().parents[1] / "targets" / "mcu32", board)
+    before = (board / "kernel" / "coefc_mcu32.h").read_bytes()
+    r = coefc("build", EXAMPLE, "--target-dir", tmp_path / "targets", "--target", "board", "--kernel",
+              "-o", board / "kernel" / "filters.h")
+    assert r.returncode == 2 and "input" in r.stderr
+    assert (board / "kernel" / "coefc_mcu32.h").read_bytes() == before
+    assert not (board / "kernel" / "filters.h").exists()
+
+
+@pytest.mark.parametrize("content,fragment", [
+    (b"\xef\xbb\xbf1\n2\n", "byte-order mark"),
+    ("\u0661\u0662\n".encode(), "plain ASCII"),           # Arabic-Indic digits: int() would take them
+    (b"1_000\n", "not an integer"),                        # Python's digit separators: not a sample
+    (b"\x00\x01\x02\n", "plain ASCII"),
+])
+def test_text_samples_are_plain_ascii_integers(tmp_path, content, fragment):
+    (tmp_path / "in.txt").write_bytes(content)
+    r = coefc("run", EXAMPLE, tmp_path / "in.txt", tmp_path / "out.txt")
+    assert r.returncode == 2 and r.stderr.count("\n") == 1 and fragment in r.stderr, r.stderr
+    assert not (tmp_path / "out.txt").exists()
+
+
+@pytest.mark.parametrize("value", ["1e39", "nan", "inf", "0x10"])
+def test_float32_text_samples_are_finite_and_in_range(tmp_path, value):
+    (tmp_path / "in.txt").write_text(f"0.5\n{value}\n")
+    r = coefc("run", EXAMPLE, tmp_path / "in.txt", tmp_path / "out.txt", "--target", "float32")
+    assert r.returncode == 2 and r.stderr.count("\n") == 1 and "in.txt:2" in r.stderr, r.stderr
