@@ -165,3 +165,17 @@ def test_float32_text_samples_are_finite_and_in_range(tmp_path, value):
     (tmp_path / "in.txt").write_text(f"0.5\n{value}\n")
     r = coefc("run", EXAMPLE, tmp_path / "in.txt", tmp_path / "out.txt", "--target", "float32")
     assert r.returncode == 2 and r.stderr.count("\n") == 1 and "in.txt:2" in r.stderr, r.stderr
+
+
+def test_description_limits_refuse_before_the_work(tmp_path):
+    """Channels and file size are bounded before any design (the per-channel totals
+    are in tests/bad/limit_*.toml)."""
+    many = tmp_path / "many.toml"
+    many.write_text('name = "x"\nsample_rate_hz = 48000\n' + "".join(
+        f'[[channel]]\nname = "c{i}"\nstages = [{{ kind = "gain", db = 0 }}]\n' for i in range(65)))
+    r = coefc("design", many)
+    assert r.returncode == 2 and "at most 64" in r.stderr
+    big = tmp_path / "big.toml"
+    big.write_text('name = "x"\nsample_rate_hz = 48000\n' + "# padding\n" * 120_000)
+    r = coefc("design", big)
+    assert r.returncode == 2 and "at most 1024 KiB" in r.stderr

@@ -27,9 +27,9 @@ OverflowBudget = Annotated[Optional[str], typer.Option(
     "--overflow-budget", metavar="none|allow", help="Budget override: 'none' (no overflow under worst-case input) or 'allow'.")]
 JUnit = Annotated[Optional[str], typer.Option("--junit", metavar="PATH", help="Also write a JUnit XML report to PATH.")]
 NoiseSamples = Annotated[int, typer.Option(
-    "--noise-samples", metavar="N", min=1024, help="Length of the measured-noise stimulus in samples.")]
+    "--noise-samples", metavar="N", min=1024, max=1 << 22, help="Length of the measured-noise stimulus in samples (1024 to 4194304).")]
 SearchLimit = Annotated[int, typer.Option(
-    "--search-limit", metavar="STATES", min=1, help="Largest number of states searched exhaustively per section for limit cycles.")]
+    "--search-limit", metavar="STATES", min=1, max=1 << 28, help="Largest number of states searched exhaustively per section for limit cycles (at most 2^28).")]
 
 
 @app.command()
