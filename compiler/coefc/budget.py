@@ -197,7 +197,7 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
     why["stable"] = (f"largest realised pole radius {r.max_pole_radius:.6f} "
                      + ("< 1" if ok else ">= 1: the quantised filter is unstable; use wider coefficients"))
 
-    if ov.l1_worst is not None:  # the promise of l1 scaling, checked whatever the budget says
+    if getattr(ov, "l1_worst", None) is not None:  # the promise of l1 scaling, checked whatever the budget says
         checks.append(_l1_check(ov, why))
 
     if budget.passband_deviation_db is not None:
@@ -321,7 +321,7 @@ def _l1_check(ov, why: dict) -> Check:
     ratio = ov.l1_worst / ov.l1_limit
     events = ov.internal_events_full_scale
     ok = ratio <= 1.0 and not events
-    text = (f"worst case of any internal node for inputs within full scale: {ratio:.9f} of the largest data word "
+    text = (f"worst case of any internal node for inputs within full scale: {ratio:.12g} of the largest data word "
             f"at {ov.l1_worst_node} (realised l1 gain plus roundoff)")
     if events is not None:
         text += f"; {events} events at internal nodes under full-scale worst-case inputs ({ov.runs} runs)"

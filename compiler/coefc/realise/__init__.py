@@ -331,7 +331,7 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
     for kind, op in chain0:
         l1f = float(np.sum(np.abs(scaling.apply_op(kind, op, h))))
         c0 = target / l1f if l1f > 0 else 1.0
-        c, first = c0, None
+        c, first, best, fill = c0, None, None, 0
         n_sec = sum(isinstance(o, SectionOp) for o in ops) + 1
         while True:
             trial_notes: list[str] = []
@@ -346,7 +346,17 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
             bound = float(np.sum(np.abs(hn))) + roundoff
             state = (rop, g, trial_notes, hn, pn, bound)
             first = first or state
-            if bound <= maxv or not stable:
+            if not stable:
+                break
+            if bound <= maxv:
+                if fill < 3 and bound < maxv * (1.0 - 1e-6) and c < c0:  # lowered too far: fill up again
+                    fill += 1
+                    best = state
+                    c = min(c0, c * maxv / bound * (1.0 - 1e-9))
+                    continue
+                break
+            if best is not None:  # filling up overshot: keep the last fit
+                state = best
                 break
             ints = rop.b if kind == "sos" else rop.taps
             lower = c * maxv / bound
