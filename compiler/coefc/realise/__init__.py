@@ -230,10 +230,23 @@ def realise_channel(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelPro
     factors = scaling.scale_factors(chain0, arithmetic.scaling, _target(arithmetic))
     ops, gain = [], 1.0
     for (kind, op), c in zip(chain0, factors):
+        c = _at_least_one_lsb(kind, op, c, arithmetic)
         rop, g = _fixed_op(kind, op, c, arithmetic, notes, sum(isinstance(o, SectionOp) for o in ops) + 1)
         ops.append(rop)
         gain *= g
     return _finish(design, arithmetic, delay, ops, final0 / gain, notes)
+
+
+def _at_least_one_lsb(kind, op, c: float, arithmetic: Arithmetic) -> float:
+    """*c*, raised where a scaled section numerator would round to nothing (largest value 1 LSB).
+
+    The node then sits above its norm target (the overflow analysis and, under l1,
+    the l1_scaling check say by how much); a numerator of zeros would silence the channel.
+    """
+    if kind != "sos":
+        return c
+    top = float(np.max(np.abs(op[0]))) * c * 2.0 ** arithmetic.coef.frac_bits
+    return c / top if 0.0 < top < 1.0 else c
 
 
 def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: int):
@@ -331,6 +344,7 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
     for kind, op in chain0:
         l1f = float(np.sum(np.abs(scaling.apply_op(kind, op, h))))
         c0 = target / l1f if l1f > 0 else 1.0
+        c0 = _at_least_one_lsb(kind, op, c0, ar)
         c, first, best, fill = c0, None, None, 0
         n_sec = sum(isinstance(o, SectionOp) for o in ops) + 1
         while True:
@@ -363,7 +377,8 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
             if _fixed_op(kind, op, lower, ar, [], n_sec)[0] == rop:  # the same integers: one step down
                 lower *= 1.0 - 1.0 / max(max(abs(v) for v in ints), 2)
             c = lower
-            if c < c0 * 2.0 ** -L1_MAX_LOSS_BITS or roundoff >= maxv:
+            zero = kind == "sos" and not any(_fixed_op(kind, op, c, ar, [], n_sec)[0].b)
+            if c < c0 * 2.0 ** -L1_MAX_LOSS_BITS or roundoff >= maxv or zero:
                 state = first
                 break
         rop, g, trial_notes, h, paths, bound = state
