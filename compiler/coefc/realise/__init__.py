@@ -32,10 +32,16 @@ avoided whenever another order does better on that count.  Then
 every FIR and section output is scaled so that the transfer function from the
 channel input to that output has norm ``1 - 2 LSB`` (:mod:`.scaling`); the scale
 factors are arbitrary reals folded into the numerators (or taps), and the final
-``GainOp`` restores the overall gain.  With ``l1`` the promise is "no overflow for
-any input within full scale", so the target is lowered (at most three times) until
-the realised worst case -- the l1 norm of the quantised response plus the largest
-roundoff of every earlier rounding along its path -- stays within the data word.  If re-pairing would change the response by
+``GainOp`` restores the overall gain, including the gain each numerator lost in
+rounding (:func:`.coefficients.realised_gain`).  With ``l1`` the promise is "no
+internal overflow for any input within full scale", kept op by op on the realised
+coefficients (:func:`_realise_l1`): each op's scale is chosen on the response through
+the ops already quantised and lowered (by at most ``L1_MAX_LOSS_BITS``) until its
+output's worst case -- the l1 norm of the quantised response plus the largest
+roundoff of every rounding along its path -- fits the data word; where it cannot,
+the ``l1_scaling`` check of :mod:`coefc.budget` fails with the bits missing.  Zeros
+of the float design at z = +-1 stay there exactly (:func:`.coefficients.fit_section`).
+If re-pairing would change the response by
 more than 1e-8 relative (or a numerator has ``b0 == 0``), the designed sections are
 kept in design order, only scaled, and a note says so.
 
@@ -315,9 +321,9 @@ def _l1_length(chain) -> int:
 def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: float, notes: list) -> ChannelProgram:
     """l1 scaling on the realised ops, one op at a time (Jackson's l1 argument, roundoff included).
 
-    For op i the float scale factor puts the l1 norm of the response from the
-    channel input -- through the ops already realised, with their quantised
-    coefficients -- to its output at ``1 - 2 LSB``.  The op is quantised and its
+    For op i the float design's l1 scale factor (output norm ``1 - 2 LSB``) is the
+    starting point, so realisations in different words share their scaling where
+    they can.  The op is quantised and its
     worst case computed: the l1 norm of the realised response plus, for every
     rounding so far (its own included), the rounding's largest error times the l1
     norm of its path to this output.  While that exceeds the largest data word the
@@ -341,9 +347,11 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
     h = unit.copy()
     paths: list[np.ndarray] = []  # roundoff of each earlier rounding, carried to the current node
     ops, gain, worst = [], 1.0, 0.0
-    for kind, op in chain0:
-        l1f = float(np.sum(np.abs(scaling.apply_op(kind, op, h))))
-        c0 = target / l1f if l1f > 0 else 1.0
+    # start from the float design's factors: realisations of one design in different words
+    # then share their scaling wherever the quantised coefficients do not force a lower one
+    # (the per-op width search of coefc.opwidths relies on this correspondence)
+    factors = scaling.scale_factors(chain0, "l1", target, n)
+    for (kind, op), c0 in zip(chain0, factors):
         c0 = _at_least_one_lsb(kind, op, c0, ar)
         c, first, best, fill = c0, None, None, 0
         n_sec = sum(isinstance(o, SectionOp) for o in ops) + 1
