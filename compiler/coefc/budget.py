@@ -8,6 +8,8 @@ reason.  The rules:
 check                       passes when
 ==========================  =====================================================
 ``stable``                  every realised pole lies inside the unit circle (always checked)
+``l1_scaling``              with ``scaling = "l1"`` on fixed point (always checked): every
+                            internal node's realised l1 gain plus roundoff fits the data word
 ``passband_deviation_db``   max |quantised - float| in the passband <= limit
 ``stopband_attenuation_db`` achieved attenuation >= limit (no stopband: not applicable)
 ``output_noise_dbfs``       the larger of the analytic and the measured noise <= limit
@@ -195,6 +197,9 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
     why["stable"] = (f"largest realised pole radius {r.max_pole_radius:.6f} "
                      + ("< 1" if ok else ">= 1: the quantised filter is unstable; use wider coefficients"))
 
+    if getattr(ov, "l1_worst", None) is not None:  # the promise of l1 scaling, checked whatever the budget says
+        checks.append(_l1_check(ov, why))
+
     if budget.passband_deviation_db is not None:
         v, lim = r.passband_deviation_db, budget.passband_deviation_db
         ok = v is not None and v <= lim
@@ -304,6 +309,29 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
                          + (" or use saturation" if metrics.overflow_mode == "wrap" else ""))
         why["overflow"] = "; ".join(parts)
     return checks, why
+
+
+def _l1_check(ov, why: dict) -> Check:
+    """``l1_scaling``: no internal node can overflow for any input within full scale.
+
+    Passes when every internal node's bound (realised l1 gain plus the roundoff that
+    reaches it) is at most the largest data word and the bit-true worst-case runs at
+    full scale saw no event at an internal node.
+    """
+    ratio = ov.l1_worst / ov.l1_limit
+    events = ov.internal_events_full_scale
+    ok = ratio <= 1.0 and not events
+    text = (f"worst case of any internal node for inputs within full scale: {ratio:.12g} of the largest data word "
+            f"at {ov.l1_worst_node} (realised l1 gain plus roundoff)")
+    if events is not None:
+        text += f"; {events} events at internal nodes under full-scale worst-case inputs ({ov.runs} runs)"
+    if ratio > 1.0:
+        text += (f"; the l1 promise does not hold: {math.log2(ratio):.2f} bits of headroom missing "
+                 f"(about {math.ceil(math.log2(ratio)):d} more data bits, or wider coefficients)")
+    elif events:
+        text += "; the l1 promise does not hold"
+    why["l1_scaling"] = text
+    return Check("l1_scaling", ratio, 1.0, ok)
 
 
 def _sections(program) -> list[dict]:
