@@ -191,7 +191,8 @@ stages = [ { kind = "fir-highpass", passband_hz = 3000, stopband_hz = 2000, atte
     rep = run_check(d.realise("mcu32"), loaded.description.budget)
     iir, fir = rep.channels
     assert "stopband_hz of the stages" in iir.metrics["stopband_rule"]
-    assert iir.metrics["float_stopband_attenuation_db"] == pytest.approx(60.0, abs=0.05)
-    assert iir.metrics["stopband_attenuation_db"] == pytest.approx(60.0, abs=0.5)
-    assert fir.metrics["float_stopband_attenuation_db"] == pytest.approx(80.0, abs=1.5)
+    # both stages are designed for attenuation_db plus the default 0.5 dB quantisation margin
+    assert iir.metrics["float_stopband_attenuation_db"] == pytest.approx(60.5, abs=0.05)
+    assert iir.metrics["stopband_attenuation_db"] == pytest.approx(60.5, abs=0.5)
+    assert 80.5 <= fir.metrics["float_stopband_attenuation_db"] <= 82.0
     assert all(c.ok for c in iir.checks if c.name == "stopband_attenuation_db")

@@ -302,6 +302,7 @@ _IIR_KEYS = {
     "stopband_hz": _EDGE,
     "ripple_db": _positive,
     "attenuation_db": _positive,
+    "margin_db": _non_negative,
     "freq_hz": _frequency,
     "q": _positive,
     "bandwidth_oct": _positive,
@@ -312,6 +313,7 @@ _FIR_KEYS = {
     "stopband_hz": _EDGE,
     "attenuation_db": _positive,
     "ripple_db": _positive,
+    "margin_db": _non_negative,
     "taps": _positive_int,
 }
 STAGE_KEYS: dict[str, dict] = {

@@ -198,11 +198,25 @@ def design_channel(channel: ChannelSpec, sample_rate_hz: float, source: str) -> 
         results.append((st.index, res))
         summaries.append(StageSummary(index=st.index, kind=st.kind, text=res.text, order=res.order,
                                       sections=res.sections, taps=res.taps,
-                                      latency_samples=res.latency_samples))
+                                      latency_samples=res.latency_samples, requirement=res.requirement))
     warnings = _channel_warnings(blocks, results, float(sample_rate_hz))
     return ChannelDesign(name=channel.name, sample_rate_hz=float(sample_rate_hz), blocks=tuple(blocks),
                          stages=tuple(summaries), warnings=tuple(warnings),
-                         stopbands=required_stopbands(channel, float(sample_rate_hz)))
+                         stopbands=required_stopbands(channel, float(sample_rate_hz)),
+                         edges_hz=stage_frequencies(channel))
+
+
+def stage_frequencies(channel: ChannelSpec) -> tuple[float, ...]:
+    """Every positive frequency the stages name (``cutoff_hz``, ``freq_hz``, ``passband_hz``,
+    ``stopband_hz``, as numbers or band edges), sorted: the frequencies the response grid must cover."""
+    out = set()
+    for st in channel.stages:
+        for key in _FREQ_KEYS:
+            v = st.params.get(key)
+            for x in (v if isinstance(v, (list, tuple)) else [v]):
+                if isinstance(x, (int, float)) and not isinstance(x, bool) and x > 0 and math.isfinite(x):
+                    out.add(float(x))
+    return tuple(sorted(out))
 
 
 def _check_totals(ctx: StageContext, blocks) -> None:
