@@ -259,14 +259,25 @@ def instability(program: ChannelProgram) -> str | None:
     return None
 
 
-def design_peak_gain(design: ChannelDesign, n: int) -> float | None:
-    """``sum |h|`` of the float design's impulse response over *n* samples (its worst-case peak gain)."""
+def design_peak_gain(design: ChannelDesign, n: int = 0) -> float | None:
+    """``sum |h|`` of the float design's impulse response (its worst-case peak gain).
+
+    Summed over at least *n* samples and until the design's slowest pole has decayed
+    (the rule of :func:`coefc.analyse.linear.response_length`).
+    """
     import numpy as np
     from scipy import signal
 
     from ..blocks import DelayBlock, FirBlock, GainBlock, SosBlock
+    from .linear import DECAY, MAX_LENGTH
 
-    h = np.zeros(max(int(n), 1))
+    poles = [abs(p) for blk in design.blocks if isinstance(blk, SosBlock)
+             for row in np.atleast_2d(blk.sos) for p in np.roots(row[3:]) if row[4] or row[5]]
+    r = max(poles, default=0.0)
+    own = int(np.ceil(np.log(DECAY) / np.log(r))) * 2 if 0 < r < 1 else 0
+    own += sum(len(blk.taps) for blk in design.blocks if isinstance(blk, FirBlock))
+    own += sum(blk.samples for blk in design.blocks if isinstance(blk, DelayBlock))
+    h = np.zeros(max(int(n), min(own + 8, MAX_LENGTH), 1))
     h[0] = 1.0
     for blk in design.blocks:
         if isinstance(blk, SosBlock):
