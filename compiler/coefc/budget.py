@@ -289,7 +289,7 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
         if metrics.is_float:
             checks.append(Check("limit_cycles", None, lim, True))
             why["limit_cycles"] = ("not applicable: float32 rounding is relative to the value, so zero-input "
-                                   "decay can only stall near the denormal range (about -759 dBFS); not analysed")
+                                   "decay can only stall near the denormal range (about 1e-38 of full scale); not analysed")
         else:
             st, amp, bound = lc.status, lc.amplitude_lsb, lc.bound_lsb
             if lim == "none":
@@ -361,7 +361,10 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
 
 def _peak_text(peak: float) -> str:
     """A peak level as a fraction of full scale and in dB re full-scale peak (not dBFS: AES17 is RMS)."""
-    return f"{peak:.4g} of full scale ({20 * math.log10(peak):.2f} dB re full-scale peak)"
+    text = f"{peak:.4g}"
+    if text == "1":  # just below full scale: show that it is below
+        text = f"{peak:.9g}"
+    return f"{text} of full scale ({20 * math.log10(peak):.2f} dB re full-scale peak)"
 
 
 def _overflow_level(ov, peak_lsb) -> str:

@@ -24,9 +24,9 @@ MaxNoise = Annotated[Optional[float], typer.Option(
 MaxOffset = Annotated[Optional[float], typer.Option(
     "--max-offset-lsb", metavar="LSB", help="Budget override: largest DC offset of the output error, LSB.")]
 LimitCycles = Annotated[Optional[str], typer.Option(
-    "--limit-cycles", metavar="none|N", help="Budget override: 'none' (must be proven) or a largest amplitude in LSB.")]
+    "--limit-cycles", metavar="none|N", help="Budget override: 'none' (must be proven; the default) or a largest amplitude in LSB.")]
 OverflowBudget = Annotated[Optional[str], typer.Option(
-    "--overflow-budget", metavar="none|allow", help="Budget override: 'none' (no overflow under worst-case input) or 'allow'.")]
+    "--overflow-budget", metavar="none|allow", help="Budget override: 'none' (no overflow under worst-case input; the default) or 'allow'.")]
 JUnit = Annotated[Optional[str], typer.Option("--junit", metavar="PATH", help="Also write a JUnit XML report to PATH.")]
 NoiseSamples = Annotated[int, typer.Option(
     "--noise-samples", metavar="N", min=1024, help="Length of the measured-noise stimulus in samples.")]
