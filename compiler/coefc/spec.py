@@ -57,6 +57,7 @@ class Budget:
     output_noise_dbfs: float | None = None
     limit_cycles: str | float | None = None  # "none" or a maximum amplitude in LSB
     overflow: str | None = None  # "none" or "allow"
+    output_offset_lsb: float | None = None  # maximum |DC offset of the output error|, LSB
     extra: Mapping = field(default_factory=lambda: MappingProxyType({}))  # keys added by later checks
     passband: tuple[tuple[float, float], ...] | None = None
     stopband: tuple[tuple[float, float], ...] | None = None
@@ -340,7 +341,7 @@ _FREQ_KEYS = ("cutoff_hz", "passband_hz", "stopband_hz", "freq_hz")
 _TOP_KEYS = ("name", "sample_rate_hz", "implementation", "budget", "channel")
 _IMPL_KEYS = ("target", "structure", "data", "coef", "acc_bits", "rounding", "overflow", "scaling")
 _BUDGET_KEYS = ("passband_deviation_db", "stopband_attenuation_db", "output_noise_dbfs", "limit_cycles",
-                "overflow", "passband", "stopband")
+                "overflow", "passband", "stopband", "output_offset_lsb")
 _CHANNEL_KEYS = ("name", "stages")
 
 
@@ -527,6 +528,12 @@ def _budget(t, source: str, fs: float) -> Budget:
             raise where.at("output_noise_dbfs").fail(
                 f"{_fmt(x)} dBFS is not a noise limit; write a negative level such as -120")
         out["output_noise_dbfs"] = x
+    if "output_offset_lsb" in t:
+        x = _number(t["output_offset_lsb"], where.at("output_offset_lsb"))
+        if x < 0:
+            raise where.at("output_offset_lsb").fail(
+                f"{_fmt(x)} LSB: write the largest DC offset allowed, a non-negative number such as 0.5")
+        out["output_offset_lsb"] = x
     if "limit_cycles" in t:
         v = t["limit_cycles"]
         w = where.at("limit_cycles")

@@ -15,7 +15,11 @@ many overflow (saturation or wrap) events the chip really sees.  Its peak is the
 largest input for which the float design's own output cannot exceed full scale
 (full scale itself when the channel's ||h||_1 <= 1), so that a count above zero
 is an overflow the fixed-point realisation adds; the same runs at full scale are
-reported as well.
+reported as well.  A peak below one LSB quantises to an input of all zeros, which
+can show nothing: it counts as no safe level at all (``input_peak_lsb == 0``).
+
+Peaks are fractions of full scale (or dB re full-scale peak), not AES17 dBFS,
+which is an RMS level.
 
 Under ``l1`` scaling the realisation promises that no internal node (the output
 of every op but the last) overflows for any input within full scale.  The
@@ -72,12 +76,14 @@ class OverflowAnalysis:
     overflow_count: int | None  # events in the worst-case runs at the legal input peak (None: not run)
     runs: int  # worst-case sequences driven
     input_peak: float = 1.0  # peak of those runs, fraction of full scale
-    output_peak_gain: float | None = None  # ||h||_1 from the input to the channel output
+    output_peak_gain: float | None = None  # ||h||_1 from the input to the channel output (realised coefficients)
     overflow_count_full_scale: int | None = None  # the same runs at full scale
     l1_worst: float | None = None  # l1 scaling: largest internal-node bound (signal + roundoff)
     l1_worst_node: str | None = None
     l1_limit: float | None = None  # the largest data word (physical)
     internal_events_full_scale: int | None = None  # events at internal nodes in the full-scale runs
+    input_peak_lsb: int | None = None  # the runs' peak as an integer input word (0: the input is all zeros)
+    design_peak_gain: float | None = None  # ||h||_1 of the float design (set by analyse_channel)
 
 
 def _headroom(fs: float, peak: float) -> float:
@@ -200,6 +206,7 @@ def analyse_overflow(program: ChannelProgram, *, run_engine: bool = True,
     last = max((m.index for m in models if m.kind != "delay"), default=-1)
     runs = 0
     peak = 1.0
+    peak_lsb = None
     if run_engine and not ar.is_float:
         from ..simulate import simulate
 
@@ -207,6 +214,8 @@ def analyse_overflow(program: ChannelProgram, *, run_engine: bool = True,
         margin = roundoff_bound_lsb(models, n, ar.rounding) * ar.data.lsb
         if out_gain and out_gain * (1.0 + margin) > fs_out:
             peak = max(0.0, (fs_out - margin) / out_gain)
+        # the integer peak of the runs: 0 means the test input quantises to all zeros
+        peak_lsb = ar.data.max_int if peak >= 1.0 else int(np.floor(peak * ar.data.max_int))
         count = full = internal = 0
         done = set()
         resp = {(i, name): h for i, name, h, _ in _node_responses(models, imps)}
@@ -237,7 +246,7 @@ def analyse_overflow(program: ChannelProgram, *, run_engine: bool = True,
     elif ar.is_float:
         count = full = 0  # float32 words do not overflow below 3.4e38
     return OverflowAnalysis(tuple(nodes), _finite(hb), _finite(hs), worst.label, count, runs, peak, out_gain, full,
-                            l1w, l1node, l1lim, internal)
+                            l1w, l1node, l1lim, internal, peak_lsb)
 
 
 def _finite(v: float) -> float | None:
