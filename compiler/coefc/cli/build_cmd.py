@@ -55,6 +55,7 @@ def build(
     from ..budget import run_check
     from ..emit import render
     from ..fileio import check_output, write_atomic
+    from ..buildable import validate
     from ..targets import build_info
 
     if output.is_dir():
@@ -66,7 +67,8 @@ def build(
     loaded, real = options.realisation(file, channel=channel, target=target, target_dir=target_dir,
                                        data=data, coef=coef, acc=acc, rounding=rounding,
                                        overflow=overflow, structure=structure, scaling=scaling)
-    build_info(real.target)  # a target that cannot build fails before the (slower) check
+    if validate(real) is None:  # every refusal rule (shared with check) before the (slower) check
+        build_info(real.target)  # a check-only target: names the build table it lacks
     report = run_check(real, loaded.description.budget)
     for c in report.cautions:
         print(f"coefc: {c}", file=sys.stderr)
