@@ -136,7 +136,7 @@ def test_overrides_and_kernel_files(desc, tmp_path):
     ("unknown target", ["probe.toml", "--target", "mcu99", "-o", "x.h"], r"no target 'mcu99'"),
     ("bad override", ["probe.toml", "--data", "Q1.x", "-o", "x.h"], r"'Q1\.x' is not a Q format"),
     ("kernel too narrow", ["probe.toml", "--target", "mcu16", "--data", "Q1.23", "-o", "x.h"],
-     r"handles at most 16"),
+     r"handles: at most 16; narrow it \(--data Q1\.15\)"),
     ("missing folder", ["probe.toml", "-o", "nowhere/x.h"], r"folder 'nowhere' does not exist"),
     ("output is a folder", ["probe.toml", "-o", "."], r"is a folder; give the header's file name"),
     ("output not a header", ["probe.toml", "-o", "x.c"], r"must be a C header ending in \.h"),
