@@ -179,7 +179,7 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
                     fail(f"{what} coefficient {v!r} is not an integer; realise the channel again")
                 v = int(v)
                 if not -(1 << (cbits - 1)) <= v < (1 << (cbits - 1)):
-                    fail(f"{what} coefficient {v} does not fit a {cbits}-bit word as target "
+                    fail(f"{what} coefficient {v} does not fit {'an' if cbits in (8, 11, 18) else 'a'} {cbits}-bit word as target "
                          f"'{target.name}' stores it; give the coefficient word one more integer bit (--coef)")
             out.append(v)
         return tuple(out)
