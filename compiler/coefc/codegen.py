@@ -144,7 +144,7 @@ class CNames:
                (self.golden_in, "the description")]
         out += [(self.macro(m), "the description") for m in self.GLOBAL_MACROS]
         for i, ch in enumerate(self.channels):
-            owner = f"channel '{ch}'"
+            owner = f"channel {i + 1} '{ch}'"
             out += [(self.state_t(i), owner), (self.reset(i), owner), (self.process(i), owner),
                     (self.golden_out(i), owner), (self.check(i), owner)]
             out += [(self.channel_macro(i, m), owner) for m in self.CHANNEL_MACROS]
