@@ -198,3 +198,22 @@ def test_generated_names_that_collide_are_refused():
     CNames("x", ("a", "b")).validate("x.toml")
     with pytest.raises(DescriptionError, match="also uses; rename the channel"):
         CNames("x", ("a", "a")).validate("x.toml")
+
+
+def test_cpp_firmware_links_generated_code(tmp_path):
+    """The generated header carries extern "C" guards: C++ compiled with g++ links
+    the generated C compiled with gcc and its self test passes."""
+    import shutil
+    import subprocess
+
+    if shutil.which("g++") is None or shutil.which("gcc") is None:
+        pytest.skip("g++ is not installed")
+    target = find_target("mcu32")
+    for name, text in generated_files(hand_programs(target.arithmetic, target.structures), "mcu32", "cpp").items():
+        (tmp_path / name).write_text(text)
+    (tmp_path / "main.cpp").write_text('#include "cpp.h"\nint main() { return cpp_selftest(); }\n')
+    for cmd in (["gcc", "-std=c99", "-O2", "-c", "cpp.c", "-o", "cpp.o"],
+                ["g++", "-std=c++11", "-Wall", "-Wextra", "-Werror", "-I.", "main.cpp", "cpp.o", "-o", "fw"],
+                ["./fw"]):
+        p = subprocess.run(cmd, cwd=tmp_path, capture_output=True, text=True, timeout=120)
+        assert p.returncode == 0, " ".join(cmd) + "\n" + p.stdout + p.stderr
