@@ -217,3 +217,22 @@ def test_cpp_firmware_links_generated_code(tmp_path):
                 ["./fw"]):
         p = subprocess.run(cmd, cwd=tmp_path, capture_output=True, text=True, timeout=120)
         assert p.returncode == 0, " ".join(cmd) + "\n" + p.stdout + p.stderr
+
+
+def test_cost_figures_in_check_json_and_text(tmp_path):
+    """check states the cost of each channel; the figures agree with the header's."""
+    import json
+
+    from test_emit_cli import coefc
+
+    path = next(p for p in example_files() if p.stem == "three_way_monitor")
+    r = coefc("check", path, "--json", tmp_path / "r.json")
+    assert r.returncode == 0, r.stderr
+    assert "cost per sample:" in r.stdout
+    chans = {c["name"]: c["metrics"]["cost"] for c in json.loads((tmp_path / "r.json").read_text())["channels"]}
+    real = load(path).design().realise(find_target("mcu32"), Overrides())
+    h = render(real, None, header_name="m.h", vectors=0, generated=True)["m.h"]
+    for name, cost in chans.items():
+        ident = c_identifier(name, "channel", "x").upper()
+        assert f"_{ident}_MULS_PER_SAMPLE {cost['muls_per_sample']}\n" in h
+        assert f"_{ident}_STATE_BYTES {cost['state_bytes']}\n" in h

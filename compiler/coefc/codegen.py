@@ -61,7 +61,7 @@ from .emit import EmitError
 from .errors import DescriptionError
 from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
 
-__all__ = ["CNames", "channel_cost", "render_kernel", "GeneratedCodeError"]
+__all__ = ["CNames", "channel_cost", "cost_of", "render_kernel", "GeneratedCodeError"]
 
 _CTYPE_BITS = {"int8_t": 8, "int16_t": 16, "int32_t": 32, "int64_t": 64, "float": 32}
 #: Irregular block lengths of the self test (the state must carry across blocks of
@@ -223,6 +223,19 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
             state += (op.samples * data_bytes + 4) if op.samples else 0
     return {"muls_per_sample": muls, "adds_per_sample": adds, "coef_bytes": coefs * coef_bytes,
             "state_bytes": state}
+
+
+def cost_of(program: ChannelProgram) -> dict:
+    """:func:`channel_cost` with the word containers of the arithmetic (2 bytes up to
+    16 bits, 4 up to 32, 8 beyond; float32 4), as ``check`` and ``report`` state it."""
+    a = program.arithmetic
+    if a.is_float:
+        return channel_cost(program, 4, 4)
+
+    def size(bits: int) -> int:
+        return 2 if bits <= 16 else 4 if bits <= 32 else 8
+
+    return channel_cost(program, size(a.coef.width), size(a.data.width))
 
 
 def _container(program: ChannelProgram, k: int) -> int:

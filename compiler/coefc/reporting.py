@@ -48,6 +48,10 @@ def render_text(report) -> str:
             arith = f"{a['structure']} data {a['data']} coef {a['coef']} acc {a['acc_bits']} {a['rounding']} {a['overflow']}"
         lines.append(f"channel {ch.name}  [{'PASS' if ch.ok else 'FAIL'}]  {ch.sample_rate_hz:g} Hz, "
                      f"{report.target}: {arith}")
+        cost = (ch.metrics or {}).get("cost") if isinstance(ch.metrics, dict) else None
+        if cost:
+            lines.append(f"  cost per sample: {cost['muls_per_sample']} multiplies, {cost['adds_per_sample']} adds; "
+                         f"coefficients {cost['coef_bytes']} bytes, state {cost['state_bytes']} bytes")
         w = max([len(c.name) for c in ch.checks] + [10])
         for c in ch.checks:
             mark = "ok  " if c.ok else "FAIL"
