@@ -228,7 +228,7 @@ def test_cost_figures_in_check_json_and_text(tmp_path):
     path = next(p for p in example_files() if p.stem == "three_way_monitor")
     r = coefc("check", path, "--json", tmp_path / "r.json")
     assert r.returncode == 0, r.stderr
-    assert "cost per sample:" in r.stdout
+    assert "generated code costs per sample" in r.stdout
     chans = {c["name"]: c["metrics"]["cost"] for c in json.loads((tmp_path / "r.json").read_text())["channels"]}
     real = load(path).design().realise(find_target("mcu32"), Overrides())
     h = render(real, None, header_name="m.h", vectors=0, generated=True)["m.h"]

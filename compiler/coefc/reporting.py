@@ -48,15 +48,16 @@ def render_text(report) -> str:
             arith = f"{a['structure']} data {a['data']} coef {a['coef']} acc {a['acc_bits']} {a['rounding']} {a['overflow']}"
         lines.append(f"channel {ch.name}  [{'PASS' if ch.ok else 'FAIL'}]  {ch.sample_rate_hz:g} Hz, "
                      f"{report.target}: {arith}")
-        cost = (ch.metrics or {}).get("cost") if isinstance(ch.metrics, dict) else None
-        if cost:
-            lines.append(f"  cost per sample: {cost['muls_per_sample']} multiplies, {cost['adds_per_sample']} adds; "
-                         f"coefficients {cost['coef_bytes']} bytes, state {cost['state_bytes']} bytes")
         w = max([len(c.name) for c in ch.checks] + [10])
         for c in ch.checks:
             mark = "ok  " if c.ok else "FAIL"
             lines.append(f"  {mark} {c.name:<{w}} {format_number(c.value):>14}  {_limit(c.name, c.limit):<12} "
                          f"{ch.reasons.get(c.name, '')}")
+        cost = ch.metrics.get("cost") if isinstance(ch.metrics, dict) else None
+        if cost:
+            lines.append(f"{ch.name}: generated code costs per sample {cost['muls_per_sample']} multiplies, "
+                         f"{cost['adds_per_sample']} adds; coefficients {cost['coef_bytes']} bytes, "
+                         f"state {cost['state_bytes']} bytes")
     lines.append(DBFS_NOTE)
     nfail = len(report.failures())
     lines.append(f"{report.source}: {'all checks pass' if report.ok else f'{nfail} check(s) over budget'}")
