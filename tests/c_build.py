@@ -12,6 +12,7 @@ from __future__ import annotations
 import functools
 import shutil
 import subprocess
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -206,3 +207,92 @@ def emit_text(programs, target_name: str, name: str, vectors: int = 256) -> tupl
     real = fake_realisation(programs, target_name, name=name, source=f"{name}.toml")
     files = render(real, None, header_name=f"{name}.h", vectors=vectors)
     return f"{name}.h", name, files[f"{name}.h"]
+
+
+# ---------------------------------------------------------------------------
+# generated code (coefc build --kernel): build and run NAME_selftest()
+# ---------------------------------------------------------------------------
+
+WARNINGS = ["-Wconversion", "-Wshadow"]
+BAREMETAL = Path(__file__).resolve().parent / "baremetal"
+M4_FLAGS = ["-mcpu=cortex-m4", "-mthumb", "-mfloat-abi=hard", "-mfpu=fpv4-sp-d16"]
+
+
+@dataclass(frozen=True)
+class Platform:
+    """A compiler, its flags and how to run what it builds (None: build only)."""
+
+    name: str
+    cc: str
+    flags: tuple[str, ...] = ()
+    runner: tuple[str, ...] | None = ()  # () runs natively
+    needs: tuple[str, ...] = ()  # programs that must be installed
+    baremetal: bool = False
+
+    def missing(self) -> list[str]:
+        return [p for p in (self.cc, *self.needs) if shutil.which(p) is None]
+
+
+#: Where generated code is proven (Debian packages: gcc-arm-linux-gnueabihf,
+#: gcc-s390x-linux-gnu, qemu-user, gcc-arm-none-eabi, libnewlib-arm-none-eabi,
+#: qemu-system-arm).
+CROSS = (
+    Platform("arm-linux-gnueabihf", "arm-linux-gnueabihf-gcc", ("-O2",),
+             ("qemu-arm", "-L", "/usr/arm-linux-gnueabihf"), ("qemu-arm",)),
+    Platform("s390x (big-endian)", "s390x-linux-gnu-gcc", ("-O2",),
+             ("qemu-s390x", "-L", "/usr/s390x-linux-gnu"), ("qemu-s390x",)),
+    Platform("cortex-m4 (mps2-an386)", "arm-none-eabi-gcc", ("-O2", *M4_FLAGS),
+             ("qemu-system-arm", "-M", "mps2-an386", "-nographic", "-semihosting", "-kernel"),
+             ("qemu-system-arm",), baremetal=True),
+    Platform("cortex-m0 (compile only)", "arm-none-eabi-gcc", ("-O2", "-mcpu=cortex-m0", "-mthumb"), None),
+)
+
+
+def generated_files(programs, target_name: str, name: str, vectors: int = 256) -> dict[str, str]:
+    """{file name: text} of generated code (OUT.h, OUT.c) for hand-built programs."""
+    real = fake_realisation(programs, target_name, name=name, source=f"{name}.toml")
+    return render(real, None, header_name=f"{name}.h", vectors=vectors, generated=True)
+
+
+def run_generated(workdir: Path, units: list[tuple[str, dict[str, str]]], platform: Platform, *,
+                  extra: tuple[str, ...] = ()) -> tuple[int, str]:
+    """Build every unit's OUT.c with a main calling each ``<name>_selftest()`` and run it.
+
+    *units* is a list of ``(description C name, files)``.  Returns (exit code,
+    output); 0 means every channel matched bit for bit (a build-only platform
+    returns 0 when everything compiled).
+    """
+    workdir.mkdir(parents=True, exist_ok=True)
+    sources = []
+    decl, calls = [], []
+    for name, files in units:
+        for fname, text in files.items():
+            (workdir / fname).write_text(text)
+            if fname.endswith(".c"):
+                sources.append(str(workdir / fname))
+        decl.append(f'#include "{next(f for f in files if f.endswith(".h"))}"')
+        calls.append(f'    bad += report("{name}", {name}_selftest());')
+    if platform.baremetal:
+        out = "void bm_puts(const char *text);\n#define SAY(s) bm_puts(s)\n"
+        sources += [str(BAREMETAL / "startup.c")]
+        link = ["-nostartfiles", "--specs=nosys.specs", "-T", str(BAREMETAL / "mps2.ld")]
+    else:
+        out = "#include <stdio.h>\n#define SAY(s) fputs(s, stdout)\n"
+        link = []
+    (workdir / "main.c").write_text(
+        out + "\n".join(decl) + "\n"
+        "static int report(const char *name, int bad)\n{\n    SAY(name);\n    SAY(bad ? \": MISMATCH\\n\" : \": ok\\n\");\n"
+        "    return bad;\n}\nint main(void)\n{\n    int bad = 0;\n" + "\n".join(calls) + "\n    return bad != 0;\n}\n")
+    exe = workdir / ("selftest.elf" if platform.baremetal else "selftest")
+    cmd = [platform.cc, *STRICT, *WARNINGS, *platform.flags, *extra, "-I", str(workdir), str(workdir / "main.c"),
+           *sources, *link, "-o", str(exe)]
+    if platform.runner is None:
+        compile_only = [platform.cc, *STRICT, *WARNINGS, *platform.flags, *extra, "-I", str(workdir), "-c",
+                        *sources]
+        r = subprocess.run(compile_only, capture_output=True, text=True, cwd=workdir)
+        return (0 if r.returncode == 0 else 100), " ".join(compile_only) + "\n" + r.stdout + r.stderr
+    r = subprocess.run(cmd, capture_output=True, text=True)
+    if r.returncode != 0:
+        return 100, "compile failed: " + " ".join(cmd) + "\n" + r.stdout + r.stderr
+    r = subprocess.run([*platform.runner, str(exe)], capture_output=True, text=True, timeout=300)
+    return r.returncode, r.stdout + r.stderr

@@ -122,7 +122,7 @@ def test_overrides_and_kernel_files(desc, tmp_path):
     out = tmp_path / "fw" / "probe.h"
     out.parent.mkdir()
     r = coefc("build", desc, "--target", "mcu16", "--structure", "tdf2", "--rounding", "truncate", "--scaling", "l2",
-              "-o", out, "--kernel", "--vectors", "200")
+              "-o", out, "--reference-kernel", "--vectors", "200")
     assert r.returncode == 0, r.stderr
     text = out.read_text()
     assert "COEFC_MCU16_OP_TDF2" in text and "COEFC_MCU16_ROUND_TRUNCATE" in text

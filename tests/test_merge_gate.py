@@ -114,7 +114,7 @@ def test_an_internal_error_is_exit_3_with_one_line(monkeypatch, capsys):
 def test_cpp_firmware_links_the_c_kernel(tmp_path):
     """Kernel headers carry extern "C" guards: C++ firmware compiled with g++ links
     the C kernel compiled with gcc and passes the golden vectors."""
-    r = coefc("build", EXAMPLE, "--kernel", "-o", tmp_path / "m.h")
+    r = coefc("build", EXAMPLE, "--reference-kernel", "-o", tmp_path / "m.h")
     assert r.returncode == 0, r.stderr
     (tmp_path / "main.cpp").write_text(r"""
 #include <cstdio>
@@ -140,7 +140,7 @@ def test_output_into_the_target_folder_cannot_replace_its_files(tmp_path):
     board = tmp_path / "targets" / "board"
     shutil.copytree(Path(__file__).resolve().parents[1] / "targets" / "mcu32", board)
     before = (board / "kernel" / "coefc_mcu32.h").read_bytes()
-    r = coefc("build", EXAMPLE, "--target-dir", tmp_path / "targets", "--target", "board", "--kernel",
+    r = coefc("build", EXAMPLE, "--target-dir", tmp_path / "targets", "--target", "board", "--reference-kernel",
               "-o", board / "kernel" / "filters.h")
     assert r.returncode == 2 and "input" in r.stderr
     assert (board / "kernel" / "coefc_mcu32.h").read_bytes() == before

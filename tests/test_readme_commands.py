@@ -80,8 +80,9 @@ def test_readme_make_snippet_generates_and_verifies_the_header(tmp_path):
     r = subprocess.run(["make", f"COEFC={exe}", "build/generated/bench_monitor.h"], cwd=work,
                        capture_output=True, text=True, timeout=600)
     assert r.returncode == 0, r.stdout + r.stderr
-    assert (work / "build/generated/coefc_mcu32.c").is_file()
-    shutil.copy(work / "build/generated/bench_monitor.h", work / "firmware/bench_monitor.h")
+    assert (work / "build/generated/bench_monitor.c").is_file()
+    for name in ("bench_monitor.h", "bench_monitor.c"):
+        shutil.copy(work / "build/generated" / name, work / "firmware" / name)
     r = subprocess.run(["make", f"COEFC={exe}", "check-headers"], cwd=work, capture_output=True, text=True,
                        timeout=600)
     assert r.returncode == 0, r.stdout + r.stderr

@@ -466,6 +466,7 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
         Bands and search effort; bands default to the budget's ``passband``/``stopband``.
     """
     from .analyse import AnalysisOptions, analyse_channel
+    from .codegen import cost_of
 
     budget, defaults = with_defaults(budget)
     opt = options or AnalysisOptions()
@@ -479,8 +480,10 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
         m = analyse_channel(designs[prog.name], prog, opt)
         checks, why = channel_checks(m, budget)
         checks.sort(key=lambda c: c.ok)  # failing rows first
+        metrics = m.as_dict()
+        metrics["cost"] = cost_of(prog)  # of the generated code (coefc.codegen)
         reports.append(ChannelReport(prog.name, prog.sample_rate_hz, prog.arithmetic.as_dict(), _sections(prog),
-                                     m.as_dict(), checks, why, m))
+                                     metrics, checks, why, m))
     cautions = []
     tolerated = []
     if budget.overflow == "allow":

@@ -166,6 +166,7 @@ def render_report(report, realisation) -> str:
                              for s in lc.get("sections", []) or []],
             "nodes": [{"op": n["op"], "node": n["node"], "l1": format_number(n["l1_gain"]), "linf": format_number(n["linf_gain"]),
                        "headroom": format_number(n["headroom_bits"])} for n in ch.metrics.get("nodes", []) or []],
+            "cost": ch.metrics.get("cost"),
             "notes": list(program.notes),
             "response_svg": response_svg(plt, m, ch.sample_rate_hz, budget.passband_deviation_db),
             "noise_svg": noise_svg(plt, m, ch.sample_rate_hz),

@@ -95,6 +95,11 @@ def render_text(report) -> str:
             mark = "ok  " if c.ok else "FAIL"
             lines.append(f"  {mark} {c.name:<{w}} {_value(c.name, c):>14}  {_limit(c.name, c.limit):<12} "
                          f"{ch.reasons.get(c.name, '')}")
+        cost = ch.metrics.get("cost") if isinstance(ch.metrics, dict) else None
+        if cost:
+            lines.append(f"{ch.name}: generated code costs per sample {cost['muls_per_sample']} multiplies, "
+                         f"{cost['adds_per_sample']} adds; coefficients {cost['coef_bytes']} bytes, "
+                         f"state {cost['state_bytes']} bytes")
     lines.append(DBFS_NOTE)
     lines.append(f"{report.source}: {verdict_line(report)}")
     return "\n".join(lines) + "\n"

@@ -25,7 +25,10 @@ CheckOnly = Annotated[bool, typer.Option(
 Force = Annotated[bool, typer.Option(
     "--force", help="Write the header even when the check fails; its first lines then say so.")]
 Kernel = Annotated[bool, typer.Option(
-    "--kernel", help="Also write the target's reference kernel (.h and .c) beside OUT.h.")]
+    "--kernel", help="Write generated code specialised to each channel: OUT.h and OUT.c (no reference kernel needed).")]
+ReferenceKernel = Annotated[bool, typer.Option(
+    "--reference-kernel", help="Write the operation-table header and copy the target's reference kernel (.h and .c) "
+    "beside it.")]
 
 
 @app.command()
@@ -46,8 +49,9 @@ def build(
     check_only: CheckOnly = False,
     force: Force = False,
     kernel: Kernel = False,
+    reference_kernel: ReferenceKernel = False,
 ) -> None:
-    """Check, then write the C header for the target's reference kernel (exit 0 / 1 / 2).
+    """Check, then write the C header: generated code (--kernel) or the operation table (exit 0 / 1 / 2).
 
     The header is byte-identical for identical inputs: its banner names the coefc
     version and the SHA-256 of the description and of the target.toml, never a time.
@@ -62,6 +66,9 @@ def build(
         raise CoefcError(f"{output}: is a folder; give the header's file name, e.g. -o {output / 'filters.h'}")
     if output.suffix != ".h":
         raise CoefcError(f"{output}: the output must be a C header ending in .h")
+    if kernel and reference_kernel:
+        raise CoefcError("<command line>: --kernel (generated code) and --reference-kernel (operation table and "
+                         "the target's kernel) exclude each other; choose one")
     if not check_only:
         check_output(output, [file], "header")
     loaded, real = options.realisation(file, channel=channel, target=target, target_dir=target_dir,
@@ -83,7 +90,7 @@ def build(
         print(f"coefc: {output}: not written (the check failed; --force writes it anyway)", file=sys.stderr)
         raise typer.Exit(1)
     files = render(real, report, header_name=output.name, vectors=vectors, forced=not report.ok,
-                   with_kernel=kernel)
+                   with_kernel=reference_kernel, generated=kernel)
     folder = output.parent
     paths = {folder / name: text for name, text in files.items()}
     if check_only:

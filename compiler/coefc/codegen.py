@@ -1,0 +1,672 @@
+"""Generated C code specialised to each channel: ``coefc build --kernel``.
+
+A realised channel in, straight-line C out.  Every fact of the arithmetic is
+fixed here, in Python, before a template sees it: the coefficient values (as
+literals), the sign each ``a`` term is accumulated in, the rounding shift, the
+rounding and overflow modes, the C type of every state word and of the
+accumulator, the constants of the rounding and saturation steps, and the code
+lines.  The templates (``templates/kernel.h.j2``, ``templates/kernel.c.j2``)
+only lay the lines out.
+
+Each op runs over the whole block before the next one starts (section-major),
+with its states in local variables, so a compiler keeps them in registers.
+
+The exact arithmetic is the one stated in :mod:`coefc.program`.  It is written
+without any implementation-defined or undefined C operation:
+
+* products are formed exactly (``int32_t`` when ``data + coef`` bits fit 32,
+  otherwise ``int64_t``) and summed in an *unsigned* container ``U`` of
+  ``C = 32`` or ``64`` bits, so the sum is the exact sum modulo ``2^C``; the
+  accumulator's value modulo ``2^acc_bits`` follows because ``acc_bits <= C``;
+* the rounding shift works on the *biased* accumulator
+  ``w = a + 2^(C-1)`` (``a`` the accumulator's signed value), which is never
+  negative: ``w >> k = floor(a / 2^k) + 2^(C-1-k)`` exactly for ``k <= C - 2``,
+  so no signed value is ever shifted; for ``acc_bits = C`` the bias is a single
+  exclusive-or of the sign bit, otherwise ``w = ((u ^ 2^(A-1)) & (2^A - 1)) +
+  2^(C-1) - 2^(A-1)`` sign-extends from ``A`` bits at the same time;
+* the rounding increment comes from the ``k`` low bits, which the bias leaves
+  unchanged (``2^(C-1)`` is a multiple of ``2^k``): add-half adds bit ``k-1``
+  (``floor(a/2^k) + [a mod 2^k >= 2^(k-1)]`` is ``floor((a + 2^(k-1))/2^k)``),
+  half-even and toward-zero compare the remainder with half;
+* saturation compares the biased quotient with biased limits; wrapping keeps the
+  low ``data`` bits and sign-extends them with an exclusive-or and a subtraction;
+* error feedback keeps ``E = a - v 2^k`` as ``w - (v_biased << k)`` modulo
+  ``2^C`` (exact, since ``|E| < 2^k``), and tdf2 keeps ``S1``, ``S2`` modulo
+  ``2^C``: both are only ever added into the accumulator.
+
+float32 channels keep the reference kernel's statement order (one rounding per
+product and per sum, each product stored in its own variable so no compiler
+fuses a multiply-add within a statement; build with ``-ffp-contract=off``).
+
+References
+----------
+The arithmetic facts used (unsigned arithmetic in C is modulo ``2^N``; a
+conversion to an unsigned type is modulo ``2^N``; a conversion of an
+out-of-range value to a signed type and the right shift of a negative value are
+implementation-defined) are those of ISO/IEC 9899:1999, 6.2.5p9, 6.3.1.3 and
+6.5.7p5.  ``floor(floor(a / 2^j) / 2^i) = floor(a / 2^(i+j))`` for integers is
+the nested-floor identity (R. L. Graham, D. E. Knuth, O. Patashnik, *Concrete
+Mathematics*, 2nd ed., 1994, eq. 3.11).  Section-major block processing with
+states in registers is common practice of filter kernels for microcontrollers
+(common practice, no source).
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+from pathlib import Path
+
+from .emit import EmitError
+from .errors import DescriptionError
+from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+
+__all__ = ["CNames", "channel_cost", "cost_of", "render_kernel", "GeneratedCodeError"]
+
+_CTYPE_BITS = {"int8_t": 8, "int16_t": 16, "int32_t": 32, "int64_t": 64, "float": 32}
+#: Irregular block lengths of the self test (the state must carry across blocks of
+#: every length, including 1; odd blocks are processed in place).
+SELFTEST_BLOCKS = (1, 7, 2, 37, 3, 16, 5, 64, 11)
+#: FIRs of at most this many stored taps are written out tap by tap (no loop, no table).
+UNROLL_TAPS = 8
+
+
+class GeneratedCodeError(EmitError):
+    """A channel cannot be written as generated code for this target."""
+
+
+# ---------------------------------------------------------------------------
+# every C identifier of the generated code, in one place
+# ---------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class CNames:
+    """The C identifiers of one generated header and source.
+
+    ``name`` is the description's C name and ``channels`` the channel parts (as
+    made by :func:`coefc.emit.c_identifier`); every identifier and macro of the
+    generated code comes from a method here.
+    """
+
+    name: str
+    channels: tuple[str, ...]  # channel parts (without the description prefix)
+
+    # -- public contract
+    @property
+    def data_t(self) -> str:
+        return f"{self.name}_data_t"
+
+    @property
+    def selftest(self) -> str:
+        return f"{self.name}_selftest"
+
+    def ident(self, i: int) -> str:
+        return f"{self.name}_{self.channels[i]}"
+
+    def state_t(self, i: int) -> str:
+        return f"{self.ident(i)}_state_t"
+
+    def reset(self, i: int) -> str:
+        return f"{self.ident(i)}_reset"
+
+    def process(self, i: int) -> str:
+        return f"{self.ident(i)}_process"
+
+    # -- macros
+    def macro(self, what: str) -> str:
+        return f"{self.name.upper()}_{what}"
+
+    def channel_macro(self, i: int, what: str) -> str:
+        return f"{self.ident(i).upper()}_{what}"
+
+    @property
+    def guard(self) -> str:
+        return self.macro("COEFC_H")
+
+    # -- internal (static) names of the source
+    @property
+    def golden_in(self) -> str:
+        return f"{self.name}_golden_in"
+
+    def golden_out(self, i: int) -> str:
+        return f"{self.ident(i)}_golden_out"
+
+    def check(self, i: int) -> str:
+        return f"{self.ident(i)}_check"
+
+    GLOBAL_MACROS = ("COEFC_H", "DATA_BITS", "DATA_FRAC_BITS", "COEF_BITS", "COEF_FRAC_BITS", "ACC_BITS",
+                     "SAMPLE_RATE_HZ", "OVER_BUDGET", "N_CHANNELS", "GOLDEN_LEN", "GENERATED_CODE")
+    CHANNEL_MACROS = ("MULS_PER_SAMPLE", "ADDS_PER_SAMPLE", "COEF_BYTES", "STATE_BYTES", "SECTIONS")
+
+    def all_identifiers(self) -> list[tuple[str, str]]:
+        """(identifier, owner) of everything the generated code defines."""
+        out = [(self.data_t, "the description"), (self.selftest, "the description"),
+               (self.golden_in, "the description")]
+        out += [(self.macro(m), "the description") for m in self.GLOBAL_MACROS]
+        for i, ch in enumerate(self.channels):
+            owner = f"channel {i + 1} '{ch}'"
+            out += [(self.state_t(i), owner), (self.reset(i), owner), (self.process(i), owner),
+                    (self.golden_out(i), owner), (self.check(i), owner)]
+            out += [(self.channel_macro(i, m), owner) for m in self.CHANNEL_MACROS]
+        return out
+
+    def validate(self, source: str) -> None:
+        """Refuse two generated names that coincide (macros are compared in upper case)."""
+        seen: dict[str, str] = {}
+        for ident, owner in self.all_identifiers():
+            key = ident.upper()
+            if key in seen and seen[key] != owner:
+                raise DescriptionError(source, f"{owner} makes the C name '{ident}', which {seen[key]} also "
+                                       "uses; rename the channel", key="name")
+            seen.setdefault(key, owner)
+
+
+# ---------------------------------------------------------------------------
+# literals
+# ---------------------------------------------------------------------------
+
+def _s(v: int, bits: int) -> str:
+    """A signed literal of at most *bits* bits (an int for 32, int64_t otherwise)."""
+    v = int(v)
+    if -(1 << 31) < v < (1 << 31):
+        return str(v)
+    if v == -(1 << 31):
+        return "(-2147483647 - 1)" if bits == 32 else "(-INT64_C(2147483647) - 1)"
+    if v == -(1 << 63):
+        return "(-INT64_C(9223372036854775807) - 1)"
+    return f"INT64_C({v})"
+
+
+def _u(v: int, bits: int) -> str:
+    """An unsigned literal of the container type."""
+    v = int(v)
+    assert 0 <= v < (1 << bits)
+    text = f"0x{v:X}" if v >= 256 else str(v)
+    return f"UINT{bits}_C({text})"
+
+
+# ---------------------------------------------------------------------------
+# cost figures
+# ---------------------------------------------------------------------------
+
+def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> dict:
+    """Multiplies and adds per sample, coefficient bytes and state bytes of a channel.
+
+    Counts the products and the sums of products of the generated code
+    (rounding and saturation steps not counted): a section 5 multiplies and
+    4 adds (5 with error feedback); an FIR of N taps N multiplies and N - 1 adds,
+    folded ceil(N/2) multiplies and N - 1 adds; a gain one multiply; a delay none.
+    Coefficient bytes count the stored coefficient words (a folded FIR stores
+    ceil(N/2)); state bytes the fields of the generated state structure before
+    padding.
+    """
+    fixed = not program.arithmetic.is_float
+    muls = adds = coefs = 0
+    state = 0
+    for op in program.ops:
+        if isinstance(op, SectionOp):
+            muls += 5
+            adds += 5 if op.structure == "df1ef" else 4
+            coefs += 5
+            state += _section_state_bytes(op, program, data_bytes)
+        elif isinstance(op, FirOp):
+            n = len(op.taps)
+            folded = op.symmetric and fixed
+            muls += (n + 1) // 2 if folded else n
+            adds += n - 1
+            coefs += (n + 1) // 2 if folded else n
+            state += 2 * n * data_bytes + 4
+        elif isinstance(op, GainOp):
+            muls += 1
+            coefs += 1
+        elif isinstance(op, DelayOp):
+            state += (op.samples * data_bytes + 4) if op.samples else 0
+    return {"muls_per_sample": muls, "adds_per_sample": adds, "coef_bytes": coefs * coef_bytes,
+            "state_bytes": state}
+
+
+def cost_of(program: ChannelProgram) -> dict:
+    """:func:`channel_cost` with the word containers of the arithmetic (2 bytes up to
+    16 bits, 4 up to 32, 8 beyond; float32 4), as ``check`` and ``report`` state it."""
+    a = program.arithmetic
+    if a.is_float:
+        return channel_cost(program, 4, 4)
+
+    def size(bits: int) -> int:
+        return 2 if bits <= 16 else 4 if bits <= 32 else 8
+
+    return channel_cost(program, size(a.coef.width), size(a.data.width))
+
+
+def _container(program: ChannelProgram, k: int) -> int:
+    """Bits of the unsigned accumulator container of an op with rounding shift *k*."""
+    a = program.arithmetic
+    return 32 if a.acc_bits <= 32 and k <= 30 else 64
+
+
+def _section_state_bytes(op: SectionOp, program: ChannelProgram, data_bytes: int) -> int:
+    if program.arithmetic.is_float:
+        return 4 * (4 if op.structure in ("df1", "df1ef") else 2)
+    k = program.arithmetic.coef.frac_bits - op.shift
+    cb = _container(program, k) // 8
+    if op.structure == "df1":
+        return 4 * data_bytes
+    if op.structure == "tdf2":
+        return 2 * cb
+    return 4 * data_bytes + cb
+
+
+# ---------------------------------------------------------------------------
+# code of one fixed-point channel
+# ---------------------------------------------------------------------------
+
+class _Fixed:
+    """Builds the C lines of a fixed-point channel."""
+
+    def __init__(self, program: ChannelProgram, data_type: str):
+        a = program.arithmetic
+        self.p = program
+        self.D = data_type
+        self.d = a.data.width
+        self.cb = a.coef.width
+        self.fc = a.coef.frac_bits
+        self.A = a.acc_bits
+        self.rounding = a.rounding
+        self.overflow = a.overflow
+        self.dmax = (1 << (self.d - 1)) - 1
+        self.dmin = -(1 << (self.d - 1))
+
+    # products -------------------------------------------------------------
+    def prod(self, x: str, c: int, C: int) -> str:
+        if C == 64:
+            return f"(uint64_t)((int64_t){x} * {_s(c, 64)})"
+        if self.d + self.cb <= 32 and -(1 << 31) <= c < (1 << 31):
+            return f"(uint32_t)((int32_t){x} * (int32_t){_s(c, 32)})"
+        return f"(uint32_t)((int64_t){x} * {_s(c, 64)})"
+
+    def prodv(self, x: str, h: str, C: int) -> str:
+        """The product of sample *x* and the int32_t coefficient variable *h*."""
+        if C == 64:
+            return f"(uint64_t)((int64_t){x} * {h})"
+        if self.d + self.cb <= 32:
+            return f"(uint32_t)((int32_t){x} * {h})"
+        return f"(uint32_t)((int64_t){x} * {h})"
+
+    def fits_coef(self, c: int) -> bool:
+        return -(1 << (self.cb - 1)) <= c < (1 << (self.cb - 1))
+
+    def sum_lines(self, acc: str, C: int, terms, start: str | None = None) -> list[str]:
+        """``U acc = sum`` of (sign, coefficient, sample expression); zero terms dropped.
+
+        A negative term is added with its negated coefficient when that still fits
+        the coefficient word (a multiply-accumulate), subtracted otherwise.
+        """
+        U = f"uint{C}_t"
+        parts: list[tuple[str, str]] = []
+        for sign, c, x in terms:
+            c = int(c)
+            if c == 0:
+                continue
+            if sign < 0 and self.fits_coef(-c):
+                parts.append(("+", self.prod(x, -c, C)))
+            elif sign < 0:
+                parts.append(("-", self.prod(x, c, C)))
+            else:
+                parts.append(("+", self.prod(x, c, C)))
+        lines = []
+        if start is not None:
+            lines.append(f"{U} {acc} = {start};")
+        elif parts and parts[0][0] == "+":
+            lines.append(f"{U} {acc} = {parts.pop(0)[1]};")
+        else:
+            lines.append(f"{U} {acc} = 0u;")
+        for op, term in parts:
+            lines.append(f"{acc} {op}= {term};")
+        return lines
+
+    # rounding and fitting ------------------------------------------------
+    def finish(self, acc: str, k: int, C: int, y: str, residual: str | None = None) -> list[str]:
+        """Lines computing data word *y* from accumulator *acc* (and the residual)."""
+        U = f"uint{C}_t"
+        A = self.A
+        bias = 1 << (C - 1)
+        assert 1 <= k <= C - 2 and A <= C
+        lines = []
+        if A == C:
+            lines.append(f"const {U} w = {acc} ^ {_u(bias, C)}; /* a + 2^{C - 1} */")
+        else:
+            lines.append(f"const {U} w = (({acc} ^ {_u(1 << (A - 1), C)}) & {_u((1 << A) - 1, C)}) + "
+                         f"{_u(bias - (1 << (A - 1)), C)}; /* a (from {A} bits) + 2^{C - 1} */")
+        off = 1 << (C - 1 - k)  # the bias after the shift
+        half, mask = 1 << (k - 1), (1 << k) - 1
+        if self.rounding == "truncate":
+            lines.append(f"const {U} v = w >> {k}; /* floor(a / 2^{k}) + 2^{C - 1 - k} */")
+        elif self.rounding == "add-half":
+            lines.append(f"const {U} v = (w >> {k}) + ((w >> {k - 1}) & 1u); /* floor((a + 2^{k - 1}) / 2^{k}) "
+                         f"+ 2^{C - 1 - k} */")
+        elif self.rounding == "half-even":
+            lines += [f"const {U} q = w >> {k};",
+                      f"const {U} r = w & {_u(mask, C)};",
+                      f"const {U} v = q + ({U})(r > {_u(half, C)} || (r == {_u(half, C)} && (q & 1u) != 0u)); "
+                      "/* ties to even */"]
+        elif self.rounding == "toward-zero":
+            lines.append(f"const {U} v = (w >> {k}) + ({U})(w < {_u(bias, C)} && (w & {_u(mask, C)}) != 0u); "
+                         "/* towards zero */")
+        else:  # pragma: no cover - the spec refuses other modes
+            raise GeneratedCodeError(f"rounding mode '{self.rounding}' has no generated code")
+        if residual is not None:
+            lines.append(f"{residual} = w - (v << {k}); /* E = a - round(a) * 2^{k}, |E| < 2^{k} */")
+        vmax = 1 << (C - k)  # largest v (inclusive)
+        D = self.D
+        if self.overflow == "saturate":
+            hi, lo = self.dmax + off, self.dmin + off
+            wide = "int64_t" if min(vmax, hi) >= (1 << (C - 1)) or C == 64 else f"int{C}_t"
+            value = f"({wide})v - {_s(off, 64 if wide == 'int64_t' else 32)}"
+            if lo > 0:
+                value = f"v < {_u(lo, C)} ? {_s(self.dmin, 64 if wide == 'int64_t' else 32)} : {value}"
+            if hi < vmax:
+                value = f"v > {_u(hi, C)} ? {_s(self.dmax, 64 if wide == 'int64_t' else 32)} : {value}"
+            lines.append(f"const {D} {y} = ({D})({value}); /* saturate to {self.d} bits */")
+        else:
+            sign = 1 << (self.d - 1)
+            masked = f"(uint32_t)(v - {_u(off, C)})"
+            if self.d < 32:
+                masked = f"({masked} & {_u((1 << self.d) - 1, 32)})"
+            wt = "int32_t" if self.d < 32 else "int64_t"
+            lines.append(f"const {D} {y} = ({D})(({wt})({masked} ^ {_u(sign, 32)}) - {_s(sign, 64)}); "
+                         f"/* wrap to {self.d} bits */")
+        return lines
+
+    def k_of(self, shift: int) -> int:
+        return self.fc - shift
+
+
+def _indent(lines, n: int) -> list[str]:
+    pad = " " * n
+    return [pad + ln if ln else ln for ln in lines]
+
+
+@dataclass
+class _OpCode:
+    comment: list[str]
+    fields: list[tuple[str, str, int, str]]  # (C type, field name, count (0 = scalar), comment)
+    lines: list[str]  # the block, without the enclosing braces
+
+
+def _loop(src: str, body: list[str], D: str) -> list[str]:
+    return ["for (t = 0u; t < n; t++) {", f"    const {D} x = {src}[t];", *_indent(body, 4), "}"]
+
+
+def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
+    fx = _Fixed(program, D)
+    out: list[_OpCode] = []
+    n_sec = 0
+    for i, op in enumerate(program.ops, 1):
+        src = "in" if not out else "out"
+        f = f"op{i}"
+        if isinstance(op, SectionOp):
+            n_sec += 1
+            k = fx.k_of(op.shift)
+            C = _container(program, k)
+            U = f"uint{C}_t"
+            B0, B1, B2 = (int(v) for v in op.b)
+            A1, A2 = (int(v) for v in op.a)
+            head = [f"section {n_sec}, {op.structure}: b0 {B0}, b1 {B1}, b2 {B2}, a1 {A1}, a2 {A2} "
+                    f"(coefficient shift {op.shift}, rounding shift {k}, {C}-bit container)"]
+            if op.structure in ("df1", "df1ef"):
+                head.append("acc = b0 x[n] + b1 x[n-1] + b2 x[n-2] - a1 y[n-1] - a2 y[n-2]"
+                            + (" + E" if op.structure == "df1ef" else "")
+                            + f"; y[n] = fit(round(acc / 2^{k}))")
+                terms = [(1, B0, "x"), (1, B1, "x1"), (1, B2, "x2"), (-1, A1, "y1"), (-1, A2, "y2")]
+                fields = [(D, f"{f}_x", 2, "x[n-1], x[n-2]"), (D, f"{f}_y", 2, "y[n-1], y[n-2]")]
+                pre = [f"{D} x1 = s->{f}_x[0], x2 = s->{f}_x[1];", f"{D} y1 = s->{f}_y[0], y2 = s->{f}_y[1];"]
+                post = [f"s->{f}_x[0] = x1;", f"s->{f}_x[1] = x2;", f"s->{f}_y[0] = y1;", f"s->{f}_y[1] = y2;"]
+                body = []
+                if op.structure == "df1ef":
+                    fields.append((U, f"{f}_e", 0, "E, the previous rounding residual (modulo the container)"))
+                    pre.append(f"{U} e = s->{f}_e;")
+                    post.append(f"s->{f}_e = e;")
+                    body += fx.sum_lines("acc", C, terms, )
+                    body.append("acc += e;")
+                    body += fx.finish("acc", k, C, "y", residual="e")
+                else:
+                    body += fx.sum_lines("acc", C, terms)
+                    body += fx.finish("acc", k, C, "y")
+                body += ["x2 = x1;", "x1 = x;", "y2 = y1;", "y1 = y;", "out[t] = y;"]
+            else:  # tdf2
+                head.append(f"y = fit(round((b0 x + S1) / 2^{k})); S1 = b1 x - a1 y + S2; S2 = b2 x - a2 y "
+                            f"(S1, S2 modulo 2^{C})")
+                fields = [(U, f"{f}_s", 2, "S1, S2 (modulo the container)")]
+                pre = [f"{U} s1 = s->{f}_s[0], s2 = s->{f}_s[1];"]
+                post = [f"s->{f}_s[0] = s1;", f"s->{f}_s[1] = s2;"]
+                body = fx.sum_lines("acc", C, [(1, B0, "x")])
+                body.append("acc += s1;")
+                body += fx.finish("acc", k, C, "y")
+                t1 = fx.sum_lines("n1", C, [(1, B1, "x"), (-1, A1, "y")])
+                t2 = fx.sum_lines("n2", C, [(1, B2, "x"), (-1, A2, "y")])
+                body += t1 + t2 + ["s1 = n1 + s2;", "s2 = n2;", "out[t] = y;"]
+            lines = pre + _loop(src, body, D) + post
+            out.append(_OpCode(head, fields, lines))
+        elif isinstance(op, FirOp):
+            taps = [int(v) for v in op.taps]
+            n = len(taps)
+            k = fx.k_of(op.shift)
+            C = _container(program, k)
+            U = f"uint{C}_t"
+            folded = op.symmetric and taps == taps[::-1]
+            stored = taps[:(n + 1) // 2] if folded else taps
+            ct = ("int16_t" if all(-(1 << 15) <= c < (1 << 15) for c in stored) and fx.cb <= 16 else
+                  "int32_t" if all(-(1 << 31) <= c < (1 << 31) for c in stored) else "int64_t")
+            head = [f"FIR, {n} taps{', symmetric: ' + str(len(stored)) + ' stored, folded' if folded else ''} "
+                    f"(coefficient shift {op.shift}, rounding shift {k}, {C}-bit container)",
+                    f"acc = sum h[j] x[n-j]; y[n] = fit(round(acc / 2^{k})); "
+                    f"history z[p..p+{n - 1}] newest first, kept twice so it is contiguous"]
+            fields = [(D, f"{f}_z", 2 * n, f"the last {n} inputs, twice"), ("uint32_t", f"{f}_p", 0,
+                                                                           "position of the newest input")]
+            unroll = len(stored) <= UNROLL_TAPS
+            hlines = []
+            if not unroll:
+                hlines = [f"static const {ct} h[{len(stored)}] = {{ /* h[0] (newest) .. */"]
+                hlines += ["    " + ", ".join(_s(c, 64 if ct == "int64_t" else 32) for c in stored[j:j + 6]) + ","
+                           for j in range(0, len(stored), 6)]
+                hlines.append("};")
+            pre = hlines + [f"{D} *const z = s->{f}_z;", f"uint32_t p = s->{f}_p;"]
+            post = [f"s->{f}_p = p;"]
+            body = ([] if unroll else ["uint32_t j;"]) + [f"p = (p == 0u) ? {n - 1}u : p - 1u;", "z[p] = x;",
+                                                          f"z[p + {n}u] = x;"]
+            signed_pre = C == 64 and fx.d + 1 + fx.cb <= 64
+
+            def pair(hx: str, j: str) -> str:
+                if signed_pre:
+                    return f"(uint64_t)((int64_t){hx} * ((int64_t)z[p + {j}] + (int64_t)z[p + {n - 1}u - {j}]))"
+                return f"({U}){hx} * (({U})z[p + {j}] + ({U})z[p + {n - 1}u - {j}])"
+
+            if folded and unroll:
+                body.append(f"{U} acc = 0u;")
+                for j, c in enumerate(stored[:n // 2]):
+                    if c:
+                        body.append(f"acc += {pair(_s(c, 64 if signed_pre or C == 64 else 32), f'{j}u')}; "
+                                    f"/* h[{j}] (x[n-{j}] + x[n-{n - 1 - j}]) */")
+                if n % 2 and stored[-1]:
+                    body.append(f"acc += {fx.prod(f'z[p + {n // 2}u]', stored[-1], C)}; /* the middle tap */")
+            elif folded:
+                body += [f"{U} acc = 0u;", f"for (j = 0u; j < {n // 2}u; j++) {{",
+                         f"    acc += {pair('h[j]', 'j')}; /* h[j] (x[n-j] + x[n-{n - 1}+j]) */", "}"]
+                if n % 2:
+                    body.append(f"acc += {fx.prod(f'z[p + {n // 2}u]', stored[-1], C)}; /* the middle tap */")
+            elif unroll:
+                body += fx.sum_lines("acc", C, [(1, c, f"z[p + {j}u]") for j, c in enumerate(stored)])
+            else:
+                body += [f"{U} acc = 0u;", f"for (j = 0u; j < {n}u; j++) {{",
+                         f"    acc += {fx.prodv('z[p + j]', 'h[j]', C)};", "}"]
+            body += fx.finish("acc", k, C, "y") + ["out[t] = y;"]
+            out.append(_OpCode(head, fields, pre + _loop(src, body, D) + post))
+        elif isinstance(op, GainOp):
+            k = fx.k_of(op.shift)
+            C = _container(program, k)
+            c = int(op.coef)
+            head = [f"gain {c} (coefficient shift {op.shift}, rounding shift {k}): y = fit(round(c x / 2^{k}))"]
+            body = fx.sum_lines("acc", C, [(1, c, "x")]) + fx.finish("acc", k, C, "y") + ["out[t] = y;"]
+            out.append(_OpCode(head, [], _loop(src, body, D)))
+        elif isinstance(op, DelayOp):
+            out.append(_delay(op, f, src, D))
+        else:  # pragma: no cover - emit refuses first
+            raise GeneratedCodeError(f"channel '{program.name}': op {i} has no generated code")
+    return out
+
+
+def _delay(op: DelayOp, f: str, src: str, D: str) -> _OpCode:
+    d = int(op.samples)
+    if d == 0:
+        return _OpCode(["delay of 0 samples: a copy"], [],
+                       ["if (in != out) {", "    for (t = 0u; t < n; t++) {", f"        out[t] = {src}[t];",
+                        "    }", "}"] if src == "in" else ["/* nothing to do */"])
+    fields = [(D, f"{f}_d", d, f"the last {d} inputs, circular"), ("uint32_t", f"{f}_p", 0, "oldest position")]
+    body = [f"const {D} y = b[p];", "b[p] = x;", f"p = (p + 1u == {d}u) ? 0u : p + 1u;", "out[t] = y;"]
+    lines = [f"{D} *const b = s->{f}_d;", f"uint32_t p = s->{f}_p;", *_loop(src, body, D), f"s->{f}_p = p;"]
+    return _OpCode([f"delay: y[n] = x[n - {d}]"], fields, lines)
+
+
+# ---------------------------------------------------------------------------
+# code of one float32 channel
+# ---------------------------------------------------------------------------
+
+def _float_ops(program: ChannelProgram) -> list[_OpCode]:
+    from .emit import _float_literal as flt
+
+    D = "float"
+    out: list[_OpCode] = []
+    n_sec = 0
+    for i, op in enumerate(program.ops, 1):
+        src = "in" if not out else "out"
+        f = f"op{i}"
+        if isinstance(op, SectionOp):
+            n_sec += 1
+            b0, b1, b2 = (flt(v) for v in op.b)
+            a1, a2 = (flt(v) for v in op.a)
+            head = [f"section {n_sec}, {op.structure}: b0 {b0}, b1 {b1}, b2 {b2}, a1 {a1}, a2 {a2}"]
+            if op.structure == "df1":
+                head.append("acc = b0 x; acc += b1 x1; acc += b2 x2; acc -= a1 y1; acc -= a2 y2 "
+                            "(each step rounded to float32)")
+                fields = [(D, f"{f}_x", 2, "x[n-1], x[n-2]"), (D, f"{f}_y", 2, "y[n-1], y[n-2]")]
+                pre = [f"float x1 = s->{f}_x[0], x2 = s->{f}_x[1];", f"float y1 = s->{f}_y[0], y2 = s->{f}_y[1];"]
+                post = [f"s->{f}_x[0] = x1;", f"s->{f}_x[1] = x2;", f"s->{f}_y[0] = y1;", f"s->{f}_y[1] = y2;"]
+                body = [f"float acc = {b0} * x;", "float p;", f"p = {b1} * x1;", "acc = acc + p;",
+                        f"p = {b2} * x2;", "acc = acc + p;", f"p = {a1} * y1;", "acc = acc - p;",
+                        f"p = {a2} * y2;", "acc = acc - p;",
+                        "x2 = x1;", "x1 = x;", "y2 = y1;", "y1 = acc;", "out[t] = acc;"]
+            elif op.structure == "tdf2":
+                head.append("y = b0 x + s1; s1 = (b1 x - a1 y) + s2; s2 = b2 x - a2 y (each step rounded)")
+                fields = [(D, f"{f}_s", 2, "s1, s2")]
+                pre = [f"float s1 = s->{f}_s[0], s2 = s->{f}_s[1];"]
+                post = [f"s->{f}_s[0] = s1;", f"s->{f}_s[1] = s2;"]
+                body = [f"float p = {b0} * x;", "const float y = p + s1;", "float acc;",
+                        f"p = {b1} * x;", f"acc = {a1} * y;", "acc = p - acc;", "s1 = acc + s2;",
+                        f"p = {b2} * x;", f"acc = {a2} * y;", "s2 = p - acc;", "out[t] = y;"]
+            else:
+                raise GeneratedCodeError(f"channel '{program.name}': float32 has no {op.structure} sections")
+            out.append(_OpCode(head, fields, pre + _loop(src, body, D) + post))
+        elif isinstance(op, FirOp):
+            taps = [flt(v) for v in op.taps]
+            n = len(taps)
+            head = [f"FIR, {n} taps: acc = t0 x[n]; acc += t_j x[n-j] for j = 1 .. {n - 1} (each step rounded); "
+                    "history kept twice so it is contiguous"]
+            fields = [(D, f"{f}_z", 2 * n, f"the last {n} inputs, twice"),
+                      ("uint32_t", f"{f}_p", 0, "position of the newest input")]
+            pre = [f"static const float h[{n}] = {{"]
+            pre += ["    " + ", ".join(taps[j:j + 4]) + "," for j in range(0, n, 4)]
+            pre += ["};", f"float *const z = s->{f}_z;", f"uint32_t p = s->{f}_p;"]
+            body = ["uint32_t j;", f"p = (p == 0u) ? {n - 1}u : p - 1u;", "z[p] = x;", f"z[p + {n}u] = x;",
+                    "float acc = h[0] * x;", f"for (j = 1u; j < {n}u; j++) {{", "    const float q = h[j] * z[p + j];",
+                    "    acc = acc + q;", "}", "out[t] = acc;"]
+            out.append(_OpCode(head, fields, pre + _loop(src, body, D) + [f"s->{f}_p = p;"]))
+        elif isinstance(op, GainOp):
+            c = flt(op.coef)
+            out.append(_OpCode([f"gain {c}: y = c x"], [], _loop(src, [f"out[t] = {c} * x;"], D)))
+        elif isinstance(op, DelayOp):
+            out.append(_delay(op, f, src, D))
+        else:  # pragma: no cover
+            raise GeneratedCodeError(f"channel '{program.name}': op {i} has no generated code")
+    return out
+
+
+# ---------------------------------------------------------------------------
+# rendering
+# ---------------------------------------------------------------------------
+
+def _fields_sorted(ops: list[_OpCode]) -> list[dict]:
+    """State fields, widest element type first (no padding between fields)."""
+    rows = []
+    for o in ops:
+        for ctype, name, count, comment in o.fields:
+            rows.append({"decl": f"{ctype} {name}" + (f"[{count}]" if count else "") + ";", "comment": comment,
+                         "bits": _CTYPE_BITS.get(ctype, 32) if not ctype.startswith("uint") else
+                         int(re.sub(r"\D", "", ctype))})
+    rows.sort(key=lambda r: -r["bits"])
+    return rows
+
+
+def render_kernel(*, programs, names: CNames, source: str, banner: list[str], header_name: str,
+                  data_type: str, coef_type: str, arith, sample_rate_hz: str, over_budget: bool,
+                  golden_inputs: list[str] | None, golden_outs: list[list[str]]) -> dict[str, str]:
+    """Render ``OUT.h`` and ``OUT.c`` of generated code (see the module docstring)."""
+    from .emit import _lines, render_template
+
+    names.validate(source)
+    fixed = not arith.is_float
+    if fixed and data_type not in ("int16_t", "int32_t"):
+        raise GeneratedCodeError(f"generated code holds data words in int16_t or int32_t; the target's data type "
+                                 f"is {data_type} (use the reference kernel, without --kernel)")
+    if fixed and _CTYPE_BITS[data_type] < arith.data.width:
+        raise GeneratedCodeError(f"the {arith.data.width}-bit data word does not fit {data_type}")
+    if fixed and arith.acc_bits > 64:
+        raise GeneratedCodeError(f"generated code keeps accumulators of up to 64 bits, not {arith.acc_bits}")
+    D = data_type if fixed else "float"
+    data_bytes = _CTYPE_BITS.get(D, 32) // 8
+    coef_bytes = _CTYPE_BITS.get(coef_type, 32) // 8
+    stem = Path(header_name).stem
+    channels = []
+    for i, p in enumerate(programs):
+        ops = _fixed_ops(p, D) if fixed else _float_ops(p)
+        cost = channel_cost(p, coef_bytes, data_bytes)
+        fields = _fields_sorted(ops)
+        channels.append({
+            "name": p.name,
+            "state_t": names.state_t(i), "reset": names.reset(i), "process": names.process(i),
+            "golden_out": names.golden_out(i), "check": names.check(i),
+            "macros": {m: names.channel_macro(i, m) for m in CNames.CHANNEL_MACROS},
+            "n_sections": len(p.sections()),
+            "cost": cost,
+            "fields": fields or [{"decl": "uint8_t unused;", "comment": "no state", "bits": 8}],
+            "uses_state": bool(fields),
+            "ops": [{"comment": o.comment, "lines": o.lines} for o in ops],
+            "golden_lines": _lines(golden_outs[i]) if golden_inputs else [],
+        })
+    context = {
+        "banner": banner,
+        "header_name": header_name,
+        "source_name": stem + ".c",
+        "guard": names.guard,
+        "data_t": names.data_t,
+        "data_type": D,
+        "selftest": names.selftest,
+        "golden_in": names.golden_in,
+        "M": {m: names.macro(m) for m in CNames.GLOBAL_MACROS},
+        "fixed": fixed,
+        "arith": {"data_bits": arith.data.width if fixed else 32,
+                  "data_frac_bits": arith.data.frac_bits if fixed else 0,
+                  "coef_bits": arith.coef.width if fixed else 32,
+                  "coef_frac_bits": arith.coef.frac_bits if fixed else 0,
+                  "acc_bits": arith.acc_bits if fixed else 32},
+        "sample_rate_hz": sample_rate_hz,
+        "over_budget": 1 if over_budget else 0,
+        "golden_n": len(golden_inputs) if golden_inputs else 0,
+        "golden_input_lines": _lines(golden_inputs) if golden_inputs else [],
+        "blocks": ", ".join(f"{b}u" for b in SELFTEST_BLOCKS),
+        "n_blocks": len(SELFTEST_BLOCKS),
+        "max_block": max(SELFTEST_BLOCKS),
+        "channels": channels,
+    }
+    folder = Path(__file__).parent / "templates"
+    return {header_name: render_template(folder, "kernel.h.j2", context),
+            stem + ".c": render_template(folder, "kernel.c.j2", context)}
