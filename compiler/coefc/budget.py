@@ -17,6 +17,11 @@ check                       passes when
 ``overflow``                ``"none"``: no overflow event under the worst-case inputs (at the
                             largest level whose ideal output stays within full scale) and
                             no overflow oscillation found; ``"allow"``: always (with a caution)
+``tone_gain_error_db``      on by default (limit :data:`DEFAULT_TONE_GAIN_ERROR_DB`; ``"off"``
+                            switches it off): steady tones through the bit-true engine
+                            (:mod:`coefc.analyse.tones`), max |measured - float design| gain
+                            over the gated tones <= limit, and for weighting stages every
+                            gated tone at the IEC 61672-1 frequencies inside the class 1 limits
 ==========================  =====================================================
 
 Levels in dBFS follow AES17 (0 dBFS = RMS of a full-scale sine, full scale = 1.0).
@@ -123,6 +128,7 @@ def _json_num(v):
 def _budget_dict(b: Budget) -> dict:
     return {"passband_deviation_db": b.passband_deviation_db, "stopband_attenuation_db": b.stopband_attenuation_db,
             "output_noise_dbfs": b.output_noise_dbfs, "limit_cycles": b.limit_cycles, "overflow": b.overflow,
+            **_tone_budget(b),
             "passband": [list(x) for x in b.passband] if b.passband else None,
             "stopband": [list(x) for x in b.stopband] if b.stopband else None}
 
@@ -184,8 +190,11 @@ def _fmt(v, unit=""):
     return f"{v}{unit}"
 
 
-def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]]:
-    """The checks of one channel: (list of Check, reasons by check name)."""
+def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], dict[str, str]]:
+    """The checks of one channel: (list of Check, reasons by check name).
+
+    *tones* is the channel's :class:`coefc.analyse.tones.ToneAnalysis` (None: not run).
+    """
     r, lc, ov = metrics.response, metrics.limit_cycles, metrics.overflow
     checks: list[Check] = []
     why: dict[str, str] = {}
@@ -303,7 +312,84 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
             parts.append("scale the input down (a gain stage or scaling = \"l1\")"
                          + (" or use saturation" if metrics.overflow_mode == "wrap" else ""))
         why["overflow"] = "; ".join(parts)
+    if tones is not None:
+        checks.append(_tone_check(tones, budget, why))
     return checks, why
+
+
+# ------------------------------------------------------------------ steady tones (coefc.analyse.tones)
+
+#: The tone check's limit when the budget names none: |measured - float design| in dB.
+DEFAULT_TONE_GAIN_ERROR_DB = 0.5
+
+
+def _tone_budget(b: Budget) -> dict:
+    from .analyse.tones import DEFAULT_LEVELS_DBFS
+
+    lim = DEFAULT_TONE_GAIN_ERROR_DB if b.tone_gain_error_db is None else b.tone_gain_error_db
+    return {"tone_gain_error_db": lim, "tone_levels_dbfs": list(b.tone_levels_dbfs or DEFAULT_LEVELS_DBFS),
+            "tone_gain_error_db_default": b.tone_gain_error_db is None}
+
+
+def _run_tones(design, program, metrics, budget: Budget):
+    """The channel's tone analysis, or None when the budget switches the check off."""
+    if budget.tone_gain_error_db == "off":
+        return None
+    from .analyse.tones import DEFAULT_LEVELS_DBFS, analyse_tones
+
+    r = metrics.response
+    return analyse_tones(design, program, r.freqs_hz, r.float_db,
+                         levels_dbfs=budget.tone_levels_dbfs or DEFAULT_LEVELS_DBFS)
+
+
+def _hz(f: float) -> str:
+    return f"{f / 1000:.4g} kHz" if f >= 1000 else f"{f:.4g} Hz"
+
+
+def _tone_check(t, budget: Budget, why: dict) -> Check:
+    name = "tone_gain_error_db"
+    default = budget.tone_gain_error_db is None
+    lim = DEFAULT_TONE_GAIN_ERROR_DB if default else float(budget.tone_gain_error_db)
+    levels = ", ".join(f"{v:g}" for v in t.levels_dbfs)
+    if t.status != "measured":
+        why[name] = t.note
+        return Check(name, None, lim, False)
+    n = t.gated_count
+    if t.worst is None:
+        why[name] = (f"no tone could be measured: none of the {len(t.tones)} tones at {levels} dBFS has an ideal "
+                     f"output both within {t.range_db:g} dB of the design's peak and above the data word's "
+                     "resolution floor; add a louder level to tone_levels_dbfs or widen the data word")
+        return Check(name, None, lim, False)
+    w = t.worst
+    v = t.max_error_db
+    ok = v <= lim and not t.standard_failures
+    f_lo, f_hi = min(x.freq_hz for x in t.tones), max(x.freq_hz for x in t.tones)
+    parts = [f"{n} of {len(t.tones)} steady tones ({_hz(f_lo)} to {_hz(f_hi)} at {levels} dBFS) through the "
+             f"bit-true engine: largest |measured - float design| gain {v:.4g} dB at {_hz(w.freq_hz)}, "
+             f"{w.level_dbfs:.4g} dBFS (measured {w.gain_db:.4g} dB, design {w.design_gain_db:.4g} dB"
+             + (f", output held at {w.dc_lsb:.0f} LSB DC" if w.below_resolution and w.dc_lsb is not None else "")
+             + ")" + (f" -- {v:.6f} dB to be exact" if not ok and round(v, 4) <= lim < v else "")]
+    if default:
+        parts.append(f"default limit {lim:g} dB")
+    std = [x for x in t.tones if x.standard is not None and x.gated]
+    if std:
+        letter = std[0].standard["weighting"]
+        if t.standard_failures:
+            bad = t.standard_failures[0]
+            s = bad.standard
+            lo = "-inf" if s["lower_db"] is None else f"{s['lower_db']:+g}"
+            parts.append(f"{len(t.standard_failures)} tone(s) outside the IEC 61672-1 class 1 limits of the "
+                         f"{letter}-weighting, first at {bad.nominal_hz:g} Hz, {bad.level_dbfs:.4g} dBFS: "
+                         f"{s['deviation_db']:+.3g} dB from the standard's curve, limits {s['upper_db']:+g}/{lo} dB")
+        else:
+            parts.append(f"IEC 61672-1 class 1 limits of the {letter}-weighting met at {len(std)} tones")
+    if t.settle_capped:
+        parts.append(t.note)
+    if not ok:
+        parts.append("the chip's rounding changes the signal (dead band or granular distortion): "
+                     "use error feedback (df1ef), a wider data word, or scaling so small signals keep their bits")
+    why[name] = "; ".join(parts)
+    return Check(name, v, lim, ok)
 
 
 def _sections(program) -> list[dict]:
@@ -338,10 +424,16 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
     reports = []
     for prog in realisation.programs:
         m = analyse_channel(designs[prog.name], prog, opt)
-        checks, why = channel_checks(m, budget)
+        tones = _run_tones(designs[prog.name], prog, m, budget)
+        checks, why = channel_checks(m, budget, tones)
         checks.sort(key=lambda c: c.ok)  # failing rows first
+        md = m.as_dict()
+        if tones is not None:
+            from .analyse import _clean
+
+            md["tones"] = _clean(tones.as_dict())
         reports.append(ChannelReport(prog.name, prog.sample_rate_hz, prog.arithmetic.as_dict(), _sections(prog),
-                                     m.as_dict(), checks, why, m))
+                                     md, checks, why, m))
     cautions = []
     tolerated = []
     if budget.overflow == "allow":
