@@ -246,33 +246,32 @@ def _run(program: ChannelProgram, f: float, m: int, n: int, settle: int, peak: f
     from ..simulate import simulate
 
     ar = program.arithmetic
-    total = settle + n
-    k = np.arange(total, dtype=np.float64)
-    # phase from the window start, so the window always holds whole periods of the same sine
-    ph = 2.0 * np.pi * ((m * (k - settle)) % n) / n
-    s = np.sin(ph)
+    # one window of whole periods, quantised once; the settling run repeats it (the tone is periodic in n)
+    s = np.sin(2.0 * np.pi * ((m * np.arange(n)) % n) / n)
     if ar.is_float:
-        x = (peak * s).astype(np.float32)
+        win = (peak * s).astype(np.float32)
         scale = 1.0
     else:
         scale = float(1 << ar.data.frac_bits)
-        x = np.clip(np.round(peak * scale * s), ar.data.min_int, ar.data.max_int).astype(np.int64)
+        win = np.clip(np.round(peak * scale * s), ar.data.min_int, ar.data.max_int).astype(np.int64)
+    reps = -(-settle // n)
+    x = np.concatenate([np.tile(win, reps)[reps * n - settle:], win]) if settle else win
     tr = simulate(program, x, trace=True)
     xw = x[settle:].astype(np.float64)
     yw = tr.y[settle:].astype(np.float64)
     w = 2.0 * np.pi * m * np.arange(n) / n
     c, si = np.cos(w), np.sin(w)
 
-    def fit(v):
-        dc = float(np.mean(v))
-        a = 2.0 / n * float(v @ c)
-        b = 2.0 / n * float(v @ si)
+    def fit(v):  # elementwise sums, not BLAS: a BLAS call may spin threads on a busy machine
+        dc = float(np.sum(v)) / n
+        a = 2.0 / n * float(np.sum(v * c))
+        b = 2.0 / n * float(np.sum(v * si))
         return dc, math.hypot(a, b), (a, b)
 
     _, ain, _ = fit(xw)
     dc, aout, (a, b) = fit(yw)
     res = yw - dc - a * c - b * si
-    res_p = float(np.mean(res * res))
+    res_p = float(np.sum(res * res)) / n
     ovf = int(sum(tr.overflow_counts))
     return ain, aout, dc, res_p, ovf, scale
 
