@@ -119,7 +119,7 @@ class ToneAnalysis:
     tones: tuple[ToneResult, ...]
     max_error_db: float | None  # largest |error_db| over the gated tones
     worst: ToneResult | None
-    standard_failures: tuple[ToneResult, ...]  # weighting tones outside their class 1 limits
+    standard_failures: tuple[ToneResult, ...]  # counted weighting tones outside their class 1 limits
     levels_dbfs: tuple[float, ...]
     range_db: float
     settle_samples: int
@@ -133,13 +133,24 @@ class ToneAnalysis:
     def gated_count(self) -> int:
         return sum(1 for t in self.tones if t.gated)
 
+    @property
+    def standard_tones(self) -> tuple[ToneResult, ...]:
+        """The counted tones at the IEC 61672-1 frequencies of a weighting stage."""
+        return tuple(t for t in self.tones if t.standard is not None and t.gated)
+
+    @property
+    def class1_excess_db(self) -> float | None:
+        """Largest excess of a counted weighting tone over its class 1 limits (<= 0: inside, by that margin)."""
+        ex = [t.standard["excess_db"] for t in self.standard_tones]
+        return max(ex) if ex else None
+
     def as_dict(self) -> dict:
         return {
             "status": self.status, "method": METHOD, "levels_dbfs": list(self.levels_dbfs),
             "range_db": self.range_db, "min_output_lsb": MIN_OUTPUT_LSB,
             "max_error_db": self.max_error_db,
             "worst": None if self.worst is None else self.worst.as_dict(),
-            "standard_failures": len(self.standard_failures),
+            "standard_failures": len(self.standard_failures), "class1_excess_db": self.class1_excess_db,
             "settle_samples": self.settle_samples, "settle_capped": self.settle_capped,
             "slowest_pole_radius": self.slowest_pole_radius,
             "residual_transient": self.residual_transient,
@@ -367,9 +378,12 @@ def analyse_tones(design: ChannelDesign, program: ChannelProgram, freqs_hz: np.n
                 ref = float(analytic_db(letter, f)) + rest_db
                 dev = gain - ref
                 upper, lower = float(row[3]), (None if row[4] is None else float(row[4]))
-                ok_std = (not gated) or (dev <= upper and (lower is None or dev >= lower))
+                # excess over the limits: > 0 outside, <= 0 inside (minus the margin)
+                excess = max(dev - upper, -math.inf if lower is None else lower - dev)
+                design_excess = max(design_db - ref - upper, -math.inf if lower is None else lower - design_db + ref)
                 standard = {"weighting": letter, "reference_db": ref, "deviation_db": dev, "upper_db": upper,
-                            "lower_db": lower, "ok": ok_std}
+                            "lower_db": lower, "excess_db": excess, "design_deviation_db": design_db - ref,
+                            "design_outside": design_excess > 0, "ok": (not gated) or excess <= 0}
             fund_p = aout * aout / 2.0
             resid_db = 10.0 * math.log10(res_p / fund_p) if res_p > 0 and fund_p > 0 else -math.inf
             tones.append(ToneResult(f, used, gain, design_db, err, gated, "; ".join(notes), resid_db,
