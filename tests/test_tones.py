@@ -150,6 +150,11 @@ def test_issue_10_failure_case_fails(tmp_path):
     # while a 31.5 Hz tone came out far too low, the output stuck near -709 LSB of DC
     # (an independent measurement reported in the issue).
     path = describe(tmp_path, [A_WEIGHTING])
+    r = subprocess.run([sys.executable, "-c", MAIN, "check", str(path), "--data", "Q1.15"],
+                       capture_output=True, text=True, timeout=300)
+    assert r.returncode == 1 and "FAIL tone_gain_error_db" in r.stdout  # with the default levels
+    # the issue's own tone: 31.5 Hz at -6 dBFS
+    path = describe(tmp_path, [A_WEIGHTING], budget="tone_levels_dbfs = [-6, -20, -60]", name="u")
     r = subprocess.run([sys.executable, "-c", MAIN, "check", str(path), "--data", "Q1.15", "--json", "-"],
                        capture_output=True, text=True, timeout=300)
     assert r.returncode == 1, r.stdout + r.stderr
@@ -158,7 +163,7 @@ def test_issue_10_failure_case_fails(tmp_path):
     checks = {c["name"]: c for c in ch["checks"]}
     assert checks["tone_gain_error_db"]["ok"] is False and checks["tone_gain_error_db"]["value"] > 20
     assert checks["iec61672_class1_excess_db"]["ok"] is False
-    tone = next(x for x in ch["metrics"]["tones"]["tones"] if x.get("nominal_hz") == 31.5 and x["level_dbfs"] == -20)
+    tone = next(x for x in ch["metrics"]["tones"]["tones"] if x.get("nominal_hz") == 31.5 and x["level_dbfs"] == -6)
     assert tone["gated"] and tone["error_db"] < -20
     assert 650 <= abs(tone["dc_lsb"]) <= 750  # the issue: "stuck near -709 LSB"
     # IEC 61672-1 class 1 at 31.5 Hz: +-1.5 dB (the figure issue 10 quotes; from memory for the
@@ -214,7 +219,7 @@ def test_a_tone_below_the_dead_band_is_caught(tmp_path):
 
 def test_low_output_tones_are_reported_not_gated(tmp_path):
     # Q1.15 output: a -60 dBFS tone where the A weighting is -39.4 dB has an ideal output
-    # peak of 2^15 * 10^(-99.4/20) = 0.35 LSB, below the floor of 16 LSB.
+    # peak of 2^15 * 10^(-99.4/20) = 0.35 LSB, below the floor of 64 LSB.
     path = describe(tmp_path, [A_WEIGHTING], structure="df1ef")
     t = tones_of(realise(path, data="Q1.15"))
     tone = next(x for x in t.tones if x.nominal_hz == 31.5 and x.level_dbfs == -60)
