@@ -18,3 +18,27 @@ def repo() -> Path:
 def example_files() -> list[Path]:
     """Every bundled example description (each is a positive case)."""
     return sorted(FILTERS.glob("*.toml"))
+
+
+def target_copy(tmp_path: Path, fixture: str, abi: int | None = None) -> Path:
+    """A copy of the target folder tests/target_fixtures/*fixture* with the built-in
+    mcu32 kernel copied into its kernel/ folder (a target folder is self-contained:
+    coefc refuses files outside it), stating interface *abi* if given."""
+    import re
+    import shutil
+
+    src = Path(__file__).resolve().parent / "target_fixtures" / fixture
+    dst = tmp_path / fixture
+    shutil.copytree(src, dst)
+    shutil.copytree(REPO / "targets" / "mcu32" / "kernel", dst / "kernel")
+    if abi is not None:
+        toml = dst / "target.toml"
+        text = re.sub(r"(?m)^abi = \d+", f"abi = {abi}", toml.read_text())
+        assert f"abi = {abi}" in text
+        toml.write_text(text)
+    return dst
+
+
+def lab_board_copy(tmp_path: Path, abi: int | None = None) -> Path:
+    """The folder holding a copy of the user target lab_board (see :func:`target_copy`)."""
+    return target_copy(tmp_path, "user/lab_board", abi).parent

@@ -202,7 +202,7 @@ CASES = [
     (["run", "tiny.toml", "empty.txt", "out.txt"], "no samples"),
     (["run", "tiny.toml", "comments.txt", "out.txt"], "no samples"),
     (["run", "tiny.toml", "words.txt", "out.txt"], "words.txt:2"),
-    (["run", "tiny.toml", "binary.txt", "out.txt"], "UTF-8"),
+    (["run", "tiny.toml", "binary.txt", "out.txt"], "plain ASCII"),
     (["run", "tiny.toml", "folder.toml", "out.txt"], "folder.toml"),
     # coefc run: outputs
     (["run", "tiny.toml", "in.txt", "out.csv"], "unsupported output format '.csv'"),

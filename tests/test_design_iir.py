@@ -46,30 +46,73 @@ def test_bessel_mag_normalised_is_3db_down_at_cutoff():
     assert mag_db(ch, 3000)[0] == pytest.approx(10 * np.log10(0.5), abs=1e-6)
 
 
-@pytest.mark.parametrize("response,ordfunc", [
-    ("butterworth", signal.buttord), ("chebyshev1", signal.cheb1ord),
-    ("chebyshev2", signal.cheb2ord), ("elliptic", signal.ellipord),
-])
-def test_requirements_give_scipy_minimal_order_and_are_met(response, ordfunc):
-    # Reference library: scipy.signal.buttord/cheb1ord/cheb2ord/ellipord.  The
-    # requirement itself (loss <= ripple in the passband, >= attenuation in the
-    # stopband) is checked on the response by scipy.signal.sosfreqz.
+ORDFUNCS = [("butterworth", signal.buttord), ("chebyshev1", signal.cheb1ord),
+            ("chebyshev2", signal.cheb2ord), ("elliptic", signal.ellipord)]
+
+
+def _levels(ch, lo, hi):
+    # scipy.signal.sosfreqz (reference library), linear and log spaced, edges included
+    f = np.unique(np.concatenate([np.linspace(lo, hi, 20001), np.geomspace(max(lo, 1e-3), hi, 20001)]))
+    with np.errstate(divide="ignore"):  # all-pole families have their zeros at Nyquist
+        return 20 * np.log10(np.abs(signal.sosfreqz(ch.sos(), worN=f, fs=FS)[1]))
+
+
+@pytest.mark.parametrize("response,ordfunc", ORDFUNCS)
+@pytest.mark.parametrize("margin", [None, 0.0, 2.0])
+def test_requirements_give_scipy_minimal_order_with_the_margin_and_are_met(response, ordfunc, margin):
+    # Reference library: scipy.signal.buttord/cheb1ord/cheb2ord/ellipord at attenuation_db +
+    # margin_db (0.5 dB by default).  The requirement plus the margin (loss <= ripple in the
+    # passband, >= attenuation + margin in the stopband) is checked by scipy.signal.sosfreqz.
+    m = 0.5 if margin is None else margin
+    key = "" if margin is None else f", margin_db = {margin}"
     ch = design(f'{{ kind = "lowpass", response = "{response}", passband_hz = 3000, stopband_hz = 4000, '
-                'ripple_db = 0.5, attenuation_db = 60 }')
-    n, _ = ordfunc(3000, 4000, 0.5, 60, fs=FS)
+                f'ripple_db = 0.5, attenuation_db = 60{key} }}')
+    n, _ = ordfunc(3000, 4000, 0.5, 60 + m, fs=FS)
     assert ch.stages[0].order == n
-    f_pass = np.linspace(1, 3000, 400)
-    f_stop = np.linspace(4000, FS / 2 - 1, 2000)
-    _, hp = signal.sosfreqz(ch.sos(), worN=f_pass, fs=FS)
-    _, hs = signal.sosfreqz(ch.sos(), worN=f_stop, fs=FS)
-    assert np.min(20 * np.log10(np.abs(hp))) >= -0.5 - 1e-6
-    assert np.max(20 * np.log10(np.abs(hs))) <= -60 + 1e-6
+    assert np.min(_levels(ch, 0, 3000)) >= -0.5 - 1e-6
+    assert np.max(_levels(ch, 4000, FS / 2)) <= -60 - m + 1e-6
+    req = ch.stages[0].requirement
+    assert req["margin_db"] == m and req["minimal_order"] == ordfunc(3000, 4000, 0.5, 60, fs=FS)[0]
+    assert req["reached_attenuation_db"] >= 60 + m - 1e-6
+
+
+def test_margin_takes_the_next_order_when_the_minimal_one_has_no_room():
+    # ellipord (scipy.signal, reference library): 1000 Hz passband, 1220 Hz stopband at 48 kHz,
+    # 0.5 dB ripple needs order 7 for 60 dB but order 8 for 60.5 dB.
+    assert signal.ellipord(1000, 1220, 0.5, 60, fs=FS)[0] == 7
+    assert signal.ellipord(1000, 1220, 0.5, 60.5, fs=FS)[0] == 8
+    ch = design('{ kind = "lowpass", response = "elliptic", passband_hz = 1000, stopband_hz = 1220, '
+                'ripple_db = 0.5, attenuation_db = 60 }')
+    assert ch.stages[0].order == 8
+    assert "one order above the minimal 7 for 60 dB, to keep a 0.5 dB margin" in ch.stages[0].text
+    req = ch.stages[0].requirement
+    assert req["margin_kept_by"] == "higher order" and (req["minimal_order"], req["order"]) == (7, 8)
+    assert np.max(_levels(ch, 1220, FS / 2)) <= -60.5 + 1e-6
+    # with no margin the minimal order stands, and the stopband sits exactly at 60 dB
+    # (an elliptic stopband is equiripple at the attenuation asked: Oppenheim & Schafer 7.3, from memory)
+    ch0 = design('{ kind = "lowpass", response = "elliptic", passband_hz = 1000, stopband_hz = 1220, '
+                 'ripple_db = 0.5, attenuation_db = 60, margin_db = 0 }')
+    assert ch0.stages[0].order == 7 and "no margin for quantisation (margin_db = 0)" in ch0.stages[0].text
+    assert np.max(_levels(ch0, 1220, FS / 2)) == pytest.approx(-60, abs=1e-6)
+
+
+def test_margin_kept_at_the_minimal_order_says_so():
+    ch = design('{ kind = "lowpass", response = "elliptic", passband_hz = 1000, stopband_hz = 1200, '
+                'ripple_db = 0.5, attenuation_db = 60 }')
+    assert ch.stages[0].requirement["margin_kept_by"] == "minimal order"
+    assert "the minimal order for 60 dB also keeps a 0.5 dB margin for quantisation" in ch.stages[0].text
+    assert np.max(_levels(ch, 1200, FS / 2)) <= -60.5 + 1e-6
+
+
+def test_margin_does_not_apply_to_a_filter_given_by_order():
+    with pytest.raises(DescriptionError, match="key 'margin_db': applies to a filter given by requirements"):
+        design('{ kind = "lowpass", response = "butterworth", order = 4, cutoff_hz = 1000, margin_db = 1 }')
 
 
 def test_bandpass_requirement_counts_both_skirts():
     ch = design('{ kind = "bandpass", response = "elliptic", passband_hz = [1000, 2000], '
                 'stopband_hz = [800, 2500], ripple_db = 0.5, attenuation_db = 50 }')
-    n, _ = signal.ellipord([1000, 2000], [800, 2500], 0.5, 50, fs=FS)
+    n, _ = signal.ellipord([1000, 2000], [800, 2500], 0.5, 50.5, fs=FS)  # 0.5 dB default margin
     assert ch.stages[0].order == 2 * n  # a band-pass of prototype order n has 2n poles
     assert ch.stages[0].sections == n
 

@@ -12,6 +12,7 @@ import numpy as np
 import pytest
 
 from c_build import STRICT, emit_text, fake_realisation, hand_programs, run_headers
+from conftest import lab_board_copy, target_copy
 from coefc.emit import C_KEYWORDS, EmitError, c_identifier, golden_input, render
 from coefc.errors import DescriptionError, TargetError
 from coefc.program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
@@ -218,21 +219,8 @@ def test_guards_stop_a_header_used_with_the_wrong_kernel(target, tmp_path):
 
 
 def _lab_board(tmp_path: Path, abi: int) -> Path:
-    """A copy of the user target tests/target_fixtures/user/lab_board (which shares
-    the built-in mcu32 kernel by a relative path) stating kernel interface *abi*,
-    with the kernel paths made absolute; returns the folder holding it."""
-    import shutil
-
-    src = HERE / "target_fixtures" / "user" / "lab_board"
-    dst = tmp_path / "user" / "lab_board"
-    shutil.copytree(src, dst)
-    toml = dst / "target.toml"
-    text = re.sub(r"(?m)^abi = \d+", f"abi = {abi}", toml.read_text())
-    kdir = (src / "../../../../targets/mcu32/kernel").resolve().as_posix()
-    text = text.replace("../../../../targets/mcu32/kernel", kdir)
-    assert f"abi = {abi}" in text and kdir in text
-    toml.write_text(text)
-    return dst.parent
+    """The user target tests/target_fixtures/user/lab_board, with the mcu32 kernel, at *abi*."""
+    return lab_board_copy(tmp_path, abi)
 
 
 def test_user_target_with_header_and_source_templates(tmp_path):
@@ -254,12 +242,11 @@ def test_user_target_with_header_and_source_templates(tmp_path):
     assert out.count("ok lab.h") == len(progs)
 
 
-def test_template_errors_name_file_and_line():
-    fx = HERE / "target_fixtures"
+def test_template_errors_name_file_and_line(tmp_path):
     progs = [ChannelProgram("a", 48000.0, MCU32, (SEC,))]
     for name, pat in (("bad_template_syntax", r"header\.h\.j2:3: template syntax error"),
                       ("bad_template_undefined", r"header\.h\.j2:4: 'chip_trim_value' is undefined")):
-        t = find_target(name, [fx / name])
+        t = find_target(name, [target_copy(tmp_path, name)])
         real = fake_realisation(progs, "mcu32")
         real = type(real)(real.design, t, real.programs)
         with pytest.raises(TargetError, match=pat):
@@ -346,11 +333,11 @@ def test_float32_symmetric_fir_is_not_folded():
 
 
 def test_the_long_example_firs_are_folded():
-    """The linear-phase decimation FIRs of filters/ (277 and 45 taps) store 139 and
+    """The linear-phase decimation FIRs of filters/ (279 and 46 taps) store 140 and
     23 coefficients on a fixed-point target."""
     from coefc.api import load
 
-    for path, n in (("decimator_88k2.toml", 277), ("decimator_192k.toml", 45)):
+    for path, n in (("decimator_88k2.toml", 279), ("decimator_192k.toml", 46)):
         real = load(HERE.parent / "filters" / path).design().realise(find_target("mcu32"))
         text = render(real, None, header_name="d.h", vectors=0)["d.h"]
         assert re.search(rf"\{{COEFC_MCU32_OP_FIR_SYM, \d+u, {n}u, 0u, 0u\}}, /\* FIR, {n} taps, symmetric: "

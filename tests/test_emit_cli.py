@@ -26,6 +26,8 @@ target = "mcu32"
 
 [budget]
 passband_deviation_db = {deviation}
+limit_cycles = 64     # LSB: the DF1 Butterworth section holds a zero-input cycle of 31 LSB on mcu32
+overflow = "allow"    # a bench probe; the l2-scaled variant below overflows under worst-case input
 
 [[channel]]
 name = "left"

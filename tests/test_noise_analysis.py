@@ -166,3 +166,88 @@ def test_noise_spectrum_integrates_to_the_variance(rounding):
     assert np.trapezoid(density, f) == pytest.approx(res.variance, rel=1e-4)
     # the resonance shows: the density peaks near the pole angle 0.4 rad = 3056 Hz
     assert abs(f[np.argmax(density)] - 0.4 / (2 * math.pi) * 48000) < 300
+
+
+# ---------------------------------------------------------------- noise and offset apart
+
+def _first_order_program(a: float, rounding: str) -> ChannelProgram:
+    ar = Q15.with_(rounding=rounding)
+    # b0 = 1 - 2^-30: the products use all 30 dropped bits, so the continuous formulas apply
+    return one_section(-a, 0.0, ar, b0=1 - 2.0 ** -30)
+
+
+# Mean and variance of the error of dropping many bits, per rounding mode, in LSB and LSB^2:
+# rounding to nearest: mean 0, variance 1/12; two's-complement truncation: mean -1/2,
+# variance 1/12 (Widrow & Kollar, Quantization Noise, 2008, ch. 12-13 [confirmed];
+# Oppenheim & Schafer, Discrete-Time Signal Processing, 3rd ed., sec. 6.9 [confirmed]).
+ROUNDING_MEAN_VAR = {"add-half": (0.0, 1 / 12), "half-even": (0.0, 1 / 12), "truncate": (-0.5, 1 / 12)}
+A_POLE = 0.9 + 1e-4 * math.sqrt(2)
+
+
+@pytest.mark.parametrize("rounding", sorted(ROUNDING_MEAN_VAR))
+def test_noise_is_the_variance_and_the_offset_is_apart(rounding):
+    # 1/(1 - a z^-1), one rounding at the output: the error's mean passes at the DC gain
+    # 1/(1 - a) and its variance at the power gain sum a^(2n) = 1/(1 - a^2) (geometric series;
+    # Oppenheim & Schafer sec. 6.9, first-order example [confirmed]).
+    # a pole of 0.9 exactly would make frac(0.9 y) take only ten values, so the dropped bits
+    # would not be uniform (the uniform model's condition, Widrow & Kollar ch. 4); a hair off it
+    # they are
+    p = _first_order_program(A_POLE, rounding)
+    a = -p.ops[0].a[0] * 2.0 ** -30     # the realised pole
+    mu, s2 = ROUNDING_MEAN_VAR[rounding]
+    want_offset = mu / (1 - a)          # truncate: -5.007 LSB
+    want_var = s2 / (1 - a * a)         # 0.4392 LSB^2
+    lsb = 2.0 ** -15
+    an = analytic_noise(p)
+    assert an.offset_lsb == pytest.approx(want_offset, abs=1e-6)
+    assert an.variance / lsb ** 2 == pytest.approx(want_var, rel=1e-6)
+    # the noise figure is the variance in AES17 dBFS (0 dBFS = power 0.5), not the mean square
+    assert an.dbfs == pytest.approx(10 * math.log10(want_var * lsb ** 2 / 0.5), abs=1e-6)
+    if rounding == "truncate":
+        # the defect this guards against: the mean square (offset included) reads 17.6 dB higher
+        assert 10 * math.log10(an.power / 0.5) - an.dbfs > 17.0
+        assert an.offset_dbfs == pytest.approx(20 * math.log10(-want_offset * lsb / math.sqrt(0.5)), abs=1e-6)
+
+    # numpy on the bit-true engine's error against scipy.signal.lfilter of the same realised
+    # coefficients (scipy as the reference library)
+    from scipy import signal
+
+    from coefc.simulate import simulate
+
+    rng = np.random.default_rng(7)
+    x = rng.integers(-3000, 3001, 1 << 17)  # l1 gain 10: the output stays below full scale
+    y = np.asarray(simulate(p, x), dtype=np.float64)
+    (op,) = p.ops
+    b0, a1 = op.b[0] * 2.0 ** -30, op.a[0] * 2.0 ** -30
+    ref = signal.lfilter([b0], [1.0, a1], x.astype(np.float64))
+    e = (y - ref)[200:]
+    assert np.mean(e) == pytest.approx(want_offset, abs=0.05)  # standard error about 0.01
+    assert np.var(e) == pytest.approx(want_var, rel=0.05)       # standard error about 1.5 %
+    # the measured figures of the checker agree with numpy's on the engine
+    me = measured_noise(p, samples=1 << 17)
+    assert me.offset_lsb == pytest.approx(want_offset, abs=0.05)
+    assert me.variance / lsb ** 2 == pytest.approx(want_var, rel=0.05)
+    assert me.dbfs == pytest.approx(an.dbfs, abs=0.25)
+
+
+def test_offset_and_noise_in_the_metrics_json():
+    # the metrics carry the variance as output_noise_dbfs and the mean as output_offset_lsb/_dbfs,
+    # analytic and simulated (truncate: -q/2 through 1/(1 - a z^-1), Widrow & Kollar 2008 and
+    # Oppenheim & Schafer sec. 6.9 [confirmed], as above)
+    from coefc.analyse import analyse_channel
+    from coefc.blocks import ChannelDesign, SosBlock
+
+    p = _first_order_program(A_POLE, "truncate")
+    a = -p.ops[0].a[0] * 2.0 ** -30
+    d = ChannelDesign("t", 48000.0, (SosBlock(np.array([[1.0, 0, 0, 1.0, -a, 0]])),))
+    m = analyse_channel(d, p).as_dict()
+    lsb = 2.0 ** -15
+    off = -0.5 / (1 - a)
+    assert m["output_offset_lsb"] == pytest.approx(off, abs=1e-6)
+    se = m["output_offset_lsb_simulated_stderr"]
+    assert 0 < se < 0.05  # sqrt((1/12) (1/(1-a))^2 / N): the noise density at DC over the record
+    assert m["output_offset_lsb_simulated"] == pytest.approx(off, abs=5 * se)
+    assert m["output_offset_dbfs"] == pytest.approx(10 * math.log10((off * lsb) ** 2 / 0.5), abs=1e-6)
+    assert m["output_noise_dbfs"] == pytest.approx(10 * math.log10((1 / 12) / (1 - a * a) * lsb ** 2 / 0.5),
+                                                   abs=1e-6)
+    assert abs(m["output_noise_dbfs_simulated"] - m["output_noise_dbfs"]) < 0.3

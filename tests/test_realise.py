@@ -52,7 +52,10 @@ def test_physical_coefficients_are_within_half_an_lsb():
     lsb = 2.0 ** (sec.shift - 14)
     phys = np.array([*sec.b, *sec.a]) * lsb
     want = np.array([*sos[0, :3], *sos[0, 4:]])
-    assert np.all(np.abs(phys - want) <= lsb / 2)
+    # B1 is derived as 2*B0 to keep the double zero at z = -1 (see test_zeros_at_plus_minus_one_are_exact):
+    # every other coefficient is rounded once, B1 errs by at most twice half a step
+    assert np.all(np.abs(phys[[0, 2, 3, 4]] - want[[0, 2, 3, 4]]) <= lsb / 2)
+    assert abs(phys[1] - want[1]) <= lsb
 
 
 def test_coef_shift_when_a1_does_not_fit_the_coefficient_word():

@@ -15,6 +15,7 @@ import pytest
 from coefc.errors import TargetError
 from coefc.qformat import QFormat
 from coefc.targets import ENV_VAR, build_info, find_target, key_line, list_targets
+from conftest import lab_board_copy
 
 HERE = Path(__file__).resolve().parent
 FIXTURES = HERE / "target_fixtures"
@@ -70,10 +71,10 @@ def test_every_builtin_is_listed():
     assert {"mcu16", "mcu32", "dsp24", "float32"} <= set(names)
 
 
-def test_user_target_by_dir_and_by_environment(monkeypatch):
+def test_user_target_by_dir_and_by_environment(monkeypatch, tmp_path):
     with pytest.raises(TargetError):
         find_target("lab_board")
-    t = find_target("lab_board", [USER])
+    t = find_target("lab_board", [lab_board_copy(tmp_path)])
     assert str(t.arithmetic.data) == "Q1.27" and t.arithmetic.rounding == "half-even"
     assert build_info(t).source_template == "templates/lab.c.j2"
     monkeypatch.setenv(ENV_VAR, str(USER))
@@ -129,8 +130,8 @@ def test_key_line_finds_keys_in_their_table(tmp_path):
     assert key_line(p, "b", "y") is None
 
 
-def test_targets_command_lists_builtins_and_user_targets():
-    r = _cli("targets", "--target-dir", USER, "--json", "-")
+def test_targets_command_lists_builtins_and_user_targets(tmp_path):
+    r = _cli("targets", "--target-dir", lab_board_copy(tmp_path), "--json", "-")
     assert r.returncode == 0, r.stderr
     rows = {t["name"]: t for t in json.loads(r.stdout)["targets"]}
     assert rows["mcu16"]["arithmetic"]["data"] == "Q1.15"

@@ -1,10 +1,15 @@
-"""The library API, one call per arrow of the data flow.
+r"""The library API, one call per arrow of the data flow.
 
->>> import coefc
->>> desc = coefc.load("filters/three_way_monitor.toml")          # doctest: +SKIP
+>>> import pathlib, tempfile
+>>> import numpy as np, coefc
+>>> path = pathlib.Path(tempfile.mkdtemp()) / "probe.toml"
+>>> _ = path.write_text('name = "probe"\nsample_rate_hz = 48000\n[[channel]]\nname = "main"\n'
+...                     'stages = [{ kind = "gain", db = -6.020599913279624 }]\n')   # x 0.5
+>>> desc = coefc.load(path)                                        # validated description
 >>> design = desc.design()                                         # float design
 >>> real = design.realise(target="mcu32", overrides=None)          # fixed-point program
->>> y = real.simulate(x)                                           # {channel: output ints}
+>>> real.simulate(np.array([1 << 30, -(1 << 30)]))["main"].tolist()   # {channel: output ints}
+[536870912, -536870912]
 
 The CLI is a thin layer over these calls.
 """

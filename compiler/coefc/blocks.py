@@ -10,6 +10,7 @@ Frequencies are in Hz everywhere in the public API.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -86,6 +87,8 @@ class StageSummary:
     sections: int  # second-order sections (IIR)
     taps: int  # FIR taps
     latency_samples: float  # pure delay or FIR group delay at DC, where defined
+    # Designs given by requirements: asked, margin for quantisation, reached, how the margin was kept.
+    requirement: Mapping | None = None
 
 
 @dataclass(frozen=True, eq=False)
@@ -100,6 +103,9 @@ class ChannelDesign:
     # Stopbands stated by the stages' own requirements (stopband_hz), as (lo, hi) Hz:
     # where the quantised channel must keep its attenuation when the budget names none.
     stopbands: tuple[tuple[float, float], ...] = ()
+    # Every frequency (Hz) a stage names (cutoffs, centres, band edges): the response
+    # grid covers them all, down to the lowest.
+    edges_hz: tuple[float, ...] = ()
 
     def response(self, freqs_hz) -> np.ndarray:
         """Complex float response of the whole channel at *freqs_hz*."""

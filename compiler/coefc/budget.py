@@ -8,15 +8,22 @@ reason.  The rules:
 check                       passes when
 ==========================  =====================================================
 ``stable``                  every realised pole lies inside the unit circle (always checked)
+``l1_scaling``              with ``scaling = "l1"`` on fixed point (always checked): every
+                            internal node's realised l1 gain plus roundoff fits the data word
 ``passband_deviation_db``   max |quantised - float| in the passband <= limit
 ``stopband_attenuation_db`` achieved attenuation >= limit (no stopband: not applicable)
-``output_noise_dbfs``       the larger of the analytic and the measured noise <= limit
+``output_noise_dbfs``       the larger of the analytic and the measured noise (the variance of
+                            the output error, its mean excluded) <= limit
+``output_offset_lsb``       |DC offset of the output error| in LSB <= limit: the analytic mean,
+                            or the measured one where it exceeds that by more than three
+                            standard errors
 ``limit_cycles``            ``"none"``: a proven ``none``; a number N: a cycle found by an
                             exhaustive search of amplitude <= N, otherwise the rigorous
                             bound <= N
 ``overflow``                ``"none"``: no overflow event under the worst-case inputs (at the
-                            largest level whose ideal output stays within full scale) and
-                            no overflow oscillation found; ``"allow"``: always (with a caution)
+                            largest level whose ideal output stays within full scale, and at
+                            least one LSB) and no overflow oscillation found; ``"allow"``:
+                            always (with a caution)
 ``tone_gain_error_db``      on by default (limit :data:`DEFAULT_TONE_GAIN_ERROR_DB`; ``"off"``
                             switches it off): steady tones through the bit-true engine
                             (:mod:`coefc.analyse.tones`), max |measured - float design| gain
@@ -26,20 +33,36 @@ check                       passes when
                             limits around the standard's curve (largest excess <= 0 dB)
 ==========================  =====================================================
 
-Levels in dBFS follow AES17 (0 dBFS = RMS of a full-scale sine, full scale = 1.0).
+Safe by default: a budget that does not name ``limit_cycles`` or ``overflow`` gates
+them as ``"none"``, and one that does not name ``tone_gain_error_db`` gates it at
+0.5 dB (:data:`HAZARD_DEFAULTS`); the report names the defaults it applied.  An unstable or marginally stable realisation has no finite noise, offset,
+overflow or limit-cycle figure: those checks fail with the reason.
+
+Levels in dBFS follow AES17 (0 dBFS = RMS of a full-scale sine, full scale = 1.0);
+peaks are fractions of full scale or dB re full-scale peak.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field, replace
-from typing import NamedTuple
+from typing import Mapping, NamedTuple
 
 from .errors import DescriptionError
 from .program import SectionOp
+from .reporting import format_against, format_limit
 from .spec import Budget
 
 SCHEMA = 1
+
+#: The tone check's limit when the budget names none: |measured - float design| in dB.
+DEFAULT_TONE_GAIN_ERROR_DB = 0.5
+
+#: the hazards gated when the budget does not name them (overflow and limit cycles can
+#: drive an amplifier or actuator to full scale; a realisation that changes the signal,
+#: coefc.analyse.tones, is checked by default too)
+HAZARD_DEFAULTS = (("limit_cycles", "none"), ("overflow", "none"),
+                   ("tone_gain_error_db", DEFAULT_TONE_GAIN_ERROR_DB))
 
 CAUTION = (
     "caution: this budget tolerates {what}. A fixed-point filter that overflows or "
@@ -93,8 +116,9 @@ class CheckReport:
     source: str
     target: str
     channels: tuple[ChannelReport, ...]
-    budget: Budget
+    budget: Budget  # as applied: the file's, with overrides and the hazard defaults
     cautions: tuple[str, ...] = ()
+    defaults: Mapping = field(default_factory=dict)  # budget keys filled in by HAZARD_DEFAULTS
 
     @property
     def ok(self) -> bool:
@@ -115,6 +139,7 @@ class CheckReport:
             "ok": self.ok,
             "channels": [ch.as_dict() for ch in self.channels],
             "budget": _budget_dict(self.budget),
+            "defaults_applied": dict(self.defaults),
             "cautions": list(self.cautions),
             "dbfs_definition": "AES17: 0 dBFS is the RMS level of a full-scale sine (full scale = 1.0); "
                                "a noise of variance s2 reads 10*log10(s2/0.5) dBFS",
@@ -129,8 +154,8 @@ def _json_num(v):
 
 def _budget_dict(b: Budget) -> dict:
     return {"passband_deviation_db": b.passband_deviation_db, "stopband_attenuation_db": b.stopband_attenuation_db,
-            "output_noise_dbfs": b.output_noise_dbfs, "limit_cycles": b.limit_cycles, "overflow": b.overflow,
-            **_tone_budget(b),
+            "output_noise_dbfs": b.output_noise_dbfs, "output_offset_lsb": b.output_offset_lsb,
+            "limit_cycles": b.limit_cycles, "overflow": b.overflow, **_tone_budget(b),
             "passband": [list(x) for x in b.passband] if b.passband else None,
             "stopband": [list(x) for x in b.stopband] if b.stopband else None}
 
@@ -139,7 +164,8 @@ def _budget_dict(b: Budget) -> dict:
 
 def apply_overrides(budget: Budget, *, passband_deviation_db: float | None = None,
                     stopband_attenuation_db: float | None = None, output_noise_dbfs: float | None = None,
-                    limit_cycles: str | None = None, overflow: str | None = None) -> Budget:
+                    limit_cycles: str | None = None, overflow: str | None = None,
+                    output_offset_lsb: float | None = None) -> Budget:
     """Budget with command-line overrides applied (``None`` = keep the file's value).
 
     ``limit_cycles`` is ``"none"`` or a number of LSB as text; ``overflow`` is
@@ -162,6 +188,11 @@ def apply_overrides(budget: Budget, *, passband_deviation_db: float | None = Non
             raise DescriptionError(where, f"{output_noise_dbfs} dBFS is not a noise limit; write a finite "
                                    "negative level such as -120", key="--max-noise-dbfs")
         ch["output_noise_dbfs"] = float(output_noise_dbfs)
+    if output_offset_lsb is not None:
+        if not (output_offset_lsb >= 0 and math.isfinite(output_offset_lsb)):
+            raise DescriptionError(where, f"{output_offset_lsb} LSB: use a finite, non-negative offset such as 0.5",
+                                   key="--max-offset-lsb")
+        ch["output_offset_lsb"] = float(output_offset_lsb)
     if limit_cycles is not None:
         text = str(limit_cycles).strip().lower()
         if text == "none":
@@ -192,27 +223,44 @@ def _fmt(v, unit=""):
     return f"{v}{unit}"
 
 
+def with_defaults(budget: Budget) -> tuple[Budget, dict]:
+    """*budget* with the hazards it does not name gated as ``"none"``, and those defaults."""
+    defaults = {k: v for k, v in HAZARD_DEFAULTS if getattr(budget, k) is None}
+    return (replace(budget, **defaults) if defaults else budget), defaults
+
+
 def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], dict[str, str]]:
     """The checks of one channel: (list of Check, reasons by check name).
+
+    Compares *budget* as given (keys set to ``None`` are not checked); :func:`run_check`
+    fills in the hazard defaults first.
 
     *tones* is the channel's :class:`coefc.analyse.tones.ToneAnalysis` (None: not run).
     """
     r, lc, ov = metrics.response, metrics.limit_cycles, metrics.overflow
     checks: list[Check] = []
     why: dict[str, str] = {}
+    unstable = getattr(metrics, "unstable", None)
+    if unstable is None and not r.stable:
+        unstable = f"a realised pole has radius {r.max_pole_radius:.6f} >= 1"
+    no_figure = (f"no finite figure: the realisation is unstable, so its roundoff error grows without bound "
+                 f"or never decays ({unstable})" if unstable else "")
 
-    ok = r.stable
+    ok = unstable is None
     checks.append(Check("stable", r.max_pole_radius, 1.0, ok))
-    why["stable"] = (f"largest realised pole radius {r.max_pole_radius:.6f} "
-                     + ("< 1" if ok else ">= 1: the quantised filter is unstable; use wider coefficients"))
+    why["stable"] = (f"largest realised pole radius {r.max_pole_radius:.6f} < 1" if ok else
+                     f"unstable: {unstable}; use wider coefficients")
+
+    if getattr(ov, "l1_worst", None) is not None:  # the promise of l1 scaling, checked whatever the budget says
+        checks.append(_l1_check(ov, why))
 
     if budget.passband_deviation_db is not None:
         v, lim = r.passband_deviation_db, budget.passband_deviation_db
         ok = v is not None and v <= lim
         checks.append(Check("passband_deviation_db", v, lim, ok))
         why["passband_deviation_db"] = (
-            f"passband ({r.passband_rule}) deviates by up to {_fmt(v, ' dB')}"
-            + ("" if ok else f", over the {lim:g} dB limit; widen the coefficient word"))
+            f"passband ({r.passband_rule}) deviates by up to {format_against(v, lim, '<=', ok)} dB"
+            + ("" if ok else f", over the {format_limit(lim)} dB limit; widen the coefficient word"))
 
     if budget.stopband_attenuation_db is not None:
         v, lim = r.stopband_attenuation_db, budget.stopband_attenuation_db
@@ -223,11 +271,15 @@ def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], di
             ok = v >= lim
             checks.append(Check("stopband_attenuation_db", v, lim, ok))
             why["stopband_attenuation_db"] = (
-                f"stopband ({r.stopband_rule}) is {v:.4g} dB down (float design {_fmt(r.float_stopband_attenuation_db)} dB)"
-                + ("" if ok or round(v, 2) < lim else f" -- {v:.6f} dB to be exact")
-                + ("" if ok else f", short of {lim:g} dB; widen the coefficient word or name the stopband bands"))
+                f"stopband ({r.stopband_rule}) is {format_against(v, lim, '>=', ok)} dB down "
+                f"(float design {_fmt(r.float_stopband_attenuation_db)} dB)"
+                + ("" if ok else f", short of {format_limit(lim)} dB; widen the coefficient word or name the "
+                   "stopband bands"))
 
-    if budget.output_noise_dbfs is not None:
+    if budget.output_noise_dbfs is not None and unstable:
+        checks.append(Check("output_noise_dbfs", None, budget.output_noise_dbfs, False))
+        why["output_noise_dbfs"] = no_figure
+    elif budget.output_noise_dbfs is not None:
         lim = budget.output_noise_dbfs
         an = metrics.noise.dbfs if metrics.noise else None
         me = metrics.measured.dbfs if metrics.measured else None
@@ -236,19 +288,27 @@ def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], di
         ok = v is not None and v <= lim
         checks.append(Check("output_noise_dbfs", v, lim, ok))
         why["output_noise_dbfs"] = (
-            f"roundoff noise {_fmt(v, ' dBFS')} (analytic {_fmt(an)}, measured {_fmt(me)}; AES17 dBFS)"
-            + ("" if ok else f", above the {lim:g} dBFS limit; "
+            f"roundoff noise {format_against(v, lim, '<=', ok) if v is not None else 'n/a'} dBFS "
+            f"(variance of the output error; analytic {_fmt(an)}, measured {_fmt(me)}; AES17 dBFS)"
+            + ("" if ok else f", above the {format_limit(lim)} dBFS limit; "
                + ("try tdf2, or a fixed-point target with a wide data word and error feedback (df1ef)"
                   if metrics.is_float else "widen the data word"
                   + ("" if metrics.structure == "df1ef" else " or use error feedback (df1ef)")))
             + (f"; note: {metrics.measured.note}" if metrics.measured is not None and metrics.measured.note else ""))
 
-    if budget.limit_cycles is not None:
+    lim = getattr(budget, "output_offset_lsb", None)
+    if lim is not None:
+        checks.append(_offset_check(metrics, lim, no_figure, why))
+
+    if budget.limit_cycles is not None and unstable:
+        checks.append(Check("limit_cycles", None, budget.limit_cycles, False))
+        why["limit_cycles"] = no_figure
+    elif budget.limit_cycles is not None:
         lim = budget.limit_cycles
         if metrics.is_float:
             checks.append(Check("limit_cycles", None, lim, True))
             why["limit_cycles"] = ("not applicable: float32 rounding is relative to the value, so zero-input "
-                                   "decay can only stall near the denormal range (about -759 dBFS); not analysed")
+                                   "decay can only stall near the denormal range (about 1e-38 of full scale); not analysed")
         else:
             st, amp, bound = lc.status, lc.amplitude_lsb, lc.bound_lsb
             if lim == "none":
@@ -282,27 +342,28 @@ def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], di
                 else:
                     reason = (f"rigorous bound {_fmt(bound)} LSB" + (f", cycles of {amp} LSB found" if amp else ""))
                 if not ok:
-                    reason += f"; over the {lim:g} LSB limit"
+                    reason += f"; over the {format_limit(lim)} LSB limit"
             checks.append(Check("limit_cycles", v, lim, ok))
             why["limit_cycles"] = reason
 
-    if budget.overflow is not None:
+    if budget.overflow is not None and unstable:
+        checks.append(Check("overflow", None, budget.overflow, False))
+        why["overflow"] = no_figure
+    elif budget.overflow is not None:
         lim = budget.overflow
         n = ov.overflow_count
         osc = "none" if metrics.is_float else lc.overflow_status
-        # No safe input level at all: the worst-case roundoff alone can reach full scale,
-        # so the zero events of a zero-level test prove nothing.
-        no_level = not metrics.is_float and ov.runs > 0 and ov.input_peak <= 0
+        # No safe input level at all: the worst-case roundoff alone can reach full scale, or
+        # the safe level is below one LSB, so the test input quantises to zero; the zero
+        # events of such a test prove nothing.
+        peak_lsb = getattr(ov, "input_peak_lsb", None)
+        no_level = not metrics.is_float and ov.runs > 0 and (ov.input_peak <= 0 or peak_lsb == 0)
         if lim == "allow":
             ok = True
         else:
             ok = (n == 0) and osc != "found" and not no_level
         checks.append(Check("overflow", n, lim, ok))
-        at = "full scale" if ov.input_peak >= 1.0 else (
-            f"{20 * math.log10(ov.input_peak):.2f} dBFS peak, where the design's own output "
-            f"(peak gain {ov.output_peak_gain:.3g}) reaches full scale" if ov.input_peak > 0 else
-            "zero level: no input level is safe, because the worst-case roundoff of the realisation alone "
-            "can reach full scale (widen the data word)")
+        at = _overflow_level(ov, peak_lsb)
         parts = [f"{_fmt(n)} overflow events under worst-case inputs at {at} ({ov.runs} runs); "
                  f"worst node {ov.worst_node} headroom {_fmt(ov.headroom_bits, ' bits')}"]
         if ov.input_peak < 1.0 and ov.overflow_count_full_scale:
@@ -319,23 +380,95 @@ def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], di
     return checks, why
 
 
+def _l1_check(ov, why: dict) -> Check:
+    """``l1_scaling``: no internal node can overflow for any input within full scale.
+
+    Passes when every internal node's bound (realised l1 gain plus the roundoff that
+    reaches it) is at most the largest data word and the bit-true worst-case runs at
+    full scale saw no event at an internal node.
+    """
+    ratio = ov.l1_worst / ov.l1_limit
+    events = ov.internal_events_full_scale
+    ok = ratio <= 1.0 and not events
+    text = (f"worst case of any internal node for inputs within full scale: {ratio:.12g} of the largest data word "
+            f"at {ov.l1_worst_node} (realised l1 gain plus roundoff)")
+    if events is not None:
+        text += f"; {events} events at internal nodes under full-scale worst-case inputs ({ov.runs} runs)"
+    if ratio > 1.0:
+        text += (f"; the l1 promise does not hold: {math.log2(ratio):.2f} bits of headroom missing "
+                 f"(about {math.ceil(math.log2(ratio)):d} more data bits, or wider coefficients)")
+    elif events:
+        text += "; the l1 promise does not hold"
+    why["l1_scaling"] = text
+    return Check("l1_scaling", ratio, 1.0, ok)
+
+
+def _peak_text(peak: float) -> str:
+    """A peak level as a fraction of full scale and in dB re full-scale peak (not dBFS: AES17 is RMS)."""
+    text = f"{peak:.4g}"
+    if text == "1":  # just below full scale: show that it is below
+        text = f"{peak:.9g}"
+    return f"{text} of full scale ({20 * math.log10(peak):.2f} dB re full-scale peak)"
+
+
+def _overflow_level(ov, peak_lsb) -> str:
+    """Where the worst-case runs were made, and why there."""
+    if ov.input_peak >= 1.0:
+        return "full scale"
+    gains = f"peak gain {ov.output_peak_gain:.4g}"
+    if getattr(ov, "design_peak_gain", None) is not None:
+        gains += f"; the float design's {ov.design_peak_gain:.4g}"
+    if ov.input_peak <= 0:
+        return ("zero level: no input level is safe, because the worst-case roundoff of the realisation alone "
+                "can reach full scale (widen the data word)")
+    if peak_lsb == 0:
+        return (f"no safe level: the largest level at which the realised filter's output stays within full scale "
+                f"({_peak_text(ov.input_peak)}; {gains}) is below one LSB, so the test input quantises to all "
+                "zeros and shows nothing (widen the data word)")
+    return (f"{_peak_text(ov.input_peak)}, the largest level at which the realised filter's ideal output "
+            f"(its quantised coefficients without rounding; {gains}) stays within full scale, less the "
+            "worst-case roundoff")
+
+
+def _offset_check(metrics, lim: float, no_figure: str, why: dict) -> Check:
+    """``output_offset_lsb``: the DC offset of the output error, in LSB, against *lim*."""
+    if no_figure:
+        why["output_offset_lsb"] = no_figure
+        return Check("output_offset_lsb", None, lim, False)
+    an = getattr(metrics, "output_offset_lsb", None)
+    me = getattr(metrics, "output_offset_lsb_simulated", None)
+    se = getattr(metrics, "offset_stderr_lsb", None)
+    if an is None:  # float32: only the measured figure exists
+        v = abs(me) if me is not None else None
+        basis = "measured"
+    else:
+        v = abs(an)
+        basis = "analytic"
+        # the measurement overrides the model only where it is significantly larger
+        if me is not None and se is not None and abs(me) - 3 * se > v:
+            v, basis = abs(me), "measured"
+    ok = v is not None and v <= lim
+    text = format_against(v, lim, "<=", ok) if v is not None else "n/a"
+    why["output_offset_lsb"] = (
+        f"DC offset of the output error {text} LSB ({basis}; analytic {_fmt(an)}, measured {_fmt(me)}"
+        + (f" +- {se:.2g}" if se is not None else "") + " LSB)"
+        + ("" if ok else f", over the {format_limit(lim)} LSB limit; use add-half or half-even rounding "
+           "instead of truncate, or a wider data word"))
+    return Check("output_offset_lsb", v, lim, ok)
+
+
 # ------------------------------------------------------------------ steady tones (coefc.analyse.tones)
-
-#: The tone check's limit when the budget names none: |measured - float design| in dB.
-DEFAULT_TONE_GAIN_ERROR_DB = 0.5
-
 
 def _tone_budget(b: Budget) -> dict:
     from .analyse.tones import DEFAULT_LEVELS_DBFS
 
-    lim = DEFAULT_TONE_GAIN_ERROR_DB if b.tone_gain_error_db is None else b.tone_gain_error_db
-    return {"tone_gain_error_db": lim, "tone_levels_dbfs": list(b.tone_levels_dbfs or DEFAULT_LEVELS_DBFS),
-            "tone_gain_error_db_default": b.tone_gain_error_db is None}
+    return {"tone_gain_error_db": b.tone_gain_error_db,
+            "tone_levels_dbfs": list(b.tone_levels_dbfs or DEFAULT_LEVELS_DBFS)}
 
 
 def _run_tones(design, program, metrics, budget: Budget):
     """The channel's tone analysis, or None when the budget switches the check off."""
-    if budget.tone_gain_error_db == "off":
+    if budget.tone_gain_error_db in (None, "off"):
         return None
     from .analyse.tones import DEFAULT_LEVELS_DBFS, analyse_tones
 
@@ -351,8 +484,7 @@ def _hz(f: float) -> str:
 def _tone_checks(t, budget: Budget, why: dict) -> list[Check]:
     """``tone_gain_error_db``, and ``iec61672_class1_excess_db`` for a channel with a weighting stage."""
     name = "tone_gain_error_db"
-    default = budget.tone_gain_error_db is None
-    lim = DEFAULT_TONE_GAIN_ERROR_DB if default else float(budget.tone_gain_error_db)
+    lim = float(DEFAULT_TONE_GAIN_ERROR_DB if budget.tone_gain_error_db is None else budget.tone_gain_error_db)
     levels = ", ".join(f"{v:g}" for v in t.levels_dbfs)
     if t.status != "measured":
         why[name] = t.note
@@ -372,9 +504,7 @@ def _tone_checks(t, budget: Budget, why: dict) -> list[Check]:
              f"{w.design_gain_db:.4g} dB"
              + (f", output held at {w.dc_lsb:.0f} LSB DC" if w.below_resolution and w.dc_lsb is not None else "")
              + ")" + (f" -- {v:.6f} dB to be exact" if not ok and round(v, 4) <= lim else "")]
-    if default:
-        parts.append(f"default limit {lim:g} dB")
-    if t.settle_capped:
+    if t.note:
         parts.append(t.note)
     if not ok:
         parts.append("the chip's rounding changes the signal (dead band or granular distortion): use error "
@@ -424,12 +554,15 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
     ----------
     realisation : coefc.api.Realisation
     budget : Budget
-        Usually ``description.budget`` with :func:`apply_overrides` applied.
+        Usually ``description.budget`` with :func:`apply_overrides` applied; the
+        hazards it does not name are gated as ``"none"`` (:func:`with_defaults`), and
+        the report's ``defaults`` names them.
     options : coefc.analyse.AnalysisOptions, optional
         Bands and search effort; bands default to the budget's ``passband``/``stopband``.
     """
     from .analyse import AnalysisOptions, analyse_channel
 
+    budget, defaults = with_defaults(budget)
     opt = options or AnalysisOptions()
     if opt.passband is None and budget.passband:
         opt = replace(opt, passband=tuple(budget.passband))
@@ -458,4 +591,4 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
     if tolerated:
         cautions.append(CAUTION.format(what=" and ".join(tolerated)))
     return CheckReport(realisation.design.loaded.description.source, realisation.target.name, tuple(reports),
-                       budget, tuple(cautions))
+                       budget, tuple(cautions), defaults)

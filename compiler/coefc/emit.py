@@ -59,7 +59,7 @@ import numpy as np
 from .errors import CoefcError, DescriptionError, TargetError
 from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
 from .targets import BuildInfo, Target, build_info
-from .templating import environment
+from .templating import TemplateLimitError, environment, render_bounded
 
 __all__ = ["render", "c_identifier", "golden_input", "GOLDEN_DEFAULT", "EmitError"]
 
@@ -182,8 +182,8 @@ def golden_input(n: int, width: int) -> list[int]:
     4. full-scale steps alternating between the largest and the smallest word
        every 16 samples, to drive saturation (or wrapping).
 
-    >>> golden_input(8, 16)[:3]
-    [32767, 0, 16383]
+    >>> golden_input(8, 16)[:3]    # the impulse, silence, the chirp's first (lowest) point
+    [32767, 0, -16383]
     """
     hi, lo = (1 << (width - 1)) - 1, -(1 << (width - 1))
     q = max(1, n // 4)
@@ -373,8 +373,14 @@ def render_template(folder: Path, rel: str, context: dict) -> str:
         raise TargetError(f"{path}:{e.lineno}: template syntax error: {e.message}; fix the template") from None
     except jinja2.TemplateNotFound:
         raise TargetError(f"{path}: template not found; fix [templates] in target.toml") from None
+    except TemplateLimitError as e:
+        raise TargetError(f"{path}: {e}") from None
     try:
-        return template.render(**context)
+        return render_bounded(template, context)
+    except TemplateLimitError as e:
+        raise TargetError(f"{path}: {e}") from None
+    except jinja2.exceptions.SecurityError as e:
+        raise TargetError(f"{path}: template error: {e}; templates may not call that") from None
     except jinja2.UndefinedError as e:
         line = _template_line(sys.exc_info()[2], path.resolve()) or _template_line(sys.exc_info()[2], path)
         at = f"{path}:{line}" if line else str(path)

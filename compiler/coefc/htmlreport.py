@@ -19,7 +19,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import CoefcError
-from .reporting import format_number
+from .reporting import CHECK_OPS, format_against, format_limit, format_number
 
 TEMPLATE_DIR = Path(__file__).parent / "templates"
 
@@ -133,6 +133,11 @@ def pole_zero_svg(plt, design, program) -> str | None:
     return _svg(fig)
 
 
+def _defaulted(report, key: str, value):
+    """A budget value, marked when the hazard default supplied it."""
+    return f"{value} (default)" if key in (getattr(report, "defaults", None) or {}) else value
+
+
 def render_report(report, realisation) -> str:
     """The HTML page of a :class:`coefc.budget.CheckReport` (raises CoefcError without matplotlib)."""
     from . import __version__
@@ -150,7 +155,8 @@ def render_report(report, realisation) -> str:
             "name": ch.name,
             "ok": ch.ok,
             "arithmetic": ", ".join(f"{k} {v}" for k, v in ch.arithmetic.items() if v is not None),
-            "checks": [{"name": c.name, "value": format_number(c.value), "limit": format_number(c.limit), "ok": c.ok,
+            "checks": [{"name": c.name, "value": format_against(c.value, c.limit, CHECK_OPS.get(c.name, "<="), c.ok),
+                        "limit": format_limit(c.limit), "ok": c.ok,
                         "reason": ch.reasons.get(c.name, "")} for c in ch.checks],
             "sections": [{"index": i + 1, "b": s["b"], "a": s["a"], "coef_shift": s["coef_shift"],
                           "structure": s.get("structure", "")} for i, s in enumerate(ch.sections)],
@@ -173,7 +179,9 @@ def render_report(report, realisation) -> str:
         budget={k: v for k, v in (("passband deviation (dB)", budget.passband_deviation_db),
                                   ("stopband attenuation (dB)", budget.stopband_attenuation_db),
                                   ("output noise (dBFS)", budget.output_noise_dbfs),
-                                  ("limit cycles", budget.limit_cycles), ("overflow", budget.overflow))
+                                  ("output offset (LSB)", budget.output_offset_lsb),
+                                  ("limit cycles", _defaulted(report, "limit_cycles", budget.limit_cycles)),
+                                  ("overflow", _defaulted(report, "overflow", budget.overflow)))
                 if v is not None},
     )
     return re.sub(r"[ \t]+\n", "\n", html)

@@ -12,7 +12,11 @@ import json
 import math
 from xml.sax.saxutils import escape, quoteattr
 
-DBFS_NOTE = "dBFS per AES17: 0 dBFS = RMS of a full-scale sine (full scale = 1.0)."
+DBFS_NOTE = ("dBFS per AES17: 0 dBFS = RMS of a full-scale sine (full scale = 1.0); "
+             "peaks are fractions of full scale (dB re full-scale peak).")
+
+#: how each numeric check compares its value with its limit (all others: value <= limit)
+CHECK_OPS = {"stopband_attenuation_db": ">=", "stable": "<"}
 
 
 def format_number(v) -> str:
@@ -30,11 +34,49 @@ def format_number(v) -> str:
     return str(v)
 
 
+def _holds(value: float, limit: float, op: str) -> bool:
+    return value >= limit if op == ">=" else value < limit if op == "<" else value <= limit
+
+
+def format_limit(limit) -> str:
+    """A limit as written (up to 12 significant digits: the user's own number)."""
+    if isinstance(limit, float) and math.isfinite(limit):
+        return f"{limit:.12g}"
+    return format_number(limit)
+
+
+def format_against(value, limit, op: str = "<=", ok: bool | None = None) -> str:
+    """*value* with enough digits that the printed number compares with *limit* as the check did.
+
+    Four significant digits unless that would show a failing value as passing (or the
+    reverse): ``FAIL -120 <= -120`` becomes ``FAIL -119.99996 <= -120``.  When the
+    verdict does not rest on this comparison alone, four digits are kept.
+    """
+    text = format_number(value)
+    if (ok is None or isinstance(value, bool) or not isinstance(value, (int, float))
+            or not isinstance(limit, (int, float)) or isinstance(limit, bool)
+            or not math.isfinite(value) or not math.isfinite(limit)):
+        return text
+    if _holds(float(value), float(limit), op) != ok:
+        return text  # the verdict rests on more than this comparison
+    for digits in range(4, 18):
+        if abs(value) >= 1e5 or (value != 0 and abs(value) < 1e-3):
+            text = f"{value:.{digits - 1}e}"
+        else:
+            text = f"{value:.{digits}g}"
+        if _holds(float(text), float(limit), op) == ok:
+            return text
+    return repr(float(value))
+
+
 def _limit(name: str, limit) -> str:
     if isinstance(limit, str):
         return limit
-    op = ">=" if name == "stopband_attenuation_db" else "<" if name == "stable" else "<="
-    return f"{op} {format_number(limit)}"
+    return f"{CHECK_OPS.get(name, '<=')} {format_limit(limit)}"
+
+
+def _value(name: str, c) -> str:
+    return format_against(c.value, c.limit, CHECK_OPS.get(name, "<="), c.ok)
 
 
 def render_text(report) -> str:
@@ -51,12 +93,21 @@ def render_text(report) -> str:
         w = max([len(c.name) for c in ch.checks] + [10])
         for c in ch.checks:
             mark = "ok  " if c.ok else "FAIL"
-            lines.append(f"  {mark} {c.name:<{w}} {format_number(c.value):>14}  {_limit(c.name, c.limit):<12} "
+            lines.append(f"  {mark} {c.name:<{w}} {_value(c.name, c):>14}  {_limit(c.name, c.limit):<12} "
                          f"{ch.reasons.get(c.name, '')}")
     lines.append(DBFS_NOTE)
-    nfail = len(report.failures())
-    lines.append(f"{report.source}: {'all checks pass' if report.ok else f'{nfail} check(s) over budget'}")
+    lines.append(f"{report.source}: {verdict_line(report)}")
     return "\n".join(lines) + "\n"
+
+
+def verdict_line(report) -> str:
+    """``all checks pass`` or ``N check(s) over budget``, naming the budget defaults applied."""
+    nfail = len(report.failures())
+    text = "all checks pass" if report.ok else f"{nfail} check(s) over budget"
+    defaults = getattr(report, "defaults", None) or {}
+    if defaults:
+        text += " (defaults applied: " + ", ".join(f"{k} = {v}" for k, v in defaults.items()) + ")"
+    return text
 
 
 def render_json(report) -> str:
@@ -75,7 +126,7 @@ def render_junit(report) -> str:
         for c in ch.checks:
             cls = quoteattr(f"{report.source}.{ch.name}")
             reason = ch.reasons.get(c.name, "")
-            msg = f"{c.name} = {format_number(c.value)}, limit {_limit(c.name, c.limit)}: {reason}"
+            msg = f"{c.name} = {_value(c.name, c)}, limit {_limit(c.name, c.limit)}: {reason}"
             if c.ok:
                 out.append(f'    <testcase classname={cls} name={quoteattr(c.name)}>'
                            f'<system-out>{escape(msg)}</system-out></testcase>')

@@ -29,7 +29,9 @@ for text, the line.
 
 from __future__ import annotations
 
+import array
 import io
+import re
 import struct
 from pathlib import Path
 
@@ -135,6 +137,8 @@ def read_samples(path, arithmetic: Arithmetic, sample_rate_hz: float | None = No
     if data.dtype.kind == "f":
         if not np.all(np.isfinite(data)):
             raise DataError(f"{path}: float WAV contains NaN or infinity")
+        if arithmetic.is_float and np.max(np.abs(data)) > FLOAT32_MAX:
+            raise DataError(f"{path}: float WAV holds samples outside the float32 range; scale them down")
         return _from_float(data.astype(np.float64), arithmetic)
     if data.dtype in (np.int16, np.int32):
         pcm_bits = 16 if data.dtype == np.int16 else 32  # 24-bit arrives left-justified in int32
@@ -162,44 +166,58 @@ def _from_float(x: np.ndarray, ar: Arithmetic) -> np.ndarray:
     return np.array([fit_word(int(v), w, "saturate") for v in r], dtype=np.int64)
 
 
+_INT_RE = re.compile(r"[+-]?[0-9]+")
+_PLAIN_LINE_RE = re.compile(rb"[\x20-\x7e\t]*\r?\n?")
+_REAL_RE = re.compile(r"[+-]?(?:[0-9]+\.?[0-9]*|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
+FLOAT32_MAX = float(np.finfo(np.float32).max)
+
+
 def _read_text(path: Path, ar: Arithmetic) -> np.ndarray:
+    """Plain ASCII samples, one per line, read line by line into a packed array (a long
+    file never becomes a list of Python objects)."""
+    vals = array.array("d" if ar.is_float else "q")
     try:
-        text = path.read_text(encoding="utf-8")
-    except (OSError, UnicodeDecodeError) as e:
-        raise DataError(f"{path}: cannot read as UTF-8 text ({e})") from None
-    vals: list = []
-    for lineno, line in enumerate(text.splitlines(), 1):
-        body = line.split("#", 1)[0].strip()
-        if not body:
-            continue
-        parts = body.split()
-        if len(parts) != 1:
-            raise DataError(f"{path}:{lineno}: {len(parts)} values on one line; the input takes one sample per "
-                            "line")
-        tok = parts[0]
-        if ar.is_float:
-            try:
-                v = float(tok)
-            except ValueError:
-                raise DataError(f"{path}:{lineno}: '{tok}' is not a number") from None
-            if not np.isfinite(v):
-                raise DataError(f"{path}:{lineno}: '{tok}' is not finite")
-            vals.append(v)
-            continue
-        try:
-            v = int(tok, 10)
-        except ValueError:
-            raise DataError(f"{path}:{lineno}: '{tok}' is not an integer data word; write raw {ar.data} words "
-                            f"({ar.data.min_int} .. {ar.data.max_int}), one per line") from None
-        if not ar.data.min_int <= v <= ar.data.max_int:
-            raise DataError(f"{path}:{lineno}: {v} is outside the {ar.data} data word "
-                            f"({ar.data.min_int} .. {ar.data.max_int})")
-        vals.append(v)
+        with open(path, "rb") as f:
+            for lineno, raw in enumerate(f, 1):
+                if lineno == 1 and raw.startswith(b"\xef\xbb\xbf"):
+                    raise DataError(f"{path}:1: the file starts with a byte-order mark; save it as plain "
+                                    "ASCII text (one integer sample per line, no BOM)")
+                if not _PLAIN_LINE_RE.fullmatch(raw):
+                    raise DataError(f"{path}:{lineno}: not plain ASCII text (a binary file or other "
+                                    "characters); write one integer sample per line with the digits 0-9")
+                line = raw.decode("ascii")
+                body = line.split("#", 1)[0].strip()
+                if body:
+                    vals.append(_text_sample(path, lineno, body, ar))
+    except OSError as e:
+        raise DataError(f"{path}: cannot read ({e.strerror or e})") from None
     if not vals:
         raise DataError(f"{path}: no samples (only blank lines or comments); write one sample per line")
+    return np.frombuffer(vals, dtype=np.float64).astype(np.float32) if ar.is_float \
+        else np.frombuffer(vals, dtype=np.int64).copy()
+
+
+def _text_sample(path: Path, lineno: int, body: str, ar: Arithmetic):
+    parts = body.split()
+    if len(parts) != 1:
+        raise DataError(f"{path}:{lineno}: {len(parts)} values on one line; the input takes one sample per line")
+    tok = parts[0]
     if ar.is_float:
-        return np.array(vals, dtype=np.float32)
-    return np.array(vals, dtype=np.int64)
+        if not _REAL_RE.fullmatch(tok):
+            raise DataError(f"{path}:{lineno}: '{tok}' is not a finite decimal number (such as -0.25 or 1e-3)")
+        v = float(tok)
+        if not abs(v) <= FLOAT32_MAX:
+            raise DataError(f"{path}:{lineno}: {tok} is outside the float32 range (magnitude at most "
+                            f"{FLOAT32_MAX:.7g})")
+        return v
+    if not _INT_RE.fullmatch(tok) or ar.data.width > 64:
+        raise DataError(f"{path}:{lineno}: '{tok}' is not an integer data word; write raw {ar.data} words "
+                        f"({ar.data.min_int} .. {ar.data.max_int}), one per line")
+    v = int(tok, 10)
+    if not ar.data.min_int <= v <= ar.data.max_int:
+        raise DataError(f"{path}:{lineno}: {v} is outside the {ar.data} data word "
+                        f"({ar.data.min_int} .. {ar.data.max_int})")
+    return v
 
 
 def format_samples(path, outputs: dict[str, np.ndarray], arithmetic: Arithmetic, sample_rate_hz: float) -> bytes:

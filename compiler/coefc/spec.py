@@ -57,6 +57,7 @@ class Budget:
     output_noise_dbfs: float | None = None
     limit_cycles: str | float | None = None  # "none" or a maximum amplitude in LSB
     overflow: str | None = None  # "none" or "allow"
+    output_offset_lsb: float | None = None  # maximum |DC offset of the output error|, LSB
     tone_gain_error_db: float | str | None = None  # None: the default limit; "off": not checked
     tone_levels_dbfs: tuple[float, ...] | None = None  # None: the default levels
     extra: Mapping = field(default_factory=lambda: MappingProxyType({}))  # keys added by later checks
@@ -119,6 +120,16 @@ WEIGHTINGS = ("A", "C")
 MAX_IIR_ORDER = 40
 MAX_FIR_TAPS = 8191
 MAX_DELAY_SAMPLES = 1 << 20
+#: Bounds on the work one description can ask for (a merge gate must finish): the
+#: file itself, and per channel the totals after design.  Each is far above what
+#: a product needs (the bundled examples use a few percent of each).
+MAX_DESCRIPTION_BYTES = 1 << 20
+MAX_KEY_DEPTH = 8  # dotted-key segments; descriptions use at most 3
+MAX_CHANNELS = 64
+MAX_STAGES = 64  # per channel
+MAX_CHANNEL_TAPS = 16384  # FIR taps of one channel, all stages together
+MAX_CHANNEL_SECTIONS = 64  # second-order sections of one channel
+MAX_CHANNEL_DELAY_SAMPLES = 1 << 20  # delay of one channel, all stages together
 #: Sample rates accepted: from slow sensors to fast converters; beyond them the
 #: header's rate macro and the WAV header cannot state the rate.
 MIN_SAMPLE_RATE_HZ = 0.001
@@ -294,6 +305,7 @@ _IIR_KEYS = {
     "stopband_hz": _EDGE,
     "ripple_db": _positive,
     "attenuation_db": _positive,
+    "margin_db": _non_negative,
     "freq_hz": _frequency,
     "q": _positive,
     "bandwidth_oct": _positive,
@@ -304,6 +316,7 @@ _FIR_KEYS = {
     "stopband_hz": _EDGE,
     "attenuation_db": _positive,
     "ripple_db": _positive,
+    "margin_db": _non_negative,
     "taps": _positive_int,
 }
 STAGE_KEYS: dict[str, dict] = {
@@ -330,7 +343,8 @@ _FREQ_KEYS = ("cutoff_hz", "passband_hz", "stopband_hz", "freq_hz")
 _TOP_KEYS = ("name", "sample_rate_hz", "implementation", "budget", "channel")
 _IMPL_KEYS = ("target", "structure", "data", "coef", "acc_bits", "rounding", "overflow", "scaling")
 _BUDGET_KEYS = ("passband_deviation_db", "stopband_attenuation_db", "output_noise_dbfs", "limit_cycles",
-                "overflow", "passband", "stopband", "tone_gain_error_db", "tone_levels_dbfs")
+                "overflow", "passband", "stopband", "output_offset_lsb", "tone_gain_error_db",
+                "tone_levels_dbfs")
 _CHANNEL_KEYS = ("name", "stages")
 
 
@@ -379,6 +393,7 @@ def parse_description(raw_bytes: bytes, source: str = "<description>") -> Descri
         line = raw_bytes[: e.start].count(b"\n") + 1
         raise DescriptionError(source, f"not UTF-8 text (byte {e.start + 1}); save the file as UTF-8",
                                line=line) from None
+    _check_size(text, len(raw_bytes), source)
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as e:
@@ -390,7 +405,26 @@ def parse_description(raw_bytes: bytes, source: str = "<description>") -> Descri
         elif "end of document" in msg:
             line = text.count("\n") + 1
         raise DescriptionError(source, f"TOML syntax error: {msg}; fix the TOML syntax", line=line) from None
+    except RecursionError:
+        raise DescriptionError(source, "arrays or tables nested too deeply to read; flatten the TOML") from None
     return _validate(doc, source, hashlib.sha256(raw_bytes).hexdigest())
+
+
+def _check_size(text: str, n_bytes: int, source: str) -> None:
+    """Refuse a file too large, or keys dotted too deep, before the TOML parser sees it.
+
+    A key of 20,000 dotted segments (40 KB) costs the parser 1.5 GB and 14 s; the
+    scan looks only at what stands before ``=`` and inside ``[table]`` headers.
+    """
+    if n_bytes > MAX_DESCRIPTION_BYTES:
+        raise DescriptionError(source, f"{n_bytes} bytes; a description may have at most "
+                               f"{MAX_DESCRIPTION_BYTES >> 10} KiB (keep long tap lists in fewer digits)")
+    for lineno, line in enumerate(text.splitlines(), 1):
+        s = line.lstrip()
+        head = s if s.startswith("[") else s.split("=", 1)[0] if "=" in s else ""
+        if head.count(".") >= MAX_KEY_DEPTH:
+            raise DescriptionError(source, f"a key with {head.count('.') + 1} dotted parts; descriptions "
+                                   f"nest at most {MAX_KEY_DEPTH} deep: write the key plainly", line=lineno)
 
 
 def _check_keys(table: Mapping, allowed, where: _Place, what: str) -> None:
@@ -432,6 +466,9 @@ def _validate(doc: dict, source: str, sha: str) -> Description:
         raise top.at("channel").fail("must be an array of tables; write each channel as [[channel]]")
     if not chans:
         raise top.at("channel").fail("no channels; add at least one [[channel]] table with name and stages")
+    if len(chans) > MAX_CHANNELS:
+        raise top.at("channel").fail(f"{len(chans)} channels; at most {MAX_CHANNELS} per description: split "
+                                     "the description into several files")
     channels: list[ChannelSpec] = []
     seen: set[str] = set()
     for i, ch in enumerate(chans):
@@ -494,6 +531,12 @@ def _budget(t, source: str, fs: float) -> Budget:
             raise where.at("output_noise_dbfs").fail(
                 f"{_fmt(x)} dBFS is not a noise limit; write a negative level such as -120")
         out["output_noise_dbfs"] = x
+    if "output_offset_lsb" in t:
+        x = _number(t["output_offset_lsb"], where.at("output_offset_lsb"))
+        if x < 0:
+            raise where.at("output_offset_lsb").fail(
+                f"{_fmt(x)} LSB: write the largest DC offset allowed, a non-negative number such as 0.5")
+        out["output_offset_lsb"] = x
     if "limit_cycles" in t:
         v = t["limit_cycles"]
         w = where.at("limit_cycles")
@@ -567,6 +610,9 @@ def _channel(ch: dict, number: int, source: str, fs: float, seen: set[str]) -> C
         raise where.at("stages").fail(f"expected a list of stage tables, got {_type_name(stages)}")
     if not stages:
         raise where.at("stages").fail("empty channel; add at least one stage (e.g. { kind = \"gain\", db = 0 })")
+    if len(stages) > MAX_STAGES:
+        raise where.at("stages").fail(f"{len(stages)} stages; at most {MAX_STAGES} per channel: merge stages "
+                                      "or split the channel")
     return ChannelSpec(name=name, stages=tuple(_stage(s, i + 1, source, name, fs) for i, s in enumerate(stages)))
 
 

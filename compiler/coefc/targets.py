@@ -109,6 +109,8 @@ def load_target(folder: Path) -> Target:
         raise TargetError(f"{at}: {msg}; fix the TOML syntax") from None
     except (OSError, UnicodeDecodeError) as e:
         raise TargetError(f"{path}: cannot read ({e})") from None
+    except RecursionError:
+        raise TargetError(f"{path}: arrays or tables nested too deeply to read; flatten the TOML") from None
     ar = raw.get("arithmetic")
     if not isinstance(ar, dict):
         raise TargetError(f"{path}: missing table [arithmetic]; see the README section on writing a target")
@@ -312,6 +314,29 @@ def key_line(path: Path, table: str, key: str) -> int | None:
     return None
 
 
+MAX_ALIGNMENT = 1 << 16
+_IDENT_FILE_RE = re.compile(r"^[A-Za-z0-9_][A-Za-z0-9_.-]*$")
+
+
+def _contained_file(folder: Path, rel, where: str, what: str) -> Path:
+    """The real path of *rel* inside target *folder*; refuse anything outside it.
+
+    A target folder may come from anyone in a merge request: an absolute path,
+    ``../`` or a symbolic link must not make ``build --kernel`` copy a file from
+    elsewhere on the machine (``/proc/self/environ``) into the build output.
+    """
+    if not isinstance(rel, str) or not rel:
+        raise TargetError(f"{where}: {what}: {rel!r} is not a file name; name a file inside {folder}")
+    root = Path(os.path.realpath(folder))
+    real = Path(os.path.realpath(folder / rel))
+    if Path(rel).is_absolute() or not real.is_relative_to(root):
+        raise TargetError(f"{where}: {what}: {rel!r} leads outside the target folder {folder}; "
+                          "keep every file the target names inside its folder")
+    if not real.is_file():
+        raise TargetError(f"{where}: {what}: file {rel!r} not found in {folder}; fix the path")
+    return real
+
+
 def build_info(target: Target) -> BuildInfo:
     """Validate and return the build tables of *target* (raises TargetError)."""
     path = target.folder / "target.toml"
@@ -384,9 +409,9 @@ def build_info(target: Target) -> BuildInfo:
                           "b0 b1 b2 a1 a2 once, in memory order ('-a1'/'-a2' store a negated)")
     coef_shift = get("layout", "coef_shift", bool, default=True, optional=True)
     alignment = get("memory", "alignment", int, default=0, optional=True)
-    if alignment < 0 or (alignment & (alignment - 1)):
+    if alignment < 0 or (alignment & (alignment - 1)) or alignment > MAX_ALIGNMENT:
         raise TargetError(f"{where('memory', 'alignment')}: [memory] alignment = {alignment}; "
-                          "use 0 (none) or a power of two")
+                          f"use 0 (none) or a power of two up to {MAX_ALIGNMENT}")
     section = get("memory", "linker_section", str, default="", optional=True)
     if not _SECTION_RE.match(section):
         raise TargetError(f"{where('memory', 'linker_section')}: [memory] linker_section = {section!r}; "
@@ -402,9 +427,11 @@ def build_info(target: Target) -> BuildInfo:
     for tname, key, rel in [("kernel", "header", header), ("templates", "header", header_t)] + \
             [("kernel", "sources", s) for s in sources] + \
             ([("templates", "source", source_t)] if source_t else []):
-        if not isinstance(rel, str) or not (target.folder / rel).is_file():
-            raise TargetError(f"{where(tname, key)}: [{tname}] {key}: file {rel!r} not found in "
-                              f"{target.folder}; fix the path")
+        _contained_file(target.folder, rel, where(tname, key), f"[{tname}] {key}")
+    for key, rel, suffix in [("header", header, ".h")] + [("sources", s, ".c") for s in sources]:
+        if not Path(rel).name.endswith(suffix) or not _IDENT_FILE_RE.match(Path(rel).name):
+            raise TargetError(f"{where('kernel', key)}: [kernel] {key}: {rel!r} is copied beside the header, so "
+                              f"it must be a plain C file name ending in {suffix} (letters, digits, '_', '-', '.')")
     return BuildInfo(data_type=data_type, coef_type=coef_type, state_type=state_type,
                      max_data_bits=max_data, max_coef_bits=max_coef, max_acc_bits=max_acc,
                      section_layout=tuple(layout), coef_shift=coef_shift, alignment=alignment,

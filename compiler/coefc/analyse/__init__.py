@@ -9,23 +9,30 @@ What the word lengths cost, one module per question:
 :mod:`.linear`       the linear model of a realised program the others share
 
 Levels in dBFS follow AES17: full scale = 1.0 and 0 dBFS is the RMS level of a
-full-scale sine, so a noise of power P reads 10*log10(P/0.5) dBFS.
+full-scale sine, so a noise of variance s2 reads 10*log10(s2/0.5) dBFS.  Peaks are
+given as fractions of full scale (or in dB re full-scale peak), never in dBFS.
+
+An unstable or marginally stable realisation (a realised pole on or outside the unit
+circle, decided exactly on the integers by the stability triangle) has no finite
+noise, overflow or limit-cycle figure: its error grows without bound or never decays.
+Those figures are null, with the reason in ``unstable_reason``.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass, replace
+from fractions import Fraction
 
 from ..blocks import ChannelDesign
-from ..program import ChannelProgram
+from ..program import ChannelProgram, SectionOp
 from .limitcycles import MAX_STATES, LimitCycleAnalysis, analyse_limit_cycles
 from .linear import op_models, response_length
 from .noise import MeasuredNoise, NoiseAnalysis, analytic_noise, measured_noise
 from .overflow import OverflowAnalysis, analyse_overflow
 from .response import ResponseAnalysis, analyse_response
 
-__all__ = ["AnalysisOptions", "Metrics", "analyse_channel"]
+__all__ = ["AnalysisOptions", "Metrics", "analyse_channel", "instability"]
 
 
 @dataclass(frozen=True)
@@ -60,17 +67,42 @@ class Metrics:
     overflow_mode: str = "saturate"
     sample_rate_hz: float = 48000.0
     structure: str = "df1"
+    unstable: str | None = None  # why the realisation is unstable (None: every pole strictly inside)
+
+    @property
+    def stable(self) -> bool:
+        return self.unstable is None and bool(self.response.stable)
 
     @property
     def output_noise_dbfs(self) -> float | None:
-        """Analytic output noise (fixed point) or the measured one (float32)."""
+        """Analytic output noise variance (fixed point) or the measured one (float32), in dBFS."""
+        if not self.stable:
+            return None
         if self.noise is not None:
             return self.noise.dbfs
         return self.measured.dbfs if self.measured else None
 
+    @property
+    def output_offset_lsb(self) -> float | None:
+        """Analytic DC offset of the output error in LSB (None for float32 or unstable)."""
+        return self.noise.offset_lsb if self.stable and self.noise is not None else None
+
+    @property
+    def output_offset_lsb_simulated(self) -> float | None:
+        return self.measured.offset_lsb if self.stable and self.measured is not None else None
+
+    @property
+    def offset_stderr_lsb(self) -> float | None:
+        """Standard error of the measured offset (from the analytic noise density at DC)."""
+        if not self.stable or self.noise is None or self.measured is None:
+            return None
+        return self.noise.offset_stderr_lsb(self.measured.samples)
+
     def as_dict(self) -> dict:
         """The ``metrics`` object of the JSON report (NaN and infinities become null)."""
         r, n, m, o, lc = self.response, self.noise, self.measured, self.overflow, self.limit_cycles
+        if not self.stable:
+            return _clean(self._unstable_dict())
         if self.is_float:
             lcd = {"status": "unproven", "amplitude_lsb": None, "period": None, "bound_lsb": None,
                    "exhaustive": False,
@@ -91,12 +123,18 @@ class Metrics:
             "stopband_attenuation_db": r.stopband_attenuation_db,
             "output_noise_dbfs": self.output_noise_dbfs,
             "output_noise_dbfs_simulated": m.dbfs if m else None,
+            "output_offset_lsb": self.output_offset_lsb,
+            "output_offset_lsb_simulated": self.output_offset_lsb_simulated,
+            "output_offset_lsb_simulated_stderr": self.offset_stderr_lsb,
+            "output_offset_dbfs": n.offset_dbfs if n else (m.offset_dbfs if m else None),
+            "output_offset_dbfs_simulated": m.offset_dbfs if m else None,
             "max_pole_radius": r.max_pole_radius,
             "headroom_bits": o.headroom_bits,
             "overflow_count": o.overflow_count,
             "limit_cycle": lcd,
             # additions
-            "stable": r.stable,
+            "stable": self.stable,
+            "unstable_reason": None,
             "float_stopband_attenuation_db": r.float_stopband_attenuation_db,
             "passband_rule": r.passband_rule,
             "stopband_rule": r.stopband_rule,
@@ -116,8 +154,10 @@ class Metrics:
             "worst_node": o.worst_node,
             "worst_case_runs": o.runs,
             "worst_case_input_peak": o.input_peak,
-            "worst_case_input_peak_dbfs": None if not o.input_peak else 20 * math.log10(o.input_peak),
+            "worst_case_input_peak_lsb": o.input_peak_lsb,
+            "worst_case_input_peak_db_re_full_scale": None if not o.input_peak else 20 * math.log10(o.input_peak),
             "output_peak_gain": o.output_peak_gain,
+            "design_peak_gain": o.design_peak_gain,
             "overflow_count_full_scale": o.overflow_count_full_scale,
             "nodes": [{"op": g.op_index + 1, "node": g.node, "l1_gain": g.l1, "linf_gain": g.linf,
                        "full_scale": g.full_scale, "headroom_bits": g.headroom_bits,
@@ -127,9 +167,42 @@ class Metrics:
         }
         return _clean(d)
 
+    def _unstable_dict(self) -> dict:
+        """The metrics of an unstable realisation: response figures only, every other figure null."""
+        r = self.response
+        why = self.unstable or f"a realised pole has radius {r.max_pole_radius:.6f} >= 1"
+        note = (f"no finite figure: the realisation is unstable, so its roundoff error grows without bound or "
+                f"never decays ({why})")
+        return {
+            "passband_deviation_db": r.passband_deviation_db,
+            "stopband_attenuation_db": r.stopband_attenuation_db,
+            "output_noise_dbfs": None, "output_noise_dbfs_simulated": None,
+            "output_offset_lsb": None, "output_offset_lsb_simulated": None,
+            "output_offset_lsb_simulated_stderr": None,
+            "output_offset_dbfs": None, "output_offset_dbfs_simulated": None,
+            "max_pole_radius": r.max_pole_radius,
+            "headroom_bits": None, "overflow_count": None,
+            "limit_cycle": {"status": "unproven", "amplitude_lsb": None, "period": None, "bound_lsb": None,
+                            "exhaustive": False, "note": note, "sections": []},
+            "stable": False,
+            "unstable_reason": why,
+            "float_stopband_attenuation_db": r.float_stopband_attenuation_db,
+            "passband_rule": r.passband_rule,
+            "stopband_rule": r.stopband_rule,
+            "pole_displacement": r.pole_displacement,
+            "zero_displacement": r.zero_displacement,
+            "snr_db": None, "output_noise_mean": None, "noise_sources": [], "noise_measurement": None,
+            "headroom_bits_sine": None, "worst_node": None, "worst_case_runs": 0,
+            "worst_case_input_peak": None, "worst_case_input_peak_lsb": None,
+            "worst_case_input_peak_db_re_full_scale": None,
+            "output_peak_gain": None, "design_peak_gain": self.overflow.design_peak_gain,
+            "overflow_count_full_scale": None, "nodes": [], "overflow_oscillation": None,
+            "noise_spectrum": None,
+        }
+
     def noise_spectrum(self, points: int = 48) -> list[dict] | None:
         """Analytic output-noise density (dBFS/Hz, AES17 reference) on a log grid, for reports."""
-        if self.noise is None or not self.noise.sources:
+        if not self.stable or self.noise is None or not self.noise.sources:
             return None
         import numpy as np
 
@@ -149,6 +222,76 @@ def _clean(v):
     if hasattr(v, "item") and not isinstance(v, (str, bytes)):
         return _clean(v.item())
     return v
+
+
+def instability(program: ChannelProgram) -> str | None:
+    """Why *program* is unstable or marginally stable, or ``None`` when every pole is strictly inside.
+
+    Decided exactly on the realised coefficients (integers, or float32 values, as
+    exact fractions): ``1 + a1 z^-1 + a2 z^-2`` has both poles strictly inside the unit
+    circle if and only if ``|a2| < 1`` and ``|a1| < 1 + a2`` (the stability triangle,
+    Jury's test for second order).  A root finder in floating point can put a double
+    pole at z = 1 a hair inside the circle; this test cannot.
+
+    References
+    ----------
+    A. V. Oppenheim, R. W. Schafer, *Discrete-Time Signal Processing*, 3rd ed., sec. 6.8
+    (the stability triangle of a second-order section); E. I. Jury, *Theory and
+    Application of the z-Transform Method*, Wiley, 1964.
+    """
+    ar = program.arithmetic
+    fc = 0 if ar.is_float else ar.coef.frac_bits
+    for i, op in enumerate(program.ops):
+        if not isinstance(op, SectionOp):
+            continue
+        if ar.is_float:
+            a1, a2 = (Fraction(float(c)) for c in op.a)
+        else:
+            unit = Fraction(2) ** (fc - op.shift)  # the integer that means 1.0 in this section
+            a1, a2 = Fraction(int(op.a[0])) / unit, Fraction(int(op.a[1])) / unit
+        if abs(a2) < 1 and abs(a1) < 1 + a2:
+            continue
+        import numpy as np
+
+        radius = float(np.max(np.abs(np.roots([1.0, float(a1), float(a2)])))) if a2 else abs(float(a1))
+        return (f"op {i + 1}: a realised pole lies on or outside the unit circle (a1 = {float(a1):.10g}, "
+                f"a2 = {float(a2):.10g}; largest pole radius {radius:.6f})")
+    return None
+
+
+def design_peak_gain(design: ChannelDesign, n: int = 0) -> float | None:
+    """``sum |h|`` of the float design's impulse response (its worst-case peak gain).
+
+    Summed over at least *n* samples and until the design's slowest pole has decayed
+    (the rule of :func:`coefc.analyse.linear.response_length`).
+    """
+    import numpy as np
+    from scipy import signal
+
+    from ..blocks import DelayBlock, FirBlock, GainBlock, SosBlock
+    from .linear import DECAY, MAX_LENGTH
+
+    poles = [abs(p) for blk in design.blocks if isinstance(blk, SosBlock)
+             for row in np.atleast_2d(blk.sos) for p in np.roots(row[3:]) if row[4] or row[5]]
+    r = max(poles, default=0.0)
+    own = int(np.ceil(np.log(DECAY) / np.log(r))) * 2 if 0 < r < 1 else 0
+    own += sum(len(blk.taps) for blk in design.blocks if isinstance(blk, FirBlock))
+    own += sum(blk.samples for blk in design.blocks if isinstance(blk, DelayBlock))
+    h = np.zeros(max(int(n), min(own + 8, MAX_LENGTH), 1))
+    h[0] = 1.0
+    for blk in design.blocks:
+        if isinstance(blk, SosBlock):
+            h = signal.sosfilt(np.asarray(blk.sos, dtype=float), h)
+        elif isinstance(blk, FirBlock):
+            h = signal.oaconvolve(h, np.asarray(blk.taps, dtype=float))[: len(h)]
+        elif isinstance(blk, GainBlock):
+            h = h * float(blk.gain)
+        elif isinstance(blk, DelayBlock):
+            h = np.concatenate([np.zeros(min(blk.samples, len(h))), h])[: len(h)]
+        else:  # pragma: no cover - blocks are a closed set
+            return None
+    g = float(np.sum(np.abs(h)))
+    return g if math.isfinite(g) else None
 
 
 def analyse_channel(design: ChannelDesign, program: ChannelProgram,
@@ -183,11 +326,22 @@ def analyse_channel(design: ChannelDesign, program: ChannelProgram,
                             stopband_threshold_db=opt.stopband_threshold_db)
     if opt.stopband is None and design.stopbands:
         resp = replace(resp, stopband_rule="stopband_hz of the stages: " + resp.stopband_rule)
+    unstable = instability(program)
+    if unstable is None and not resp.stable:
+        unstable = f"a realised pole has radius {resp.max_pole_radius:.6f} >= 1"
+    dgain = design_peak_gain(design, n)
+    if unstable is not None:
+        # no finite figure exists: the linear model's responses grow and the engine's error with them
+        ovf = OverflowAnalysis((), None, None, None, None, 0, None, None, None, None, dgain)
+        lc = analyse_limit_cycles(program, max_states=opt.max_states)
+        return Metrics(resp, None, None, ovf, lc, program.arithmetic.is_float, program.arithmetic.overflow,
+                       float(program.sample_rate_hz), program.arithmetic.structure, unstable)
     noise = analytic_noise(program, models, n)
     # float32 has no analytic figure: its noise is always measured
     meas = (measured_noise(program, samples=opt.noise_samples, seed=opt.seed, models=models, n=n)
             if opt.measure_noise or noise is None else None)
-    ovf = analyse_overflow(program, run_engine=opt.worst_case_runs, models=models, n=n)
+    ovf = replace(analyse_overflow(program, run_engine=opt.worst_case_runs, models=models, n=n),
+                  design_peak_gain=dgain)
     lc = analyse_limit_cycles(program, max_states=opt.max_states)
     return Metrics(resp, noise, meas, ovf, lc, program.arithmetic.is_float, program.arithmetic.overflow,
                    float(program.sample_rate_hz), program.arithmetic.structure)

@@ -11,7 +11,8 @@ analytic
 measured
     The bit-true engine (:func:`coefc.simulate.simulate`) against a float64 run of
     the same realised coefficients, on uniform white noise whose peak keeps every
-    node below half of full scale (so nothing overflows).  The uniform error model
+    node below half of full scale (so nothing overflows); numpy's mean and variance
+    of the error record.  The uniform error model
     needs signals well above one LSB at every rounding node (Widrow, Kollar & Liu
     1996); a node whose signal RMS falls below one LSB is reported.
 
@@ -39,8 +40,14 @@ for a white input its output power is ``||sum_j c_j g_j * h_j||^2`` with
 input level, and the sources add coherently.  Inside a recursive section this part
 acts like a small change of the feedback gain and can dominate.
 
+The *noise* figure is the variance of the output error (its mean removed); the mean
+is reported apart as the output's DC *offset* (in LSB of the data word, and as the
+level of that DC in dBFS: ``10*log10(mean^2/0.5)``), since ``truncate`` rounding adds
+an offset of about ``-q/2`` per rounding point times its noise path's DC gain, which
+would otherwise swamp the noise figure.
+
 Levels are in dBFS as in AES17: full scale = 1.0, 0 dBFS is the RMS level of a
-full-scale sine, so a noise of power ``P`` reads ``10*log10(P/0.5)`` dBFS.
+full-scale sine, so a noise of variance ``s2`` reads ``10*log10(s2/0.5)`` dBFS.
 
 References
 ----------
@@ -48,6 +55,8 @@ L. B. Jackson, "Roundoff-noise analysis for fixed-point digital filters realized
 cascade or parallel form", IEEE Trans. Audio Electroacoust. AU-18(2), 1970.
 B. Widrow, I. Kollar, M.-C. Liu, "Statistical theory of quantization", IEEE Trans.
 Instrum. Meas. 45(2), 1996.
+B. Widrow, I. Kollar, *Quantization Noise*, Cambridge University Press, 2008 (mean and
+variance of rounding and truncation errors).
 A. V. Oppenheim, R. W. Schafer, *Discrete-Time Signal Processing*, 3rd ed., ch. 6.
 AES17, *AES standard method for digital audio engineering - Measurement of digital
 audio equipment* (definition of dBFS).
@@ -74,8 +83,8 @@ def dbfs(power: float | None) -> float | None:
 
     >>> round(dbfs(0.5), 6)
     0.0
-    >>> round(dbfs((2.0 ** -15) ** 2 / 12), 2)   # one rounding of a 16-bit word
-    -101.08
+    >>> round(dbfs((2.0 ** -15) ** 2 / 12), 2)   # one rounding of a 16-bit word: q^2/12 re 1/2
+    -98.09
     """
     if power is None or not math.isfinite(power):
         return None
@@ -140,13 +149,29 @@ class NoiseAnalysis:
 
     sources: tuple[NoiseSource, ...]
     variance: float  # physical units (full scale = 1.0)
-    mean: float
-    power: float  # variance + mean^2
-    dbfs: float | None
-    snr_db: float | None  # full-scale sine over the noise power
+    mean: float  # the output's DC offset, physical units
+    power: float  # variance + mean^2 (mean square of the error)
+    dbfs: float | None  # of the variance: the noise, offset excluded
+    snr_db: float | None  # full-scale sine over the noise variance
     lsb: float
     _models: tuple = field(default=(), repr=False)
     correlated_variance: float = 0.0  # magnitude truncation: the part that follows the signal
+    mean_noise_variance: float = 0.0  # sum_j sigma_j^2 G_j(1)^2 (LSB^2): the noise density at DC, per sample
+
+    @property
+    def offset_lsb(self) -> float:
+        """The output's DC offset (mean error) in LSB of the data word."""
+        return self.mean / self.lsb
+
+    @property
+    def offset_dbfs(self) -> float | None:
+        """The DC offset's level in dBFS (AES17: its RMS is its magnitude); None for no offset."""
+        d = dbfs(self.mean ** 2)
+        return None if d is None or d == -math.inf else d
+
+    def offset_stderr_lsb(self, samples: int) -> float:
+        """Standard error, in LSB, of the mean of *samples* output errors (the noise's DC density)."""
+        return math.sqrt(self.mean_noise_variance / samples) if samples > 0 else math.inf
 
     def spectrum(self, freqs_hz, fs: float) -> np.ndarray:
         """One-sided noise density in dBFS/Hz (AES17 reference) at *freqs_hz*.
@@ -211,7 +236,7 @@ def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
     n = n or response_length(models)
     lsb = ar.data.lsb
     sources = []
-    var = mean = 0.0
+    var = mean = dc_var = 0.0
     corr = np.zeros(n)
     node_imps = node_impulses(models, n) if ar.rounding == "toward-zero" else None
     for m in models:
@@ -237,14 +262,16 @@ def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
         sources.append(NoiseSource(m.index, m.k, mu, s2, pg, dc, s2 * pg, cg))
         var += s2 * pg
         mean += mu * dc
+        dc_var += s2 * dc * dc
     correlated = float(np.dot(corr, corr))
     var += correlated
     var *= lsb ** 2
     mean *= lsb
     power = var + mean ** 2
-    d = dbfs(power)
+    d = dbfs(var)  # the noise is the variance; the mean is the offset, reported apart
     snr = None if d is None or d == -math.inf else -d
-    return NoiseAnalysis(tuple(sources), var, mean, power, d, snr, lsb, tuple(models), correlated * lsb ** 2)
+    return NoiseAnalysis(tuple(sources), var, mean, power, d, snr, lsb, tuple(models), correlated * lsb ** 2,
+                         dc_var)
 
 
 def _conv(g: np.ndarray, h: np.ndarray) -> np.ndarray:
@@ -255,11 +282,11 @@ def _conv(g: np.ndarray, h: np.ndarray) -> np.ndarray:
 
 @dataclass(frozen=True)
 class MeasuredNoise:
-    """Output noise measured with the bit-true engine."""
+    """Output noise measured with the bit-true engine (numpy mean and variance of the error)."""
 
-    power: float
-    mean: float
-    dbfs: float | None
+    power: float  # mean square of the error
+    mean: float  # its mean: the output's DC offset, physical units
+    dbfs: float | None  # of the variance (the noise, offset excluded)
     samples: int
     stimulus_peak: float  # physical, full scale = 1.0
     stimulus_rms: float
@@ -267,6 +294,17 @@ class MeasuredNoise:
     model_holds: bool  # every rounding node sees at least 1 LSB RMS
     overflow_events: int
     note: str = ""
+    variance: float | None = None
+    lsb: float | None = None  # of the data word (None for float32)
+
+    @property
+    def offset_lsb(self) -> float | None:
+        return None if self.lsb is None else self.mean / self.lsb
+
+    @property
+    def offset_dbfs(self) -> float | None:
+        d = dbfs(self.mean ** 2)
+        return None if d is None or d == -math.inf else d
 
 
 def stimulus_level(models: list[OpModel], impulses: list[np.ndarray]) -> float:
@@ -317,6 +355,7 @@ def measured_noise(program: ChannelProgram, *, samples: int = 1 << 15, seed: int
     ref = chain_filter(models, xin)
     e = (y - ref)[settle:]
     power = float(np.mean(e ** 2))
+    variance = float(np.var(e))
     rms_in = float(np.sqrt(np.mean(xin ** 2)))
     min_rms = None
     holds = True
@@ -332,5 +371,5 @@ def measured_noise(program: ChannelProgram, *, samples: int = 1 << 15, seed: int
                         "error model needs signals well above one LSB (Widrow, Kollar & Liu 1996)")
     if overflows:
         note = (note + "; " if note else "") + f"{overflows} overflow events during the noise run"
-    return MeasuredNoise(power, float(np.mean(e)), dbfs(power), samples, peak, rms_in, min_rms, holds,
-                         overflows, note)
+    return MeasuredNoise(power, float(np.mean(e)), dbfs(variance), samples, peak, rms_in, min_rms, holds,
+                         overflows, note, variance, None if ar.is_float else ar.data.lsb)

@@ -15,7 +15,20 @@ many overflow (saturation or wrap) events the chip really sees.  Its peak is the
 largest input for which the float design's own output cannot exceed full scale
 (full scale itself when the channel's ||h||_1 <= 1), so that a count above zero
 is an overflow the fixed-point realisation adds; the same runs at full scale are
-reported as well.
+reported as well.  A peak below one LSB quantises to an input of all zeros, which
+can show nothing: it counts as no safe level at all (``input_peak_lsb == 0``).
+
+Peaks are fractions of full scale (or dB re full-scale peak), not AES17 dBFS,
+which is an RMS level.
+
+Under ``l1`` scaling the realisation promises that no internal node (the output
+of every op but the last) overflows for any input within full scale.  The
+promise is checked here on the realised integers, independently of the
+realiser: for each internal node, the l1 norm of its realised response plus, for
+every rounding up to and including that op, the rounding's largest error times
+the l1 norm of its path to the node (``l1_worst``, physical units, against the
+largest data word); the same full-scale worst-case runs count the events at
+internal nodes (``internal_events_full_scale``).
 
 References
 ----------
@@ -63,8 +76,14 @@ class OverflowAnalysis:
     overflow_count: int | None  # events in the worst-case runs at the legal input peak (None: not run)
     runs: int  # worst-case sequences driven
     input_peak: float = 1.0  # peak of those runs, fraction of full scale
-    output_peak_gain: float | None = None  # ||h||_1 from the input to the channel output
+    output_peak_gain: float | None = None  # ||h||_1 from the input to the channel output (realised coefficients)
     overflow_count_full_scale: int | None = None  # the same runs at full scale
+    l1_worst: float | None = None  # l1 scaling: largest internal-node bound (signal + roundoff)
+    l1_worst_node: str | None = None
+    l1_limit: float | None = None  # the largest data word (physical)
+    internal_events_full_scale: int | None = None  # events at internal nodes in the full-scale runs
+    input_peak_lsb: int | None = None  # the runs' peak as an integer input word (0: the input is all zeros)
+    design_peak_gain: float | None = None  # ||h||_1 of the float design (set by analyse_channel)
 
 
 def _headroom(fs: float, peak: float) -> float:
@@ -125,6 +144,33 @@ def roundoff_bound_lsb(models: list[OpModel], n: int, rounding: str) -> float:
     return sum((abs(c) + r) * float(np.sum(np.abs(noise_impulse(models, m.index, n)))) for m in models if m.k > 0)
 
 
+def internal_node_bounds(models: list[OpModel], imps: list[np.ndarray], n: int,
+                         rounding: str, lsb: float) -> list[tuple[int, float]]:
+    """``(op index, bound)`` of every internal op output (all but the last op).
+
+    The bound is ``||h_i||_1 + sum_j e_max ||g_j->i||_1 * lsb`` over the rounding ops
+    ``j <= i``: no input within full scale can drive the node past it (Jackson's l1
+    argument, with the roundoff bounded instead of neglected).
+    """
+    from .limitcycles import error_interval
+    from .linear import _run
+
+    c, r = error_interval(rounding)
+    eps = (abs(c) + r) * lsb
+    unit = np.zeros(n)
+    unit[0] = 1.0
+    paths: list[np.ndarray] = []
+    out = []
+    last = max((m.index for m in models if m.kind != "delay"), default=-1)
+    for m, h in zip(models, imps):
+        paths = [_run(m.b, m.a, p) for p in paths]
+        if m.k > 0:
+            paths.append(_run(m.noise_b, m.noise_a, unit))
+        if m.kind != "delay" and m.index != last:
+            out.append((m.index, float(np.sum(np.abs(h))) + eps * sum(float(np.sum(np.abs(p))) for p in paths)))
+    return out
+
+
 def analyse_overflow(program: ChannelProgram, *, run_engine: bool = True,
                      models: list[OpModel] | None = None, n: int | None = None,
                      max_runs: int = 16) -> OverflowAnalysis:
@@ -150,9 +196,17 @@ def analyse_overflow(program: ChannelProgram, *, run_engine: bool = True,
     hb = min(g.headroom_bits for g in nodes)
     hs = min(g.headroom_bits_sine for g in nodes)
     out_gain = float(np.sum(np.abs(imps[-1]))) if imps else None
-    count = full = None
+    count = full = internal = None
+    l1w = l1node = l1lim = None
+    if ar.scaling == "l1" and not ar.is_float:
+        bounds = internal_node_bounds(models, imps, n, ar.rounding, ar.data.lsb)
+        if bounds:
+            i, l1w = max(bounds, key=lambda t: t[1])
+            l1node, l1lim = f"op {i + 1} output", ar.data.max_value
+    last = max((m.index for m in models if m.kind != "delay"), default=-1)
     runs = 0
     peak = 1.0
+    peak_lsb = None
     if run_engine and not ar.is_float:
         from ..simulate import simulate
 
@@ -160,7 +214,9 @@ def analyse_overflow(program: ChannelProgram, *, run_engine: bool = True,
         margin = roundoff_bound_lsb(models, n, ar.rounding) * ar.data.lsb
         if out_gain and out_gain * (1.0 + margin) > fs_out:
             peak = max(0.0, (fs_out - margin) / out_gain)
-        count = full = 0
+        # the integer peak of the runs: 0 means the test input quantises to all zeros
+        peak_lsb = ar.data.max_int if peak >= 1.0 else int(np.floor(peak * ar.data.max_int))
+        count = full = internal = 0
         done = set()
         resp = {(i, name): h for i, name, h, _ in _node_responses(models, imps)}
         for g in sorted(nodes, key=lambda g: g.headroom_bits):
@@ -185,10 +241,12 @@ def analyse_overflow(program: ChannelProgram, *, run_engine: bool = True,
                     count += ev
                 if amp == 1.0:
                     full += ev
+                    internal += int(sum(int(c) for j, c in enumerate(tr.overflow_counts) if j != last))
             runs += 1
     elif ar.is_float:
         count = full = 0  # float32 words do not overflow below 3.4e38
-    return OverflowAnalysis(tuple(nodes), _finite(hb), _finite(hs), worst.label, count, runs, peak, out_gain, full)
+    return OverflowAnalysis(tuple(nodes), _finite(hb), _finite(hs), worst.label, count, runs, peak, out_gain, full,
+                            l1w, l1node, l1lim, internal, peak_lsb)
 
 
 def _finite(v: float) -> float | None:

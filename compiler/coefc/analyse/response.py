@@ -2,7 +2,20 @@
 
 The realised response is that of the exact physical values of the quantised
 coefficients (:func:`coefc.realise.as_float_blocks`), compared with the float
-design on a log-spaced grid from 10 Hz to Nyquist.
+design on one frequency grid (:func:`grid`) that covers every band and every
+frequency the description names:
+
+* 2048 log-spaced frequencies from a decade below the lowest frequency named
+  (stage edges, budget band edges above 0 Hz; at most 10 Hz and fs/4800) up to
+  Nyquist;
+* a linear grid over 0..Nyquist with at least 32 points per 1/N of the sample
+  rate for the channel's total FIR length N (every FIR stopband lobe sampled 32
+  times; at least 2048 points, at most 2^16);
+* every stage edge and band edge itself, and inside each budget band 512
+  log-spaced and at least 512 linear points (denser for long FIRs, as above).
+
+0 Hz is represented by the lowest grid frequency (at most fs * 1e-6 when a band
+starts at 0 Hz), so every array stays plottable on a log axis.
 
 Bands (the rules, stated once):
 
@@ -30,11 +43,15 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..blocks import ChannelDesign, SosBlock, chain_response
+from ..blocks import ChannelDesign, FirBlock, SosBlock, chain_response
 from ..program import ChannelProgram, SectionOp
 
 GRID_POINTS = 2048
 F_MIN_HZ = 10.0
+#: Points per 1/N of the sample rate (N: the channel's FIR taps) on the linear grid.
+FIR_POINTS_PER_LOBE = 32
+MAX_LINEAR_POINTS = 1 << 16
+BAND_POINTS = 512
 
 
 @dataclass(frozen=True, eq=False)
@@ -53,10 +70,39 @@ class ResponseAnalysis:
     zero_displacement: float | None
 
 
-def grid(fs: float, points: int = GRID_POINTS) -> np.ndarray:
-    """Log-spaced frequencies from 10 Hz (or fs/4800 when lower) up to Nyquist."""
-    lo = min(F_MIN_HZ, fs / 4800.0)
-    return np.geomspace(lo, fs / 2.0, points)
+def grid(fs: float, points: int = GRID_POINTS, *, edges_hz=(), bands=(), fir_taps: int = 0) -> np.ndarray:
+    """The response grid: sorted, unique frequencies in (0, fs/2] covering every band and edge.
+
+    Parameters
+    ----------
+    fs : float
+        Sample rate in Hz.
+    points : int
+        Log-spaced points from the lowest frequency to Nyquist.
+    edges_hz : sequence of float
+        Frequencies the stages name (cutoffs, centres, band edges).
+    bands : sequence of (lo, hi)
+        Bands to be checked (the budget's passband and stopband bands).
+    fir_taps : int
+        Total FIR length of the channel: the linear grid samples each 1/N of the
+        sample rate ``FIR_POINTS_PER_LOBE`` times.
+    """
+    nyq = fs / 2.0
+    named = [float(e) for e in edges_hz if 0 < float(e) <= nyq]
+    named += [float(x) for b in bands for x in b if 0 < float(x) <= nyq]
+    lo = min([F_MIN_HZ, fs / 4800.0] + [e / 10.0 for e in named])
+    if any(float(b[0]) <= 0 for b in bands):
+        lo = min(lo, fs * 1e-6)
+    n_lin = int(min(MAX_LINEAR_POINTS, max(GRID_POINTS, FIR_POINTS_PER_LOBE * fir_taps)))
+    parts = [np.geomspace(lo, nyq, points), np.linspace(0.0, nyq, n_lin + 1)[1:], np.array(named)]
+    for b in bands:
+        b_lo, b_hi = max(float(b[0]), lo), min(float(b[1]), nyq)
+        if b_hi <= b_lo:
+            continue
+        n_band = int(min(MAX_LINEAR_POINTS, max(BAND_POINTS, FIR_POINTS_PER_LOBE * fir_taps * (b_hi - b_lo) / fs)))
+        parts += [np.geomspace(b_lo, b_hi, BAND_POINTS), np.linspace(b_lo, b_hi, n_band)]
+    f = np.unique(np.concatenate(parts))
+    return f[(f > 0) & (f <= nyq)]
 
 
 def _db(h: np.ndarray) -> np.ndarray:
@@ -102,7 +148,9 @@ def analyse_response(design: ChannelDesign, program: ChannelProgram, *, passband
     from ..realise import as_float_blocks
 
     fs = float(design.sample_rate_hz)
-    f = grid(fs, points)
+    taps = sum(len(b.taps) for b in design.blocks if isinstance(b, FirBlock))
+    f = grid(fs, points, edges_hz=design.edges_hz, bands=tuple(passband or ()) + tuple(stopband or ()),
+             fir_taps=taps)
     hf = design.response(f)
     hq = chain_response(as_float_blocks(program), f, fs)
     df, dq = _db(hf), _db(hq)

@@ -22,7 +22,10 @@ The rules, stated once:
   is reported);
 * coherent sampling: every tone has a whole number ``m`` of periods in the
   ``N``-sample measurement window (``f = m fs / N``, at least 4096 samples and
-  two periods), so the fit below is exact for a pure tone and has no leakage;
+  two periods where :data:`MAX_WINDOW` allows, at least one period always), so the
+  fit below is exact for a pure tone and has no leakage; grid points whose one
+  period is longer than :data:`MAX_WINDOW` samples are not run, and the report
+  says below which frequency the tones stop;
 * settling: the window starts after the realised poles' transients have decayed
   to 1e-6 of their start (``ln(1e-6) / ln(r_max)`` samples plus the FIR lengths
   and delays), capped at :data:`MAX_SETTLE` samples -- when capped, the reports
@@ -73,6 +76,7 @@ DEFAULT_LEVELS_DBFS = (-20.0, -60.0)
 RANGE_DB = 60.0
 MIN_OUTPUT_LSB = 64.0  # 36 dB above one step: see "gating" above
 MIN_WINDOW = 4096
+MAX_WINDOW = 1 << 16  # one period must fit: tones below fs / MAX_WINDOW are not run (and reported)
 SETTLE_DECAY = 1e-6
 MAX_SETTLE = 1 << 15
 MAX_TONE_FREQ = 0.49  # of fs: a tone at fs/2 exactly is not a sine the fit can measure
@@ -211,8 +215,8 @@ def _weightings(design: ChannelDesign) -> list[tuple[str, SosBlock]]:
 
 def _coherent(f: float, fs: float) -> tuple[float, int, int]:
     """``(f_exact, m, N)``: m whole periods in N samples, f_exact = m fs / N close to *f*."""
-    n0 = max(MIN_WINDOW, math.ceil(2.0 * fs / f))
-    m = max(2, round(f * n0 / fs))
+    n0 = min(max(MIN_WINDOW, math.ceil(2.0 * fs / f)), MAX_WINDOW)
+    m = max(1, round(f * n0 / fs))
     n = max(round(m * fs / f), 2 * m + 1)
     return m * fs / n, m, n
 
@@ -330,9 +334,13 @@ def analyse_tones(design: ChannelDesign, program: ChannelProgram, freqs_hz: np.n
     plan: list[tuple[float, float | None, tuple | None]] = []  # (freq, nominal, table row)
     for f_exact, row in std:
         plan.append((f_exact, float(row[0]), row))
+    f_min = fs / MAX_WINDOW
+    skipped = []
     for f in _grid_picks(np.asarray(freqs_hz), np.asarray(float_db), fs, range_db):
+        if f < f_min:
+            skipped.append(f)
         # the standard's one-third-octave tones already cover a weighting channel's grid
-        if not std or not any(abs(math.log2(f / fe)) < 1.0 / 6.0 for fe, _ in std):
+        elif not std or not any(abs(math.log2(f / fe)) < 1.0 / 6.0 for fe, _ in std):
             plan.append((f, None, None))
     plan.sort(key=lambda p: p[0])
 
@@ -394,9 +402,14 @@ def analyse_tones(design: ChannelDesign, program: ChannelProgram, freqs_hz: np.n
     gated = [t for t in tones if t.gated]
     worst = max(gated, key=lambda t: abs(t.error_db)) if gated else None
     fails = tuple(t for t in tones if t.standard is not None and not t.standard["ok"])
-    note = ""
+    notes = []
+    if skipped:
+        notes.append(f"no tone below {f_min:.3g} Hz (one period is longer than {MAX_WINDOW} samples): the "
+                     f"response grid's {len(skipped)} lower points ({min(skipped):.3g} Hz up) are unproven by tones")
     if capped:
-        note = (f"settling capped at {settle} samples: the slowest realised pole (radius {r:.6f}) had decayed "
-                f"to {residual:.2g} of its start, so figures near its frequency are unproven to that extent")
+        notes.append(f"settling capped at {settle} samples: the slowest realised pole (radius {r:.6f}) had "
+                     f"decayed to {residual:.2g} of its start, so figures near its frequency are unproven to that "
+                     "extent")
+    note = "; ".join(notes)
     return ToneAnalysis("measured", tuple(tones), None if worst is None else abs(worst.error_db), worst, fails,
                         levels, range_db, settle, capped, r, residual, samples, note)

@@ -2,13 +2,16 @@
 
 Each command lives in its own module (``design_cmd``, ``run_cmd``, ``check_cmd``,
 ``build_cmd``, ``sweep_cmd``, ``targets_cmd``) and registers itself on the one
-Typer app here.  Library errors (:class:`coefc.errors.CoefcError`) become one line
-on stderr and exit code 2; nothing else is caught.
+Typer app here.  Exit codes: 0 pass, 1 over budget (or stale header), 2 bad input
+or usage (one line on stderr), 3 an internal error of coefc itself (one line naming
+it as a bug), 130/143 interrupted by SIGINT/SIGTERM (temporary files removed).
 """
 
 from __future__ import annotations
 
+import signal
 import sys
+import warnings
 
 import typer
 
@@ -20,7 +23,9 @@ app = typer.Typer(
         "Coefficient compiler and fixed-point quantisation checker for embedded DSP.\n\n"
         "Q formats are written Qm.n with the sign bit counted in m (Q1.15 is a 16-bit "
         "word, Q2.30 a 32-bit one); Qn is shorthand for Q1.n.  Levels in dBFS follow "
-        "AES17: 0 dBFS is the RMS level of a full-scale sine."
+        "AES17: 0 dBFS is the RMS level of a full-scale sine.\n\n"
+        "Exit codes: 0 pass, 1 over budget (build --check: stale), 2 bad input or usage, "
+        "3 internal error (a bug in coefc; please report it)."
     ),
     no_args_is_help=True,
     add_completion=False,
@@ -70,15 +75,34 @@ def _usage_line(e) -> str:
     return f"coefc: error: {msg}; see '{where} --help'"
 
 
+class _Terminated(KeyboardInterrupt):
+    """SIGTERM (CI cancel, ``timeout``), raised like Ctrl-C so every clean-up runs."""
+
+
+_signalled: list[int] = []
+
+
+def _on_sigterm(signum, frame):
+    _signalled.append(signum)
+    raise _Terminated()
+
+
 def main() -> None:
     """Entry point of the ``coefc`` script.
 
     Library errors (:class:`CoefcError`) and command-line usage errors (unknown
     option, a value of the wrong type) each become one line on stderr starting
-    ``coefc: error:`` and exit code 2; nothing else is caught.
+    ``coefc: error:`` and exit code 2.  Any other exception is a bug of coefc: one
+    line naming it, exit code 3 (never 1, which a merge gate reads as "over
+    budget").  SIGTERM unwinds like SIGINT, so temporary files are removed.
+    Numerical warnings of numpy and scipy are the library's business and never
+    reach stderr.
     """
+    signal.signal(signal.SIGTERM, _on_sigterm)
     try:
-        rv = app(prog_name="coefc", standalone_mode=False)
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            rv = app(prog_name="coefc", standalone_mode=False)
     except CoefcError as e:
         print(f"coefc: error: {e}", file=sys.stderr)
         sys.exit(2)
@@ -88,7 +112,25 @@ def main() -> None:
             sys.exit(2)
         print(_usage_line(e), file=sys.stderr)
         sys.exit(2)
-    except typer.Abort:
-        print("coefc: interrupted", file=sys.stderr)
-        sys.exit(130)
+    except (typer.Abort, KeyboardInterrupt) as e:
+        term = bool(_signalled)
+        print(f"coefc: {'terminated' if term else 'interrupted'}", file=sys.stderr)
+        sys.exit(143 if term else 130)
+    except MemoryError:
+        print("coefc: error: the input needs more memory than this machine has; make it smaller", file=sys.stderr)
+        sys.exit(2)
+    except Exception as e:  # a bug: one line, its own exit code
+        where = ""
+        tb = e.__traceback__
+        while tb is not None and tb.tb_next is not None:
+            tb = tb.tb_next
+        if tb is not None:
+            where = f" at {tb.tb_frame.f_code.co_filename.rsplit('/', 1)[-1]}:{tb.tb_lineno}"
+        msg = " ".join(str(e).split())[:300]
+        print(f"coefc: internal error (a bug in coefc; please report it with the input that caused it): "
+              f"{type(e).__name__}{where}: {msg}", file=sys.stderr)
+        sys.exit(3)
+    if _signalled or rv == 130:  # Typer turns Ctrl-C (and our SIGTERM) into exit code 130
+        print(f"coefc: {'terminated' if _signalled else 'interrupted'}", file=sys.stderr)
+        sys.exit(143 if _signalled else 130)
     sys.exit(rv if isinstance(rv, int) else 0)

@@ -66,7 +66,11 @@ def build(
     loaded, real = options.realisation(file, channel=channel, target=target, target_dir=target_dir,
                                        data=data, coef=coef, acc=acc, rounding=rounding,
                                        overflow=overflow, structure=structure, scaling=scaling)
-    build_info(real.target)  # a target that cannot build fails before the (slower) check
+    info = build_info(real.target)  # a target that cannot build fails before the (slower) check
+    # the target's own files are inputs too: writing into the target folder must not replace them
+    inputs = [file, real.target.folder / "target.toml", *info.kernel_files(real.target.folder)]
+    if not check_only:
+        check_output(output, inputs, "header")
     report = run_check(real, loaded.description.budget)
     for c in report.cautions:
         print(f"coefc: {c}", file=sys.stderr)
@@ -95,7 +99,7 @@ def build(
         print(f"{output}: up to date")
         return
     for path in paths:
-        check_output(path, [file], "header")
+        check_output(path, inputs, "header")
     for path, text in paths.items():
         write_atomic(path, text)
         print(f"wrote {path}" + ("  (OVER BUDGET, forced)" if not report.ok else ""))

@@ -21,15 +21,17 @@ MinStopband = Annotated[Optional[float], typer.Option(
     "--min-stopband-attenuation-db", metavar="DB", help="Budget override: smallest stopband attenuation, dB.")]
 MaxNoise = Annotated[Optional[float], typer.Option(
     "--max-noise-dbfs", metavar="DBFS", help="Budget override: largest output roundoff noise, dBFS (AES17).")]
+MaxOffset = Annotated[Optional[float], typer.Option(
+    "--max-offset-lsb", metavar="LSB", help="Budget override: largest DC offset of the output error, LSB.")]
 LimitCycles = Annotated[Optional[str], typer.Option(
-    "--limit-cycles", metavar="none|N", help="Budget override: 'none' (must be proven) or a largest amplitude in LSB.")]
+    "--limit-cycles", metavar="none|N", help="Budget override: 'none' (must be proven; the default) or a largest amplitude in LSB.")]
 OverflowBudget = Annotated[Optional[str], typer.Option(
-    "--overflow-budget", metavar="none|allow", help="Budget override: 'none' (no overflow under worst-case input) or 'allow'.")]
+    "--overflow-budget", metavar="none|allow", help="Budget override: 'none' (no overflow under worst-case input; the default) or 'allow'.")]
 JUnit = Annotated[Optional[str], typer.Option("--junit", metavar="PATH", help="Also write a JUnit XML report to PATH.")]
 NoiseSamples = Annotated[int, typer.Option(
-    "--noise-samples", metavar="N", min=1024, help="Length of the measured-noise stimulus in samples.")]
+    "--noise-samples", metavar="N", min=1024, max=1 << 22, help="Length of the measured-noise stimulus in samples (1024 to 4194304).")]
 SearchLimit = Annotated[int, typer.Option(
-    "--search-limit", metavar="STATES", min=1, help="Largest number of states searched exhaustively per section for limit cycles.")]
+    "--search-limit", metavar="STATES", min=1, max=1 << 28, help="Largest number of states searched exhaustively per section for limit cycles (at most 2^28).")]
 
 
 @app.command()
@@ -50,6 +52,7 @@ def check(
     max_passband_deviation_db: MaxDeviation = None,
     min_stopband_attenuation_db: MinStopband = None,
     max_noise_dbfs: MaxNoise = None,
+    max_offset_lsb: MaxOffset = None,
     limit_cycles: LimitCycles = None,
     overflow_budget: OverflowBudget = None,
     noise_samples: NoiseSamples = 1 << 15,
@@ -71,7 +74,7 @@ def check(
     budget = apply_overrides(desc.budget, passband_deviation_db=max_passband_deviation_db,
                              stopband_attenuation_db=min_stopband_attenuation_db,
                              output_noise_dbfs=max_noise_dbfs, limit_cycles=limit_cycles,
-                             overflow=overflow_budget)
+                             overflow=overflow_budget, output_offset_lsb=max_offset_lsb)
     report = run_check(real, budget, options=AnalysisOptions(noise_samples=noise_samples, max_states=search_limit))
     if junit:
         from ..fileio import write_atomic

@@ -22,10 +22,13 @@ def _row(t) -> dict:
 @app.command()
 def targets(target_dir: options.TargetDirs = None, json_out: options.JsonOut = None) -> None:
     """List targets and their arithmetic (built-in, --target-dir, COEFC_TARGET_PATH)."""
-    from ..targets import list_targets
+    from ..targets import build_info, list_targets
 
     options.check_outputs([(json_out, "JSON report")])
     found = list_targets(target_dir or ())
+    for t in found:  # a target that could not build a header is bad input here too
+        if "kernel" in t.raw:
+            build_info(t)
     if json_out:
         options.write_json({"schema": 1, "targets": [_row(t) for t in found]}, json_out)
         if json_out == "-":

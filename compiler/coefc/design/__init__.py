@@ -35,7 +35,7 @@ import math
 
 import numpy as np
 
-from ..blocks import ChannelDesign, SosBlock, StageSummary
+from ..blocks import ChannelDesign, DelayBlock, FirBlock, SosBlock, StageSummary
 from ..spec import EQ_KINDS, FIR_KINDS, IIR_KINDS, ChannelSpec
 from .stage import StageContext, StageResult
 
@@ -194,14 +194,47 @@ def design_channel(channel: ChannelSpec, sample_rate_hz: float, source: str) -> 
         res = _designer(ctx)(ctx)
         _check_sound(ctx, res)
         blocks.extend(res.blocks)
+        _check_totals(ctx, blocks)
         results.append((st.index, res))
         summaries.append(StageSummary(index=st.index, kind=st.kind, text=res.text, order=res.order,
                                       sections=res.sections, taps=res.taps,
-                                      latency_samples=res.latency_samples))
+                                      latency_samples=res.latency_samples, requirement=res.requirement))
     warnings = _channel_warnings(blocks, results, float(sample_rate_hz))
     return ChannelDesign(name=channel.name, sample_rate_hz=float(sample_rate_hz), blocks=tuple(blocks),
                          stages=tuple(summaries), warnings=tuple(warnings),
-                         stopbands=required_stopbands(channel, float(sample_rate_hz)))
+                         stopbands=required_stopbands(channel, float(sample_rate_hz)),
+                         edges_hz=stage_frequencies(channel))
+
+
+def stage_frequencies(channel: ChannelSpec) -> tuple[float, ...]:
+    """Every positive frequency the stages name (``cutoff_hz``, ``freq_hz``, ``passband_hz``,
+    ``stopband_hz``, as numbers or band edges), sorted: the frequencies the response grid must cover."""
+    out = set()
+    for st in channel.stages:
+        for key in _FREQ_KEYS:
+            v = st.params.get(key)
+            for x in (v if isinstance(v, (list, tuple)) else [v]):
+                if isinstance(x, (int, float)) and not isinstance(x, bool) and x > 0 and math.isfinite(x):
+                    out.add(float(x))
+    return tuple(sorted(out))
+
+
+def _check_totals(ctx: StageContext, blocks) -> None:
+    """Refuse a channel whose stages together ask for more work than a check can bound.
+
+    Checked after each stage, so the stage that crosses a limit is the one named.
+    """
+    from ..spec import MAX_CHANNEL_DELAY_SAMPLES, MAX_CHANNEL_SECTIONS, MAX_CHANNEL_TAPS
+
+    totals = (("FIR taps", sum(len(b.taps) for b in blocks if isinstance(b, FirBlock)), MAX_CHANNEL_TAPS),
+              ("second-order sections", sum(len(b.sos) for b in blocks if isinstance(b, SosBlock)),
+               MAX_CHANNEL_SECTIONS),
+              ("samples of delay", sum(b.samples for b in blocks if isinstance(b, DelayBlock)),
+               MAX_CHANNEL_DELAY_SAMPLES))
+    for what, n, limit in totals:
+        if n > limit:
+            raise ctx.error(f"the channel now has {n} {what}; at most {limit} per channel are accepted "
+                            "(a merge gate must finish): shorten the stages or split the channel")
 
 
 def required_stopbands(channel: ChannelSpec, fs: float) -> tuple[tuple[float, float], ...]:

@@ -132,7 +132,8 @@ def channel_summary(design: ChannelDesign, freqs_hz) -> dict:
         "fir_taps": int(sum(s.taps for s in design.stages)),
         "stages": [
             {"index": s.index, "kind": s.kind, "text": s.text, "order": s.order, "sections": s.sections,
-             "taps": s.taps, "latency_samples": s.latency_samples}
+             "taps": s.taps, "latency_samples": s.latency_samples,
+             "requirement": dict(s.requirement) if s.requirement is not None else None}
             for s in design.stages
         ],
         "warnings": list(design.warnings),

@@ -13,6 +13,12 @@ from dataclasses import dataclass, field
 from ..blocks import Block
 from ..errors import DescriptionError
 
+#: Stopband attenuation (dB) a design given by requirements keeps beyond ``attenuation_db``
+#: for coefficient quantisation, unless the stage says otherwise with ``margin_db``.
+DEFAULT_MARGIN_DB = 0.5
+#: Largest ``margin_db`` accepted: a margin is for coefficient rounding, not a second requirement.
+MAX_MARGIN_DB = 20.0
+
 
 @dataclass(frozen=True)
 class StageContext:
@@ -52,6 +58,15 @@ class StageContext:
             if key not in allowed:
                 raise self.error(f"does not apply {why}; remove it", key)
 
+    def margin_db(self) -> float:
+        """The quantisation margin of a design given by requirements (``margin_db``, default 0.5 dB)."""
+        m = float(self.get("margin_db", DEFAULT_MARGIN_DB))
+        if m > MAX_MARGIN_DB:
+            raise self.error(f"{m:g} dB is more than coefficient rounding needs; use at most {MAX_MARGIN_DB:g} dB "
+                             f"(the default is {DEFAULT_MARGIN_DB:g} dB), or raise attenuation_db instead",
+                             "margin_db")
+        return m
+
     def one_of(self, keys: tuple[str, ...], required: bool = True) -> str | None:
         """The single key of *keys* that is given (error on none when required, or several)."""
         given = [k for k in keys if k in self.params]
@@ -75,3 +90,6 @@ class StageResult:
     taps: int = 0
     latency_samples: float = 0.0
     warnings: tuple[str, ...] = field(default_factory=tuple)
+    #: For designs given by requirements: what was asked, the quantisation margin kept,
+    #: what the float design reaches (dense grid) and how the margin was paid for.
+    requirement: Mapping | None = None

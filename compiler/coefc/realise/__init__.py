@@ -32,10 +32,16 @@ avoided whenever another order does better on that count.  Then
 every FIR and section output is scaled so that the transfer function from the
 channel input to that output has norm ``1 - 2 LSB`` (:mod:`.scaling`); the scale
 factors are arbitrary reals folded into the numerators (or taps), and the final
-``GainOp`` restores the overall gain.  With ``l1`` the promise is "no overflow for
-any input within full scale", so the target is lowered (at most three times) until
-the realised worst case -- the l1 norm of the quantised response plus the largest
-roundoff of every earlier rounding along its path -- stays within the data word.  If re-pairing would change the response by
+``GainOp`` restores the overall gain, including the gain each numerator lost in
+rounding (:func:`.coefficients.realised_gain`).  With ``l1`` the promise is "no
+internal overflow for any input within full scale", kept op by op on the realised
+coefficients (:func:`_realise_l1`): each op's scale is chosen on the response through
+the ops already quantised and lowered (by at most ``L1_MAX_LOSS_BITS``) until its
+output's worst case -- the l1 norm of the quantised response plus the largest
+roundoff of every rounding along its path -- fits the data word; where it cannot,
+the ``l1_scaling`` check of :mod:`coefc.budget` fails with the bits missing.  Zeros
+of the float design at z = +-1 stay there exactly (:func:`.coefficients.fit_section`).
+If re-pairing would change the response by
 more than 1e-8 relative (or a numerator has ``b0 == 0``), the designed sections are
 kept in design order, only scaled, and a note says so.
 
@@ -155,46 +161,6 @@ def _scale(chain, final: float, norm: str, target: float):
     return chain, (final / float(np.prod(f)) if f else final)
 
 
-def _l1_worst_peak(program: ChannelProgram) -> float:
-    """Largest value any section or FIR output can reach for inputs bounded by 1.
-
-    The l1 norm of the realised (quantised) response from the input to the node,
-    plus each rounding's largest error (q/2 for add-half and half-even, q otherwise)
-    times the l1 norm of its path to the node (Jackson's l1 argument, with the
-    roundoff of earlier ops bounded instead of neglected).
-    """
-    ar = program.arithmetic
-    q = ar.data.lsb
-    eps = q / 2 if ar.rounding in ("add-half", "half-even") else q
-    chain = []
-    for blk in as_float_blocks(program):
-        if isinstance(blk, SosBlock):
-            chain += [("sos", (r[:3], r[3:])) for r in blk.sos]
-        elif isinstance(blk, FirBlock):
-            chain.append(("fir", blk.taps))
-        elif isinstance(blk, GainBlock):
-            chain.append(("fir", np.array([blk.gain])))
-    n = scaling.response_length(chain)
-    h = np.zeros(n)
-    h[0] = 1.0
-    sources: list[np.ndarray] = []
-    worst = 0.0
-    for i, (kind, op) in enumerate(chain):
-        h = scaling.apply_op(kind, op, h)
-        sources = [scaling.apply_op(kind, op, g) for g in sources]
-        own = np.zeros(n)
-        own[0] = 1.0
-        if kind == "sos":
-            if ar.structure == "df1ef":
-                own[1] = -1.0
-            own = scaling.signal.lfilter([1.0], op[1], own)
-        sources.append(own)
-        if i < len(chain) - 1 or kind != "fir" or len(op) > 1:
-            peak = float(np.sum(np.abs(h))) + eps * sum(float(np.sum(np.abs(g))) for g in sources)
-            worst = max(worst, peak)
-    return worst
-
-
 def _note_thin_numerators(sections, arithmetic: Arithmetic, notes: list) -> None:
     """Without scaling, say when a designed numerator keeps fewer than 8 significant bits."""
     if arithmetic.is_float:
@@ -253,8 +219,8 @@ def realise_channel(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelPro
     >>> from coefc.blocks import ChannelDesign, SosBlock
     >>> d = ChannelDesign("lp", 48000, (SosBlock(signal.butter(2, 1000, fs=48000, output="sos")),))
     >>> p = realise_channel(d, Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 14), acc_bits=32))
-    >>> p.ops[0].a
-    (-29743, 13615)
+    >>> p.ops[0].a, p.ops[0].b[1] == 2 * p.ops[0].b[0] == 2 * p.ops[0].b[2]
+    ((-29743, 13615), True)
     """
     if arithmetic.structure == "df1ef" and arithmetic.is_float:
         raise RealisationError(f"channel '{design.name}': structure 'df1ef' (error feedback) needs "
@@ -262,32 +228,185 @@ def realise_channel(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelPro
     pre_gain, delay, chain0, final0, notes = _float_plan(design, arithmetic)
     if arithmetic.scaling == "none":
         return _build(design, arithmetic, pre_gain, delay, chain0, final0, notes)
-    target = _target(arithmetic)
-    first = None
-    for _ in range(4):
-        chain, final_gain = _scale(chain0, final0, arithmetic.scaling, target)
-        prog = _build(design, arithmetic, pre_gain, delay, chain, final_gain, list(notes))
-        if arithmetic.scaling != "l1" or arithmetic.is_float or any("unstable" in n for n in prog.notes):
-            return prog
-        first = first or prog
-        peak = _l1_worst_peak(prog)
-        if peak <= arithmetic.data.max_value:
-            return prog
-        if target * arithmetic.data.max_value / peak < _target(arithmetic) / 16:
-            break
-        target *= arithmetic.data.max_value / peak * (1.0 - 1e-9)
-    worst = _l1_worst_peak(first)
-    return ChannelProgram(first.name, first.sample_rate_hz, first.arithmetic, first.ops, first.notes + (
-        f"l1 scaling: with the quantised coefficients and roundoff a section output can reach "
-        f"{20 * np.log10(worst / arithmetic.data.max_value):.1f} dB above full scale; not corrected "
-        "(more than 4 bits of headroom would be lost): use a wider coefficient or data word",))
+    if arithmetic.is_float:
+        chain, final_gain = _scale(chain0, final0, arithmetic.scaling, _target(arithmetic))
+        return _build(design, arithmetic, pre_gain, delay, chain, final_gain, notes)
+    if arithmetic.scaling == "l1":
+        return _realise_l1(design, arithmetic, delay, chain0, final0, notes)
+    factors = scaling.scale_factors(chain0, arithmetic.scaling, _target(arithmetic))
+    ops, gain = [], 1.0
+    for (kind, op), c in zip(chain0, factors):
+        c = _at_least_one_lsb(kind, op, c, arithmetic)
+        rop, g = _fixed_op(kind, op, c, arithmetic, notes, sum(isinstance(o, SectionOp) for o in ops) + 1)
+        ops.append(rop)
+        gain *= g
+    return _finish(design, arithmetic, delay, ops, final0 / gain, notes)
+
+
+def _at_least_one_lsb(kind, op, c: float, arithmetic: Arithmetic) -> float:
+    """*c*, raised where a scaled section numerator would round to nothing (largest value 1 LSB).
+
+    The node then sits above its norm target (the overflow analysis and, under l1,
+    the l1_scaling check say by how much); a numerator of zeros would silence the channel.
+    """
+    if kind != "sos":
+        return c
+    top = float(np.max(np.abs(op[0]))) * c * 2.0 ** arithmetic.coef.frac_bits
+    return c / top if 0.0 < top < 1.0 else c
+
+
+def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: int):
+    """The fixed-point op for the float op scaled by *c*, and its realised gain.
+
+    The realised gain is the least-squares ratio of the realised numerator (or taps)
+    to the unscaled float one; the final gain op divides by the product of these, so
+    the gain lost in rounding a numerator is restored there.
+    """
+    fmt = arithmetic.coef
+    if kind == "sos":
+        b, a = op
+        bs = np.asarray(b, dtype=float) * c
+        ints, s, sat = coefficients.fit_section(bs, a, fmt, arithmetic.rounding, min_shift=0)
+        if sat:
+            notes.append(f"section {n_sec}: coefficients do not fit {fmt} even with a coefficient shift of {s}; "
+                         "saturated (the response will be wrong): use a wider coefficient word")
+        rop = SectionOp(b=tuple(ints[:3]), a=tuple(ints[3:]), shift=s, structure=arithmetic.structure)
+        phys = np.array(ints[:3], dtype=float) * 2.0 ** (s - fmt.frac_bits)
+        return rop, coefficients.realised_gain(b, phys)
+    taps = np.asarray(op, dtype=float)
+    ts = taps * c
+    ints, s, sat = coefficients.fit_group(ts, fmt, arithmetic.rounding,
+                                          min_shift=coefficients.lowest_shift(ts, fmt),
+                                          acc_limit=arithmetic.acc_bits, data_width=arithmetic.data.width)
+    if sat:
+        notes.append(f"FIR of {len(op)} taps: taps do not fit {fmt} with the accumulator of "
+                     f"{arithmetic.acc_bits} bits; saturated")
+    rop = FirOp(taps=ints, shift=s, symmetric=ints == ints[::-1])
+    phys = np.array(ints, dtype=float) * 2.0 ** (s - fmt.frac_bits)
+    return rop, coefficients.realised_gain(taps, phys)
+
+
+def _finish(design, arithmetic, delay, ops, final_gain, notes) -> ChannelProgram:
+    """Delay first, the realised ops, the final gain op; notes on unstable quantised poles."""
+    fc = arithmetic.coef.frac_bits
+    out = [DelayOp(delay)] if delay else []
+    n_sec = 0
+    for op in ops:
+        if isinstance(op, SectionOp):
+            n_sec += 1
+            r = pairing.pole_radius([1.0, op.a[0] * 2.0 ** (op.shift - fc), op.a[1] * 2.0 ** (op.shift - fc)])
+            if r >= 1.0:
+                notes.append(f"section {n_sec}: quantised poles have radius {r:.9f} >= 1 (unstable); "
+                             "use a wider coefficient word")
+        out.append(op)
+    if final_gain != 1.0:
+        out.append(_fixed_gain(final_gain, arithmetic, notes, "output"))
+    return ChannelProgram(design.name, design.sample_rate_hz, arithmetic, tuple(out), tuple(notes))
+
+
+#: l1 scaling gives up (and the check fails) rather than lose more headroom than this
+L1_MAX_LOSS_BITS = 4
+
+
+def _l1_length(chain) -> int:
+    """Impulse-response length for the l1 bounds: as long as the overflow analysis uses."""
+    from ..analyse.linear import DECAY, MAX_LENGTH, MIN_LENGTH
+
+    r = max([pairing.pole_radius(op[1]) for kind, op in chain if kind == "sos"] + [0.0])
+    fir = sum(len(op) - 1 for kind, op in chain if kind != "sos")
+    n = int(np.ceil(np.log(DECAY) / np.log(r))) * 2 if 0.0 < r < 1.0 else (1 << 14 if r >= 1.0 else 0)
+    return int(min(max(n + fir + 8, MIN_LENGTH), MAX_LENGTH))
+
+
+def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: float, notes: list) -> ChannelProgram:
+    """l1 scaling on the realised ops, one op at a time (Jackson's l1 argument, roundoff included).
+
+    For op i the float design's l1 scale factor (output norm ``1 - 2 LSB``) is the
+    starting point, so realisations in different words share their scaling where
+    they can.  The op is quantised and its
+    worst case computed: the l1 norm of the realised response plus, for every
+    rounding so far (its own included), the rounding's largest error times the l1
+    norm of its path to this output.  While that exceeds the largest data word the
+    factor is lowered by the excess and by one step of the op's largest integer
+    (so the integers really change) and the op quantised again.  When no factor
+    within ``2^-L1_MAX_LOSS_BITS`` of the first one fits (the roundoff alone may
+    exceed full scale), the first one is kept and the overflow analysis reports the
+    failing ``l1_scaling`` check with the bits missing.
+    """
+    from ..analyse.limitcycles import error_interval
+    from ..analyse.linear import _run, op_models
+
+    ar = arithmetic
+    cen, rad = error_interval(ar.rounding)
+    eps = (abs(cen) + rad) * ar.data.lsb
+    maxv = ar.data.max_value
+    target = _target(ar)
+    n = _l1_length(chain0)
+    unit = np.zeros(n)
+    unit[0] = 1.0
+    h = unit.copy()
+    paths: list[np.ndarray] = []  # roundoff of each earlier rounding, carried to the current node
+    ops, gain, worst = [], 1.0, 0.0
+    # start from the float design's factors: realisations of one design in different words
+    # then share their scaling wherever the quantised coefficients do not force a lower one
+    # (the per-op width search of coefc.opwidths relies on this correspondence)
+    factors = scaling.scale_factors(chain0, "l1", target, n)
+    for (kind, op), c0 in zip(chain0, factors):
+        c0 = _at_least_one_lsb(kind, op, c0, ar)
+        c, first, best, fill = c0, None, None, 0
+        n_sec = sum(isinstance(o, SectionOp) for o in ops) + 1
+        while True:
+            trial_notes: list[str] = []
+            rop, g = _fixed_op(kind, op, c, ar, trial_notes, n_sec)
+            m = op_models(ChannelProgram(design.name, design.sample_rate_hz, ar, (rop,)))[0]
+            stable = not m.recursive or float(np.max(np.abs(np.roots(m.a)))) < 1.0
+            hn = _run(m.b, m.a, h)
+            pn = [_run(m.b, m.a, p) for p in paths]
+            if m.k > 0:
+                pn.append(_run(m.noise_b, m.noise_a, unit))
+            roundoff = eps * sum(float(np.sum(np.abs(p))) for p in pn)
+            bound = float(np.sum(np.abs(hn))) + roundoff
+            state = (rop, g, trial_notes, hn, pn, bound)
+            first = first or state
+            if not stable:
+                break
+            if bound <= maxv:
+                if fill < 3 and bound < maxv * (1.0 - 1e-6) and c < c0:  # lowered too far: fill up again
+                    fill += 1
+                    best = state
+                    c = min(c0, c * maxv / bound * (1.0 - 1e-9))
+                    continue
+                break
+            if best is not None:  # filling up overshot: keep the last fit
+                state = best
+                break
+            ints = rop.b if kind == "sos" else rop.taps
+            lower = c * maxv / bound
+            if _fixed_op(kind, op, lower, ar, [], n_sec)[0] == rop:  # the same integers: one step down
+                lower *= 1.0 - 1.0 / max(max(abs(v) for v in ints), 2)
+            c = lower
+            zero = kind == "sos" and not any(_fixed_op(kind, op, c, ar, [], n_sec)[0].b)
+            if c < c0 * 2.0 ** -L1_MAX_LOSS_BITS or roundoff >= maxv or zero:
+                state = first
+                break
+        rop, g, trial_notes, h, paths, bound = state
+        notes.extend(trial_notes)
+        worst = max(worst, bound)
+        ops.append(rop)
+        gain *= g
+    if worst > maxv:
+        notes.append(f"l1 scaling: with the quantised coefficients and roundoff an op output can reach "
+                     f"{worst / maxv:.6g} x full scale ({np.log2(worst / maxv):.2f} bits of headroom missing); "
+                     "the l1_scaling check fails: use a wider data or coefficient word")
+    return _finish(design, ar, delay, ops, final0 / gain, notes)
 
 
 def _build(design, arithmetic, pre_gain, delay, chain, final_gain, notes) -> ChannelProgram:
+    """The program of an already scaled float chain (float32, or fixed point without scaling)."""
     ops = []
-    if delay:
-        ops.append(DelayOp(delay))
     if arithmetic.is_float:
+        if delay:
+            ops.append(DelayOp(delay))
         f32 = lambda v: float(np.float32(v))  # noqa: E731
         if pre_gain != 1.0:
             ops.append(GainOp(coef=f32(pre_gain)))
@@ -302,37 +421,11 @@ def _build(design, arithmetic, pre_gain, delay, chain, final_gain, notes) -> Cha
         if final_gain != 1.0:
             ops.append(GainOp(coef=f32(final_gain)))
         return ChannelProgram(design.name, design.sample_rate_hz, arithmetic, tuple(ops), tuple(notes))
-
-    fmt = arithmetic.coef
     if pre_gain != 1.0:
         ops.append(_fixed_gain(pre_gain, arithmetic, notes, "input"))
-    n_sec = 0
     for kind, op in chain:
-        if kind == "sos":
-            n_sec += 1
-            b, a = op
-            ints, s, sat = coefficients.fit_group([*b, a[1], a[2]], fmt, arithmetic.rounding, min_shift=0)
-            if sat:
-                notes.append(f"section {n_sec}: coefficients do not fit {fmt} even with a coefficient shift of {s}; "
-                             "saturated (the response will be wrong): use a wider coefficient word")
-            sec = SectionOp(b=tuple(ints[:3]), a=tuple(ints[3:]), shift=s, structure=arithmetic.structure)
-            r = pairing.pole_radius([1.0, sec.a[0] * 2.0 ** (s - fmt.frac_bits),
-                                     sec.a[1] * 2.0 ** (s - fmt.frac_bits)])
-            if r >= 1.0:
-                notes.append(f"section {n_sec}: quantised poles have radius {r:.9f} >= 1 (unstable); "
-                             "use a wider coefficient word")
-            ops.append(sec)
-        else:
-            ints, s, sat = coefficients.fit_group(op, fmt, arithmetic.rounding,
-                                                  min_shift=coefficients.lowest_shift(op, fmt),
-                                                  acc_limit=arithmetic.acc_bits, data_width=arithmetic.data.width)
-            if sat:
-                notes.append(f"FIR of {len(op)} taps: taps do not fit {fmt} with the accumulator of "
-                             f"{arithmetic.acc_bits} bits; saturated")
-            ops.append(FirOp(taps=ints, shift=s, symmetric=ints == ints[::-1]))
-    if final_gain != 1.0:
-        ops.append(_fixed_gain(final_gain, arithmetic, notes, "output"))
-    return ChannelProgram(design.name, design.sample_rate_hz, arithmetic, tuple(ops), tuple(notes))
+        ops.append(_fixed_op(kind, op, 1.0, arithmetic, notes, sum(isinstance(o, SectionOp) for o in ops) + 1)[0])
+    return _finish(design, arithmetic, delay, ops, final_gain, notes)
 
 
 def as_float_blocks(program: ChannelProgram) -> tuple[Block, ...]:

@@ -15,6 +15,17 @@ coefficients, a FIR's taps, a gain) is stored as integers ``C`` with physical va
 
 Quantisation rounds by the arithmetic's rounding mode (add-half by default).
 
+Zeros at z = -1 and z = +1
+--------------------------
+A numerator ``b0 + b1 z^-1 + b2 z^-2`` has a zero at ``z = -1`` exactly when
+``b0 - b1 + b2 = 0`` and at ``z = +1`` exactly when ``b0 + b1 + b2 = 0``.  Where the
+float design places a zero there (within 1e-6), :func:`fit_section` rounds ``B0`` and
+``B2`` and derives ``B1`` from them so that the same relation holds between the
+integers: one zero at -1 gives ``B1 = B0 + B2``, one at +1 ``B1 = -(B0 + B2)``, a
+double zero ``B2 = B0, B1 = +-2 B0``, one at each ``B1 = 0, B2 = -B0``.  A high-pass
+or DC blocker then blocks DC exactly, and a low-pass has an exact null at Nyquist,
+however few bits the numerator's gain has.
+
 References
 ----------
 Oppenheim & Schafer, *Discrete-Time Signal Processing*, 3rd ed., sec. 6.8
@@ -28,6 +39,76 @@ import numpy as np
 from ..qformat import QFormat, fit_word, round_real
 
 MAX_K = 62
+
+#: a float zero this close to z = -1 or z = +1 is taken to lie on it
+ZERO_TOL = 1e-6
+
+
+def zeros_at_unit_points(b) -> tuple[int, int]:
+    """How many zeros of the numerator ``b = [b0, b1, b2]`` lie at z = -1 and at z = +1.
+
+    The roots of ``b0 z^2 + b1 z + b2``; a root within :data:`ZERO_TOL` of -1 or +1
+    counts.  ``(0, 0)`` when ``b0 == 0`` (no second-order numerator to constrain).
+    """
+    b = [float(v) for v in b] + [0.0] * (3 - len(b))
+    if b[0] == 0.0 or not all(np.isfinite(b)):
+        return 0, 0
+    r = np.roots(b[:3]) if b[2] != 0.0 or b[1] != 0.0 else np.zeros(0)
+    minus = int(sum(1 for z in r if abs(z + 1.0) <= ZERO_TOL))
+    plus = int(sum(1 for z in r if abs(z - 1.0) <= ZERO_TOL))
+    return minus, plus
+
+
+def place_zeros(ints, minus: int, plus: int) -> list[int]:
+    """Integers ``[B0, B1, B2, ...]`` with B1 (and B2) derived so the zeros stay at -1 / +1."""
+    out = [int(v) for v in ints]
+    b0, b2 = out[0], out[2]
+    if (minus, plus) == (2, 0):
+        out[1], out[2] = 2 * b0, b0
+    elif (minus, plus) == (0, 2):
+        out[1], out[2] = -2 * b0, b0
+    elif (minus, plus) == (1, 1):
+        out[1], out[2] = 0, -b0
+    elif minus == 1:
+        out[1] = b0 + b2
+    elif plus == 1:
+        out[1] = -(b0 + b2)
+    return out
+
+
+def fit_section(b, a, fmt: QFormat, rounding: str, *, min_shift: int = 0) -> tuple[tuple[int, ...], int, bool]:
+    """Quantise a section ``(b, a)`` with one shared shift, zeros at +-1 kept exactly.
+
+    Returns ``(ints, shift, saturated)`` with ``ints = (B0, B1, B2, A1, A2)``; the
+    shift is the smallest ``>= min_shift`` at which every integer (after the zero
+    placement of the module docstring) fits the coefficient word.
+    """
+    values = np.asarray([*b, a[1], a[2]], dtype=float)
+    if not np.all(np.isfinite(values)):
+        raise ValueError("coefficient is not finite")
+    minus, plus = zeros_at_unit_points(b)
+    s = min_shift
+    while True:
+        ints, _ = _quantise(values, fmt, s, rounding)
+        ints = place_zeros(ints, minus, plus)
+        if all(fmt.min_int <= v <= fmt.max_int for v in ints):
+            return tuple(ints), s, False
+        if fmt.frac_bits - s <= 1:
+            return tuple(fit_word(v, fmt.width, "saturate") for v in ints), s, True
+        s += 1
+
+
+def realised_gain(intended, realised) -> float:
+    """Least-squares gain of the *realised* coefficients relative to the *intended* ones.
+
+    ``<intended, realised> / <intended, intended>``: exactly the ratio of the two when
+    the realised numerator has the intended shape (zeros kept at +-1), so dividing
+    the channel's final gain by it restores the overall gain.
+    """
+    x = np.asarray(intended, dtype=float)
+    y = np.asarray(realised, dtype=float)
+    den = float(np.dot(x, x))
+    return float(np.dot(x, y)) / den if den > 0 else 1.0
 
 
 def _quantise(values, fmt: QFormat, s: int, rounding: str) -> tuple[list[int], bool]:

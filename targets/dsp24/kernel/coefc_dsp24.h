@@ -24,6 +24,10 @@
 #include <stddef.h>
 #include <stdint.h>
 
+#ifdef __cplusplus
+extern "C" {
+#endif
+
 /* Kernel interface version: a generated header refuses any other.  Interface 2
    adds COEFC_DSP24_OP_FIR_SYM (symmetric FIR, half the taps stored, folded). */
 #define COEFC_DSP24_ABI 2
@@ -93,5 +97,9 @@ void coefc_dsp24_process(const coefc_dsp24_channel_t *ch, coefc_dsp24_state_t *s
 long coefc_dsp24_selftest(const coefc_dsp24_channel_t *ch, coefc_dsp24_state_t *state,
                           const coefc_dsp24_data_t *in, const coefc_dsp24_data_t *expected,
                           size_t n);
+
+#ifdef __cplusplus
+}
+#endif
 
 #endif /* COEFC_DSP24_H */

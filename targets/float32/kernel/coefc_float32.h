@@ -25,6 +25,10 @@
 #include <stddef.h>
 #include <stdint.h>
 
+#ifdef __cplusplus
+extern "C" {
+#endif
+
 /* Kernel interface version: a generated header refuses any other.  float32
    stays at interface 1: it never folds symmetric FIRs (the fixed-point kernels'
    OP_FIR_SYM of interface 2), because x[n-k] + x[n-N+1-k] would be rounded to
@@ -77,5 +81,9 @@ void coefc_float32_process(const coefc_float32_channel_t *ch, coefc_float32_stat
    matches, otherwise the index of the first sample that differs. */
 long coefc_float32_selftest(const coefc_float32_channel_t *ch, coefc_float32_state_t *state,
                             const float *in, const float *expected, size_t n);
+
+#ifdef __cplusplus
+}
+#endif
 
 #endif /* COEFC_FLOAT32_H */

@@ -23,6 +23,10 @@
 #include <stddef.h>
 #include <stdint.h>
 
+#ifdef __cplusplus
+extern "C" {
+#endif
+
 /* Kernel interface version: a generated header refuses any other.  Interface 2
    adds COEFC_MCU16_OP_FIR_SYM (symmetric FIR, half the taps stored, folded). */
 #define COEFC_MCU16_ABI 2
@@ -91,5 +95,9 @@ void coefc_mcu16_process(const coefc_mcu16_channel_t *ch, coefc_mcu16_state_t *s
 long coefc_mcu16_selftest(const coefc_mcu16_channel_t *ch, coefc_mcu16_state_t *state,
                           const coefc_mcu16_data_t *in, const coefc_mcu16_data_t *expected,
                           size_t n);
+
+#ifdef __cplusplus
+}
+#endif
 
 #endif /* COEFC_MCU16_H */

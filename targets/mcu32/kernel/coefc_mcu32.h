@@ -22,6 +22,10 @@
 #include <stddef.h>
 #include <stdint.h>
 
+#ifdef __cplusplus
+extern "C" {
+#endif
+
 /* Kernel interface version: a generated header refuses any other.  Interface 2
    adds COEFC_MCU32_OP_FIR_SYM (symmetric FIR, half the taps stored, folded). */
 #define COEFC_MCU32_ABI 2
@@ -90,5 +94,9 @@ void coefc_mcu32_process(const coefc_mcu32_channel_t *ch, coefc_mcu32_state_t *s
 long coefc_mcu32_selftest(const coefc_mcu32_channel_t *ch, coefc_mcu32_state_t *state,
                           const coefc_mcu32_data_t *in, const coefc_mcu32_data_t *expected,
                           size_t n);
+
+#ifdef __cplusplus
+}
+#endif
 
 #endif /* COEFC_MCU32_H */

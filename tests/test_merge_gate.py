@@ -1,0 +1,181 @@
+"""A merge gate runs coefc as root on files anyone can change: outputs never replace
+special files, interrupts clean up, and exit 1 only ever means "over budget"
+(bad input 2, a bug of coefc 3).  Facts of the trade: POSIX file types and the
+128 + signal-number exit status of a process ended by a signal (common practice,
+no source)."""
+
+from __future__ import annotations
+
+import json
+import shutil
+import os
+import signal
+import stat
+import subprocess
+import sys
+import threading
+import time
+
+import pytest
+
+from pathlib import Path
+
+from conftest import FILTERS
+
+MAIN = "from coefc.cli import main; main()"
+EXAMPLE = FILTERS / "three_way_monitor.toml"
+
+
+def coefc(*args, **kw):
+    return subprocess.run([sys.executable, "-c", MAIN, *map(str, args)], capture_output=True, text=True,
+                          timeout=300, **kw)
+
+
+def test_json_through_a_symlink_lands_in_its_target_and_keeps_the_link(tmp_path):
+    real = tmp_path / "real.json"
+    real.write_text("old")
+    link = tmp_path / "link.json"
+    link.symlink_to(real)
+    r = coefc("check", EXAMPLE, "--channel", "woofer", "--json", link)
+    assert r.returncode == 0, r.stderr
+    assert link.is_symlink() and os.readlink(link) == str(real)
+    assert json.loads(real.read_text())["ok"] is True
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["link.json", "real.json"]  # no temporary left
+
+
+def test_json_to_a_fifo_is_streamed_not_replaced(tmp_path):
+    fifo = tmp_path / "pipe"
+    os.mkfifo(fifo)
+    got = []
+    def read():
+        with open(fifo, "rb") as f:
+            got.append(f.read())
+
+    reader = threading.Thread(target=read)
+    reader.start()
+    r = coefc("check", EXAMPLE, "--channel", "woofer", "--json", fifo)
+    reader.join(60)
+    assert r.returncode == 0, r.stderr
+    assert stat.S_ISFIFO(os.stat(fifo).st_mode)
+    assert json.loads(got[0])["ok"] is True
+
+
+def test_a_character_device_is_written_to_and_kept(tmp_path):
+    node = tmp_path / "null.h"
+    try:  # our own copy of /dev/null's node (char 1,3), so the real one is never at risk
+        os.mknod(node, stat.S_IFCHR | 0o666, os.makedev(1, 3))
+    except (PermissionError, OSError) as e:
+        pytest.skip(f"cannot create a device node here ({e})")
+    for args in (("check", EXAMPLE, "--channel", "woofer", "--json", node, "--junit", node),
+                 ("build", EXAMPLE, "-o", node)):
+        r = coefc(*args)
+        assert r.returncode == 0, r.stderr
+        assert stat.S_ISCHR(os.stat(node).st_mode), args
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["null.h"]
+
+
+def test_sigterm_unwinds_and_leaves_no_temporary_file(tmp_path):
+    out = tmp_path / "sweep.csv"
+    p = subprocess.Popen([sys.executable, "-c", MAIN, "sweep", str(EXAMPLE), "--data", "12:32:1",
+                          "--coef", "12:32:1", "--csv", str(out)], stdout=subprocess.PIPE,
+                         stderr=subprocess.PIPE, text=True)
+    time.sleep(4)
+    p.send_signal(signal.SIGTERM)
+    _, err = p.communicate(timeout=60)
+    assert p.returncode == 143, err
+    assert "terminated" in err and "Traceback" not in err
+    assert list(tmp_path.iterdir()) == []
+
+
+def test_deeply_nested_toml_is_bad_input(tmp_path):
+    f = tmp_path / "deep.toml"
+    f.write_text('name = "x"\nsample_rate_hz = 48000\nz = ' + "[" * 5000 + "]" * 5000 + "\n")
+    r = coefc("check", f)
+    assert r.returncode == 2 and r.stderr.count("\n") == 1 and "nested too deeply" in r.stderr
+
+
+def test_an_internal_error_is_exit_3_with_one_line(monkeypatch, capsys):
+    import coefc.api
+    from coefc.cli import main
+
+    def broken(self, *a, **k):
+        raise ZeroDivisionError("simulated defect")
+
+    monkeypatch.setattr(coefc.api.Loaded, "design", broken)
+    monkeypatch.setattr(sys, "argv", ["coefc", "check", str(EXAMPLE)])
+    with pytest.raises(SystemExit) as e:
+        main()
+    assert e.value.code == 3
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "internal error" in err and "ZeroDivisionError" in err
+
+
+@pytest.mark.skipif(shutil.which("g++") is None or shutil.which("gcc") is None, reason="g++ is not installed")
+def test_cpp_firmware_links_the_c_kernel(tmp_path):
+    """Kernel headers carry extern "C" guards: C++ firmware compiled with g++ links
+    the C kernel compiled with gcc and passes the golden vectors."""
+    r = coefc("build", EXAMPLE, "--kernel", "-o", tmp_path / "m.h")
+    assert r.returncode == 0, r.stderr
+    (tmp_path / "main.cpp").write_text(r"""
+#include <cstdio>
+#include "m.h"
+int main() {
+    static coefc_mcu32_state_t state[BENCH_MONITOR_MAX_STATE_WORDS];
+    for (unsigned c = 0; c < BENCH_MONITOR_N_CHANNELS; ++c)
+        if (coefc_mcu32_selftest(bench_monitor_channels[c], state, bench_monitor_golden_in,
+                                 bench_monitor_golden_out[c], BENCH_MONITOR_GOLDEN_LEN) >= 0) return 1;
+    std::printf("ok\n");
+    return 0;
+}
+""")
+    for cmd in (["gcc", "-std=c99", "-c", "coefc_mcu32.c", "-o", "k.o"],
+                ["g++", "-std=c++11", "-Wall", "-Wextra", "-Werror", "-I.", "main.cpp", "k.o", "-o", "fw"],
+                ["./fw"]):
+        p = subprocess.run(cmd, cwd=tmp_path, capture_output=True, text=True, timeout=120)
+        assert p.returncode == 0, " ".join(cmd) + "\n" + p.stdout + p.stderr
+    assert p.stdout.strip() == "ok"
+
+
+def test_output_into_the_target_folder_cannot_replace_its_files(tmp_path):
+    board = tmp_path / "targets" / "board"
+    shutil.copytree(Path(__file__).resolve().parents[1] / "targets" / "mcu32", board)
+    before = (board / "kernel" / "coefc_mcu32.h").read_bytes()
+    r = coefc("build", EXAMPLE, "--target-dir", tmp_path / "targets", "--target", "board", "--kernel",
+              "-o", board / "kernel" / "filters.h")
+    assert r.returncode == 2 and "input" in r.stderr
+    assert (board / "kernel" / "coefc_mcu32.h").read_bytes() == before
+    assert not (board / "kernel" / "filters.h").exists()
+
+
+@pytest.mark.parametrize("content,fragment", [
+    (b"\xef\xbb\xbf1\n2\n", "byte-order mark"),
+    ("\u0661\u0662\n".encode(), "plain ASCII"),           # Arabic-Indic digits: int() would take them
+    (b"1_000\n", "not an integer"),                        # Python's digit separators: not a sample
+    (b"\x00\x01\x02\n", "plain ASCII"),
+])
+def test_text_samples_are_plain_ascii_integers(tmp_path, content, fragment):
+    (tmp_path / "in.txt").write_bytes(content)
+    r = coefc("run", EXAMPLE, tmp_path / "in.txt", tmp_path / "out.txt")
+    assert r.returncode == 2 and r.stderr.count("\n") == 1 and fragment in r.stderr, r.stderr
+    assert not (tmp_path / "out.txt").exists()
+
+
+@pytest.mark.parametrize("value", ["1e39", "nan", "inf", "0x10"])
+def test_float32_text_samples_are_finite_and_in_range(tmp_path, value):
+    (tmp_path / "in.txt").write_text(f"0.5\n{value}\n")
+    r = coefc("run", EXAMPLE, tmp_path / "in.txt", tmp_path / "out.txt", "--target", "float32")
+    assert r.returncode == 2 and r.stderr.count("\n") == 1 and "in.txt:2" in r.stderr, r.stderr
+
+
+def test_description_limits_refuse_before_the_work(tmp_path):
+    """Channels and file size are bounded before any design (the per-channel totals
+    are in tests/bad/limit_*.toml)."""
+    many = tmp_path / "many.toml"
+    many.write_text('name = "x"\nsample_rate_hz = 48000\n' + "".join(
+        f'[[channel]]\nname = "c{i}"\nstages = [{{ kind = "gain", db = 0 }}]\n' for i in range(65)))
+    r = coefc("design", many)
+    assert r.returncode == 2 and "at most 64" in r.stderr
+    big = tmp_path / "big.toml"
+    big.write_text('name = "x"\nsample_rate_hz = 48000\n' + "# padding\n" * 120_000)
+    r = coefc("design", big)
+    assert r.returncode == 2 and "at most 1024 KiB" in r.stderr
