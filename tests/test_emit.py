@@ -122,11 +122,12 @@ def test_float32_literals_are_exact_hex_floats():
 
 def test_word_limits_of_a_kernel_are_enforced():
     a = find_target("mcu16").arithmetic.with_(data=QFormat(1, 23))
-    with pytest.raises(EmitError, match=r"data word is 24 bits wide but the kernel of target 'mcu16' "
-                                        r"handles at most 16; narrow it \(--data\)"):
+    with pytest.raises(DescriptionError, match=r"data word Q1\.23 \(24 bits\) is wider than the kernel of "
+                                               r"target 'mcu16' handles: at most 16; narrow \[implementation\] "
+                                               r"data to Q1\.15"):
         _render([ChannelProgram("x", 48000.0, a, (DelayOp(1),))], target="mcu16")
     a = find_target("mcu16").arithmetic.with_(acc_bits=40)
-    with pytest.raises(EmitError, match=r"accumulator is 40 bits wide"):
+    with pytest.raises(DescriptionError, match=r"the 40-bit accumulator is wider .* at most 32"):
         _render([ChannelProgram("x", 48000.0, a, (DelayOp(1),))], target="mcu16")
 
 

@@ -138,7 +138,7 @@ def test_overrides_and_kernel_files(desc, tmp_path):
     ("unknown target", ["probe.toml", "--target", "mcu99", "-o", "x.h"], r"no target 'mcu99'"),
     ("bad override", ["probe.toml", "--data", "Q1.x", "-o", "x.h"], r"'Q1\.x' is not a Q format"),
     ("kernel too narrow", ["probe.toml", "--target", "mcu16", "--data", "Q1.23", "-o", "x.h"],
-     r"handles at most 16"),
+     r"handles: at most 16; narrow it \(--data Q1\.15\)"),
     ("missing folder", ["probe.toml", "-o", "nowhere/x.h"], r"folder 'nowhere' does not exist"),
     ("output is a folder", ["probe.toml", "-o", "."], r"is a folder; give the header's file name"),
     ("output not a header", ["probe.toml", "-o", "x.c"], r"must be a C header ending in \.h"),
@@ -152,3 +152,101 @@ def test_bad_input_is_one_line_exit_2(desc, tmp_path, case, args, pattern):
     assert len(lines) == 1, r.stderr
     assert re.search(pattern, lines[0]), lines[0]
     assert not (tmp_path / "x.h").exists()
+
+
+# ---------------------------------------------------------------------------
+# check and build agree: every refusal rule of build (coefc.buildable) fails
+# `coefc check` with exit 2 and one line, and `coefc build` with exit 2 and no file
+# ---------------------------------------------------------------------------
+
+LOW_SECTION = """\
+# A subsonic filter probe (an invented example).
+name = "probe_filter"
+sample_rate_hz = 48000
+
+[budget]
+passband_deviation_db = 100
+output_noise_dbfs = -20
+overflow = "allow"
+limit_cycles = 1000000000
+
+[[channel]]
+name = "low"
+stages = [ {{ kind = "highpass", response = "butterworth", order = 2, cutoff_hz = {cutoff} }}, {{ kind = "gain", db = {gain} }} ]
+{extra}"""
+
+
+def _user_target(tmp_path, name, edits):
+    """A copy of the built-in mcu32 target with *edits* ((old, new) text pairs) to its target.toml."""
+    import shutil
+
+    from coefc.targets import find_target
+
+    folder = tmp_path / "targets" / name
+    shutil.copytree(find_target("mcu32").folder, folder)
+    toml = folder / "target.toml"
+    text = toml.read_text()
+    for old, new in edits:
+        assert old in text
+        text = text.replace(old, new)
+    toml.write_text(text)
+    return folder.parent
+
+
+@pytest.mark.parametrize("case", ["data", "coef", "acc", "shift-low", "shift-high", "no-coef-shift",
+                                  "stored-word", "names"])
+def test_every_build_refusal_fails_check_with_exit_2(tmp_path, case):
+    extra, gain, cutoff, args, pattern = "", -6.0, 200, [], None
+    if case == "data":
+        args, pattern = ["--target", "mcu16", "--data", "Q1.23"], r"key '--data': .*at most 16; narrow it \(--data Q1\.15\)"
+    elif case == "coef":
+        args, pattern = ["--target", "mcu16", "--coef", "Q2.22"], r"key '--coef': .*at most 16; narrow it \(--coef Q2\.14\)"
+    elif case == "acc":
+        args, pattern = ["--target", "dsp24", "--acc", "64"], r"key '--acc': the 64-bit accumulator .*at most 56"
+    elif case == "shift-low":  # no fractional coefficient bit: the kernel cannot round by 0 bits
+        args, pattern = ["--target", "mcu32", "--coef", "Q16.0"], r"right shift of 0 bits.*more fractional bits"
+    elif case == "shift-high":  # a section rounds by 31 bits, but the state word is 32 bits
+        tdir = _user_target(tmp_path, "narrowstate", [('state_type = "int64_t"', 'state_type = "int32_t"'),
+                                                      ('coef_type = "int32_t"', 'coef_type = "int64_t"'),
+                                                      ("max_coef_bits = 32", "max_coef_bits = 40"),
+                                                      ("max_acc_bits = 64", "max_acc_bits = 32"),
+                                                      ("acc_bits = 64", "acc_bits = 32")])
+        args = ["--target", "narrowstate", "--target-dir", tdir, "--coef", "Q2.33"]
+        pattern = r"section 1 needs a right shift of 33 bits.*1\.\.30 .*32-bit state word.*fewer fractional bits"
+    elif case == "no-coef-shift":  # +12 dB needs a coefficient shift in Q2.30; the target has none
+        tdir = _user_target(tmp_path, "noshift", [("coef_shift = true", "coef_shift = false")])
+        args, gain = ["--target", "noshift", "--target-dir", tdir], 12.0
+        pattern = r"gain \(op 2\) needs coefficient shift \d+ but target 'noshift' has none.*more integer bits"
+    elif case == "stored-word":  # a1 rounds to -2.0 in Q2.6; dsp24 stores -a1 = +2.0, which Q2.6 lacks
+        args, cutoff = ["--target", "dsp24", "--coef", "Q2.6"], 20
+        pattern = r"coefficient 128 does not fit an 8-bit word as target 'dsp24' stores it"
+    elif case == "names":  # 'Low' and 'low' make the same C macros
+        extra = '\n[[channel]]\nname = "Low"\nstages = [ { kind = "gain", db = -1 } ]\n'
+        pattern = r"channel 'Low', key 'name': channel names 'low' and 'Low' both become the C name"
+    src = tmp_path / "probe.toml"
+    src.write_text(LOW_SECTION.format(gain=gain, cutoff=cutoff, extra=extra))
+    out = tmp_path / "probe.h"
+    for cmd in (["check", src, *args], ["build", src, *args, "-o", out]):
+        r = coefc(*cmd)
+        assert r.returncode == 2, (case, cmd[0], r.stdout, r.stderr)
+        lines = [ln for ln in r.stderr.splitlines() if ln.startswith("coefc: error")]
+        assert len(lines) == 1 and len(r.stderr.strip().splitlines()) == 1, r.stderr
+        assert re.search(pattern, lines[0]), (cmd[0], lines[0])
+        assert "probe.toml" in lines[0] or "<command line>" in lines[0], lines[0]  # names the place
+        assert not out.exists()
+    # and without the offending setting both accept it (the rule, not the description, refused)
+    if case in ("data", "coef", "acc", "shift-low", "stored-word"):
+        keep = args[:2]
+        assert coefc("check", src, *keep).returncode == 0
+        assert coefc("build", src, *keep, "-o", out).returncode == 0 and out.exists()
+
+
+def test_every_bundled_example_passes_check_and_builds(tmp_path):
+    # check and build agree on the shipped examples: check passes, build writes
+    root = Path(__file__).resolve().parents[1] / "filters"
+    for src in sorted(root.glob("*.toml")):
+        r = coefc("check", src)
+        assert r.returncode == 0, (src.name, r.stderr)
+        out = tmp_path / (src.stem + ".h")
+        r = coefc("build", src, "-o", out, "--vectors", "0")
+        assert r.returncode == 0 and out.exists(), (src.name, r.stderr)

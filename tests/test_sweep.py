@@ -14,6 +14,7 @@ from __future__ import annotations
 import csv
 import io
 import json
+import re
 import subprocess
 import sys
 
@@ -237,6 +238,114 @@ def test_low_frequency_section_needs_the_longer_coefficient_word(tmp_path):
 
 
 def test_data_words_without_two_fractional_bits_are_skipped(sweeper):
+    # the rule is check's own (coefc.targets.resolve_arithmetic), so its message too
     configs, skipped = sweeper.configs(["mcu32"], None, None, (2, 3, 24), (20,))
     assert [c.data_bits for c in configs] == [3, 24]
-    assert any("2-bit data word" in s for s in skipped)
+    assert any("data word Q1.1 has 1 fractional bit" in s for s in skipped)
+
+
+# ------------------------------------------------- sweep, check and build agree
+
+SUBSONIC = """
+name = "agree"
+sample_rate_hz = 48000
+
+[implementation]
+structure = "df1"
+scaling = "l1"
+
+[budget]
+passband_deviation_db = 100
+output_noise_dbfs = -20
+overflow = "allow"
+limit_cycles = 1000000000
+
+[[channel]]
+name = "low"
+stages = [ { kind = "highpass", response = "butterworth", order = 2, cutoff_hz = 20 },
+           { kind = "lowpass", response = "butterworth", order = 2, cutoff_hz = 8000 } ]
+"""
+
+
+@pytest.mark.parametrize("target", ["mcu16", "mcu32", "dsp24"])
+def test_sweep_never_offers_what_build_refuses(tmp_path, target):
+    from coefc.emit import render
+    from coefc.errors import CoefcError
+    from coefc.targets import Overrides, kernel_info
+
+    p = tmp_path / "agree.toml"
+    p.write_text(SUBSONIC)
+    d = coefc.load(p).design()
+    sw = Sweeper(d, d.loaded.description.budget, options=AnalysisOptions(measure_noise=False))
+    info = kernel_info(sw.target(target))
+    base = sw.base_arithmetic(target)
+    # a grid that crosses every limit: words and accumulators beyond the kernel's,
+    # and coefficient words narrow enough for a stored -a1 of +2.0 not to fit (dsp24)
+    accs = (base.acc_bits, info.max_acc_bits + 8)
+    res = sw.run(*sw.configs([target], None, accs, (8, 16, 24, 32), (6, 8, 12, 16, 24, 32)))
+    assert res.results, "the grid must offer something for this test to mean anything"
+    for r in res.results:  # every configuration offered is one build writes
+        c = r.config
+        assert c.data_bits <= info.max_data_bits and c.coef_bits <= info.max_coef_bits
+        assert c.acc_bits <= info.max_acc_bits
+        real = d.realise(sw.target(target), sw.overrides_for(c))
+        assert render(real, None, header_name="x.h", vectors=0)
+    beyond = [s for s in res.skipped if "wider than the kernel" in s]
+    refused = [s for s in res.skipped if "build would refuse it" in s]
+    assert beyond  # the words beyond the limits were skipped, with check's own reason
+    if target == "dsp24":
+        assert any("does not fit" in s for s in refused)
+    for s in refused:  # ... and what was skipped after realising, build really refuses
+        m = re.match(r"\S+ \S+ data (\d+) coef (\d+) acc (\d+)", s)
+        cfg = Config(target, base.structure, int(m.group(3)), int(m.group(1)), int(m.group(2)))
+        with pytest.raises(CoefcError):
+            render(d.realise(sw.target(target), sw.overrides_for(cfg)), None, header_name="x.h", vectors=0)
+    # a skipped word is one check refuses too (the same rule, in resolve_arithmetic)
+    with pytest.raises(DescriptionError, match="wider than the kernel"):
+        d.realise(target, Overrides(data=f"Q1.{info.max_data_bits}"))
+    # the default ranges stay inside the kernel's limits: nothing skipped
+    configs, skipped = sw.configs([target], None, None, None, None)
+    assert configs and not skipped
+    assert max(c.data_bits for c in configs) == info.max_data_bits
+    assert max(c.coef_bits for c in configs) == info.max_coef_bits
+
+
+def _brute_minimum(sw, ci, target, structure, acc, datas, coefs):
+    """The exhaustive grid's answer: every offered point evaluated (an independent reference)."""
+    passing = []
+    for dd in datas:
+        for c in coefs:
+            if sw.refused(target, structure, acc, dd, c):
+                continue
+            r = sw.evaluate(Config(target, structure, acc, dd, c))
+            if r.refused is None and r.channels[ci].ok:
+                passing.append((dd, c))
+    return passing, (min(passing, key=lambda q: (q[0] + q[1], q[0])) if passing else None)
+
+
+@pytest.mark.parametrize("overflow, target, acc, datas, coefs", [
+    ("allow", "mcu16", 32, range(8, 17, 2), range(8, 17, 2)),
+    ("allow", "mcu16", 16, range(8, 17, 2), range(8, 17, 2)),  # the data word reaches the accumulator
+    ("allow", "mcu32", 64, range(16, 33, 4), range(12, 29, 4)),
+    ("none", "mcu32", 32, range(16, 33, 4), range(12, 29, 4)),  # ditto; only narrow data words pass
+    ("allow", "dsp24", 56, range(12, 25, 2), range(12, 25, 4)),
+    ("allow", "dsp24", 24, range(12, 25, 2), range(12, 25, 4)),  # ditto
+])
+def test_fewest_bits_is_the_exhaustive_grid_minimum(tmp_path, overflow, target, acc, datas, coefs):
+    p = tmp_path / "lp.toml"
+    p.write_text(LOWPASS.replace("output_noise_dbfs = -110", "output_noise_dbfs = -70")
+                 .replace('overflow = "allow"', f'overflow = "{overflow}"')
+                 .replace('passband_deviation_db = 0.01', 'passband_deviation_db = 0.05'))
+    d = coefc.load(p).design()
+    sw = Sweeper(d, d.loaded.description.budget, options=AnalysisOptions(measure_noise=False))
+    datas, coefs = tuple(datas), tuple(coefs)
+    found_any = False
+    for ci, name in enumerate(("lp", "hp")):
+        found = fewest_bits(sw, ci, name, target, "df1", acc, datas, coefs)
+        passing, best = _brute_minimum(sw, ci, target, "df1", acc, datas, coefs)
+        assert (found.data_bits, found.coef_bits) == (best or (None, None)), (name, passing)
+        found_any |= best is not None
+        if (target, acc) == ("mcu32", 32) and best is not None:
+            # the shape a walk from the widest data word misses: that column never passes
+            assert not any(q[0] == max(datas) for q in passing)
+    assert found_any, "some channel must pass somewhere for this case to mean anything"

@@ -251,7 +251,8 @@ def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], di
     why["stable"] = (f"largest realised pole radius {r.max_pole_radius:.6f} < 1" if ok else
                      f"unstable: {unstable}; use wider coefficients")
 
-    if getattr(ov, "l1_worst", None) is not None:  # the promise of l1 scaling, checked whatever the budget says
+    # the promise of l1 scaling, checked unless the budget tolerates overflow outright
+    if getattr(ov, "l1_worst", None) is not None and budget.overflow != "allow":
         checks.append(_l1_check(ov, why))
 
     if budget.passband_deviation_db is not None:

@@ -56,89 +56,24 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import CoefcError, DescriptionError, TargetError
-from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
-from .targets import BuildInfo, Target, build_info
+from .buildable import (C_KEYWORDS, FOLDED_FIR_ABI, SUPPORTED_ABI, EmitError, KernelOp, c_identifier,
+                        validate)
+from .errors import CoefcError, TargetError
+from .program import DelayOp, FirOp, GainOp, SectionOp
+from .targets import Target
 from .templating import TemplateLimitError, environment, render_bounded
 
-__all__ = ["render", "c_identifier", "golden_input", "GOLDEN_DEFAULT", "EmitError"]
+__all__ = ["render", "c_identifier", "golden_input", "GOLDEN_DEFAULT", "EmitError", "C_KEYWORDS",
+           "SUPPORTED_ABI", "FOLDED_FIR_ABI"]
 
 #: Default number of golden-vector samples per channel.
 GOLDEN_DEFAULT = 256
 #: Most golden-vector samples per channel (each is a line of C; a million already
 #: makes a header of tens of megabytes).
 GOLDEN_MAX = 1 << 20
-#: The kernel interface versions this emitter writes.
-SUPPORTED_ABI = (1, 2)
-#: The first interface with the folded symmetric FIR operation.
-FOLDED_FIR_ABI = 2
-
-_STATE_WORDS = {"df1": 4, "tdf2": 2, "df1ef": 5}
-
-# C99 keywords and the names the standard headers we include reserve.
-C_KEYWORDS = frozenset("""
-    auto break case char const continue default do double else enum extern float
-    for goto if inline int long register restrict return short signed sizeof static
-    struct switch typedef union unsigned void volatile while _Bool _Complex _Imaginary
-""".split())
-
-
-class EmitError(CoefcError):
-    """A realised program cannot be written for the chosen target."""
-
-
-@dataclass(frozen=True)
-class _Names:
-    name: str  # description prefix, sanitised
-    channels: tuple[str, ...]  # "<name>_<channel>"
-
-
-def c_identifier(text: str, what: str, source: str) -> str:
-    """Sanitise *text* into a C identifier fragment or raise DescriptionError.
-
-    Runs of characters other than letters, digits and ``_`` become one ``_``;
-    leading and trailing ``_`` are dropped.  A fragment must start with a letter
-    and must not be a C keyword.
-
-    >>> c_identifier("mid-high 2", "channel", "x.toml")
-    'mid_high_2'
-    """
-    ident = re.sub(r"[^A-Za-z0-9_]+", "_", str(text)).strip("_")
-    if not ident or not ident[0].isalpha():
-        raise DescriptionError(source, f"{what} '{text}' cannot become a C identifier (it must start "
-                               "with a letter); rename it", key="name")
-    if ident in C_KEYWORDS:
-        raise DescriptionError(source, f"{what} '{text}' is a C keyword; rename it", key="name")
-    return ident
-
-
-def _names(desc_name: str, channel_names, source: str) -> _Names:
-    name = c_identifier(desc_name, "description name", source)
-    seen: dict[str, str] = {}
-    chans = []
-    for ch in channel_names:
-        ident = f"{name}_{c_identifier(ch, 'channel name', source)}"
-        key = ident.upper()  # macros are upper case: 'Mid' and 'mid' collide there
-        if key in seen:
-            raise DescriptionError(source, f"channel names '{seen[key]}' and '{ch}' both become the C name "
-                                   f"'{ident}'; rename one of them", channel=ch, key="name")
-        seen[key] = ch
-        chans.append(ident)
-    # Every generated identifier (and macro) must be unique, e.g. a channel
-    # 'woofer_ops' would collide with the operation table of channel 'woofer'.
-    suffixes = ("", "_coefs", "_ops", "_golden_out", "_N_OPS", "_N_COEFS", "_STATE_WORDS")
-    globals_ = ("_channels", "_channel_names", "_golden_in", "_golden_out", "_COEF_ATTR", "_N_CHANNELS",
-                "_MAX_STATE_WORDS", "_GOLDEN_LEN", "_DATA_BITS", "_DATA_FRAC_BITS", "_COEF_BITS",
-                "_COEF_FRAC_BITS", "_ACC_BITS", "_SAMPLE_RATE_HZ", "_OVER_BUDGET", "_COEFC_H")
-    made: dict[str, str] = {(name + g).upper(): "the description" for g in globals_}
-    for ch, ident in zip(channel_names, chans):
-        for suf in suffixes:
-            key = (ident + suf).upper()
-            if key in made:
-                raise DescriptionError(source, f"channel '{ch}' makes the C name '{ident}{suf}', which "
-                                       f"{made[key]} also uses; rename the channel", channel=ch, key="name")
-            made[key] = f"channel '{ch}'"
-    return _Names(name, tuple(chans))
+# The refusal rules (kernel limits, C names, shifts, coefficient words) live in
+# coefc.buildable, which `coefc check` and `coefc sweep` call too; C_KEYWORDS,
+# c_identifier, EmitError, SUPPORTED_ABI and FOLDED_FIR_ABI are re-exported here.
 
 
 # ---------------------------------------------------------------------------
@@ -240,109 +175,18 @@ def _golden(programs, n: int, fixed: bool, data_bits: int):
 # the operation table
 # ---------------------------------------------------------------------------
 
-def _check_word(v: int, bits: int, what: str, channel: str) -> None:
-    if not -(1 << (bits - 1)) <= v < (1 << (bits - 1)):
-        raise EmitError(f"channel '{channel}': {what} {v} does not fit a {bits}-bit word")
-
-
-def _ops(program: ChannelProgram, info: BuildInfo, prefix: str, target: Target):
-    """Op initialisers, coefficient literals and state size of one channel."""
-    arith = program.arithmetic
-    fixed = not arith.is_float
+def _ops(kops: tuple[KernelOp, ...], fixed: bool, prefix: str):
+    """Op initialisers, coefficient literals and state size of one validated channel."""
     P = prefix.upper()
     lit = _int_literal if fixed else _float_literal
     coefs: list[str] = []
     ops = []
     state = 0
-    fc = arith.coef.frac_bits if fixed else 0
-    cbits = arith.coef.width if fixed else 32
-    # the kernels round by 1..62 bits (as coefc's engine); a section's shift is
-    # also below its state word, since df1ef keeps the residual there
-    max_k = 63
-    state_bits = {"int16_t": 16, "int32_t": 32, "int64_t": 64}.get(info.state_type, 32)
-
-    def rshift(shift: int, what: str) -> int:
-        if not fixed:
-            if shift:
-                raise EmitError(f"channel '{program.name}': {what} has coefficient shift {shift}, which float32 "
-                                "arithmetic does not use")
-            return 0
-        if shift and not info.coef_shift:
-            raise EmitError(f"channel '{program.name}': {what} needs coefficient shift {shift} but target "
-                            f"'{target.name}' has none ([layout] coef_shift = false); give the coefficient "
-                            "word more integer bits (--coef)")
-        k = fc - shift
-        if not 1 <= k < max_k:
-            raise EmitError(f"channel '{program.name}': {what} needs a right shift of {k} bits "
-                            f"(Fc={fc} minus coefficient shift {shift}); the kernel supports 1..{max_k - 1}")
-        return k
-
-    def add(values, what: str) -> int:
-        at = len(coefs)
-        for v in values:
-            if fixed:
-                if isinstance(v, float) and not float(v).is_integer():
-                    raise EmitError(f"channel '{program.name}': {what} coefficient {v!r} is not an integer")
-                _check_word(int(v), cbits, f"{what} coefficient", program.name)
-            coefs.append(lit(v))
-        return at
-
-    n_sec = 0
-    for i, op in enumerate(program.ops, 1):
-        if isinstance(op, SectionOp):
-            n_sec += 1
-            what = f"section {n_sec}"
-            if op.structure not in _STATE_WORDS:
-                raise EmitError(f"channel '{program.name}': {what} has structure '{op.structure}', which "
-                                "the kernel interface does not know")
-            if op.structure not in target.structures:
-                raise EmitError(f"channel '{program.name}': target '{target.name}' has no kernel for "
-                                f"structure '{op.structure}'; it supports {', '.join(target.structures)}")
-            terms = {"b0": op.b[0], "b1": op.b[1], "b2": op.b[2], "a1": op.a[0], "a2": op.a[1]}
-            values = []
-            for t in info.section_layout:
-                v = terms[t.lstrip("-")]
-                values.append(-v if t.startswith("-") else v)
-            k = rshift(op.shift, what)
-            if k >= state_bits - 1:
-                raise EmitError(f"channel '{program.name}': {what} needs a right shift of {k} bits, too many "
-                                f"for the {state_bits}-bit state word of target '{target.name}'")
-            at = add(values, what)
-            words = _STATE_WORDS[op.structure]
-            ops.append((f"{P}_OP_{op.structure.upper()}", k, 1, at, state,
-                        f"{what}, {op.structure}, coefficient shift {op.shift}"))
-            state += words
-        elif isinstance(op, FirOp):
-            taps = list(op.taps)
-            if not taps:
-                raise EmitError(f"channel '{program.name}': op {i} is an FIR without taps")
-            k = rshift(op.shift, f"FIR (op {i})")
-            n = len(taps)
-            if op.symmetric and fixed and info.kernel_abi >= FOLDED_FIR_ABI:
-                if taps != taps[::-1]:
-                    raise EmitError(f"channel '{program.name}': op {i} is marked as a symmetric FIR but its "
-                                    "taps are not symmetric; realise the channel again")
-                stored = (n + 1) // 2
-                at = add(taps[:stored], f"FIR (op {i})")
-                ops.append((f"{P}_OP_FIR_SYM", k, n, at, state,
-                            f"FIR, {n} taps, symmetric: {stored} stored, folded, coefficient shift {op.shift}"))
-            else:
-                at = add(taps, f"FIR (op {i})")
-                ops.append((f"{P}_OP_FIR", k, n, at, state,
-                            f"FIR, {n} taps{' (symmetric)' if op.symmetric else ''}, coefficient shift {op.shift}"))
-            state += n + 1
-        elif isinstance(op, GainOp):
-            k = rshift(op.shift, f"gain (op {i})")
-            at = add([op.coef], f"gain (op {i})")
-            ops.append((f"{P}_OP_GAIN", k, 1, at, state, f"gain, coefficient shift {op.shift}"))
-        elif isinstance(op, DelayOp):
-            d = int(op.samples)
-            if d < 0:
-                raise EmitError(f"channel '{program.name}': op {i} is a negative delay ({d} samples)")
-            ops.append((f"{P}_OP_DELAY", 0, d, 0, state, f"delay, {d} samples"))
-            state += d + 1 if d else 0
-        else:
-            raise EmitError(f"channel '{program.name}': op {i} ({type(op).__name__}) has no C form")
+    for op in kops:
+        at = len(coefs) if op.coefs else 0
+        coefs += [lit(v) for v in op.coefs]
+        ops.append((f"{P}_OP_{op.kind}", op.rshift, op.count, at, state, op.comment))
+        state += op.state_words
     return ops, coefs, state
 
 
@@ -466,29 +310,19 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
     desc = realisation.design.loaded.description
     target: Target = realisation.target
     programs = tuple(realisation.programs)
-    if not programs:
-        raise EmitError(f"{desc.source}: no channel to write")
-    info = build_info(target)
-    if info.kernel_abi not in SUPPORTED_ABI:
-        raise TargetError(f"{target.folder / 'target.toml'}: [kernel] abi = {info.kernel_abi}; this coefc "
-                          f"writes interface {', '.join(map(str, SUPPORTED_ABI))}")
     if not 0 <= vectors <= GOLDEN_MAX:
         raise CoefcError(f"<command line>: --vectors {vectors}: use 0 (none) up to {GOLDEN_MAX} samples "
                          "per channel")
     header_name = Path(header_name).name
-    names = _names(desc.name, [p.name for p in programs], desc.source)
+    checked = validate(realisation)  # every refusal rule, shared with coefc check and coefc sweep
+    if checked is None:
+        from .targets import build_info
 
+        build_info(target)  # a check-only target: says which build table it lacks
+        raise TargetError(f"{target.folder / 'target.toml'}: target '{target.name}' states no build tables")
+    info, names, kernel_ops = checked
     arith = programs[0].arithmetic
-    if any(p.arithmetic != arith for p in programs):
-        raise EmitError(f"{desc.source}: channels were realised in different arithmetic; one header holds one")
     fixed = not arith.is_float
-    if fixed:
-        for what, bits, lim, flag in (("data word", arith.data.width, info.max_data_bits, "--data"),
-                                      ("coefficient word", arith.coef.width, info.max_coef_bits, "--coef"),
-                                      ("accumulator", arith.acc_bits, info.max_acc_bits, "--acc")):
-            if bits > lim:
-                raise EmitError(f"{desc.source}: the {what} is {bits} bits wide but the kernel of target "
-                                f"'{target.name}' handles at most {lim}; narrow it ({flag}) or choose another target")
 
     prefix = info.kernel_prefix
     P = prefix.upper()
@@ -512,8 +346,8 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
     report_channels = {c.name: c for c in getattr(report, "channels", ())} if report is not None else {}
     channels = []
     banner_metrics: list[str] = []
-    for p, ident, gout in zip(programs, names.channels, golden_outs):
-        ops, coefs, state = _ops(p, info, prefix, target)
+    for p, ident, gout, kops in zip(programs, names.channels, golden_outs, kernel_ops):
+        ops, coefs, state = _ops(kops, fixed, prefix)
         n_sec = sum(isinstance(o, SectionOp) for o in p.ops)
         taps = sum(len(o.taps) for o in p.ops if isinstance(o, FirOp))
         folded = [op[2] for op in ops if op[0] == f"{P}_OP_FIR_SYM"]  # their tap counts

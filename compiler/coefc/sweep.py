@@ -13,20 +13,26 @@ Cost of a configuration, used to mark the cheapest passing one: the number of da
 plus coefficient bits, ties broken by the memory the channel needs (coefficient and
 state words, each in the smallest standard container of 8, 16, 32 or 64 bits).
 
-:func:`fewest_bits` finds the smallest passing word lengths per channel without blind
-enumeration: for a fixed coefficient width the verdict is usually monotone in the
-data width and vice versa, so a saddleback walk over the grid (start at the widest
-data word and the narrowest coefficient word; a pass moves to a narrower data word,
-a fail to a wider coefficient word) visits at most ``n_data + n_coef`` points.  Where
-monotonicity might not hold -- coefficient quantisation can pass by luck at one width
-and fail at the next -- the coefficient width one step narrower than each frontier
-point is checked too, and any non-monotone pass found is reported and used.
+:func:`fewest_bits` finds the smallest passing word lengths per channel exactly as
+the whole grid would: it evaluates the grid's points in order of cost (data plus
+coefficient bits, then data bits) and stops at the first that passes, so every
+cheaper point has been seen to fail.  No monotonicity is assumed: the verdict is
+not monotone in general (coefficient quantisation can pass by luck at one width and
+fail at the next, and a data word that reaches the accumulator width fails where a
+narrower one passes), and a walk that assumes it can miss the answer or find none.
 :mod:`coefc.opwidths` refines the result per operation (section, FIR, gain).
+
+Only configurations ``coefc build`` accepts are offered: a width beyond what the
+target's kernel computes is skipped with the reason before any work, and a
+realisation the kernel cannot run (:func:`coefc.buildable.validate`: rounding
+shifts, coefficient words in the target's layout, ...) is skipped after realising.
+Default ranges stay inside each target's ``[limits]``.
 
 References
 ----------
-Saddleback search of a matrix sorted along both axes: D. Gries, *The Science of
-Programming*, Springer 1981 (from memory).
+Cost-ordered exhaustive search (best-first over a finite grid, stopping at the
+first goal): S. Russell and P. Norvig, *Artificial Intelligence: A Modern
+Approach*, 3rd ed., sec. 3.4.2, uniform-cost search (from memory).
 """
 
 from __future__ import annotations
@@ -121,10 +127,11 @@ class ChannelRow:
 class ConfigResult:
     config: Config
     channels: tuple[ChannelRow, ...]
+    refused: str | None = None  # why `coefc build` would refuse it (then never offered)
 
     @property
     def ok(self) -> bool:
-        return all(c.ok for c in self.channels)
+        return self.refused is None and all(c.ok for c in self.channels)
 
     @property
     def bits(self) -> int:
@@ -283,8 +290,8 @@ class Sweeper:
         d = self.design.loaded.description
         return resolve_arithmetic(self.target(target_name), d.implementation, self.overrides, d.source)
 
-    def overrides_for(self, config: Config) -> Overrides:
-        base = self.base_arithmetic(config.target)
+    def overrides_for(self, config: Config, base=None) -> Overrides:
+        base = base or self.base_arithmetic(config.target)
         ch = dict(structure=config.structure)
         if not base.is_float:
             ch["data"] = str(QFormat(base.data.int_bits, config.data_bits - base.data.int_bits))
@@ -294,10 +301,21 @@ class Sweeper:
         return Overrides(rounding=o.rounding, overflow=o.overflow, scaling=o.scaling, **ch)
 
     def evaluate(self, config: Config) -> ConfigResult:
-        """Realise, analyse and judge one configuration (cached)."""
+        """Realise, analyse and judge one configuration (cached).
+
+        A realisation ``coefc build`` would refuse is not analysed: its result has no
+        channel rows, ``ok`` False and the reason in ``refused``.
+        """
+        from .buildable import refusal
+
         if config in self._cache:
             return self._cache[config]
         real = self.design.realise(self.target(config.target), self.overrides_for(config))
+        why = refusal(real)
+        if why is not None:
+            res = ConfigResult(config, (), why)
+            self._cache[config] = res
+            return res
         report: CheckReport = run_check(real, self.budget, options=self.options)
         rows = []
         for prog, ch in zip(real.programs, report.channels):
@@ -313,10 +331,55 @@ class Sweeper:
         self._cache[config] = res
         return res
 
+    def default_widths(self, target_name: str | None) -> tuple[tuple[int, ...], tuple[int, ...]]:
+        """Default data and coefficient widths of a target: inside its kernel's limits.
+
+        Up to 16 bits below the widest word the kernel computes (``[limits]``), in
+        steps of 4 ending at that word, never below 8 bits: 16:32:4 on mcu32, 8:24:4
+        on dsp24, 8:16:4 on mcu16.  A check-only target (no build tables) gets 16:32:4.
+        """
+        from .targets import kernel_info
+
+        info = kernel_info(self.target(target_name))
+        if info is None:
+            return tuple(range(16, 33, 4)), tuple(range(16, 33, 4))
+
+        def widths(hi: int) -> tuple[int, ...]:
+            return tuple(sorted(range(hi, max(hi - 16, 8) - 1, -4)))
+
+        return widths(info.max_data_bits), widths(info.max_coef_bits)
+
+    def refused(self, target_name: str | None, structure: str, acc: int, d: int, c: int) -> str:
+        """Why a grid point is not offered before realising it ('' when it is).
+
+        The arithmetic is resolved exactly as ``coefc check --data ... --coef ...
+        --acc ...`` resolves it, so every refusal rule of the words (fractional bits,
+        accumulator narrower than the data word, words beyond the kernel's limits)
+        is the one in :func:`coefc.targets.resolve_arithmetic`.
+        """
+        from .targets import resolve_arithmetic
+
+        base = self.base_arithmetic(target_name)
+        if d <= base.data.int_bits:
+            return f"a {d}-bit data word has no fractional bit after {base.data.int_bits} integer bits"
+        if c <= base.coef.int_bits + 1:
+            return f"a {c}-bit coefficient word leaves too few fractional bits after {base.coef.int_bits} integer bits"
+        d_ = self.design.loaded.description
+        try:
+            resolve_arithmetic(self.target(target_name), d_.implementation,
+                               self.overrides_for(Config("", structure, acc, d, c), base), d_.source)
+        except DescriptionError as e:
+            return e.message
+        return ""
+
     def configs(self, targets: Sequence[str | None], structures: Sequence[str] | None,
                 accs: Sequence[int] | None, datas: Sequence[int] | None,
                 coefs: Sequence[int] | None) -> tuple[list[Config], list[str]]:
-        """Every configuration of the grid, and the reasons some were skipped."""
+        """Every configuration of the grid that build would accept, and the reasons some were skipped.
+
+        ``None`` for *datas* or *coefs* means each target's default widths
+        (:meth:`default_widths`).
+        """
         out, skipped = [], []
         for tname in targets:
             base = self.base_arithmetic(tname)
@@ -328,9 +391,9 @@ class Sweeper:
                 if base.is_float:
                     out.append(Config(tgt.name, st, None, None, None))
                     continue
-                for acc, d, c in itertools.product(accs or (base.acc_bits,), datas or (base.data.width,),
-                                                   coefs or (base.coef.width,)):
-                    why = _infeasible(base, acc, d, c)
+                dd, dc = self.default_widths(tname)
+                for acc, d, c in itertools.product(accs or (base.acc_bits,), datas or dd, coefs or dc):
+                    why = self.refused(tname, st, acc, d, c)
                     if why:
                         skipped.append(f"{tgt.name} {st} data {d} coef {c} acc {acc}: {why}")
                         continue
@@ -339,23 +402,17 @@ class Sweeper:
 
     def run(self, configs: Sequence[Config], skipped: Sequence[str] = (),
             progress: Callable[[int, int], None] | None = None) -> SweepResult:
-        results = []
+        """Evaluate *configs*; a realisation build would refuse moves to ``skipped``."""
+        results, skipped = [], list(skipped)
         for i, cfg in enumerate(configs):
-            results.append(self.evaluate(cfg))
+            r = self.evaluate(cfg)
+            if r.refused is None:
+                results.append(r)
+            else:
+                skipped.append(f"{cfg.label()}: build would refuse it: {r.refused}")
             if progress:
                 progress(i + 1, len(configs))
         return SweepResult(self.design.loaded.description.source, self.budget, tuple(results), tuple(skipped))
-
-
-def _infeasible(base, acc: int, d: int, c: int) -> str:
-    if d < base.data.int_bits + 2:
-        return (f"a {d}-bit data word leaves fewer than 2 fractional bits after {base.data.int_bits} "
-                "integer bits")
-    if c <= base.coef.int_bits + 1:
-        return f"a {c}-bit coefficient word leaves too few fractional bits after {base.coef.int_bits} integer bits"
-    if acc < d:
-        return "accumulator narrower than the data word"
-    return ""
 
 
 @dataclass(frozen=True)
@@ -368,76 +425,47 @@ class FewestBitsResult:
     acc_bits: int | None
     data_bits: int | None
     coef_bits: int | None
-    evaluated: int  # configurations evaluated (out of the grid size)
-    grid: int
-    non_monotone: tuple[str, ...] = field(default_factory=tuple)
+    evaluated: int  # grid points evaluated (out of the grid size)
+    grid: int  # points of the grid build would accept (refused ones are never offered)
+    refused: int = 0  # grid points skipped because build would refuse them
     per_op: list = field(default_factory=list)  # coefc.opwidths.OpWidth, filled on request
 
     def to_json(self) -> dict:
         return {"channel": self.channel, "target": self.target, "structure": self.structure,
                 "acc_bits": self.acc_bits, "data_bits": self.data_bits, "coef_bits": self.coef_bits,
-                "evaluated": self.evaluated, "grid": self.grid, "non_monotone": list(self.non_monotone),
+                "evaluated": self.evaluated, "grid": self.grid, "refused": self.refused,
                 "per_op": [w.to_json() for w in self.per_op]}
 
 
 def fewest_bits(sweeper: Sweeper, channel_index: int, channel: str, target: str, structure: str,
-             acc_bits: int | None, datas: Sequence[int], coefs: Sequence[int]) -> FewestBitsResult:
-    """Smallest (data + coef) passing widths of one channel by a saddleback walk.
+                acc_bits: int | None, datas: Sequence[int] | None, coefs: Sequence[int] | None) -> FewestBitsResult:
+    """Smallest (data + coef, then data) passing widths of one channel: the grid's own minimum.
 
-    The walk assumes the verdict is monotone (more bits never hurt); it then checks
-    the coefficient width one step narrower at every frontier point and uses any pass
-    found there, recording it as non-monotone.
+    The grid's points that build would accept are evaluated cheapest first, ties
+    by the narrower data word, and the first that passes is the answer: every
+    cheaper point has been evaluated and fails, so the answer is the exhaustive
+    grid's whatever the shape of the verdict.  ``None`` widths when no point of
+    the grid passes (then every point was evaluated).  ``None`` for *datas* or
+    *coefs* means the target's default widths.
     """
-    datas, coefs = sorted(datas), sorted(coefs)
-    seen: dict[tuple[int, int], bool] = {}
-
-    def passes(d: int, c: int) -> bool:
-        if (d, c) not in seen:
-            cfg = Config(target, structure, acc_bits, d, c)
-            seen[(d, c)] = sweeper.evaluate(cfg).channels[channel_index].ok
-        return seen[(d, c)]
-
     base = sweeper.base_arithmetic(target)
     if base.is_float:
         return FewestBitsResult(channel, target, structure, None, None, None, 0, 1)
-    datas = [d for d in datas if not _infeasible(base, acc_bits or base.acc_bits, d, max(coefs))]
-    coefs = [c for c in coefs if not _infeasible(base, acc_bits or base.acc_bits, min(datas or [64]), c)]
-    # Saddleback walk: from the widest data word and the narrowest coefficient word, a
-    # pass records a frontier point and tries one data step narrower, a fail tries one
-    # coefficient step wider.  Each frontier point is the narrowest coefficient word
-    # found for its data width; at most n_data + n_coef points are evaluated.
-    frontier: list[tuple[int, int]] = []
-    di, ci = len(datas) - 1, 0
-    while di >= 0 and ci < len(coefs):
-        if passes(datas[di], coefs[ci]):
-            frontier.append((datas[di], coefs[ci]))
-            di -= 1
-        else:
-            ci += 1
-    notes = []
-    # Check monotonicity where it might not hold: one coefficient step below each
-    # frontier point must fail (the walk already saw it fail when it arrived there by
-    # a coefficient step; when it arrived by a data step it did not look).
-    extra = []
-    for d, c in frontier:
-        cc = _prev(coefs, c)
-        if cc is not None and passes(d, cc):
-            notes.append(f"passes at data {d} coef {cc}, one coefficient step below the walk's frontier "
-                         f"point data {d} coef {c}: the verdict is not monotone there")
-            extra.append((d, cc))
-    candidates = [p for p in frontier + extra if seen.get(p)]
-    grid = len(datas) * len(coefs)
-    evaluated = len(seen)
-    if not candidates:
-        return FewestBitsResult(channel, target, structure, acc_bits, None, None, evaluated, grid, tuple(notes))
-    d, c = min(candidates, key=lambda p: (p[0] + p[1], p[0]))
-    return FewestBitsResult(channel, target, structure, acc_bits, d, c, evaluated, grid, tuple(notes))
-
-
-def _prev(values: Sequence[int], v: int) -> int | None:
-    i = values.index(v)
-    return values[i - 1] if i > 0 else None
-
+    acc = acc_bits or base.acc_bits
+    dd, dc = sweeper.default_widths(target)
+    points = [(d, c) for d in sorted(set(datas or dd)) for c in sorted(set(coefs or dc))
+              if not sweeper.refused(target, structure, acc, d, c)]
+    points.sort(key=lambda p: (p[0] + p[1], p[0]))
+    evaluated = refused = 0
+    for d, c in points:
+        r = sweeper.evaluate(Config(sweeper.target(target).name, structure, acc, d, c))
+        evaluated += 1
+        if r.refused is not None:
+            refused += 1
+        elif r.channels[channel_index].ok:
+            return FewestBitsResult(channel, target, structure, acc, d, c, evaluated, len(points) - refused,
+                                    refused)
+    return FewestBitsResult(channel, target, structure, acc, None, None, evaluated, len(points) - refused, refused)
 
 
 def plot(result: SweepResult, path) -> None:

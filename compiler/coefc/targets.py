@@ -177,7 +177,7 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
     """
     arith = target.arithmetic
     structure_from = None
-    width_from = {"data": str(target.folder / "target.toml"), "acc_bits": str(target.folder / "target.toml")}
+    width_from = {k: str(target.folder / "target.toml") for k in ("data", "coef", "acc_bits")}
     layers = [(implementation, source)]
     if overrides is not None:
         layers.append((overrides, "<command line>"))
@@ -242,6 +242,7 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
                                f"{arith.data.width}-bit data word ({arith.data}); widen the accumulator "
                                "or narrow the data word",
                                key={"<command line>": "--acc"}.get(where, "acc_bits"))
+    check_kernel_words(arith, target, width_from)
     return arith
 
 
@@ -438,3 +439,60 @@ def build_info(target: Target) -> BuildInfo:
                      linker_section=section, kernel_prefix=prefix, kernel_abi=abi,
                      kernel_header=header, kernel_sources=tuple(sources),
                      header_template=header_t, source_template=source_t)
+
+
+#: The tables that make a target buildable; a target with none of them is a
+#: check-only target (analysed against its arithmetic, never built).
+BUILD_TABLES = ("c", "limits", "layout", "memory", "kernel", "templates")
+_OPTION = {"data": "--data", "coef": "--coef", "acc_bits": "--acc"}
+
+
+def kernel_info(target: Target) -> BuildInfo | None:
+    """The validated build tables of *target*, or ``None`` for a check-only target.
+
+    A target that states any build table claims a kernel, so its tables must be
+    whole and valid (TargetError otherwise): ``coefc build`` would refuse it, and
+    ``coefc check`` refuses it the same way.
+    """
+    if not any(t in target.raw for t in BUILD_TABLES):
+        return None
+    return build_info(target)
+
+
+def check_kernel_words(arith: Arithmetic, target: Target, places: Mapping[str, str] | None = None) -> None:
+    """Refuse words wider than the target's kernel computes ([limits]); the one place of this rule.
+
+    *places* maps ``data``, ``coef`` and ``acc_bits`` to where each width was set
+    (a description file or ``"<command line>"``); the error names that place, the
+    widest word the kernel takes and the option or key that fixes it.  Float32
+    targets and check-only targets (no build tables) have nothing to refuse.
+    """
+    if arith.is_float:
+        return
+    info = kernel_info(target)
+    if info is None:
+        return
+    places = places or {}
+    toml = str(target.folder / "target.toml")
+    for key, what, bits, lim in (("data", "data word", arith.data.width, info.max_data_bits),
+                                 ("coef", "coefficient word", arith.coef.width, info.max_coef_bits),
+                                 ("acc_bits", "accumulator", arith.acc_bits, info.max_acc_bits)):
+        if bits <= lim:
+            continue
+        where = places.get(key, toml)
+        if key == "acc_bits":
+            name, fix = f"the {bits}-bit {what}", f"{lim} or fewer"
+        else:
+            fmt = arith.data if key == "data" else arith.coef
+            name = f"the {what} {fmt} ({bits} bits)"
+            fix = (str(QFormat(fmt.int_bits, lim - fmt.int_bits)) if lim > fmt.int_bits
+                   else f"at most {lim} bits")
+        if where == "<command line>":
+            hint, k = f"narrow it ({_OPTION[key]} {fix.replace(' or fewer', '')})", _OPTION[key]
+        elif where == toml:
+            hint, k = f"make [arithmetic] {key} and [limits] agree", key
+        else:
+            hint, k = f"narrow [implementation] {key} to {fix}", key
+        raise DescriptionError(where, f"{name} is wider than the kernel of target "
+                               f"'{target.name}' handles: at most {lim}; {hint} or choose a target "
+                               "whose kernel computes wider words", key=k)

@@ -332,7 +332,8 @@ def analyse_channel(design: ChannelDesign, program: ChannelProgram,
     dgain = design_peak_gain(design, n)
     if unstable is not None:
         # no finite figure exists: the linear model's responses grow and the engine's error with them
-        ovf = OverflowAnalysis((), None, None, None, None, 0, None, None, None, None, dgain)
+        ovf = OverflowAnalysis(nodes=(), headroom_bits=None, headroom_bits_sine=None, worst_node=None,
+                               overflow_count=None, runs=0, input_peak=None, design_peak_gain=dgain)
         lc = analyse_limit_cycles(program, max_states=opt.max_states)
         return Metrics(resp, None, None, ovf, lc, program.arithmetic.is_float, program.arithmetic.overflow,
                        float(program.sample_rate_hz), program.arithmetic.structure, unstable)

@@ -55,6 +55,7 @@ def build(
     from ..budget import run_check
     from ..emit import render
     from ..fileio import check_output, write_atomic
+    from ..buildable import validate
     from ..targets import build_info
 
     if output.is_dir():
@@ -66,7 +67,8 @@ def build(
     loaded, real = options.realisation(file, channel=channel, target=target, target_dir=target_dir,
                                        data=data, coef=coef, acc=acc, rounding=rounding,
                                        overflow=overflow, structure=structure, scaling=scaling)
-    info = build_info(real.target)  # a target that cannot build fails before the (slower) check
+    validate(real)  # every refusal rule (shared with check) before the (slower) check
+    info = build_info(real.target)  # a check-only target: names the build table it lacks
     # the target's own files are inputs too: writing into the target folder must not replace them
     inputs = [file, real.target.folder / "target.toml", *info.kernel_files(real.target.folder)]
     if not check_only:

@@ -2,7 +2,9 @@
 
 Realises every channel on the target, analyses it (response error, roundoff noise,
 overflow, limit cycles) and compares with ``[budget]`` (overridable here).  Exit
-codes: 0 every check passes, 1 something is over budget, 2 bad input.
+codes: 0 every check passes, 1 something is over budget, 2 bad input -- including
+a configuration the target's kernel cannot run, which ``coefc build`` would refuse
+(:mod:`coefc.buildable` holds those rules for both).
 """
 
 from __future__ import annotations
@@ -70,6 +72,9 @@ def check(
     loaded, real = options.realisation(file, channel=channel, target=target, target_dir=target_dir,
                                        data=data, coef=coef, acc=acc, rounding=rounding,
                                        overflow=overflow, structure=structure, scaling=scaling)
+    from ..buildable import validate
+
+    validate(real)  # what `coefc build` would refuse fails here too (exit 2), before the analysis
     desc = loaded.description
     budget = apply_overrides(desc.budget, passband_deviation_db=max_passband_deviation_db,
                              stopband_attenuation_db=min_stopband_attenuation_db,

@@ -25,15 +25,15 @@ def sweep(
     file: Annotated[Path, typer.Argument(metavar="FILE", help="Filter description (.toml).")],
     target: Annotated[Optional[str], typer.Option("--target", metavar="T1,T2", help="Target name(s), comma separated.")] = None,
     target_dir: options.TargetDirs = None,
-    data: Annotated[Optional[str], typer.Option("--data", metavar="WIDTHS", help=f"Data word lengths. {Widths} (default 16:32:4).")] = None,
-    coef: Annotated[Optional[str], typer.Option("--coef", metavar="WIDTHS", help=f"Coefficient word lengths. {Widths} (default 16:32:4).")] = None,
+    data: Annotated[Optional[str], typer.Option("--data", metavar="WIDTHS", help=f"Data word lengths. {Widths} (default: up to 16 bits below the widest the target's kernel computes, step 4).")] = None,
+    coef: Annotated[Optional[str], typer.Option("--coef", metavar="WIDTHS", help=f"Coefficient word lengths. {Widths} (default: as for --data, within the kernel's limit).")] = None,
     acc: Annotated[Optional[str], typer.Option("--acc", metavar="WIDTHS", help=f"Accumulator widths. {Widths} (default: the target's).")] = None,
     structure: Annotated[Optional[str], typer.Option("--structure", metavar="S1,S2", help="Structure(s), comma separated: df1, tdf2, df1ef.")] = None,
     rounding: options.Rounding = None,
     overflow: options.Overflow = None,
     scaling: options.Scaling = None,
     channel: options.Channel = None,
-    fewest: Annotated[bool, typer.Option("--fewest-bits", help="Find the smallest passing widths per channel by a monotone search.")] = False,
+    fewest: Annotated[bool, typer.Option("--fewest-bits", help="Find the smallest passing widths per channel: the grid's minimum, cheapest points first.")] = False,
     per_op: Annotated[bool, typer.Option("--per-op", help="With --fewest-bits: also the smallest coefficient width of each section, FIR and gain.")] = False,
     measure_noise: Annotated[bool, typer.Option("--measure-noise", help="Also measure noise with the bit-true engine (slower).")] = False,
     json_out: options.JsonOut = None,
@@ -72,8 +72,8 @@ def sweep(
         if text is not None and not text.replace(",", "").strip():
             raise CoefcError(f"<command line>, key '{opt}': '{text}' names nothing; give a value or leave "
                              f"{opt} out for the default")
-    datas = parse_widths(data if data is not None else "16:32:4", "--data")
-    coefs = parse_widths(coef if coef is not None else "16:32:4", "--coef")
+    datas = parse_widths(data, "--data")  # None: each target's default widths, inside its kernel's limits
+    coefs = parse_widths(coef, "--coef")
     accs = parse_widths(acc, "--acc")
     structures = parse_names(structure)
     targets = parse_names(target) or (None,)
@@ -99,8 +99,9 @@ def sweep(
                 for ci, ch in enumerate(design.channels):
                     m = run_fewest_bits(sweeper, ci, ch.name, t, st, a, datas, coefs)
                     if per_op and m.data_bits is not None:
+                        widths = coefs or sweeper.default_widths(t)[1]
                         m.per_op.extend(fewest_op_widths(sweeper, ci, t, st, a, m.data_bits,
-                                                           [c for c in coefs if c <= m.coef_bits]))
+                                                           [c for c in widths if c <= m.coef_bits]))
                     found.append(m)
                     tick(gi * len(design.channels) + ci + 1, total)
             result = None
@@ -110,6 +111,8 @@ def sweep(
     if fewest:
         if json_out != "-":
             _print_fewest_bits(found)
+            for s in skipped:
+                print(f"skipped: {s}")
         options.write_json({"source": desc.source, "fewest_bits": [m.to_json() for m in found]}, json_out)
         ok = all(m.data_bits is not None or m.acc_bits is None for m in found)
     else:
@@ -216,13 +219,12 @@ def _print_fewest_bits(found) -> None:
         if m.acc_bits is None and m.data_bits is None:
             print(f"{head}: float32 target, no word lengths to choose")
             continue
+        refused = f"; {m.refused} refused by the kernel, not offered" if m.refused else ""
         if m.data_bits is None:
-            print(f"{head}: no passing widths in the ranges given ({m.evaluated} of {m.grid} evaluated)")
+            print(f"{head}: no passing widths in the ranges given (all {m.grid} grid points evaluated{refused})")
         else:
             print(f"{head}: smallest passing data {m.data_bits} bits, coef {m.coef_bits} bits "
-                  f"({m.evaluated} of {m.grid} grid points evaluated)")
-        for n in m.non_monotone:
-            print(f"  not monotone: {n}")
+                  f"({m.evaluated} of {m.grid} grid points evaluated, every cheaper one fails{refused})")
         for w in m.per_op:
             bits = "no width in range passes" if w.coef_bits is None else f"{w.coef_bits}-bit coefficients"
             print(f"  op {w.op} ({w.kind}): {bits}" + (f"  [{w.note}]" if w.note else ""))

@@ -1,0 +1,275 @@
+"""Can this target's kernel run this program?  Every refusal rule of ``coefc build``, in one place.
+
+``coefc build`` (through :func:`coefc.emit.render`), ``coefc check`` and
+``coefc sweep`` call :func:`validate`, so a configuration the build would refuse
+fails the check with exit code 2 and is never offered by the sweep.  The rules:
+
+- the target's build tables are whole and valid, and it states a kernel interface
+  this coefc writes (:func:`coefc.targets.kernel_info`);
+- data, coefficient and accumulator words are no wider than its kernel computes
+  (``[limits]``; :func:`coefc.targets.check_kernel_words`);
+- the description and channel names make distinct C identifiers, none a C keyword;
+- every op is one the kernel interface knows, on a structure the target has;
+- every coefficient, stored in the target's memory order and sign convention
+  (``-a1`` stores the negated term), fits the coefficient word;
+- every op's rounding shift ``k = Fc - coefficient shift`` is within what the
+  kernels compute (1 to 62 bits; a section's below its state word, where df1ef
+  keeps the residual), and a target without a coefficient shift gets none.
+
+:func:`kernel_program` also returns the ops in the kernel's terms (the words the
+header stores), so the header is written from exactly what was validated.
+
+A check-only target (one that states no build table) has no kernel: nothing here
+applies to it, and ``coefc build`` refuses it for that reason alone.
+
+References
+----------
+ISO/IEC 9899:1999, section 6.4.1 (C keywords); section 7.1.3 (reserved names).
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+
+from .errors import CoefcError, DescriptionError, TargetError
+from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from .targets import BuildInfo, Target, check_kernel_words, kernel_info
+
+__all__ = ["EmitError", "C_KEYWORDS", "c_identifier", "c_names", "KernelOp", "kernel_program",
+           "validate", "refusal", "SUPPORTED_ABI", "FOLDED_FIR_ABI", "MAX_RSHIFT"]
+
+#: The kernel interface versions this coefc writes.
+SUPPORTED_ABI = (1, 2)
+#: The first interface with the folded symmetric FIR operation.
+FOLDED_FIR_ABI = 2
+#: Largest rounding shift the kernels (and coefc's engine) compute.
+MAX_RSHIFT = 62
+
+STATE_WORDS = {"df1": 4, "tdf2": 2, "df1ef": 5}
+
+# C99 keywords and the names the standard headers we include reserve.
+C_KEYWORDS = frozenset("""
+    auto break case char const continue default do double else enum extern float
+    for goto if inline int long register restrict return short signed sizeof static
+    struct switch typedef union unsigned void volatile while _Bool _Complex _Imaginary
+""".split())
+
+
+class EmitError(CoefcError):
+    """A realised program cannot be written for the chosen target."""
+
+
+# ---------------------------------------------------------------------------
+# C names
+# ---------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class Names:
+    name: str  # description prefix, sanitised
+    channels: tuple[str, ...]  # "<name>_<channel>"
+
+
+def c_identifier(text: str, what: str, source: str) -> str:
+    """Sanitise *text* into a C identifier fragment or raise DescriptionError.
+
+    Runs of characters other than letters, digits and ``_`` become one ``_``;
+    leading and trailing ``_`` are dropped.  A fragment must start with a letter
+    and must not be a C keyword.
+
+    >>> c_identifier("mid-high 2", "channel", "x.toml")
+    'mid_high_2'
+    """
+    ident = re.sub(r"[^A-Za-z0-9_]+", "_", str(text)).strip("_")
+    if not ident or not ident[0].isalpha():
+        raise DescriptionError(source, f"{what} '{text}' cannot become a C identifier (it must start "
+                               "with a letter); rename it", key="name")
+    if ident in C_KEYWORDS:
+        raise DescriptionError(source, f"{what} '{text}' is a C keyword; rename it", key="name")
+    return ident
+
+
+def c_names(desc_name: str, channel_names, source: str) -> Names:
+    """The C names of a description and its channels; collisions raise DescriptionError."""
+    name = c_identifier(desc_name, "description name", source)
+    seen: dict[str, str] = {}
+    chans = []
+    for ch in channel_names:
+        ident = f"{name}_{c_identifier(ch, 'channel name', source)}"
+        key = ident.upper()  # macros are upper case: 'Mid' and 'mid' collide there
+        if key in seen:
+            raise DescriptionError(source, f"channel names '{seen[key]}' and '{ch}' both become the C name "
+                                   f"'{ident}'; rename one of them", channel=ch, key="name")
+        seen[key] = ch
+        chans.append(ident)
+    # Every generated identifier (and macro) must be unique, e.g. a channel
+    # 'woofer_ops' would collide with the operation table of channel 'woofer'.
+    suffixes = ("", "_coefs", "_ops", "_golden_out", "_N_OPS", "_N_COEFS", "_STATE_WORDS")
+    globals_ = ("_channels", "_channel_names", "_golden_in", "_golden_out", "_COEF_ATTR", "_N_CHANNELS",
+                "_MAX_STATE_WORDS", "_GOLDEN_LEN", "_DATA_BITS", "_DATA_FRAC_BITS", "_COEF_BITS",
+                "_COEF_FRAC_BITS", "_ACC_BITS", "_SAMPLE_RATE_HZ", "_OVER_BUDGET", "_COEFC_H")
+    made: dict[str, str] = {(name + g).upper(): "the description" for g in globals_}
+    for ch, ident in zip(channel_names, chans):
+        for suf in suffixes:
+            key = (ident + suf).upper()
+            if key in made:
+                raise DescriptionError(source, f"channel '{ch}' makes the C name '{ident}{suf}', which "
+                                       f"{made[key]} also uses; rename the channel", channel=ch, key="name")
+            made[key] = f"channel '{ch}'"
+    return Names(name, tuple(chans))
+
+
+# ---------------------------------------------------------------------------
+# ops in the kernel's terms
+# ---------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class KernelOp:
+    """One entry of the kernel's operation table, with the coefficient words it stores."""
+
+    kind: str  # DF1, TDF2, DF1EF, FIR, FIR_SYM, GAIN, DELAY
+    rshift: int
+    count: int
+    coefs: tuple  # stored words in memory order (int, or float for float32)
+    state_words: int
+    comment: str
+
+
+def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
+                   source: str = "<description>") -> tuple[KernelOp, ...]:
+    """*program* as the target's kernel runs it; EmitError naming the op and the fix when it cannot."""
+    arith = program.arithmetic
+    fixed = not arith.is_float
+    fc = arith.coef.frac_bits if fixed else 0
+    cbits = arith.coef.width if fixed else 32
+    state_bits = {"int16_t": 16, "int32_t": 32, "int64_t": 64}.get(info.state_type, 32)
+    at = f"{source}, channel '{program.name}'"
+
+    def fail(msg: str):
+        raise EmitError(f"{at}: {msg}")
+
+    def rshift(shift: int, what: str, section: bool) -> int:
+        if not fixed:
+            if shift:
+                fail(f"{what} has coefficient shift {shift}, which float32 arithmetic does not use; "
+                     "realise the channel again")
+            return 0
+        if shift and not info.coef_shift:
+            fix = ("give the coefficient word more integer bits (--coef)" if shift > 0 else
+                   "set [layout] coef_shift = true in the target if its kernel shifts, or choose such a target")
+            fail(f"{what} needs coefficient shift {shift} but target '{target.name}' has none "
+                 f"([layout] coef_shift = false); {fix}")
+        k = fc - shift
+        top = min(MAX_RSHIFT, state_bits - 2) if section else MAX_RSHIFT
+        if not 1 <= k <= top:
+            room = (f"the kernel of target '{target.name}' rounds a section by 1..{top} bits "
+                    f"(below its {state_bits}-bit state word)" if section and top < MAX_RSHIFT
+                    else f"the kernels round by 1..{MAX_RSHIFT} bits")
+            fix = ("give the coefficient word more fractional bits (--coef)" if k < 1 else
+                   "give the coefficient word fewer fractional bits (--coef)")
+            fail(f"{what} needs a right shift of {k} bits ({fc} fractional coefficient bits minus "
+                 f"coefficient shift {shift}); {room}; {fix}")
+        return k
+
+    def words(values, what: str) -> tuple:
+        out = []
+        for v in values:
+            if fixed:
+                if isinstance(v, float) and not float(v).is_integer():
+                    fail(f"{what} coefficient {v!r} is not an integer; realise the channel again")
+                v = int(v)
+                if not -(1 << (cbits - 1)) <= v < (1 << (cbits - 1)):
+                    fail(f"{what} coefficient {v} does not fit {'an' if cbits in (8, 11, 18) else 'a'} {cbits}-bit word as target "
+                         f"'{target.name}' stores it; give the coefficient word one more integer bit (--coef)")
+            out.append(v)
+        return tuple(out)
+
+    ops: list[KernelOp] = []
+    n_sec = 0
+    for i, op in enumerate(program.ops, 1):
+        if isinstance(op, SectionOp):
+            n_sec += 1
+            what = f"section {n_sec}"
+            if op.structure not in STATE_WORDS:
+                fail(f"{what} has structure '{op.structure}', which the kernel interface does not know; "
+                     f"use one of {', '.join(STATE_WORDS)}")
+            if op.structure not in target.structures:
+                fail(f"target '{target.name}' has no kernel for structure '{op.structure}'; it supports "
+                     f"{', '.join(target.structures)} (--structure)")
+            terms = {"b0": op.b[0], "b1": op.b[1], "b2": op.b[2], "a1": op.a[0], "a2": op.a[1]}
+            values = [-terms[t[1:]] if t.startswith("-") else terms[t] for t in info.section_layout]
+            k = rshift(op.shift, what, True)
+            ops.append(KernelOp(op.structure.upper(), k, 1, words(values, what), STATE_WORDS[op.structure],
+                                f"{what}, {op.structure}, coefficient shift {op.shift}"))
+        elif isinstance(op, FirOp):
+            taps = list(op.taps)
+            what = f"FIR (op {i})"
+            if not taps:
+                fail(f"op {i} is an FIR without taps; realise the channel again")
+            k = rshift(op.shift, what, False)
+            n = len(taps)
+            if op.symmetric and fixed and info.kernel_abi >= FOLDED_FIR_ABI:
+                if taps != taps[::-1]:
+                    fail(f"op {i} is marked as a symmetric FIR but its taps are not symmetric; "
+                         "realise the channel again")
+                stored = (n + 1) // 2
+                ops.append(KernelOp("FIR_SYM", k, n, words(taps[:stored], what), n + 1,
+                                    f"FIR, {n} taps, symmetric: {stored} stored, folded, "
+                                    f"coefficient shift {op.shift}"))
+            else:
+                ops.append(KernelOp("FIR", k, n, words(taps, what), n + 1,
+                                    f"FIR, {n} taps{' (symmetric)' if op.symmetric else ''}, "
+                                    f"coefficient shift {op.shift}"))
+        elif isinstance(op, GainOp):
+            what = f"gain (op {i})"
+            k = rshift(op.shift, what, False)
+            ops.append(KernelOp("GAIN", k, 1, words([op.coef], what), 0, f"gain, coefficient shift {op.shift}"))
+        elif isinstance(op, DelayOp):
+            d = int(op.samples)
+            if d < 0:
+                fail(f"op {i} is a negative delay ({d} samples); fix the delay")
+            ops.append(KernelOp("DELAY", 0, d, (), d + 1 if d else 0, f"delay, {d} samples"))
+        else:
+            fail(f"op {i} ({type(op).__name__}) has no C form")
+    return tuple(ops)
+
+
+# ---------------------------------------------------------------------------
+# the whole realisation
+# ---------------------------------------------------------------------------
+
+def validate(realisation) -> tuple[BuildInfo, Names, tuple[tuple[KernelOp, ...], ...]] | None:
+    """Apply every refusal rule of ``coefc build`` to *realisation*.
+
+    Returns ``(build info, C names, kernel ops per channel)``, or ``None`` for a
+    check-only target (no build tables: nothing to build, nothing to refuse).
+    Raises TargetError, DescriptionError or EmitError (all CoefcError): one line
+    naming the file, the place and the fix.
+    """
+    desc = realisation.design.loaded.description
+    target: Target = realisation.target
+    programs = tuple(realisation.programs)
+    info = kernel_info(target)
+    if info is None:
+        return None
+    if info.kernel_abi not in SUPPORTED_ABI:
+        raise TargetError(f"{target.folder / 'target.toml'}: [kernel] abi = {info.kernel_abi}; this coefc "
+                          f"writes interface {', '.join(map(str, SUPPORTED_ABI))}")
+    if not programs:
+        raise EmitError(f"{desc.source}: no channel to write")
+    names = c_names(desc.name, [p.name for p in programs], desc.source)
+    arith = programs[0].arithmetic
+    if any(p.arithmetic != arith for p in programs):
+        raise EmitError(f"{desc.source}: channels were realised in different arithmetic; one header holds one")
+    places = {"data": desc.source, "coef": desc.source, "acc_bits": desc.source}
+    check_kernel_words(arith, target, places)
+    return info, names, tuple(kernel_program(p, info, target, desc.source) for p in programs)
+
+
+def refusal(realisation) -> str | None:
+    """Why ``coefc build`` would refuse *realisation* (one line), or ``None`` when it would not."""
+    try:
+        validate(realisation)
+    except CoefcError as e:
+        return str(e)
+    return None
