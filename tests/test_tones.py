@@ -328,3 +328,22 @@ def test_bad_tone_budget_values_exit_2(tmp_path, text, fragment):
     r = subprocess.run([sys.executable, "-c", MAIN, "check", str(path)], capture_output=True, text=True, timeout=120)
     assert r.returncode == 2 and fragment in r.stderr and "Traceback" not in r.stderr
     assert len(r.stderr.strip().splitlines()) == 1 and "tone_" in r.stderr
+
+
+def test_a_notch_floor_is_judged_by_the_realised_coefficients(tmp_path):
+    # A 50 Hz notch (Q 5) on mcu32 with error feedback: near its floor the last bit of a
+    # coefficient moves the float-design figure, yet the chip does exactly what its
+    # coefficients say; the gate uses the realised coefficients' linear response
+    # (coefc.realise.as_float_blocks, checked against scipy.signal.sosfreqz here).
+    from coefc.realise import as_float_blocks
+
+    path = describe(tmp_path, ['{ kind = "notch", freq_hz = 50, q = 5.0 }'], structure="df1ef")
+    real = realise(path)
+    t = tones_of(real)
+    sos = np.array([b.sos for b in as_float_blocks(real.programs[0]) if hasattr(b, "sos")][0])
+    gain = np.prod([b.gain for b in as_float_blocks(real.programs[0]) if hasattr(b, "gain")] or [1.0])
+    for x in t.tones:
+        ref = 20 * np.log10(abs(gain * signal.sosfreqz(sos, worN=[x.freq_hz], fs=48000.0)[1][0]))
+        assert x.linear_gain_db == pytest.approx(ref, abs=1e-9)
+        assert x.arithmetic_error_db == pytest.approx(x.gain_db - ref, abs=1e-9)
+    assert t.max_error_db < 0.05

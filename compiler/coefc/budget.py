@@ -26,8 +26,8 @@ check                       passes when
                             always (with a caution)
 ``tone_gain_error_db``      on by default (limit :data:`DEFAULT_TONE_GAIN_ERROR_DB`; ``"off"``
                             switches it off): steady tones through the bit-true engine
-                            (:mod:`coefc.analyse.tones`), max |measured - float design| gain
-                            over the counted tones <= limit
+                            (:mod:`coefc.analyse.tones`), max |measured - realised
+                            coefficients' linear response| gain over the counted tones <= limit
 ``iec61672_class1_excess_db`` with the tone check, for a channel with a weighting stage: every
                             counted tone at the IEC 61672-1 frequencies lies inside the class 1
                             limits around the standard's curve (largest excess <= 0 dB)
@@ -500,9 +500,9 @@ def _tone_checks(t, budget: Budget, why: dict) -> list[Check]:
     ok = v <= lim
     f_lo, f_hi = min(x.freq_hz for x in t.tones), max(x.freq_hz for x in t.tones)
     parts = [f"{t.gated_count} of {len(t.tones)} steady tones ({_hz(f_lo)} to {_hz(f_hi)} at {levels} dBFS) "
-             f"through the bit-true engine: largest |measured - float design| gain {v:.4g} dB at "
-             f"{_hz(w.freq_hz)}, {w.level_dbfs:.4g} dBFS (measured {w.gain_db:.4g} dB, design "
-             f"{w.design_gain_db:.4g} dB"
+             f"through the bit-true engine: largest |measured - realised coefficients' response| gain {v:.4g} dB "
+             f"at {_hz(w.freq_hz)}, {w.level_dbfs:.4g} dBFS (measured {w.gain_db:.4g} dB, coefficients "
+             f"{w.linear_gain_db:.4g} dB, float design {w.design_gain_db:.4g} dB"
              + (f", output held at {w.dc_lsb:.0f} LSB DC" if w.below_resolution and w.dc_lsb is not None else "")
              + ")" + (f" -- {v:.6f} dB to be exact" if not ok and round(v, 4) <= lim else "")]
     if t.note:
