@@ -41,7 +41,7 @@ def _build_refused(tmp_path, *fragments):
     out.mkdir(exist_ok=True)
     desc = tmp_path / "probe.toml"
     desc.write_text(SMALL)
-    r = coefc("build", desc, "--target-dir", tmp_path / "targets", "--target", "board", "--kernel",
+    r = coefc("build", desc, "--force", "--target-dir", tmp_path / "targets", "--target", "board", "--kernel",
               "-o", out / "f.h")
     assert r.returncode == 2, r.stdout + r.stderr
     assert r.stderr.count("\n") == 1 and "Traceback" not in r.stderr
