@@ -409,18 +409,18 @@ def test_hazards_gate_by_default_and_the_verdict_names_the_defaults(tmp_path):
                  '[[channel]]\nname = "a"\nstages = [ { kind = "weighting", weighting = "A" } ]\n')
     loaded = coefc.load(p)
     rep = run_check(loaded.design().realise(), loaded.description.budget)
-    assert rep.defaults == {"limit_cycles": "none", "overflow": "none"}
+    assert rep.defaults == {"limit_cycles": "none", "overflow": "none", "tone_gain_error_db": 0.5}
     assert not rep.ok
     failed = {c.name for _, c, _ in rep.failures()}
     assert "limit_cycles" in failed
     last = render_text(rep).strip().splitlines()[-1]
-    assert "over budget (defaults applied: limit_cycles = none, overflow = none)" in last
+    assert "over budget (defaults applied: limit_cycles = none, overflow = none, tone_gain_error_db = 0.5)" in last
     d = rep.to_json()
-    assert d["defaults_applied"] == {"limit_cycles": "none", "overflow": "none"}
+    assert d["defaults_applied"] == {"limit_cycles": "none", "overflow": "none", "tone_gain_error_db": 0.5}
     assert d["budget"]["limit_cycles"] == "none" and d["budget"]["overflow"] == "none"
     assert rep.cautions == ()
     # a budget that names them applies no default, and tolerating them shows the caution
-    rep2 = run_check(loaded.design().realise(), Budget(limit_cycles=1e6, overflow="allow"))
+    rep2 = run_check(loaded.design().realise(), Budget(limit_cycles=1e6, overflow="allow", tone_gain_error_db="off"))
     assert rep2.defaults == {} and rep2.ok
     assert "defaults applied" not in render_text(rep2)
     (c,) = rep2.cautions

@@ -104,9 +104,9 @@ def test_without_a_budget_hazards_gate_by_default(tmp_path):
     r = run(p, "--data", "Q1.15", "--json", tmp_path / "r.json")
     assert r.returncode == 1, r.stdout + r.stderr
     assert r.stdout.strip().splitlines()[-1].endswith(
-        "over budget (defaults applied: limit_cycles = none, overflow = none)")
+        "over budget (defaults applied: limit_cycles = none, overflow = none, tone_gain_error_db = 0.5)")
     d = json.loads((tmp_path / "r.json").read_text())
-    assert d["defaults_applied"] == {"limit_cycles": "none", "overflow": "none"}
+    assert d["defaults_applied"] == {"limit_cycles": "none", "overflow": "none", "tone_gain_error_db": 0.5}
     (ch,) = d["channels"]
     assert not next(c for c in ch["checks"] if c["name"] == "limit_cycles")["ok"]
 

@@ -336,6 +336,11 @@ def test_fewest_bits_is_the_exhaustive_grid_minimum(tmp_path, overflow, target, 
     p.write_text(LOWPASS.replace("output_noise_dbfs = -110", "output_noise_dbfs = -70")
                  .replace('overflow = "allow"', f'overflow = "{overflow}"')
                  .replace('passband_deviation_db = 0.01', 'passband_deviation_db = 0.05'))
+    if acc == 16:
+        # a 16-bit accumulator on 16-bit data carries no steady tone within 0.5 dB, so no point
+        # of that grid would pass the tone check: compare the walk with the grid without it
+        text = p.read_text()
+        p.write_text(text.replace('overflow = "', 'tone_gain_error_db = "off"\noverflow = "', 1))
     d = coefc.load(p).design()
     sw = Sweeper(d, d.loaded.description.budget, options=AnalysisOptions(measure_noise=False))
     datas, coefs = tuple(datas), tuple(coefs)

@@ -24,11 +24,18 @@ check                       passes when
                             largest level whose ideal output stays within full scale, and at
                             least one LSB) and no overflow oscillation found; ``"allow"``:
                             always (with a caution)
+``tone_gain_error_db``      on by default (limit :data:`DEFAULT_TONE_GAIN_ERROR_DB`; ``"off"``
+                            switches it off): steady tones through the bit-true engine
+                            (:mod:`coefc.analyse.tones`), max |measured - realised
+                            coefficients' linear response| gain over the counted tones <= limit
+``iec61672_class1_excess_db`` with the tone check, for a channel with a weighting stage: every
+                            counted tone at the IEC 61672-1 frequencies lies inside the class 1
+                            limits around the standard's curve (largest excess <= 0 dB)
 ==========================  =====================================================
 
 Safe by default: a budget that does not name ``limit_cycles`` or ``overflow`` gates
-them as ``"none"`` (:data:`HAZARD_DEFAULTS`), and the report names the defaults it
-applied.  An unstable or marginally stable realisation has no finite noise, offset,
+them as ``"none"``, and one that does not name ``tone_gain_error_db`` gates it at
+0.5 dB (:data:`HAZARD_DEFAULTS`); the report names the defaults it applied.  An unstable or marginally stable realisation has no finite noise, offset,
 overflow or limit-cycle figure: those checks fail with the reason.
 
 Levels in dBFS follow AES17 (0 dBFS = RMS of a full-scale sine, full scale = 1.0);
@@ -48,9 +55,14 @@ from .spec import Budget
 
 SCHEMA = 1
 
+#: The tone check's limit when the budget names none: |measured - float design| in dB.
+DEFAULT_TONE_GAIN_ERROR_DB = 0.5
+
 #: the hazards gated when the budget does not name them (overflow and limit cycles can
-#: drive an amplifier or actuator to full scale)
-HAZARD_DEFAULTS = (("limit_cycles", "none"), ("overflow", "none"))
+#: drive an amplifier or actuator to full scale; a realisation that changes the signal,
+#: coefc.analyse.tones, is checked by default too)
+HAZARD_DEFAULTS = (("limit_cycles", "none"), ("overflow", "none"),
+                   ("tone_gain_error_db", DEFAULT_TONE_GAIN_ERROR_DB))
 
 CAUTION = (
     "caution: this budget tolerates {what}. A fixed-point filter that overflows or "
@@ -143,7 +155,7 @@ def _json_num(v):
 def _budget_dict(b: Budget) -> dict:
     return {"passband_deviation_db": b.passband_deviation_db, "stopband_attenuation_db": b.stopband_attenuation_db,
             "output_noise_dbfs": b.output_noise_dbfs, "output_offset_lsb": b.output_offset_lsb,
-            "limit_cycles": b.limit_cycles, "overflow": b.overflow,
+            "limit_cycles": b.limit_cycles, "overflow": b.overflow, **_tone_budget(b),
             "passband": [list(x) for x in b.passband] if b.passband else None,
             "stopband": [list(x) for x in b.stopband] if b.stopband else None}
 
@@ -217,11 +229,13 @@ def with_defaults(budget: Budget) -> tuple[Budget, dict]:
     return (replace(budget, **defaults) if defaults else budget), defaults
 
 
-def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]]:
+def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], dict[str, str]]:
     """The checks of one channel: (list of Check, reasons by check name).
 
     Compares *budget* as given (keys set to ``None`` are not checked); :func:`run_check`
     fills in the hazard defaults first.
+
+    *tones* is the channel's :class:`coefc.analyse.tones.ToneAnalysis` (None: not run).
     """
     r, lc, ov = metrics.response, metrics.limit_cycles, metrics.overflow
     checks: list[Check] = []
@@ -362,6 +376,8 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
             parts.append("scale the input down (a gain stage or scaling = \"l1\")"
                          + (" or use saturation" if metrics.overflow_mode == "wrap" else ""))
         why["overflow"] = "; ".join(parts)
+    if tones is not None:
+        checks.extend(_tone_checks(tones, budget, why))
     return checks, why
 
 
@@ -442,6 +458,86 @@ def _offset_check(metrics, lim: float, no_figure: str, why: dict) -> Check:
     return Check("output_offset_lsb", v, lim, ok)
 
 
+# ------------------------------------------------------------------ steady tones (coefc.analyse.tones)
+
+def _tone_budget(b: Budget) -> dict:
+    from .analyse.tones import DEFAULT_LEVELS_DBFS
+
+    return {"tone_gain_error_db": b.tone_gain_error_db,
+            "tone_levels_dbfs": list(b.tone_levels_dbfs or DEFAULT_LEVELS_DBFS)}
+
+
+def _run_tones(design, program, metrics, budget: Budget):
+    """The channel's tone analysis, or None when the budget switches the check off."""
+    if budget.tone_gain_error_db in (None, "off"):
+        return None
+    from .analyse.tones import DEFAULT_LEVELS_DBFS, analyse_tones
+
+    r = metrics.response
+    return analyse_tones(design, program, r.freqs_hz, r.float_db,
+                         levels_dbfs=budget.tone_levels_dbfs or DEFAULT_LEVELS_DBFS)
+
+
+def _hz(f: float) -> str:
+    return f"{f / 1000:.4g} kHz" if f >= 1000 else f"{f:.4g} Hz"
+
+
+def _tone_checks(t, budget: Budget, why: dict) -> list[Check]:
+    """``tone_gain_error_db``, and ``iec61672_class1_excess_db`` for a channel with a weighting stage."""
+    name = "tone_gain_error_db"
+    lim = float(DEFAULT_TONE_GAIN_ERROR_DB if budget.tone_gain_error_db is None else budget.tone_gain_error_db)
+    levels = ", ".join(f"{v:g}" for v in t.levels_dbfs)
+    if t.status != "measured":
+        why[name] = t.note
+        return [Check(name, None, lim, False)]
+    if t.worst is None:
+        why[name] = (f"no tone could be measured: none of the {len(t.tones)} tones at {levels} dBFS has an ideal "
+                     f"output both within {t.range_db:g} dB of the design's peak and above the data word's "
+                     "resolution floor; add a louder level to tone_levels_dbfs or widen the data word")
+        return [Check(name, None, lim, False)]
+    w = t.worst
+    v = t.max_error_db
+    ok = v <= lim
+    f_lo, f_hi = min(x.freq_hz for x in t.tones), max(x.freq_hz for x in t.tones)
+    parts = [f"{t.gated_count} of {len(t.tones)} steady tones ({_hz(f_lo)} to {_hz(f_hi)} at {levels} dBFS) "
+             f"through the bit-true engine: largest |measured - realised coefficients' response| gain {v:.4g} dB "
+             f"at {_hz(w.freq_hz)}, {w.level_dbfs:.4g} dBFS (measured {w.gain_db:.4g} dB, coefficients "
+             f"{w.linear_gain_db:.4g} dB, float design {w.design_gain_db:.4g} dB"
+             + (f", output held at {w.dc_lsb:.0f} LSB DC" if w.below_resolution and w.dc_lsb is not None else "")
+             + ")" + (f" -- {v:.6f} dB to be exact" if not ok and round(v, 4) <= lim else "")]
+    if t.note:
+        parts.append(t.note)
+    if not ok:
+        parts.append("the chip's rounding changes the signal (dead band or granular distortion): use error "
+                     "feedback (df1ef), a wider data word, or scaling so small signals keep their bits")
+    why[name] = "; ".join(parts)
+    out = [Check(name, v, lim, ok)]
+
+    std = t.standard_tones
+    if std:
+        cname = "iec61672_class1_excess_db"
+        ex = t.class1_excess_db
+        letter = std[0].standard["weighting"]
+        cok = ex <= 0
+        if cok:
+            why[cname] = (f"{len(std)} tones at the IEC 61672-1 frequencies lie within the class 1 limits around "
+                          f"the standard's {letter}-weighting curve, by at least {-ex:.3g} dB")
+        else:
+            bad = t.standard_failures[0]
+            s = bad.standard
+            lo = "-inf" if s["lower_db"] is None else f"{s['lower_db']:+g}"
+            why[cname] = (f"{len(t.standard_failures)} of {len(std)} tones leave the class 1 limits of the "
+                          f"{letter}-weighting, first at {bad.nominal_hz:g} Hz, {bad.level_dbfs:.4g} dBFS: "
+                          f"{s['deviation_db']:+.3g} dB from the standard's curve, limits {s['upper_db']:+g}/{lo} dB"
+                          + (f" -- {ex:.6f} dB over, to be exact" if round(ex, 3) <= 0 else "")
+                          + ("; the float design itself is outside there (bilinear transform near Nyquist): use a "
+                             "higher sample rate" if any(x.standard["design_outside"] for x in t.standard_failures)
+                             else "; the float design is inside: the realisation's arithmetic moves it out "
+                             "(error feedback, df1ef, or a wider data word)"))
+        out.append(Check(cname, ex, 0.0, cok))
+    return out
+
+
 def _sections(program) -> list[dict]:
     out = []
     for op in program.ops:
@@ -478,12 +574,17 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
     reports = []
     for prog in realisation.programs:
         m = analyse_channel(designs[prog.name], prog, opt)
-        checks, why = channel_checks(m, budget)
+        tones = _run_tones(designs[prog.name], prog, m, budget)
+        checks, why = channel_checks(m, budget, tones)
         checks.sort(key=lambda c: c.ok)  # failing rows first
-        metrics = m.as_dict()
-        metrics["cost"] = cost_of(prog)  # of the generated code (coefc.codegen)
+        md = m.as_dict()
+        md["cost"] = cost_of(prog)  # of the generated code (coefc.codegen)
+        if tones is not None:
+            from .analyse import _clean
+
+            md["tones"] = _clean(tones.as_dict())
         reports.append(ChannelReport(prog.name, prog.sample_rate_hz, prog.arithmetic.as_dict(), _sections(prog),
-                                     metrics, checks, why, m))
+                                     md, checks, why, m))
     cautions = []
     tolerated = []
     if budget.overflow == "allow":

@@ -58,6 +58,8 @@ class Budget:
     limit_cycles: str | float | None = None  # "none" or a maximum amplitude in LSB
     overflow: str | None = None  # "none" or "allow"
     output_offset_lsb: float | None = None  # maximum |DC offset of the output error|, LSB
+    tone_gain_error_db: float | str | None = None  # None: the default limit; "off": not checked
+    tone_levels_dbfs: tuple[float, ...] | None = None  # None: the default levels
     extra: Mapping = field(default_factory=lambda: MappingProxyType({}))  # keys added by later checks
     passband: tuple[tuple[float, float], ...] | None = None
     stopband: tuple[tuple[float, float], ...] | None = None
@@ -341,7 +343,8 @@ _FREQ_KEYS = ("cutoff_hz", "passband_hz", "stopband_hz", "freq_hz")
 _TOP_KEYS = ("name", "sample_rate_hz", "implementation", "budget", "channel")
 _IMPL_KEYS = ("target", "structure", "data", "coef", "acc_bits", "rounding", "overflow", "scaling")
 _BUDGET_KEYS = ("passband_deviation_db", "stopband_attenuation_db", "output_noise_dbfs", "limit_cycles",
-                "overflow", "passband", "stopband", "output_offset_lsb")
+                "overflow", "passband", "stopband", "output_offset_lsb", "tone_gain_error_db",
+                "tone_levels_dbfs")
 _CHANNEL_KEYS = ("name", "stages")
 
 
@@ -548,6 +551,22 @@ def _budget(t, source: str, fs: float) -> Budget:
             out["limit_cycles"] = x
     if "overflow" in t:
         out["overflow"] = _choice("none", "allow")(t["overflow"], where.at("overflow"))
+    if "tone_gain_error_db" in t:
+        v, w = t["tone_gain_error_db"], where.at("tone_gain_error_db")
+        if isinstance(v, str):
+            if v != "off":
+                raise w.fail(f"'{v}' is not understood; write a largest error in dB (e.g. 0.5) or \"off\"")
+            out["tone_gain_error_db"] = "off"
+        else:
+            out["tone_gain_error_db"] = _positive(v, w)
+    if "tone_levels_dbfs" in t:
+        w = where.at("tone_levels_dbfs")
+        levels = _number_list(1, 8)(t["tone_levels_dbfs"], w)
+        for x in levels:
+            if not -200.0 <= x <= 0.0:
+                raise w.fail(f"{_fmt(x)} dBFS is not a tone level; write levels from -200 to 0 dBFS "
+                             "(AES17), e.g. [-20, -60]")
+        out["tone_levels_dbfs"] = levels
     nyq = fs / 2
     for key in ("passband", "stopband"):
         if key in t:
