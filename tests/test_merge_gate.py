@@ -179,3 +179,68 @@ def test_description_limits_refuse_before_the_work(tmp_path):
     big.write_text('name = "x"\nsample_rate_hz = 48000\n' + "# padding\n" * 120_000)
     r = coefc("design", big)
     assert r.returncode == 2 and "at most 1024 KiB" in r.stderr
+
+
+_TWO_WAY = '''name = "pair"
+sample_rate_hz = 48000
+[implementation]
+structure = "df1ef"
+[budget]
+stopband_attenuation_db = 30
+stopband = [[8000, 24000]]
+[[channel]]
+name = "low"
+stages = [ { kind = "lowpass", response = "linkwitz-riley", order = 4, cutoff_hz = 2200 } ]
+[[channel]]
+name = "high"
+stages = [ { kind = "highpass", response = "linkwitz-riley", order = 4, cutoff_hz = 2200 } ]
+'''
+
+
+def test_channel_budget_overrides_the_shared_one_and_the_command_line_wins(tmp_path):
+    """A [channel.budget] table (TOML: a sub-table of the last [[channel]]) sets that channel's
+    keys; the design contract's per-channel budgets.  An LR4 filter falls 24 dB per octave past
+    its crossover (common practice, no source): the low-pass attenuates at least 30 dB from 8 kHz
+    up (1.86 octaves above 2.2 kHz), the high-pass from 600 Hz down; judged on the low-pass's
+    stopband, the high-pass (which passes it) fails."""
+    shared = tmp_path / "shared.toml"
+    shared.write_text(_TWO_WAY)
+    r = coefc("check", shared, "--json", "-")
+    assert r.returncode == 1
+    chans = {c["name"]: c for c in json.loads(r.stdout)["channels"]}
+    att = {n: next(k for k in c["checks"] if k["name"] == "stopband_attenuation_db") for n, c in chans.items()}
+    assert att["low"]["ok"] and not att["high"]["ok"]
+
+    own = tmp_path / "own.toml"
+    own.write_text(_TWO_WAY + "[channel.budget]\nstopband = [[20, 600]]\nstopband_attenuation_db = 35\n")
+    r = coefc("check", own, "--json", "-")
+    assert r.returncode == 0, r.stdout[-3000:]
+    chans = {c["name"]: c for c in json.loads(r.stdout)["channels"]}
+    assert chans["high"]["budget"]["stopband"] == [[20.0, 600.0]]
+    assert chans["high"]["budget"]["stopband_attenuation_db"] == 35
+    assert chans["low"]["budget"]["stopband"] == [[8000.0, 24000.0]]
+    assert chans["low"]["budget"]["stopband_attenuation_db"] == 30
+    # a command-line override applies to every channel, over the channel's own key
+    r = coefc("check", own, "--min-stopband-attenuation-db", "300", "--json", "-")
+    chans = {c["name"]: c for c in json.loads(r.stdout)["channels"]}
+    assert r.returncode == 1 and all(c["budget"]["stopband_attenuation_db"] == 300 for c in chans.values())
+
+
+def test_channel_budget_errors_name_the_channel(tmp_path):
+    bad = tmp_path / "bad.toml"
+    bad.write_text(_TWO_WAY + "[channel.budget]\nstopbnd = [[20, 600]]\n")
+    r = coefc("check", bad)
+    assert r.returncode == 2 and r.stderr.count("\n") == 1
+    assert "channel 'high'" in r.stderr and "did you mean 'stopband'" in r.stderr
+
+
+def test_build_takes_the_budget_overrides_and_force_names_the_failures(tmp_path):
+    own = tmp_path / "own.toml"
+    own.write_text(_TWO_WAY + "[channel.budget]\nstopband = [[20, 600]]\n")
+    out = tmp_path / "pair.h"
+    r = coefc("build", own, "-o", out, "--min-stopband-attenuation-db", "300")
+    assert r.returncode == 1 and not out.exists() and "stopband_attenuation_db" in r.stderr
+    r = coefc("build", own, "-o", out, "--min-stopband-attenuation-db", "300", "--force")
+    assert r.returncode == 0 and out.exists()
+    assert "over budget: channel 'low': stopband_attenuation_db" in r.stderr and "--force" in r.stderr
+    assert "OVER BUDGET" in out.read_text()

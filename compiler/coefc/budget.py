@@ -91,6 +91,7 @@ class ChannelReport:
     checks: list[Check]
     reasons: dict[str, str]
     analysis: object = field(default=None, repr=False)  # coefc.analyse.Metrics
+    budget: Budget | None = None  # this channel's budget as applied ([channel.budget], overrides, defaults)
 
     @property
     def ok(self) -> bool:
@@ -103,6 +104,7 @@ class ChannelReport:
             "arithmetic": self.arithmetic,
             "sections": self.sections,
             "metrics": self.metrics,
+            **({"budget": _budget_dict(self.budget)} if self.budget is not None else {}),
             "checks": [{"name": c.name, "value": _json_num(c.value), "limit": _json_num(c.limit), "ok": c.ok,
                         "reason": self.reasons.get(c.name, "")} for c in self.checks],
             "ok": self.ok,
@@ -210,7 +212,17 @@ def apply_overrides(budget: Budget, *, passband_deviation_db: float | None = Non
         if overflow not in ("none", "allow"):
             raise DescriptionError(where, f"'{overflow}': write none or allow", key="--overflow-budget")
         ch["overflow"] = overflow
-    return replace(budget, **ch)
+    return replace(budget, **ch, command_line=budget.command_line | frozenset(ch))
+
+
+def channel_budget(budget: Budget, overrides) -> Budget:
+    """One channel's budget: *budget* with the channel's ``[channel.budget]`` keys.
+
+    Keys set on the command line (``budget.command_line``) win over the channel's
+    own: an override given to the whole command applies to every channel.
+    """
+    keys = {k: v for k, v in dict(overrides).items() if k not in budget.command_line}
+    return replace(budget, **keys) if keys else budget
 
 
 # ------------------------------------------------------------------ checks
@@ -564,18 +576,24 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
     from .analyse import AnalysisOptions, analyse_channel
     from .codegen import cost_of
 
-    budget, defaults = with_defaults(budget)
-    opt = options or AnalysisOptions()
-    if opt.passband is None and budget.passband:
-        opt = replace(opt, passband=tuple(budget.passband))
-    if opt.stopband is None and budget.stopband:
-        opt = replace(opt, stopband=tuple(budget.stopband))
+    base = options or AnalysisOptions()
     designs = {d.name: d for d in realisation.design.channels}
+    specs = {c.name: c for c in realisation.design.loaded.description.channels}
     reports = []
+    defaults: dict = {}
+    tolerated: list[str] = []
     for prog in realisation.programs:
+        spec = specs.get(prog.name)
+        cb, defs = with_defaults(channel_budget(budget, spec.budget) if spec is not None else budget)
+        defaults.update(defs)
+        opt = base
+        if opt.passband is None and cb.passband:
+            opt = replace(opt, passband=tuple(cb.passband))
+        if opt.stopband is None and cb.stopband:
+            opt = replace(opt, stopband=tuple(cb.stopband))
         m = analyse_channel(designs[prog.name], prog, opt)
-        tones = _run_tones(designs[prog.name], prog, m, budget)
-        checks, why = channel_checks(m, budget, tones)
+        tones = _run_tones(designs[prog.name], prog, m, cb)
+        checks, why = channel_checks(m, cb, tones)
         checks.sort(key=lambda c: c.ok)  # failing rows first
         md = m.as_dict()
         md["cost"] = cost_of(prog)  # of the generated code (coefc.codegen)
@@ -584,14 +602,14 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
 
             md["tones"] = _clean(tones.as_dict())
         reports.append(ChannelReport(prog.name, prog.sample_rate_hz, prog.arithmetic.as_dict(), _sections(prog),
-                                     md, checks, why, m))
-    cautions = []
-    tolerated = []
-    if budget.overflow == "allow":
-        tolerated.append("overflow")
-    if budget.limit_cycles is not None and budget.limit_cycles != "none":
-        tolerated.append(f"limit cycles up to {budget.limit_cycles:g} LSB")
-    if tolerated:
-        cautions.append(CAUTION.format(what=" and ".join(tolerated)))
+                                     md, checks, why, m, cb))
+        if cb.overflow == "allow" and "overflow" not in tolerated:
+            tolerated.append("overflow")
+        if cb.limit_cycles is not None and cb.limit_cycles != "none":
+            lc = f"limit cycles up to {cb.limit_cycles:g} LSB"
+            if lc not in tolerated:
+                tolerated.append(lc)
+    cautions = [CAUTION.format(what=" and ".join(tolerated))] if tolerated else []
+    budget, _ = with_defaults(budget)
     return CheckReport(realisation.design.loaded.description.source, realisation.target.name, tuple(reports),
                        budget, tuple(cautions), defaults)

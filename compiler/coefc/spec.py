@@ -63,6 +63,7 @@ class Budget:
     extra: Mapping = field(default_factory=lambda: MappingProxyType({}))  # keys added by later checks
     passband: tuple[tuple[float, float], ...] | None = None
     stopband: tuple[tuple[float, float], ...] | None = None
+    command_line: frozenset = frozenset()  # keys set on the command line: no [channel.budget] overrides them
 
 
 @dataclass(frozen=True)
@@ -78,6 +79,9 @@ class StageSpec:
 class ChannelSpec:
     name: str
     stages: tuple[StageSpec, ...]
+    #: ``[channel.budget]``: the budget keys this channel sets for itself (they override
+    #: the description's ``[budget]``; command-line overrides still win)
+    budget: Mapping = field(default_factory=lambda: MappingProxyType({}))
 
 
 @dataclass(frozen=True)
@@ -345,7 +349,7 @@ _IMPL_KEYS = ("target", "structure", "data", "coef", "acc_bits", "rounding", "ov
 _BUDGET_KEYS = ("passband_deviation_db", "stopband_attenuation_db", "output_noise_dbfs", "limit_cycles",
                 "overflow", "passband", "stopband", "output_offset_lsb", "tone_gain_error_db",
                 "tone_levels_dbfs")
-_CHANNEL_KEYS = ("name", "stages")
+_CHANNEL_KEYS = ("name", "stages", "budget")
 
 
 # ------------------------------------------------------------------- loading
@@ -517,9 +521,13 @@ def _implementation(t, source: str) -> Implementation:
 
 
 def _budget(t, source: str, fs: float) -> Budget:
-    where = _Place(source, table="budget")
-    t = _table(t, _Place(source, key="budget"), "budget")
-    _check_keys(t, _BUDGET_KEYS, where, "[budget]")
+    return Budget(**_budget_values(t, _Place(source, table="budget"), fs, "budget"))
+
+
+def _budget_values(t, where: _Place, fs: float, header: str) -> dict:
+    """The budget keys a ``[budget]`` (or ``[channel.budget]``) table sets, validated."""
+    t = _table(t, _Place(where.source, where.channel, key="budget"), header)
+    _check_keys(t, _BUDGET_KEYS, where, f"[{header}]")
     out: dict = {}
     if "passband_deviation_db" in t:
         out["passband_deviation_db"] = _positive(t["passband_deviation_db"], where.at("passband_deviation_db"))
@@ -582,7 +590,7 @@ def _budget(t, source: str, fs: float) -> Budget:
                                  f"end the band at or below {_fmt(nyq)} Hz")
                 bands.append((lo, hi))
             out[key] = tuple(bands)
-    return Budget(**out)
+    return out
 
 
 def _band_error(b, w: _Place):
@@ -613,7 +621,10 @@ def _channel(ch: dict, number: int, source: str, fs: float, seen: set[str]) -> C
     if len(stages) > MAX_STAGES:
         raise where.at("stages").fail(f"{len(stages)} stages; at most {MAX_STAGES} per channel: merge stages "
                                       "or split the channel")
-    return ChannelSpec(name=name, stages=tuple(_stage(s, i + 1, source, name, fs) for i, s in enumerate(stages)))
+    budget = _budget_values(ch["budget"], _Place(source, channel=name, table="budget"), fs, "channel.budget") \
+        if "budget" in ch else {}
+    return ChannelSpec(name=name, stages=tuple(_stage(s, i + 1, source, name, fs) for i, s in enumerate(stages)),
+                       budget=MappingProxyType(budget))
 
 
 def _stage(s, index: int, source: str, channel: str, fs: float) -> StageSpec:
