@@ -294,6 +294,11 @@ def channel_checks(metrics, budget: Budget) -> tuple[list[Check], dict[str, str]
         if osc == "found":
             bad = next(s for s in lc.sections if s.overflow_status == "found")
             parts.append(f"overflow oscillation in op {bad.op_index + 1}: {bad.overflow_note}")
+        elif osc == "unproven":
+            un = [lc.label(s) if hasattr(lc, "label") else f"op {s.op_index + 1}"
+                  for s in lc.sections if s.overflow_status == "unproven"]
+            parts.append(f"zero-input overflow oscillations not proven absent in {', '.join(un)} (see "
+                         "limit_cycle.sections); they can start only after an overflow")
         if not ok:
             parts.append("scale the input down (a gain stage or scaling = \"l1\")"
                          + (" or use saturation" if metrics.overflow_mode == "wrap" else ""))
