@@ -214,6 +214,19 @@ def test_the_issue_example_is_found():
     assert sat["overflow"] == 0 and r2.overflow_status == "none" and "exhaustive" in r2.overflow_note
 
 
+def test_the_issue_example_on_a_16_bit_word():
+    # the mcu32 form of the issue's example (data Q1.15, coef Q2.30, 64-bit accumulator): with
+    # a1 + a2 = 1 - 2^-16, 32768 (a1 + a2) = 32767.5 rounds up to +full scale and wraps, so (-32768, -32768)
+    # is a fixed point (worked out here from the recurrence); 2^32 states are too many to enumerate,
+    # but the verdict may not be "none" and the corner state is found
+    A1, A2 = 1 << 29, (1 << 29) - (1 << 14)
+    v = rshift(-A1 * -32768 - A2 * -32768, 30, "add-half")
+    assert v == 32768  # one above full scale: wraps to -32768
+    ar = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 30), acc_bits=64, rounding="add-half", overflow="wrap")
+    res = analyse_section(SectionOp((1 << 30, 0, 0), (A1, A2), 0, "df1"), 0, ar)
+    assert res.overflow_status == "found" and res.overflow_period == 1 and res.overflow_start == (-32768, -32768)
+
+
 def test_unproven_with_the_reason_when_the_state_space_is_large():
     # the same coefficients with a 16-bit word and 16 fraction bits: the rounding reaches full scale,
     # 2^32 states are too many to search, so the verdict may not be "none"
