@@ -9,6 +9,7 @@ import pytest
 
 import coefc
 from coefc.analyse import AnalysisOptions
+from coefc.analyse.limitcycles import LimitCycleAnalysis, SectionLimitCycles
 from coefc.budget import apply_overrides, channel_checks, run_check
 from coefc.errors import DescriptionError
 from coefc.spec import Budget
@@ -16,12 +17,12 @@ from coefc.spec import Budget
 from conftest import FILTERS
 
 
-def fake_metrics(status="none", amplitude=None, bound=3.0, complete=True, overflow_count=0, osc="none"):
-    lc = SimpleNamespace(status=status, amplitude_lsb=amplitude if status != "none" else 0, bound_lsb=bound,
-                         complete=complete, overflow_status=osc,
-                         sections=[SimpleNamespace(op_index=0, status=status, amplitude_lsb=amplitude, period=2,
-                                                   start_state=(3, -3), note="", overflow_status=osc,
-                                                   overflow_note="x")])
+def fake_metrics(status="none", amplitude=None, bound=3.0, complete=True, overflow_count=0, osc="none",
+                 sections=None):
+    sec = SectionLimitCycles(0, status, bound, complete, 0, amplitude_lsb=amplitude,
+                             period=2 if amplitude else None, start_state=(3, -3) if amplitude else None,
+                             overflow_status=osc, overflow_note="x")
+    lc = LimitCycleAnalysis(tuple(sections) if sections else (sec,), tuple(range(1, 1 + len(sections or [0]))))
     resp = SimpleNamespace(stable=True, max_pole_radius=0.9, passband_deviation_db=0.01, passband_rule="r",
                            stopband_attenuation_db=None, stopband_rule="s", float_stopband_attenuation_db=None)
     ov = SimpleNamespace(overflow_count=overflow_count, runs=1, worst_node="op 1 output", headroom_bits=0.5,
@@ -49,6 +50,30 @@ def test_limit_cycle_rule(status, amplitude, bound, complete, limit, ok):
     res, why = verdict(fake_metrics(status, amplitude, bound, complete), limit_cycles=limit)
     assert res["limit_cycles"] is ok
     assert why["limit_cycles"]
+
+
+def test_channel_verdict_is_the_worst_section_and_names_each():
+    # a 1 LSB cycle found in section 1 and section 2 unproven with a 275460 LSB bound (the case of
+    # C weighting at 96 kHz on mcu32): the channel is unproven, fails both "none" and a 2 LSB limit,
+    # and the reason names both sections
+    s1 = SectionLimitCycles(0, "found", 3.0, True, 10, amplitude_lsb=1, period=1, start_state=(1, 1),
+                            output_amplitude_lsb=1, output_bound_lsb=3.0)
+    s2 = SectionLimitCycles(1, "unproven", 275460.0, False, 0, output_bound_lsb=275460.0)
+    m = fake_metrics(sections=[s1, s2])
+    assert m.limit_cycles.status == "unproven" and m.limit_cycles.amplitude_lsb == 1
+    for limit in ("none", 2.0):
+        res, why = verdict(m, limit_cycles=limit)
+        assert res["limit_cycles"] is False
+        assert "section 1" in why["limit_cycles"] and "section 2 unproven, bound 275460" in why["limit_cycles"]
+    assert verdict(fake_metrics(sections=[s1, s2]), limit_cycles=3e5)[0]["limit_cycles"] is True
+
+
+def test_limit_is_applied_at_the_channel_output():
+    # a 2 LSB cycle in its section that the later sections carry to 40 LSB fails a 4 LSB limit
+    s = SectionLimitCycles(0, "found", 3.0, True, 10, amplitude_lsb=2, period=1, start_state=(2, 2),
+                           output_amplitude_lsb=40, output_bound_lsb=60.0)
+    res, why = verdict(fake_metrics(sections=[s]), limit_cycles=4.0)
+    assert res["limit_cycles"] is False and "40 LSB at the channel output" in why["limit_cycles"]
 
 
 def test_overflow_rule():

@@ -109,11 +109,14 @@ class Metrics:
                    "note": "float32 arithmetic: granular limit cycles are not analysed"}
         else:
             lcd = {"status": lc.status, "amplitude_lsb": lc.amplitude_lsb, "period": lc.period,
-                   "bound_lsb": lc.bound_lsb, "exhaustive": lc.complete,
+                   "section": lc.section, "section_amplitude_lsb": lc.section_amplitude_lsb,
+                   "bound_lsb": lc.bound_lsb, "exhaustive": lc.complete, "summary": lc.summary(),
                    "sections": [
                        {"op": s.op_index + 1, "status": s.status, "bound_lsb": s.bound_lsb,
                         "exhaustive": s.exhaustive, "states_searched": s.states_searched,
                         "amplitude_lsb": s.amplitude_lsb, "period": s.period,
+                        "output_amplitude_lsb": s.output_amplitude_lsb, "output_bound_lsb": s.output_bound_lsb,
+                        "output_note": s.output_note,
                         "start_state": list(s.start_state) if s.start_state else None,
                         "overflow_oscillation": s.overflow_status, "overflow_note": s.overflow_note,
                         "note": s.note}

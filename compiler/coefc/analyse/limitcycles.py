@@ -19,11 +19,27 @@ Granular limit cycles (zero-input, rounding)
     cycles, reported with ``exhaustive = False``).
 
 Overflow oscillations (zero-input, large states)
-    With ``wrap`` overflow a direct-form second-order section is free of them if
-    ``|a1| + |a2| < 1`` (Ebert, Mazo & Taylor 1969, from memory); otherwise, and
-    with ``saturate`` (the saturated-state check), zero-input trajectories are
-    run from full-scale corner states and from random large states, and any that
-    still swings above the granular bound at the end is reported.
+    A verdict of ``none`` rests on one of two arguments that cover the whole
+    zero-input integer map, rounding and ``fit_data`` included.  (a) No state of
+    the data-word box (with every rounding residual, for ``df1ef``) can overflow:
+    the largest and smallest accumulator over the box are exact (a linear form is
+    extreme at the corners), the rounding is monotone, so their rounded values
+    bound every next output; when both fit the data word (and the accumulator
+    never wraps) the map is the rounded linear map, whose cycles all lie inside
+    the granular bound.  The criterion ``|a1| + |a2| < 1`` (Ebert, Mazo & Taylor
+    1969) is the exact-arithmetic form of this test; it misses the quantiser's
+    reach, which can lift a sum just below full scale to +full scale, where
+    ``wrap`` turns it into -full scale.  (b) Otherwise, when the state space is
+    small enough (``MAX_WHOLE_STATES``), every state is mapped once and the cycles
+    of the whole map are found exactly (pointer doubling); a cycle that passes
+    through an overflow (``fit_data`` or the accumulator changed a value) is an
+    overflow oscillation.  Otherwise the verdict is ``unproven`` with the reason,
+    and zero-input runs from full-scale corner states and random large states
+    may still find one (``found``).  Saturation gets the same treatment: it damps
+    the exact-arithmetic overflow oscillations of a second-order direct form, but
+    with rounding it need not (Wanhammar, DSP Integrated Circuits, 1999, sec. 5.2:
+    "sufficient to suppress the large parasitic overflow oscillation, but not
+    completely").
 
 The zero-input recursion of ``df1`` and ``tdf2`` (states kept at accumulator
 precision) is ``y[n] = fit_data(round_shift(-A1*y[n-1] - A2*y[n-2], Fc - s))`` with
@@ -44,7 +60,7 @@ quantization and overflow in recursive digital filters", IEEE Trans. ASSP-24(6),
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -52,6 +68,7 @@ from ..program import Arithmetic, ChannelProgram, SectionOp
 from ..qformat import fit_word, round_shift
 
 MAX_STATES = 1 << 21
+MAX_WHOLE_STATES = 1 << 22  # exhaustive search of the whole zero-input map up to this many states
 
 
 @dataclass(frozen=True)
@@ -72,32 +89,66 @@ class SectionLimitCycles:
     overflow_period: int | None = None
     overflow_start: tuple[int, ...] | None = None
     note: str = ""
+    # the cycle carried through the rest of the channel (filled in by analyse_limit_cycles)
+    output_amplitude_lsb: int | None = None  # bit-true engine, the found cycle fed to the later ops
+    output_bound_lsb: float | None = None  # rigorous bound at the channel output (None: no finite bound)
+    output_note: str = ""
+
+
+_WORST = {"none": 0, "found": 1, "unproven": 2}
 
 
 @dataclass(frozen=True)
 class LimitCycleAnalysis:
+    """Per-section verdicts and the channel's summary (the worst section decides).
+
+    Amplitudes of the summary are at the channel output: the cycle found in a
+    section is fed through the rest of the channel by the bit-true engine
+    (``SectionLimitCycles.output_amplitude_lsb``); bounds are carried by the rest's
+    l1 gain plus its own roundoff (``output_bound_lsb``).
+    """
+
     sections: tuple[SectionLimitCycles, ...] = field(default_factory=tuple)
+    section_numbers: tuple[int, ...] = field(default_factory=tuple)  # 1-based, among the channel's sections
 
     @property
     def status(self) -> str:
-        st = [s.status for s in self.sections]
-        return "found" if "found" in st else "unproven" if "unproven" in st else "none"
+        """``unproven`` if any section is, else ``found`` if any is, else ``none``."""
+        return max((s.status for s in self.sections), key=_WORST.get, default="none")
+
+    def _largest(self):
+        found = [s for s in self.sections if s.amplitude_lsb]
+        return max(found, key=lambda s: (_out_amp(s), s.amplitude_lsb)) if found else None
 
     @property
     def amplitude_lsb(self) -> int | None:
-        amps = [s.amplitude_lsb for s in self.sections if s.amplitude_lsb is not None]
+        """Largest found cycle at the channel output (0 when proven absent, None when none found)."""
         if self.status == "none":
             return 0
-        return max(amps) if amps else None
+        s = self._largest()
+        return _out_amp(s) if s else None
+
+    @property
+    def section_amplitude_lsb(self) -> int | None:
+        s = self._largest()
+        return s.amplitude_lsb if s else (0 if self.status == "none" else None)
+
+    @property
+    def section(self) -> int | None:
+        """1-based op index of the section where the largest output cycle arises."""
+        s = self._largest()
+        return s.op_index + 1 if s else None
 
     @property
     def period(self) -> int | None:
-        found = [s for s in self.sections if s.amplitude_lsb]
-        return max(found, key=lambda s: s.amplitude_lsb).period if found else None
+        s = self._largest()
+        return s.period if s else None
 
     @property
     def bound_lsb(self) -> float | None:
-        b = [s.bound_lsb for s in self.sections]
+        """Largest rigorous amplitude bound at the channel output (None: some section has none)."""
+        b = [s.output_bound_lsb if s.output_bound_lsb is not None or s.bound_lsb is None else s.bound_lsb
+             for s in self.sections]
         if any(v is None for v in b):
             return None
         return max(b) if b else 0.0
@@ -111,6 +162,36 @@ class LimitCycleAnalysis:
     def overflow_status(self) -> str:
         st = [s.overflow_status for s in self.sections]
         return "found" if "found" in st else "unproven" if "unproven" in st else "none"
+
+    def label(self, s: SectionLimitCycles) -> str:
+        i = self.sections.index(s)
+        n = self.section_numbers[i] if i < len(self.section_numbers) else None
+        return f"section {n} (op {s.op_index + 1})" if n is not None and n != s.op_index + 1 else \
+            f"section {s.op_index + 1}"
+
+    def summary(self) -> str:
+        """Every section that is not proven free, e.g. ``found, 1 LSB at the output in section 1; ...``."""
+        parts = []
+        for s in sorted(self.sections, key=lambda s: (-_WORST[s.status], -(_out_amp(s) or 0))):
+            if s.status == "none":
+                continue
+            where = self.label(s)
+            if s.status == "found":
+                parts.append(f"found in {where}: {_out_amp(s)} LSB at the channel output, {s.amplitude_lsb} LSB "
+                             f"at the section, period {s.period}"
+                             + ("" if s.exhaustive else " (sampled search; larger cycles may exist)"))
+            else:
+                ob = s.output_bound_lsb if s.output_bound_lsb is not None else s.bound_lsb
+                parts.append(f"{where} unproven, " + (f"bound {ob:.6g} LSB at the channel output" if ob is not None
+                                                      else "no amplitude bound")
+                             + (f", a sampled search found {_out_amp(s)} LSB" if s.amplitude_lsb else ""))
+        return "; ".join(parts) if parts else "none in any section"
+
+
+def _out_amp(s: SectionLimitCycles) -> int | None:
+    if s.amplitude_lsb is None:
+        return None
+    return s.output_amplitude_lsb if s.output_amplitude_lsb is not None else s.amplitude_lsb
 
 
 # ---------------------------------------------------------------- the integer map
@@ -466,21 +547,42 @@ def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states:
     k = arith.coef.frac_bits - op.shift
     a_phys = _section_phys(op, arith)
     structure = op.structure or arith.structure
-    noise_b = np.array([1.0, -1.0]) if structure == "df1ef" else np.array([1.0])
+    ef = structure == "df1ef"
+    noise_b = np.array([1.0, -1.0]) if ef else np.array([1.0])
     bounds = granular_bounds(a_phys, noise_b, arith.rounding)
+    can_overflow = overflow_reach(a1, a2 if order == 2 else 0, k, arith, order, ef)[0]
+    res = _granular(a1, a2, k, arith, order, structure, bounds, max_states, sample_starts, sample_steps, seed,
+                    ef_work)
+    whole = None
+    if can_overflow or res["status"] == "unproven":
+        whole = _whole_cached(a1, a2 if order == 2 else 0, k, arith, order, ef)
+    if whole is not None and res["status"] == "unproven":
+        # the whole map was searched: its overflow-free cycles are exactly the granular ones
+        g = whole["granular"]
+        note = (res["note"] + "; " if res["note"] else "") + \
+            f"resolved by an exhaustive search of all {whole['states']} states of the zero-input map"
+        res = dict(status="found" if g else "none", bound_lsb=res["bound_lsb"], exhaustive=True,
+                   states_searched=whole["states"], note=note)
+        if g:
+            res.update(g)
+    return SectionLimitCycles(index, **res, **_overflow(a1, a2, k, a_phys, arith, order, bounds, overflow_starts,
+                                                        seed, ef, whole))
+
+
+def _granular(a1, a2, k, arith, order, structure, bounds, max_states, sample_starts, sample_steps, seed,
+              ef_work) -> dict:
+    """Granular verdict of one section (keyword fields of SectionLimitCycles, ``note`` included)."""
     fs_lsb = float(arith.data.max_int)
     notes = []
     if k <= 0:
         # no rounding in the loop: the recursion is exact, only an unstable one can cycle
         status = "none" if bounds is not None else "unproven"
-        res = dict(status=status, bound_lsb=0.0 if bounds else None, exhaustive=True, states_searched=0,
-                   note="the loop does not round (shift >= coefficient fraction bits)")
-        return SectionLimitCycles(index, **res, **_overflow(a1, a2, k, a_phys, arith, order, bounds, overflow_starts, seed, structure == "df1ef"))
+        return dict(status=status, bound_lsb=0.0 if bounds else None, exhaustive=True, states_searched=0,
+                    note="the loop does not round (shift >= coefficient fraction bits)")
     if bounds is None:
-        return SectionLimitCycles(index, "unproven", None, False, 0,
-                                  note="no amplitude bound: the realised section is not stable, or its "
-                                       "poles lie too close to the unit circle to sum the bound rigorously",
-                                  **_overflow(a1, a2, k, a_phys, arith, order, bounds, overflow_starts, seed, structure == "df1ef"))
+        return dict(status="unproven", bound_lsb=None, exhaustive=False, states_searched=0,
+                    note="no amplitude bound: the realised section is not stable, or its "
+                         "poles lie too close to the unit circle to sum the bound rigorously")
     Bf, Df, Sf = bounds
     B, D, S = int(math.floor(Bf)), int(math.floor(Df)), int(math.floor(Sf))
     if order == 1:
@@ -525,7 +627,7 @@ def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states:
                 res.update(status="found")
                 res["states_searched"] = sample_starts
     res["note"] = "; ".join(notes)
-    return SectionLimitCycles(index, **res, **_overflow(a1, a2, k, a_phys, arith, order, bounds, overflow_starts, seed, structure == "df1ef"))
+    return res
 
 
 def _cycle_search(a1, a2, k, arith, B, D, S, order) -> dict | None:
@@ -688,15 +790,136 @@ def _zero_input_engine():
     return getattr(_engine, "zero_input", None) if HAVE_ENGINE else None
 
 
-def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed, ef=False) -> dict:
+def overflow_reach(a1: int, a2: int, k: int, arith: Arithmetic, order: int, ef: bool = False) -> tuple[bool, str]:
+    """Can one zero-input step overflow from any state of the data-word box?  ``(can, detail)``.
+
+    Exact: the accumulator ``-A1*y1 - A2*y2 (+ E)`` is extreme at a corner of the box
+    (and at an end of the residual range for ``df1ef``), every rounding mode is
+    monotone, so the rounded extremes bound every next output.  ``can`` is False
+    only when both fit the data word and the accumulator never wraps.
+    """
+    lo, hi = arith.data.min_int, arith.data.max_int
+    terms = [(-a1 * lo, -a1 * hi)] + ([(-a2 * lo, -a2 * hi)] if order == 2 else [])
+    if ef and k >= 1:
+        terms.append(_residual_range(k, arith.rounding))
+    amax = sum(max(t) for t in terms)
+    amin = sum(min(t) for t in terms)
+    top = 1 << (arith.acc_bits - 1)
+    if amax >= top or amin < -top:
+        return True, f"the accumulator can wrap ({amin}..{amax} outside {arith.acc_bits} bits)"
+    rmax, rmin = round_shift(amax, k, arith.rounding), round_shift(amin, k, arith.rounding)
+    detail = (f"over every state of the data word the rounded accumulator spans {rmin}..{rmax} LSB "
+              f"against the word's {lo}..{hi}")
+    return (rmax > hi or rmin < lo), detail
+
+
+def whole_space_cycles(a1: int, a2: int, k: int, arith: Arithmetic, order: int, ef: bool = False,
+                       max_states: int = MAX_WHOLE_STATES) -> dict | None:
+    """Every cycle of the zero-input map over the whole state space, exactly; ``None`` if too large.
+
+    The states are ``(y1, y2)`` over the data-word box (``y1`` alone for a first-order
+    section) and, for ``df1ef``, every residual ``E`` of the rounding mode.  Each state
+    is mapped once; ``f^(2^J)`` with ``2^J`` at least the number of states (pointer
+    doubling: ``g <- g[g]``) lands every state on a cycle, so its image is exactly the
+    set of states on cycles.  Cycles are labelled by the smallest index on them (again
+    by doubling) and split into those that pass through an overflow (``fit_data`` or
+    the accumulator wrap changed a value on the way) and those that do not.  Returns
+    ``{"states", "granular", "overflow"}`` with, for each kind, ``None`` or the largest
+    cycle's ``amplitude_lsb``, ``period`` and ``start_state``.
+    """
+    W = arith.data.width
+    lo = arith.data.min_int
+    ny = 1 << W
+    elo, ehi = _residual_range(k, arith.rounding) if ef else (0, 0)
+    ne = ehi - elo + 1
+    n = ny ** order * ne
+    if (n > max_states or arith.acc_bits > 64 or (ef and k < 1) or k > 62
+            or (abs(a1) + abs(a2)) * ny + 2 * ne >= 1 << 62):
+        return None
+    idx = np.arange(n, dtype=np.int64)
+    e = idx % ne + elo
+    rest = idx // ne
+    if order == 2:
+        y1, y2 = rest // ny + lo, rest % ny + lo
+    else:
+        y1, y2 = rest + lo, np.zeros(n, dtype=np.int64)
+    exact = -np.int64(a1) * y1 - np.int64(a2) * y2 + e
+    acc = fit_word(exact, arith.acc_bits, "wrap") if arith.acc_bits < 64 else exact
+    v = _round_shift64(acc, k, arith.rounding) if k >= 1 else round_shift(acc, k, arith.rounding)
+    y0 = fit_word(v, W, arith.overflow)
+    ovf = (y0 != v) | (acc != exact)
+    e_new = (acc - np.left_shift(v, k) - elo) if ef else np.zeros(n, dtype=np.int64)
+    nxt = ((y0 - lo) * ny + (y1 - lo) if order == 2 else (y0 - lo)) * ne + e_new
+    nxt = nxt.astype(np.int32 if n < 1 << 31 else np.int64)
+    del exact, acc, v, e, rest
+    g = nxt
+    for _ in range(n.bit_length()):
+        g = g[g]
+    cyc = np.unique(g)
+    del g
+    # label every cycle by the smallest position on it
+    succ = np.searchsorted(cyc, nxt[cyc])
+    lab = np.arange(len(cyc))
+    h = succ
+    for _ in range(max(1, len(cyc).bit_length())):
+        lab = np.minimum(lab, lab[h])
+        h = h[h]
+    amp_state = np.abs(y1[cyc])
+    period = np.bincount(lab, minlength=len(cyc))
+    amp = np.zeros(len(cyc), dtype=np.int64)
+    np.maximum.at(amp, lab, amp_state)
+    has_ovf = np.bincount(lab, weights=ovf[cyc].astype(float), minlength=len(cyc)) > 0
+    out = {"states": n, "granular": None, "overflow": None}
+    for kind, sel in (("granular", ~has_ovf), ("overflow", has_ovf)):
+        roots = np.flatnonzero(sel & (period > 0) & (amp > 0))
+        if len(roots) == 0:
+            continue
+        r = int(roots[np.argmax(amp[roots])])
+        members = np.flatnonzero(lab == r)
+        j = int(cyc[members[np.argmax(amp_state[members])]])
+        st = (int(y1[j]), int(y2[j])) + ((int(j % ne + elo),) if ef else ())
+        out[kind] = dict(amplitude_lsb=int(amp[r]), period=int(period[r]), start_state=st)
+    return out
+
+
+_WHOLE_CACHE: dict = {}
+
+
+def _whole_cached(a1, a2, k, arith, order, ef):
+    key = (a1, a2, k, order, ef, arith.data.width, arith.acc_bits, arith.rounding, arith.overflow)
+    if key not in _WHOLE_CACHE:
+        if len(_WHOLE_CACHE) >= 256:
+            _WHOLE_CACHE.clear()
+        _WHOLE_CACHE[key] = whole_space_cycles(a1, a2, k, arith, order, ef)
+    return _WHOLE_CACHE[key]
+
+
+def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed, ef=False, whole=None) -> dict:
     """Overflow-oscillation verdict of one section (keyword fields of SectionLimitCycles)."""
-    suff = abs(a_phys[1]) + abs(a_phys[2]) < 1.0
-    if arith.overflow == "wrap" and suff:
+    a2 = a2 if order == 2 else 0
+    can, detail = overflow_reach(a1, a2, k, arith, order, ef)
+    emt = abs(a_phys[1]) + abs(a_phys[2])
+    if not can:
         return dict(overflow_status="none",
-                    overflow_note=f"|a1| + |a2| = {abs(a_phys[1]) + abs(a_phys[2]):.4g} < 1: free of overflow "
-                                  "oscillations with wrap-around (Ebert, Mazo & Taylor 1969)")
+                    overflow_note=f"no zero-input step can overflow: {detail} (exact, rounding included), so "
+                                  "every cycle lies inside the granular bound")
+    if whole is not None:
+        hit = whole["overflow"]
+        if hit is None:
+            return dict(overflow_status="none",
+                        overflow_note=f"exhaustive search of all {whole['states']} states of the zero-input map: "
+                                      "no cycle passes through an overflow")
+        return dict(overflow_status="found",
+                    overflow_note=f"zero-input overflow oscillation from state {hit['start_state']} "
+                                  f"(exhaustive search of all {whole['states']} states)",
+                    overflow_amplitude=hit["amplitude_lsb"] / (arith.data.max_int + 1),
+                    overflow_period=hit["period"], overflow_start=hit["start_state"])
+    why = (f"overflow is possible ({detail}"
+           + (f"; |a1| + |a2| = {emt:.6g} < 1, but the rounding reaches full scale" if emt < 1 else "")
+           + f"), and the {arith.data.width}-bit state space is too large to search exhaustively")
     if arith.acc_bits > 64:
-        return dict(overflow_status="unproven", overflow_note="no large-state search for accumulators wider than 64 bits")
+        return dict(overflow_status="unproven", overflow_note=why + "; no large-state run for accumulators "
+                                                                  "wider than 64 bits")
     lo, hi = arith.data.min_int, arith.data.max_int
     rng = np.random.default_rng(seed + 1)
     corners = np.array([(hi, hi), (hi, lo), (lo, hi), (lo, lo), (hi, 0), (lo, 0), (0, hi), (0, lo)], dtype=np.int64)
@@ -708,28 +931,24 @@ def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed, ef=False) -
     steps = int(min(8192, max(256, 40.0 / max(1e-6, 1.0 - r)))) if r < 1 else 1024
     gran = (bounds[0] if bounds else 0.0) + 1.0
     # after `steps` steps, 64 more record the peaks; every 64 steps before that, stop once every
-    # trajectory is back inside the granular bound: none can then be an overflow oscillation
-    y1, y2, e, big = run_zero_input(y1, y2, e, a1, a2 if order == 2 else 0, k, arith, ef, order, steps, 64, gran)
+    # trajectory is back inside the granular bound
+    y1, y2, e, big = run_zero_input(y1, y2, e, a1, a2, k, arith, ef, order, steps, 64, gran)
     bad = np.nonzero(big > gran)[0]
     mode = "wrap-around" if arith.overflow == "wrap" else "saturation"
     if len(bad) == 0:
-        if arith.overflow == "wrap":
-            return dict(overflow_status="unproven",
-                        overflow_note=f"|a1| + |a2| >= 1 and no oscillation from {len(st)} large states "
-                                      f"in {steps} steps ({mode}); not a proof")
-        return dict(overflow_status="none",
-                    overflow_note=f"saturated-state check: all {len(st)} large and full-scale states decay "
-                                  f"within {steps} steps")
+        return dict(overflow_status="unproven",
+                    overflow_note=f"{why}; no oscillation from {len(st)} large and full-scale states in "
+                                  f"{steps} steps ({mode}), which is not a proof")
     j = int(bad[np.argmax(big[bad])])
     s0 = (int(st[j, 0]), int(st[j, 1]) if order == 2 else 0)
     # settle the trajectory, then measure its period
     if ef:
-        per, am, cyc = _walk_ef(int(y1[j]), int(y2[j]), int(e[j]), a1, a2 if order == 2 else 0, k, arith, 1 << 15)
+        per, am, cyc = _walk_ef(int(y1[j]), int(y2[j]), int(e[j]), a1, a2, k, arith, 1 << 15)
     else:
-        per, am, cyc = _walk(int(y1[j]), int(y2[j]), a1, a2 if order == 2 else 0, k, arith, limit=1 << 15)
+        per, am, cyc = _walk(int(y1[j]), int(y2[j]), a1, a2, k, arith, limit=1 << 15)
     if not per or am <= gran:
         return dict(overflow_status="unproven",
-                    overflow_note=f"|a1| + |a2| >= 1; from state {s0} the zero-input output is still "
+                    overflow_note=f"{why}; from state {s0} the zero-input output is still "
                                   f"{big[j] / (hi + 1):.3g} of full scale after {steps} steps ({mode}) but no "
                                   "period was found: a very slow decay or a long oscillation")
     return dict(overflow_status="found",
@@ -738,12 +957,89 @@ def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed, ef=False) -
 
 
 def analyse_limit_cycles(program: ChannelProgram, *, max_states: int = MAX_STATES, **kw) -> LimitCycleAnalysis:
-    """Verdicts for every recursive section of a fixed-point *program*."""
+    """Verdicts for every recursive section of a fixed-point *program*, carried to the channel output."""
     ar = program.arithmetic
     if ar.is_float:
         return LimitCycleAnalysis(())
-    out = []
+    out, numbers = [], []
+    nsec = 0
     for i, op in enumerate(program.ops):
-        if isinstance(op, SectionOp) and (int(op.a[0]) != 0 or int(op.a[1]) != 0):
-            out.append(analyse_section(op, i, ar, max_states=max_states, **kw))
-    return LimitCycleAnalysis(tuple(out))
+        if isinstance(op, SectionOp):
+            nsec += 1
+            if int(op.a[0]) != 0 or int(op.a[1]) != 0:
+                res = analyse_section(op, i, ar, max_states=max_states, **kw)
+                out.append(replace(res, **_at_output(program, res)))
+                numbers.append(nsec)
+    return LimitCycleAnalysis(tuple(out), tuple(numbers))
+
+
+def cycle_outputs(op: SectionOp, res: SectionLimitCycles, arith: Arithmetic) -> list[int]:
+    """The outputs of one period of the granular cycle found in *res* (from its start state)."""
+    a1, a2 = int(op.a[0]), int(op.a[1])
+    k = arith.coef.frac_bits - op.shift
+    st = res.start_state
+    ys = []
+    if len(st) == 3:
+        y1, y2, e = st
+        for _ in range(res.period):
+            y0, e = step_ef_int(y1, y2, e, a1, a2, k, arith)
+            ys.append(y0)
+            y1, y2 = y0, y1
+    else:
+        y1, y2 = st
+        for _ in range(res.period):
+            y0 = step_int(y1, y2, a1, a2, k, arith)
+            ys.append(y0)
+            y1, y2 = y0, y1
+    return ys
+
+
+def _at_output(program: ChannelProgram, res: SectionLimitCycles) -> dict:
+    """The section's cycle and bound carried through the rest of the channel.
+
+    A found cycle's outputs, repeated, drive the later operations in the bit-true
+    engine (from rest) until their slowest pole has settled; the largest output word
+    over the last periods is the amplitude at the channel output.  The bound is the
+    section's bound times the l1 gain of the later operations (realised
+    coefficients) plus the worst-case roundoff of the later operations themselves.
+    """
+    from .linear import _run, noise_impulse, op_models, pole_radius, response_length
+
+    rest = program.ops[res.op_index + 1:]
+    if not rest:
+        return dict(output_amplitude_lsb=res.amplitude_lsb, output_bound_lsb=res.bound_lsb)
+    ar = program.arithmetic
+    models = op_models(program)
+    tail = models[res.op_index + 1:]
+    n = response_length(tail)
+    notes = []
+    bound = None
+    stable_rest = pole_radius(tail) < 1.0
+    if not stable_rest:
+        notes.append("a later operation is not stable: no bound at the channel output")
+    if res.bound_lsb is not None and stable_rest:
+        h = np.zeros(n)
+        h[0] = 1.0
+        for m in tail:
+            h = _run(m.b, m.a, h)
+        c, r = error_interval(ar.rounding)
+        rnd = sum((abs(c) + r) * float(np.sum(np.abs(noise_impulse(models, j, n))))
+                  for j in range(res.op_index + 1, len(models)) if models[j].k > 0)
+        if np.all(np.isfinite(h)) and np.isfinite(rnd):
+            bound = (res.bound_lsb * float(np.sum(np.abs(h))) + rnd) * (1 + 1e-9)  # l1 sums of decayed tails
+    amp = None
+    if res.amplitude_lsb and res.start_state is not None and res.period:
+        from ..simulate import simulate
+
+        op = program.ops[res.op_index]
+        ys = cycle_outputs(op, res, ar)
+        p = len(ys)
+        settle = int(min(max(n, 4096), 1 << 20))
+        reps = -(-(settle + 64 * p) // p)
+        y = simulate(ChannelProgram(program.name, program.sample_rate_hz, ar, tuple(rest)),
+                     np.tile(np.asarray(ys, dtype=np.int64), reps))
+        last = y[-64 * p:]
+        amp = int(np.max(np.abs(last)))
+        if not np.array_equal(last[:p], last[-p:]):
+            notes.append("the channel output was not yet periodic at the end of the run")
+    return dict(output_amplitude_lsb=amp, output_bound_lsb=bound, output_note="; ".join(notes))
