@@ -244,3 +244,23 @@ def test_build_takes_the_budget_overrides_and_force_names_the_failures(tmp_path)
     assert r.returncode == 0 and out.exists()
     assert "over budget: channel 'low': stopband_attenuation_db" in r.stderr and "--force" in r.stderr
     assert "OVER BUDGET" in out.read_text()
+
+
+def test_sweep_size_is_bounded_before_any_work():
+    r = coefc("sweep", EXAMPLE, "--data", "2:64", "--coef", "2:64", "--structure", "df1,tdf2")
+    assert r.returncode == 2 and r.stderr.count("\n") == 1 and "at most 4096" in r.stderr
+
+
+def test_sweep_progress_is_plain_lines_off_a_terminal_with_an_estimate_up_front(capsys, monkeypatch):
+    from coefc.cli.sweep_cmd import _progress
+
+    monkeypatch.setattr(sys.stderr, "isatty", lambda: False)
+    monkeypatch.setattr(_progress, "ESTIMATE_AFTER_S", 0.0)
+    monkeypatch.setattr(_progress, "PLAIN_EVERY_S", 0.0)
+    with _progress() as tick:
+        time.sleep(0.01)
+        for i in range(1, 4):
+            tick(i, 3)
+    lines = capsys.readouterr().err.splitlines()
+    assert lines[0].startswith("coefc: sweep: 3 evaluations, about ")
+    assert any("2 of 3 evaluated" in ln for ln in lines) and "\x1b" not in "".join(lines)

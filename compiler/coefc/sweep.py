@@ -60,6 +60,19 @@ METRICS = (
 _RANGE_RE = re.compile(r"^\s*(\d+)\s*:\s*(\d+)\s*(?::\s*(\d+)\s*)?$")
 
 
+#: Largest grid one sweep evaluates (each point is a whole check): a merge gate must
+#: finish, and 16 x 16 word lengths x a few structures stay far below it.
+MAX_SWEEP_POINTS = 4096
+#: Points of a default width range (each target's, inside its kernel's limits).
+DEFAULT_RANGE_POINTS = 5
+
+
+def grid_size(targets, structures, accs, datas, coefs) -> int:
+    """Upper bound of the configurations a sweep would evaluate, before any is resolved."""
+    n = max(1, len(targets)) * max(1, len(structures or ())) * max(1, len(accs or ()))
+    return n * len(datas or range(DEFAULT_RANGE_POINTS)) * len(coefs or range(DEFAULT_RANGE_POINTS))
+
+
 def parse_widths(text: str | None, option: str) -> tuple[int, ...] | None:
     """Parse ``"12:32"`` (inclusive), ``"12:32:4"`` (with a step) or ``"16,24,32"``.
 

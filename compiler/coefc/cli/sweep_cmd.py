@@ -55,7 +55,8 @@ def sweep(
     from ..budget import apply_overrides
     from ..errors import CoefcError
     from ..opwidths import fewest_op_widths
-    from ..sweep import Sweeper, fewest_bits as run_fewest_bits, parse_names, parse_widths, plot
+    from ..sweep import (MAX_SWEEP_POINTS, Sweeper, fewest_bits as run_fewest_bits, grid_size, parse_names,
+                         parse_widths, plot)
 
     if per_op and not fewest:
         raise CoefcError("--per-op refines --fewest-bits; give both")
@@ -77,6 +78,11 @@ def sweep(
     accs = parse_widths(acc, "--acc")
     structures = parse_names(structure)
     targets = parse_names(target) or (None,)
+    points = grid_size(targets, structures, accs, datas, coefs)
+    if points > MAX_SWEEP_POINTS:
+        raise CoefcError(f"<command line>: the sweep would evaluate up to {points} configurations; at most "
+                         f"{MAX_SWEEP_POINTS} are accepted (each is a whole check): use a step (16:32:2), fewer "
+                         "widths or --fewest-bits")
     loaded = load(file)
     desc = loaded.description
     budget = apply_overrides(desc.budget, passband_deviation_db=max_passband_deviation_db,
@@ -139,23 +145,51 @@ def sweep(
 
 
 class _progress:
-    """A rich progress bar on stderr when it is a terminal; silent otherwise."""
+    """Progress on stderr: a bar on a terminal, occasional plain lines otherwise (CI logs).
+
+    After the first evaluation, a run expected to take more than a few seconds is
+    announced with a one-line estimate (from that first evaluation's time).
+    """
+
+    ESTIMATE_AFTER_S = 5.0  # announce runs expected to take longer
+    PLAIN_EVERY_S = 30.0  # a plain progress line at most this often
 
     def __enter__(self):
-        if not sys.stderr.isatty():
-            return lambda done, total: None
-        from rich.console import Console
-        from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeRemainingColumn
+        import time
 
-        self._p = Progress("evaluating", BarColumn(), MofNCompleteColumn(), TimeRemainingColumn(),
-                           console=Console(stderr=True), transient=True)
-        self._p.start()
-        self._task = self._p.add_task("sweep", total=None)
+        self._t0 = time.monotonic()
+        self._last = self._t0
+        self._said = False
+        if sys.stderr.isatty():
+            from rich.console import Console
+            from rich.progress import BarColumn, MofNCompleteColumn, Progress, TimeRemainingColumn
+
+            self._p = Progress("evaluating", BarColumn(), MofNCompleteColumn(), TimeRemainingColumn(),
+                               console=Console(stderr=True), transient=True)
+            self._p.start()
+            self._task = self._p.add_task("sweep", total=None)
 
         def tick(done, total):
-            self._p.update(self._task, completed=done, total=total)
+            now = time.monotonic()
+            if done == 1 and not self._said and total > 1:
+                eta = (now - self._t0) * (total - 1)
+                if eta > self.ESTIMATE_AFTER_S:
+                    self._said = True
+                    self._say(f"coefc: sweep: {total} evaluations, about {eta:.0f} s more "
+                              f"(the first took {now - self._t0:.1f} s)")
+            if hasattr(self, "_p"):
+                self._p.update(self._task, completed=done, total=total)
+            elif now - self._last >= self.PLAIN_EVERY_S and done < total:
+                self._last = now
+                self._say(f"coefc: sweep: {done} of {total} evaluated, {now - self._t0:.0f} s")
 
         return tick
+
+    def _say(self, line: str) -> None:
+        if hasattr(self, "_p"):
+            self._p.console.print(line)
+        else:
+            print(line, file=sys.stderr, flush=True)
 
     def __exit__(self, *exc):
         if hasattr(self, "_p"):
