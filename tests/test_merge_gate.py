@@ -264,3 +264,10 @@ def test_sweep_progress_is_plain_lines_off_a_terminal_with_an_estimate_up_front(
     lines = capsys.readouterr().err.splitlines()
     assert lines[0].startswith("coefc: sweep: 3 evaluations, about ")
     assert any("2 of 3 evaluated" in ln for ln in lines) and "\x1b" not in "".join(lines)
+
+
+def test_float32_says_it_runs_df1ef_as_df1():
+    probe = Path(__file__).resolve().parent / "cmake_project" / "filters" / "probe_front_end.toml"
+    assert 'structure = "df1ef"' in probe.read_text()
+    r = coefc("check", probe, "--target", "float32")
+    assert "runs the description's df1ef as df1" in r.stderr

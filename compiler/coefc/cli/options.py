@@ -54,6 +54,11 @@ def realisation(file, *, channel=None, target=None, target_dir=None, **arithmeti
 
     loaded = load(file)
     real = loaded.design(channel or None).realise(target, overrides(**arithmetic), target_dir or ())
+    impl = loaded.description.implementation
+    if (real.programs and real.programs[0].arithmetic.is_float and impl.structure == "df1ef"
+            and arithmetic.get("structure") is None):
+        print(f"coefc: {file}: target '{real.target.name}' runs the description's df1ef as df1: float32 has no "
+              "fixed-point rounding residual to feed back", file=sys.stderr)
     return loaded, real
 
 
