@@ -164,7 +164,8 @@ def test_text_samples_are_plain_ascii_integers(tmp_path, content, fragment):
 def test_float32_text_samples_are_finite_and_in_range(tmp_path, value):
     (tmp_path / "in.txt").write_text(f"0.5\n{value}\n")
     r = coefc("run", EXAMPLE, tmp_path / "in.txt", tmp_path / "out.txt", "--target", "float32")
-    assert r.returncode == 2 and r.stderr.count("\n") == 1 and "in.txt:2" in r.stderr, r.stderr
+    errors = [ln for ln in r.stderr.splitlines() if ln.startswith("coefc: error")]
+    assert r.returncode == 2 and len(errors) == 1 and "in.txt:2" in errors[0], r.stderr
 
 
 def test_description_limits_refuse_before_the_work(tmp_path):
@@ -271,3 +272,19 @@ def test_float32_says_it_runs_df1ef_as_df1():
     assert 'structure = "df1ef"' in probe.read_text()
     r = coefc("check", probe, "--target", "float32")
     assert "runs the description's df1ef as df1" in r.stderr
+
+
+@pytest.mark.parametrize("name,channel,fragment", [
+    ("int32", "t", "INT32_T"),                 # would redeclare <stdint.h>'s int32_t (ISO C99 7.18.1.1)
+    ("INT32", "MIN", "INT32_MIN"),             # <stdint.h>'s limit macro (ISO C99 7.18.2.1)
+    ("size", "t", "SIZE_T"),                   # <stddef.h> (ISO C99 7.17)
+    ("coefc", "mcu32_reset", "kernel"),        # the mcu32 kernel's own function
+])
+def test_identifiers_that_would_not_compile_are_refused_by_check_and_build(tmp_path, name, channel, fragment):
+    d = tmp_path / "id.toml"
+    d.write_text(f'name = "{name}"\nsample_rate_hz = 48000\n[[channel]]\nname = "{channel}"\n'
+                 'stages = [{ kind = "gain", db = -1 }]\n')
+    for args in (("check", d), ("build", d, "-o", tmp_path / "id.h", "--reference-kernel")):
+        r = coefc(*args)
+        assert r.returncode == 2 and r.stderr.count("\n") == 1 and fragment in r.stderr, (args, r.stderr)
+    assert not (tmp_path / "id.h").exists()

@@ -56,6 +56,25 @@ C_KEYWORDS = frozenset("""
 """.split())
 
 
+def _std_names() -> frozenset:
+    """Names a header must not declare: those of <stdint.h>, <stddef.h> and <stdbool.h>
+    (ISO/IEC 9899:1999, 7.17, 7.16 and 7.18), upper-cased so that any case collides."""
+    widths = ("8", "16", "32", "64")
+    kinds = [f"{w}" for w in widths] + [f"_LEAST{w}" for w in widths] + [f"_FAST{w}" for w in widths]
+    names = {"INTMAX_T", "UINTMAX_T", "INTPTR_T", "UINTPTR_T", "SIZE_T", "PTRDIFF_T", "WCHAR_T", "WINT_T",
+             "SIG_ATOMIC_T", "MAX_ALIGN_T", "NULL", "OFFSETOF", "BOOL", "TRUE", "FALSE",
+             "INTMAX_MIN", "INTMAX_MAX", "UINTMAX_MAX", "INTPTR_MIN", "INTPTR_MAX", "UINTPTR_MAX",
+             "PTRDIFF_MIN", "PTRDIFF_MAX", "SIZE_MAX", "SIG_ATOMIC_MIN", "SIG_ATOMIC_MAX", "WCHAR_MIN",
+             "WCHAR_MAX", "WINT_MIN", "WINT_MAX", "INTMAX_C", "UINTMAX_C"}
+    for k in kinds:
+        names |= {f"INT{k}_T", f"UINT{k}_T", f"INT{k}_MIN", f"INT{k}_MAX", f"UINT{k}_MAX"}
+    names |= {f"INT{w}_C" for w in widths} | {f"UINT{w}_C" for w in widths}
+    return frozenset(names)
+
+
+STD_NAMES = _std_names()
+
+
 class EmitError(CoefcError):
     """A realised program cannot be written for the chosen target."""
 
@@ -89,8 +108,14 @@ def c_identifier(text: str, what: str, source: str) -> str:
     return ident
 
 
-def c_names(desc_name: str, channel_names, source: str) -> Names:
-    """The C names of a description and its channels; collisions raise DescriptionError."""
+def c_names(desc_name: str, channel_names, source: str, kernel_prefix: str = "") -> Names:
+    """The C names of a description and its channels; collisions raise DescriptionError.
+
+    Every identifier and macro the header makes is compared, upper-cased, with the
+    others, with the standard headers' names (:data:`STD_NAMES`: ``int32`` with a
+    channel ``t`` would declare ``int32_t``) and with the kernel's own names (anything
+    starting with *kernel_prefix*).
+    """
     name = c_identifier(desc_name, "description name", source)
     seen: dict[str, str] = {}
     chans = []
@@ -116,6 +141,13 @@ def c_names(desc_name: str, channel_names, source: str) -> Names:
                 raise DescriptionError(source, f"channel '{ch}' makes the C name '{ident}{suf}', which "
                                        f"{made[key]} also uses; rename the channel", channel=ch, key="name")
             made[key] = f"channel '{ch}'"
+    kp = kernel_prefix.upper()
+    for key, who in made.items():
+        if key in STD_NAMES or key in C_KEYWORDS or (kp and (key == kp or key.startswith(kp + "_"))):
+            what = "a name of the C standard headers" if key in STD_NAMES or key in C_KEYWORDS else \
+                f"a name of the target's kernel ({kernel_prefix}_...)"
+            raise DescriptionError(source, f"{who} makes the C name '{key}' (case ignored), which is {what}; "
+                                   "rename the description or the channel", key="name")
     return Names(name, tuple(chans))
 
 
@@ -257,7 +289,7 @@ def validate(realisation) -> tuple[BuildInfo, Names, tuple[tuple[KernelOp, ...],
                           f"writes interface {', '.join(map(str, SUPPORTED_ABI))}")
     if not programs:
         raise EmitError(f"{desc.source}: no channel to write")
-    names = c_names(desc.name, [p.name for p in programs], desc.source)
+    names = c_names(desc.name, [p.name for p in programs], desc.source, info.kernel_prefix)
     arith = programs[0].arithmetic
     if any(p.arithmetic != arith for p in programs):
         raise EmitError(f"{desc.source}: channels were realised in different arithmetic; one header holds one")
