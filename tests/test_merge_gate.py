@@ -288,3 +288,30 @@ def test_identifiers_that_would_not_compile_are_refused_by_check_and_build(tmp_p
         r = coefc(*args)
         assert r.returncode == 2 and r.stderr.count("\n") == 1 and fragment in r.stderr, (args, r.stderr)
     assert not (tmp_path / "id.h").exists()
+
+
+def _wav(channels: int, riff_size: int | None) -> bytes:
+    """A 16-bit PCM WAV (RIFF/WAVE, 'fmt ' and 'data' chunks: the Microsoft RIFF layout,
+    common practice, no source) with a chosen channel count and RIFF size."""
+    import struct
+
+    fmt = struct.pack("<HHIIHH", 1, channels, 48000, 96000 * max(channels, 1), 2 * max(channels, 1), 16)
+    data = b"\x00\x01" * 8
+    body = b"WAVE" + b"fmt " + struct.pack("<I", 16) + fmt + b"data" + struct.pack("<I", len(data)) + data
+    return b"RIFF" + struct.pack("<I", len(body) if riff_size is None else riff_size) + body
+
+
+@pytest.mark.parametrize("content,fragment", [(_wav(0, None), "0 channels"), (_wav(1, 0), "RIFF size")],
+                         ids=["zero-channels", "riff-size-0"])
+def test_damaged_wav_headers_are_bad_input(tmp_path, content, fragment):
+    (tmp_path / "in.wav").write_bytes(content)
+    r = coefc("run", EXAMPLE, tmp_path / "in.wav", tmp_path / "out.wav")
+    assert r.returncode == 2 and r.stderr.count("\n") == 1 and fragment in r.stderr, r.stderr
+
+
+def test_huge_raw_coefficients_are_bad_input(tmp_path):
+    d = tmp_path / "big.toml"
+    d.write_text('name = "x"\nsample_rate_hz = 48000\n[[channel]]\nname = "a"\n'
+                 'stages = [{ kind = "fir", taps = [1e308, 1e308, 1e308] }]\n')
+    r = coefc("check", d)
+    assert r.returncode == 2 and r.stderr.count("\n") == 1 and "1e+06" in r.stderr

@@ -66,6 +66,9 @@ def _wav_bits(path: Path, raw: bytes) -> int:
     if len(raw) < 12 or raw[:4] not in (b"RIFF", b"RIFX") or raw[8:12] != b"WAVE":
         raise DataError(f"{path}: not a WAV file (no RIFF/WAVE header); give a PCM .wav or a .txt file")
     end = "<" if raw[:4] == b"RIFF" else ">"
+    if struct.unpack(end + "I", raw[4:8])[0] < 4:
+        raise DataError(f"{path}: WAV header gives a RIFF size of {struct.unpack(end + 'I', raw[4:8])[0]} bytes; "
+                        "the file is damaged: export it again")
     pos = 12
     bits = None
     has_data = False
@@ -77,6 +80,10 @@ def _wav_bits(path: Path, raw: bytes) -> int:
                 raise DataError(f"{path}: WAV 'fmt ' chunk is cut short ({len(body)} of at least 16 bytes); "
                                 "the file is damaged or truncated: export it again")
             bits = struct.unpack(end + "H", body[14:16])[0]
+            channels = struct.unpack(end + "H", body[2:4])[0]
+            if channels == 0:
+                raise DataError(f"{path}: WAV 'fmt ' chunk says 0 channels; the file is damaged: export it again "
+                                "as mono PCM WAV")
         elif cid == b"data":
             has_data = True
             if len(body) < size:
@@ -122,7 +129,7 @@ def read_samples(path, arithmetic: Arithmetic, sample_rate_hz: float | None = No
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", wavfile.WavFileWarning)
             rate, data = wavfile.read(io.BytesIO(raw))
-    except (ValueError, EOFError, OSError, struct.error) as e:
+    except Exception as e:  # scipy's parser on a damaged file: any failure is bad input
         raise DataError(f"{path}: unreadable WAV ({e}); give 16/24/32-bit integer or float PCM WAV") from None
     if data.ndim == 2 and data.shape[1] == 1:
         data = data[:, 0]

@@ -124,6 +124,7 @@ WEIGHTINGS = ("A", "C")
 MAX_IIR_ORDER = 40
 MAX_FIR_TAPS = 8191
 MAX_DELAY_SAMPLES = 1 << 20
+MAX_COEFFICIENT = 1e6  # raw coefficients (sos, transfer, fir): 120 dB of gain in one coefficient
 #: Bounds on the work one description can ask for (a merge gate must finish): the
 #: file itself, and per channel the totals after design.  Each is far above what
 #: a product needs (the bundled examples use a few percent of each).
@@ -258,6 +259,9 @@ def _number_list(min_len: int = 1, max_len: int | None = None):
                 raise where.fail(f"item {i + 1} is {_type_name(x)}; every item must be a number")
             if not math.isfinite(float(x)):
                 raise where.fail(f"item {i + 1} is {x}; every item must be a finite number")
+            if abs(float(x)) > MAX_COEFFICIENT:
+                raise where.fail(f"item {i + 1} is {x}; coefficients up to {MAX_COEFFICIENT:g} in magnitude are "
+                                 "accepted (scale the filter: a gain stage states the level)")
             out.append(float(x))
         return tuple(out)
 
