@@ -123,6 +123,7 @@ WEIGHTINGS = ("A", "C")
 #: realisation is sensible and the float design itself loses accuracy).
 MAX_IIR_ORDER = 40
 MAX_FIR_TAPS = 8191
+MAX_LS_TAPS = 4095  # least squares solves an N x N system (8191 taps: 0.8 GB)
 MAX_DELAY_SAMPLES = 1 << 20
 MAX_COEFFICIENT = 1e6  # raw coefficients (sos, transfer, fir): 120 dB of gain in one coefficient
 #: Bounds on the work one description can ask for (a merge gate must finish): the

@@ -56,7 +56,7 @@ import warnings
 import numpy as np
 
 from ..blocks import FirBlock
-from ..spec import MAX_FIR_TAPS
+from ..spec import MAX_FIR_TAPS, MAX_LS_TAPS
 from .stage import StageContext, StageResult
 
 #: Tap counts above which a requirement is reported as needing a very long filter.
@@ -215,6 +215,9 @@ def design_fir(ctx: StageContext) -> StageResult:
                             f"has a zero at Nyquist); use {given + 1}", "taps")
         if method == "least-squares" and given % 2 == 0:
             raise ctx.error(f"least-squares designs have an odd number of taps; use {given + 1}", "taps")
+        if method == "least-squares" and given > MAX_LS_TAPS:
+            raise ctx.error(f"least-squares designs take at most {MAX_LS_TAPS} taps (the solve grows as the "
+                            "square of the length); use fewer taps or method = \"kaiser\"", "taps")
         if given < 3:
             raise ctx.error("use at least 3 taps", "taps")
     edges, desired, passbands = _bands(band, wp, ws, nyq)
@@ -295,6 +298,8 @@ def design_fir(ctx: StageContext) -> StageResult:
                 try:
                     if method == "equiripple":
                         h = signal.remez(n_taps, design_edges, desired, weight=weights, fs=fs, maxiter=50)
+                    elif n_taps > MAX_LS_TAPS:  # firls solves an N x N system: memory grows as N^2
+                        raise ValueError(f"least squares is limited to {MAX_LS_TAPS} taps")
                     else:
                         pairs = [g for d in desired for g in (d, d)]
                         h = signal.firls(n_taps, design_edges, pairs, weight=weights, fs=fs)
