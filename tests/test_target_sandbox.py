@@ -18,7 +18,8 @@ from conftest import REPO
 
 MAIN = "from coefc.cli import main; main()"
 # one Butterworth section: the refusals are about the target, so the filter stays small
-SMALL = ('name = "probe"\nsample_rate_hz = 48000\n[[channel]]\nname = "main"\n'
+SMALL = ('name = "probe"\nsample_rate_hz = 48000\n[implementation]\nstructure = "df1ef"\n'
+         '[[channel]]\nname = "main"\n'
          'stages = [{ kind = "lowpass", response = "butterworth", order = 2, cutoff_hz = 1000 }]\n')
 
 
@@ -41,7 +42,7 @@ def _build_refused(tmp_path, *fragments):
     out.mkdir(exist_ok=True)
     desc = tmp_path / "probe.toml"
     desc.write_text(SMALL)
-    r = coefc("build", desc, "--force", "--target-dir", tmp_path / "targets", "--target", "board", "--reference-kernel",
+    r = coefc("build", desc, "--target-dir", tmp_path / "targets", "--target", "board", "--reference-kernel",
               "-o", out / "f.h")
     assert r.returncode == 2, r.stdout + r.stderr
     assert r.stderr.count("\n") == 1 and "Traceback" not in r.stderr
@@ -83,7 +84,7 @@ def test_kernel_output_names_must_be_c_files(tmp_path):
 def test_template_cannot_bypass_strict_undefined_with_get(tmp_path):
     board = _board(tmp_path)
     tpl = board / "templates" / "header.h.j2"
-    tpl.write_text("{{ arith.get('no_such_value') }}\n" + tpl.read_text())
+    tpl.write_text("{{ arithmetic.get('no_such_value') }}\n" + tpl.read_text())
     _build_refused(tmp_path)
 
 
