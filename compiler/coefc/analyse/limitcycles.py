@@ -67,7 +67,7 @@ import numpy as np
 from ..program import Arithmetic, ChannelProgram, SectionOp
 from ..qformat import fit_word, round_shift
 
-MAX_STATES = 1 << 21
+MAX_STATES = 1 << 24  # exhaustive granular search up to this many candidate states (compiled: ~0.5 s at the limit)
 MAX_WHOLE_STATES = 1 << 22  # exhaustive search of the whole zero-input map up to this many states
 
 
@@ -319,8 +319,41 @@ def _count_candidates(B: int, D: int, S: int, order: int, cap: int) -> int:
     return total
 
 
-def cycle_states(a1: int, a2: int, k: int, arith: Arithmetic, B: int, D: int, S: int, order: int):
+def _engine_fits(a1: int, a2: int, k: int, arith: Arithmetic) -> bool:
+    """Can the compiled core run this section's zero-input map (same integers as the numpy steps)?"""
+    return (_zero_input_engine() is not None and arith.acc_bits <= 64 and 1 <= k <= 62
+            and -(1 << 63) <= a1 < 1 << 63 and -(1 << 63) <= a2 < 1 << 63)
+
+
+def cycle_states(a1: int, a2: int, k: int, arith: Arithmetic, B: int, D: int, S: int, order: int, *,
+                 engine: bool = True):
     """Every nonzero state on a zero-input cycle inside the candidate region (exact).
+
+    The states are returned in the order of ``(y1, y2)``.  The zero-input map
+    restricted to the region is a function on a finite set (a state whose image
+    leaves the region has no successor); the compiled core visits every state once
+    and marks those on cycles (functional-graph cycle detection: follow unvisited
+    states until the walk meets its own path, a cycle, or an earlier walk or the
+    region's edge, no cycle).  Without it (``engine=False``, accumulators over 64
+    bits), :func:`cycle_states_numpy`.
+
+    References
+    ----------
+    D. E. Knuth, *The Art of Computer Programming*, vol. 2, 3rd ed., sec. 3.1,
+    exercise 6 (every path of a function on a finite set ends in a cycle).
+    """
+    from ..simulate import _OVF_CODE, _ROUND_CODE, _engine
+
+    if engine and _engine_fits(a1, a2, k, arith) and hasattr(_engine, "cycle_region"):
+        b1, b2, _ = _engine.cycle_region(int(a1), int(a2) if order == 2 else 0, int(k), arith.acc_bits,
+                                         _ROUND_CODE[arith.rounding], _OVF_CODE[arith.overflow], arith.data.width,
+                                         int(B), int(D), int(S), int(order == 2))
+        return np.frombuffer(b1, dtype=np.int64).copy(), np.frombuffer(b2, dtype=np.int64).copy()
+    return cycle_states_numpy(a1, a2, k, arith, B, D, S, order)
+
+
+def cycle_states_numpy(a1: int, a2: int, k: int, arith: Arithmetic, B: int, D: int, S: int, order: int):
+    """:func:`cycle_states` in numpy (the reference, and the path for accumulators over 64 bits).
 
     The candidate set ``C`` contains every cycle; iterate ``C <- f(C) & region``
     until its size stops changing; then ``f`` maps ``C`` onto itself and every
@@ -814,7 +847,49 @@ def overflow_reach(a1: int, a2: int, k: int, arith: Arithmetic, order: int, ef: 
 
 
 def whole_space_cycles(a1: int, a2: int, k: int, arith: Arithmetic, order: int, ef: bool = False,
-                       max_states: int = MAX_WHOLE_STATES) -> dict | None:
+                       max_states: int = MAX_WHOLE_STATES, *, engine: bool = True) -> dict | None:
+    """Every cycle of the zero-input map over the whole state space, exactly; ``None`` if too large.
+
+    The states are ``(y1, y2)`` over the data-word box (``y1`` alone for a first-order
+    section) and, for ``df1ef``, every residual ``E`` of the rounding mode.  The
+    compiled core visits every state once (functional-graph cycle detection, as in
+    :func:`cycle_states`) and sorts the cycles into those that pass through an
+    overflow (``fit_data`` or the accumulator wrap changed a value on the way) and
+    those that do not; without it, :func:`whole_space_cycles_numpy` (same result).
+    Returns ``{"states", "granular", "overflow"}`` with, for each kind, ``None`` or the
+    largest cycle's ``amplitude_lsb``, ``period`` and ``start_state`` (ties: the cycle,
+    then the state, of smallest index ``((y1 - lo) 2^W + (y2 - lo)) ne + (E - Elo)``).
+
+    References
+    ----------
+    D. E. Knuth, *The Art of Computer Programming*, vol. 2, 3rd ed., sec. 3.1, exercise 6.
+    """
+    from ..simulate import _OVF_CODE, _ROUND_CODE, _engine
+
+    W = arith.data.width
+    ny = 1 << W
+    elo, ehi = _residual_range(k, arith.rounding) if ef else (0, 0)
+    ne = ehi - elo + 1
+    n = ny ** order * ne
+    if (n > max_states or arith.acc_bits > 64 or (ef and k < 1) or k > 62
+            or (abs(a1) + abs(a2)) * ny + 2 * ne >= 1 << 62):
+        return None
+    if not (engine and _engine_fits(a1, a2, k, arith) and hasattr(_engine, "whole_cycles") and W <= 30):
+        return whole_space_cycles_numpy(a1, a2, k, arith, order, ef, max_states)
+    got = _engine.whole_cycles(int(a1), int(a2) if order == 2 else 0, int(k), arith.acc_bits,
+                               _ROUND_CODE[arith.rounding], _OVF_CODE[arith.overflow], W, int(order == 2),
+                               int(bool(ef)), int(elo), int(ehi), int(max_states))
+    out = {"states": got[0], "granular": None, "overflow": None}
+    for kind, hit in (("granular", got[1]), ("overflow", got[2])):
+        if hit is not None:
+            amp, per, y1, y2, e = hit
+            out[kind] = dict(amplitude_lsb=int(amp), period=int(per),
+                             start_state=(int(y1), int(y2)) + ((int(e),) if ef else ()))
+    return out
+
+
+def whole_space_cycles_numpy(a1: int, a2: int, k: int, arith: Arithmetic, order: int, ef: bool = False,
+                             max_states: int = MAX_WHOLE_STATES) -> dict | None:
     """Every cycle of the zero-input map over the whole state space, exactly; ``None`` if too large.
 
     The states are ``(y1, y2)`` over the data-word box (``y1`` alone for a first-order
