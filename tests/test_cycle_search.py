@@ -181,3 +181,27 @@ def test_the_default_limit_searches_more_than_two_to_the_21_states():
         for _ in range(res.period):
             s = (ref_step(s[0], s[1], A1, A2, fc, 24, 56, "add-half", "saturate"), s[0])
         assert s == res.start_state
+
+
+@pytest.mark.parametrize("ef", [False, True])
+def test_compiled_walk_matches_the_python_walk(ef):
+    # Brent's cycle detection in the compiled core against the dictionary walk: same period, amplitude and
+    # cycle states from the same first state, and the same "no cycle within the limit".
+    rng = np.random.default_rng(7 + ef)
+    for _ in range(150):
+        width, fc = int(rng.integers(5, 17)), int(rng.integers(3, 15))
+        mode, ovf = str(rng.choice(ROUNDINGS)), str(rng.choice(["saturate", "wrap"]))
+        ar = arith(width, fc, mode, ovf, int(rng.choice([12, 20, 32, 64])))
+        r, t = rng.uniform(0.8, 1.01), rng.uniform(0, math.pi)
+        A1, A2 = round(-2 * r * math.cos(t) * 2 ** fc), round(r * r * 2 ** fc)
+        hi = (1 << (width - 1)) - 1
+        y1, y2 = (int(v) for v in rng.integers(-hi - 1, hi + 1, 2))
+        limit = int(rng.choice([8, 64, 4096]))
+        if ef:
+            lo_e, hi_e = L._residual_range(fc, mode)
+            e = int(rng.integers(lo_e, hi_e + 1))
+            assert L._walk_ef(y1, y2, e, A1, A2, fc, ar, limit) == \
+                L._walk_ef_python(y1, y2, e, A1, A2, fc, ar, limit), (A1, A2, fc, width, mode, ovf, y1, y2, e, limit)
+        else:
+            assert L._walk(y1, y2, A1, A2, fc, ar, limit) == L._walk_python(y1, y2, A1, A2, fc, ar, limit), \
+                (A1, A2, fc, width, mode, ovf, y1, y2, limit)

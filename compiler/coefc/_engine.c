@@ -16,6 +16,7 @@
  *       limit-cycle searches of coefc.analyse.limitcycles)
  *   cycle_region / whole_cycles: exhaustive zero-input cycle searches (every state
  *       of a candidate region, or of the whole state space, visited once)
+ *   walk: the cycle one zero-input state runs into (Brent's cycle detection)
  *
  * The arithmetic is the one stated in the docstring of coefc/program.py.
  * Accumulators: products of two words (together at most 64 bits wide, so every
@@ -840,6 +841,57 @@ static PyObject *py_whole_cycles(PyObject *self, PyObject *args)
     return Py_BuildValue("LNN", (long long)n, g, o);
 }
 
+/* walk(y1, y2, E, A1, A2, k, acc_bits, rounding, overflow, width, ef, limit) -> None or bytes
+ *
+ * Follow one state (y1, y2, E) of the zero-input map, y2 taking the old y1 (E stays 0
+ * unless ef), until a state repeats.  Returns the states of the cycle reached, from
+ * the first one the walk meets, as native int64 triples (y1, y2, E); None when the
+ * walk has not closed within `limit` distinct states (tail plus period >= limit).
+ * Brent's cycle detection: no memory beyond two states. */
+static PyObject *py_walk(PyObject *self, PyObject *args)
+{
+    long long y1, y2, e, a1, a2, limit;
+    int k, acc_bits, rounding, overflow, width, ef;
+    if (!PyArg_ParseTuple(args, "LLLLLiiiiiiL", &y1, &y2, &e, &a1, &a2, &k, &acc_bits, &rounding, &overflow, &width,
+                          &ef, &limit))
+        return NULL;
+    arith_t ar;
+    if (arith_init(&ar, k, acc_bits, rounding, overflow, width) < 0) return NULL;
+    const uint64_t ua1 = (uint64_t)a1, ua2 = (uint64_t)a2;
+    int64_t acc, v;
+    uint64_t u;
+#define WK_STEP(p) do { int64_t n_ = zi_step((p)[0], (p)[1], (p)[2], ua1, ua2, &ar, &acc, &v, &u); \
+        (p)[2] = ef ? (int64_t)((uint64_t)acc - ((uint64_t)v << k)) : 0; (p)[1] = (p)[0]; (p)[0] = n_; } while (0)
+#define WK_EQ(p, q) ((p)[0] == (q)[0] && (p)[1] == (q)[1] && (p)[2] == (q)[2])
+    int64_t x0[3] = {y1, y2, ef ? e : 0}, t[3], h[3];
+    int64_t power = 1, lam = 1, steps = 1, mu = 0, cap = 4 * (limit > 0 ? limit : 0) + 8;
+    int closed = 1;
+    memcpy(t, x0, sizeof t); memcpy(h, x0, sizeof h);
+    Py_BEGIN_ALLOW_THREADS
+    WK_STEP(h);
+    while (!WK_EQ(t, h)) {
+        if (power == lam) { memcpy(t, h, sizeof t); power *= 2; lam = 0; }
+        WK_STEP(h);
+        lam++;
+        if (++steps > cap) { closed = 0; break; }
+    }
+    if (closed) {
+        memcpy(t, x0, sizeof t); memcpy(h, x0, sizeof h);
+        for (int64_t i = 0; i < lam; i++) WK_STEP(h);
+        while (!WK_EQ(t, h)) { WK_STEP(t); WK_STEP(h); mu++; }
+    }
+    Py_END_ALLOW_THREADS
+    if (!closed || mu + lam >= limit) Py_RETURN_NONE;
+    int64_t *out = PyMem_Malloc(sizeof(int64_t) * 3 * lam);
+    if (!out) return PyErr_NoMemory();
+    for (int64_t i = 0; i < lam; i++) { memcpy(out + 3 * i, t, sizeof t); WK_STEP(t); }
+#undef WK_STEP
+#undef WK_EQ
+    PyObject *r = PyBytes_FromStringAndSize((const char *)out, (Py_ssize_t)(24 * lam));
+    PyMem_Free(out);
+    return r;
+}
+
 /* ------------------------------------------------------------ float32 ops */
 
 static PyObject *py_sos_f32(PyObject *self, PyObject *args)
@@ -938,6 +990,9 @@ static PyMethodDef engine_methods[] = {
     {"whole_cycles", py_whole_cycles, METH_VARARGS,
      "whole_cycles(A1, A2, k, acc_bits, rounding, overflow, data_width, order2, ef, elo, ehi, max_states)\n"
      "-> (n, granular, overflow), each None or (amplitude, period, y1, y2, E); None when n > max_states."},
+    {"walk", py_walk, METH_VARARGS,
+     "walk(y1, y2, E, A1, A2, k, acc_bits, rounding, overflow, data_width, ef, limit) -> None or the cycle\n"
+     "reached from one zero-input state, as int64 triples (y1, y2, E), from the first cycle state met."},
     {NULL, NULL, 0, NULL}};
 
 static struct PyModuleDef engine_module = {

@@ -385,8 +385,44 @@ def step_int(y1: int, y2: int, a1: int, a2: int, k: int, arith: Arithmetic) -> i
     return fit_word(round_shift(acc, k, arith.rounding), arith.data.width, arith.overflow)
 
 
+def _compiled_walk(y1, y2, e, a1, a2, k, arith, limit, ef):
+    """The cycle from one state by the compiled core (Brent's method), ``False`` when it cannot run.
+
+    ``None`` when the walk does not close within *limit* distinct states, else the
+    cycle's states from the first one met, as in :func:`_walk` / :func:`_walk_ef`.
+
+    References
+    ----------
+    R. P. Brent, "An improved Monte Carlo factorization algorithm", BIT 20(2), 1980
+    (the cycle-finding method, sec. 2).
+    """
+    from ..simulate import _OVF_CODE, _ROUND_CODE, _engine
+
+    lim = 1 << 62
+    if not (_engine_fits(a1, a2, k, arith) and hasattr(_engine, "walk")
+            and all(-lim <= int(v) < lim for v in (y1, y2, e))):
+        return False
+    got = _engine.walk(int(y1), int(y2), int(e), int(a1), int(a2), int(k), arith.acc_bits,
+                       _ROUND_CODE[arith.rounding], _OVF_CODE[arith.overflow], arith.data.width, int(bool(ef)),
+                       int(limit))
+    if got is None:
+        return None
+    t = np.frombuffer(got, dtype=np.int64).reshape(-1, 3).tolist()
+    return [tuple(p) for p in t] if ef else [(p[0], p[1]) for p in t]
+
+
 def _walk(y1: int, y2: int, a1: int, a2: int, k: int, arith: Arithmetic, limit: int = 1 << 16):
     """Follow a state until it repeats: (period, amplitude, states on the cycle)."""
+    cyc = _compiled_walk(y1, y2, 0, a1, a2, k, arith, limit, False)
+    if cyc is None:
+        return None, None, []
+    if cyc:
+        return len(cyc), max(max(abs(p[0]), abs(p[1])) for p in cyc), cyc
+    return _walk_python(y1, y2, a1, a2, k, arith, limit)
+
+
+def _walk_python(y1: int, y2: int, a1: int, a2: int, k: int, arith: Arithmetic, limit: int = 1 << 16):
+    """:func:`_walk` in Python integers (the reference)."""
     seen = {}
     path = []
     s = (int(y1), int(y2))
@@ -766,6 +802,17 @@ def zero_input_step_ef(y1, y2, e, a1: int, a2: int, k: int, arith: Arithmetic):
 
 
 def _walk_ef(y1, y2, e, a1, a2, k, arith, limit):
+    """Follow a df1ef state until it repeats: (period, amplitude, states on the cycle)."""
+    cyc = _compiled_walk(y1, y2, e, a1, a2, k, arith, limit, True)
+    if cyc is None:
+        return None, None, []
+    if cyc:
+        return len(cyc), max(abs(p[0]) for p in cyc), cyc
+    return _walk_ef_python(y1, y2, e, a1, a2, k, arith, limit)
+
+
+def _walk_ef_python(y1, y2, e, a1, a2, k, arith, limit):
+    """:func:`_walk_ef` in Python integers (the reference)."""
     seen, path = {}, []
     s = (y1, y2, e)
     for i in range(limit):
