@@ -1125,7 +1125,7 @@ def _at_output(program: ChannelProgram, res: SectionLimitCycles) -> dict:
     section's bound times the l1 gain of the later operations (realised
     coefficients) plus the worst-case roundoff of the later operations themselves.
     """
-    from .linear import _run, noise_impulse, op_models, pole_radius, response_length
+    from .linear import noise_impulse, op_models, pole_radius, response_length, tail_impulse
 
     rest = program.ops[res.op_index + 1:]
     if not rest:
@@ -1140,12 +1140,12 @@ def _at_output(program: ChannelProgram, res: SectionLimitCycles) -> dict:
     if not stable_rest:
         notes.append("a later operation is not stable: no bound at the channel output")
     if res.bound_lsb is not None and stable_rest:
-        h = np.zeros(n)
-        h[0] = 1.0
-        for m in tail:
-            h = _run(m.b, m.a, h)
+        # the program's own response length (at least the tail's when the program is stable), so that
+        # every section and the noise analysis share one set of responses (coefc.analyse.linear)
+        nb = max(n, response_length(models))
+        h = tail_impulse(models, res.op_index + 1, nb)
         c, r = error_interval(ar.rounding)
-        rnd = sum((abs(c) + r) * float(np.sum(np.abs(noise_impulse(models, j, n))))
+        rnd = sum((abs(c) + r) * float(np.sum(np.abs(noise_impulse(models, j, nb))))
                   for j in range(res.op_index + 1, len(models)) if models[j].k > 0)
         if np.all(np.isfinite(h)) and np.isfinite(rnd):
             bound = (res.bound_lsb * float(np.sum(np.abs(h))) + rnd) * (1 + 1e-9)  # l1 sums of decayed tails
