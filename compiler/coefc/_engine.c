@@ -621,17 +621,31 @@ static inline int64_t zi_step(int64_t y1, int64_t y2, int64_t e, uint64_t ua1, u
  * [lo, hi] (second order: |y2| <= B, |y1 - y2| <= D, |y1 + y2| <= S; first order:
  * y2 = 0 only); states numbered row by row, so in the order of (y1, y2). */
 typedef struct {
-    int64_t B;
-    int64_t *lo, *hi, *start; /* 2B+1 rows; start: first index of each row */
+    int64_t B, D, S;
+    int order2;
+    int64_t *start; /* 2B+2 entries: the first index of each row, then the number of states */
     int64_t n;
 } region_t;
 
+/* the y2 range [*lo, *hi] of row y1 (empty: *hi < *lo) */
+static inline void region_row(const region_t *R, int64_t y1, int64_t *lo, int64_t *hi)
+{
+    if (!R->order2) { *lo = *hi = 0; return; }
+    int64_t l = -R->B, h = R->B;
+    if (y1 - R->D > l) l = y1 - R->D;
+    if (-R->S - y1 > l) l = -R->S - y1;
+    if (y1 + R->D < h) h = y1 + R->D;
+    if (R->S - y1 < h) h = R->S - y1;
+    *lo = l; *hi = h;
+}
+
 static inline int64_t region_index(const region_t *R, int64_t y1, int64_t y2)
 {
+    int64_t lo, hi;
     if (y1 < -R->B || y1 > R->B) return -1;
-    int64_t r = y1 + R->B;
-    if (y2 < R->lo[r] || y2 > R->hi[r]) return -1;
-    return R->start[r] + (y2 - R->lo[r]);
+    region_row(R, y1, &lo, &hi);
+    if (y2 < lo || y2 > hi) return -1;
+    return R->start[y1 + R->B] + (y2 - lo);
 }
 
 /* cycle_region(A1, A2, k, acc_bits, rounding, overflow, width, B, D, S, order2) -> (y1 bytes, y2 bytes, n)
@@ -643,7 +657,9 @@ static inline int64_t region_index(const region_t *R, int64_t y1, int64_t y2)
  * visited once: follow unvisited states, marking them "on the path"; a walk that
  * meets its own path has found a cycle (marked "on a cycle" by going round it once);
  * a walk that leaves the region or meets an earlier walk's state has not; then the
- * path is walked again and marked "done".  One byte of mark per state. */
+ * path is walked again and marked "done".  One byte of mark per state, plus one
+ * int64 per row (2B + 1 rows, never more than the states: every row is nonempty
+ * when B <= (D + S) / 2, as the caller makes it). */
 static PyObject *py_cycle_region(PyObject *self, PyObject *args)
 {
     long long a1, a2, B, D, S;
@@ -658,28 +674,21 @@ static PyObject *py_cycle_region(PyObject *self, PyObject *args)
         return NULL;
     }
     region_t R;
-    R.B = B;
+    R.B = B; R.D = D; R.S = S; R.order2 = order2;
     int64_t rows = 2 * B + 1;
-    R.lo = PyMem_Malloc(sizeof(int64_t) * rows);
-    R.hi = PyMem_Malloc(sizeof(int64_t) * rows);
-    R.start = PyMem_Malloc(sizeof(int64_t) * rows);
+    R.start = PyMem_Malloc(sizeof(int64_t) * (rows + 1));
     uint8_t *mark = NULL;
     int64_t *o1 = NULL, *o2 = NULL;
     PyObject *result = NULL;
-    if (!R.lo || !R.hi || !R.start) { PyErr_NoMemory(); goto done; }
+    if (!R.start) { PyErr_NoMemory(); goto done; }
     R.n = 0;
     for (int64_t r = 0; r < rows; r++) {
-        int64_t y1 = r - B, lo, hi;
-        if (order2) {
-            lo = -B; if (y1 - D > lo) lo = y1 - D; if (-S - y1 > lo) lo = -S - y1;
-            hi = B; if (y1 + D < hi) hi = y1 + D; if (S - y1 < hi) hi = S - y1;
-        } else {
-            lo = hi = 0;
-        }
-        if (hi < lo) { lo = 1; hi = 0; }
-        R.lo[r] = lo; R.hi[r] = hi; R.start[r] = R.n;
-        R.n += hi - lo + 1;
+        int64_t lo, hi;
+        region_row(&R, r - B, &lo, &hi);
+        R.start[r] = R.n;
+        if (hi >= lo) R.n += hi - lo + 1;
     }
+    R.start[rows] = R.n;
     if (R.n > (INT64_C(1) << 34)) { PyErr_SetString(PyExc_ValueError, "engine: cycle_region too many states"); goto done; }
     mark = PyMem_Calloc(R.n ? (size_t)R.n : 1, 1);
     if (!mark) { PyErr_NoMemory(); goto done; }
@@ -689,9 +698,10 @@ static PyObject *py_cycle_region(PyObject *self, PyObject *args)
     uint64_t u;
     Py_BEGIN_ALLOW_THREADS
     for (int64_t r = 0; r < rows; r++) {
-        int64_t y1s = r - B;
-        for (int64_t y2s = R.lo[r]; y2s <= R.hi[r]; y2s++) {
-            int64_t s = R.start[r] + (y2s - R.lo[r]);
+        int64_t y1s = r - B, rlo, rhi;
+        region_row(&R, y1s, &rlo, &rhi);
+        for (int64_t y2s = rlo; y2s <= rhi; y2s++) {
+            int64_t s = R.start[r] + (y2s - rlo);
             if (mark[s]) continue;
             /* walk */
             int64_t c = s, c1 = y1s, c2 = y2s, nx, n1, n2;
@@ -731,14 +741,17 @@ static PyObject *py_cycle_region(PyObject *self, PyObject *args)
     if (!o1 || !o2) { PyErr_NoMemory(); goto done; }
     {
         int64_t j = 0;
-        for (int64_t r = 0; r < rows; r++)
-            for (int64_t y2 = R.lo[r]; y2 <= R.hi[r]; y2++)
-                if (mark[R.start[r] + (y2 - R.lo[r])] == 3 && (r != B || y2 != 0)) { o1[j] = r - B; o2[j] = y2; j++; }
+        for (int64_t r = 0; r < rows; r++) {
+            int64_t rlo, rhi;
+            region_row(&R, r - B, &rlo, &rhi);
+            for (int64_t y2 = rlo; y2 <= rhi; y2++)
+                if (mark[R.start[r] + (y2 - rlo)] == 3 && (r != B || y2 != 0)) { o1[j] = r - B; o2[j] = y2; j++; }
+        }
     }
     result = Py_BuildValue("y#y#L", (const char *)o1, (Py_ssize_t)(found * 8), (const char *)o2,
                            (Py_ssize_t)(found * 8), (long long)R.n);
 done:
-    PyMem_Free(R.lo); PyMem_Free(R.hi); PyMem_Free(R.start);
+    PyMem_Free(R.start);
     PyMem_Free(mark); PyMem_Free(o1); PyMem_Free(o2);
     return result;
 }

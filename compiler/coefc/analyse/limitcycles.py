@@ -11,9 +11,11 @@ Granular limit cycles (zero-input, rounding)
     ``|y| <= e_max ||h||_1`` -- a rigorous bound (the linear model with bounded
     error).  The same argument bounds the linear combinations ``y[n-1] - y[n-2]``
     and ``y[n-1] + y[n-2]``; every state inside these bounds is then searched
-    exhaustively when there are at most ``max_states`` of them: the set of
-    candidate states is mapped through the exact integer recursion until it stops
-    shrinking, and what remains is exactly the set of states on cycles.  Verdicts:
+    exhaustively when there are at most ``max_states`` of them: the zero-input map
+    restricted to these states is a function on a finite set, and the compiled core
+    visits every state once and marks those on cycles (functional-graph cycle
+    detection; numpy reference: map the candidate set until it stops shrinking,
+    what remains is exactly the set of states on cycles).  Verdicts:
     ``none`` (proven), ``found`` (period, amplitude in LSB, a starting state that
     reproduces it) or ``unproven`` (the bound; a sampled search may still find
     cycles, reported with ``exhaustive = False``).
@@ -30,8 +32,9 @@ Overflow oscillations (zero-input, large states)
     1969) is the exact-arithmetic form of this test; it misses the quantiser's
     reach, which can lift a sum just below full scale to +full scale, where
     ``wrap`` turns it into -full scale.  (b) Otherwise, when the state space is
-    small enough (``MAX_WHOLE_STATES``), every state is mapped once and the cycles
-    of the whole map are found exactly (pointer doubling); a cycle that passes
+    small enough (``MAX_WHOLE_STATES``), every state is visited once and the cycles
+    of the whole map are found exactly (compiled core; numpy reference: pointer
+    doubling); a cycle that passes
     through an overflow (``fit_data`` or the accumulator changed a value) is an
     overflow oscillation.  Otherwise the verdict is ``unproven`` with the reason,
     and zero-input runs from full-scale corner states and random large states
