@@ -14,6 +14,9 @@
  *   zero_input(y1, y2, e, big, A1, A2, k, ...): the zero-input recursion of one
  *       section on many states at once (the overflow-oscillation and sampled
  *       limit-cycle searches of coefc.analyse.limitcycles)
+ *   cycle_region / whole_cycles: exhaustive zero-input cycle searches (every state
+ *       of a candidate region, or of the whole state space, visited once)
+ *   walk: the cycle one zero-input state runs into (Brent's cycle detection)
  *
  * The arithmetic is the one stated in the docstring of coefc/program.py.
  * Accumulators: products of two words (together at most 64 bits wide, so every
@@ -597,6 +600,311 @@ static PyObject *py_zero_input(PyObject *self, PyObject *args)
     return PyLong_FromSsize_t(i);
 }
 
+/* ------------------------------------------------------------ exhaustive cycle searches */
+
+/* One zero-input step of the integer map (the arithmetic of py_zero_input):
+ * u = -A1*y1 - A2*y2 (+ E) modulo 2^64, acc = the low acc_bits of u, v = round_shift(acc, k),
+ * y = fit_data(v); *acc_out and *v_out receive acc and v. */
+static inline int64_t zi_step(int64_t y1, int64_t y2, int64_t e, uint64_t ua1, uint64_t ua2, const arith_t *ar,
+                              int64_t *acc_out, int64_t *v_out, uint64_t *u_out)
+{
+    uint64_t u = (uint64_t)0 - ua1 * (uint64_t)y1 - ua2 * (uint64_t)y2 + (uint64_t)e;
+    int64_t acc = sext(u, ar->acc_bits);
+    int64_t v = rshift(acc, ar);
+    int64_t y = v;
+    if (y > ar->hi || y < ar->lo) y = ar->overflow == 0 ? (y > ar->hi ? ar->hi : ar->lo) : sext((uint64_t)y, ar->width);
+    *acc_out = acc; *v_out = v; *u_out = u;
+    return y;
+}
+
+/* The candidate region of cycle_region: rows y1 = -B..B, in each row the y2 of
+ * [lo, hi] (second order: |y2| <= B, |y1 - y2| <= D, |y1 + y2| <= S; first order:
+ * y2 = 0 only); states numbered row by row, so in the order of (y1, y2). */
+typedef struct {
+    int64_t B, D, S;
+    int order2;
+    int64_t *start; /* 2B+2 entries: the first index of each row, then the number of states */
+    int64_t n;
+} region_t;
+
+/* the y2 range [*lo, *hi] of row y1 (empty: *hi < *lo) */
+static inline void region_row(const region_t *R, int64_t y1, int64_t *lo, int64_t *hi)
+{
+    if (!R->order2) { *lo = *hi = 0; return; }
+    int64_t l = -R->B, h = R->B;
+    if (y1 - R->D > l) l = y1 - R->D;
+    if (-R->S - y1 > l) l = -R->S - y1;
+    if (y1 + R->D < h) h = y1 + R->D;
+    if (R->S - y1 < h) h = R->S - y1;
+    *lo = l; *hi = h;
+}
+
+static inline int64_t region_index(const region_t *R, int64_t y1, int64_t y2)
+{
+    int64_t lo, hi;
+    if (y1 < -R->B || y1 > R->B) return -1;
+    region_row(R, y1, &lo, &hi);
+    if (y2 < lo || y2 > hi) return -1;
+    return R->start[y1 + R->B] + (y2 - lo);
+}
+
+/* cycle_region(A1, A2, k, acc_bits, rounding, overflow, width, B, D, S, order2) -> (y1 bytes, y2 bytes, n)
+ *
+ * Every nonzero state on a zero-input cycle that stays inside the candidate region,
+ * in the order of (y1, y2), as native int64 bytes; n is the number of candidate
+ * states.  The zero-input map restricted to the region is a function on a finite
+ * set (a state whose image leaves the region has no successor), so every state is
+ * visited once: follow unvisited states, marking them "on the path"; a walk that
+ * meets its own path has found a cycle (marked "on a cycle" by going round it once);
+ * a walk that leaves the region or meets an earlier walk's state has not; then the
+ * path is walked again and marked "done".  One byte of mark per state, plus one
+ * int64 per row (2B + 1 rows, never more than the states: every row is nonempty
+ * when B <= (D + S) / 2, as the caller makes it). */
+static PyObject *py_cycle_region(PyObject *self, PyObject *args)
+{
+    long long a1, a2, B, D, S;
+    int k, acc_bits, rounding, overflow, width, order2;
+    if (!PyArg_ParseTuple(args, "LLiiiiiLLLi", &a1, &a2, &k, &acc_bits, &rounding, &overflow, &width, &B, &D, &S,
+                          &order2))
+        return NULL;
+    arith_t ar;
+    if (arith_init(&ar, k, acc_bits, rounding, overflow, width) < 0) return NULL;
+    if (B < 0 || D < 0 || S < 0 || B > (INT64_C(1) << 40)) {
+        PyErr_SetString(PyExc_ValueError, "engine: cycle_region bounds out of range");
+        return NULL;
+    }
+    region_t R;
+    R.B = B; R.D = D; R.S = S; R.order2 = order2;
+    int64_t rows = 2 * B + 1;
+    R.start = PyMem_Malloc(sizeof(int64_t) * (rows + 1));
+    uint8_t *mark = NULL;
+    int64_t *o1 = NULL, *o2 = NULL;
+    PyObject *result = NULL;
+    if (!R.start) { PyErr_NoMemory(); goto done; }
+    R.n = 0;
+    for (int64_t r = 0; r < rows; r++) {
+        int64_t lo, hi;
+        region_row(&R, r - B, &lo, &hi);
+        R.start[r] = R.n;
+        if (hi >= lo) R.n += hi - lo + 1;
+    }
+    R.start[rows] = R.n;
+    if (R.n > (INT64_C(1) << 34)) { PyErr_SetString(PyExc_ValueError, "engine: cycle_region too many states"); goto done; }
+    mark = PyMem_Calloc(R.n ? (size_t)R.n : 1, 1);
+    if (!mark) { PyErr_NoMemory(); goto done; }
+    const uint64_t ua1 = (uint64_t)a1, ua2 = order2 ? (uint64_t)a2 : 0;
+    int64_t found = 0;
+    int64_t acc, v;
+    uint64_t u;
+    Py_BEGIN_ALLOW_THREADS
+    for (int64_t r = 0; r < rows; r++) {
+        int64_t y1s = r - B, rlo, rhi;
+        region_row(&R, y1s, &rlo, &rhi);
+        for (int64_t y2s = rlo; y2s <= rhi; y2s++) {
+            int64_t s = R.start[r] + (y2s - rlo);
+            if (mark[s]) continue;
+            /* walk */
+            int64_t c = s, c1 = y1s, c2 = y2s, nx, n1, n2;
+            for (;;) {
+                mark[c] = 1;
+                n1 = zi_step(c1, c2, 0, ua1, ua2, &ar, &acc, &v, &u);
+                n2 = order2 ? c1 : 0;
+                nx = region_index(&R, n1, n2);
+                if (nx < 0 || mark[nx] != 0) break;
+                c = nx; c1 = n1; c2 = n2;
+            }
+            if (nx >= 0 && mark[nx] == 1) { /* a new cycle through nx */
+                int64_t x = nx, x1 = n1, x2 = n2;
+                do {
+                    mark[x] = 3;
+                    found += (x1 != 0 || x2 != 0);
+                    int64_t m1 = zi_step(x1, x2, 0, ua1, ua2, &ar, &acc, &v, &u);
+                    x2 = order2 ? x1 : 0; x1 = m1;
+                    x = region_index(&R, x1, x2);
+                } while (x != nx);
+            }
+            /* the rest of the path is not on a cycle */
+            {
+                int64_t x = s, x1 = y1s, x2 = y2s;
+                while (x >= 0 && mark[x] == 1) {
+                    mark[x] = 2;
+                    int64_t m1 = zi_step(x1, x2, 0, ua1, ua2, &ar, &acc, &v, &u);
+                    x2 = order2 ? x1 : 0; x1 = m1;
+                    x = region_index(&R, x1, x2);
+                }
+            }
+        }
+    }
+    Py_END_ALLOW_THREADS
+    o1 = PyMem_Malloc(sizeof(int64_t) * (found ? found : 1));
+    o2 = PyMem_Malloc(sizeof(int64_t) * (found ? found : 1));
+    if (!o1 || !o2) { PyErr_NoMemory(); goto done; }
+    {
+        int64_t j = 0;
+        for (int64_t r = 0; r < rows; r++) {
+            int64_t rlo, rhi;
+            region_row(&R, r - B, &rlo, &rhi);
+            for (int64_t y2 = rlo; y2 <= rhi; y2++)
+                if (mark[R.start[r] + (y2 - rlo)] == 3 && (r != B || y2 != 0)) { o1[j] = r - B; o2[j] = y2; j++; }
+        }
+    }
+    result = Py_BuildValue("y#y#L", (const char *)o1, (Py_ssize_t)(found * 8), (const char *)o2,
+                           (Py_ssize_t)(found * 8), (long long)R.n);
+done:
+    PyMem_Free(R.start);
+    PyMem_Free(mark); PyMem_Free(o1); PyMem_Free(o2);
+    return result;
+}
+
+/* whole_cycles(A1, A2, k, acc_bits, rounding, overflow, width, order2, ef, elo, ehi, max_states)
+ *     -> (n, granular, overflow), each None or (amplitude, period, y1, y2, e)
+ *
+ * Every cycle of the zero-input map over the whole state space: (y1, y2) over the
+ * data-word box (y1 alone, first order) and, for df1ef, every residual E in
+ * [elo, ehi]; state index ((y1 - lo) * 2^W + (y2 - lo)) * ne + (E - elo).  Each state
+ * is visited once (as in cycle_region, here every image lies in the space).  A
+ * cycle passes through an overflow when on one of its steps fit_data changed the
+ * rounded value or the accumulator wrap changed the exact sum (taken in int64, which
+ * the caller guarantees exact).  Of each kind (no overflow: granular; overflow) the
+ * cycle of largest amplitude max |y1| > 0 is returned (ties: the one whose smallest
+ * state index is smallest), with its period and the state of smallest index among
+ * those with |y1| equal to the amplitude. */
+typedef struct { int64_t amp, period, start, first; int have; } cyc_t;
+
+static PyObject *cyc_tuple(const cyc_t *c, int64_t ny, int64_t ne, int64_t lo, int64_t elo, int order2)
+{
+    if (!c->have) Py_RETURN_NONE;
+    int64_t e = c->start % ne + elo, rest = c->start / ne;
+    int64_t y1 = order2 ? rest / ny + lo : rest + lo, y2 = order2 ? rest % ny + lo : 0;
+    return Py_BuildValue("LLLLL", (long long)c->amp, (long long)c->period, (long long)y1, (long long)y2, (long long)e);
+}
+
+static PyObject *py_whole_cycles(PyObject *self, PyObject *args)
+{
+    long long a1, a2, elo, ehi, max_states;
+    int k, acc_bits, rounding, overflow, width, order2, ef;
+    if (!PyArg_ParseTuple(args, "LLiiiiiiiLLL", &a1, &a2, &k, &acc_bits, &rounding, &overflow, &width, &order2, &ef,
+                          &elo, &ehi, &max_states))
+        return NULL;
+    arith_t ar;
+    if (arith_init(&ar, k, acc_bits, rounding, overflow, width) < 0) return NULL;
+    if (width > 30 || ehi < elo || ehi - elo > (INT64_C(1) << 40) || max_states > (INT64_C(1) << 34)) {
+        PyErr_SetString(PyExc_ValueError, "engine: whole_cycles space out of range");
+        return NULL;
+    }
+    const int64_t ny = INT64_C(1) << width, lo = ar.lo, ne = ef ? ehi - elo + 1 : 1;
+    if (!ef) elo = 0;
+    const int64_t n = (order2 ? ny * ny : ny) * ne;
+    if (n > max_states) Py_RETURN_NONE;
+    uint8_t *mark = PyMem_Calloc((size_t)n, 1);
+    if (!mark) return PyErr_NoMemory();
+    const uint64_t ua1 = (uint64_t)a1, ua2 = order2 ? (uint64_t)a2 : 0;
+    cyc_t best[2] = {{0, 0, 0, 0, 0}, {0, 0, 0, 0, 0}};
+    int bad = 0;
+    Py_BEGIN_ALLOW_THREADS
+#define WC_DECODE(i, y1, y2, e) do { int64_t r_ = (i) / ne; (e) = ef ? (i) % ne + elo : 0; \
+        if (order2) { (y1) = r_ / ny + lo; (y2) = r_ % ny + lo; } else { (y1) = r_ + lo; (y2) = 0; } } while (0)
+#define WC_NEXT(y1, y2, e, nxt, ovf) do { int64_t acc_, v_; uint64_t u_; \
+        int64_t y0_ = zi_step((y1), (y2), (e), ua1, ua2, &ar, &acc_, &v_, &u_); \
+        int64_t en_ = ef ? (int64_t)((uint64_t)acc_ - ((uint64_t)v_ << k)) - elo : 0; \
+        (ovf) = (y0_ != v_) || (acc_ != (int64_t)u_); \
+        if (en_ < 0 || en_ >= ne) { bad = 1; en_ = 0; } \
+        (nxt) = ((order2 ? (y0_ - lo) * ny + ((y1) - lo) : (y0_ - lo))) * ne + en_; } while (0)
+    for (int64_t s = 0; s < n && !bad; s++) {
+        if (mark[s]) continue;
+        int64_t c = s, nx, y1, y2, e;
+        int ovf;
+        for (;;) {
+            mark[c] = 1;
+            WC_DECODE(c, y1, y2, e);
+            WC_NEXT(y1, y2, e, nx, ovf);
+            if (mark[nx] != 0) break;
+            c = nx;
+        }
+        if (mark[nx] == 1) {
+            cyc_t cy = {0, 0, nx, nx, 1};
+            int any_ovf = 0;
+            int64_t x = nx;
+            do {
+                mark[x] = 3;
+                WC_DECODE(x, y1, y2, e);
+                int64_t a = y1 < 0 ? -y1 : y1;
+                if (a > cy.amp || (a == cy.amp && x < cy.start)) { cy.amp = a; cy.start = x; }
+                if (x < cy.first) cy.first = x;
+                cy.period++;
+                WC_NEXT(y1, y2, e, x, ovf);
+                any_ovf |= ovf;
+            } while (x != nx);
+            cyc_t *b = &best[any_ovf];
+            if (cy.amp > 0 && (!b->have || cy.amp > b->amp || (cy.amp == b->amp && cy.first < b->first))) *b = cy;
+        }
+        for (int64_t x = s; mark[x] == 1;) {
+            mark[x] = 2;
+            WC_DECODE(x, y1, y2, e);
+            WC_NEXT(y1, y2, e, x, ovf);
+        }
+    }
+#undef WC_DECODE
+#undef WC_NEXT
+    Py_END_ALLOW_THREADS
+    PyMem_Free(mark);
+    if (bad) { PyErr_SetString(PyExc_RuntimeError, "engine: whole_cycles residual out of range"); return NULL; }
+    PyObject *g = cyc_tuple(&best[0], ny, ne, lo, elo, order2), *o = cyc_tuple(&best[1], ny, ne, lo, elo, order2);
+    if (!g || !o) { Py_XDECREF(g); Py_XDECREF(o); return NULL; }
+    return Py_BuildValue("LNN", (long long)n, g, o);
+}
+
+/* walk(y1, y2, E, A1, A2, k, acc_bits, rounding, overflow, width, ef, limit) -> None or bytes
+ *
+ * Follow one state (y1, y2, E) of the zero-input map, y2 taking the old y1 (E stays 0
+ * unless ef), until a state repeats.  Returns the states of the cycle reached, from
+ * the first one the walk meets, as native int64 triples (y1, y2, E); None when the
+ * walk has not closed within `limit` distinct states (tail plus period >= limit).
+ * Brent's cycle detection: no memory beyond two states. */
+static PyObject *py_walk(PyObject *self, PyObject *args)
+{
+    long long y1, y2, e, a1, a2, limit;
+    int k, acc_bits, rounding, overflow, width, ef;
+    if (!PyArg_ParseTuple(args, "LLLLLiiiiiiL", &y1, &y2, &e, &a1, &a2, &k, &acc_bits, &rounding, &overflow, &width,
+                          &ef, &limit))
+        return NULL;
+    arith_t ar;
+    if (arith_init(&ar, k, acc_bits, rounding, overflow, width) < 0) return NULL;
+    const uint64_t ua1 = (uint64_t)a1, ua2 = (uint64_t)a2;
+    int64_t acc, v;
+    uint64_t u;
+#define WK_STEP(p) do { int64_t n_ = zi_step((p)[0], (p)[1], (p)[2], ua1, ua2, &ar, &acc, &v, &u); \
+        (p)[2] = ef ? (int64_t)((uint64_t)acc - ((uint64_t)v << k)) : 0; (p)[1] = (p)[0]; (p)[0] = n_; } while (0)
+#define WK_EQ(p, q) ((p)[0] == (q)[0] && (p)[1] == (q)[1] && (p)[2] == (q)[2])
+    int64_t x0[3] = {y1, y2, ef ? e : 0}, t[3], h[3];
+    int64_t power = 1, lam = 1, steps = 1, mu = 0, cap = 4 * (limit > 0 ? limit : 0) + 8;
+    int closed = 1;
+    memcpy(t, x0, sizeof t); memcpy(h, x0, sizeof h);
+    Py_BEGIN_ALLOW_THREADS
+    WK_STEP(h);
+    while (!WK_EQ(t, h)) {
+        if (power == lam) { memcpy(t, h, sizeof t); power *= 2; lam = 0; }
+        WK_STEP(h);
+        lam++;
+        if (++steps > cap) { closed = 0; break; }
+    }
+    if (closed) {
+        memcpy(t, x0, sizeof t); memcpy(h, x0, sizeof h);
+        for (int64_t i = 0; i < lam; i++) WK_STEP(h);
+        while (!WK_EQ(t, h)) { WK_STEP(t); WK_STEP(h); mu++; }
+    }
+    Py_END_ALLOW_THREADS
+    if (!closed || mu + lam >= limit) Py_RETURN_NONE;
+    int64_t *out = PyMem_Malloc(sizeof(int64_t) * 3 * lam);
+    if (!out) return PyErr_NoMemory();
+    for (int64_t i = 0; i < lam; i++) { memcpy(out + 3 * i, t, sizeof t); WK_STEP(t); }
+#undef WK_STEP
+#undef WK_EQ
+    PyObject *r = PyBytes_FromStringAndSize((const char *)out, (Py_ssize_t)(24 * lam));
+    PyMem_Free(out);
+    return r;
+}
+
 /* ------------------------------------------------------------ float32 ops */
 
 static PyObject *py_sos_f32(PyObject *self, PyObject *args)
@@ -689,6 +997,15 @@ static PyMethodDef engine_methods[] = {
      "zero_input(y1, y2, e, big, A1, A2, k, acc_bits, rounding, overflow, data_width, ef, order2, steps, tail,\n"
      "           check, gran) -> iterations done; the zero-input recursion of a section on int64 state\n"
      "buffers y1, y2, e (updated in place), float64 big (peak |y1| over the last `tail` iterations)."},
+    {"cycle_region", py_cycle_region, METH_VARARGS,
+     "cycle_region(A1, A2, k, acc_bits, rounding, overflow, data_width, B, D, S, order2) -> (y1, y2, n):\n"
+     "every nonzero state on a zero-input cycle inside the candidate region (int64 bytes), n candidate states."},
+    {"whole_cycles", py_whole_cycles, METH_VARARGS,
+     "whole_cycles(A1, A2, k, acc_bits, rounding, overflow, data_width, order2, ef, elo, ehi, max_states)\n"
+     "-> (n, granular, overflow), each None or (amplitude, period, y1, y2, E); None when n > max_states."},
+    {"walk", py_walk, METH_VARARGS,
+     "walk(y1, y2, E, A1, A2, k, acc_bits, rounding, overflow, data_width, ef, limit) -> None or the cycle\n"
+     "reached from one zero-input state, as int64 triples (y1, y2, E), from the first cycle state met."},
     {NULL, NULL, 0, NULL}};
 
 static struct PyModuleDef engine_module = {

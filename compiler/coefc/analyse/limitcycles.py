@@ -11,9 +11,11 @@ Granular limit cycles (zero-input, rounding)
     ``|y| <= e_max ||h||_1`` -- a rigorous bound (the linear model with bounded
     error).  The same argument bounds the linear combinations ``y[n-1] - y[n-2]``
     and ``y[n-1] + y[n-2]``; every state inside these bounds is then searched
-    exhaustively when there are at most ``max_states`` of them: the set of
-    candidate states is mapped through the exact integer recursion until it stops
-    shrinking, and what remains is exactly the set of states on cycles.  Verdicts:
+    exhaustively when there are at most ``max_states`` of them: the zero-input map
+    restricted to these states is a function on a finite set, and the compiled core
+    visits every state once and marks those on cycles (functional-graph cycle
+    detection; numpy reference: map the candidate set until it stops shrinking,
+    what remains is exactly the set of states on cycles).  Verdicts:
     ``none`` (proven), ``found`` (period, amplitude in LSB, a starting state that
     reproduces it) or ``unproven`` (the bound; a sampled search may still find
     cycles, reported with ``exhaustive = False``).
@@ -30,8 +32,9 @@ Overflow oscillations (zero-input, large states)
     1969) is the exact-arithmetic form of this test; it misses the quantiser's
     reach, which can lift a sum just below full scale to +full scale, where
     ``wrap`` turns it into -full scale.  (b) Otherwise, when the state space is
-    small enough (``MAX_WHOLE_STATES``), every state is mapped once and the cycles
-    of the whole map are found exactly (pointer doubling); a cycle that passes
+    small enough (``MAX_WHOLE_STATES``), every state is visited once and the cycles
+    of the whole map are found exactly (compiled core; numpy reference: pointer
+    doubling); a cycle that passes
     through an overflow (``fit_data`` or the accumulator changed a value) is an
     overflow oscillation.  Otherwise the verdict is ``unproven`` with the reason,
     and zero-input runs from full-scale corner states and random large states
@@ -67,7 +70,7 @@ import numpy as np
 from ..program import Arithmetic, ChannelProgram, SectionOp
 from ..qformat import fit_word, round_shift
 
-MAX_STATES = 1 << 21
+MAX_STATES = 1 << 24  # exhaustive granular search up to this many candidate states (compiled: ~0.5 s at the limit)
 MAX_WHOLE_STATES = 1 << 22  # exhaustive search of the whole zero-input map up to this many states
 
 
@@ -319,8 +322,41 @@ def _count_candidates(B: int, D: int, S: int, order: int, cap: int) -> int:
     return total
 
 
-def cycle_states(a1: int, a2: int, k: int, arith: Arithmetic, B: int, D: int, S: int, order: int):
+def _engine_fits(a1: int, a2: int, k: int, arith: Arithmetic) -> bool:
+    """Can the compiled core run this section's zero-input map (same integers as the numpy steps)?"""
+    return (_zero_input_engine() is not None and arith.acc_bits <= 64 and 1 <= k <= 62
+            and -(1 << 63) <= a1 < 1 << 63 and -(1 << 63) <= a2 < 1 << 63)
+
+
+def cycle_states(a1: int, a2: int, k: int, arith: Arithmetic, B: int, D: int, S: int, order: int, *,
+                 engine: bool = True):
     """Every nonzero state on a zero-input cycle inside the candidate region (exact).
+
+    The states are returned in the order of ``(y1, y2)``.  The zero-input map
+    restricted to the region is a function on a finite set (a state whose image
+    leaves the region has no successor); the compiled core visits every state once
+    and marks those on cycles (functional-graph cycle detection: follow unvisited
+    states until the walk meets its own path, a cycle, or an earlier walk or the
+    region's edge, no cycle).  Without it (``engine=False``, accumulators over 64
+    bits), :func:`cycle_states_numpy`.
+
+    References
+    ----------
+    D. E. Knuth, *The Art of Computer Programming*, vol. 2, 3rd ed., sec. 3.1,
+    exercise 6 (every path of a function on a finite set ends in a cycle).
+    """
+    from ..simulate import _OVF_CODE, _ROUND_CODE, _engine
+
+    if engine and _engine_fits(a1, a2, k, arith) and hasattr(_engine, "cycle_region"):
+        b1, b2, _ = _engine.cycle_region(int(a1), int(a2) if order == 2 else 0, int(k), arith.acc_bits,
+                                         _ROUND_CODE[arith.rounding], _OVF_CODE[arith.overflow], arith.data.width,
+                                         int(B), int(D), int(S), int(order == 2))
+        return np.frombuffer(b1, dtype=np.int64).copy(), np.frombuffer(b2, dtype=np.int64).copy()
+    return cycle_states_numpy(a1, a2, k, arith, B, D, S, order)
+
+
+def cycle_states_numpy(a1: int, a2: int, k: int, arith: Arithmetic, B: int, D: int, S: int, order: int):
+    """:func:`cycle_states` in numpy (the reference, and the path for accumulators over 64 bits).
 
     The candidate set ``C`` contains every cycle; iterate ``C <- f(C) & region``
     until its size stops changing; then ``f`` maps ``C`` onto itself and every
@@ -352,8 +388,44 @@ def step_int(y1: int, y2: int, a1: int, a2: int, k: int, arith: Arithmetic) -> i
     return fit_word(round_shift(acc, k, arith.rounding), arith.data.width, arith.overflow)
 
 
+def _compiled_walk(y1, y2, e, a1, a2, k, arith, limit, ef):
+    """The cycle from one state by the compiled core (Brent's method), ``False`` when it cannot run.
+
+    ``None`` when the walk does not close within *limit* distinct states, else the
+    cycle's states from the first one met, as in :func:`_walk` / :func:`_walk_ef`.
+
+    References
+    ----------
+    R. P. Brent, "An improved Monte Carlo factorization algorithm", BIT 20(2), 1980
+    (the cycle-finding method, sec. 2).
+    """
+    from ..simulate import _OVF_CODE, _ROUND_CODE, _engine
+
+    lim = 1 << 62
+    if not (_engine_fits(a1, a2, k, arith) and hasattr(_engine, "walk")
+            and all(-lim <= int(v) < lim for v in (y1, y2, e))):
+        return False
+    got = _engine.walk(int(y1), int(y2), int(e), int(a1), int(a2), int(k), arith.acc_bits,
+                       _ROUND_CODE[arith.rounding], _OVF_CODE[arith.overflow], arith.data.width, int(bool(ef)),
+                       int(limit))
+    if got is None:
+        return None
+    t = np.frombuffer(got, dtype=np.int64).reshape(-1, 3).tolist()
+    return [tuple(p) for p in t] if ef else [(p[0], p[1]) for p in t]
+
+
 def _walk(y1: int, y2: int, a1: int, a2: int, k: int, arith: Arithmetic, limit: int = 1 << 16):
     """Follow a state until it repeats: (period, amplitude, states on the cycle)."""
+    cyc = _compiled_walk(y1, y2, 0, a1, a2, k, arith, limit, False)
+    if cyc is None:
+        return None, None, []
+    if cyc:
+        return len(cyc), max(max(abs(p[0]), abs(p[1])) for p in cyc), cyc
+    return _walk_python(y1, y2, a1, a2, k, arith, limit)
+
+
+def _walk_python(y1: int, y2: int, a1: int, a2: int, k: int, arith: Arithmetic, limit: int = 1 << 16):
+    """:func:`_walk` in Python integers (the reference)."""
     seen = {}
     path = []
     s = (int(y1), int(y2))
@@ -733,6 +805,17 @@ def zero_input_step_ef(y1, y2, e, a1: int, a2: int, k: int, arith: Arithmetic):
 
 
 def _walk_ef(y1, y2, e, a1, a2, k, arith, limit):
+    """Follow a df1ef state until it repeats: (period, amplitude, states on the cycle)."""
+    cyc = _compiled_walk(y1, y2, e, a1, a2, k, arith, limit, True)
+    if cyc is None:
+        return None, None, []
+    if cyc:
+        return len(cyc), max(abs(p[0]) for p in cyc), cyc
+    return _walk_ef_python(y1, y2, e, a1, a2, k, arith, limit)
+
+
+def _walk_ef_python(y1, y2, e, a1, a2, k, arith, limit):
+    """:func:`_walk_ef` in Python integers (the reference)."""
     seen, path = {}, []
     s = (y1, y2, e)
     for i in range(limit):
@@ -814,7 +897,49 @@ def overflow_reach(a1: int, a2: int, k: int, arith: Arithmetic, order: int, ef: 
 
 
 def whole_space_cycles(a1: int, a2: int, k: int, arith: Arithmetic, order: int, ef: bool = False,
-                       max_states: int = MAX_WHOLE_STATES) -> dict | None:
+                       max_states: int = MAX_WHOLE_STATES, *, engine: bool = True) -> dict | None:
+    """Every cycle of the zero-input map over the whole state space, exactly; ``None`` if too large.
+
+    The states are ``(y1, y2)`` over the data-word box (``y1`` alone for a first-order
+    section) and, for ``df1ef``, every residual ``E`` of the rounding mode.  The
+    compiled core visits every state once (functional-graph cycle detection, as in
+    :func:`cycle_states`) and sorts the cycles into those that pass through an
+    overflow (``fit_data`` or the accumulator wrap changed a value on the way) and
+    those that do not; without it, :func:`whole_space_cycles_numpy` (same result).
+    Returns ``{"states", "granular", "overflow"}`` with, for each kind, ``None`` or the
+    largest cycle's ``amplitude_lsb``, ``period`` and ``start_state`` (ties: the cycle,
+    then the state, of smallest index ``((y1 - lo) 2^W + (y2 - lo)) ne + (E - Elo)``).
+
+    References
+    ----------
+    D. E. Knuth, *The Art of Computer Programming*, vol. 2, 3rd ed., sec. 3.1, exercise 6.
+    """
+    from ..simulate import _OVF_CODE, _ROUND_CODE, _engine
+
+    W = arith.data.width
+    ny = 1 << W
+    elo, ehi = _residual_range(k, arith.rounding) if ef else (0, 0)
+    ne = ehi - elo + 1
+    n = ny ** order * ne
+    if (n > max_states or arith.acc_bits > 64 or (ef and k < 1) or k > 62
+            or (abs(a1) + abs(a2)) * ny + 2 * ne >= 1 << 62):
+        return None
+    if not (engine and _engine_fits(a1, a2, k, arith) and hasattr(_engine, "whole_cycles") and W <= 30):
+        return whole_space_cycles_numpy(a1, a2, k, arith, order, ef, max_states)
+    got = _engine.whole_cycles(int(a1), int(a2) if order == 2 else 0, int(k), arith.acc_bits,
+                               _ROUND_CODE[arith.rounding], _OVF_CODE[arith.overflow], W, int(order == 2),
+                               int(bool(ef)), int(elo), int(ehi), int(max_states))
+    out = {"states": got[0], "granular": None, "overflow": None}
+    for kind, hit in (("granular", got[1]), ("overflow", got[2])):
+        if hit is not None:
+            amp, per, y1, y2, e = hit
+            out[kind] = dict(amplitude_lsb=int(amp), period=int(per),
+                             start_state=(int(y1), int(y2)) + ((int(e),) if ef else ()))
+    return out
+
+
+def whole_space_cycles_numpy(a1: int, a2: int, k: int, arith: Arithmetic, order: int, ef: bool = False,
+                             max_states: int = MAX_WHOLE_STATES) -> dict | None:
     """Every cycle of the zero-input map over the whole state space, exactly; ``None`` if too large.
 
     The states are ``(y1, y2)`` over the data-word box (``y1`` alone for a first-order
@@ -1003,7 +1128,7 @@ def _at_output(program: ChannelProgram, res: SectionLimitCycles) -> dict:
     section's bound times the l1 gain of the later operations (realised
     coefficients) plus the worst-case roundoff of the later operations themselves.
     """
-    from .linear import _run, noise_impulse, op_models, pole_radius, response_length
+    from .linear import noise_impulse, op_models, pole_radius, response_length, tail_impulse
 
     rest = program.ops[res.op_index + 1:]
     if not rest:
@@ -1018,12 +1143,12 @@ def _at_output(program: ChannelProgram, res: SectionLimitCycles) -> dict:
     if not stable_rest:
         notes.append("a later operation is not stable: no bound at the channel output")
     if res.bound_lsb is not None and stable_rest:
-        h = np.zeros(n)
-        h[0] = 1.0
-        for m in tail:
-            h = _run(m.b, m.a, h)
+        # the program's own response length (at least the tail's when the program is stable), so that
+        # every section and the noise analysis share one set of responses (coefc.analyse.linear)
+        nb = max(n, response_length(models))
+        h = tail_impulse(models, res.op_index + 1, nb)
         c, r = error_interval(ar.rounding)
-        rnd = sum((abs(c) + r) * float(np.sum(np.abs(noise_impulse(models, j, n))))
+        rnd = sum((abs(c) + r) * float(np.sum(np.abs(noise_impulse(models, j, nb))))
                   for j in range(res.op_index + 1, len(models)) if models[j].k > 0)
         if np.all(np.isfinite(h)) and np.isfinite(rnd):
             bound = (res.bound_lsb * float(np.sum(np.abs(h))) + rnd) * (1 + 1e-9)  # l1 sums of decayed tails

@@ -83,8 +83,31 @@ def effective_drop(coefs, k: int) -> int:
     return max(0, k - min(_v2(c) for c in nz))
 
 
+#: the models of the last few programs, and the responses computed from them (see :func:`op_models`)
+_MODELS: dict = {}
+_RESPONSES: dict = {}
+_KEEP = 4
+
+
 def op_models(program: ChannelProgram) -> list[OpModel]:
-    """Linear models of every operation of *program*, in signal order."""
+    """Linear models of every operation of *program*, in signal order.
+
+    Built once per program object and shared by the noise, overflow and
+    limit-cycle analyses (each call returns a new list of the same models); the
+    impulse responses derived from them (:func:`node_impulses`,
+    :func:`noise_impulse`) are likewise computed once per model list and length.
+    """
+    hit = _MODELS.get(id(program))
+    if hit is not None and hit[0] is program:
+        return list(hit[1])
+    models = _build_models(program)
+    if len(_MODELS) >= _KEEP:
+        _MODELS.pop(next(iter(_MODELS)))
+    _MODELS[id(program)] = (program, tuple(models))  # the program is kept alive, so its id stays its own
+    return models
+
+
+def _build_models(program: ChannelProgram) -> list[OpModel]:
     ar = program.arithmetic
     out: list[OpModel] = []
     if ar.is_float:
@@ -160,26 +183,67 @@ def _run(b, a, x):
     return signal.lfilter(b, a, x)
 
 
+def _responses(models: list[OpModel], n: int) -> dict:
+    """The shared response store of one model list and length (read-only arrays inside)."""
+    key = (tuple(id(m) for m in models), int(n))
+    hit = _RESPONSES.get(key)
+    if hit is None:
+        if len(_RESPONSES) >= _KEEP:
+            _RESPONSES.pop(next(iter(_RESPONSES)))
+        hit = _RESPONSES[key] = {"models": tuple(models), "tails": {}, "noise": {}}
+    return hit
+
+
+def _frozen(a: np.ndarray) -> np.ndarray:
+    a.setflags(write=False)
+    return a
+
+
 def node_impulses(models: list[OpModel], n: int) -> list[np.ndarray]:
-    """Impulse response from the channel input to the output of every operation."""
-    h = np.zeros(n)
-    h[0] = 1.0
-    out = []
-    for m in models:
-        h = _run(m.b, m.a, h)
-        out.append(h)
-    return out
+    """Impulse response from the channel input to the output of every operation (read-only arrays)."""
+    store = _responses(models, n)
+    if "nodes" not in store:
+        h = np.zeros(n)
+        h[0] = 1.0
+        out = []
+        for m in models:
+            h = _frozen(_run(m.b, m.a, h))
+            out.append(h)
+        store["nodes"] = out
+    return list(store["nodes"])
+
+
+def tail_impulse(models: list[OpModel], j: int, n: int) -> np.ndarray:
+    """Impulse response of the operations ``models[j:]`` in cascade (a unit impulse for ``j = len``).
+
+    The operations are linear and time-invariant, so the cascade from *j* on is
+    operation *j* applied to the cascade from ``j + 1`` on: all tails together cost
+    one filter run per operation (read-only arrays, kept per model list and length).
+    """
+    tails = _responses(models, n)["tails"]
+    if j in tails:
+        return tails[j]
+    i = len(models)
+    while i > j and (i - 1) in tails:
+        i -= 1
+    if i == len(models) and i not in tails:
+        g = np.zeros(n)
+        g[0] = 1.0
+        tails[i] = _frozen(g)
+    while i > j:
+        i -= 1
+        m = models[i]
+        tails[i] = _frozen(_run(m.b, m.a, tails[i + 1]))
+    return tails[j]
 
 
 def noise_impulse(models: list[OpModel], j: int, n: int) -> np.ndarray:
-    """Impulse response from the rounding error of operation *j* to the channel output."""
-    g = np.zeros(n)
-    g[0] = 1.0
-    m = models[j]
-    g = _run(m.noise_b, m.noise_a, g)
-    for m in models[j + 1:]:
-        g = _run(m.b, m.a, g)
-    return g
+    """Impulse response from the rounding error of operation *j* to the channel output (read-only)."""
+    noise = _responses(models, n)["noise"]
+    if j not in noise:
+        m = models[j]
+        noise[j] = _frozen(_run(m.noise_b, m.noise_a, tail_impulse(models, j + 1, n)))
+    return noise[j]
 
 
 def chain_filter(models: list[OpModel], x: np.ndarray) -> np.ndarray:

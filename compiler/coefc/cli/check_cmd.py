@@ -58,7 +58,7 @@ def check(
     limit_cycles: LimitCycles = None,
     overflow_budget: OverflowBudget = None,
     noise_samples: NoiseSamples = 1 << 15,
-    search_limit: SearchLimit = 1 << 21,
+    search_limit: SearchLimit = 1 << 24,
 ) -> None:
     """Realise, analyse and gate against the budget (exit 0 pass, 1 over budget, 2 bad input).
 
