@@ -24,6 +24,9 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from types import MappingProxyType
 
+from .checks import BUDGET_CHECKS, LimitError, as_number
+from .checks import fmt_number as _fmt
+from .checks import type_name as _type_name
 from .errors import DescriptionError, close_match
 
 # --------------------------------------------------------------------------- model
@@ -60,7 +63,6 @@ class Budget:
     output_offset_lsb: float | None = None  # maximum |DC offset of the output error|, LSB
     tone_gain_error_db: float | str | None = None  # None: the default limit; "off": not checked
     tone_levels_dbfs: tuple[float, ...] | None = None  # None: the default levels
-    extra: Mapping = field(default_factory=lambda: MappingProxyType({}))  # keys added by later checks
     passband: tuple[tuple[float, float], ...] | None = None
     stopband: tuple[tuple[float, float], ...] | None = None
     command_line: frozenset = frozenset()  # keys set on the command line: no [channel.budget] overrides them
@@ -169,28 +171,11 @@ class _Place:
         return DescriptionError(self.source, message, channel=self.channel, stage=self.stage, key=key)
 
 
-def _type_name(v) -> str:
-    if isinstance(v, bool):
-        return f"a boolean ({str(v).lower()})"
-    if isinstance(v, str):
-        return f"a string ({v!r})"
-    if isinstance(v, (int, float)):
-        return f"a number ({v})"
-    if isinstance(v, list):
-        return "a list"
-    if isinstance(v, dict):
-        return "a table"
-    return type(v).__name__
-
-
 def _number(v, where: _Place) -> float:
-    if isinstance(v, bool) or not isinstance(v, (int, float)):
-        raise where.fail(f"expected a number, got {_type_name(v)}; write a plain number such as 1000")
-    if isinstance(v, float) and not math.isfinite(v):
-        raise where.fail(f"{v} is not allowed; write a finite number")
-    if isinstance(v, int) and abs(v) > 1e300:
-        raise where.fail(f"{v} is too large; write a finite number of sensible size")
-    return float(v)
+    try:
+        return as_number(v)
+    except LimitError as e:
+        raise where.fail(str(e)) from None
 
 
 def _positive(v, where: _Place) -> float:
@@ -292,10 +277,6 @@ def _band(v, where: _Place, allow_zero: bool = False) -> tuple[float, float]:
     return (lo, hi)
 
 
-def _fmt(x: float) -> str:
-    return f"{x:g}" if abs(x) < 1e15 else f"{x:.6g}"
-
-
 # Stage schemas: kind -> {key: checker}.  ``kind`` itself is always allowed.
 # Edge keys (cutoff_hz, passband_hz, stopband_hz) are a number for low/high-pass
 # kinds and a band for band-pass/stop kinds; see _edge_checker.
@@ -346,9 +327,8 @@ _FREQ_KEYS = ("cutoff_hz", "passband_hz", "stopband_hz", "freq_hz")
 
 _TOP_KEYS = ("name", "sample_rate_hz", "implementation", "budget", "channel")
 _IMPL_KEYS = ("target", "structure", "data", "coef", "acc_bits", "rounding", "overflow", "scaling")
-_BUDGET_KEYS = ("passband_deviation_db", "stopband_attenuation_db", "output_noise_dbfs", "limit_cycles",
-                "overflow", "passband", "stopband", "output_offset_lsb", "tone_gain_error_db",
-                "tone_levels_dbfs")
+#: [budget] keys: one per budget check (coefc.checks.CHECKS), then the keys that shape checks
+_BUDGET_KEYS = tuple(c.name for c in BUDGET_CHECKS) + ("passband", "stopband", "tone_levels_dbfs")
 _CHANNEL_KEYS = ("name", "stages", "budget")
 
 
@@ -529,44 +509,12 @@ def _budget_values(t, where: _Place, fs: float, header: str) -> dict:
     t = _table(t, _Place(where.source, where.channel, key="budget"), header)
     _check_keys(t, _BUDGET_KEYS, where, f"[{header}]")
     out: dict = {}
-    if "passband_deviation_db" in t:
-        out["passband_deviation_db"] = _positive(t["passband_deviation_db"], where.at("passband_deviation_db"))
-    if "stopband_attenuation_db" in t:
-        out["stopband_attenuation_db"] = _positive(t["stopband_attenuation_db"], where.at("stopband_attenuation_db"))
-    if "output_noise_dbfs" in t:
-        x = _number(t["output_noise_dbfs"], where.at("output_noise_dbfs"))
-        if x >= 0:
-            raise where.at("output_noise_dbfs").fail(
-                f"{_fmt(x)} dBFS is not a noise limit; write a negative level such as -120")
-        out["output_noise_dbfs"] = x
-    if "output_offset_lsb" in t:
-        x = _number(t["output_offset_lsb"], where.at("output_offset_lsb"))
-        if x < 0:
-            raise where.at("output_offset_lsb").fail(
-                f"{_fmt(x)} LSB: write the largest DC offset allowed, a non-negative number such as 0.5")
-        out["output_offset_lsb"] = x
-    if "limit_cycles" in t:
-        v = t["limit_cycles"]
-        w = where.at("limit_cycles")
-        if isinstance(v, str):
-            if v != "none":
-                raise w.fail(f"'{v}' is not understood; write \"none\" or a maximum amplitude in LSB (e.g. 1)")
-            out["limit_cycles"] = "none"
-        else:
-            x = _number(v, w)
-            if x < 0:
-                raise w.fail(f"{_fmt(x)} LSB: an amplitude cannot be negative")
-            out["limit_cycles"] = x
-    if "overflow" in t:
-        out["overflow"] = _choice("none", "allow")(t["overflow"], where.at("overflow"))
-    if "tone_gain_error_db" in t:
-        v, w = t["tone_gain_error_db"], where.at("tone_gain_error_db")
-        if isinstance(v, str):
-            if v != "off":
-                raise w.fail(f"'{v}' is not understood; write a largest error in dB (e.g. 0.5) or \"off\"")
-            out["tone_gain_error_db"] = "off"
-        else:
-            out["tone_gain_error_db"] = _positive(v, w)
+    for check in BUDGET_CHECKS:
+        if check.name in t:
+            try:
+                out[check.name] = check.validate(t[check.name])
+            except LimitError as e:
+                raise where.at(check.name).fail(str(e)) from None
     if "tone_levels_dbfs" in t:
         w = where.at("tone_levels_dbfs")
         levels = _number_list(1, 8)(t["tone_levels_dbfs"], w)
