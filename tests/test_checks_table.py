@@ -101,3 +101,28 @@ def test_reports_print_the_tables_comparison():
     assert ">= 80" in text and "<= 0.05" in text
     junit = render_junit(report)
     assert "limit &gt;= 80" in junit and "limit &lt;= 0.05" in junit
+
+
+# ---------------------------------------------------------------- the tables of stage kinds (coefc.stagekinds)
+
+from coefc.design import _designer  # noqa: E402
+from coefc.spec import STAGE_KEYS  # noqa: E402
+from coefc.stagekinds import IIR_RESPONSE_DESIGNERS, STAGE_KINDS_TABLE  # noqa: E402
+
+
+@pytest.mark.parametrize("kind", list(STAGE_KINDS_TABLE))
+def test_every_stage_kind_is_validated_and_routed_from_its_table(kind):
+    sk = STAGE_KINDS_TABLE[kind]
+    assert set(STAGE_KEYS[kind]) == set(sk.keys)
+    # units follow the key's suffix (common practice, no source: the project's naming convention)
+    for key, k in sk.keys.items():
+        for suffix, unit in (("_hz", "Hz"), ("_db", "dB"), ("_oct", "octaves")):
+            if key.endswith(suffix):
+                assert k.unit == unit, (kind, key)
+    responses = [None] if sk.designer is not None else list(IIR_RESPONSE_DESIGNERS)
+    for response in responses:
+        params = {} if response is None else {"response": response}
+        ctx = SimpleNamespace(kind=kind, require=lambda key, hint, p=params: p[key])
+        fn = _designer(ctx)
+        module, name = (sk.module, sk.designer) if response is None else IIR_RESPONSE_DESIGNERS[response]
+        assert fn.__module__ == f"coefc.design.{module}" and fn.__name__ == name

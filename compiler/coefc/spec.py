@@ -28,6 +28,9 @@ from .checks import BUDGET_CHECKS, LimitError, as_number
 from .checks import fmt_number as _fmt
 from .checks import type_name as _type_name
 from .errors import DescriptionError, close_match
+from .stagekinds import (EQ_KINDS, FIR_KINDS, FIR_METHODS, IIR_KINDS, IIR_RESPONSES,  # noqa: F401 (re-exported)
+                         MAX_FIR_TAPS, MAX_IIR_ORDER, STAGE_KINDS_TABLE, WEIGHTINGS)
+from .stagekinds import FREQ_KEYS as _FREQ_KEYS
 
 # --------------------------------------------------------------------------- model
 
@@ -113,18 +116,8 @@ class Description:
 
 # ------------------------------------------------------------------ vocabulary
 
-#: Responses of the classic IIR kinds (lowpass, highpass, bandpass, bandstop).
-IIR_RESPONSES = ("butterworth", "chebyshev1", "chebyshev2", "elliptic", "bessel", "linkwitz-riley", "biquad")
-IIR_KINDS = ("lowpass", "highpass", "bandpass", "bandstop")
-FIR_KINDS = ("fir-lowpass", "fir-highpass", "fir-bandpass", "fir-bandstop")
-FIR_METHODS = ("kaiser", "equiripple", "least-squares")
-EQ_KINDS = ("peaking", "lowshelf", "highshelf", "notch", "allpass")
-WEIGHTINGS = ("A", "C")
-
-#: Largest IIR order and FIR length accepted (beyond them no fixed-point
-#: realisation is sensible and the float design itself loses accuracy).
-MAX_IIR_ORDER = 40
-MAX_FIR_TAPS = 8191
+# the stage kinds, their keys, the kind tuples and MAX_IIR_ORDER / MAX_FIR_TAPS are
+# declared in coefc.stagekinds (one table per design module) and imported above
 MAX_DELAY_SAMPLES = 1 << 20
 #: Bounds on the work one description can ask for (a merge gate must finish): the
 #: file itself, and per channel the totals after design.  Each is far above what
@@ -277,53 +270,29 @@ def _band(v, where: _Place, allow_zero: bool = False) -> tuple[float, float]:
     return (lo, hi)
 
 
-# Stage schemas: kind -> {key: checker}.  ``kind`` itself is always allowed.
-# Edge keys (cutoff_hz, passband_hz, stopband_hz) are a number for low/high-pass
-# kinds and a band for band-pass/stop kinds; see _edge_checker.
+# Stage schemas: kind -> {key: checker}, built from the tables of stage kinds
+# (coefc.stagekinds).  ``kind`` itself is always allowed.  Edge keys (cutoff_hz,
+# passband_hz, stopband_hz) are a number for low/high-pass kinds and a band for
+# band-pass/stop kinds: the checker is the marker _EDGE, resolved in _stage.
 _EDGE = "edge"
 
-_IIR_KEYS = {
-    "response": _choice(*IIR_RESPONSES),
-    "order": _positive_int,
-    "cutoff_hz": _EDGE,
-    "passband_hz": _EDGE,
-    "stopband_hz": _EDGE,
-    "ripple_db": _positive,
-    "attenuation_db": _positive,
-    "margin_db": _non_negative,
-    "freq_hz": _frequency,
-    "q": _positive,
-    "bandwidth_oct": _positive,
-}
-_FIR_KEYS = {
-    "method": _choice(*FIR_METHODS),
-    "passband_hz": _EDGE,
-    "stopband_hz": _EDGE,
-    "attenuation_db": _positive,
-    "ripple_db": _positive,
-    "margin_db": _non_negative,
-    "taps": _positive_int,
-}
-STAGE_KEYS: dict[str, dict] = {
-    **{k: _IIR_KEYS for k in IIR_KINDS},
-    **{k: _FIR_KEYS for k in FIR_KINDS},
-    "peaking": {"freq_hz": _frequency, "gain_db": _number, "q": _positive, "bandwidth_oct": _positive},
-    "lowshelf": {"freq_hz": _frequency, "gain_db": _number, "q": _positive, "slope": _positive},
-    "highshelf": {"freq_hz": _frequency, "gain_db": _number, "q": _positive, "slope": _positive},
-    "notch": {"freq_hz": _frequency, "q": _positive, "bandwidth_oct": _positive},
-    "allpass": {"freq_hz": _frequency, "q": _positive, "bandwidth_oct": _positive},
-    "weighting": {"weighting": _choice(*WEIGHTINGS)},
-    "dc-blocker": {"cutoff_hz": _frequency},
-    "gain": {"db": _number, "linear": _positive, "invert": _boolean},
-    "delay": {"samples": _integer, "ms": _non_negative, "metres": _non_negative, "air_temperature_c": _number},
-    "sos": {"sections": _sections},
-    "transfer": {"b": _number_list(1, MAX_FIR_TAPS), "a": _number_list(1, 2 * MAX_IIR_ORDER + 1)},
-    "fir": {"taps": _number_list(1, MAX_FIR_TAPS)},
-}
-STAGE_KINDS = tuple(STAGE_KEYS)
 
-#: Keys holding a frequency that must lie below Nyquist.
-_FREQ_KEYS = ("cutoff_hz", "passband_hz", "stopband_hz", "freq_hz")
+def _checker(key):
+    """The checker of one key rule of :class:`coefc.stagekinds.Key`."""
+    if key.rule == "edge":
+        return _EDGE
+    if key.rule == "choice":
+        return _choice(*key.choices)
+    if key.rule == "numbers":
+        return _number_list(*key.length)
+    return {"frequency": _frequency, "positive": _positive, "non_negative": _non_negative, "number": _number,
+            "integer": _integer, "positive_int": _positive_int, "boolean": _boolean,
+            "sections": _sections}[key.rule]
+
+
+STAGE_KEYS: dict[str, dict] = {kind: {k: _checker(key) for k, key in sk.keys.items()}
+                               for kind, sk in STAGE_KINDS_TABLE.items()}
+STAGE_KINDS = tuple(STAGE_KEYS)
 
 _TOP_KEYS = ("name", "sample_rate_hz", "implementation", "budget", "channel")
 _IMPL_KEYS = ("target", "structure", "data", "coef", "acc_bits", "rounding", "overflow", "scaling")
