@@ -134,6 +134,7 @@ MAX_CHANNEL_DELAY_SAMPLES = 1 << 20  # delay of one channel, all stages together
 MIN_SAMPLE_RATE_HZ = 0.001
 MAX_SAMPLE_RATE_HZ = 1e9
 
+#: C99 keywords (ISO/IEC 9899:1999, section 6.4.1); names of descriptions and channels become C identifiers
 C99_KEYWORDS = frozenset(
     "auto break case char const continue default do double else enum extern float for goto if "
     "inline int long register restrict return short signed sizeof static struct switch typedef "

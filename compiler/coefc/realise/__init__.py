@@ -66,7 +66,7 @@ import numpy as np
 
 from ..blocks import Block, ChannelDesign, DelayBlock, FirBlock, GainBlock, SosBlock
 from ..errors import CoefcError
-from ..program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from ..program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
 from ..qformat import QFormat  # noqa: F401 (used by the doctest)
 from . import coefficients, pairing, scaling
 
@@ -222,9 +222,10 @@ def realise_channel(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelPro
     >>> p.ops[0].a, p.ops[0].b[1] == 2 * p.ops[0].b[0] == 2 * p.ops[0].b[2]
     ((-29743, 13615), True)
     """
-    if arithmetic.structure == "df1ef" and arithmetic.is_float:
-        raise RealisationError(f"channel '{design.name}': structure 'df1ef' (error feedback) needs "
-                               "fixed-point arithmetic; use df1 or tdf2 for float32")
+    if arithmetic.is_float and not STRUCTURE_TABLE[arithmetic.structure].float32:
+        raise RealisationError(f"channel '{design.name}': structure '{arithmetic.structure}' (error feedback) needs "
+                               "fixed-point arithmetic; use "
+                               + " or ".join(s.name for s in STRUCTURE_TABLE.values() if s.float32) + " for float32")
     pre_gain, delay, chain0, final0, notes = _float_plan(design, arithmetic)
     if arithmetic.scaling == "none":
         return _build(design, arithmetic, pre_gain, delay, chain0, final0, notes)
