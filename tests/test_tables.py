@@ -97,6 +97,8 @@ def test_reports_print_the_tables_comparison():
                                      "acc_bits": 32, "rounding": "add-half", "overflow": "saturate"})
     report = SimpleNamespace(channels=[ch], target="mcu32", source="x.toml", ok=False,
                              failures=lambda: [("x", c, "") for c in checks if not c.ok])
+    assert {c.name: c.op for c in checks if c.name != "stable"} == {"stopband_attenuation_db": ">=",
+                                                                    "passband_deviation_db": "<="}
     text = render_text(report)
     assert ">= 80" in text and "<= 0.05" in text
     junit = render_junit(report)

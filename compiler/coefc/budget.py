@@ -48,7 +48,8 @@ import math
 from dataclasses import dataclass, field, replace
 from typing import Mapping, NamedTuple
 
-from .checks import BUDGET_CHECKS, BY_NAME, DEFAULT_TONE_GAIN_ERROR_DB, HAZARD_DEFAULTS, SAFETY_CAUTION, LimitError
+from .checks import (BUDGET_CHECKS, BY_NAME, DEFAULT_TONE_GAIN_ERROR_DB, HAZARD_DEFAULTS,  # noqa: F401
+                     SAFETY_CAUTION, LimitError, kind_of)
 from .errors import DescriptionError
 from .program import SectionOp
 from .reporting import format_limit
@@ -69,6 +70,16 @@ class Check(NamedTuple):
     value: object
     limit: object
     ok: bool
+
+    @property
+    def kind(self):
+        """Its entry in the table of checks (:class:`coefc.checks.CheckKind`): comparison, unit, words."""
+        return kind_of(self.name)
+
+    @property
+    def op(self) -> str:
+        """How the value compares with the limit: ``<=``, ``>=`` or ``<``."""
+        return self.kind.op
 
 
 @dataclass(frozen=True, eq=False)

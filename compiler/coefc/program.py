@@ -60,8 +60,37 @@ float32 order (every step rounded to float32, no fused multiply-add)::
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from typing import Literal
 
 from .qformat import QFormat
+
+
+#: what a realisation note is about
+NoteKind = Literal["unstable", "saturated", "precision", "pairing", "scaling"]
+
+
+class Note(str):
+    """A note of the realisation: its text (a ``str``, printed as is) and its ``kind``, for code to test.
+
+    ``unstable`` (quantised poles on or outside the unit circle) and ``saturated``
+    (a coefficient that does not fit its word) mean the program is not what the
+    design meant (:attr:`departs_from_design`); ``precision``, ``pairing`` and
+    ``scaling`` explain choices and costs.
+    """
+
+    kind: NoteKind
+
+    def __new__(cls, kind: NoteKind, text: str) -> "Note":
+        note = super().__new__(cls, text)
+        note.kind = kind
+        return note
+
+    def __getnewargs__(self):
+        return (self.kind, str(self))
+
+    @property
+    def departs_from_design(self) -> bool:
+        return self.kind in ("unstable", "saturated")
 
 
 @dataclass(frozen=True)
@@ -192,7 +221,7 @@ class ChannelProgram:
     sample_rate_hz: float
     arithmetic: Arithmetic
     ops: tuple[Op, ...]
-    notes: tuple[str, ...] = field(default_factory=tuple)  # saturated coefficients, pairing choices, ...
+    notes: tuple[Note, ...] = field(default_factory=tuple)  # saturated coefficients, pairing choices, ...
 
     def sections(self) -> tuple[SectionOp, ...]:
         return tuple(op for op in self.ops if isinstance(op, SectionOp))

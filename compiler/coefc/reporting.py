@@ -74,7 +74,7 @@ def _limit(name: str, limit) -> str:
 
 
 def _value(name: str, c) -> str:
-    return kind_of(name).value_text(c.value, c.limit, c.ok)
+    return kind_of(name).value_text(c.value, c.limit, c.ok)  # the check's own comparison, from the table
 
 
 def render_text(report) -> str:
