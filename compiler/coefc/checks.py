@@ -73,40 +73,42 @@ def as_number(v) -> float:
 
 # ------------------------------------------------------------------ limit validators (one per key)
 
-def _positive(example: str) -> Callable:
+def _number_where(holds: Callable[[float], bool], why: Callable[[float], str]) -> Callable:
+    """A validator of a number limit: finite, and *holds* for it (else *why* is the message)."""
     def check(v) -> float:
         x = as_number(v)
-        if x <= 0:
-            raise LimitError(f"must be greater than 0, got {fmt_number(x)}; write a positive number such as {example}")
+        if not holds(x):
+            raise LimitError(why(x))
         return x
 
     return check
 
 
-def _noise(v) -> float:
-    x = as_number(v)
-    if x >= 0:
-        raise LimitError(f"{fmt_number(x)} dBFS is not a noise limit; write a negative level such as -120")
-    return x
+def _word_or(word: str, number: Callable, hint: str) -> Callable:
+    """A validator of a limit that is either the word *word* or a number *number* accepts."""
+    def check(v):
+        if isinstance(v, str):
+            if v != word:
+                raise LimitError(f"'{v}' is not understood; {hint}")
+            return word
+        return number(v)
+
+    return check
 
 
-def _offset(v) -> float:
-    x = as_number(v)
-    if x < 0:
-        raise LimitError(f"{fmt_number(x)} LSB: write the largest DC offset allowed, a non-negative number such as 0.5")
-    return x
+def _positive(example: str) -> Callable:
+    return _number_where(lambda x: x > 0,
+                         lambda x: f"must be greater than 0, got {fmt_number(x)}; write a positive number such as "
+                                   f"{example}")
 
 
-def _limit_cycles(v) -> str | float:
-    if isinstance(v, str):
-        if v != "none":
-            raise LimitError(f"'{v}' is not understood; write \"none\" or a maximum amplitude in LSB such as 2")
-        return "none"
-    x = as_number(v)
-    if x < 0:
-        raise LimitError(f"{fmt_number(x)} LSB: an amplitude cannot be negative; write none or a maximum "
-                         "amplitude in LSB such as 2")
-    return x
+_noise = _number_where(lambda x: x < 0, lambda x: f"{fmt_number(x)} dBFS is not a noise limit; write a negative "
+                                                  "level such as -120")
+_offset = _number_where(lambda x: x >= 0, lambda x: f"{fmt_number(x)} LSB: write the largest DC offset allowed, a "
+                                                    "non-negative number such as 0.5")
+_LC_HINT = "write \"none\" or a maximum amplitude in LSB such as 2"
+_limit_cycles = _word_or("none", _number_where(lambda x: x >= 0, lambda x: f"{fmt_number(x)} LSB: an amplitude "
+                                               f"cannot be negative; {_LC_HINT}"), _LC_HINT)
 
 
 def _overflow(v) -> str:
@@ -119,12 +121,7 @@ def _overflow(v) -> str:
     return v
 
 
-def _tone(v) -> float | str:
-    if isinstance(v, str):
-        if v != "off":
-            raise LimitError(f"'{v}' is not understood; write a largest error in dB (e.g. 0.5) or \"off\"")
-        return "off"
-    return _positive("0.5")(v)
+_tone = _word_or("off", _positive("0.5"), "write a largest error in dB (e.g. 0.5) or \"off\"")
 
 
 # ------------------------------------------------------------------ the table
