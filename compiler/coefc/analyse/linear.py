@@ -26,12 +26,13 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
+from ..program import STRUCTURE_TABLE, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from ..realise.scaling import ANALYSIS_MAX_LENGTH, ANALYSIS_MIN_LENGTH, IMPULSE_DECAY, analysis_length
 
-#: impulse responses stop where the slowest pole has decayed below this factor
-DECAY = 1e-13
-MAX_LENGTH = 1 << 18
-MIN_LENGTH = 256
+#: impulse responses stop where the slowest pole has decayed below this factor (one rule: coefc.realise.scaling)
+DECAY = IMPULSE_DECAY
+MAX_LENGTH = ANALYSIS_MAX_LENGTH
+MIN_LENGTH = ANALYSIS_MIN_LENGTH
 
 
 @dataclass(frozen=True, eq=False)
@@ -138,16 +139,7 @@ def pole_radius(models: list[OpModel]) -> float:
 
 def response_length(models: list[OpModel]) -> int:
     """Impulse-response length that captures every node to a relative ``DECAY``."""
-    r = pole_radius(models)
-    fir = sum(len(m.b) - 1 for m in models if not m.recursive)
-    if r >= 1.0:
-        n = 1 << 14
-    elif r > 0:
-        n = int(np.ceil(np.log(DECAY) / np.log(r))) * 2
-    else:
-        n = 0
-    n += fir + 8
-    return int(min(max(n, MIN_LENGTH), MAX_LENGTH))
+    return analysis_length(pole_radius(models), sum(len(m.b) - 1 for m in models if not m.recursive))
 
 
 def _run(b, a, x):
