@@ -176,3 +176,19 @@ def test_every_structure_runs_through_every_model(name, tweeter_by_structure):
     assert base >= n_sec * (4 + st_.error_feedback)
     # some built-in fixed-point target runs it, so the C-kernel golden-vector tests cover it
     assert any(name in t.structures and not t.arithmetic.is_float for t in list_targets())
+
+
+# ---------------------------------------------------------------- errors keep their type
+
+def test_realisation_errors_keep_their_type_and_name_the_file(monkeypatch):
+    import coefc.realise
+    from coefc.realise import RealisationError
+
+    def refuse(channel, arith):
+        raise RealisationError(f"channel '{channel.name}': refused")
+
+    monkeypatch.setattr(coefc.realise, "realise_channel", refuse)
+    path = FILTERS / "three_way_monitor.toml"
+    with pytest.raises(RealisationError) as info:
+        coefc.load(path).design(["tweeter"]).realise("mcu32")
+    assert info.value.source == str(path) and str(info.value) == f"{path}: channel 'tweeter': refused"
