@@ -26,13 +26,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..program import STRUCTURE_TABLE, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
-from ..realise.scaling import ANALYSIS_MAX_LENGTH, ANALYSIS_MIN_LENGTH, IMPULSE_DECAY, analysis_length
+from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
 
-#: impulse responses stop where the slowest pole has decayed below this factor (one rule: coefc.realise.scaling)
-DECAY = IMPULSE_DECAY
-MAX_LENGTH = ANALYSIS_MAX_LENGTH
-MIN_LENGTH = ANALYSIS_MIN_LENGTH
+#: impulse responses stop where the slowest pole has decayed below this factor
+DECAY = 1e-13
+MAX_LENGTH = 1 << 18
+MIN_LENGTH = 256
 
 
 @dataclass(frozen=True, eq=False)
@@ -139,7 +138,16 @@ def pole_radius(models: list[OpModel]) -> float:
 
 def response_length(models: list[OpModel]) -> int:
     """Impulse-response length that captures every node to a relative ``DECAY``."""
-    return analysis_length(pole_radius(models), sum(len(m.b) - 1 for m in models if not m.recursive))
+    r = pole_radius(models)
+    fir = sum(len(m.b) - 1 for m in models if not m.recursive)
+    if r >= 1.0:
+        n = 1 << 14
+    elif r > 0:
+        n = int(np.ceil(np.log(DECAY) / np.log(r))) * 2
+    else:
+        n = 0
+    n += fir + 8
+    return int(min(max(n, MIN_LENGTH), MAX_LENGTH))
 
 
 def _run(b, a, x):

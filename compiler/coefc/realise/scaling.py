@@ -38,32 +38,9 @@ from ..program import STRUCTURE_TABLE
 MAX_LEN = 1 << 18
 MIN_LEN = 1 << 11
 
-#: Impulse responses run until the slowest pole has decayed below this factor: the one
-#: tolerance of every impulse-length rule (scaling, pairing, analysis, l1 bounds).
-IMPULSE_DECAY = 1e-13
-#: bounds of the analysis length (:func:`analysis_length`)
-ANALYSIS_MIN_LENGTH = 256
-ANALYSIS_MAX_LENGTH = 1 << 18
-
-
-def decay_samples(r: float) -> int:
-    """Samples for a pole of radius *r* (0 <= r < 1) to decay by :data:`IMPULSE_DECAY` (0 for r = 0)."""
-    return int(np.ceil(np.log(IMPULSE_DECAY) / np.log(r))) if 0.0 < r < 1.0 else 0
-
-
-def analysis_length(r: float, fir: int) -> int:
-    """Impulse-response length of the analyses and the l1 bounds: every node to :data:`IMPULSE_DECAY`.
-
-    Twice the decay length of the slowest pole (radius *r*; a cascade of poles of that
-    radius decays more slowly than one), plus *fir* samples of FIR memory; a fixed
-    length for poles on or outside the unit circle.
-    """
-    n = 1 << 14 if r >= 1.0 else 2 * decay_samples(r)
-    return int(min(max(n + fir + 8, ANALYSIS_MIN_LENGTH), ANALYSIS_MAX_LENGTH))
-
 
 def response_length(chain) -> int:
-    """Samples needed for the impulse response of *chain* to decay by :data:`IMPULSE_DECAY`."""
+    """Samples needed for the impulse response of *chain* to decay by 10^-12."""
     n = MIN_LEN
     for kind, op in chain:
         if kind == "sos":
@@ -71,7 +48,7 @@ def response_length(chain) -> int:
             if r >= 1.0:
                 return MAX_LEN
             if r > 0.0:
-                n = max(n, decay_samples(r) + 8)
+                n = max(n, int(np.ceil(np.log(1e-12) / np.log(r))) + 8)
         else:
             n = max(n, 4 * len(op))
     n = 1 << int(np.ceil(np.log2(n)))
