@@ -61,6 +61,8 @@ class Model:
 
     def section(self, x, b, a, shift, structure):
         """Returns (y, data overflow count, accumulator overflow count)."""
+        if structure not in ("df1", "tdf2", "df1ef"):  # the structures this model knows (independently)
+            raise NotImplementedError(f"exact model: no recurrence for structure '{structure}'")
         k = self.Fc - shift
         b0, b1, b2 = b
         a1, a2 = a

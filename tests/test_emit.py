@@ -15,7 +15,7 @@ from c_build import STRICT, emit_text, fake_realisation, hand_programs, run_head
 from conftest import lab_board_copy, target_copy
 from coefc.emit import C_KEYWORDS, EmitError, c_identifier, golden_input, render
 from coefc.errors import DescriptionError, TargetError
-from coefc.program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from coefc.program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURES
 from coefc.qformat import QFormat
 from coefc.simulate import simulate
 from coefc.targets import find_target
@@ -89,7 +89,7 @@ def test_no_vectors_means_no_golden_arrays():
 
 
 def test_identical_inputs_give_identical_bytes():
-    progs = hand_programs(MCU32, ("df1", "tdf2", "df1ef"))
+    progs = hand_programs(MCU32, STRUCTURES)
     assert _render(progs) == _render(progs)
 
 

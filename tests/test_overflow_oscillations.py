@@ -21,7 +21,7 @@ from hypothesis import strategies as st
 
 from exact_model import rshift  # rounding through exact fractions, from the definitions
 from coefc.analyse.limitcycles import analyse_limit_cycles, analyse_section
-from coefc.program import Arithmetic, ChannelProgram, SectionOp
+from coefc.program import Arithmetic, ChannelProgram, SectionOp, STRUCTURES
 from coefc.qformat import QFormat
 from coefc.simulate import simulate
 
@@ -242,7 +242,7 @@ def test_unproven_with_the_reason_when_the_state_space_is_large():
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(width=st.integers(6, 9), extra=st.integers(-3, 3), r=st.floats(0.5, 0.9995), t=st.floats(0.0, math.pi),
        rounding=st.sampled_from(ROUNDINGS), overflow=st.sampled_from(("saturate", "wrap")),
-       structure=st.sampled_from(("df1", "tdf2", "df1ef")), nudge=st.integers(-2, 2))
+       structure=st.sampled_from(STRUCTURES), nudge=st.integers(-2, 2))
 def test_random_small_sections_against_the_enumerator(width, extra, r, t, rounding, overflow, structure, nudge):
     # Issue 10: "random small-word sections through your enumerator against check's verdicts"
     fc = max(2, width + extra)

@@ -75,6 +75,7 @@ def test_coefficients_that_cannot_fit_are_saturated_and_noted():
     p = realise_channel(_design(SosBlock(big)), ar)
     assert p.sections()[0].shift == 5  # k = Fc - s = 1 is the limit
     assert any("saturated" in n for n in p.notes)
+    assert any(n.kind == "saturated" and n.departs_from_design for n in p.notes)  # the typed note
 
 
 def test_unstable_quantised_poles_are_noted():
@@ -83,12 +84,14 @@ def test_unstable_quantised_poles_are_noted():
     sos = np.array([[1.0, 0.0, 0.0, *a]])
     p = realise_channel(_design(SosBlock(sos)), MCU16.with_(coef=QFormat(2, 6)))
     assert any("unstable" in n for n in p.notes)
+    assert any(n.kind == "unstable" and n.departs_from_design for n in p.notes)  # the typed note
 
 
 def test_scaling_none_notes_a_numerator_that_lost_its_bits():
     sos = signal.butter(8, 100, fs=FS, output="sos")  # scipy puts the whole gain in section 1
     p = realise_channel(_design(SosBlock(sos)), MCU16.with_(scaling="none"))
     assert any("significant bits" in n for n in p.notes)
+    assert all(not n.departs_from_design for n in p.notes if "significant bits" in n)
     assert not any("significant bits" in n for n in realise_channel(_design(SosBlock(sos)), MCU16.with_(scaling="l2")).notes)
 
 

@@ -14,7 +14,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from coefc import simulate as sim
-from coefc.program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from coefc.program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURES
 from coefc.qformat import OVERFLOW_MODES, ROUNDING_MODES, QFormat
 
 import exact_model
@@ -31,7 +31,7 @@ def arithmetics(draw, max_acc=64, wide=False):
     return Arithmetic(data=QFormat(1, wd - 1), coef=QFormat(wc - fc, fc), acc_bits=acc,
                       rounding=draw(st.sampled_from(ROUNDING_MODES)),
                       overflow=draw(st.sampled_from(OVERFLOW_MODES)),
-                      structure=draw(st.sampled_from(("df1", "tdf2", "df1ef"))))
+                      structure=draw(st.sampled_from(STRUCTURES)))
 
 
 def _word(draw, fmt):
@@ -104,7 +104,7 @@ def test_wide_accumulators_and_words_equal_exact_model(case):
     _compare(prog, x)
 
 
-@pytest.mark.parametrize("structure", ["df1", "tdf2", "df1ef"])
+@pytest.mark.parametrize("structure", STRUCTURES)
 @pytest.mark.parametrize("acc", [32, 40, 64])
 def test_full_scale_32_bit_words_hit_both_accumulator_paths(structure, acc):
     # Q1.31 data and Q2.30 coefficients with extreme coefficients: sums leave int64
@@ -210,7 +210,7 @@ def test_fast_path_detects_a_difference_that_leaves_int64(structure):
     assert sim.simulate(prog, x, trace=True).acc_overflow_counts[0] > 0
 
 
-@pytest.mark.parametrize("structure", ["df1", "tdf2", "df1ef"])
+@pytest.mark.parametrize("structure", STRUCTURES)
 @pytest.mark.parametrize("rounding", ROUNDING_MODES)
 def test_first_sum_wraps_while_the_states_stay_in_range(structure, rounding):
     # a single large tap and a 40-bit accumulator: only B0 x[n] leaves the range

@@ -66,8 +66,8 @@ class Design:
             return Realisation(self, tgt, tuple(realise_channel(ch, arith) for ch in self.channels))
         except DescriptionError:
             raise
-        except CoefcError as e:  # name the file: realise only knows the channel
-            raise CoefcError(f"{d.source}: {e}") from None
+        except CoefcError as e:  # name the file: realise only knows the channel (the type is kept)
+            raise e.placed(d.source) from None
 
 
 @dataclass(frozen=True, eq=False)

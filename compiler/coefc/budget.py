@@ -48,28 +48,19 @@ import math
 from dataclasses import dataclass, field, replace
 from typing import Mapping, NamedTuple
 
+from .checks import (BUDGET_CHECKS, BY_NAME, DEFAULT_TONE_GAIN_ERROR_DB, HAZARD_DEFAULTS,  # noqa: F401
+                     SAFETY_CAUTION, LimitError, kind_of)
 from .errors import DescriptionError
 from .program import SectionOp
-from .reporting import format_against, format_limit
+from .reporting import format_limit
 from .spec import Budget
 
 SCHEMA = 1
 
-#: The tone check's limit when the budget names none: |measured - float design| in dB.
-DEFAULT_TONE_GAIN_ERROR_DB = 0.5
+_PASSBAND, _STOPBAND, _NOISE, _OFFSET = (BY_NAME[k] for k in ("passband_deviation_db", "stopband_attenuation_db",
+                                                               "output_noise_dbfs", "output_offset_lsb"))
 
-#: the hazards gated when the budget does not name them (overflow and limit cycles can
-#: drive an amplifier or actuator to full scale; a realisation that changes the signal,
-#: coefc.analyse.tones, is checked by default too)
-HAZARD_DEFAULTS = (("limit_cycles", "none"), ("overflow", "none"),
-                   ("tone_gain_error_db", DEFAULT_TONE_GAIN_ERROR_DB))
-
-CAUTION = (
-    "caution: this budget tolerates {what}. A fixed-point filter that overflows or "
-    "limit-cycles can drive an amplifier to full scale, damage drivers and hearing, and "
-    "in control loops damage machines. Verify against the standards and sign-off "
-    "practice that apply to your product before it drives real hardware."
-)
+CAUTION = "caution: this budget tolerates {what}. " + SAFETY_CAUTION[0].upper() + SAFETY_CAUTION[1:]
 
 
 class Check(NamedTuple):
@@ -79,6 +70,16 @@ class Check(NamedTuple):
     value: object
     limit: object
     ok: bool
+
+    @property
+    def kind(self):
+        """Its entry in the table of checks (:class:`coefc.checks.CheckKind`): comparison, unit, words."""
+        return kind_of(self.name)
+
+    @property
+    def op(self) -> str:
+        """How the value compares with the limit: ``<=``, ``>=`` or ``<``."""
+        return self.kind.op
 
 
 @dataclass(frozen=True, eq=False)
@@ -155,63 +156,35 @@ def _json_num(v):
 
 
 def _budget_dict(b: Budget) -> dict:
-    return {"passband_deviation_db": b.passband_deviation_db, "stopband_attenuation_db": b.stopband_attenuation_db,
-            "output_noise_dbfs": b.output_noise_dbfs, "output_offset_lsb": b.output_offset_lsb,
-            "limit_cycles": b.limit_cycles, "overflow": b.overflow, **_tone_budget(b),
+    from .analyse.tones import DEFAULT_LEVELS_DBFS
+
+    return {**{c.name: getattr(b, c.name) for c in BUDGET_CHECKS},
+            "tone_levels_dbfs": list(b.tone_levels_dbfs or DEFAULT_LEVELS_DBFS),
             "passband": [list(x) for x in b.passband] if b.passband else None,
             "stopband": [list(x) for x in b.stopband] if b.stopband else None}
 
 
 # ------------------------------------------------------------------ overrides
 
-def apply_overrides(budget: Budget, *, passband_deviation_db: float | None = None,
-                    stopband_attenuation_db: float | None = None, output_noise_dbfs: float | None = None,
-                    limit_cycles: str | None = None, overflow: str | None = None,
-                    output_offset_lsb: float | None = None) -> Budget:
+def apply_overrides(budget: Budget, **values) -> Budget:
     """Budget with command-line overrides applied (``None`` = keep the file's value).
 
-    ``limit_cycles`` is ``"none"`` or a number of LSB as text; ``overflow`` is
-    ``"none"`` or ``"allow"``.  Bad values raise :class:`DescriptionError`.
+    *values* are budget keys of :data:`coefc.checks.CHECKS` that have a command-line
+    option, as the option gives them (``limit_cycles`` as text: ``"none"`` or a number
+    of LSB; ``overflow``: ``"none"`` or ``"allow"``).  Bad values raise
+    :class:`DescriptionError` naming the option.
     """
-    where = "<command line>"
     ch = {}
-    if passband_deviation_db is not None:
-        if not (passband_deviation_db > 0 and math.isfinite(passband_deviation_db)):
-            raise DescriptionError(where, f"{passband_deviation_db} dB: use a positive, finite deviation such as 0.05",
-                                   key="--max-passband-deviation-db")
-        ch["passband_deviation_db"] = float(passband_deviation_db)
-    if stopband_attenuation_db is not None:
-        if not (stopband_attenuation_db > 0 and math.isfinite(stopband_attenuation_db)):
-            raise DescriptionError(where, f"{stopband_attenuation_db} dB: use a positive, finite attenuation such as 80",
-                                   key="--min-stopband-attenuation-db")
-        ch["stopband_attenuation_db"] = float(stopband_attenuation_db)
-    if output_noise_dbfs is not None:
-        if not (output_noise_dbfs < 0 and math.isfinite(output_noise_dbfs)):
-            raise DescriptionError(where, f"{output_noise_dbfs} dBFS is not a noise limit; write a finite "
-                                   "negative level such as -120", key="--max-noise-dbfs")
-        ch["output_noise_dbfs"] = float(output_noise_dbfs)
-    if output_offset_lsb is not None:
-        if not (output_offset_lsb >= 0 and math.isfinite(output_offset_lsb)):
-            raise DescriptionError(where, f"{output_offset_lsb} LSB: use a finite, non-negative offset such as 0.5",
-                                   key="--max-offset-lsb")
-        ch["output_offset_lsb"] = float(output_offset_lsb)
-    if limit_cycles is not None:
-        text = str(limit_cycles).strip().lower()
-        if text == "none":
-            ch["limit_cycles"] = "none"
-        else:
-            try:
-                v = float(text)
-            except ValueError:
-                v = -1.0
-            if not (v >= 0 and math.isfinite(v)):
-                raise DescriptionError(where, f"'{limit_cycles}' is not understood; write none or a maximum "
-                                       "amplitude in LSB such as 2", key="--limit-cycles")
-            ch["limit_cycles"] = v
-    if overflow is not None:
-        if overflow not in ("none", "allow"):
-            raise DescriptionError(where, f"'{overflow}': write none or allow", key="--overflow-budget")
-        ch["overflow"] = overflow
+    for key, value in values.items():
+        check = BY_NAME.get(key)
+        if check is None or check.option is None:
+            raise TypeError(f"apply_overrides: no command-line override for {key!r}")
+        if value is None:
+            continue
+        try:
+            ch[key] = check.validate(check.parse_option(value))
+        except LimitError as e:
+            raise DescriptionError("<command line>", str(e), key=check.option) from None
     return replace(budget, **ch, command_line=budget.command_line | frozenset(ch))
 
 
@@ -269,10 +242,10 @@ def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], di
 
     if budget.passband_deviation_db is not None:
         v, lim = r.passband_deviation_db, budget.passband_deviation_db
-        ok = v is not None and v <= lim
+        ok = v is not None and _PASSBAND.holds(v, lim)
         checks.append(Check("passband_deviation_db", v, lim, ok))
         why["passband_deviation_db"] = (
-            f"passband ({r.passband_rule}) deviates by up to {format_against(v, lim, '<=', ok)} dB"
+            f"passband ({r.passband_rule}) deviates by up to {_PASSBAND.value_text(v, lim, ok)} dB"
             + ("" if ok else f", over the {format_limit(lim)} dB limit; widen the coefficient word"))
 
     if budget.stopband_attenuation_db is not None:
@@ -281,10 +254,10 @@ def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], di
             checks.append(Check("stopband_attenuation_db", None, lim, True))
             why["stopband_attenuation_db"] = f"not applicable: no stopband ({r.stopband_rule})"
         else:
-            ok = v >= lim
+            ok = _STOPBAND.holds(v, lim)
             checks.append(Check("stopband_attenuation_db", v, lim, ok))
             why["stopband_attenuation_db"] = (
-                f"stopband ({r.stopband_rule}) is {format_against(v, lim, '>=', ok)} dB down "
+                f"stopband ({r.stopband_rule}) is {_STOPBAND.value_text(v, lim, ok)} dB down "
                 f"(float design {_fmt(r.float_stopband_attenuation_db)} dB)"
                 + ("" if ok else f", short of {format_limit(lim)} dB; widen the coefficient word or name the "
                    "stopband bands"))
@@ -298,10 +271,10 @@ def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], di
         me = metrics.measured.dbfs if metrics.measured else None
         vals = [x for x in (an, me) if x is not None]
         v = max(vals) if vals else None
-        ok = v is not None and v <= lim
+        ok = v is not None and _NOISE.holds(v, lim)
         checks.append(Check("output_noise_dbfs", v, lim, ok))
         why["output_noise_dbfs"] = (
-            f"roundoff noise {format_against(v, lim, '<=', ok) if v is not None else 'n/a'} dBFS "
+            f"roundoff noise {_NOISE.value_text(v, lim, ok) if v is not None else 'n/a'} dBFS "
             f"(variance of the output error; analytic {_fmt(an)}, measured {_fmt(me)}; AES17 dBFS)"
             + ("" if ok else f", above the {format_limit(lim)} dBFS limit; "
                + ("try tdf2, or a fixed-point target with a wide data word and error feedback (df1ef)"
@@ -460,8 +433,8 @@ def _offset_check(metrics, lim: float, no_figure: str, why: dict) -> Check:
         # the measurement overrides the model only where it is significantly larger
         if me is not None and se is not None and abs(me) - 3 * se > v:
             v, basis = abs(me), "measured"
-    ok = v is not None and v <= lim
-    text = format_against(v, lim, "<=", ok) if v is not None else "n/a"
+    ok = v is not None and _OFFSET.holds(v, lim)
+    text = _OFFSET.value_text(v, lim, ok) if v is not None else "n/a"
     why["output_offset_lsb"] = (
         f"DC offset of the output error {text} LSB ({basis}; analytic {_fmt(an)}, measured {_fmt(me)}"
         + (f" +- {se:.2g}" if se is not None else "") + " LSB)"
@@ -471,13 +444,6 @@ def _offset_check(metrics, lim: float, no_figure: str, why: dict) -> Check:
 
 
 # ------------------------------------------------------------------ steady tones (coefc.analyse.tones)
-
-def _tone_budget(b: Budget) -> dict:
-    from .analyse.tones import DEFAULT_LEVELS_DBFS
-
-    return {"tone_gain_error_db": b.tone_gain_error_db,
-            "tone_levels_dbfs": list(b.tone_levels_dbfs or DEFAULT_LEVELS_DBFS)}
-
 
 def _run_tones(design, program, metrics, budget: Budget):
     """The channel's tone analysis, or None when the budget switches the check off."""

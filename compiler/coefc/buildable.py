@@ -33,7 +33,8 @@ import re
 from dataclasses import dataclass
 
 from .errors import CoefcError, DescriptionError, TargetError
-from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
+from .spec import C99_KEYWORDS
 from .targets import BuildInfo, Target, check_kernel_words, kernel_info
 
 __all__ = ["EmitError", "C_KEYWORDS", "c_identifier", "c_names", "KernelOp", "kernel_program",
@@ -46,14 +47,10 @@ FOLDED_FIR_ABI = 2
 #: Largest rounding shift the kernels (and coefc's engine) compute.
 MAX_RSHIFT = 62
 
-STATE_WORDS = {"df1": 4, "tdf2": 2, "df1ef": 5}
+STATE_WORDS = {s.name: s.state_words for s in STRUCTURE_TABLE.values()}
 
-# C99 keywords and the names the standard headers we include reserve.
-C_KEYWORDS = frozenset("""
-    auto break case char const continue default do double else enum extern float
-    for goto if inline int long register restrict return short signed sizeof static
-    struct switch typedef union unsigned void volatile while _Bool _Complex _Imaginary
-""".split())
+# C99 keywords (ISO/IEC 9899:1999, 6.4.1): one set, coefc.spec's, for descriptions and headers alike.
+C_KEYWORDS = C99_KEYWORDS
 
 
 def _std_names() -> frozenset:

@@ -54,14 +54,15 @@ states in registers is common practice of filter kernels for microcontrollers
 from __future__ import annotations
 
 import re
+from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
 
 from .emit import EmitError
 from .errors import DescriptionError
-from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
 
-__all__ = ["CNames", "channel_cost", "cost_of", "render_kernel", "GeneratedCodeError"]
+__all__ = ["CNames", "ChannelCNames", "channel_cost", "cost_of", "render_kernel", "GeneratedCodeError"]
 
 _CTYPE_BITS = {"int8_t": 8, "int16_t": 16, "int32_t": 32, "int64_t": 64, "float": 32}
 #: Irregular block lengths of the self test (the state must carry across blocks of
@@ -80,74 +81,68 @@ class GeneratedCodeError(EmitError):
 # ---------------------------------------------------------------------------
 
 @dataclass(frozen=True)
+class ChannelCNames:
+    """Every C identifier and macro one channel of generated code defines (one record per channel)."""
+
+    owner: str  # "channel 2 'tweeter'", for messages
+    state_t: str
+    reset: str
+    process: str
+    golden_out: str
+    check: str
+    macros: Mapping[str, str]  # CHANNEL_MACROS entry -> macro
+
+    def identifiers(self) -> list[str]:
+        return [self.state_t, self.reset, self.process, self.golden_out, self.check, *self.macros.values()]
+
+
+@dataclass(frozen=True)
 class CNames:
     """The C identifiers of one generated header and source.
 
     ``name`` is the description's C name and ``channels`` the channel parts (as
     made by :func:`coefc.emit.c_identifier`); every identifier and macro of the
-    generated code comes from a method here.
+    generated code comes from the suffix tables here, the channel's in one
+    :class:`ChannelCNames` record (:meth:`channel`).
     """
 
     name: str
     channels: tuple[str, ...]  # channel parts (without the description prefix)
 
-    # -- public contract
-    @property
-    def data_t(self) -> str:
-        return f"{self.name}_data_t"
+    #: identifiers of the description: field -> suffix after the description's name
+    DESCRIPTION_SUFFIXES = {"data_t": "_data_t", "selftest": "_selftest", "golden_in": "_golden_in"}
+    #: identifiers of a channel: field of ChannelCNames -> suffix after the channel's identifier
+    CHANNEL_SUFFIXES = {"state_t": "_state_t", "reset": "_reset", "process": "_process",
+                        "golden_out": "_golden_out", "check": "_check"}
+    GLOBAL_MACROS = ("COEFC_H", "DATA_BITS", "DATA_FRAC_BITS", "COEF_BITS", "COEF_FRAC_BITS", "ACC_BITS",
+                     "SAMPLE_RATE_HZ", "OVER_BUDGET", "N_CHANNELS", "GOLDEN_LEN", "GENERATED_CODE")
+    CHANNEL_MACROS = ("MULS_PER_SAMPLE", "ADDS_PER_SAMPLE", "COEF_BYTES", "STATE_BYTES", "SECTIONS")
 
-    @property
-    def selftest(self) -> str:
-        return f"{self.name}_selftest"
+    def description(self) -> dict[str, str]:
+        """The description's identifiers by field (``data_t``, ``selftest``, ``golden_in``)."""
+        return {f: self.name + suffix for f, suffix in self.DESCRIPTION_SUFFIXES.items()}
 
-    def ident(self, i: int) -> str:
-        return f"{self.name}_{self.channels[i]}"
-
-    def state_t(self, i: int) -> str:
-        return f"{self.ident(i)}_state_t"
-
-    def reset(self, i: int) -> str:
-        return f"{self.ident(i)}_reset"
-
-    def process(self, i: int) -> str:
-        return f"{self.ident(i)}_process"
-
-    # -- macros
     def macro(self, what: str) -> str:
         return f"{self.name.upper()}_{what}"
-
-    def channel_macro(self, i: int, what: str) -> str:
-        return f"{self.ident(i).upper()}_{what}"
 
     @property
     def guard(self) -> str:
         return self.macro("COEFC_H")
 
-    # -- internal (static) names of the source
-    @property
-    def golden_in(self) -> str:
-        return f"{self.name}_golden_in"
-
-    def golden_out(self, i: int) -> str:
-        return f"{self.ident(i)}_golden_out"
-
-    def check(self, i: int) -> str:
-        return f"{self.ident(i)}_check"
-
-    GLOBAL_MACROS = ("COEFC_H", "DATA_BITS", "DATA_FRAC_BITS", "COEF_BITS", "COEF_FRAC_BITS", "ACC_BITS",
-                     "SAMPLE_RATE_HZ", "OVER_BUDGET", "N_CHANNELS", "GOLDEN_LEN", "GENERATED_CODE")
-    CHANNEL_MACROS = ("MULS_PER_SAMPLE", "ADDS_PER_SAMPLE", "COEF_BYTES", "STATE_BYTES", "SECTIONS")
+    def channel(self, i: int) -> ChannelCNames:
+        """The record of channel *i* (0-based)."""
+        ident = f"{self.name}_{self.channels[i]}"
+        return ChannelCNames(f"channel {i + 1} '{self.channels[i]}'",
+                             **{f: ident + suffix for f, suffix in self.CHANNEL_SUFFIXES.items()},
+                             macros={m: f"{ident.upper()}_{m}" for m in self.CHANNEL_MACROS})
 
     def all_identifiers(self) -> list[tuple[str, str]]:
         """(identifier, owner) of everything the generated code defines."""
-        out = [(self.data_t, "the description"), (self.selftest, "the description"),
-               (self.golden_in, "the description")]
+        out = [(v, "the description") for v in self.description().values()]
         out += [(self.macro(m), "the description") for m in self.GLOBAL_MACROS]
-        for i, ch in enumerate(self.channels):
-            owner = f"channel {i + 1} '{ch}'"
-            out += [(self.state_t(i), owner), (self.reset(i), owner), (self.process(i), owner),
-                    (self.golden_out(i), owner), (self.check(i), owner)]
-            out += [(self.channel_macro(i, m), owner) for m in self.CHANNEL_MACROS]
+        for i in range(len(self.channels)):
+            rec = self.channel(i)
+            out += [(v, rec.owner) for v in rec.identifiers()]
         return out
 
     def validate(self, source: str) -> None:
@@ -206,7 +201,7 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
     for op in program.ops:
         if isinstance(op, SectionOp):
             muls += 5
-            adds += 5 if op.structure == "df1ef" else 4
+            adds += 5 if STRUCTURE_TABLE[op.structure].error_feedback else 4
             coefs += 5
             state += _section_state_bytes(op, program, data_bytes)
         elif isinstance(op, FirOp):
@@ -245,15 +240,11 @@ def _container(program: ChannelProgram, k: int) -> int:
 
 
 def _section_state_bytes(op: SectionOp, program: ChannelProgram, data_bytes: int) -> int:
+    st = STRUCTURE_TABLE[op.structure]
     if program.arithmetic.is_float:
-        return 4 * (4 if op.structure in ("df1", "df1ef") else 2)
+        return 4 * st.state_words
     k = program.arithmetic.coef.frac_bits - op.shift
-    cb = _container(program, k) // 8
-    if op.structure == "df1":
-        return 4 * data_bytes
-    if op.structure == "tdf2":
-        return 2 * cb
-    return 4 * data_bytes + cb
+    return st.data_states * data_bytes + st.acc_states * (_container(program, k) // 8)
 
 
 # ---------------------------------------------------------------------------
@@ -627,14 +618,13 @@ def render_kernel(*, programs, names: CNames, source: str, banner: list[str], he
     stem = Path(header_name).stem
     channels = []
     for i, p in enumerate(programs):
+        rec = names.channel(i)
         ops = _fixed_ops(p, D) if fixed else _float_ops(p)
         cost = channel_cost(p, coef_bytes, data_bytes)
         fields = _fields_sorted(ops)
         channels.append({
             "name": p.name,
-            "state_t": names.state_t(i), "reset": names.reset(i), "process": names.process(i),
-            "golden_out": names.golden_out(i), "check": names.check(i),
-            "macros": {m: names.channel_macro(i, m) for m in CNames.CHANNEL_MACROS},
+            **{f: getattr(rec, f) for f in CNames.CHANNEL_SUFFIXES}, "macros": dict(rec.macros),
             "n_sections": len(p.sections()),
             "cost": cost,
             "fields": fields or [{"decl": "uint8_t unused;", "comment": "no state", "bits": 8}],
@@ -647,10 +637,8 @@ def render_kernel(*, programs, names: CNames, source: str, banner: list[str], he
         "header_name": header_name,
         "source_name": stem + ".c",
         "guard": names.guard,
-        "data_t": names.data_t,
+        **names.description(),
         "data_type": D,
-        "selftest": names.selftest,
-        "golden_in": names.golden_in,
         "M": {m: names.macro(m) for m in CNames.GLOBAL_MACROS},
         "fixed": fixed,
         "arith": {"data_bits": arith.data.width if fixed else 32,

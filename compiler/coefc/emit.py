@@ -58,6 +58,7 @@ import numpy as np
 
 from .buildable import (C_KEYWORDS, FOLDED_FIR_ABI, SUPPORTED_ABI, EmitError, KernelOp, c_identifier,
                         validate)
+from .checks import SAFETY_CAUTION, over_budget_text
 from .errors import CoefcError, TargetError
 from .program import DelayOp, FirOp, GainOp, SectionOp
 from .targets import Target
@@ -264,9 +265,7 @@ def _check_rows(ch_report):
 _KEY_METRICS = ("passband_deviation_db", "stopband_attenuation_db", "output_noise_dbfs",
                 "headroom_bits", "overflow_count", "max_pole_radius")
 
-CAUTION = ("Caution: a fixed-point filter that overflows or limit-cycles can drive an amplifier or "
-           "actuator to full scale; verify on the hardware and follow the standards and sign-off "
-           "practice that apply to your product.")
+CAUTION = "Caution: " + SAFETY_CAUTION
 
 
 def _wrap(text: str, width: int = 76, indent: str = "") -> list[str]:
@@ -395,7 +394,7 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
             rows = _check_rows(rc)
             for name, value, limit, ok in rows:
                 if not ok:
-                    banner_metrics.append(f"  OVER BUDGET '{p.name}': {name} = {_fmt(value)} (limit {_fmt(limit)})")
+                    banner_metrics.append(f"  OVER BUDGET '{p.name}': {over_budget_text(name, value, limit)}")
             checked = {r[0] for r in rows}
             risks = []
             if (metrics.get("overflow_count") or 0) > 0 and "overflow" not in checked:

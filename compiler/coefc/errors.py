@@ -15,7 +15,19 @@ from collections.abc import Iterable
 
 
 class CoefcError(Exception):
-    """Base class of every error the library raises on purpose."""
+    """Base class of every error the library raises on purpose.
+
+    ``source`` names the file the error is about, when known (``None``: not yet);
+    :meth:`placed` adds it without changing the error's type.
+    """
+
+    source: str | None = None
+
+    def placed(self, source: str) -> "CoefcError":
+        """This error (same type) with *source* set and named at the start of its message."""
+        self.source = source
+        self.args = (f"{source}: {self}",) + self.args[1:]
+        return self
 
 
 class DescriptionError(CoefcError):

@@ -19,7 +19,8 @@ from pathlib import Path
 import numpy as np
 
 from .errors import CoefcError
-from .reporting import CHECK_OPS, format_against, format_limit, format_number
+from .checks import BUDGET_CHECKS, SAFETY_CAUTION, kind_of
+from .reporting import format_limit, format_number
 
 TEMPLATE_DIR = Path(__file__).parent / "templates"
 
@@ -155,7 +156,7 @@ def render_report(report, realisation) -> str:
             "name": ch.name,
             "ok": ch.ok,
             "arithmetic": ", ".join(f"{k} {v}" for k, v in ch.arithmetic.items() if v is not None),
-            "checks": [{"name": c.name, "value": format_against(c.value, c.limit, CHECK_OPS.get(c.name, "<="), c.ok),
+            "checks": [{"name": c.name, "value": kind_of(c.name).value_text(c.value, c.limit, c.ok),
                         "limit": format_limit(c.limit), "ok": c.ok,
                         "reason": ch.reasons.get(c.name, "")} for c in ch.checks],
             "sections": [{"index": i + 1, "b": s["b"], "a": s["a"], "coef_shift": s["coef_shift"],
@@ -177,12 +178,8 @@ def render_report(report, realisation) -> str:
     html = env.get_template("report.html.j2").render(
         version=__version__, source=report.source, target=report.target, ok=report.ok,
         cautions=list(report.cautions), channels=channels,
-        budget={k: v for k, v in (("passband deviation (dB)", budget.passband_deviation_db),
-                                  ("stopband attenuation (dB)", budget.stopband_attenuation_db),
-                                  ("output noise (dBFS)", budget.output_noise_dbfs),
-                                  ("output offset (LSB)", budget.output_offset_lsb),
-                                  ("limit cycles", _defaulted(report, "limit_cycles", budget.limit_cycles)),
-                                  ("overflow", _defaulted(report, "overflow", budget.overflow)))
-                if v is not None},
+        safety_caution=SAFETY_CAUTION[0].upper() + SAFETY_CAUTION[1:],
+        budget={f"{c.title} ({c.unit})" if c.unit else c.title: _defaulted(report, c.name, getattr(budget, c.name))
+                for c in BUDGET_CHECKS if getattr(budget, c.name) is not None},
     )
     return re.sub(r"[ \t]+\n", "\n", html)

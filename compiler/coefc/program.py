@@ -60,10 +60,76 @@ float32 order (every step rounded to float32, no fused multiply-add)::
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from typing import Literal
 
 from .qformat import QFormat
 
-STRUCTURES = ("df1", "tdf2", "df1ef")
+
+#: what a realisation note is about
+NoteKind = Literal["unstable", "saturated", "precision", "pairing", "scaling"]
+
+
+class Note(str):
+    """A note of the realisation: its text (a ``str``, printed as is) and its ``kind``, for code to test.
+
+    ``unstable`` (quantised poles on or outside the unit circle) and ``saturated``
+    (a coefficient that does not fit its word) mean the program is not what the
+    design meant (:attr:`departs_from_design`); ``precision``, ``pairing`` and
+    ``scaling`` explain choices and costs.
+    """
+
+    kind: NoteKind
+
+    def __new__(cls, kind: NoteKind, text: str) -> "Note":
+        note = super().__new__(cls, text)
+        note.kind = kind
+        return note
+
+    def __getnewargs__(self):
+        return (self.kind, str(self))
+
+    @property
+    def departs_from_design(self) -> bool:
+        return self.kind in ("unstable", "saturated")
+
+
+@dataclass(frozen=True)
+class Structure:
+    """One second-order-section structure: the facts every part of coefc reads about it.
+
+    Its recurrence is written above (and in every reader listed in DEVELOPERS.md,
+    "Adding a structure"); this record holds what the readers need besides:
+    ``engine_code`` is its number in the compiled engine (``_engine.c``),
+    ``data_states``/``acc_states`` the state words it keeps at data and at
+    accumulator precision (kernel state words, state bytes, memory estimates),
+    ``error_feedback`` whether the rounding residual is fed back (the noise is then
+    shaped by ``1 - z^-1``: noise model, scaling, limit-cycle search, an extra add),
+    ``float32`` whether a float32 target can run it.
+    """
+
+    name: str
+    description: str
+    engine_code: int
+    data_states: int
+    acc_states: int
+    error_feedback: bool = False
+    float32: bool = True
+
+    @property
+    def state_words(self) -> int:
+        """State words of one section in the reference kernels."""
+        return self.data_states + self.acc_states
+
+
+#: The table of structures: adding one is an entry here, its recurrence (above, the engine,
+#: tests/exact_model.py, the C kernels and coefc.codegen) and its noise and limit-cycle models.
+STRUCTURE_TABLE: dict[str, Structure] = {s.name: s for s in (
+    Structure("df1", "direct form I", 0, data_states=4, acc_states=0),
+    Structure("tdf2", "transposed direct form II", 1, data_states=0, acc_states=2),
+    Structure("df1ef", "direct form I with first-order error feedback", 2, data_states=4, acc_states=1,
+              error_feedback=True, float32=False),
+)}
+STRUCTURES = tuple(STRUCTURE_TABLE)
 SCALINGS = ("none", "l1", "l2", "linf")
 KINDS = ("fixed", "float32")
 
@@ -155,7 +221,7 @@ class ChannelProgram:
     sample_rate_hz: float
     arithmetic: Arithmetic
     ops: tuple[Op, ...]
-    notes: tuple[str, ...] = field(default_factory=tuple)  # saturated coefficients, pairing choices, ...
+    notes: tuple[Note, ...] = field(default_factory=tuple)  # saturated coefficients, pairing choices, ...
 
     def sections(self) -> tuple[SectionOp, ...]:
         return tuple(op for op in self.ops if isinstance(op, SectionOp))

@@ -12,11 +12,11 @@ import json
 import math
 from xml.sax.saxutils import escape, quoteattr
 
+from .checks import kind_of
+
 DBFS_NOTE = ("dBFS per AES17: 0 dBFS = RMS of a full-scale sine (full scale = 1.0); "
              "peaks are fractions of full scale (dB re full-scale peak).")
 
-#: how each numeric check compares its value with its limit (all others: value <= limit)
-CHECK_OPS = {"stopband_attenuation_db": ">=", "stable": "<"}
 
 
 def format_number(v) -> str:
@@ -70,13 +70,11 @@ def format_against(value, limit, op: str = "<=", ok: bool | None = None) -> str:
 
 
 def _limit(name: str, limit) -> str:
-    if isinstance(limit, str):
-        return limit
-    return f"{CHECK_OPS.get(name, '<=')} {format_limit(limit)}"
+    return kind_of(name).limit_text(limit)
 
 
 def _value(name: str, c) -> str:
-    return format_against(c.value, c.limit, CHECK_OPS.get(name, "<="), c.ok)
+    return kind_of(name).value_text(c.value, c.limit, c.ok)  # the check's own comparison, from the table
 
 
 def render_text(report) -> str:

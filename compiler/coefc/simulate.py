@@ -31,7 +31,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import DataError
-from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
 from .qformat import ROUNDING_MODES, round_shift
 
 try:  # the compiled core; the exact Python path covers its absence
@@ -41,7 +41,7 @@ except ImportError:  # pragma: no cover - a broken build; see HAVE_ENGINE
 
 HAVE_ENGINE = _engine is not None and hasattr(_engine, "cascade")
 
-_STRUCT_CODE = {"df1": 0, "tdf2": 1, "df1ef": 2}
+_STRUCT_CODE = {s.name: s.engine_code for s in STRUCTURE_TABLE.values()}
 _ROUND_CODE = {m: i for i, m in enumerate(ROUNDING_MODES)}  # add-half, truncate, half-even, toward-zero
 _OVF_CODE = {"saturate": 0, "wrap": 1}
 

@@ -24,7 +24,13 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from types import MappingProxyType
 
+from .checks import BUDGET_CHECKS, LimitError, as_number
+from .checks import fmt_number as _fmt
+from .checks import type_name as _type_name
 from .errors import DescriptionError, close_match
+from .stagekinds import (EQ_KINDS, FIR_KINDS, FIR_METHODS, IIR_KINDS, IIR_RESPONSES,  # noqa: F401 (re-exported)
+                         MAX_FIR_TAPS, MAX_IIR_ORDER, MAX_LS_TAPS, STAGE_KINDS_TABLE, WEIGHTINGS)
+from .stagekinds import FREQ_KEYS as _FREQ_KEYS
 
 # --------------------------------------------------------------------------- model
 
@@ -60,7 +66,6 @@ class Budget:
     output_offset_lsb: float | None = None  # maximum |DC offset of the output error|, LSB
     tone_gain_error_db: float | str | None = None  # None: the default limit; "off": not checked
     tone_levels_dbfs: tuple[float, ...] | None = None  # None: the default levels
-    extra: Mapping = field(default_factory=lambda: MappingProxyType({}))  # keys added by later checks
     passband: tuple[tuple[float, float], ...] | None = None
     stopband: tuple[tuple[float, float], ...] | None = None
     command_line: frozenset = frozenset()  # keys set on the command line: no [channel.budget] overrides them
@@ -111,19 +116,8 @@ class Description:
 
 # ------------------------------------------------------------------ vocabulary
 
-#: Responses of the classic IIR kinds (lowpass, highpass, bandpass, bandstop).
-IIR_RESPONSES = ("butterworth", "chebyshev1", "chebyshev2", "elliptic", "bessel", "linkwitz-riley", "biquad")
-IIR_KINDS = ("lowpass", "highpass", "bandpass", "bandstop")
-FIR_KINDS = ("fir-lowpass", "fir-highpass", "fir-bandpass", "fir-bandstop")
-FIR_METHODS = ("kaiser", "equiripple", "least-squares")
-EQ_KINDS = ("peaking", "lowshelf", "highshelf", "notch", "allpass")
-WEIGHTINGS = ("A", "C")
-
-#: Largest IIR order and FIR length accepted (beyond them no fixed-point
-#: realisation is sensible and the float design itself loses accuracy).
-MAX_IIR_ORDER = 40
-MAX_FIR_TAPS = 8191
-MAX_LS_TAPS = 4095  # least squares solves an N x N system (8191 taps: 0.8 GB)
+# the stage kinds, their keys, the kind tuples and MAX_IIR_ORDER / MAX_FIR_TAPS are
+# declared in coefc.stagekinds (one table per design module) and imported above
 MAX_DELAY_SAMPLES = 1 << 20
 MAX_COEFFICIENT = 1e6  # raw coefficients (sos, transfer, fir): 120 dB of gain in one coefficient
 #: Bounds on the work one description can ask for (a merge gate must finish): the
@@ -141,6 +135,7 @@ MAX_CHANNEL_DELAY_SAMPLES = 1 << 20  # delay of one channel, all stages together
 MIN_SAMPLE_RATE_HZ = 0.001
 MAX_SAMPLE_RATE_HZ = 1e9
 
+#: C99 keywords (ISO/IEC 9899:1999, section 6.4.1); names of descriptions and channels become C identifiers
 C99_KEYWORDS = frozenset(
     "auto break case char const continue default do double else enum extern float for goto if "
     "inline int long register restrict return short signed sizeof static struct switch typedef "
@@ -171,28 +166,11 @@ class _Place:
         return DescriptionError(self.source, message, channel=self.channel, stage=self.stage, key=key)
 
 
-def _type_name(v) -> str:
-    if isinstance(v, bool):
-        return f"a boolean ({str(v).lower()})"
-    if isinstance(v, str):
-        return f"a string ({v!r})"
-    if isinstance(v, (int, float)):
-        return f"a number ({v})"
-    if isinstance(v, list):
-        return "a list"
-    if isinstance(v, dict):
-        return "a table"
-    return type(v).__name__
-
-
 def _number(v, where: _Place) -> float:
-    if isinstance(v, bool) or not isinstance(v, (int, float)):
-        raise where.fail(f"expected a number, got {_type_name(v)}; write a plain number such as 1000")
-    if isinstance(v, float) and not math.isfinite(v):
-        raise where.fail(f"{v} is not allowed; write a finite number")
-    if isinstance(v, int) and abs(v) > 1e300:
-        raise where.fail(f"{v} is too large; write a finite number of sensible size")
-    return float(v)
+    try:
+        return as_number(v)
+    except LimitError as e:
+        raise where.fail(str(e)) from None
 
 
 def _positive(v, where: _Place) -> float:
@@ -297,63 +275,34 @@ def _band(v, where: _Place, allow_zero: bool = False) -> tuple[float, float]:
     return (lo, hi)
 
 
-def _fmt(x: float) -> str:
-    return f"{x:g}" if abs(x) < 1e15 else f"{x:.6g}"
-
-
-# Stage schemas: kind -> {key: checker}.  ``kind`` itself is always allowed.
-# Edge keys (cutoff_hz, passband_hz, stopband_hz) are a number for low/high-pass
-# kinds and a band for band-pass/stop kinds; see _edge_checker.
+# Stage schemas: kind -> {key: checker}, built from the tables of stage kinds
+# (coefc.stagekinds).  ``kind`` itself is always allowed.  Edge keys (cutoff_hz,
+# passband_hz, stopband_hz) are a number for low/high-pass kinds and a band for
+# band-pass/stop kinds: the checker is the marker _EDGE, resolved in _stage.
 _EDGE = "edge"
 
-_IIR_KEYS = {
-    "response": _choice(*IIR_RESPONSES),
-    "order": _positive_int,
-    "cutoff_hz": _EDGE,
-    "passband_hz": _EDGE,
-    "stopband_hz": _EDGE,
-    "ripple_db": _positive,
-    "attenuation_db": _positive,
-    "margin_db": _non_negative,
-    "freq_hz": _frequency,
-    "q": _positive,
-    "bandwidth_oct": _positive,
-}
-_FIR_KEYS = {
-    "method": _choice(*FIR_METHODS),
-    "passband_hz": _EDGE,
-    "stopband_hz": _EDGE,
-    "attenuation_db": _positive,
-    "ripple_db": _positive,
-    "margin_db": _non_negative,
-    "taps": _positive_int,
-}
-STAGE_KEYS: dict[str, dict] = {
-    **{k: _IIR_KEYS for k in IIR_KINDS},
-    **{k: _FIR_KEYS for k in FIR_KINDS},
-    "peaking": {"freq_hz": _frequency, "gain_db": _number, "q": _positive, "bandwidth_oct": _positive},
-    "lowshelf": {"freq_hz": _frequency, "gain_db": _number, "q": _positive, "slope": _positive},
-    "highshelf": {"freq_hz": _frequency, "gain_db": _number, "q": _positive, "slope": _positive},
-    "notch": {"freq_hz": _frequency, "q": _positive, "bandwidth_oct": _positive},
-    "allpass": {"freq_hz": _frequency, "q": _positive, "bandwidth_oct": _positive},
-    "weighting": {"weighting": _choice(*WEIGHTINGS)},
-    "dc-blocker": {"cutoff_hz": _frequency},
-    "gain": {"db": _number, "linear": _positive, "invert": _boolean},
-    "delay": {"samples": _integer, "ms": _non_negative, "metres": _non_negative, "air_temperature_c": _number},
-    "sos": {"sections": _sections},
-    "transfer": {"b": _number_list(1, MAX_FIR_TAPS), "a": _number_list(1, 2 * MAX_IIR_ORDER + 1)},
-    "fir": {"taps": _number_list(1, MAX_FIR_TAPS)},
-}
-STAGE_KINDS = tuple(STAGE_KEYS)
 
-#: Keys holding a frequency that must lie below Nyquist.
-_FREQ_KEYS = ("cutoff_hz", "passband_hz", "stopband_hz", "freq_hz")
+def _checker(key):
+    """The checker of one key rule of :class:`coefc.stagekinds.Key`."""
+    if key.rule == "edge":
+        return _EDGE
+    if key.rule == "choice":
+        return _choice(*key.choices)
+    if key.rule == "numbers":
+        return _number_list(*key.length)
+    return {"frequency": _frequency, "positive": _positive, "non_negative": _non_negative, "number": _number,
+            "integer": _integer, "positive_int": _positive_int, "boolean": _boolean,
+            "sections": _sections}[key.rule]
+
+
+STAGE_KEYS: dict[str, dict] = {kind: {k: _checker(key) for k, key in sk.keys.items()}
+                               for kind, sk in STAGE_KINDS_TABLE.items()}
+STAGE_KINDS = tuple(STAGE_KEYS)
 
 _TOP_KEYS = ("name", "sample_rate_hz", "implementation", "budget", "channel")
 _IMPL_KEYS = ("target", "structure", "data", "coef", "acc_bits", "rounding", "overflow", "scaling")
-_BUDGET_KEYS = ("passband_deviation_db", "stopband_attenuation_db", "output_noise_dbfs", "limit_cycles",
-                "overflow", "passband", "stopband", "output_offset_lsb", "tone_gain_error_db",
-                "tone_levels_dbfs")
+#: [budget] keys: one per budget check (coefc.checks.CHECKS), then the keys that shape checks
+_BUDGET_KEYS = tuple(c.name for c in BUDGET_CHECKS) + ("passband", "stopband", "tone_levels_dbfs")
 _CHANNEL_KEYS = ("name", "stages", "budget")
 
 
@@ -534,44 +483,12 @@ def _budget_values(t, where: _Place, fs: float, header: str) -> dict:
     t = _table(t, _Place(where.source, where.channel, key="budget"), header)
     _check_keys(t, _BUDGET_KEYS, where, f"[{header}]")
     out: dict = {}
-    if "passband_deviation_db" in t:
-        out["passband_deviation_db"] = _positive(t["passband_deviation_db"], where.at("passband_deviation_db"))
-    if "stopband_attenuation_db" in t:
-        out["stopband_attenuation_db"] = _positive(t["stopband_attenuation_db"], where.at("stopband_attenuation_db"))
-    if "output_noise_dbfs" in t:
-        x = _number(t["output_noise_dbfs"], where.at("output_noise_dbfs"))
-        if x >= 0:
-            raise where.at("output_noise_dbfs").fail(
-                f"{_fmt(x)} dBFS is not a noise limit; write a negative level such as -120")
-        out["output_noise_dbfs"] = x
-    if "output_offset_lsb" in t:
-        x = _number(t["output_offset_lsb"], where.at("output_offset_lsb"))
-        if x < 0:
-            raise where.at("output_offset_lsb").fail(
-                f"{_fmt(x)} LSB: write the largest DC offset allowed, a non-negative number such as 0.5")
-        out["output_offset_lsb"] = x
-    if "limit_cycles" in t:
-        v = t["limit_cycles"]
-        w = where.at("limit_cycles")
-        if isinstance(v, str):
-            if v != "none":
-                raise w.fail(f"'{v}' is not understood; write \"none\" or a maximum amplitude in LSB (e.g. 1)")
-            out["limit_cycles"] = "none"
-        else:
-            x = _number(v, w)
-            if x < 0:
-                raise w.fail(f"{_fmt(x)} LSB: an amplitude cannot be negative")
-            out["limit_cycles"] = x
-    if "overflow" in t:
-        out["overflow"] = _choice("none", "allow")(t["overflow"], where.at("overflow"))
-    if "tone_gain_error_db" in t:
-        v, w = t["tone_gain_error_db"], where.at("tone_gain_error_db")
-        if isinstance(v, str):
-            if v != "off":
-                raise w.fail(f"'{v}' is not understood; write a largest error in dB (e.g. 0.5) or \"off\"")
-            out["tone_gain_error_db"] = "off"
-        else:
-            out["tone_gain_error_db"] = _positive(v, w)
+    for check in BUDGET_CHECKS:
+        if check.name in t:
+            try:
+                out[check.name] = check.validate(t[check.name])
+            except LimitError as e:
+                raise where.at(check.name).fail(str(e)) from None
     if "tone_levels_dbfs" in t:
         w = where.at("tone_levels_dbfs")
         levels = _number_list(1, 8)(t["tone_levels_dbfs"], w)

@@ -45,7 +45,7 @@ from dataclasses import dataclass, field
 
 from .budget import CheckReport, run_check
 from .errors import DescriptionError
-from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
 from .qformat import QFormat
 from .spec import Budget
 from .targets import Overrides
@@ -250,7 +250,8 @@ def program_memory_bytes(program: ChannelProgram) -> int:
     for op in program.ops:
         if isinstance(op, SectionOp):
             total += 5 * cw
-            total += {"df1": 4 * dw, "tdf2": 2 * aw, "df1ef": 4 * dw + aw}.get(op.structure, 4 * dw)
+            st = STRUCTURE_TABLE[op.structure]
+            total += st.data_states * dw + st.acc_states * aw
         elif isinstance(op, FirOp):
             n = len(op.taps)
             total += (n + 1) // 2 * cw if op.symmetric else n * cw

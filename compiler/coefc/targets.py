@@ -19,7 +19,7 @@ from pathlib import Path
 from types import MappingProxyType
 
 from .errors import DescriptionError, TargetError, close_match
-from .program import KINDS, SCALINGS, STRUCTURES, Arithmetic
+from .program import KINDS, SCALINGS, STRUCTURE_TABLE, STRUCTURES, Arithmetic
 from .qformat import OVERFLOW_MODES, ROUNDING_HINTS, ROUNDING_MODES, QFormat
 
 ENV_VAR = "COEFC_TARGET_PATH"
@@ -202,7 +202,7 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
                 except ValueError as e:
                     raise DescriptionError(where, str(e), key=key) from None
             elif key == "structure":
-                if arith.is_float and v == "df1ef" and where != "<command line>":
+                if arith.is_float and v in STRUCTURE_TABLE and not STRUCTURE_TABLE[v].float32 and where != "<command line>":
                     # Error feedback re-injects a fixed-point rounding residual; float32
                     # has none, so a description's df1ef means plain df1 there.
                     v = "df1"

@@ -26,7 +26,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
 
 #: impulse responses stop where the slowest pole has decayed below this factor
 DECAY = 1e-13
@@ -131,7 +131,7 @@ def _build_models(program: ChannelProgram) -> list[OpModel]:
             a = np.array([1.0] + [phys(c, op.shift) for c in op.a])
             k = 0 if ar.is_float else effective_drop(tuple(op.b) + tuple(op.a), fc - op.shift)
             structure = op.structure or ar.structure
-            nb = np.array([1.0, -1.0]) if structure == "df1ef" else one
+            nb = np.array([1.0, -1.0]) if STRUCTURE_TABLE[structure].error_feedback else one
             out.append(OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift), structure))
         elif isinstance(op, FirOp):
             b = np.array([phys(c, op.shift) for c in op.taps])

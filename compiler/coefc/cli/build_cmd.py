@@ -16,7 +16,6 @@ import typer
 
 from ..errors import CoefcError
 from . import app, options
-from .check_cmd import LimitCycles, MaxDeviation, MaxNoise, MaxOffset, MinStopband, OverflowBudget
 
 Output = Annotated[Path, typer.Option("-o", "--output", metavar="OUT.h", help="Header to write (OUT.h).")]
 Vectors = Annotated[int, typer.Option(
@@ -33,6 +32,7 @@ ReferenceKernel = Annotated[bool, typer.Option(
 
 
 @app.command()
+@options.with_budget_overrides
 def build(
     file: Annotated[Path, typer.Argument(metavar="FILE", help="Filter description (.toml).")],
     output: Output,
@@ -50,13 +50,8 @@ def build(
     check_only: CheckOnly = False,
     force: Force = False,
     kernel: Kernel = False,
-    max_passband_deviation_db: MaxDeviation = None,
-    min_stopband_attenuation_db: MinStopband = None,
-    max_noise_dbfs: MaxNoise = None,
-    max_offset_lsb: MaxOffset = None,
-    limit_cycles: LimitCycles = None,
-    overflow_budget: OverflowBudget = None,
     reference_kernel: ReferenceKernel = False,
+    budget_overrides: dict = None,
 ) -> None:
     """Check, then write the C header: generated code (--kernel) or the operation table (exit 0 / 1 / 2).
 
@@ -64,6 +59,7 @@ def build(
     version and the SHA-256 of the description and of the target.toml, never a time.
     """
     from ..budget import apply_overrides, run_check
+    from ..checks import over_budget_text
     from ..emit import render
     from ..fileio import check_output, write_atomic
     from ..buildable import validate
@@ -87,15 +83,12 @@ def build(
     inputs = [file, real.target.folder / "target.toml", *info.kernel_files(real.target.folder)]
     if not check_only:
         check_output(output, inputs, "header")
-    budget = apply_overrides(loaded.description.budget, passband_deviation_db=max_passband_deviation_db,
-                             stopband_attenuation_db=min_stopband_attenuation_db,
-                             output_noise_dbfs=max_noise_dbfs, limit_cycles=limit_cycles,
-                             overflow=overflow_budget, output_offset_lsb=max_offset_lsb)
+    budget = apply_overrides(loaded.description.budget, **budget_overrides)
     report = run_check(real, budget)
     for c in report.cautions:
         print(f"coefc: {c}", file=sys.stderr)
     for ch, chk, why in report.failures():  # said whether or not --force writes the header anyway
-        print(f"coefc: over budget: channel '{ch}': {chk.name} = {chk.value} (limit {chk.limit})"
+        print(f"coefc: over budget: channel '{ch}': {over_budget_text(chk.name, chk.value, chk.limit)}"
               + (f": {why}" if why else ""), file=sys.stderr)
     if not report.ok and not force:
         print(f"coefc: {output}: not written (the check failed; --force writes it anyway)", file=sys.stderr)

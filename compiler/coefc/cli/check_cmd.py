@@ -17,18 +17,12 @@ import typer
 
 from . import app, options
 
-MaxDeviation = Annotated[Optional[float], typer.Option(
-    "--max-passband-deviation-db", metavar="DB", help="Budget override: largest |quantised - float| in the passband, dB.")]
-MinStopband = Annotated[Optional[float], typer.Option(
-    "--min-stopband-attenuation-db", metavar="DB", help="Budget override: smallest stopband attenuation, dB.")]
-MaxNoise = Annotated[Optional[float], typer.Option(
-    "--max-noise-dbfs", metavar="DBFS", help="Budget override: largest output roundoff noise, dBFS (AES17).")]
-MaxOffset = Annotated[Optional[float], typer.Option(
-    "--max-offset-lsb", metavar="LSB", help="Budget override: largest DC offset of the output error, LSB.")]
-LimitCycles = Annotated[Optional[str], typer.Option(
-    "--limit-cycles", metavar="none|N", help="Budget override: 'none' (must be proven; the default) or a largest amplitude in LSB.")]
-OverflowBudget = Annotated[Optional[str], typer.Option(
-    "--overflow-budget", metavar="none|allow", help="Budget override: 'none' (no overflow under worst-case input; the default) or 'allow'.")]
+# single options of the table of checks, for commands that take only some (sweep)
+MaxDeviation = options.budget_option("passband_deviation_db")
+MinStopband = options.budget_option("stopband_attenuation_db")
+MaxNoise = options.budget_option("output_noise_dbfs")
+LimitCycles = options.budget_option("limit_cycles")
+OverflowBudget = options.budget_option("overflow")
 JUnit = Annotated[Optional[str], typer.Option("--junit", metavar="PATH", help="Also write a JUnit XML report to PATH.")]
 NoiseSamples = Annotated[int, typer.Option(
     "--noise-samples", metavar="N", min=1024, max=1 << 22, help="Length of the measured-noise stimulus in samples (1024 to 4194304).")]
@@ -37,6 +31,7 @@ SearchLimit = Annotated[int, typer.Option(
 
 
 @app.command()
+@options.with_budget_overrides
 def check(
     file: Annotated[Path, typer.Argument(metavar="FILE", help="Filter description (.toml).")],
     target: options.Target = None,
@@ -51,14 +46,9 @@ def check(
     channel: options.Channel = None,
     json_out: options.JsonOut = None,
     junit: JUnit = None,
-    max_passband_deviation_db: MaxDeviation = None,
-    min_stopband_attenuation_db: MinStopband = None,
-    max_noise_dbfs: MaxNoise = None,
-    max_offset_lsb: MaxOffset = None,
-    limit_cycles: LimitCycles = None,
-    overflow_budget: OverflowBudget = None,
     noise_samples: NoiseSamples = 1 << 15,
     search_limit: SearchLimit = 1 << 24,
+    budget_overrides: dict = None,
 ) -> None:
     """Realise, analyse and gate against the budget (exit 0 pass, 1 over budget, 2 bad input).
 
@@ -76,10 +66,7 @@ def check(
 
     validate(real)  # what `coefc build` would refuse fails here too (exit 2), before the analysis
     desc = loaded.description
-    budget = apply_overrides(desc.budget, passband_deviation_db=max_passband_deviation_db,
-                             stopband_attenuation_db=min_stopband_attenuation_db,
-                             output_noise_dbfs=max_noise_dbfs, limit_cycles=limit_cycles,
-                             overflow=overflow_budget, output_offset_lsb=max_offset_lsb)
+    budget = apply_overrides(desc.budget, **budget_overrides)
     report = run_check(real, budget, options=AnalysisOptions(noise_samples=noise_samples, max_states=search_limit))
     if junit:
         from ..fileio import write_atomic

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import functools
+import inspect
 import json
 import sys
 from pathlib import Path
@@ -91,3 +93,40 @@ def write_json(obj, dest: str | None) -> None:
         from ..fileio import write_atomic
 
         write_atomic(Path(dest), text)
+
+
+def budget_option(key: str):
+    """The command-line override option of the budget check *key*, as the table of checks declares it."""
+    from ..checks import BY_NAME
+
+    c = BY_NAME[key]
+    kind = Optional[str] if c.text_option else Optional[float]
+    return Annotated[kind, typer.Option(c.option, metavar=c.metavar, help=c.option_help)]
+
+
+def with_budget_overrides(command):
+    """Give *command* the override option of every check that has one (:data:`coefc.checks.CHECKS`).
+
+    The options are declared once, from the table of checks, for ``check`` and
+    ``build`` alike; *command* receives them as one mapping ``budget_overrides``
+    (budget key -> value or None), ready for :func:`coefc.budget.apply_overrides`.
+    """
+    from ..checks import OPTION_CHECKS
+
+    sig = inspect.signature(command, eval_str=True)
+    params = [p for p in sig.parameters.values() if p.name != "budget_overrides"]
+    keys: dict[str, str] = {}
+    for c in OPTION_CHECKS:
+        name = c.option.lstrip("-").replace("-", "_")
+        params.append(inspect.Parameter(name, inspect.Parameter.POSITIONAL_OR_KEYWORD, default=None,
+                                        annotation=budget_option(c.name)))
+        keys[name] = c.name
+
+    @functools.wraps(command)
+    def wrapper(**kwargs):
+        overrides = {keys[k]: kwargs.pop(k) for k in list(kwargs) if k in keys}
+        return command(**kwargs, budget_overrides=overrides)
+
+    wrapper.__signature__ = sig.replace(parameters=params)
+    wrapper.__annotations__ = {p.name: p.annotation for p in params}
+    return wrapper

@@ -31,12 +31,15 @@ high order, and a channel gain above 0 dB (headroom).
 
 from __future__ import annotations
 
+import importlib
 import math
 
 import numpy as np
 
 from ..blocks import ChannelDesign, DelayBlock, FirBlock, SosBlock, StageSummary
-from ..spec import EQ_KINDS, FIR_KINDS, IIR_KINDS, ChannelSpec
+from ..spec import ChannelSpec
+from ..stagekinds import FIR_KINDS, IIR_KINDS, STAGE_KINDS_TABLE, designer_of
+from ..stagekinds import FREQ_KEYS as _FREQ_KEYS
 from .stage import StageContext, StageResult
 
 __all__ = ["design_channel", "section_q", "HIGH_Q", "POLE_RADIUS_WARN"]
@@ -51,36 +54,12 @@ POLE_RADIUS_WARN = 0.9995
 
 
 def _designer(ctx: StageContext):
-    kind = ctx.kind
-    if kind in IIR_KINDS:
+    """The designer of the stage, from its design module's table (:mod:`coefc.stagekinds`)."""
+    response = None
+    if STAGE_KINDS_TABLE[ctx.kind].designer is None:  # an IIR kind: routed by its response
         response = ctx.require("response", "give the response family, e.g. response = \"butterworth\"")
-        if response == "linkwitz-riley":
-            from .linkwitz_riley import design_linkwitz_riley
-
-            return design_linkwitz_riley
-        if response == "biquad":
-            from .eq import design_biquad_filter
-
-            return design_biquad_filter
-        from .iir import design_iir
-
-        return design_iir
-    if kind in FIR_KINDS:
-        from .fir import design_fir
-
-        return design_fir
-    if kind in EQ_KINDS:
-        from .eq import design_eq
-
-        return design_eq
-    if kind == "weighting":
-        from .weighting import design_weighting
-
-        return design_weighting
-    from . import basic
-
-    return {"dc-blocker": basic.design_dc_blocker, "gain": basic.design_gain, "delay": basic.design_delay,
-            "sos": basic.design_sos, "transfer": basic.design_transfer, "fir": basic.design_fir_taps}[kind]
+    module, name = designer_of(ctx.kind, response)
+    return getattr(importlib.import_module(f".{module}", __name__), name)
 
 
 def section_q(row) -> float:
@@ -131,9 +110,6 @@ def _channel_warnings(blocks, stages: list[tuple[int, StageResult]], fs: float) 
         out.append(f"channel gain peaks at {20 * math.log10(peak):+.2f} dB near {f[i]:.0f} Hz; a full-scale "
                    "input would clip unless the signal has that much headroom")
     return out
-
-
-_FREQ_KEYS = ("cutoff_hz", "freq_hz", "passband_hz", "stopband_hz")
 
 
 def _check_sound(ctx: StageContext, res: StageResult) -> None:

@@ -57,7 +57,7 @@ import numpy as np
 
 from ..blocks import FirBlock
 from ..spec import MAX_FIR_TAPS, MAX_LS_TAPS
-from .stage import StageContext, StageResult
+from .stage import StageContext, StageResult, edges_in_order
 
 #: Tap counts above which a requirement is reported as needing a very long filter.
 MANY_TAPS = 1024
@@ -66,25 +66,6 @@ DEFAULT_RIPPLE_DB = 0.1
 
 def _band(kind: str) -> str:
     return kind.removeprefix("fir-")
-
-
-def _check_edges(ctx: StageContext, band: str, wp, ws) -> float:
-    """Check the edge order; return the narrowest transition width in Hz."""
-    if band == "lowpass" and wp < ws:
-        return ws - wp
-    if band == "highpass" and ws < wp:
-        return wp - ws
-    if band == "bandpass" and ws[0] < wp[0] < wp[1] < ws[1]:
-        return min(wp[0] - ws[0], ws[1] - wp[1])
-    if band == "bandstop" and wp[0] < ws[0] < ws[1] < wp[1]:
-        return min(ws[0] - wp[0], wp[1] - ws[1])
-    rule = {
-        "lowpass": "passband_hz must be below stopband_hz",
-        "highpass": "passband_hz must be above stopband_hz",
-        "bandpass": "the stopband must enclose the passband (stop low < pass low < pass high < stop high)",
-        "bandstop": "the passband must enclose the stopband (pass low < stop low < stop high < pass high)",
-    }[band]
-    raise ctx.error(f"for a {ctx.kind}, {rule}", "stopband_hz")
 
 
 def _bands(band: str, wp, ws, nyq: float):
@@ -192,7 +173,7 @@ def design_fir(ctx: StageContext) -> StageResult:
     wp = ctx.require("passband_hz", "give the passband edge(s) in Hz")
     ws = ctx.require("stopband_hz", "give the stopband edge(s) in Hz")
     att = ctx.require("attenuation_db", "give the smallest stopband attenuation, e.g. attenuation_db = 80")
-    width = _check_edges(ctx, band, wp, ws)
+    width = edges_in_order(ctx, wp, ws)
     fs, nyq = ctx.fs, ctx.nyquist
     rp = ctx.get("ripple_db", DEFAULT_RIPPLE_DB)
     margin = ctx.margin_db()

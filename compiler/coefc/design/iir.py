@@ -39,7 +39,7 @@ import numpy as np
 
 from ..blocks import SosBlock
 from ..spec import MAX_IIR_ORDER
-from .stage import StageContext, StageResult
+from .stage import StageContext, StageResult, edges_in_order
 
 #: Orders above which a requirement is reported as needing a very high order.
 HIGH_ORDER = 12
@@ -75,25 +75,6 @@ def family_sos(response: str, order: int, edges, kind: str, fs: float,
     raise ValueError(f"unknown response {response}")
 
 
-def _edges_in_order(ctx: StageContext, wp, ws) -> None:
-    kind = ctx.kind
-    ok = {
-        "lowpass": lambda: wp < ws,
-        "highpass": lambda: ws < wp,
-        "bandpass": lambda: ws[0] < wp[0] < wp[1] < ws[1],
-        "bandstop": lambda: wp[0] < ws[0] < ws[1] < wp[1],
-    }[kind]()
-    if not ok:
-        rule = {
-            "lowpass": "passband_hz must be below stopband_hz",
-            "highpass": "passband_hz must be above stopband_hz",
-            "bandpass": "the stopband must enclose the passband (stop low < pass low < pass high < stop high)",
-            "bandstop": "the passband must enclose the stopband (pass low < stop low < stop high < pass high)",
-        }[kind]
-        raise ctx.error(f"for a {kind}, {rule}; got passband_hz = {_show(wp)}, stopband_hz = {_show(ws)}",
-                        "stopband_hz")
-
-
 def _show(e) -> str:
     return f"[{e[0]:g}, {e[1]:g}]" if isinstance(e, tuple) else f"{e:g}"
 
@@ -126,7 +107,7 @@ def design_iir(ctx: StageContext) -> StageResult:
         ws = ctx.require("stopband_hz", "give the stopband edge(s) in Hz")
         rp = ctx.require("ripple_db", "give the largest passband loss in dB, e.g. ripple_db = 0.5")
         rs = ctx.require("attenuation_db", "give the smallest stopband attenuation in dB, e.g. attenuation_db = 60")
-        _edges_in_order(ctx, wp, ws)
+        edges_in_order(ctx, wp, ws)
         if rs <= rp:
             raise ctx.error(f"attenuation_db ({rs:g}) must exceed ripple_db ({rp:g})", "attenuation_db")
         margin = ctx.margin_db()

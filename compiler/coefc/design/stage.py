@@ -93,3 +93,33 @@ class StageResult:
     #: For designs given by requirements: what was asked, the quantisation margin kept,
     #: what the float design reaches (dense grid) and how the margin was paid for.
     requirement: Mapping | None = None
+
+
+def edges_in_order(ctx: StageContext, wp, ws) -> float:
+    """Check that a stage's ``passband_hz`` and ``stopband_hz`` lie in the order of its band.
+
+    The rule of every low/high/band-pass/band-stop kind, IIR (``lowpass``) and FIR
+    (``fir-lowpass``) alike.  Returns the narrowest transition width in Hz; raises
+    the stage's error at ``stopband_hz`` when the order is wrong.
+    """
+    band = ctx.kind.removeprefix("fir-")
+    if band == "lowpass" and wp < ws:
+        return ws - wp
+    if band == "highpass" and ws < wp:
+        return wp - ws
+    if band == "bandpass" and ws[0] < wp[0] < wp[1] < ws[1]:
+        return min(wp[0] - ws[0], ws[1] - wp[1])
+    if band == "bandstop" and wp[0] < ws[0] < ws[1] < wp[1]:
+        return min(ws[0] - wp[0], wp[1] - ws[1])
+    rule = {
+        "lowpass": "passband_hz must be below stopband_hz",
+        "highpass": "passband_hz must be above stopband_hz",
+        "bandpass": "the stopband must enclose the passband (stop low < pass low < pass high < stop high)",
+        "bandstop": "the passband must enclose the stopband (pass low < stop low < stop high < pass high)",
+    }[band]
+
+    def show(e) -> str:
+        return f"[{e[0]:g}, {e[1]:g}]" if isinstance(e, tuple) else f"{e:g}"
+
+    raise ctx.error(f"for a {ctx.kind}, {rule}; got passband_hz = {show(wp)}, stopband_hz = {show(ws)}",
+                    "stopband_hz")

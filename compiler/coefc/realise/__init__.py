@@ -66,7 +66,7 @@ import numpy as np
 
 from ..blocks import Block, ChannelDesign, DelayBlock, FirBlock, GainBlock, SosBlock
 from ..errors import CoefcError
-from ..program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from ..program import STRUCTURE_TABLE, Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, Note, SectionOp
 from ..qformat import QFormat  # noqa: F401 (used by the doctest)
 from . import coefficients, pairing, scaling
 
@@ -114,7 +114,7 @@ def _float_plan(design: ChannelDesign, arithmetic: Arithmetic):
     """
     gain, delay, pre, rows, post = _gather(design)
     _check_finite(design, rows, pre, post, gain)
-    notes: list[str] = []
+    notes: list[Note] = []
     sections = [(r[:3].copy(), r[3:].copy()) for r in rows]
     if arithmetic.scaling == "none":
         chain = pre + [("sos", s) for s in sections] + post
@@ -141,12 +141,13 @@ def _float_plan(design: ChannelDesign, arithmetic: Arithmetic):
             sections, noise = pairing.order_sections(
                 pre, rep, post, norm, target, arithmetic.structure, k0 * gain,
                 coef_lsb=0.0 if arithmetic.is_float else arithmetic.coef.lsb)
-            notes.append("sections re-paired (poles closest to the unit circle first, each with its nearest "
-                         f"zeros) and ordered for the lowest analytic output noise under {norm} scaling "
-                         f"({10 * np.log10(noise['exchanged'] / (1 / 12)):.1f} dB above one rounding)")
+            notes.append(Note("pairing", "sections re-paired (poles closest to the unit circle first, each with its "
+                              f"nearest zeros) and ordered for the lowest analytic output noise under {norm} "
+                              f"scaling ({10 * np.log10(noise['exchanged'] / (1 / 12)):.1f} dB above one rounding)"))
         except pairing.NotRepairable:
             k0 = 1.0
-            notes.append("designed sections kept as they are (re-pairing them would not preserve the response)")
+            notes.append(Note("pairing", "designed sections kept as they are (re-pairing them would not preserve "
+                              "the response)"))
     chain = pre + [("sos", s) for s in sections] + post
     return 1.0, delay, chain, k0 * gain, notes
 
@@ -173,8 +174,9 @@ def _note_thin_numerators(sections, arithmetic: Arithmetic, notes: list) -> None
             s = max(0, int(np.ceil(np.log2(big))) + fc - arithmetic.coef.width + 2)
             bits = np.log2(nb) + fc - s + 1
             if bits < 8:
-                notes.append(f"section {i}: numerator keeps only {max(0, int(bits))} significant bits without "
-                             "scaling (the designed gain sits in this section); choose scaling l2, l1 or linf")
+                notes.append(Note("precision", f"section {i}: numerator keeps only {max(0, int(bits))} significant "
+                                  "bits without scaling (the designed gain sits in this section); choose scaling l2, "
+                                  "l1 or linf"))
 
 
 def _chain_freq(chain, f):
@@ -194,7 +196,7 @@ def _fixed_gain(g: float, arithmetic: Arithmetic, notes: list, where: str) -> Ga
     ints, s, sat = coefficients.fit_group([g], fmt, arithmetic.rounding,
                                           min_shift=coefficients.lowest_shift([g], fmt))
     if sat:
-        notes.append(f"{where} gain {g:.6g} does not fit the coefficient word {fmt}: saturated")
+        notes.append(Note("saturated", f"{where} gain {g:.6g} does not fit the coefficient word {fmt}: saturated"))
     return GainOp(coef=ints[0], shift=s)
 
 
@@ -222,9 +224,10 @@ def realise_channel(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelPro
     >>> p.ops[0].a, p.ops[0].b[1] == 2 * p.ops[0].b[0] == 2 * p.ops[0].b[2]
     ((-29743, 13615), True)
     """
-    if arithmetic.structure == "df1ef" and arithmetic.is_float:
-        raise RealisationError(f"channel '{design.name}': structure 'df1ef' (error feedback) needs "
-                               "fixed-point arithmetic; use df1 or tdf2 for float32")
+    if arithmetic.is_float and not STRUCTURE_TABLE[arithmetic.structure].float32:
+        raise RealisationError(f"channel '{design.name}': structure '{arithmetic.structure}' (error feedback) needs "
+                               "fixed-point arithmetic; use "
+                               + " or ".join(s.name for s in STRUCTURE_TABLE.values() if s.float32) + " for float32")
     pre_gain, delay, chain0, final0, notes = _float_plan(design, arithmetic)
     if arithmetic.scaling == "none":
         return _build(design, arithmetic, pre_gain, delay, chain0, final0, notes)
@@ -268,8 +271,8 @@ def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: in
         bs = np.asarray(b, dtype=float) * c
         ints, s, sat = coefficients.fit_section(bs, a, fmt, arithmetic.rounding, min_shift=0)
         if sat:
-            notes.append(f"section {n_sec}: coefficients do not fit {fmt} even with a coefficient shift of {s}; "
-                         "saturated (the response will be wrong): use a wider coefficient word")
+            notes.append(Note("saturated", f"section {n_sec}: coefficients do not fit {fmt} even with a coefficient "
+                              f"shift of {s}; saturated (the response will be wrong): use a wider coefficient word"))
         rop = SectionOp(b=tuple(ints[:3]), a=tuple(ints[3:]), shift=s, structure=arithmetic.structure)
         phys = np.array(ints[:3], dtype=float) * 2.0 ** (s - fmt.frac_bits)
         return rop, coefficients.realised_gain(b, phys)
@@ -279,8 +282,8 @@ def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: in
                                           min_shift=coefficients.lowest_shift(ts, fmt),
                                           acc_limit=arithmetic.acc_bits, data_width=arithmetic.data.width)
     if sat:
-        notes.append(f"FIR of {len(op)} taps: taps do not fit {fmt} with the accumulator of "
-                     f"{arithmetic.acc_bits} bits; saturated")
+        notes.append(Note("saturated", f"FIR of {len(op)} taps: taps do not fit {fmt} with the accumulator of "
+                          f"{arithmetic.acc_bits} bits; saturated"))
     rop = FirOp(taps=ints, shift=s, symmetric=ints == ints[::-1])
     phys = np.array(ints, dtype=float) * 2.0 ** (s - fmt.frac_bits)
     return rop, coefficients.realised_gain(taps, phys)
@@ -296,8 +299,8 @@ def _finish(design, arithmetic, delay, ops, final_gain, notes) -> ChannelProgram
             n_sec += 1
             r = pairing.pole_radius([1.0, op.a[0] * 2.0 ** (op.shift - fc), op.a[1] * 2.0 ** (op.shift - fc)])
             if r >= 1.0:
-                notes.append(f"section {n_sec}: quantised poles have radius {r:.9f} >= 1 (unstable); "
-                             "use a wider coefficient word")
+                notes.append(Note("unstable", f"section {n_sec}: quantised poles have radius {r:.9f} >= 1 "
+                                  "(unstable); use a wider coefficient word"))
         out.append(op)
     if final_gain != 1.0:
         out.append(_fixed_gain(final_gain, arithmetic, notes, "output"))
@@ -395,9 +398,9 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
         ops.append(rop)
         gain *= g
     if worst > maxv:
-        notes.append(f"l1 scaling: with the quantised coefficients and roundoff an op output can reach "
-                     f"{worst / maxv:.6g} x full scale ({np.log2(worst / maxv):.2f} bits of headroom missing); "
-                     "the l1_scaling check fails: use a wider data or coefficient word")
+        notes.append(Note("scaling", "l1 scaling: with the quantised coefficients and roundoff an op output can "
+                          f"reach {worst / maxv:.6g} x full scale ({np.log2(worst / maxv):.2f} bits of headroom "
+                          "missing); the l1_scaling check fails: use a wider data or coefficient word"))
     return _finish(design, ar, delay, ops, final0 / gain, notes)
 
 

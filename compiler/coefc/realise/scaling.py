@@ -33,6 +33,8 @@ from __future__ import annotations
 import numpy as np
 from scipy import signal
 
+from ..program import STRUCTURE_TABLE
+
 MAX_LEN = 1 << 18
 MIN_LEN = 1 << 11
 
@@ -225,7 +227,7 @@ def output_noise_lsb2(chain, final_gain: float, structure: str = "df1", has_gain
     for i, (kind, op) in enumerate(chain):
         path = list(chain[i + 1:])
         if kind == "sos":
-            num = [1.0, -1.0, 0.0] if structure == "df1ef" else [1.0, 0.0, 0.0]
+            num = [1.0, -1.0, 0.0] if STRUCTURE_TABLE[structure].error_feedback else [1.0, 0.0, 0.0]
             path = [("sos", (num, op[1]))] + path
         total += energy(path) * final_gain * final_gain / 12.0
     if has_gain_op:
