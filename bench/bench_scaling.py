@@ -22,25 +22,18 @@ from __future__ import annotations
 import argparse
 import math
 import statistics
-import subprocess
 import sys
 import tempfile
-import time
 from pathlib import Path
 
 import numpy as np
+
+from bench_check import wall  # one wall clock for the benches
 
 GOAL_RATIO = 3.0
 GOAL_EXPONENT = 1.0
 
 
-def wall(cmd: list[str]) -> float:
-    t = time.perf_counter()
-    r = subprocess.run(cmd, capture_output=True, text=True)
-    dt = time.perf_counter() - t
-    if r.returncode not in (0, 1):  # 1 = over budget is still a complete check
-        sys.exit(f"command failed ({r.returncode}): {' '.join(cmd)}\n{r.stderr}")
-    return dt
 
 
 def eq_toml(bands: int, target: str) -> str:

@@ -917,13 +917,10 @@ def whole_space_cycles(a1: int, a2: int, k: int, arith: Arithmetic, order: int, 
     from ..simulate import _OVF_CODE, _ROUND_CODE, _engine
 
     W = arith.data.width
-    ny = 1 << W
-    elo, ehi = _residual_range(k, arith.rounding) if ef else (0, 0)
-    ne = ehi - elo + 1
-    n = ny ** order * ne
-    if (n > max_states or arith.acc_bits > 64 or (ef and k < 1) or k > 62
-            or (abs(a1) + abs(a2)) * ny + 2 * ne >= 1 << 62):
+    size = _whole_space(a1, a2, k, arith, order, ef, max_states)
+    if size is None:
         return None
+    n, elo, ehi = size
     if not (engine and _engine_fits(a1, a2, k, arith) and hasattr(_engine, "whole_cycles") and W <= 30):
         return whole_space_cycles_numpy(a1, a2, k, arith, order, ef, max_states)
     got = _engine.whole_cycles(int(a1), int(a2) if order == 2 else 0, int(k), arith.acc_bits,
@@ -936,6 +933,20 @@ def whole_space_cycles(a1: int, a2: int, k: int, arith: Arithmetic, order: int, 
             out[kind] = dict(amplitude_lsb=int(amp), period=int(per),
                              start_state=(int(y1), int(y2)) + ((int(e),) if ef else ()))
     return out
+
+
+def _whole_space(a1: int, a2: int, k: int, arith: Arithmetic, order: int, ef: bool,
+                 max_states: int) -> tuple[int, int, int] | None:
+    """``(states, lowest residual, highest residual)`` of the whole zero-input map, or
+    ``None`` when it is too large to enumerate or its arithmetic leaves int64."""
+    ny = 1 << arith.data.width
+    elo, ehi = _residual_range(k, arith.rounding) if ef else (0, 0)
+    ne = ehi - elo + 1
+    n = ny ** order * ne
+    if (n > max_states or arith.acc_bits > 64 or (ef and k < 1) or k > 62
+            or (abs(a1) + abs(a2)) * ny + 2 * ne >= 1 << 62):
+        return None
+    return n, elo, ehi
 
 
 def whole_space_cycles_numpy(a1: int, a2: int, k: int, arith: Arithmetic, order: int, ef: bool = False,
@@ -955,12 +966,11 @@ def whole_space_cycles_numpy(a1: int, a2: int, k: int, arith: Arithmetic, order:
     W = arith.data.width
     lo = arith.data.min_int
     ny = 1 << W
-    elo, ehi = _residual_range(k, arith.rounding) if ef else (0, 0)
-    ne = ehi - elo + 1
-    n = ny ** order * ne
-    if (n > max_states or arith.acc_bits > 64 or (ef and k < 1) or k > 62
-            or (abs(a1) + abs(a2)) * ny + 2 * ne >= 1 << 62):
+    size = _whole_space(a1, a2, k, arith, order, ef, max_states)
+    if size is None:
         return None
+    n, elo, ehi = size
+    ne = ehi - elo + 1
     idx = np.arange(n, dtype=np.int64)
     e = idx % ne + elo
     rest = idx // ne
