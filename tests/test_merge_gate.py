@@ -315,3 +315,23 @@ def test_huge_raw_coefficients_are_bad_input(tmp_path):
                  'stages = [{ kind = "fir", taps = [1e308, 1e308, 1e308] }]\n')
     r = coefc("check", d)
     assert r.returncode == 2 and r.stderr.count("\n") == 1 and "1e+06" in r.stderr
+
+
+def test_hints_never_suggest_what_is_already_in_use(tmp_path):
+    from types import SimpleNamespace
+
+    from coefc.budget import _remedies
+
+    used = SimpleNamespace(structure="df1ef", scaling="l1", overflow_mode="saturate")
+    text = _remedies(used, "df1ef", "gain", "l1", "saturate", "data")
+    assert "df1ef" not in text and "l1" not in text and "saturation" not in text and "wider data word" in text
+    fresh = SimpleNamespace(structure="df1", scaling="none", overflow_mode="wrap")
+    assert _remedies(fresh, "df1ef", "l1", "saturate") == 'use error feedback (df1ef), scaling = "l1" or saturation'
+    # through check: an A weighting in 12-bit df1 words overflows; the default l1 scaling is not offered
+    d = tmp_path / "aw.toml"
+    d.write_text('name = "aw"\nsample_rate_hz = 48000\n[[channel]]\nname = "a"\n'
+                 'stages = [ { kind = "weighting", weighting = "A" } ]\n')
+    r = coefc("check", d, "--data", "Q1.11", "--structure", "df1", "--json", "-")
+    reasons = {c["name"]: c["reason"] for c in json.loads(r.stdout)["channels"][0]["checks"] if not c["ok"]}
+    assert "overflow" in reasons and 'scaling = "l1"' not in reasons["overflow"]
+    assert "error feedback (df1ef)" in reasons["limit_cycles"]

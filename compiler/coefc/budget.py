@@ -214,6 +214,22 @@ def with_defaults(budget: Budget) -> tuple[Budget, dict]:
     return (replace(budget, **defaults) if defaults else budget), defaults
 
 
+_REMEDIES = {  # remedy -> (its words, the setting that means it is already in use)
+    "df1ef": ("use error feedback (df1ef)", lambda m: m.structure == "df1ef"),
+    "l1": ("scaling = \"l1\"", lambda m: m.scaling == "l1"),
+    "saturate": ("saturation", lambda m: m.overflow_mode == "saturate"),
+    "gain": ("a gain stage before the filter", lambda m: False),
+    "rounding": ("another rounding", lambda m: False),
+    "data": ("a wider data word", lambda m: False),
+}
+
+
+def _remedies(metrics, *names: str) -> str:
+    """The remedies of a failing check, leaving out any the realisation already uses."""
+    words = [text for text, in_use in (_REMEDIES[n] for n in names) if not in_use(metrics)]
+    return ", ".join(words[:-1]) + (" or " if len(words) > 1 else "") + words[-1]
+
+
 def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], dict[str, str]]:
     """The checks of one channel: (list of Check, reasons by check name).
 
@@ -305,7 +321,7 @@ def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], di
                     reason = "no zero-input limit cycle: exhaustive search inside the bound of every section"
                 else:
                     reason = (f"{summary}; "
-                              + ("use error feedback (df1ef), another rounding or a wider data word"
+                              + (_remedies(metrics, "df1ef", "rounding", "data")
                                  if st == "found" else "allow a number of LSB"
                                  + (" or raise --search-limit" if any("search limit" in s.note for s in lc.sections)
                                     else "")))
@@ -358,11 +374,10 @@ def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], di
             parts.append(f"zero-input overflow oscillations not proven absent in {', '.join(un)} (see "
                          "limit_cycle.sections); they can start only after an overflow")
         if not ok:
-            parts.append("scale the input down (a gain stage or scaling = \"l1\")"
-                         + (" or use saturation" if metrics.overflow_mode == "wrap" else ""))
+            parts.append("scale the input down: " + _remedies(metrics, "gain", "l1", "saturate", "data"))
         why["overflow"] = "; ".join(parts)
     if tones is not None:
-        checks.extend(_tone_checks(tones, budget, why))
+        checks.extend(_tone_checks(tones, budget, why, metrics))
     return checks, why
 
 
@@ -460,7 +475,7 @@ def _hz(f: float) -> str:
     return f"{f / 1000:.4g} kHz" if f >= 1000 else f"{f:.4g} Hz"
 
 
-def _tone_checks(t, budget: Budget, why: dict) -> list[Check]:
+def _tone_checks(t, budget: Budget, why: dict, metrics) -> list[Check]:
     """``tone_gain_error_db``, and ``iec61672_class1_excess_db`` for a channel with a weighting stage."""
     name = "tone_gain_error_db"
     lim = float(DEFAULT_TONE_GAIN_ERROR_DB if budget.tone_gain_error_db is None else budget.tone_gain_error_db)
@@ -486,8 +501,8 @@ def _tone_checks(t, budget: Budget, why: dict) -> list[Check]:
     if t.note:
         parts.append(t.note)
     if not ok:
-        parts.append("the chip's rounding changes the signal (dead band or granular distortion): use error "
-                     "feedback (df1ef), a wider data word, or scaling so small signals keep their bits")
+        parts.append("the chip's rounding changes the signal (dead band or granular distortion): "
+                     + _remedies(metrics, "df1ef", "data"))
     why[name] = "; ".join(parts)
     out = [Check(name, v, lim, ok)]
 
@@ -510,8 +525,8 @@ def _tone_checks(t, budget: Budget, why: dict) -> list[Check]:
                           + (f" -- {ex:.6f} dB over, to be exact" if round(ex, 3) <= 0 else "")
                           + ("; the float design itself is outside there (bilinear transform near Nyquist): use a "
                              "higher sample rate" if any(x.standard["design_outside"] for x in t.standard_failures)
-                             else "; the float design is inside: the realisation's arithmetic moves it out "
-                             "(error feedback, df1ef, or a wider data word)"))
+                             else "; the float design is inside: the realisation's arithmetic moves it out: "
+                             + _remedies(metrics, "df1ef", "data")))
         out.append(Check(cname, ex, 0.0, cok))
     return out
 

@@ -68,6 +68,7 @@ class Metrics:
     sample_rate_hz: float = 48000.0
     structure: str = "df1"
     unstable: str | None = None  # why the realisation is unstable (None: every pole strictly inside)
+    scaling: str = "none"  # the arithmetic's section scaling (hints never suggest what is in use)
 
     @property
     def stable(self) -> bool:
@@ -339,7 +340,8 @@ def analyse_channel(design: ChannelDesign, program: ChannelProgram,
                                overflow_count=None, runs=0, input_peak=None, design_peak_gain=dgain)
         lc = analyse_limit_cycles(program, max_states=opt.max_states)
         return Metrics(resp, None, None, ovf, lc, program.arithmetic.is_float, program.arithmetic.overflow,
-                       float(program.sample_rate_hz), program.arithmetic.structure, unstable)
+                       float(program.sample_rate_hz), program.arithmetic.structure, unstable,
+                       scaling=program.arithmetic.scaling)
     noise = analytic_noise(program, models, n)
     # float32 has no analytic figure: its noise is always measured
     meas = (measured_noise(program, samples=opt.noise_samples, seed=opt.seed, models=models, n=n)
@@ -348,4 +350,4 @@ def analyse_channel(design: ChannelDesign, program: ChannelProgram,
                   design_peak_gain=dgain)
     lc = analyse_limit_cycles(program, max_states=opt.max_states)
     return Metrics(resp, noise, meas, ovf, lc, program.arithmetic.is_float, program.arithmetic.overflow,
-                   float(program.sample_rate_hz), program.arithmetic.structure)
+                   float(program.sample_rate_hz), program.arithmetic.structure, scaling=program.arithmetic.scaling)
