@@ -335,3 +335,12 @@ def test_hints_never_suggest_what_is_already_in_use(tmp_path):
     reasons = {c["name"]: c["reason"] for c in json.loads(r.stdout)["channels"][0]["checks"] if not c["ok"]}
     assert "overflow" in reasons and 'scaling = "l1"' not in reasons["overflow"]
     assert "error feedback (df1ef)" in reasons["limit_cycles"]
+
+
+def test_run_warns_when_the_program_departs_from_the_design(tmp_path):
+    """The three-way monitor's woofer on a 16-bit part puts quantised poles on the unit circle
+    (issue 13's measurement); `run` still runs it but says so, from the note's kind."""
+    (tmp_path / "in.txt").write_text("0\n1000\n0\n")
+    r = coefc("run", EXAMPLE, tmp_path / "in.txt", tmp_path / "out.txt", "--target", "mcu16", "--channel", "woofer")
+    assert r.returncode == 0, r.stderr
+    assert "warning: channel 'woofer'" in r.stderr and ">= 1" in r.stderr
