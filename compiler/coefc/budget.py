@@ -215,9 +215,9 @@ def with_defaults(budget: Budget) -> tuple[Budget, dict]:
 
 
 _REMEDIES = {  # remedy -> (its words, the setting that means it is already in use)
-    "df1ef": ("use error feedback (df1ef)", lambda m: m.structure == "df1ef"),
-    "l1": ("scaling = \"l1\"", lambda m: m.scaling == "l1"),
-    "saturate": ("saturation", lambda m: m.overflow_mode == "saturate"),
+    "df1ef": ("use error feedback (df1ef)", lambda m: getattr(m, "structure", None) == "df1ef"),
+    "l1": ("scaling = \"l1\"", lambda m: getattr(m, "scaling", None) == "l1"),
+    "saturate": ("saturation", lambda m: getattr(m, "overflow_mode", None) == "saturate"),
     "gain": ("a gain stage before the filter", lambda m: False),
     "rounding": ("another rounding", lambda m: False),
     "data": ("a wider data word", lambda m: False),
