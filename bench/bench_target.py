@@ -33,7 +33,7 @@ sys.path.insert(0, str(REPO / "tests"))
 
 from c_build import BAREMETAL, M4_FLAGS, generated_files  # noqa: E402
 from coefc.program import ChannelProgram, FirOp, SectionOp  # noqa: E402
-from coefc.targets import find_target  # noqa: E402
+from coefc.targetspec import find_target  # noqa: E402
 
 HARNESS = r"""
 #include <stddef.h>

@@ -18,10 +18,10 @@ from pathlib import Path
 import numpy as np
 
 from coefc.api import Design, Loaded, Realisation
-from coefc.emit import render
+from coefc.emit.header import render
 from coefc.program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
 from coefc.spec import Budget, Description, Implementation
-from coefc.targets import build_info, find_target
+from coefc.targetspec import build_info, find_target
 
 STRICT = ["-std=c99", "-Wall", "-Wextra", "-Werror", "-pedantic", "-ffp-contract=off"]
 UBSAN = ["-fsanitize=undefined", "-fno-sanitize-recover=all"]

@@ -384,7 +384,7 @@ def test_offset_budget_key_in_the_description(tmp_path):
 def test_printed_values_compare_as_their_verdict(value, limit, op, ok):
     # the printed number, read back, must pass or fail the printed limit exactly as the check did
     # (common practice, no source: a report must not say FAIL -120 <= -120)
-    from coefc.reporting import format_against
+    from coefc.reports.text import format_against
 
     text = format_against(value, limit, op, ok)
     back = float(text)
@@ -394,7 +394,7 @@ def test_printed_values_compare_as_their_verdict(value, limit, op, ok):
 
 def test_failing_noise_row_shows_why_it_fails():
     from coefc.budget import CheckReport, ChannelReport
-    from coefc.reporting import render_text
+    from coefc.reports.text import render_text
 
     m = fake_metrics()
     m.noise = SimpleNamespace(dbfs=-119.99996)
@@ -427,7 +427,7 @@ def test_hazards_gate_by_default_and_the_verdict_names_the_defaults(tmp_path):
     # An IEC 61672 A weighting realised in DF1 with 16-bit data: its low-frequency sections have a
     # dead band beyond full scale (the dead-band bound (q/2)/(1 - |a|), Jones, OpenStax CNX
     # m11928 [confirmed]); without a [budget] the check must not pass.
-    from coefc.reporting import render_text
+    from coefc.reports.text import render_text
 
     p = tmp_path / "aw.toml"
     p.write_text('name = "aw"\nsample_rate_hz = 48000\n[implementation]\ntarget = "mcu32"\ndata = "Q1.15"\n'

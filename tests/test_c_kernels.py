@@ -19,9 +19,9 @@ import pytest
 from c_build import (compilers, emit_text, hand_programs, m32_works, run_headers, ubsan_works)
 from conftest import example_files
 from coefc.api import load
-from coefc.emit import EmitError, render
+from coefc.emit.header import EmitError, render
 from coefc.qformat import ROUNDING_MODES
-from coefc.targets import Overrides, find_target
+from coefc.targetspec import Overrides, find_target
 
 TARGETS = ("mcu16", "mcu32", "dsp24", "float32")
 # accumulators narrower than a product plus headroom, so sums wrap

@@ -251,7 +251,7 @@ def test_unwritable_folder_is_one_line(work, capsys, monkeypatch):
 
 def test_write_atomic_leaves_no_temporary_file_on_failure(tmp_path):
     from coefc.errors import CoefcError
-    from coefc.fileio import write_atomic
+    from coefc.fileio.output import write_atomic
 
     (tmp_path / "taken").mkdir()
     with pytest.raises(CoefcError, match="is a folder"):

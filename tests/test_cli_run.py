@@ -15,7 +15,7 @@ import pytest
 from scipy import signal
 from scipy.io import wavfile
 
-from coefc import sampleio
+from coefc.fileio import samples as sampleio
 from coefc.errors import DataError
 from coefc.program import Arithmetic
 from coefc.qformat import QFormat

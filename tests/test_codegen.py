@@ -27,11 +27,11 @@ from c_build import (CROSS, Platform, compilers, generated_files, hand_programs,
                      ubsan_works)
 from conftest import example_files
 from coefc.api import load
-from coefc.codegen import CNames
-from coefc.emit import c_identifier, render
+from coefc.emit.codegen import CNames
+from coefc.emit.header import c_identifier, render
 from coefc.errors import DescriptionError
 from coefc.qformat import ROUNDING_MODES
-from coefc.targets import Overrides, find_target
+from coefc.targetspec import Overrides, find_target
 
 TARGETS = ("mcu16", "mcu32", "dsp24", "float32")
 NARROW_ACC = {"mcu16": 24, "mcu32": 40, "dsp24": 44}

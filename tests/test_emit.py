@@ -13,12 +13,12 @@ import pytest
 
 from c_build import STRICT, emit_text, fake_realisation, hand_programs, run_headers
 from conftest import lab_board_copy, target_copy
-from coefc.emit import C_KEYWORDS, EmitError, c_identifier, golden_input, render
+from coefc.emit.header import C_KEYWORDS, EmitError, c_identifier, golden_input, render
 from coefc.errors import DescriptionError, TargetError
 from coefc.program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURES
 from coefc.qformat import QFormat
 from coefc.simulate import simulate
-from coefc.targets import find_target
+from coefc.targetspec import find_target
 
 HERE = Path(__file__).resolve().parent
 MCU32 = Arithmetic()

@@ -155,7 +155,7 @@ def test_bad_input_is_one_line_exit_2(desc, tmp_path, case, args, pattern):
 
 
 # ---------------------------------------------------------------------------
-# check and build agree: every refusal rule of build (coefc.buildable) fails
+# check and build agree: every refusal rule of build (coefc.emit.buildable) fails
 # `coefc check` with exit 2 and one line, and `coefc build` with exit 2 and no file
 # ---------------------------------------------------------------------------
 
@@ -181,7 +181,7 @@ def _user_target(tmp_path, name, edits):
     """A copy of the built-in mcu32 target with *edits* ((old, new) text pairs) to its target.toml."""
     import shutil
 
-    from coefc.targets import find_target
+    from coefc.targetspec import find_target
 
     folder = tmp_path / "targets" / name
     shutil.copytree(find_target("mcu32").folder, folder)

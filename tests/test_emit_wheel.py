@@ -38,7 +38,7 @@ def test_wheel_contains_targets_templates_and_kernels(tmp_path):
         base = f"coefc/_builtin_targets/{t}"
         for rel in ("target.toml", "templates/header.h.j2", f"kernel/coefc_{t}.h", f"kernel/coefc_{t}.c"):
             assert f"{base}/{rel}" in names, f"{base}/{rel} missing from {wheel.name}"
-    assert "coefc/emit.py" in names and "coefc/cli/build_cmd.py" in names
-    assert "coefc/templates/report.html.j2" in names  # coefc report's page template
+    assert "coefc/emit/header.py" in names and "coefc/cli/build_cmd.py" in names
+    assert "coefc/reports/templates/report.html.j2" in names  # coefc report's page template
     assert any(n.startswith("coefc/_engine") and n.endswith(".so") for n in names)  # the compiled engine core
     assert not any("target_fixtures" in n or "cmake_project" in n for n in names)

@@ -13,10 +13,10 @@ import numpy as np
 import pytest
 from scipy import signal
 
-from coefc.blocks import ChannelDesign, DelayBlock, FirBlock, GainBlock, SosBlock, chain_response
+from coefc.blocks import ChannelDesign, DelayBlock, FirBlock, GainBlock, SosBlock, as_float_blocks, chain_response
 from coefc.program import Arithmetic, DelayOp, FirOp, GainOp, SectionOp
 from coefc.qformat import QFormat
-from coefc.realise import RealisationError, as_float_blocks, pairing, realise_channel
+from coefc.realise import RealisationError, pairing, realise_channel
 from coefc.simulate import simulate
 from exact_model import float_reference
 

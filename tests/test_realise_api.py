@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 import coefc
-from coefc.realise import as_float_blocks
+from coefc.blocks import as_float_blocks
 from conftest import example_files
 from exact_model import float_reference
 
@@ -20,7 +20,7 @@ TARGETS = ["mcu16", "mcu32", "dsp24", "float32"]
 @pytest.mark.parametrize("path", example_files(), ids=lambda p: p.name)
 @pytest.mark.parametrize("target", TARGETS)
 def test_every_example_realises_and_simulates(path, target):
-    from coefc.targets import Overrides
+    from coefc.targetspec import Overrides
 
     design = coefc.load(path).design()
     tgt = design.target(target)

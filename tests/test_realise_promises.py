@@ -196,7 +196,7 @@ def test_l1_keeps_every_internal_node_within_full_scale_or_the_check_fails(name,
 def _check(tmp_path, text, structure):
     f = tmp_path / "d.toml"
     f.write_text(text)
-    from coefc.targets import Overrides
+    from coefc.targetspec import Overrides
 
     real = coefc.load(f).design().realise(overrides=Overrides(structure=structure))
     rep = run_check(real, real.design.loaded.description.budget)

@@ -1,4 +1,4 @@
-"""The self-contained HTML report (`coefc report`, coefc.htmlreport).
+"""The self-contained HTML report (`coefc report`, coefc.reports.html).
 
 References: scipy.signal.butter(output="zpk") for the poles and zeros the report
 plots; the check report itself (coefc.budget) for every number the page shows.
@@ -16,7 +16,7 @@ from scipy import signal
 
 import coefc
 from coefc.budget import run_check
-from coefc.htmlreport import poles_zeros, render_report
+from coefc.reports.html import poles_zeros, render_report
 
 from conftest import FILTERS
 

@@ -10,7 +10,8 @@ from coefc.api import load
 from coefc.blocks import chain_response
 from coefc.program import Arithmetic
 from coefc.qformat import QFormat
-from coefc.realise import as_float_blocks, realise_channel
+from coefc.blocks import as_float_blocks
+from coefc.realise import realise_channel
 
 from design_util import design
 

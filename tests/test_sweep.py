@@ -1,4 +1,4 @@
-"""Word-length sweeps and the minimal-width search (coefc.sweep, `coefc sweep`).
+"""Word-length sweeps and the minimal-width search (coefc.explore.sweep, `coefc sweep`).
 
 References used here:
 - one more data bit halves the quantisation step, so roundoff noise power falls by
@@ -24,7 +24,7 @@ import pytest
 import coefc
 from coefc.analyse import AnalysisOptions
 from coefc.errors import DescriptionError
-from coefc.sweep import Config, Sweeper, fewest_bits, parse_widths
+from coefc.explore.sweep import Config, Sweeper, fewest_bits, parse_widths
 
 LOWPASS = """
 name = "sweep_lp"
@@ -83,7 +83,7 @@ def test_noise_falls_6dB_per_data_bit(sweeper):
 def test_config_equals_check_with_same_overrides(sweeper, lp_file):
     # The sweep evaluates exactly what `coefc check` does with the same overrides.
     from coefc.budget import run_check
-    from coefc.targets import Overrides
+    from coefc.targetspec import Overrides
 
     row = sweeper.evaluate(Config("mcu32", "df1", 40, 20, 18))
     d = coefc.load(lp_file).design()
@@ -184,10 +184,10 @@ stages = [
 
 
 def test_hybrid_is_exactly_the_narrow_op_in_the_wide_format(tmp_path):
-    from coefc.opwidths import hybrid
+    from coefc.explore.opwidths import hybrid
     from coefc.program import SectionOp
-    from coefc.realise import as_float_blocks
-    from coefc.targets import Overrides
+    from coefc.blocks import as_float_blocks
+    from coefc.targetspec import Overrides
 
     def rows(prog):  # physical section rows in op order, and the gains
         sos = np.vstack([b.sos for b in as_float_blocks(prog) if hasattr(b, "sos")])
@@ -220,7 +220,7 @@ def test_low_frequency_section_needs_the_longer_coefficient_word(tmp_path):
     # grows as poles crowd towards z = 1 -- Oppenheim & Schafer, finite-precision
     # chapter, from memory): a 30 Hz peaking section at 48 kHz needs more
     # coefficient bits than a 6 kHz one for the same response error.
-    from coefc.opwidths import fewest_op_widths
+    from coefc.explore.opwidths import fewest_op_widths
 
     p = tmp_path / "two.toml"
     p.write_text(TWO_SECTIONS)
@@ -238,7 +238,7 @@ def test_low_frequency_section_needs_the_longer_coefficient_word(tmp_path):
 
 
 def test_data_words_without_two_fractional_bits_are_skipped(sweeper):
-    # the rule is check's own (coefc.targets.resolve_arithmetic), so its message too
+    # the rule is check's own (coefc.targetspec.resolve_arithmetic), so its message too
     configs, skipped = sweeper.configs(["mcu32"], None, None, (2, 3, 24), (20,))
     assert [c.data_bits for c in configs] == [3, 24]
     assert any("data word Q1.1 has 1 fractional bit" in s for s in skipped)
@@ -269,9 +269,9 @@ stages = [ { kind = "highpass", response = "butterworth", order = 2, cutoff_hz =
 
 @pytest.mark.parametrize("target", ["mcu16", "mcu32", "dsp24"])
 def test_sweep_never_offers_what_build_refuses(tmp_path, target):
-    from coefc.emit import render
+    from coefc.emit.header import render
     from coefc.errors import CoefcError
-    from coefc.targets import Overrides, kernel_info
+    from coefc.targetspec import Overrides, kernel_info
 
     p = tmp_path / "agree.toml"
     p.write_text(SUBSONIC)

@@ -14,7 +14,7 @@ from coefc.budget import _budget_dict, apply_overrides, channel_checks, with_def
 from coefc.checks import BUDGET_CHECKS, CHECKS, HAZARD_DEFAULTS, OPTION_CHECKS, LimitError, kind_of
 from coefc.cli import app
 from coefc.errors import DescriptionError
-from coefc.reporting import render_junit, render_text
+from coefc.reports.text import render_junit, render_text
 from coefc.spec import Budget, load_description
 
 from test_budget import fake_metrics
@@ -137,10 +137,10 @@ import numpy as np  # noqa: E402
 import coefc  # noqa: E402
 import exact_model  # noqa: E402
 from coefc.analyse import AnalysisOptions, analyse_channel  # noqa: E402
-from coefc.codegen import cost_of  # noqa: E402
+from coefc.emit.codegen import cost_of  # noqa: E402
 from coefc.program import STRUCTURE_TABLE, SectionOp  # noqa: E402
 from coefc.simulate import simulate  # noqa: E402
-from coefc.targets import Overrides, list_targets  # noqa: E402
+from coefc.targetspec import Overrides, list_targets  # noqa: E402
 
 from conftest import FILTERS  # noqa: E402
 

@@ -14,7 +14,7 @@ import pytest
 
 from coefc.errors import TargetError
 from coefc.qformat import QFormat
-from coefc.targets import ENV_VAR, build_info, find_target, key_line, list_targets
+from coefc.targetspec import ENV_VAR, build_info, find_target, key_line, list_targets
 from conftest import lab_board_copy
 
 HERE = Path(__file__).resolve().parent
@@ -155,7 +155,7 @@ def test_command_line_structure_wins_before_the_target_is_asked():
     """A description asking for df1ef can still be built for float32 with --structure tdf2."""
     from coefc.errors import DescriptionError
     from coefc.spec import Implementation
-    from coefc.targets import Overrides, resolve_arithmetic
+    from coefc.targetspec import Overrides, resolve_arithmetic
 
     t = find_target("float32")
     impl = Implementation(structure="df1ef")

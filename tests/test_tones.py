@@ -23,8 +23,8 @@ from coefc.analyse.tones import MIN_OUTPUT_LSB, _coherent, _run, analyse_tones, 
 from coefc.budget import DEFAULT_TONE_GAIN_ERROR_DB, run_check
 from coefc.design.weighting import CLASS1_TABLE
 from coefc.program import SectionOp
-from coefc.reporting import render_json, render_text
-from coefc.targets import Overrides
+from coefc.reports.text import render_json, render_text
+from coefc.targetspec import Overrides
 
 import exact_model
 from conftest import FILTERS
@@ -334,8 +334,8 @@ def test_a_notch_floor_is_judged_by_the_realised_coefficients(tmp_path):
     # A 50 Hz notch (Q 5) on mcu32 with error feedback: near its floor the last bit of a
     # coefficient moves the float-design figure, yet the chip does exactly what its
     # coefficients say; the gate uses the realised coefficients' linear response
-    # (coefc.realise.as_float_blocks, checked against scipy.signal.sosfreqz here).
-    from coefc.realise import as_float_blocks
+    # (coefc.blocks.as_float_blocks, checked against scipy.signal.sosfreqz here).
+    from coefc.blocks import as_float_blocks
 
     path = describe(tmp_path, ['{ kind = "notch", freq_hz = 50, q = 5.0 }'], structure="df1ef")
     real = realise(path)

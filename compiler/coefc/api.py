@@ -25,7 +25,7 @@ import numpy as np
 from .blocks import ChannelDesign
 from .program import ChannelProgram
 from .spec import Description, load_description
-from .targets import Overrides, Target, find_target, resolve_arithmetic
+from .targetspec import Overrides, Target, find_target, resolve_arithmetic
 
 
 @dataclass(frozen=True, eq=False)

@@ -12,8 +12,12 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
+
+if TYPE_CHECKING:
+    from .program import ChannelProgram
 
 
 @dataclass(frozen=True, eq=False)
@@ -115,3 +119,38 @@ class ChannelDesign:
         """All IIR sections of the channel in one (n, 6) array (gains/FIR excluded)."""
         parts = [b.sos for b in self.blocks if isinstance(b, SosBlock)]
         return np.vstack(parts) if parts else np.zeros((0, 6))
+
+
+def as_float_blocks(program: ChannelProgram) -> tuple[Block, ...]:
+    """The exact physical values of a realised program as float blocks.
+
+    ``chain_response(as_float_blocks(p), f, fs)`` is the response of the quantised
+    coefficients (roundoff noise and overflow aside).  Consecutive sections become
+    one :class:`SosBlock`.
+    """
+    from .program import DelayOp, FirOp, GainOp, SectionOp
+
+    ar = program.arithmetic
+    fc = 0 if ar.is_float else ar.coef.frac_bits
+    out: list[Block] = []
+    rows: list[list[float]] = []
+
+    def flush():
+        if rows:
+            out.append(SosBlock(np.array(rows, dtype=float)))
+            rows.clear()
+
+    for op in program.ops:
+        scale = 1.0 if ar.is_float else 2.0 ** (op.shift - fc) if not isinstance(op, DelayOp) else 1.0
+        if isinstance(op, SectionOp):
+            rows.append([float(v) * scale for v in op.b] + [1.0] + [float(v) * scale for v in op.a])
+            continue
+        flush()
+        if isinstance(op, FirOp):
+            out.append(FirBlock(np.array([float(v) * scale for v in op.taps])))
+        elif isinstance(op, GainOp):
+            out.append(GainBlock(float(op.coef) * scale))
+        elif isinstance(op, DelayOp):
+            out.append(DelayBlock(op.samples))
+    flush()
+    return tuple(out)

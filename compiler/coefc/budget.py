@@ -52,7 +52,7 @@ from .checks import (BUDGET_CHECKS, BY_NAME, DEFAULT_TONE_GAIN_ERROR_DB, HAZARD_
                      SAFETY_CAUTION, LimitError, kind_of)
 from .errors import DescriptionError
 from .program import SectionOp
-from .reporting import format_limit
+from .reports.text import format_limit
 from .spec import Budget
 
 SCHEMA = 1
@@ -323,7 +323,7 @@ def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], di
                     reason = (f"{summary}; "
                               + (_remedies(metrics, "df1ef", "rounding", "data")
                                  if st == "found" else "allow a number of LSB"
-                                 + (" or raise --search-limit" if any("search limit" in s.note for s in lc.sections)
+                                 + (" or raise the search limit" if any(getattr(s, "search_limited", False) for s in lc.sections)
                                     else "")))
             else:
                 # every section must be within the limit at the channel output: a found cycle of an
@@ -566,7 +566,7 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
         Bands and search effort; bands default to the budget's ``passband``/``stopband``.
     """
     from .analyse import AnalysisOptions, analyse_channel
-    from .codegen import cost_of
+    from .emit.codegen import cost_of
 
     base = options or AnalysisOptions()
     designs = {d.name: d for d in realisation.design.channels}
@@ -588,7 +588,7 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
         checks, why = channel_checks(m, cb, tones)
         checks.sort(key=lambda c: c.ok)  # failing rows first
         md = m.as_dict()
-        md["cost"] = cost_of(prog)  # of the generated code (coefc.codegen)
+        md["cost"] = cost_of(prog)  # of the generated code (coefc.emit.codegen)
         if tones is not None:
             from .analyse import _clean
 

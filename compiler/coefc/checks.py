@@ -5,8 +5,8 @@ Each :class:`CheckKind` names a check as JSON and the text report show it, the
 overrides that key (if any), its unit, how its value compares with its limit,
 how the limit is validated, and the words people read.  :mod:`coefc.spec`
 (``[budget]`` keys), :mod:`coefc.budget` (overrides, defaults, JSON budget),
-the CLI (``check`` and ``build`` options), :mod:`coefc.reporting` (text,
-JUnit), :mod:`coefc.htmlreport` and :mod:`coefc.emit` (the header's banner)
+the CLI (``check`` and ``build`` options), :mod:`coefc.reports.text` (text,
+JUnit), :mod:`coefc.reports.html` and :mod:`coefc.emit.header` (the header's banner)
 all read :data:`CHECKS`; adding a check is one entry here, its comparison in
 :func:`coefc.budget.channel_checks`, and its tests.
 
@@ -156,13 +156,13 @@ class CheckKind:
 
     def limit_text(self, limit) -> str:
         """The limit as the reports print it: ``<= 0.05`` (a word limit such as ``none`` as is)."""
-        from .reporting import format_limit
+        from .reports.text import format_limit
 
         return limit if isinstance(limit, str) else f"{self.op} {format_limit(limit)}"
 
     def value_text(self, value, limit, ok) -> str:
         """The value with enough digits to compare with the limit as the check did."""
-        from .reporting import format_against
+        from .reports.text import format_against
 
         return format_against(value, limit, self.op, ok)
 

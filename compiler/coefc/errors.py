@@ -11,7 +11,27 @@ it (channel, stage index, key) and what to do about it, e.g.::
 from __future__ import annotations
 
 import difflib
-from collections.abc import Iterable
+import re
+from collections.abc import Iterable, Mapping
+
+_SETTING = re.compile(r"@\{(\w+)\}")
+
+
+def setting(name: str) -> str:
+    """A reference to the setting *name* inside a message, in the library's words or the CLI's.
+
+    *name* is the setting as the library and the description know it (``coef``,
+    ``acc_bits``, ``target_dirs``, ``search_limit`` ...).  ``str(err)`` prints it
+    as that name; the CLI prints it as its own option (:meth:`CoefcError.spoken`
+    with the table ``coefc.cli.options.OPTION_OF_SETTING``), so library messages
+    never name command-line flags.
+
+    >>> str(CoefcError(f"give the coefficient word more integer bits ({setting('coef')})"))
+    'give the coefficient word more integer bits (coef)'
+    >>> CoefcError(f"raise it ({setting('coef')})").spoken({"coef": "--coef"})
+    'raise it (--coef)'
+    """
+    return "@{" + name + "}"
 
 
 class CoefcError(Exception):
@@ -23,10 +43,18 @@ class CoefcError(Exception):
 
     source: str | None = None
 
+    def __str__(self) -> str:
+        return self.spoken({})
+
+    def spoken(self, names: Mapping[str, str]) -> str:
+        """The message with each :func:`setting` named by *names* (default: its own name)."""
+        text = super().__str__()
+        return _SETTING.sub(lambda m: names.get(m.group(1), m.group(1)), text)
+
     def placed(self, source: str) -> "CoefcError":
         """This error (same type) with *source* set and named at the start of its message."""
         self.source = source
-        self.args = (f"{source}: {self}",) + self.args[1:]
+        self.args = (f"{source}: {super().__str__()}",) + self.args[1:]
         return self
 
 

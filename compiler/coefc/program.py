@@ -1,7 +1,7 @@
 """The realised fixed-point (or float32) program of a channel.
 
 Produced by :mod:`coefc.realise`, executed by :mod:`coefc.simulate`, measured by
-:mod:`coefc.analyse` and written out by :mod:`coefc.emit`.  It holds finished
+:mod:`coefc.analyse` and written out by :mod:`coefc.emit.header`.  It holds finished
 integers: nothing downstream re-derives a coefficient.
 
 Canonical integer DF1 section (the arithmetic every part agrees on; ``Fd``/``Fc``
@@ -122,7 +122,7 @@ class Structure:
 
 
 #: The table of structures: adding one is an entry here, its recurrence (above, the engine,
-#: tests/exact_model.py, the C kernels and coefc.codegen) and its noise and limit-cycle models.
+#: tests/exact_model.py, the C kernels and coefc.emit.codegen) and its noise and limit-cycle models.
 STRUCTURE_TABLE: dict[str, Structure] = {s.name: s for s in (
     Structure("df1", "direct form I", 0, data_states=4, acc_states=0),
     Structure("tdf2", "transposed direct form II", 1, data_states=0, acc_states=2),

@@ -27,7 +27,7 @@ from types import MappingProxyType
 from .checks import BUDGET_CHECKS, LimitError, as_number
 from .checks import fmt_number as _fmt
 from .checks import type_name as _type_name
-from .errors import DescriptionError, close_match
+from .errors import DescriptionError, close_match, setting
 from .stagekinds import (EQ_KINDS, FIR_KINDS, FIR_METHODS, IIR_KINDS, IIR_RESPONSES,  # noqa: F401 (re-exported)
                          MAX_FIR_TAPS, MAX_IIR_ORDER, MAX_LS_TAPS, STAGE_KINDS_TABLE, WEIGHTINGS)
 from .stagekinds import FREQ_KEYS as _FREQ_KEYS
@@ -110,7 +110,7 @@ class Description:
             f"no channel '{name}' in {self.source}; channels are "
             + ", ".join(c.name for c in self.channels)
             + close_match(name, [c.name for c in self.channels]),
-            key="--channel",
+            key=setting("channel"),
         )
 
 

@@ -64,6 +64,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field, replace
+from typing import Literal
 
 import numpy as np
 
@@ -74,19 +75,24 @@ MAX_STATES = 1 << 24  # exhaustive granular search up to this many candidate sta
 MAX_WHOLE_STATES = 1 << 22  # exhaustive search of the whole zero-input map up to this many states
 
 
+#: a verdict: "none" proven over the whole integer map, "found" a cycle exists (start state
+#: given), "unproven" neither could be shown (the note says why)
+Status = Literal["none", "found", "unproven"]
+
+
 @dataclass(frozen=True)
 class SectionLimitCycles:
     """Verdicts for one recursive section (``op_index`` 0-based)."""
 
     op_index: int
-    status: str  # "none" | "found" | "unproven"
+    status: Status
     bound_lsb: float | None  # rigorous amplitude bound (None: no finite bound)
     exhaustive: bool
     states_searched: int
     amplitude_lsb: int | None = None
     period: int | None = None
     start_state: tuple[int, ...] | None = None  # (y[n-1], y[n-2]) data words; df1ef adds the residual E
-    overflow_status: str = "none"  # "none" | "found" | "unproven"
+    overflow_status: Status = "none"
     overflow_note: str = ""
     overflow_amplitude: float | None = None  # fraction of full scale
     overflow_period: int | None = None
@@ -96,6 +102,7 @@ class SectionLimitCycles:
     output_amplitude_lsb: int | None = None  # bit-true engine, the found cycle fed to the later ops
     output_bound_lsb: float | None = None  # rigorous bound at the channel output (None: no finite bound)
     output_note: str = ""
+    search_limited: bool = False  # unproven because the candidate states exceeded the search limit
 
 
 _WORST = {"none": 0, "found": 1, "unproven": 2}
@@ -115,7 +122,7 @@ class LimitCycleAnalysis:
     section_numbers: tuple[int, ...] = field(default_factory=tuple)  # 1-based, among the channel's sections
 
     @property
-    def status(self) -> str:
+    def status(self) -> Status:
         """``unproven`` if any section is, else ``found`` if any is, else ``none``."""
         return max((s.status for s in self.sections), key=_WORST.get, default="none")
 
@@ -162,7 +169,7 @@ class LimitCycleAnalysis:
         return all(s.exhaustive for s in self.sections)
 
     @property
-    def overflow_status(self) -> str:
+    def overflow_status(self) -> Status:
         st = [s.overflow_status for s in self.sections]
         return "found" if "found" in st else "unproven" if "unproven" in st else "none"
 
@@ -688,9 +695,10 @@ def _granular(a1, a2, k, arith, order, structure, bounds, max_states, sample_sta
             res = dict(found)
             res.update(status="found", bound_lsb=Bf, exhaustive=True, states_searched=count)
     else:
+        res = dict(status="unproven", bound_lsb=Bf, exhaustive=False, states_searched=0)
         if exhaustive_ok:
             notes.append(f"more candidate states than the search limit of {max_states}")
-        res = dict(status="unproven", bound_lsb=Bf, exhaustive=False, states_searched=0)
+            res["search_limited"] = True
         if structure in ("df1", "tdf2") or B < fs_lsb:
             found = _sampled(a1, a2 if order == 2 else 0, k, arith, B, sample_starts, sample_steps, seed,
                              ef=structure == "df1ef")

@@ -1,7 +1,7 @@
 """Coefficient quantisation: a float design and its realised program in, response errors out.
 
 The realised response is that of the exact physical values of the quantised
-coefficients (:func:`coefc.realise.as_float_blocks`), compared with the float
+coefficients (:func:`coefc.blocks.as_float_blocks`), compared with the float
 design on one frequency grid (:func:`grid`) that covers every band and every
 frequency the description names:
 
@@ -145,7 +145,7 @@ def analyse_response(design: ChannelDesign, program: ChannelProgram, *, passband
     Returns the largest passband deviation |quantised - float| in dB, the achieved
     stopband attenuation, the largest pole radius, stability and root displacement.
     """
-    from ..realise import as_float_blocks
+    from ..blocks import as_float_blocks
 
     fs = float(design.sample_rate_hz)
     taps = sum(len(b.taps) for b in design.blocks if isinstance(b, FirBlock))

@@ -357,7 +357,7 @@ def analyse_tones(design: ChannelDesign, program: ChannelProgram, freqs_hz: np.n
     fx = np.array([c[0] for c in coh])
     h_design = np.abs(design.response(fx))
     from ..blocks import chain_response
-    from ..realise import as_float_blocks
+    from ..blocks import as_float_blocks
 
     h_lin = np.abs(chain_response(as_float_blocks(program), fx, fs))
     stage_h = {letter: np.abs(block_response(blk, fx, fs)) for letter, blk in weightings}

@@ -16,6 +16,7 @@ import warnings
 import typer
 
 from ..errors import CoefcError
+from .options import OPTION_OF_SETTING
 
 app = typer.Typer(
     name="coefc",
@@ -104,7 +105,7 @@ def main() -> None:
             warnings.simplefilter("ignore")
             rv = app(prog_name="coefc", standalone_mode=False)
     except CoefcError as e:
-        print(f"coefc: error: {e}", file=sys.stderr)
+        print(f"coefc: error: {e.spoken(OPTION_OF_SETTING)}", file=sys.stderr)
         sys.exit(2)
     except _TyperError as e:
         if type(e).__name__ == "NoArgsIsHelpError":  # bare `coefc` or `coefc check`: show the help

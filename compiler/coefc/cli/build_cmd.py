@@ -60,10 +60,10 @@ def build(
     """
     from ..budget import apply_overrides, run_check
     from ..checks import over_budget_text
-    from ..emit import render
-    from ..fileio import check_output, write_atomic
-    from ..buildable import validate
-    from ..targets import build_info
+    from ..emit.header import render
+    from ..fileio.output import check_output, write_atomic
+    from ..emit.buildable import validate
+    from ..targetspec import build_info
 
     if output.is_dir():
         raise CoefcError(f"{output}: is a folder; give the header's file name, e.g. -o {output / 'filters.h'}")

@@ -4,7 +4,7 @@ Realises every channel on the target, analyses it (response error, roundoff nois
 overflow, limit cycles) and compares with ``[budget]`` (overridable here).  Exit
 codes: 0 every check passes, 1 something is over budget, 2 bad input -- including
 a configuration the target's kernel cannot run, which ``coefc build`` would refuse
-(:mod:`coefc.buildable` holds those rules for both).
+(:mod:`coefc.emit.buildable` holds those rules for both).
 """
 
 from __future__ import annotations
@@ -56,20 +56,20 @@ def check(
     """
     from ..analyse import AnalysisOptions
     from ..budget import apply_overrides, run_check
-    from ..reporting import render
+    from ..reports.text import render
 
     options.check_outputs([(json_out, "JSON report"), (junit, "JUnit report")], [file])
     loaded, real = options.realisation(file, channel=channel, target=target, target_dir=target_dir,
                                        data=data, coef=coef, acc=acc, rounding=rounding,
                                        overflow=overflow, structure=structure, scaling=scaling)
-    from ..buildable import validate
+    from ..emit.buildable import validate
 
     validate(real)  # what `coefc build` would refuse fails here too (exit 2), before the analysis
     desc = loaded.description
     budget = apply_overrides(desc.budget, **budget_overrides)
     report = run_check(real, budget, options=AnalysisOptions(noise_samples=noise_samples, max_states=search_limit))
     if junit:
-        from ..fileio import write_atomic
+        from ..fileio.output import write_atomic
 
         write_atomic(Path(junit), render(report, "junit"))
     if json_out:

@@ -11,7 +11,15 @@ from typing import Annotated, Optional
 
 import typer
 
-from ..targets import Overrides
+from ..targetspec import Overrides
+
+#: The option that sets each setting a library message may name (:func:`coefc.errors.setting`):
+#: the CLI prints errors with these, the library with the settings' own names.
+OPTION_OF_SETTING = {
+    "acc_bits": "--acc", "channel": "--channel", "coef": "--coef", "data": "--data", "force": "--force",
+    "kernel": "--kernel", "search_limit": "--search-limit", "structure": "--structure",
+    "target_dirs": "--target-dir", "vectors": "--vectors",
+}
 
 def _target_name(value: str | None) -> str | None:
     if value is not None and not value.strip():
@@ -75,7 +83,7 @@ def check_outputs(outputs, inputs=()) -> None:
     *outputs* holds ``(path or None, what)`` pairs; ``None`` and ``'-'`` (stdout)
     are skipped.
     """
-    from ..fileio import check_output
+    from ..fileio.output import check_output
 
     for dest, what in outputs:
         if dest is not None and str(dest) != "-":
@@ -90,7 +98,7 @@ def write_json(obj, dest: str | None) -> None:
     if dest == "-":
         sys.stdout.write(text)
     else:
-        from ..fileio import write_atomic
+        from ..fileio.output import write_atomic
 
         write_atomic(Path(dest), text)
 

@@ -31,8 +31,8 @@ def report(
     elsewhere.  dBFS per AES17: 0 dBFS is the RMS level of a full-scale sine.
     """
     from ..budget import run_check
-    from ..fileio import write_atomic
-    from ..htmlreport import render_report
+    from ..fileio.output import write_atomic
+    from ..reports.html import render_report
 
     if out.suffix.lower() not in (".html", ".htm"):
         from ..errors import CoefcError

@@ -3,7 +3,7 @@
 The input (mono WAV, or ``.txt`` with one raw data word per line) is fed to each
 chosen channel; the output is a WAV with one channel per filter channel, or a
 ``.txt`` with a ``# channels: a b c`` header and one column per channel.  See
-:mod:`coefc.sampleio` for the scaling between WAV and data words.
+:mod:`coefc.fileio.samples` for the scaling between WAV and data words.
 """
 
 from __future__ import annotations
@@ -40,9 +40,9 @@ def run(
     uses the data word's container (16-bit words -> int16, 24/32-bit -> int32,
     float32 -> float).
     """
-    from ..sampleio import read_samples, write_samples
-    from ..fileio import check_output
-    from ..sampleio import output_kind
+    from ..fileio.samples import read_samples, write_samples
+    from ..fileio.output import check_output
+    from ..fileio.samples import output_kind
     from ..simulate import simulate
 
     output_kind(output_path)

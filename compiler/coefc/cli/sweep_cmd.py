@@ -54,8 +54,8 @@ def sweep(
     from ..api import load
     from ..budget import apply_overrides
     from ..errors import CoefcError
-    from ..opwidths import fewest_op_widths
-    from ..sweep import (MAX_SWEEP_POINTS, Sweeper, fewest_bits as run_fewest_bits, grid_size, parse_names,
+    from ..explore.opwidths import fewest_op_widths
+    from ..explore.sweep import (MAX_SWEEP_POINTS, Sweeper, fewest_bits as run_fewest_bits, grid_size, parse_names,
                          parse_widths, plot)
 
     if per_op and not fewest:
@@ -131,11 +131,11 @@ def sweep(
             if csv_out == "-":
                 sys.stdout.write(buf.getvalue())
             else:
-                from ..fileio import write_atomic
+                from ..fileio.output import write_atomic
 
                 write_atomic(Path(csv_out), buf.getvalue())
         if plot_out is not None:
-            from ..fileio import atomic_path
+            from ..fileio.output import atomic_path
 
             with atomic_path(plot_out) as tmp:
                 plot(result, tmp)

@@ -22,7 +22,7 @@ def _row(t) -> dict:
 @app.command()
 def targets(target_dir: options.TargetDirs = None, json_out: options.JsonOut = None) -> None:
     """List targets and their arithmetic (built-in, --target-dir, COEFC_TARGET_PATH)."""
-    from ..targets import build_info, list_targets
+    from ..targetspec import build_info, list_targets
 
     options.check_outputs([(json_out, "JSON report")])
     found = list_targets(target_dir or ())

@@ -64,13 +64,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..blocks import Block, ChannelDesign, DelayBlock, FirBlock, GainBlock, SosBlock
+from ..blocks import ChannelDesign, DelayBlock, FirBlock, GainBlock, SosBlock
 from ..errors import CoefcError
 from ..program import STRUCTURE_TABLE, Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, Note, SectionOp
 from ..qformat import QFormat  # noqa: F401 (used by the doctest)
 from . import coefficients, pairing, scaling
 
-__all__ = ["realise_channel", "as_float_blocks"]
+__all__ = ["realise_channel"]
 
 
 class RealisationError(CoefcError):
@@ -352,7 +352,7 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
     ops, gain, worst = [], 1.0, 0.0
     # start from the float design's factors: realisations of one design in different words
     # then share their scaling wherever the quantised coefficients do not force a lower one
-    # (the per-op width search of coefc.opwidths relies on this correspondence)
+    # (the per-op width search of coefc.explore.opwidths relies on this correspondence)
     factors = scaling.scale_factors(chain0, "l1", target, n)
     for (kind, op), c0 in zip(chain0, factors):
         c0 = _at_least_one_lsb(kind, op, c0, ar)
@@ -429,36 +429,3 @@ def _build(design, arithmetic, pre_gain, delay, chain, final_gain, notes) -> Cha
     for kind, op in chain:
         ops.append(_fixed_op(kind, op, 1.0, arithmetic, notes, sum(isinstance(o, SectionOp) for o in ops) + 1)[0])
     return _finish(design, arithmetic, delay, ops, final_gain, notes)
-
-
-def as_float_blocks(program: ChannelProgram) -> tuple[Block, ...]:
-    """The exact physical values of a realised program as float blocks.
-
-    ``chain_response(as_float_blocks(p), f, fs)`` is the response of the quantised
-    coefficients (roundoff noise and overflow aside).  Consecutive sections become
-    one :class:`SosBlock`.
-    """
-    ar = program.arithmetic
-    fc = 0 if ar.is_float else ar.coef.frac_bits
-    out: list[Block] = []
-    rows: list[list[float]] = []
-
-    def flush():
-        if rows:
-            out.append(SosBlock(np.array(rows, dtype=float)))
-            rows.clear()
-
-    for op in program.ops:
-        scale = 1.0 if ar.is_float else 2.0 ** (op.shift - fc) if not isinstance(op, DelayOp) else 1.0
-        if isinstance(op, SectionOp):
-            rows.append([float(v) * scale for v in op.b] + [1.0] + [float(v) * scale for v in op.a])
-            continue
-        flush()
-        if isinstance(op, FirOp):
-            out.append(FirBlock(np.array([float(v) * scale for v in op.taps])))
-        elif isinstance(op, GainOp):
-            out.append(GainBlock(float(op.coef) * scale))
-        elif isinstance(op, DelayOp):
-            out.append(DelayBlock(op.samples))
-    flush()
-    return tuple(out)

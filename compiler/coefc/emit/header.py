@@ -49,20 +49,18 @@ from __future__ import annotations
 
 import hashlib
 import math
-import re
 import sys
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 
 from .buildable import (C_KEYWORDS, FOLDED_FIR_ABI, SUPPORTED_ABI, EmitError, KernelOp, c_identifier,
                         validate)
-from .checks import SAFETY_CAUTION, over_budget_text
-from .errors import CoefcError, TargetError
-from .program import DelayOp, FirOp, GainOp, SectionOp
-from .targets import Target
-from .templating import TemplateLimitError, environment, render_bounded
+from ..checks import SAFETY_CAUTION, over_budget_text
+from ..errors import CoefcError, TargetError, setting
+from ..program import DelayOp, FirOp, GainOp, SectionOp
+from ..targetspec import Target
+from ..templating import TemplateLimitError, environment, render_bounded
 
 __all__ = ["render", "c_identifier", "golden_input", "GOLDEN_DEFAULT", "EmitError", "C_KEYWORDS",
            "SUPPORTED_ABI", "FOLDED_FIR_ABI"]
@@ -73,7 +71,7 @@ GOLDEN_DEFAULT = 256
 #: makes a header of tens of megabytes).
 GOLDEN_MAX = 1 << 20
 # The refusal rules (kernel limits, C names, shifts, coefficient words) live in
-# coefc.buildable, which `coefc check` and `coefc sweep` call too; C_KEYWORDS,
+# coefc.emit.buildable, which `coefc check` and `coefc sweep` call too; C_KEYWORDS,
 # c_identifier, EmitError, SUPPORTED_ABI and FOLDED_FIR_ABI are re-exported here.
 
 
@@ -150,7 +148,7 @@ def golden_input(n: int, width: int) -> list[int]:
 
 
 def _golden(programs, n: int, fixed: bool, data_bits: int):
-    from .simulate import simulate
+    from ..simulate import simulate
 
     if fixed:
         x_int = golden_input(n, data_bits)
@@ -299,7 +297,7 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
         from the same place as the header.
     generated : bool
         Write generated code specialised to each channel instead of the
-        operation table (``OUT.h`` and ``OUT.c``, :mod:`coefc.codegen`); the
+        operation table (``OUT.h`` and ``OUT.c``, :mod:`coefc.emit.codegen`); the
         same refusals apply.
 
     Returns
@@ -308,18 +306,18 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
         ``{file name: text}``: the header, and ``<stem>.c`` when the target has a
         ``[templates] source``.
     """
-    from . import __version__
+    from .. import __version__
 
     desc = realisation.design.loaded.description
     target: Target = realisation.target
     programs = tuple(realisation.programs)
     if not 0 <= vectors <= GOLDEN_MAX:
-        raise CoefcError(f"<command line>: --vectors {vectors}: use 0 (none) up to {GOLDEN_MAX} samples "
+        raise CoefcError(f"<command line>: {setting('vectors')} {vectors}: use 0 (none) up to {GOLDEN_MAX} samples "
                          "per channel")
     header_name = Path(header_name).name
     checked = validate(realisation)  # every refusal rule, shared with coefc check and coefc sweep
     if checked is None:
-        from .targets import build_info
+        from ..targetspec import build_info
 
         build_info(target)  # a check-only target: says which build table it lacks
         raise TargetError(f"{target.folder / 'target.toml'}: target '{target.name}' states no build tables")
@@ -333,7 +331,7 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
     toml_bytes = (target.folder / "target.toml").read_bytes()
     over = report is not None and not bool(report.ok)
     if over and not forced:
-        raise EmitError(f"{desc.source}: over budget; the header is not written (use --force to write it anyway)")
+        raise EmitError(f"{desc.source}: over budget; the header is not written (use {setting('force')} to write it anyway)")
 
     golden = None
     golden_outs: list[list[str]] = [[] for _ in programs]

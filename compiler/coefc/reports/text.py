@@ -12,7 +12,7 @@ import json
 import math
 from xml.sax.saxutils import escape, quoteattr
 
-from .checks import kind_of
+from ..checks import kind_of
 
 DBFS_NOTE = ("dBFS per AES17: 0 dBFS = RMS of a full-scale sine (full scale = 1.0); "
              "peaks are fractions of full scale (dB re full-scale peak).")

@@ -20,11 +20,11 @@ cheaper point has been seen to fail.  No monotonicity is assumed: the verdict is
 not monotone in general (coefficient quantisation can pass by luck at one width and
 fail at the next, and a data word that reaches the accumulator width fails where a
 narrower one passes), and a walk that assumes it can miss the answer or find none.
-:mod:`coefc.opwidths` refines the result per operation (section, FIR, gain).
+:mod:`coefc.explore.opwidths` refines the result per operation (section, FIR, gain).
 
 Only configurations ``coefc build`` accepts are offered: a width beyond what the
 target's kernel computes is skipped with the reason before any work, and a
-realisation the kernel cannot run (:func:`coefc.buildable.validate`: rounding
+realisation the kernel cannot run (:func:`coefc.emit.buildable.validate`: rounding
 shifts, coefficient words in the target's layout, ...) is skipped after realising.
 Default ranges stay inside each target's ``[limits]``.
 
@@ -43,12 +43,12 @@ import re
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
 
-from .budget import CheckReport, run_check
-from .errors import DescriptionError
-from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
-from .qformat import QFormat
-from .spec import Budget
-from .targets import Overrides
+from ..budget import CheckReport, run_check
+from ..errors import DescriptionError
+from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
+from ..qformat import QFormat
+from ..spec import Budget
+from ..targetspec import Overrides
 
 METRICS = (
     ("passband_deviation_db", "max"),
@@ -188,7 +188,7 @@ class SweepResult:
         return out
 
     def to_json(self) -> dict:
-        from . import __version__
+        from .. import __version__
 
         best = self.cheapest()
         return {
@@ -282,7 +282,7 @@ class Sweeper:
 
     def __init__(self, design, budget: Budget, overrides: Overrides | None = None,
                  target_dirs: Iterable = (), options=None) -> None:
-        from .analyse import AnalysisOptions
+        from ..analyse import AnalysisOptions
 
         self.design = design
         self.budget = budget
@@ -299,7 +299,7 @@ class Sweeper:
         return self._targets[key]
 
     def base_arithmetic(self, target_name: str | None):
-        from .targets import resolve_arithmetic
+        from ..targetspec import resolve_arithmetic
 
         d = self.design.loaded.description
         return resolve_arithmetic(self.target(target_name), d.implementation, self.overrides, d.source)
@@ -320,7 +320,7 @@ class Sweeper:
         A realisation ``coefc build`` would refuse is not analysed: its result has no
         channel rows, ``ok`` False and the reason in ``refused``.
         """
-        from .buildable import refusal
+        from ..emit.buildable import refusal
 
         if config in self._cache:
             return self._cache[config]
@@ -352,7 +352,7 @@ class Sweeper:
         steps of 4 ending at that word, never below 8 bits: 16:32:4 on mcu32, 8:24:4
         on dsp24, 8:16:4 on mcu16.  A check-only target (no build tables) gets 16:32:4.
         """
-        from .targets import kernel_info
+        from ..targetspec import kernel_info
 
         info = kernel_info(self.target(target_name))
         if info is None:
@@ -369,9 +369,9 @@ class Sweeper:
         The arithmetic is resolved exactly as ``coefc check --data ... --coef ...
         --acc ...`` resolves it, so every refusal rule of the words (fractional bits,
         accumulator narrower than the data word, words beyond the kernel's limits)
-        is the one in :func:`coefc.targets.resolve_arithmetic`.
+        is the one in :func:`coefc.targetspec.resolve_arithmetic`.
         """
-        from .targets import resolve_arithmetic
+        from ..targetspec import resolve_arithmetic
 
         base = self.base_arithmetic(target_name)
         if d <= base.data.int_bits:
@@ -442,7 +442,7 @@ class FewestBitsResult:
     evaluated: int  # grid points evaluated (out of the grid size)
     grid: int  # points of the grid build would accept (refused ones are never offered)
     refused: int = 0  # grid points skipped because build would refuse them
-    per_op: list = field(default_factory=list)  # coefc.opwidths.OpWidth, filled on request
+    per_op: list = field(default_factory=list)  # coefc.explore.opwidths.OpWidth, filled on request
 
     def to_json(self) -> dict:
         return {"channel": self.channel, "target": self.target, "structure": self.structure,
@@ -495,14 +495,14 @@ def plot(result: SweepResult, path) -> None:
         matplotlib.use("Agg")
         import matplotlib.pyplot as plt
     except ImportError:
-        from .errors import CoefcError
+        from ..errors import CoefcError
 
         raise CoefcError("plotting needs matplotlib: pip install 'coefc[plot]'") from None
     from pathlib import Path
 
     fixed = [r for r in result.results if r.config.data_bits is not None]
     if not fixed:
-        from .errors import CoefcError
+        from ..errors import CoefcError
 
         raise CoefcError("nothing to plot: the sweep has no fixed-point configuration")
     names = [c.channel for c in fixed[0].channels]

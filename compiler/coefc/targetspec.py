@@ -18,7 +18,7 @@ from importlib import resources
 from pathlib import Path
 from types import MappingProxyType
 
-from .errors import DescriptionError, TargetError, close_match
+from .errors import DescriptionError, TargetError, close_match, setting
 from .program import KINDS, SCALINGS, STRUCTURE_TABLE, STRUCTURES, Arithmetic
 from .qformat import OVERFLOW_MODES, ROUNDING_HINTS, ROUNDING_MODES, QFormat
 
@@ -65,10 +65,10 @@ def _checked_dirs(extra_dirs: Iterable[str | os.PathLike]) -> list[Path]:
         if d == builtin_dir():
             continue
         if not d.exists():
-            raise TargetError(f"{d}: target directory does not exist; fix --target-dir or {ENV_VAR}")
+            raise TargetError(f"{d}: target directory does not exist; fix the target folders ({setting('target_dirs')}) or {ENV_VAR}")
         if not d.is_dir():
             raise TargetError(f"{d}: is a file, not a target directory; give the folder that holds "
-                              f"target.toml (--target-dir or {ENV_VAR})")
+                              f"target.toml ({setting('target_dirs')} or {ENV_VAR})")
     return dirs
 
 
@@ -93,7 +93,7 @@ def find_target(name: str, extra_dirs: Iterable[str | os.PathLike] = ()) -> Targ
     names = [t.name for t in list_targets(extra_dirs)]
     raise TargetError(
         f"no target '{name}'{close_match(name, names)}; known targets: {', '.join(names)} "
-        f"(add folders with --target-dir or {ENV_VAR})"
+        f"(add folders with {setting('target_dirs')} or {ENV_VAR})"
     )
 
 
@@ -188,7 +188,7 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
             if v is None:
                 continue
             if key in ("data", "coef", "acc_bits") and arith.is_float and where == "<command line>":
-                option = {"data": "--data", "coef": "--coef", "acc_bits": "--acc"}[key]
+                option = setting(key)
                 raise DescriptionError(where, f"target '{target.name}' computes in float32, which has no "
                                        f"fixed-point words; drop {option} or choose a fixed-point target",
                                        key=option)
@@ -222,7 +222,7 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
                     continue
                 if isinstance(v, bool) or not isinstance(v, int) or not 2 <= v <= 128:
                     raise DescriptionError(where, f"accumulator of {v} bits is out of range; use 2..128 bits",
-                                           key="--acc" if where == "<command line>" else "acc_bits")
+                                           key=setting("acc_bits") if where == "<command line>" else "acc_bits")
             changes[key] = v
         arith = arith.with_(**changes)
     if structure_from is not None and arith.structure not in target.structures:
@@ -234,14 +234,14 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
         raise DescriptionError(where, f"data word {arith.data} has {arith.data.frac_bits} fractional bit(s); "
                                "a data word needs at least 2 (scaling to 1 - 2 LSB of full scale needs them); "
                                "use a wider data word such as Q1.15",
-                               key="--data" if where == "<command line>" else "data")
+                               key=setting("data") if where == "<command line>" else "data")
     if not arith.is_float and arith.acc_bits < arith.data.width:
         where = width_from["acc_bits"] if width_from["acc_bits"] != str(target.folder / "target.toml") \
             else width_from["data"]
         raise DescriptionError(where, f"accumulator of {arith.acc_bits} bits is narrower than the "
                                f"{arith.data.width}-bit data word ({arith.data}); widen the accumulator "
                                "or narrow the data word",
-                               key={"<command line>": "--acc"}.get(where, "acc_bits"))
+                               key=setting("acc_bits") if where == "<command line>" else "acc_bits")
     check_kernel_words(arith, target, width_from)
     return arith
 
@@ -444,7 +444,6 @@ def build_info(target: Target) -> BuildInfo:
 #: The tables that make a target buildable; a target with none of them is a
 #: check-only target (analysed against its arithmetic, never built).
 BUILD_TABLES = ("c", "limits", "layout", "memory", "kernel", "templates")
-_OPTION = {"data": "--data", "coef": "--coef", "acc_bits": "--acc"}
 
 
 def kernel_info(target: Target) -> BuildInfo | None:
@@ -488,7 +487,7 @@ def check_kernel_words(arith: Arithmetic, target: Target, places: Mapping[str, s
             fix = (str(QFormat(fmt.int_bits, lim - fmt.int_bits)) if lim > fmt.int_bits
                    else f"at most {lim} bits")
         if where == "<command line>":
-            hint, k = f"narrow it ({_OPTION[key]} {fix.replace(' or fewer', '')})", _OPTION[key]
+            hint, k = f"narrow it ({setting(key)} {fix.replace(' or fewer', '')})", setting(key)
         elif where == toml:
             hint, k = f"make [arithmetic] {key} and [limits] agree", key
         else:

@@ -58,9 +58,9 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
 
-from .emit import EmitError
-from .errors import DescriptionError
-from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
+from .header import EmitError
+from ..errors import DescriptionError, setting
+from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
 
 __all__ = ["CNames", "ChannelCNames", "channel_cost", "cost_of", "render_kernel", "GeneratedCodeError"]
 
@@ -101,7 +101,7 @@ class CNames:
     """The C identifiers of one generated header and source.
 
     ``name`` is the description's C name and ``channels`` the channel parts (as
-    made by :func:`coefc.emit.c_identifier`); every identifier and macro of the
+    made by :func:`coefc.emit.header.c_identifier`); every identifier and macro of the
     generated code comes from the suffix tables here, the channel's in one
     :class:`ChannelCNames` record (:meth:`channel`).
     """
@@ -523,7 +523,7 @@ def _delay(op: DelayOp, f: str, src: str, D: str) -> _OpCode:
 # ---------------------------------------------------------------------------
 
 def _float_ops(program: ChannelProgram) -> list[_OpCode]:
-    from .emit import _float_literal as flt
+    from .header import _float_literal as flt
 
     D = "float"
     out: list[_OpCode] = []
@@ -601,13 +601,13 @@ def render_kernel(*, programs, names: CNames, source: str, banner: list[str], he
                   data_type: str, coef_type: str, arith, sample_rate_hz: str, over_budget: bool,
                   golden_inputs: list[str] | None, golden_outs: list[list[str]]) -> dict[str, str]:
     """Render ``OUT.h`` and ``OUT.c`` of generated code (see the module docstring)."""
-    from .emit import _lines, render_template
+    from .header import _lines, render_template
 
     names.validate(source)
     fixed = not arith.is_float
     if fixed and data_type not in ("int16_t", "int32_t"):
         raise GeneratedCodeError(f"generated code holds data words in int16_t or int32_t; the target's data type "
-                                 f"is {data_type} (use the reference kernel, without --kernel)")
+                                 f"is {data_type} (use the reference kernel, without {setting('kernel')})")
     if fixed and _CTYPE_BITS[data_type] < arith.data.width:
         raise GeneratedCodeError(f"the {arith.data.width}-bit data word does not fit {data_type}")
     if fixed and arith.acc_bits > 64:

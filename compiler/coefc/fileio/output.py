@@ -20,7 +20,7 @@ from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
 
-from .errors import CoefcError
+from ..errors import CoefcError
 
 
 def _same_file(a: Path, b: Path) -> bool:

@@ -1,13 +1,13 @@
 """Can this target's kernel run this program?  Every refusal rule of ``coefc build``, in one place.
 
-``coefc build`` (through :func:`coefc.emit.render`), ``coefc check`` and
+``coefc build`` (through :func:`coefc.emit.header.render`), ``coefc check`` and
 ``coefc sweep`` call :func:`validate`, so a configuration the build would refuse
 fails the check with exit code 2 and is never offered by the sweep.  The rules:
 
 - the target's build tables are whole and valid, and it states a kernel interface
-  this coefc writes (:func:`coefc.targets.kernel_info`);
+  this coefc writes (:func:`coefc.targetspec.kernel_info`);
 - data, coefficient and accumulator words are no wider than its kernel computes
-  (``[limits]``; :func:`coefc.targets.check_kernel_words`);
+  (``[limits]``; :func:`coefc.targetspec.check_kernel_words`);
 - the description and channel names make distinct C identifiers, none a C keyword;
 - every op is one the kernel interface knows, on a structure the target has;
 - every coefficient, stored in the target's memory order and sign convention
@@ -32,10 +32,10 @@ from __future__ import annotations
 import re
 from dataclasses import dataclass
 
-from .errors import CoefcError, DescriptionError, TargetError
-from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
-from .spec import C99_KEYWORDS
-from .targets import BuildInfo, Target, check_kernel_words, kernel_info
+from ..errors import CoefcError, DescriptionError, TargetError, setting
+from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
+from ..spec import C99_KEYWORDS
+from ..targetspec import BuildInfo, Target, check_kernel_words, kernel_info
 
 __all__ = ["EmitError", "C_KEYWORDS", "c_identifier", "c_names", "KernelOp", "kernel_program",
            "validate", "refusal", "SUPPORTED_ABI", "FOLDED_FIR_ABI", "MAX_RSHIFT"]
@@ -184,7 +184,7 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
                      "realise the channel again")
             return 0
         if shift and not info.coef_shift:
-            fix = ("give the coefficient word more integer bits (--coef)" if shift > 0 else
+            fix = ("give the coefficient word more integer bits (" + setting("coef") + ")" if shift > 0 else
                    "set [layout] coef_shift = true in the target if its kernel shifts, or choose such a target")
             fail(f"{what} needs coefficient shift {shift} but target '{target.name}' has none "
                  f"([layout] coef_shift = false); {fix}")
@@ -194,8 +194,8 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
             room = (f"the kernel of target '{target.name}' rounds a section by 1..{top} bits "
                     f"(below its {state_bits}-bit state word)" if section and top < MAX_RSHIFT
                     else f"the kernels round by 1..{MAX_RSHIFT} bits")
-            fix = ("give the coefficient word more fractional bits (--coef)" if k < 1 else
-                   "give the coefficient word fewer fractional bits (--coef)")
+            fix = ("give the coefficient word more fractional bits (" + setting("coef") + ")" if k < 1 else
+                   "give the coefficient word fewer fractional bits (" + setting("coef") + ")")
             fail(f"{what} needs a right shift of {k} bits ({fc} fractional coefficient bits minus "
                  f"coefficient shift {shift}); {room}; {fix}")
         return k
@@ -209,7 +209,7 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
                 v = int(v)
                 if not -(1 << (cbits - 1)) <= v < (1 << (cbits - 1)):
                     fail(f"{what} coefficient {v} does not fit {'an' if cbits in (8, 11, 18) else 'a'} {cbits}-bit word as target "
-                         f"'{target.name}' stores it; give the coefficient word one more integer bit (--coef)")
+                         f"'{target.name}' stores it; give the coefficient word one more integer bit ({setting('coef')})")
             out.append(v)
         return tuple(out)
 
@@ -224,7 +224,7 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
                      f"use one of {', '.join(STATE_WORDS)}")
             if op.structure not in target.structures:
                 fail(f"target '{target.name}' has no kernel for structure '{op.structure}'; it supports "
-                     f"{', '.join(target.structures)} (--structure)")
+                     f"{', '.join(target.structures)} ({setting('structure')})")
             terms = {"b0": op.b[0], "b1": op.b[1], "b2": op.b[2], "a1": op.a[0], "a2": op.a[1]}
             values = [-terms[t[1:]] if t.startswith("-") else terms[t] for t in info.section_layout]
             k = rshift(op.shift, what, True)

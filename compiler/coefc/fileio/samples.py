@@ -37,9 +37,9 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import DataError
-from .program import Arithmetic
-from .qformat import fit_word, round_real, round_shift
+from ..errors import DataError
+from ..program import Arithmetic
+from ..qformat import fit_word, round_real, round_shift
 
 SUFFIXES = (".wav", ".txt")
 
@@ -268,7 +268,7 @@ def format_samples(path, outputs: dict[str, np.ndarray], arithmetic: Arithmetic,
 
 def write_samples(path, outputs: dict[str, np.ndarray], arithmetic: Arithmetic, sample_rate_hz: float) -> None:
     """Write *outputs* to *path* atomically (no half-written file on any error)."""
-    from .fileio import write_atomic
+    from .output import write_atomic
 
     payload = format_samples(path, outputs, arithmetic, sample_rate_hz)
     try:

@@ -18,9 +18,9 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import CoefcError
-from .checks import BUDGET_CHECKS, SAFETY_CAUTION, kind_of
-from .reporting import format_limit, format_number
+from ..errors import CoefcError
+from ..checks import BUDGET_CHECKS, SAFETY_CAUTION, kind_of
+from .text import format_limit, format_number
 
 TEMPLATE_DIR = Path(__file__).parent / "templates"
 
@@ -96,8 +96,8 @@ def noise_svg(plt, metrics, fs: float) -> str | None:
 
 def poles_zeros(design, program) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """(float zeros, float poles, realised zeros, realised poles) of the IIR sections."""
-    from .blocks import SosBlock
-    from .realise import as_float_blocks
+    from ..blocks import SosBlock
+    from ..blocks import as_float_blocks
 
     def roots(sos_rows):
         z, p = [], []
@@ -141,8 +141,8 @@ def _defaulted(report, key: str, value):
 
 def render_report(report, realisation) -> str:
     """The HTML page of a :class:`coefc.budget.CheckReport` (raises CoefcError without matplotlib)."""
-    from . import __version__
-    from .templating import environment
+    from .. import __version__
+    from ..templating import environment
 
     plt = _pyplot()
     designs = {d.name: d for d in realisation.design.channels}

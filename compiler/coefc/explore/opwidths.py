@@ -24,7 +24,7 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from .program import ChannelProgram, FirOp, GainOp, SectionOp
+from ..program import ChannelProgram, FirOp, GainOp, SectionOp
 
 _COEF_OPS = (SectionOp, FirOp, GainOp)
 
@@ -89,8 +89,8 @@ def hybrid(wide: ChannelProgram, narrow: ChannelProgram, index: int) -> ChannelP
 def fewest_op_widths(sweeper, channel_index: int, target: str, structure: str, acc_bits: int,
                        data_bits: int, coefs: Sequence[int]) -> list[OpWidth]:
     """Smallest coefficient width of every op of one channel (the others at the widest width)."""
-    from .api import Design, Realisation
-    from .budget import run_check
+    from ..api import Design, Realisation
+    from ..budget import run_check
     from .sweep import Config
 
     coefs = sorted(coefs)
