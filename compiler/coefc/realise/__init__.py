@@ -62,6 +62,8 @@ cascade or parallel form", IEEE Trans. Audio Electroacoust. AU-18(2), 1970.
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 
 from ..blocks import Block, ChannelDesign, DelayBlock, FirBlock, GainBlock, SosBlock
@@ -274,6 +276,12 @@ def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: in
             notes.append(Note("saturated", f"section {n_sec}: coefficients do not fit {fmt} even with a coefficient "
                               f"shift of {s}; saturated (the response will be wrong): use a wider coefficient word"))
         rop = SectionOp(b=tuple(ints[:3]), a=tuple(ints[3:]), shift=s, structure=arithmetic.structure)
+        if STRUCTURE_TABLE[arithmetic.structure].wide_feedback:
+            hi, lo, bad = coefficients.split_feedback(a, fmt, s)
+            if bad:
+                notes.append(Note("saturated", f"section {n_sec}: a feedback coefficient does not fit {fmt} as a "
+                                  f"high and a low word with a coefficient shift of {s}; clamped"))
+            rop = replace(rop, a=hi, a_lo=lo)
         phys = np.array(ints[:3], dtype=float) * 2.0 ** (s - fmt.frac_bits)
         return rop, coefficients.realised_gain(b, phys)
     taps = np.asarray(op, dtype=float)
@@ -297,7 +305,7 @@ def _finish(design, arithmetic, delay, ops, final_gain, notes) -> ChannelProgram
     for op in ops:
         if isinstance(op, SectionOp):
             n_sec += 1
-            r = pairing.pole_radius([1.0, op.a[0] * 2.0 ** (op.shift - fc), op.a[1] * 2.0 ** (op.shift - fc)])
+            r = pairing.pole_radius([1.0, *op.a_phys(arithmetic.coef)])
             if r >= 1.0:
                 notes.append(Note("unstable", f"section {n_sec}: quantised poles have radius {r:.9f} >= 1 "
                                   "(unstable); use a wider coefficient word"))
@@ -451,7 +459,7 @@ def as_float_blocks(program: ChannelProgram) -> tuple[Block, ...]:
     for op in program.ops:
         scale = 1.0 if ar.is_float else 2.0 ** (op.shift - fc) if not isinstance(op, DelayOp) else 1.0
         if isinstance(op, SectionOp):
-            rows.append([float(v) * scale for v in op.b] + [1.0] + [float(v) * scale for v in op.a])
+            rows.append([float(v) * scale for v in op.b] + [1.0] + list(op.a_phys(None if ar.is_float else ar.coef)))
             continue
         flush()
         if isinstance(op, FirOp):
