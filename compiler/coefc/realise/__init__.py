@@ -62,6 +62,7 @@ cascade or parallel form", IEEE Trans. Audio Electroacoust. AU-18(2), 1970.
 
 from __future__ import annotations
 
+from contextvars import ContextVar
 from dataclasses import replace
 
 import numpy as np
@@ -226,7 +227,7 @@ def realise_channel(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelPro
     >>> p.ops[0].a, p.ops[0].b[1] == 2 * p.ops[0].b[0] == 2 * p.ops[0].b[2]
     ((-29743, 13615), True)
     """
-    if arithmetic.is_float and not STRUCTURE_TABLE[arithmetic.structure].float32:
+    if arithmetic.is_float and not STRUCTURE_TABLE.get(arithmetic.structure, STRUCTURE_TABLE["df1"]).float32:
         raise RealisationError(f"channel '{design.name}': structure '{arithmetic.structure}' (error feedback) needs "
                                "fixed-point arithmetic; use "
                                + " or ".join(s.name for s in STRUCTURE_TABLE.values() if s.float32) + " for float32")
@@ -246,6 +247,10 @@ def realise_channel(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelPro
         ops.append(rop)
         gain *= g
     return _finish(design, arithmetic, delay, ops, final0 / gain, notes)
+
+
+#: per-section structures while structure = "auto" realises a channel (None: the arithmetic's structure)
+SECTION_STRUCTURES: ContextVar[tuple[str, ...] | None] = ContextVar("SECTION_STRUCTURES", default=None)
 
 
 def _at_least_one_lsb(kind, op, c: float, arithmetic: Arithmetic) -> float:
@@ -268,6 +273,9 @@ def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: in
     the gain lost in rounding a numerator is restored there.
     """
     fmt = arithmetic.coef
+    chosen = SECTION_STRUCTURES.get()
+    if kind == "sos" and chosen is not None:  # structure = "auto": this section's choice (coefc.realise.auto)
+        arithmetic = arithmetic.with_(structure=chosen[min(n_sec, len(chosen)) - 1])
     if kind == "sos":
         b, a = op
         bs = np.asarray(b, dtype=float) * c
