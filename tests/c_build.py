@@ -19,7 +19,7 @@ import numpy as np
 
 from coefc.api import Design, Loaded, Realisation
 from coefc.emit.header import render
-from coefc.program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from coefc.program import STRUCTURE_TABLE, Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
 from coefc.spec import Budget, Description, Implementation
 from coefc.targetspec import build_info, find_target
 
@@ -132,7 +132,17 @@ def _section(rng, arith: Arithmetic, structure: str, shift: int) -> SectionOp:
         return SectionOp(tuple(f(v) for v in b), (f(a1), f(a2)), 0, structure)
     scale = 2.0 ** (arith.coef.frac_bits - shift)
     q = lambda v: int(round(v * scale))  # noqa: E731
+    if STRUCTURE_TABLE[structure].wide_feedback:
+        from coefc.realise.coefficients import split_feedback
+
+        hi, lo, _ = split_feedback((1.0, a1, a2), arith.coef, shift)
+        return SectionOp(tuple(q(v) for v in b), hi, shift, structure, a_lo=lo)
     return SectionOp(tuple(q(v) for v in b), (q(a1), q(a2)), shift, structure)
+
+
+def kernel_structures(structures) -> tuple:
+    """The structures a reference kernel runs (df1-wide-fb runs only in generated code)."""
+    return tuple(s for s in structures if not STRUCTURE_TABLE[s].wide_feedback)
 
 
 def _coef(arith: Arithmetic, v: float, shift: int = 0):

@@ -59,9 +59,13 @@ class Model:
         y, bad = fit(v, self.W, self.ovf)
         return y, v, bad
 
-    def section(self, x, b, a, shift, structure):
-        """Returns (y, data overflow count, accumulator overflow count)."""
-        if structure not in ("df1", "tdf2", "df1ef"):  # the structures this model knows (independently)
+    def section(self, x, b, a, shift, structure, a_lo=(0, 0), coef_width=None):
+        """Returns (y, data overflow count, accumulator overflow count).
+
+        ``df1-wide-fb``: *a* are the high feedback words, *a_lo* the low words of
+        weight 2^-L, L = coef_width - 1 (coefc.program's docstring).
+        """
+        if structure not in ("df1", "tdf2", "df1ef", "df1-wide-fb"):  # the structures this model knows (independently)
             raise NotImplementedError(f"exact model: no recurrence for structure '{structure}'")
         k = self.Fc - shift
         b0, b1, b2 = b
@@ -82,6 +86,9 @@ class Model:
                 total = b0 * xn + b1 * xh[0] + b2 * xh[1] - a1 * yh[0] - a2 * yh[1]
                 if structure == "df1ef":
                     total += e
+                if structure == "df1-wide-fb":
+                    p = a_lo[0] * yh[0] + a_lo[1] * yh[1]
+                    total -= math.floor(Fraction(p, 2 ** (coef_width - 1)))
                 acc, w = self._acc(total)
                 na += w
                 yn, v, bad = self._out(acc, k)
@@ -146,7 +153,8 @@ def run_program(program, x):
     nodes, ovf, aovf = [], [], []
     for op in program.ops:
         if isinstance(op, SectionOp):
-            r = m.section(cur, [int(v) for v in op.b], [int(v) for v in op.a], op.shift, op.structure)
+            r = m.section(cur, [int(v) for v in op.b], [int(v) for v in op.a], op.shift, op.structure,
+                          a_lo=[int(v) for v in op.a_lo] if op.a_lo else (0, 0), coef_width=ar.coef.width)
         elif isinstance(op, FirOp):
             r = m.fir(cur, [int(v) for v in op.taps], op.shift)
         elif isinstance(op, GainOp):

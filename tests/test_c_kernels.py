@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import pytest
 
-from c_build import (compilers, emit_text, hand_programs, m32_works, run_headers, ubsan_works)
+from c_build import (compilers, emit_text, hand_programs, kernel_structures, m32_works, run_headers, ubsan_works)
 from conftest import example_files
 from coefc.api import load
 from coefc.emit.header import EmitError, render
@@ -31,7 +31,7 @@ NARROW_ACC = {"mcu16": 24, "mcu32": 40, "dsp24": 44}
 def _headers(target_name: str) -> list[tuple[str, str, str]]:
     target = find_target(target_name)
     base = target.arithmetic
-    structures = target.structures
+    structures = kernel_structures(target.structures)  # df1-wide-fb: generated code only
     out = []
     if base.is_float:
         out.append(emit_text(hand_programs(base, structures), target_name, "hand_f32"))
@@ -52,7 +52,7 @@ def _example_headers(target_name: str):
     target = find_target(target_name)
     out, refused = [], []
     for path in example_files():
-        for s in target.structures:
+        for s in kernel_structures(target.structures):
             real = load(path).design().realise(target, Overrides(structure=s))
             name = real.design.loaded.description.name
             fname = f"{path.stem}_{s}.h"
@@ -131,7 +131,8 @@ def test_golden_vectors_32_bit_build(target_headers, cc, tmp_path):
 def test_a_wrong_golden_value_is_caught(target_name, tmp_path):
     """The harness can fail: one altered expected sample must be reported."""
     target = find_target(target_name)
-    fname, cname, text = emit_text(hand_programs(target.arithmetic, target.structures), target_name, "bent")
+    fname, cname, text = emit_text(hand_programs(target.arithmetic, kernel_structures(target.structures)),
+                                   target_name, "bent")
     marker = "bent_sec_df1_golden_out[256] = {\n    "
     at = text.index(marker) + len(marker)
     end = text.index(",", at)
@@ -142,3 +143,17 @@ def test_a_wrong_golden_value_is_caught(target_name, tmp_path):
     rc, out = run_headers(tmp_path, target_name, [(fname, cname, text)])
     assert rc == 1, out
     assert "MISMATCH bent.h channel sec_df1 at sample 0" in out
+
+
+def test_reference_kernels_refuse_double_word_feedback_in_one_line():
+    # df1-wide-fb runs only in generated code: the operation-table header refuses it, naming the section and the fix
+    from coefc.emit.header import EmitError
+
+    for target_name in ("mcu16", "mcu32", "dsp24"):
+        target = find_target(target_name)
+        path = next(p for p in example_files() if p.stem == "sound_level_meter")  # one with sections
+        real = load(path).design().realise(target, Overrides(structure="df1-wide-fb"))
+        with pytest.raises(EmitError) as e:
+            render(real, None, header_name="x.h", vectors=0)
+        msg = str(e.value)
+        assert "\n" not in msg and "df1-wide-fb" in msg and "--kernel" in msg and "section 1" in msg

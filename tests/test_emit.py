@@ -11,7 +11,7 @@ from types import SimpleNamespace
 import numpy as np
 import pytest
 
-from c_build import STRICT, emit_text, fake_realisation, hand_programs, run_headers
+from c_build import STRICT, emit_text, fake_realisation, hand_programs, kernel_structures, run_headers
 from conftest import lab_board_copy, target_copy
 from coefc.emit.header import C_KEYWORDS, EmitError, c_identifier, golden_input, render
 from coefc.errors import DescriptionError, TargetError
@@ -89,7 +89,7 @@ def test_no_vectors_means_no_golden_arrays():
 
 
 def test_identical_inputs_give_identical_bytes():
-    progs = hand_programs(MCU32, STRUCTURES)
+    progs = hand_programs(MCU32, kernel_structures(STRUCTURES))
     assert _render(progs) == _render(progs)
 
 
@@ -199,7 +199,8 @@ def test_golden_input_parts():
 def test_guards_stop_a_header_used_with_the_wrong_kernel(target, tmp_path):
     """A kernel header of another interface version or word width ends the build with #error."""
     t = find_target(target)
-    fname, cname, text = emit_text(hand_programs(t.arithmetic, t.structures), target, "guarded", vectors=0)
+    fname, cname, text = emit_text(hand_programs(t.arithmetic, kernel_structures(t.structures)), target, "guarded",
+                                   vectors=0)
     (tmp_path / fname).write_text(text)
     kernel = (t.folder / "kernel" / f"coefc_{target}.h").read_text()
     P = f"COEFC_{target.upper()}"
@@ -229,7 +230,7 @@ def test_user_target_with_header_and_source_templates(tmp_path):
     tables over a header and a .c file; its golden vectors still match bit for bit."""
     user = _lab_board(tmp_path, 2)
     target = find_target("lab_board", [user])
-    progs = hand_programs(target.arithmetic, target.structures, seed=5)
+    progs = hand_programs(target.arithmetic, kernel_structures(target.structures), seed=5)
     real = fake_realisation(progs, "mcu32", name="lab", source="lab.toml")
     real = type(real)(real.design, target, real.programs)
     files = render(real, None, header_name="lab.h", vectors=128)

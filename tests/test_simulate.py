@@ -14,7 +14,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from coefc import simulate as sim
-from coefc.program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURES
+from coefc.program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE, STRUCTURES
 from coefc.qformat import OVERFLOW_MODES, ROUNDING_MODES, QFormat
 
 import exact_model
@@ -46,7 +46,8 @@ def ops(draw, ar):
     shift = draw(st.integers(max(fc - 62, -4), fc - 1))
     if kind == "sos":
         c = [_word(draw, ar.coef) for _ in range(5)]
-        return SectionOp(b=tuple(c[:3]), a=tuple(c[3:]), shift=shift, structure=ar.structure)
+        lo = tuple(_word(draw, ar.coef) for _ in range(2)) if STRUCTURE_TABLE[ar.structure].wide_feedback else ()
+        return SectionOp(b=tuple(c[:3]), a=tuple(c[3:]), shift=shift, structure=ar.structure, a_lo=lo)
     if kind == "fir":
         n = draw(st.integers(1, 9))
         taps = [_word(draw, ar.coef) for _ in range(n)]
@@ -242,3 +243,19 @@ def test_tdf2_second_state_wraps_alone():
     x = [(1 << 31) - 1, -(1 << 31), 1 << 20, -(1 << 25), 12345, (1 << 31) - 1, 0, 0]
     _compare(prog, x)
     assert sim.simulate(prog, x, trace=True).acc_overflow_counts[0] > 0
+
+
+@pytest.mark.parametrize("rounding", ROUNDING_MODES)
+@pytest.mark.parametrize("overflow", OVERFLOW_MODES)
+def test_wide_feedback_section_equals_exact_model_on_every_mode(rounding, overflow):
+    # df1-wide-fb against the independent model (recurrence of coefc.program's docstring), 16-bit words:
+    # a low-frequency pole pair whose high words alone sit on the unit circle (a1 = -2, a2 = 1), the low words
+    # pull it inside; a full-scale square wave drives it into saturation or wrap
+    ar = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 14), acc_bits=32, rounding=rounding, overflow=overflow,
+                    structure="df1-wide-fb")
+    secs = (SectionOp(b=(300, -600, 300), a=(-32768, 16384), a_lo=(9000, -8999), shift=1, structure="df1-wide-fb"),
+            SectionOp(b=(16384, 0, -16384), a=(-32767, 16383), a_lo=(-16384, 16383), structure="df1-wide-fb"))
+    x = np.tile(np.r_[np.full(40, 32767), np.full(40, -32768)], 5).astype(np.int64)
+    prog = ChannelProgram("t", 48000, ar, secs)
+    _compare(prog, x.tolist())
+    _compare(prog, x.tolist(), exact=True)

@@ -63,6 +63,17 @@ class Design:
         d = self.loaded.description
         arith = resolve_arithmetic(tgt, d.implementation, overrides, d.source)
         try:
+            if arith.structure == "auto":  # per section, the cheapest structure that meets the budget
+                from dataclasses import replace as _replace
+
+                from .realise.auto import realise_auto
+
+                def budget_of(ch):
+                    extra = dict(d.channel(ch.name).budget) if ch.name in [c.name for c in d.channels] else {}
+                    return _replace(d.budget, **extra) if extra else d.budget
+
+                return Realisation(self, tgt, tuple(realise_auto(ch, arith, tgt.structures, budget_of(ch),
+                                                                 realise_channel) for ch in self.channels))
             return Realisation(self, tgt, tuple(realise_channel(ch, arith) for ch in self.channels))
         except DescriptionError:
             raise

@@ -143,7 +143,7 @@ def as_float_blocks(program: ChannelProgram) -> tuple[Block, ...]:
     for op in program.ops:
         scale = 1.0 if ar.is_float else 2.0 ** (op.shift - fc) if not isinstance(op, DelayOp) else 1.0
         if isinstance(op, SectionOp):
-            rows.append([float(v) * scale for v in op.b] + [1.0] + [float(v) * scale for v in op.a])
+            rows.append([float(v) * scale for v in op.b] + [1.0] + list(op.a_phys(None if ar.is_float else ar.coef)))
             continue
         flush()
         if isinstance(op, FirOp):

@@ -549,6 +549,8 @@ def _sections(program) -> list[dict]:
             conv = float if program.arithmetic.is_float else int
             out.append({"b": [conv(c) for c in op.b], "a": [conv(c) for c in op.a], "coef_shift": int(op.shift),
                         "structure": op.structure})
+            if op.a_lo:  # df1-wide-fb: the low feedback words (coefc.program)
+                out[-1]["a_lo"] = [int(c) for c in op.a_lo]
     return out
 
 

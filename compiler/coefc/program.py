@@ -16,6 +16,14 @@ blocks follow the same rule (``acc = sum(C_k * x[n-k])``).  For a float32
 arithmetic the coefficients are float32 values and every operation is a float32
 operation in the order written above, with no fused multiply-add.
 
+Double-precision feedback coefficients ("coefficient splitting", a feedback
+coefficient held in two words) are the classic answer to the coarse pole grid of
+a direct form near z = 1: Dattorro, "The implementation of recursive digital
+filters for high-fidelity audio", J. Audio Eng. Soc. 36(11), 1988 (double-precision
+coefficients and "fraction saving" for low-frequency sections; from memory); see
+also Jackson, *Digital Filters and Signal Processing*, 3rd ed., 1996, ch. 11
+(coefficient quantisation and pole-grid density of the direct form; from memory).
+
 Exact definitions shared by the engine, the C kernels and the noise analysis
 (``k = Fc - s >= 1``; all states start at zero; ``wrapA(v)`` reduces ``v`` modulo
 ``2^acc_bits`` into ``[-2^(acc_bits-1), 2^(acc_bits-1))``)::
@@ -39,6 +47,19 @@ Exact definitions shared by the engine, the C kernels and the noise analysis
            E    = acc - v * 2^k                (the rounding residual, |E| < 2^k)
            y[n] = fit_data(v)
            so the rounding error is shaped by (1 - z^-1) before 1/A(z).
+
+    df1-wide-fb  (df1 with double-word feedback coefficients; L = Wc - 1, Wc the
+           coefficient word's width; each feedback coefficient is a high word AH and a
+           low word AL, physical value (AH + AL * 2^-L) * 2^(s - Fc), |AL| <= 2^(L-1))
+           P    = A1L*y[n-1] + A2L*y[n-2]                    (exact)
+           acc  = wrapA(B0*x[n] + B1*x[n-1] + B2*x[n-2] - A1H*y[n-1] - A2H*y[n-2]
+                        - floor(P / 2^L))
+           y[n] = fit_data(round_shift(acc, k))
+           floor(P / 2^L) is an arithmetic shift right by L; it drops a fraction
+           f = P/2^L - floor(P/2^L) in [0, 1) of an accumulator LSB, an extra error
+           source at the rounding node (mean about 2^-k/2, variance about 2^-2k/12
+           output LSB).  The feedback coefficients then have Fc + L fraction bits, so
+           the grid of realisable poles near z = 1 is 2^L times finer per axis.
 
     fir    acc  = wrapA(sum_k C_k * x[n-k]);   y[n] = fit_data(round_shift(acc, k))
            (folding symmetric taps gives the identical integer result)
@@ -114,6 +135,8 @@ class Structure:
     acc_states: int
     error_feedback: bool = False
     float32: bool = True
+    wide_feedback: bool = False  # a1, a2 each in a high and a low coefficient word (df1-wide-fb)
+    multiplies: int = 5  # multiplies per sample of one second-order section (cost, structure = "auto")
 
     @property
     def state_words(self) -> int:
@@ -128,6 +151,8 @@ STRUCTURE_TABLE: dict[str, Structure] = {s.name: s for s in (
     Structure("tdf2", "transposed direct form II", 1, data_states=0, acc_states=2),
     Structure("df1ef", "direct form I with first-order error feedback", 2, data_states=4, acc_states=1,
               error_feedback=True, float32=False),
+    Structure("df1-wide-fb", "direct form I with double-word feedback coefficients", 4, data_states=4,
+              acc_states=0, float32=False, wide_feedback=True, multiplies=7),
 )}
 STRUCTURES = tuple(STRUCTURE_TABLE)
 SCALINGS = ("none", "l1", "l2", "linf")
@@ -176,14 +201,37 @@ class Arithmetic:
 class SectionOp:
     """One second-order section: ``b = (B0, B1, B2)``, ``a = (A1, A2)``, coefficient shift.
 
-    ``structure`` is ``df1``, ``tdf2`` or ``df1ef`` (DF1 with first-order error
-    feedback).  Integers for fixed-point arithmetic, float32 values otherwise.
+    ``structure`` is a name of :data:`STRUCTURE_TABLE` (``df1``, ``tdf2``, ``df1ef``,
+    ``df1-wide-fb``).  Integers for fixed-point arithmetic, float32 values otherwise.
+    For ``df1-wide-fb`` ``a`` holds the high words and ``a_lo`` the low words, of
+    weight ``2^-L`` with ``L = Wc - 1`` (:func:`lo_bits`); an empty ``a_lo`` means
+    low words of zero.  Other structures leave ``a_lo`` empty.
     """
 
     b: tuple
     a: tuple
     shift: int = 0
     structure: str = "df1"
+    a_lo: tuple = ()
+
+    def a_phys(self, coef: "QFormat | None") -> tuple[float, float]:
+        """The physical feedback coefficients ``(a1, a2)``, low words included.
+
+        *coef* is the arithmetic's coefficient format (``None`` for float32: the
+        stored values).
+        """
+        if coef is None:
+            return (float(self.a[0]), float(self.a[1]))
+        sc = 2.0 ** (self.shift - coef.frac_bits)
+        if not self.a_lo:
+            return (float(self.a[0]) * sc, float(self.a[1]) * sc)
+        lo = 2.0 ** -lo_bits(coef)
+        return tuple((float(h) + float(l) * lo) * sc for h, l in zip(self.a, self.a_lo))
+
+
+def lo_bits(coef: QFormat) -> int:
+    """``L``, the weight ``2^-L`` of a low feedback word relative to its high word (``Wc - 1``)."""
+    return coef.width - 1
 
 
 @dataclass(frozen=True)

@@ -31,7 +31,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import DataError
-from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
+from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE, lo_bits
 from .qformat import ROUNDING_MODES, round_shift
 
 try:  # the compiled core; the exact Python path covers its absence
@@ -78,6 +78,14 @@ def _input(program: ChannelProgram, x) -> np.ndarray:
     return np.ascontiguousarray(x, dtype=np.int64)
 
 
+def _wide(op) -> bool:
+    return isinstance(op, SectionOp) and STRUCTURE_TABLE[op.structure].wide_feedback
+
+
+def _lo(op: SectionOp) -> tuple[int, int]:
+    return (int(op.a_lo[0]), int(op.a_lo[1])) if op.a_lo else (0, 0)
+
+
 def _k(program: ChannelProgram, op) -> int:
     return program.arithmetic.coef.frac_bits - op.shift
 
@@ -90,6 +98,8 @@ def _fast_ok(program: ChannelProgram) -> bool:
         return True
     if ar.acc_bits > 64 or ar.data.width + ar.coef.width > 64:
         return False
+    if ar.data.width + ar.coef.width > 63 and any(_wide(op) for op in program.ops):
+        return False  # the low-word sum P of df1-wide-fb must be exact in int64
     return all(1 <= _k(program, op) <= 62 for op in program.ops if not isinstance(op, DelayOp))
 
 
@@ -128,9 +138,10 @@ def simulate(program: ChannelProgram, x, *, trace: bool = False, _exact: bool = 
     i = 0
     while i < len(ops):
         op = ops[i]
-        if fast and not ar.is_float and isinstance(op, SectionOp):
+        if fast and not ar.is_float and isinstance(op, SectionOp) and not _wide(op):
             j = i
-            while j < len(ops) and isinstance(ops[j], SectionOp) and ops[j].structure == op.structure:
+            while j < len(ops) and isinstance(ops[j], SectionOp) and ops[j].structure == op.structure \
+                    and not _wide(ops[j]):
                 j += 1
             for y, o, a in _run_cascade(program, ops[i:j], cur, keep_nodes=trace):
                 nodes.append(y)
@@ -160,7 +171,10 @@ def _run_fast(program: ChannelProgram, op, x: np.ndarray):
     ar = program.arithmetic
     y = np.empty_like(x)
     common = (ar.acc_bits, _ROUND_CODE[ar.rounding], _OVF_CODE[ar.overflow], ar.data.width)
-    if isinstance(op, SectionOp):
+    if _wide(op):
+        o, a = _engine.sos_wide(x, y, *[int(v) for v in op.b], *[int(v) for v in op.a], *_lo(op),
+                                lo_bits(ar.coef), _k(program, op), *common)
+    elif isinstance(op, SectionOp):
         o, a = _engine.sos(x, y, *[int(v) for v in op.b], *[int(v) for v in op.a], _k(program, op),
                            _STRUCT_CODE[op.structure], *common)
     elif isinstance(op, FirOp):
@@ -310,6 +324,8 @@ def _run_exact(program: ChannelProgram, op, x: np.ndarray):
     elif isinstance(op, SectionOp):
         b0, b1, b2 = (int(v) for v in op.b)
         a1, a2 = (int(v) for v in op.a)
+        l1, l2 = _lo(op)
+        wide, L = _wide(op), lo_bits(ar.coef)
         x1 = x2 = y1 = y2 = 0
         s1 = s2 = e = 0
         for n, xn in enumerate(xs):
@@ -327,6 +343,8 @@ def _run_exact(program: ChannelProgram, op, x: np.ndarray):
                 exact = b0 * xn + b1 * x1 + b2 * x2 - a1 * y1 - a2 * y2
                 if op.structure == "df1ef":
                     exact += e
+                if wide:
+                    exact -= (l1 * y1 + l2 * y2) >> L  # floor(P / 2^L)
                 acc = acc_of(exact)
                 yn, v = out(acc)
                 if op.structure == "df1ef":

@@ -453,7 +453,7 @@ def _implementation(t, source: str) -> Implementation:
         out["target"] = _string(t["target"], where.at("target"))
         if not out["target"].strip():
             raise where.at("target").fail("is empty; name a target such as mcu32")
-    for key, allowed in (("structure", STRUCTURES), ("rounding", ROUNDING_MODES),
+    for key, allowed in (("structure", STRUCTURES + ("auto",)), ("rounding", ROUNDING_MODES),
                          ("overflow", OVERFLOW_MODES), ("scaling", SCALINGS)):
         if key in t:
             stems = ROUNDING_HINTS if key == "rounding" else ()

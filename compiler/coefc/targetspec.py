@@ -206,8 +206,9 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
                     # Error feedback re-injects a fixed-point rounding residual; float32
                     # has none, so a description's df1ef means plain df1 there.
                     v = "df1"
-                if v not in STRUCTURES:
-                    raise DescriptionError(where, f"unknown structure '{v}'; use one of {', '.join(STRUCTURES)}",
+                if v not in STRUCTURES and v != "auto":
+                    raise DescriptionError(where, f"unknown structure '{v}'; use one of {', '.join(STRUCTURES)} "
+                                           "or auto",
                                            key=key)
                 structure_from = where  # checked against the target once every layer is applied
             elif key == "rounding" and v not in ROUNDING_MODES:
@@ -225,7 +226,7 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
                                            key=setting("acc_bits") if where == "<command line>" else "acc_bits")
             changes[key] = v
         arith = arith.with_(**changes)
-    if structure_from is not None and arith.structure not in target.structures:
+    if structure_from is not None and arith.structure not in target.structures and arith.structure != "auto":
         raise DescriptionError(
             structure_from, f"target '{target.name}' does not support structure '{arith.structure}'; "
             f"it supports {', '.join(target.structures)}", key="structure")

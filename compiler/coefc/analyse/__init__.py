@@ -25,7 +25,7 @@ from dataclasses import dataclass, replace
 from fractions import Fraction
 
 from ..blocks import ChannelDesign
-from ..program import ChannelProgram, SectionOp
+from ..program import ChannelProgram, SectionOp, lo_bits
 from .limitcycles import MAX_STATES, LimitCycleAnalysis, analyse_limit_cycles
 from .linear import op_models, response_length
 from .noise import MeasuredNoise, NoiseAnalysis, analytic_noise, measured_noise
@@ -253,6 +253,9 @@ def instability(program: ChannelProgram) -> str | None:
         else:
             unit = Fraction(2) ** (fc - op.shift)  # the integer that means 1.0 in this section
             a1, a2 = Fraction(int(op.a[0])) / unit, Fraction(int(op.a[1])) / unit
+            if op.a_lo:  # df1-wide-fb: the low words, of weight 2^-L (coefc.program)
+                lo = unit * 2 ** lo_bits(ar.coef)
+                a1, a2 = a1 + Fraction(int(op.a_lo[0])) / lo, a2 + Fraction(int(op.a_lo[1])) / lo
         if abs(a2) < 1 and abs(a1) < 1 + a2:
             continue
         import numpy as np

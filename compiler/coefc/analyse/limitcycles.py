@@ -68,7 +68,7 @@ from typing import Literal
 
 import numpy as np
 
-from ..program import Arithmetic, ChannelProgram, SectionOp
+from ..program import STRUCTURE_TABLE, Arithmetic, ChannelProgram, SectionOp, lo_bits
 from ..qformat import fit_word, round_shift
 
 MAX_STATES = 1 << 24  # exhaustive granular search up to this many candidate states (compiled: ~0.5 s at the limit)
@@ -613,14 +613,109 @@ def ef_interval_search(a1: int, a2: int, k: int, arith: Arithmetic, B: int, D: i
 # ---------------------------------------------------------------- per section
 
 def _section_phys(op: SectionOp, arith: Arithmetic):
-    sc = 2.0 ** (op.shift - arith.coef.frac_bits)
-    return np.array([1.0, float(op.a[0]) * sc, float(op.a[1]) * sc])
+    return np.array([1.0, *op.a_phys(arith.coef)])
+
+
+def step_wide_int(y1: int, y2: int, op: SectionOp, k: int, arith: Arithmetic) -> int:
+    """Zero-input ``df1-wide-fb`` step in exact integers (coefc.program's recurrence)."""
+    lo1, lo2 = (int(v) for v in op.a_lo) if op.a_lo else (0, 0)
+    exact = -int(op.a[0]) * y1 - int(op.a[1]) * y2 - ((lo1 * y1 + lo2 * y2) >> lo_bits(arith.coef))
+    half = 1 << (arith.acc_bits - 1)
+    acc = ((exact + half) % (2 * half)) - half
+    return fit_word(round_shift(acc, k, arith.rounding), arith.data.width, arith.overflow)
+
+
+def _analyse_wide(op: SectionOp, index: int, arith: Arithmetic, *, sample_starts: int = 64,
+                  sample_steps: int = 4096, seed: int = 1969) -> SectionLimitCycles:
+    """Limit-cycle verdicts of a ``df1-wide-fb`` section.
+
+    Granular: with zero input ``acc = ceil(-(a1' y1 + a2' y2))`` in accumulator LSB
+    (``a'`` the high and low words together), so the output is the rounded linear
+    map plus an error in the rounding interval widened by ``[0, 2^-k)`` (the floor
+    of the low products).  The l1 bound of :func:`granular_bounds` with that
+    interval is rigorous; below one LSB no nonzero state can be on a cycle
+    (``none``).  Otherwise ``unproven``: coefc has no exhaustive search of this
+    map yet (a sampled search may still find a cycle).  Overflow: the accumulator
+    is monotone in the linear form, so its extremes over the data-word box lie at
+    the corners (exact); when every rounded extreme fits, no step overflows
+    (``none``), else ``unproven``.
+    """
+    a_phys = _section_phys(op, arith)
+    order = 2 if (int(op.a[1]) != 0 or (op.a_lo and int(op.a_lo[1]) != 0)) else 1
+    k = arith.coef.frac_bits - op.shift
+    c, r = error_interval(arith.rounding)
+    ek = 2.0 ** -k
+    c, r = c + ek / 2, r + ek / 2
+    n = _length(a_phys)
+    bounds = None
+    if n:
+        h = _impulse(np.array([1.0]), a_phys, n)
+        bounds = abs(c) * abs(float(np.sum(h))) + r * float(np.sum(np.abs(h))) + 1e-9 * (1 + n)
+    fs_lsb = float(arith.data.max_int)
+    if bounds is None:
+        res = dict(status="unproven", bound_lsb=None, exhaustive=False, states_searched=0,
+                   note="no amplitude bound: the realised section is not stable, or its poles lie too close to "
+                        "the unit circle to sum the bound rigorously")
+    elif bounds < 1.0:
+        res = dict(status="none", bound_lsb=bounds, exhaustive=True, states_searched=0,
+                   note="the granular bound is below one LSB: no nonzero state can lie on a cycle")
+    else:
+        res = dict(status="unproven", bound_lsb=bounds, exhaustive=False, states_searched=0,
+                   note=("df1-wide-fb: no exhaustive search of its zero-input map in coefc yet; "
+                         + ("the bound reaches full scale" if bounds >= fs_lsb else
+                            f"the granular bound is {bounds:.4g} LSB") + "; sampled search only"))
+        rng = np.random.default_rng(seed)
+        B = int(min(bounds, fs_lsb))
+        for _ in range(sample_starts):
+            y1, y2 = (int(v) for v in rng.integers(-B, B + 1, size=2))
+            seen = {}
+            for t in range(sample_steps):
+                if (y1, y2) in seen:
+                    per = t - seen[(y1, y2)]
+                    cyc, a, b = [], y1, y2
+                    for _ in range(per):
+                        cyc.append(a)
+                        a, b = step_wide_int(a, b, op, k, arith), a
+                    amp = max(abs(v) for v in cyc)
+                    if amp > 0 and (res.get("amplitude_lsb") or 0) < amp:
+                        res.update(status="found", amplitude_lsb=amp, period=per, start_state=(y1, y2),
+                                   states_searched=sample_starts)
+                    break
+                seen[(y1, y2)] = t
+                y1, y2 = step_wide_int(y1, y2, op, k, arith), y1
+    # overflow: exact extremes of the zero-input accumulator at the corners of the data-word box
+    lo, hi = arith.data.min_int, arith.data.max_int
+    L = lo_bits(arith.coef)
+    l1, l2 = (int(v) for v in op.a_lo) if op.a_lo else (0, 0)
+    corners = [(u, v) for u in (lo, hi) for v in ((lo, hi) if order == 2 else (0,))]
+    sums = [-int(op.a[0]) * u - int(op.a[1]) * v - ((l1 * u + l2 * v) >> L) for u, v in corners]
+    top = 1 << (arith.acc_bits - 1)
+    amin, amax = min(sums), max(sums)
+    if amax >= top or amin < -top:
+        ov = dict(overflow_status="unproven",
+                  overflow_note=f"the accumulator can wrap ({amin}..{amax} outside {arith.acc_bits} bits) and "
+                                "coefc has no exhaustive search of the df1-wide-fb map")
+    else:
+        rmin, rmax = round_shift(amin, k, arith.rounding), round_shift(amax, k, arith.rounding)
+        if lo <= rmin and rmax <= hi:
+            ov = dict(overflow_status="none",
+                      overflow_note=f"no zero-input step can overflow: over every state of the data word the "
+                                    f"rounded accumulator spans {rmin}..{rmax} LSB against the word's {lo}..{hi} "
+                                    "(exact, rounding and the low products included)")
+        else:
+            ov = dict(overflow_status="unproven",
+                      overflow_note=f"a zero-input step can overflow (rounded accumulator {rmin}..{rmax} LSB "
+                                    f"against {lo}..{hi}) and coefc has no exhaustive search of the "
+                                    "df1-wide-fb map")
+    return SectionLimitCycles(index, **res, **ov)
 
 
 def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states: int = MAX_STATES,
                     sample_starts: int = 512, sample_steps: int = 2048, overflow_starts: int = 256,
                     seed: int = 1969, ef_work: int = 3_000_000) -> SectionLimitCycles:
     """Granular limit cycles and overflow oscillations of one section with zero input."""
+    if STRUCTURE_TABLE[op.structure or arith.structure].wide_feedback:
+        return _analyse_wide(op, index, arith, seed=seed)
     a1, a2 = int(op.a[0]), int(op.a[1])
     order = 2 if a2 != 0 else 1
     k = arith.coef.frac_bits - op.shift
@@ -1109,7 +1204,7 @@ def analyse_limit_cycles(program: ChannelProgram, *, max_states: int = MAX_STATE
     for i, op in enumerate(program.ops):
         if isinstance(op, SectionOp):
             nsec += 1
-            if int(op.a[0]) != 0 or int(op.a[1]) != 0:
+            if int(op.a[0]) != 0 or int(op.a[1]) != 0 or any(int(v) for v in op.a_lo):
                 res = analyse_section(op, i, ar, max_states=max_states, **kw)
                 out.append(replace(res, **_at_output(program, res)))
                 numbers.append(nsec)
@@ -1126,6 +1221,12 @@ def cycle_outputs(op: SectionOp, res: SectionLimitCycles, arith: Arithmetic) -> 
         y1, y2, e = st
         for _ in range(res.period):
             y0, e = step_ef_int(y1, y2, e, a1, a2, k, arith)
+            ys.append(y0)
+            y1, y2 = y0, y1
+    elif STRUCTURE_TABLE[op.structure or arith.structure].wide_feedback:
+        y1, y2 = st
+        for _ in range(res.period):
+            y0 = step_wide_int(y1, y2, op, k, arith)
             ys.append(y0)
             y1, y2 = y0, y1
     else:

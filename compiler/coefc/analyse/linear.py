@@ -13,6 +13,13 @@ Structures (the recurrences are those of :mod:`coefc.program`):
            are kept at accumulator precision, so ``E -> Y`` is ``1/A(z)`` as well.
 ``df1ef``  DF1 with first-order error feedback: the residual of the last rounding is
            added back before the next, so ``E -> Y`` is ``(1 - z^-1)/A(z)``.
+``df1-wide-fb``  DF1 with double-word feedback: as ``df1`` (``1/A(z)``, ``A`` with the
+           low words), plus a second source at the same node: ``floor(P / 2^L)``
+           drops a fraction ``f`` in ``[0, 1)`` of an accumulator LSB (steps of
+           ``2^-L``), i.e. ``+f 2^-k`` output LSB with mean ``(1 - 2^-L)/2 * 2^-k`` and
+           variance ``(1 - 2^-2L)/12 * 2^-2k`` (uniform on its grid, taken
+           independent of the rounding error; the model of Jackson 1970 applied to
+           the extra quantiser).  ``extra_mean``/``extra_var`` carry it.
 
 References
 ----------
@@ -26,7 +33,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
+from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE, lo_bits
 
 #: impulse responses stop where the slowest pole has decayed below this factor
 DECAY = 1e-13
@@ -55,6 +62,8 @@ class OpModel:
     full_scale: float
     acc_full_scale: float | None
     structure: str = ""
+    extra_mean: float = 0.0  # a second error source at the rounding node, output LSB (df1-wide-fb)
+    extra_var: float = 0.0
 
     @property
     def recursive(self) -> bool:
@@ -128,11 +137,19 @@ def _build_models(program: ChannelProgram) -> list[OpModel]:
     for i, op in enumerate(program.ops):
         if isinstance(op, SectionOp):
             b = np.array([phys(c, op.shift) for c in op.b])
-            a = np.array([1.0] + [phys(c, op.shift) for c in op.a])
-            k = 0 if ar.is_float else effective_drop(tuple(op.b) + tuple(op.a), fc - op.shift)
+            a = np.array([1.0] + list(op.a_phys(None if ar.is_float else ar.coef)))
             structure = op.structure or ar.structure
+            wide = not ar.is_float and STRUCTURE_TABLE[structure].wide_feedback and any(op.a_lo)
+            # floor(P / 2^L) of df1-wide-fb is any integer: every bit of the rounding shift is dropped
+            k = 0 if ar.is_float else effective_drop(tuple(op.b) + tuple(op.a) + ((1,) if wide else ()),
+                                                     fc - op.shift)
             nb = np.array([1.0, -1.0]) if STRUCTURE_TABLE[structure].error_feedback else one
-            out.append(OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift), structure))
+            em = ev = 0.0
+            if wide:
+                L, kk = lo_bits(ar.coef), fc - op.shift
+                em = 0.5 * (1.0 - 2.0 ** -L) * 2.0 ** -kk
+                ev = (1.0 - 2.0 ** (-2 * L)) / 12.0 * 2.0 ** (-2 * kk)
+            out.append(OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift), structure, em, ev))
         elif isinstance(op, FirOp):
             b = np.array([phys(c, op.shift) for c in op.taps])
             k = 0 if ar.is_float else effective_drop(op.taps, fc - op.shift)

@@ -259,6 +259,8 @@ def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
             s2 = white
         else:
             cg = 0.0
+        # a second source at the same node (df1-wide-fb's floor of the low products), independent
+        mu, s2 = mu + m.extra_mean, s2 + m.extra_var
         sources.append(NoiseSource(m.index, m.k, mu, s2, pg, dc, s2 * pg, cg))
         var += s2 * pg
         mean += mu * dc

@@ -181,7 +181,7 @@ def analyse_response(design: ChannelDesign, program: ChannelProgram, *, passband
     for op in program.ops:
         if isinstance(op, SectionOp):
             sc = 1.0 if fc is None else 2.0 ** (op.shift - fc)
-            rows_q.append([float(c) * sc for c in op.b] + [1.0] + [float(c) * sc for c in op.a])
+            rows_q.append([float(c) * sc for c in op.b] + [1.0] + list(op.a_phys(program.arithmetic.coef)))
     rows_f = [row for blk in design.blocks if isinstance(blk, SosBlock) for row in np.asarray(blk.sos)]
     pq, pf = _roots(rows_q, "poles"), _roots(rows_f, "poles")
     zq, zf = _roots(rows_q, "zeros"), _roots(rows_f, "zeros")

@@ -188,7 +188,7 @@ def slowest_pole_radius(program: ChannelProgram) -> float:
     for op in program.ops:
         if isinstance(op, SectionOp):
             sc = 1.0 if ar.is_float else 2.0 ** (op.shift - ar.coef.frac_bits)
-            a1, a2 = (float(v) * sc for v in op.a)
+            a1, a2 = op.a_phys(ar.coef)
             r = max(r, float(np.max(np.abs(np.roots([1.0, a1, a2])))) if (a1 or a2) else 0.0)
     return r
 

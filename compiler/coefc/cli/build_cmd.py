@@ -77,7 +77,7 @@ def build(
     loaded, real = options.realisation(file, channel=channel, target=target, target_dir=target_dir,
                                        data=data, coef=coef, acc=acc, rounding=rounding,
                                        overflow=overflow, structure=structure, scaling=scaling)
-    validate(real)  # every refusal rule (shared with check) before the (slower) check
+    validate(real, generated=kernel)  # every refusal rule (shared with check) before the (slower) check
     info = build_info(real.target)  # a check-only target: names the build table it lacks
     # the target's own files are inputs too: writing into the target folder must not replace them
     inputs = [file, real.target.folder / "target.toml", *info.kernel_files(real.target.folder)]

@@ -64,7 +64,7 @@ def check(
                                        overflow=overflow, structure=structure, scaling=scaling)
     from ..emit.buildable import validate
 
-    validate(real)  # what `coefc build` would refuse fails here too (exit 2), before the analysis
+    validate(real, generated=True)  # what `coefc build --kernel` would refuse fails here too (exit 2)
     desc = loaded.description
     budget = apply_overrides(desc.budget, **budget_overrides)
     report = run_check(real, budget, options=AnalysisOptions(noise_samples=noise_samples, max_states=search_limit))

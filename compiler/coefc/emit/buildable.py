@@ -165,8 +165,13 @@ class KernelOp:
 
 
 def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
-                   source: str = "<description>") -> tuple[KernelOp, ...]:
-    """*program* as the target's kernel runs it; EmitError naming the op and the fix when it cannot."""
+                   source: str = "<description>", generated: bool = False) -> tuple[KernelOp, ...]:
+    """*program* as the target's kernel runs it; EmitError naming the op and the fix when it cannot.
+
+    *generated*: the program is written as generated code (``coefc build --kernel``),
+    which also runs the structures the reference kernels' interface lacks
+    (``df1-wide-fb``); without it those are refused.
+    """
     arith = program.arithmetic
     fixed = not arith.is_float
     fc = arith.coef.frac_bits if fixed else 0
@@ -228,8 +233,14 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
             terms = {"b0": op.b[0], "b1": op.b[1], "b2": op.b[2], "a1": op.a[0], "a2": op.a[1]}
             values = [-terms[t[1:]] if t.startswith("-") else terms[t] for t in info.section_layout]
             k = rshift(op.shift, what, True)
-            ops.append(KernelOp(op.structure.upper(), k, 1, words(values, what), STATE_WORDS[op.structure],
-                                f"{what}, {op.structure}, coefficient shift {op.shift}"))
+            if STRUCTURE_TABLE[op.structure].wide_feedback:
+                if not generated:
+                    fail(f"{what} is {op.structure} (double-word feedback coefficients), which the reference "
+                         f"kernel of target '{target.name}' does not run; write generated code (coefc build "
+                         "--kernel) or choose another structure (--structure)")
+                values = list(values) + [int(v) for v in (op.a_lo or (0, 0))]
+            ops.append(KernelOp(op.structure.upper().replace("-", "_"), k, 1, words(values, what),
+                                STATE_WORDS[op.structure], f"{what}, {op.structure}, coefficient shift {op.shift}"))
         elif isinstance(op, FirOp):
             taps = list(op.taps)
             what = f"FIR (op {i})"
@@ -267,8 +278,11 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
 # the whole realisation
 # ---------------------------------------------------------------------------
 
-def validate(realisation) -> tuple[BuildInfo, Names, tuple[tuple[KernelOp, ...], ...]] | None:
+def validate(realisation, generated: bool = False) -> tuple[BuildInfo, Names, tuple[tuple[KernelOp, ...], ...]] | None:
     """Apply every refusal rule of ``coefc build`` to *realisation*.
+
+    *generated*: the rules of ``coefc build --kernel`` (generated code), which runs
+    every structure of the target; ``coefc check`` applies these.
 
     Returns ``(build info, C names, kernel ops per channel)``, or ``None`` for a
     check-only target (no build tables: nothing to build, nothing to refuse).
@@ -292,13 +306,13 @@ def validate(realisation) -> tuple[BuildInfo, Names, tuple[tuple[KernelOp, ...],
         raise EmitError(f"{desc.source}: channels were realised in different arithmetic; one header holds one")
     places = {"data": desc.source, "coef": desc.source, "acc_bits": desc.source}
     check_kernel_words(arith, target, places)
-    return info, names, tuple(kernel_program(p, info, target, desc.source) for p in programs)
+    return info, names, tuple(kernel_program(p, info, target, desc.source, generated) for p in programs)
 
 
-def refusal(realisation) -> str | None:
+def refusal(realisation, generated: bool = False) -> str | None:
     """Why ``coefc build`` would refuse *realisation* (one line), or ``None`` when it would not."""
     try:
-        validate(realisation)
+        validate(realisation, generated)
     except CoefcError as e:
         return str(e)
     return None

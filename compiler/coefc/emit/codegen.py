@@ -60,7 +60,7 @@ from pathlib import Path
 
 from .header import EmitError
 from ..errors import DescriptionError, setting
-from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
+from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE, lo_bits
 
 __all__ = ["CNames", "ChannelCNames", "channel_cost", "cost_of", "render_kernel", "GeneratedCodeError"]
 
@@ -189,7 +189,8 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
 
     Counts the products and the sums of products of the generated code
     (rounding and saturation steps not counted): a section 5 multiplies and
-    4 adds (5 with error feedback); an FIR of N taps N multiplies and N - 1 adds,
+    4 adds (5 with error feedback; df1-wide-fb 7 multiplies, 6 adds and 7 stored
+    coefficients); an FIR of N taps N multiplies and N - 1 adds,
     folded ceil(N/2) multiplies and N - 1 adds; a gain one multiply; a delay none.
     Coefficient bytes count the stored coefficient words (a folded FIR stores
     ceil(N/2)); state bytes the fields of the generated state structure before
@@ -200,9 +201,10 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
     state = 0
     for op in program.ops:
         if isinstance(op, SectionOp):
-            muls += 5
-            adds += 5 if STRUCTURE_TABLE[op.structure].error_feedback else 4
-            coefs += 5
+            st = STRUCTURE_TABLE[op.structure]
+            muls += st.multiplies
+            adds += (5 if st.error_feedback else 4) + (2 if st.wide_feedback else 0)
+            coefs += 5 + (2 if st.wide_feedback else 0)
             state += _section_state_bytes(op, program, data_bytes)
         elif isinstance(op, FirOp):
             n = len(op.taps)
@@ -315,6 +317,25 @@ class _Fixed:
             lines.append(f"{acc} {op}= {term};")
         return lines
 
+    def low_products(self, acc: str, C: int, l1: int, l2: int, L: int) -> list[str]:
+        """``acc -= floor((l1 y1 + l2 y2) / 2^L)`` (df1-wide-fb), without signed overflow or signed shifts.
+
+        With ``|l| <= 2^(L-1) = 2^(Wc-2)`` and ``|y| <= 2^(Wd-1)`` the sum P lies
+        strictly inside ``2^(Wc+Wd-2)``; it is formed in a signed word of
+        ``Wc + Wd`` bits (32 or 64), biased to unsigned, shifted, and unbiased.
+        """
+        W = 32 if self.d + self.cb <= 32 else 64
+        S, U = f"int{W}_t", f"uint{W}_t"
+        if l1 == 0 and l2 == 0:
+            return []
+        prods = [f"({S})y1 * ({S}){_s(l1, W)}" if l1 else None, f"({S})y2 * ({S}){_s(l2, W)}" if l2 else None]
+        p = " + ".join(t for t in prods if t)
+        bias = 1 << (W - 1)
+        return [f"const {S} lp = {p}; /* A1lo y[n-1] + A2lo y[n-2], exact */",
+                f"const {S} lq = ({S})((({U})lp + {_u(bias, W)}) >> {L}) - ({S}){_u(bias >> L, W)}; "
+                f"/* floor(lp / 2^{L}) */",
+                f"{acc} -= (uint{C}_t)lq;"]
+
     # rounding and fitting ------------------------------------------------
     def finish(self, acc: str, k: int, C: int, y: str, residual: str | None = None) -> list[str]:
         """Lines computing data word *y* from accumulator *acc* (and the residual)."""
@@ -404,9 +425,17 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
             A1, A2 = (int(v) for v in op.a)
             head = [f"section {n_sec}, {op.structure}: b0 {B0}, b1 {B1}, b2 {B2}, a1 {A1}, a2 {A2} "
                     f"(coefficient shift {op.shift}, rounding shift {k}, {C}-bit container)"]
-            if op.structure in ("df1", "df1ef"):
+            wide = STRUCTURE_TABLE[op.structure].wide_feedback
+            if wide:
+                L = lo_bits(program.arithmetic.coef)
+                A1L, A2L = (int(v) for v in (op.a_lo or (0, 0)))
+                if max(abs(A1L), abs(A2L)) > 1 << (L - 1):
+                    raise GeneratedCodeError(f"section {n_sec}: low feedback word beyond 2^{L - 1}; realise again")
+                head[0] += f", low words a1 {A1L}, a2 {A2L} (weight 2^-{L})"
+            if op.structure in ("df1", "df1ef") or wide:
                 head.append("acc = b0 x[n] + b1 x[n-1] + b2 x[n-2] - a1 y[n-1] - a2 y[n-2]"
                             + (" + E" if op.structure == "df1ef" else "")
+                            + (f" - floor((a1lo y[n-1] + a2lo y[n-2]) / 2^{L})" if wide else "")
                             + f"; y[n] = fit(round(acc / 2^{k}))")
                 terms = [(1, B0, "x"), (1, B1, "x1"), (1, B2, "x2"), (-1, A1, "y1"), (-1, A2, "y2")]
                 fields = [(D, f"{f}_x", 2, "x[n-1], x[n-2]"), (D, f"{f}_y", 2, "y[n-1], y[n-2]")]
@@ -420,6 +449,10 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                     body += fx.sum_lines("acc", C, terms, )
                     body.append("acc += e;")
                     body += fx.finish("acc", k, C, "y", residual="e")
+                elif wide:
+                    body += fx.sum_lines("acc", C, terms)
+                    body += fx.low_products("acc", C, A1L, A2L, L)
+                    body += fx.finish("acc", k, C, "y")
                 else:
                     body += fx.sum_lines("acc", C, terms)
                     body += fx.finish("acc", k, C, "y")

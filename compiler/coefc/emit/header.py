@@ -31,6 +31,8 @@ operation             state words
 section, df1          4  (x[n-1], x[n-2], y[n-1], y[n-2])
 section, tdf2         2  (S1, S2 at accumulator precision)
 section, df1ef        5  (as df1, then the previous rounding residual E)
+section, df1-wide-fb  generated code only (``build --kernel``); the reference
+                      kernels refuse it (coefc.emit.buildable)
 FIR of N taps         N + 1  (position of the newest sample, then N samples),
                       folded or not
 gain                  0
@@ -315,7 +317,7 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
         raise CoefcError(f"<command line>: {setting('vectors')} {vectors}: use 0 (none) up to {GOLDEN_MAX} samples "
                          "per channel")
     header_name = Path(header_name).name
-    checked = validate(realisation)  # every refusal rule, shared with coefc check and coefc sweep
+    checked = validate(realisation, generated)  # every refusal rule, shared with coefc check and coefc sweep
     if checked is None:
         from ..targetspec import build_info
 

@@ -44,7 +44,7 @@ class OpWidth:
 
 def _coefs(op) -> list[int]:
     if isinstance(op, SectionOp):
-        return [*op.b, *op.a]
+        return [*op.b, *op.a, *op.a_lo]
     if isinstance(op, FirOp):
         return list(op.taps)
     return [op.coef]

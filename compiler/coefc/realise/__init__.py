@@ -62,6 +62,9 @@ cascade or parallel form", IEEE Trans. Audio Electroacoust. AU-18(2), 1970.
 
 from __future__ import annotations
 
+from contextvars import ContextVar
+from dataclasses import replace
+
 import numpy as np
 
 from ..blocks import ChannelDesign, DelayBlock, FirBlock, GainBlock, SosBlock
@@ -224,7 +227,7 @@ def realise_channel(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelPro
     >>> p.ops[0].a, p.ops[0].b[1] == 2 * p.ops[0].b[0] == 2 * p.ops[0].b[2]
     ((-29743, 13615), True)
     """
-    if arithmetic.is_float and not STRUCTURE_TABLE[arithmetic.structure].float32:
+    if arithmetic.is_float and not STRUCTURE_TABLE.get(arithmetic.structure, STRUCTURE_TABLE["df1"]).float32:
         raise RealisationError(f"channel '{design.name}': structure '{arithmetic.structure}' (error feedback) needs "
                                "fixed-point arithmetic; use "
                                + " or ".join(s.name for s in STRUCTURE_TABLE.values() if s.float32) + " for float32")
@@ -244,6 +247,10 @@ def realise_channel(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelPro
         ops.append(rop)
         gain *= g
     return _finish(design, arithmetic, delay, ops, final0 / gain, notes)
+
+
+#: per-section structures while structure = "auto" realises a channel (None: the arithmetic's structure)
+SECTION_STRUCTURES: ContextVar[tuple[str, ...] | None] = ContextVar("SECTION_STRUCTURES", default=None)
 
 
 def _at_least_one_lsb(kind, op, c: float, arithmetic: Arithmetic) -> float:
@@ -266,6 +273,9 @@ def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: in
     the gain lost in rounding a numerator is restored there.
     """
     fmt = arithmetic.coef
+    chosen = SECTION_STRUCTURES.get()
+    if kind == "sos" and chosen is not None:  # structure = "auto": this section's choice (coefc.realise.auto)
+        arithmetic = arithmetic.with_(structure=chosen[min(n_sec, len(chosen)) - 1])
     if kind == "sos":
         b, a = op
         bs = np.asarray(b, dtype=float) * c
@@ -274,6 +284,12 @@ def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: in
             notes.append(Note("saturated", f"section {n_sec}: coefficients do not fit {fmt} even with a coefficient "
                               f"shift of {s}; saturated (the response will be wrong): use a wider coefficient word"))
         rop = SectionOp(b=tuple(ints[:3]), a=tuple(ints[3:]), shift=s, structure=arithmetic.structure)
+        if STRUCTURE_TABLE[arithmetic.structure].wide_feedback:
+            hi, lo, bad = coefficients.split_feedback(a, fmt, s)
+            if bad:
+                notes.append(Note("saturated", f"section {n_sec}: a feedback coefficient does not fit {fmt} as a "
+                                  f"high and a low word with a coefficient shift of {s}; clamped"))
+            rop = replace(rop, a=hi, a_lo=lo)
         phys = np.array(ints[:3], dtype=float) * 2.0 ** (s - fmt.frac_bits)
         return rop, coefficients.realised_gain(b, phys)
     taps = np.asarray(op, dtype=float)
@@ -291,13 +307,12 @@ def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: in
 
 def _finish(design, arithmetic, delay, ops, final_gain, notes) -> ChannelProgram:
     """Delay first, the realised ops, the final gain op; notes on unstable quantised poles."""
-    fc = arithmetic.coef.frac_bits
     out = [DelayOp(delay)] if delay else []
     n_sec = 0
     for op in ops:
         if isinstance(op, SectionOp):
             n_sec += 1
-            r = pairing.pole_radius([1.0, op.a[0] * 2.0 ** (op.shift - fc), op.a[1] * 2.0 ** (op.shift - fc)])
+            r = pairing.pole_radius([1.0, *op.a_phys(arithmetic.coef)])
             if r >= 1.0:
                 notes.append(Note("unstable", f"section {n_sec}: quantised poles have radius {r:.9f} >= 1 "
                                   "(unstable); use a wider coefficient word"))

@@ -34,6 +34,8 @@ Oppenheim & Schafer, *Discrete-Time Signal Processing*, 3rd ed., sec. 6.8
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from ..qformat import QFormat, fit_word, round_real
@@ -96,6 +98,42 @@ def fit_section(b, a, fmt: QFormat, rounding: str, *, min_shift: int = 0) -> tup
         if fmt.frac_bits - s <= 1:
             return tuple(fit_word(v, fmt.width, "saturate") for v in ints), s, True
         s += 1
+
+
+def split_feedback(a, fmt: QFormat, s: int) -> tuple[tuple[int, int], tuple[int, int], bool]:
+    """High and low words of the feedback coefficients ``a[1], a[2]`` for ``df1-wide-fb``.
+
+    The value ``a * 2^(Fc - s + L)`` (``L = Wc - 1``, :func:`coefc.program.lo_bits`)
+    is rounded to the nearest integer ``T`` (ties to even) and split as
+    ``T = AH * 2^L + AL`` with ``AH`` the nearest integer to ``T / 2^L``, so
+    ``|AL| <= 2^(L-1)``: the pair represents ``a`` to within ``2^-(Fc - s + L + 1)``.
+    A high word outside the coefficient word is clamped and the low word takes up
+    what it can (``bad`` is then true).  Returns ``((A1H, A2H), (A1L, A2L), bad)``.
+
+    References
+    ----------
+    J. Dattorro, "The implementation of recursive digital filters for high-fidelity
+    audio", J. Audio Eng. Soc. 36(11), 1988 (double-precision feedback
+    coefficients; from memory).
+    """
+    from ..program import lo_bits
+
+    L = lo_bits(fmt)
+    half = 1 << (L - 1)
+    his, los, bad = [], [], False
+    for v in (a[1], a[2]):
+        t = round(math.ldexp(float(v), fmt.frac_bits - s + L))  # exact integer of the float's rounding
+        h = (t + half) >> L  # nearest (ties up); |t - h 2^L| <= 2^(L-1)
+        if h > fmt.max_int or h < fmt.min_int:
+            h = min(max(h, fmt.min_int), fmt.max_int)
+            bad = True
+        lo = t - (h << L)
+        if abs(lo) > half:
+            lo = max(-half, min(half, lo))
+            bad = True
+        his.append(int(h))
+        los.append(int(lo))
+    return tuple(his), tuple(los), bad
 
 
 def realised_gain(intended, realised) -> float:
