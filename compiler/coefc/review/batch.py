@@ -95,8 +95,14 @@ class FileOutcome:
 
 def check_file(path, settings: CheckSettings):
     """Run ``coefc check`` on *path*: ``(report, realisation, notes)``; raises :class:`CoefcError` on bad input."""
-    from ..analyse import AnalysisOptions
     from ..api import load
+
+    return check_loaded(load(path), settings)
+
+
+def check_loaded(loaded, settings: CheckSettings):
+    """Run ``coefc check`` on a loaded description: ``(report, realisation, notes)``."""
+    from ..analyse import AnalysisOptions
     from ..budget import apply_overrides, run_check
     from ..buildable import validate
     from ..targets import Overrides
@@ -104,13 +110,12 @@ def check_file(path, settings: CheckSettings):
     a = dict(settings.arithmetic)
     ov = Overrides(structure=a.get("structure"), data=a.get("data"), coef=a.get("coef"), acc_bits=a.get("acc"),
                    rounding=a.get("rounding"), overflow=a.get("overflow"), scaling=a.get("scaling"))
-    loaded = load(path)
     real = loaded.design(settings.channels or None).realise(settings.target, ov, settings.target_dirs)
     notes = []
     impl = loaded.description.implementation
     if real.programs and real.programs[0].arithmetic.is_float and impl.structure == "df1ef" and ov.structure is None:
-        notes.append(f"{path}: target '{real.target.name}' runs the description's df1ef as df1: float32 has no "
-                     "fixed-point rounding residual to feed back")
+        notes.append(f"{loaded.description.source}: target '{real.target.name}' runs the description's df1ef as "
+                     "df1: float32 has no fixed-point rounding residual to feed back")
     validate(real)  # what `coefc build` would refuse fails here too (exit 2), before the analysis
     budget = apply_overrides(loaded.description.budget, **dict(settings.budget_overrides))
     report = run_check(real, budget, options=AnalysisOptions(noise_samples=settings.noise_samples,
