@@ -43,7 +43,7 @@ def _rule(rule_id: str) -> dict:
 
     if rule_id in BY_NAME:
         c = BY_NAME[rule_id]
-        text = f"The {c.words} of a channel is within its budget." if c.budget_key else f"The check '{c.words}' holds."
+        text = f"{c.title[0].upper()}{c.title[1:]}: passes when {c.passes_when}."
     else:
         text = _OTHER_RULES.get(rule_id, rule_id)
     return {"id": rule_id, "shortDescription": {"text": text}}
