@@ -82,7 +82,7 @@ class FileOutcome:
         """One line: the file, its verdict and what decided it."""
         if self.error is not None:
             err = self.error
-            if err.startswith(self.source + ":"):
+            if err.startswith(self.source) and err[len(self.source):len(self.source) + 1] in (":", ","):
                 err = err[len(self.source) + 1:].lstrip()
             return f"{self.source}: {self.verdict}: {err}"
         chans = self.report["channels"] if self.report else []

@@ -133,7 +133,7 @@ def scan(text: str) -> Lines:
         if depth == 0:
             h = _HEADER.match(code)
             if h and not _KEY.match(code):
-                parts = tuple(_split_key(h.group(2)))
+                parts = tuple(_split_key(raw[h.start(2):h.end(2)]))
                 table = parts
                 if h.group(1) == "[[" and parts == ("channel",):
                     lines.channels.append(ChannelLines(header=lineno))
@@ -147,7 +147,7 @@ def scan(text: str) -> Lines:
             k = _KEY.match(code)
             if not k:
                 continue
-            path = _split_key(k.group(1))
+            path = _split_key(raw[k.start(1):k.end(1)])
             record_key(path, lineno)
             ch = channel()
             in_stages = table == ("channel",) and path == ["stages"] and ch is not None
@@ -172,7 +172,7 @@ def scan(text: str) -> Lines:
                 depth = max(0, depth - 1)
         if inline_budget and ch is not None:
             for m in re.finditer(rf'(?:^|[{{,])\s*({_BARE_KEY})\s*=', code[start:]):
-                ch.budget_keys.setdefault(_unquote(m.group(1)), lineno)
+                ch.budget_keys.setdefault(_unquote(raw[start + m.start(1):start + m.end(1)]), lineno)
         if depth == 0:
             in_stages = inline_budget = False
     return lines
