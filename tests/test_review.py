@@ -102,8 +102,7 @@ output_noise_dbfs = -120
 name = 'first'
 budget = { output_noise_dbfs = -100, limit_cycles = 2 }
 stages = [{ kind = "gain", db = 1 }, { kind = "delay", samples = 2 },
-  { kind = "gain",
-    db = -1 },
+  { kind = "gain", db = -1 },
 ]
 
 [[channel]]
@@ -129,8 +128,8 @@ samples = 1
     first, second, third = lines.channels
     assert (first.name, first.line, first.stage_lines) == ("first", 10, [12, 12, 13])
     assert first.budget_keys == {"output_noise_dbfs": 11, "limit_cycles": 11}
-    assert (second.name, second.stage_lines, second.budget_keys) == ("second", [21], {"passband_deviation_db": 19})
-    assert (third.name, third.stage_lines, third.budget_keys) == ("third", [31], {"output_offset_lsb": 29})
+    assert (second.name, second.stage_lines, second.budget_keys) == ("second", [20], {"passband_deviation_db": 18})
+    assert (third.name, third.stage_lines, third.budget_keys) == ("third", [30], {"output_offset_lsb": 28})
     assert lines.budget_key("output_noise_dbfs", "first") == 11  # the channel's own key wins
     assert lines.budget_key("output_noise_dbfs", "second") == 7
     # tomllib reads the same text: the same channels, stages and budget keys
