@@ -227,6 +227,16 @@ def test_sarif_validates_against_the_published_schema_and_places_each_finding(pr
     assert lines["bad-input"] == _line_of(BAD, "cutof_hz")
 
 
+def test_a_bad_budget_key_is_placed_at_its_line(tmp_path):
+    from coefc.review.batch import CheckSettings, run_file
+
+    text = GOOD.replace("output_noise_dbfs = -120", "output_noise_dbfs = \"quiet\"")
+    (tmp_path / "k.toml").write_text(text)
+    out = run_file(str(tmp_path / "k.toml"), CheckSettings())
+    assert out.code == 2 and "output_noise_dbfs" in out.error
+    assert [f.line for f in out.findings] == [_line_of(text, "output_noise_dbfs =")]
+
+
 def test_sarif_markdown_and_json_do_not_depend_on_the_number_of_processes(probes):
     outs = []
     for jobs in ("1", "2"):

@@ -183,15 +183,21 @@ def _error_finding(path: str, e: CoefcError) -> Finding:
     line = None
     if isinstance(e, DescriptionError):
         line = e.line
-        if line is None and e.channel is not None:
-            try:
-                from .locate import scan
+        if line is None and (e.channel is not None or e.key is not None):
+            from .locate import scan
 
-                cl = scan(Path(path).read_text(encoding="utf-8", errors="replace")).channel(e.channel)
-            except OSError:
-                cl = None
+            try:
+                lines = scan(Path(path).read_text(encoding="utf-8", errors="replace"))
+            except (OSError, ValueError):
+                return Finding("bad-input", str(e), None)
+            key = e.key or ""
+            budget_key = key.split(".", 1)[1] if key.startswith("budget.") else None
+            cl = lines.channel(e.channel) if e.channel is not None else None
             if cl is not None:
-                line = cl.stage(e.stage) if e.stage is not None else cl.line
+                line = (cl.stage(e.stage) if e.stage is not None
+                        else cl.budget_keys.get(budget_key) or cl.line)
+            elif e.channel is None:  # a [budget] or top-level key
+                line = lines.budget_keys.get(budget_key) if budget_key else lines.top_keys.get(key)
     return Finding("bad-input", str(e), line)
 
 
