@@ -1,6 +1,6 @@
 """The ``coefc`` command line: a thin layer over the library API.
 
-Each command lives in its own module (``design_cmd``, ``run_cmd``, ``check_cmd``,
+Each command lives in its own module (``design_cmd``, ``run_cmd``, ``check_cmd``, ``diff_cmd``,
 ``build_cmd``, ``sweep_cmd``, ``targets_cmd``) and registers itself on the one
 Typer app here.  Exit codes: 0 pass, 1 over budget (or stale header), 2 bad input
 or usage (one line on stderr), 3 an internal error of coefc itself (one line naming
@@ -55,6 +55,7 @@ def _root(
 from . import (  # noqa: E402,F401
     design_cmd,
     check_cmd,
+    diff_cmd,
     build_cmd,
     run_cmd,
     sweep_cmd,

@@ -1,4 +1,5 @@
-"""Reporters of a check: a :class:`coefc.budget.CheckReport` in, text out.
+"""Reporters: a check or a comparison in, text for people, CI annotations and review summaries out.
 
-``text`` writes the text, JSON and JUnit forms; ``html`` the self-contained visual report.
+``text`` writes a check as text, JSON and JUnit; ``html`` the self-contained visual report;
+``batch``, ``sarif``, ``markdown`` and ``diff`` the outputs of a merge review.
 """

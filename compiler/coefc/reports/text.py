@@ -123,6 +123,14 @@ def render_junit(report) -> str:
     total = sum(len(ch.checks) for ch in report.channels)
     fails = len(report.failures())
     out.append(f'<testsuites name={quoteattr("coefc check " + report.source)} tests="{total}" failures="{fails}">')
+    out.extend(junit_suites(report))
+    out.append("</testsuites>")
+    return "\n".join(out) + "\n"
+
+
+def junit_suites(report) -> list[str]:
+    """The ``<testsuite>`` elements of *report* (one per channel), as lines of JUnit XML."""
+    out = []
     for ch in report.channels:
         nf = sum(1 for c in ch.checks if not c.ok)
         out.append(f'  <testsuite name={quoteattr(ch.name)} tests="{len(ch.checks)}" failures="{nf}" errors="0">')
@@ -137,8 +145,7 @@ def render_junit(report) -> str:
                 out.append(f'    <testcase classname={cls} name={quoteattr(c.name)}>'
                            f'<failure message={quoteattr(msg)}>{escape(msg)}</failure></testcase>')
         out.append("  </testsuite>")
-    out.append("</testsuites>")
-    return "\n".join(out) + "\n"
+    return out
 
 
 REPORTERS = {"text": render_text, "json": render_json, "junit": render_junit}

@@ -1,0 +1,1 @@
+"""Merge review: many descriptions checked at once, base against head, and where in a file a finding belongs."""
