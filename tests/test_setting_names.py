@@ -45,3 +45,10 @@ def test_library_error_has_no_flag_and_cli_names_the_option():
     cli = subprocess.run([str(Path(sys.executable).parent / "coefc"), "check", str(MONITOR), "--acc", "1"],
                          capture_output=True, text=True)
     assert cli.returncode == 2 and "'--acc'" in cli.stderr and "@{" not in cli.stderr
+
+
+def test_several_files_name_the_option_too(tmp_path):
+    # the multi-file path renders errors in worker processes: they must still speak the CLI's options
+    cli = subprocess.run([str(Path(sys.executable).parent / "coefc"), "check", str(MONITOR), str(MONITOR),
+                          "--acc", "1", "-j", "1"], capture_output=True, text=True)
+    assert cli.returncode == 2 and "'--acc'" in cli.stderr and "@{" not in cli.stderr

@@ -81,7 +81,8 @@ def check(
         arithmetic=tuple((k, v) for k, v in dict(data=data, coef=coef, acc=acc, rounding=rounding, overflow=overflow,
                                                  structure=structure, scaling=scaling).items() if v is not None),
         channels=tuple(channel or ()), budget_overrides=tuple(budget_overrides.items()),
-        noise_samples=noise_samples, max_states=search_limit)
+        noise_samples=noise_samples, max_states=search_limit,
+        setting_names=tuple(options.OPTION_OF_SETTING.items()))
     outcomes = []
     for o in check_files(files, settings, jobs):
         outcomes.append(o)

@@ -49,6 +49,8 @@ class CheckSettings:
     budget_overrides: tuple[tuple[str, object], ...] = ()
     noise_samples: int = 1 << 15
     max_states: int = 1 << 24
+    #: how error messages name settings (coefc.errors.setting): the CLI passes its options
+    setting_names: tuple[tuple[str, str], ...] = ()
 
 
 @dataclass(frozen=True)
@@ -179,7 +181,7 @@ def error_line(exc: BaseException) -> str:
             f"{type(exc).__name__}{where}: {msg}")
 
 
-def _error_finding(path: str, e: CoefcError) -> Finding:
+def _error_finding(path: str, e: CoefcError, text: str) -> Finding:
     line = None
     if isinstance(e, DescriptionError):
         line = e.line
@@ -189,7 +191,7 @@ def _error_finding(path: str, e: CoefcError) -> Finding:
             try:
                 lines = scan(Path(path).read_text(encoding="utf-8", errors="replace"))
             except (OSError, ValueError):
-                return Finding("bad-input", str(e), None)
+                return Finding("bad-input", text, None)
             key = e.key or ""
             budget_key = key.split(".", 1)[1] if key.startswith("budget.") else None
             cl = lines.channel(e.channel) if e.channel is not None else None
@@ -198,7 +200,7 @@ def _error_finding(path: str, e: CoefcError) -> Finding:
                         else cl.budget_keys.get(budget_key) or cl.line)
             elif e.channel is None:  # a [budget] or top-level key
                 line = lines.budget_keys.get(budget_key) if budget_key else lines.top_keys.get(key)
-    return Finding("bad-input", str(e), line)
+    return Finding("bad-input", text, line)
 
 
 def run_file(path: str, settings: CheckSettings) -> FileOutcome:
@@ -212,7 +214,8 @@ def run_file(path: str, settings: CheckSettings) -> FileOutcome:
                            tuple(junit_suites(report)), tuple(findings_of(report, real.design.loaded.description, text)),
                            tuple(notes) + tuple(report.cautions))
     except CoefcError as e:
-        return FileOutcome(path, 2, findings=(_error_finding(path, e),), error=str(e))
+        text = e.spoken(dict(settings.setting_names))
+        return FileOutcome(path, 2, findings=(_error_finding(path, e, text),), error=text)
     except MemoryError:
         msg = f"{path}: the input needs more memory than this machine has; make it smaller"
         return FileOutcome(path, 2, findings=(Finding("bad-input", msg, None),), error=msg)
