@@ -463,7 +463,7 @@ def _sums(v, source: str, fs: float, channel_names: list[str]) -> tuple[SumSpec,
         raise top.fail(f"{len(v)} sums; at most {MAX_SUMS} per description")
     out: list[SumSpec] = []
     for i, t in enumerate(v):
-        label = f"sum {i + 1}"
+        label = f"sum[{i + 1}]"
         if "name" not in t:
             raise _Place(source, key=f"{label}.name").fail("missing; give the sum a name = \"...\"")
         name = _string(t["name"], _Place(source, key=f"{label}.name"))
@@ -472,7 +472,7 @@ def _sums(v, source: str, fs: float, channel_names: list[str]) -> tuple[SumSpec,
         if any(s.name == name for s in out):
             raise _Place(source, key=f"{label}.name").fail(f"duplicate sum name '{name}'; give every sum its own "
                                                            "name")
-        where = _Place(source, table=f"sum '{name}'")
+        where = _Place(source, table=label)
         _check_keys(t, _SUM_KEYS, where, "[[sum]]")
         for key in ("channels", "target_db", "tolerance_db", "band_hz"):
             if key not in t:

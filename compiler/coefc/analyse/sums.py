@@ -15,7 +15,10 @@ Two figures are computed:
   engine (:func:`coefc.simulate.simulate`) on each channel for two periods; the
   second period of every output is in steady state (N is at least the length in
   which the slowest realised pole decays to 1e-13), the outputs are added and
-  ``H_sum(k) = FFT(sum_c y_c)(k) / FFT(x)(k)``.  The input peak keeps every
+  ``H_sum(k) = FFT(sum_c y_c)(k) / FFT(x)(k)``.  In steady state the output of a
+  periodic input is itself periodic (the roundoff is a function of the state), so
+  further periods would repeat the same figure: the bit-true level includes the
+  roundoff error at each bin once, as the chip would produce it for this input.  The input peak keeps every
   node's realised l1 bound at half its full scale, so no node overflows; the
   engine's overflow counters are read back and an overflow is reported.
 
