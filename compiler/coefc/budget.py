@@ -113,6 +113,26 @@ class ChannelReport:
 
 
 @dataclass(frozen=True, eq=False)
+class SumReport:
+    """The check of one ``[[sum]]``: the channels' realised outputs added, against a level."""
+
+    name: str
+    checks: list[Check]
+    reasons: dict[str, str]
+    analysis: object = field(default=None, repr=False)  # coefc.analyse.sums.SumAnalysis
+
+    @property
+    def ok(self) -> bool:
+        return all(c.ok for c in self.checks)
+
+    def as_dict(self) -> dict:
+        return {**self.analysis.as_dict(),
+                "checks": [{"name": c.name, "value": _json_num(c.value), "limit": _json_num(c.limit), "ok": c.ok,
+                            "reason": self.reasons.get(c.name, "")} for c in self.checks],
+                "ok": self.ok}
+
+
+@dataclass(frozen=True, eq=False)
 class CheckReport:
     """The verdict of ``coefc check``: per-channel checks and the cautions to show."""
 
@@ -122,13 +142,15 @@ class CheckReport:
     budget: Budget  # as applied: the file's, with overrides and the hazard defaults
     cautions: tuple[str, ...] = ()
     defaults: Mapping = field(default_factory=dict)  # budget keys filled in by HAZARD_DEFAULTS
+    sums: tuple[SumReport, ...] = ()  # the [[sum]] tables whose channels were all realised
 
     @property
     def ok(self) -> bool:
-        return all(ch.ok for ch in self.channels)
+        return all(ch.ok for ch in self.channels) and all(s.ok for s in self.sums)
 
     def failures(self) -> list[tuple[str, Check, str]]:
-        return [(ch.name, c, ch.reasons.get(c.name, "")) for ch in self.channels for c in ch.checks if not c.ok]
+        return ([(ch.name, c, ch.reasons.get(c.name, "")) for ch in self.channels for c in ch.checks if not c.ok]
+                + [(f"sum {s.name}", c, s.reasons.get(c.name, "")) for s in self.sums for c in s.checks if not c.ok])
 
     def to_json(self) -> dict:
         """The JSON report contract (schema 1); no NaN or infinity anywhere."""
@@ -141,6 +163,7 @@ class CheckReport:
             "target": self.target,
             "ok": self.ok,
             "channels": [ch.as_dict() for ch in self.channels],
+            "sums": [_clean_json(s.as_dict()) for s in self.sums],
             "budget": _budget_dict(self.budget),
             "defaults_applied": dict(self.defaults),
             "cautions": list(self.cautions),
@@ -153,6 +176,38 @@ def _json_num(v):
     if isinstance(v, float) and not math.isfinite(v):
         return None
     return v
+
+
+def _clean_json(v):
+    """*v* with NaN and infinities as None, numpy numbers as Python numbers."""
+    if isinstance(v, dict):
+        return {k: _clean_json(x) for k, x in v.items()}
+    if isinstance(v, (list, tuple)):
+        return [_clean_json(x) for x in v]
+    if hasattr(v, "item") and not isinstance(v, (str, bytes)):
+        v = v.item()
+    return _json_num(v)
+
+
+def sum_reports(realisation) -> tuple[SumReport, ...]:
+    """The checks of the description's ``[[sum]]`` tables whose channels were all realised.
+
+    A sum naming a channel left out (``--channel``) is not checked.
+    """
+    from .analyse.sums import analyse_sum, sum_check_reason
+
+    designs = {d.name: d for d in realisation.design.channels}
+    programs = {p.name: p for p in realisation.programs}
+    out = []
+    for spec in getattr(realisation.design.loaded.description, "sums", ()):
+        if not all(c in programs for c in spec.channels):
+            continue
+        s = analyse_sum(spec, designs, programs)
+        v = s.deviation_db
+        ok = BY_NAME["sum_deviation_db"].holds(v, spec.tolerance_db) and not s.overflow_events
+        out.append(SumReport(spec.name, [Check("sum_deviation_db", v, spec.tolerance_db, ok)],
+                             {"sum_deviation_db": sum_check_reason(s, ok)}, s))
+    return tuple(out)
 
 
 def _budget_dict(b: Budget) -> dict:
@@ -606,4 +661,4 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
     cautions = [CAUTION.format(what=" and ".join(tolerated))] if tolerated else []
     budget, _ = with_defaults(budget)
     return CheckReport(realisation.design.loaded.description.source, realisation.target.name, tuple(reports),
-                       budget, tuple(cautions), defaults)
+                       budget, tuple(cautions), defaults, sum_reports(realisation))

@@ -217,6 +217,9 @@ CHECKS: tuple[CheckKind, ...] = (
               budget_key=True, validate=_tone, default=DEFAULT_TONE_GAIN_ERROR_DB),
     CheckKind("iec61672_class1_excess_db", "<=", "dB", "IEC 61672-1 class 1 excess",
               "with the tone check, for a weighting stage: largest excess over the class 1 limits <= 0 dB"),
+    CheckKind("sum_deviation_db", "<=", "dB", "sum of channels",
+              "for each [[sum]]: max |level of the channels' sum - target_db| over band_hz, on the float design "
+              "and on the bit-true outputs, <= tolerance_db"),
 )
 
 #: the checks by name

@@ -90,6 +90,21 @@ class ChannelSpec:
 
 
 @dataclass(frozen=True)
+class SumSpec:
+    """A ``[[sum]]`` table: channels whose realised outputs are added, and the level their sum must hold.
+
+    The channels are taken as realised (polarity, gains and delays included); the
+    level of the sum must stay within ``target_db +- tolerance_db`` over ``band_hz``.
+    """
+
+    name: str
+    channels: tuple[str, ...]
+    target_db: float
+    tolerance_db: float
+    band_hz: tuple[float, float]
+
+
+@dataclass(frozen=True)
 class Description:
     """A whole validated filter description."""
 
@@ -100,6 +115,7 @@ class Description:
     budget: Budget
     channels: tuple[ChannelSpec, ...]
     sha256: str  # of the file's bytes, for header banners and staleness checks
+    sums: tuple[SumSpec, ...] = ()  # [[sum]] tables: sums of channels checked against a level
 
     def channel(self, name: str) -> ChannelSpec:
         for ch in self.channels:
@@ -299,7 +315,9 @@ STAGE_KEYS: dict[str, dict] = {kind: {k: _checker(key) for k, key in sk.keys.ite
                                for kind, sk in STAGE_KINDS_TABLE.items()}
 STAGE_KINDS = tuple(STAGE_KEYS)
 
-_TOP_KEYS = ("name", "sample_rate_hz", "implementation", "budget", "channel")
+_TOP_KEYS = ("name", "sample_rate_hz", "implementation", "budget", "channel", "sum")
+_SUM_KEYS = ("name", "channels", "target_db", "tolerance_db", "band_hz")
+MAX_SUMS = 16
 _IMPL_KEYS = ("target", "structure", "data", "coef", "acc_bits", "rounding", "overflow", "scaling")
 #: [budget] keys: one per budget check (coefc.checks.CHECKS), then the keys that shape checks
 _BUDGET_KEYS = tuple(c.name for c in BUDGET_CHECKS) + ("passband", "stopband", "tone_levels_dbfs")
@@ -431,8 +449,60 @@ def _validate(doc: dict, source: str, sha: str) -> Description:
     seen: set[str] = set()
     for i, ch in enumerate(chans):
         channels.append(_channel(ch, i + 1, source, fs, seen))
+    sums = _sums(doc.get("sum", []), source, fs, [c.name for c in channels])
     return Description(source=source, name=name, sample_rate_hz=fs, implementation=impl, budget=budget,
-                       channels=tuple(channels), sha256=sha)
+                       channels=tuple(channels), sha256=sha, sums=sums)
+
+
+def _sums(v, source: str, fs: float, channel_names: list[str]) -> tuple[SumSpec, ...]:
+    """The ``[[sum]]`` tables, validated: known channels, a band within Nyquist, a positive tolerance."""
+    top = _Place(source, key="sum")
+    if not isinstance(v, list) or not all(isinstance(t, dict) for t in v):
+        raise top.fail("must be an array of tables; write each sum as [[sum]]")
+    if len(v) > MAX_SUMS:
+        raise top.fail(f"{len(v)} sums; at most {MAX_SUMS} per description")
+    out: list[SumSpec] = []
+    for i, t in enumerate(v):
+        label = f"sum[{i + 1}]"
+        if "name" not in t:
+            raise _Place(source, key=f"{label}.name").fail("missing; give the sum a name = \"...\"")
+        name = _string(t["name"], _Place(source, key=f"{label}.name"))
+        if not name.strip() or len(name) > 64:
+            raise _Place(source, key=f"{label}.name").fail("write a short name (1 to 64 characters)")
+        if any(s.name == name for s in out):
+            raise _Place(source, key=f"{label}.name").fail(f"duplicate sum name '{name}'; give every sum its own "
+                                                           "name")
+        where = _Place(source, table=label)
+        _check_keys(t, _SUM_KEYS, where, "[[sum]]")
+        for key in ("channels", "target_db", "tolerance_db", "band_hz"):
+            if key not in t:
+                example = {"channels": 'channels = ["low", "high"]', "target_db": "target_db = 0",
+                           "tolerance_db": "tolerance_db = 0.5", "band_hz": "band_hz = [100, 10000]"}[key]
+                raise where.at(key).fail(f"missing; add {example}")
+        chans = t["channels"]
+        w = where.at("channels")
+        if not isinstance(chans, list) or not all(isinstance(c, str) for c in chans):
+            raise w.fail('expected a list of channel names, e.g. ["low", "high"]')
+        if len(chans) < 2:
+            raise w.fail(f"names {len(chans)} channel(s); a sum adds at least two channels")
+        for c in chans:
+            if c not in channel_names:
+                raise w.fail(f"no channel '{c}'{close_match(c, channel_names)}; channels are "
+                             + ", ".join(channel_names))
+        if len(set(chans)) != len(chans):
+            raise w.fail("names a channel twice; name each channel once")
+        target = _number(t["target_db"], where.at("target_db"))
+        if not -200.0 <= target <= 200.0:
+            raise where.at("target_db").fail(f"{_fmt(target)} dB is not a level; write the level of the sum in dB, "
+                                             "e.g. 0")
+        tol = _positive(t["tolerance_db"], where.at("tolerance_db"))
+        wb = where.at("band_hz")
+        lo, hi = _band(t["band_hz"], wb, allow_zero=True)
+        if hi > fs / 2:
+            raise wb.fail(f"band edge {_fmt(hi)} Hz is above Nyquist ({_nyq_text(fs)}); end the band at or below "
+                          f"{_fmt(fs / 2)} Hz")
+        out.append(SumSpec(name, tuple(chans), target, tol, (lo, hi)))
+    return tuple(out)
 
 
 def _table(v, where: _Place, header: str) -> dict:

@@ -68,6 +68,8 @@ class ResponseAnalysis:
     stable: bool
     pole_displacement: float | None
     zero_displacement: float | None
+    passband_mask: np.ndarray | None = None  # where passband_deviation_db was measured
+    stopband_mask: np.ndarray | None = None  # where stopband_attenuation_db was measured
 
 
 def grid(fs: float, points: int = GRID_POINTS, *, edges_hz=(), bands=(), fir_taps: int = 0) -> np.ndarray:
@@ -187,5 +189,5 @@ def analyse_response(design: ChannelDesign, program: ChannelProgram, *, passband
     zq, zf = _roots(rows_q, "zeros"), _roots(rows_f, "zeros")
     radius = float(np.max(np.abs(pq))) if len(pq) else 0.0
     return ResponseAnalysis(f, df, dq, dev, att, fatt, prule, srule, radius, radius < 1.0,
-                            _match(pq, pf), _match(zq, zf))
+                            _match(pq, pf), _match(zq, zf), pmask, smask)
 

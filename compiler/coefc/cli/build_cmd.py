@@ -88,7 +88,8 @@ def build(
     for c in report.cautions:
         print(f"coefc: {c}", file=sys.stderr)
     for ch, chk, why in report.failures():  # said whether or not --force writes the header anyway
-        print(f"coefc: over budget: channel '{ch}': {over_budget_text(chk.name, chk.value, chk.limit)}"
+        where = ch if ch.startswith("sum ") else f"channel '{ch}'"  # a [[sum]] is named "sum NAME"
+        print(f"coefc: over budget: {where}: {over_budget_text(chk.name, chk.value, chk.limit)}"
               + (f": {why}" if why else ""), file=sys.stderr)
     if not report.ok and not force:
         print(f"coefc: {output}: not written (the check failed; --force writes it anyway)", file=sys.stderr)

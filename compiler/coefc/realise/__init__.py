@@ -365,6 +365,7 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
     h = unit.copy()
     paths: list[np.ndarray] = []  # roundoff of each earlier rounding, carried to the current node
     ops, gain, worst = [], 1.0, 0.0
+    over: list[tuple[int, float, str]] = []  # (position in ops, bound, why the search stopped)
     # start from the float design's factors: realisations of one design in different words
     # then share their scaling wherever the quantised coefficients do not force a lower one
     # (the per-op width search of coefc.explore.opwidths relies on this correspondence)
@@ -372,6 +373,7 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
     for (kind, op), c0 in zip(chain0, factors):
         c0 = _at_least_one_lsb(kind, op, c0, ar)
         c, first, best, fill = c0, None, None, 0
+        stop = ""
         n_sec = sum(isinstance(o, SectionOp) for o in ops) + 1
         while True:
             trial_notes: list[str] = []
@@ -387,6 +389,7 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
             state = (rop, g, trial_notes, hn, pn, bound)
             first = first or state
             if not stable:
+                stop = "its quantised poles are not stable"
                 break
             if bound <= maxv:
                 if fill < 3 and bound < maxv * (1.0 - 1e-6) and c < c0:  # lowered too far: fill up again
@@ -405,17 +408,28 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
             c = lower
             zero = kind == "sos" and not any(_fixed_op(kind, op, c, ar, [], n_sec)[0].b)
             if c < c0 * 2.0 ** -L1_MAX_LOSS_BITS or roundoff >= maxv or zero:
+                stop = (f"lowering its scale factor by up to {L1_MAX_LOSS_BITS} bits did not make it fit"
+                        if c < c0 * 2.0 ** -L1_MAX_LOSS_BITS else "the roundoff alone reaches full scale"
+                        if roundoff >= maxv else "a lower scale factor rounds its numerator to zero")
+                stop += ", so the design's factor was kept"
                 state = first
                 break
         rop, g, trial_notes, h, paths, bound = state
         notes.extend(trial_notes)
+        if bound > maxv:
+            over.append((len(ops), bound, stop))
         worst = max(worst, bound)
         ops.append(rop)
         gain *= g
-    if worst > maxv:
-        notes.append(Note("scaling", "l1 scaling: with the quantised coefficients and roundoff an op output can "
-                          f"reach {worst / maxv:.6g} x full scale ({np.log2(worst / maxv):.2f} bits of headroom "
-                          "missing); the l1_scaling check fails: use a wider data or coefficient word"))
+    if over:
+        lead = 1 if delay else 0  # _finish puts the delay op first
+        parts = []
+        for pos, b, why in over:
+            parts.append(f"op {pos + lead + 1} output can reach {b / maxv:.6g} x full scale "
+                         f"({np.log2(b / maxv):.2f} bits of headroom missing)" + (f": {why}" if why else ""))
+        notes.append(Note("scaling", "l1 scaling, by the realisation's bound (realised l1 gain plus roundoff): "
+                          + "; ".join(parts) + ". The l1_scaling and overflow checks judge the realised program; "
+                          "a wider data or coefficient word gives room"))
     return _finish(design, ar, delay, ops, final0 / gain, notes)
 
 

@@ -98,6 +98,11 @@ def render_text(report) -> str:
             lines.append(f"{ch.name}: generated code costs per sample {cost['muls_per_sample']} multiplies, "
                          f"{cost['adds_per_sample']} adds; coefficients {cost['coef_bytes']} bytes, "
                          f"state {cost['state_bytes']} bytes")
+    for sm in getattr(report, "sums", ()):
+        lines.append(f"sum {sm.name}  [{'PASS' if sm.ok else 'FAIL'}]")
+        for c in sm.checks:
+            lines.append(f"  {'ok  ' if c.ok else 'FAIL'} {c.name:<10} {_value(c.name, c):>14}  "
+                         f"{_limit(c.name, c.limit):<12} {sm.reasons.get(c.name, '')}")
     lines.append(DBFS_NOTE)
     lines.append(f"{report.source}: {verdict_line(report)}")
     return "\n".join(lines) + "\n"
@@ -120,7 +125,7 @@ def render_json(report) -> str:
 def render_junit(report) -> str:
     """JUnit XML: a test suite per channel and a test case per check."""
     out = ['<?xml version="1.0" encoding="UTF-8"?>']
-    total = sum(len(ch.checks) for ch in report.channels)
+    total = sum(len(ch.checks) for ch in report.channels) + sum(len(s.checks) for s in getattr(report, "sums", ()))
     fails = len(report.failures())
     out.append(f'<testsuites name={quoteattr("coefc check " + report.source)} tests="{total}" failures="{fails}">')
     out.extend(junit_suites(report))
@@ -144,6 +149,17 @@ def junit_suites(report) -> list[str]:
             else:
                 out.append(f'    <testcase classname={cls} name={quoteattr(c.name)}>'
                            f'<failure message={quoteattr(msg)}>{escape(msg)}</failure></testcase>')
+        out.append("  </testsuite>")
+    for sm in getattr(report, "sums", ()):
+        nf = sum(1 for c in sm.checks if not c.ok)
+        out.append(f'  <testsuite name={quoteattr("sum " + sm.name)} tests="{len(sm.checks)}" failures="{nf}" '
+                   'errors="0">')
+        for c in sm.checks:
+            cls = quoteattr(f"{report.source}.sum.{sm.name}")
+            msg = f"{c.name} = {_value(c.name, c)}, limit {_limit(c.name, c.limit)}: {sm.reasons.get(c.name, '')}"
+            body = (f'<system-out>{escape(msg)}</system-out>' if c.ok else
+                    f'<failure message={quoteattr(msg)}>{escape(msg)}</failure>')
+            out.append(f'    <testcase classname={cls} name={quoteattr(c.name)}>{body}</testcase>')
         out.append("  </testsuite>")
     return out
 
