@@ -63,9 +63,12 @@ class Model:
         """Returns (y, data overflow count, accumulator overflow count).
 
         ``df1-wide-fb``: *a* are the high feedback words, *a_lo* the low words of
-        weight 2^-L, L = coef_width - 1 (coefc.program's docstring).
+        weight 2^-L, L = coef_width - 1 (coefc.program's docstring).  ``df1ef-wide-fb``:
+        the same, plus the residual E of the previous accumulator (which holds the
+        floored low-product term), as in ``df1ef``.
         """
-        if structure not in ("df1", "tdf2", "df1ef", "df1-wide-fb"):  # the structures this model knows (independently)
+        known = ("df1", "tdf2", "df1ef", "df1-wide-fb", "df1ef-wide-fb")  # the structures this model knows
+        if structure not in known:
             raise NotImplementedError(f"exact model: no recurrence for structure '{structure}'")
         k = self.Fc - shift
         b0, b1, b2 = b
@@ -84,16 +87,16 @@ class Model:
                 na += w0 or w1 or w2
             else:
                 total = b0 * xn + b1 * xh[0] + b2 * xh[1] - a1 * yh[0] - a2 * yh[1]
-                if structure == "df1ef":
+                if structure in ("df1ef", "df1ef-wide-fb"):
                     total += e
-                if structure == "df1-wide-fb":
+                if structure in ("df1-wide-fb", "df1ef-wide-fb"):
                     p = a_lo[0] * yh[0] + a_lo[1] * yh[1]
                     total -= math.floor(Fraction(p, 2 ** (coef_width - 1)))
                 acc, w = self._acc(total)
                 na += w
                 yn, v, bad = self._out(acc, k)
-                if structure == "df1ef":
-                    e = acc - v * 2 ** k
+                if structure in ("df1ef", "df1ef-wide-fb"):
+                    e = acc - v * 2 ** k  # residual of the wrapped accumulator, before fitting
             no += bad
             ys.append(yn)
             xh = [xn, xh[0]]

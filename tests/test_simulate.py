@@ -259,3 +259,60 @@ def test_wide_feedback_section_equals_exact_model_on_every_mode(rounding, overfl
     prog = ChannelProgram("t", 48000, ar, secs)
     _compare(prog, x.tolist())
     _compare(prog, x.tolist(), exact=True)
+
+
+EF_WIDE_SECS = (
+    # a1 = -2, a2 = 1 in the high words alone (a double pole on z = 1); the low words pull it inside
+    SectionOp(b=(300, -600, 300), a=(-32768, 16384), a_lo=(9000, -8999), shift=1, structure="df1ef-wide-fb"),
+    SectionOp(b=(16384, 0, -16384), a=(-32767, 16383), a_lo=(-16384, 16383), structure="df1ef-wide-fb"),
+)
+
+
+@pytest.mark.parametrize("acc_bits", [32, 24])
+@pytest.mark.parametrize("rounding", ROUNDING_MODES)
+@pytest.mark.parametrize("overflow", OVERFLOW_MODES)
+def test_error_feedback_wide_section_equals_exact_model_on_every_mode(rounding, overflow, acc_bits):
+    # df1ef-wide-fb against the independent model (recurrence of coefc.program's docstring), 16-bit words, both
+    # the compiled core and the exact Python path; a full-scale square wave drives it into saturation or wrap,
+    # and a 24-bit accumulator wraps (the residual E is then that of the wrapped accumulator)
+    ar = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 14), acc_bits=acc_bits, rounding=rounding,
+                    overflow=overflow, structure="df1ef-wide-fb")
+    x = np.tile(np.r_[np.full(40, 32767), np.full(40, -32768), np.arange(-200, 200, 5)], 4).astype(np.int64)
+    prog = ChannelProgram("t", 48000, ar, EF_WIDE_SECS)
+    assert sim._fast_ok(prog)
+    _compare(prog, x.tolist())
+    _compare(prog, x.tolist(), exact=True)
+    t = sim.simulate(prog, x, trace=True)
+    if acc_bits == 24:
+        assert sum(t.acc_overflow_counts) > 0
+    # the structure is neither of its parts: on a small input (no overflow) error feedback and the low words
+    # both change the output
+    # (a stable low-frequency pole pair, radius 0.9995, 20 Hz at 48 kHz)
+    r, th = 0.9995, 2 * np.pi * 20 / 48000
+    a = (-2 * r * np.cos(th), r * r)
+    hi = (round(a[0] * 2 ** 13), round(a[1] * 2 ** 13))  # coefficient shift 1: Q2.14 holds |a1| < 2 only so
+    lo = tuple(round((v * 2 ** 13 - h) * 2 ** 15) for v, h in zip(a, hi))
+    sec = SectionOp(b=(40, 0, -40), a=hi, a_lo=lo, shift=1, structure="df1ef-wide-fb")
+    small = np.random.default_rng(7).integers(-3000, 3001, 600)
+    p1 = ChannelProgram("t", 48000, ar, (sec,))
+    y = sim.simulate(p1, small, trace=True)
+    assert y.overflow_counts == [0] and y.acc_overflow_counts == [0]
+    _compare(p1, small.tolist())
+    for other in ("df1-wide-fb", "df1ef"):
+        s2 = SectionOp(b=sec.b, a=sec.a, shift=1, structure=other, a_lo=lo if other == "df1-wide-fb" else ())
+        y_other = sim.simulate(ChannelProgram("t", 48000, ar.with_(structure=other), (s2,)), small)
+        assert not np.array_equal(y_other, y.y)
+
+
+@pytest.mark.parametrize("rounding", ROUNDING_MODES)
+def test_error_feedback_wide_section_beyond_64_bits_takes_the_exact_path(rounding):
+    # Q1.31 data, Q2.30 coefficients and an 80-bit accumulator: the compiled core does not apply, the exact
+    # Python path runs the recurrence and must equal the independent model
+    ar = Arithmetic(data=QFormat(1, 31), coef=QFormat(2, 30), acc_bits=80, rounding=rounding,
+                    structure="df1ef-wide-fb")
+    sec = SectionOp(b=(1 << 20, -(1 << 21), 1 << 20), a=(-(1 << 31), (1 << 30) - 1), a_lo=((1 << 30) - 7, 12345),
+                    structure="df1ef-wide-fb")
+    prog = ChannelProgram("t", 48000, ar, (sec,))
+    assert not sim._fast_ok(prog)
+    x = np.r_[np.full(30, (1 << 31) - 1), np.full(30, -(1 << 31)), np.zeros(40)].astype(np.int64)
+    _compare(prog, x.tolist())

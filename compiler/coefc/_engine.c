@@ -10,7 +10,8 @@
  *       consecutive second-order sections, fused sample by sample
  *   fir(x, y, taps, k, acc_bits, rounding, overflow, data_width)
  *   gain(x, y, C, k, acc_bits, rounding, overflow, data_width)
- *   sos_wide(x, y, B0..A2H, A1L, A2L, L, k, ...): one df1-wide-fb section
+ *   sos_wide(x, y, B0..A2H, A1L, A2L, L, k, ..., ef): one df1-wide-fb section
+ *       (ef = 1: df1ef-wide-fb, the same with first-order error feedback)
  *   sos_f32 / fir_f32 / gain_f32: float32 in the stated operation order
  *   zero_input(y1, y2, e, big, A1, A2, k, ...): the zero-input recursion of one
  *       section on many states at once (the overflow-oscillation and sampled
@@ -449,20 +450,22 @@ CASC_S(0) CASC_S(1) CASC_S(2)
 /* [structure][acc_bits == 64][overflow: 0 saturate, 1 wrap][rounding] */
 static const cascade_fn cascade_table[3][2][2][4] = {ROW(0), ROW(1), ROW(2)};
 
-/* ------------------------------------------------------------ df1-wide-fb
- * sos_wide(x, y, B0, B1, B2, A1H, A2H, A1L, A2L, L, k, acc_bits, rounding, overflow, width)
+/* ------------------------------------------------------------ df1-wide-fb, df1ef-wide-fb
+ * sos_wide(x, y, B0, B1, B2, A1H, A2H, A1L, A2L, L, k, acc_bits, rounding, overflow, width[, ef])
  *     -> (ovf, acc_ovf)
  * DF1 with double-word feedback coefficients (coefc/program.py):
- *   P = A1L*y1 + A2L*y2;  acc = wrapA(B0 x + B1 x1 + B2 x2 - A1H y1 - A2H y2 - floor(P / 2^L))
+ *   P = A1L*y1 + A2L*y2;  acc = wrapA(B0 x + B1 x1 + B2 x2 - A1H y1 - A2H y2 - floor(P / 2^L) [+ E])
+ * ef = 1 (df1ef-wide-fb): E, the residual acc - v 2^k of the previous sample's
+ * accumulator (which holds the floored low products), is added; |E| < 2^k.
  * The caller guarantees that P is exact in int64 (coefficient and data words
  * together at most 63 bits wide); the sum of the accumulator is exact (wsum_t). */
 static PyObject *py_sos_wide(PyObject *self, PyObject *args)
 {
     PyObject *xo, *yo;
     long long b0, b1, b2, a1, a2, l1, l2;
-    int L, k, acc_bits, rounding, overflow, width;
-    if (!PyArg_ParseTuple(args, "OOLLLLLLLiiiiii", &xo, &yo, &b0, &b1, &b2, &a1, &a2, &l1, &l2, &L, &k, &acc_bits,
-                          &rounding, &overflow, &width))
+    int L, k, acc_bits, rounding, overflow, width, ef = 0;
+    if (!PyArg_ParseTuple(args, "OOLLLLLLLiiiiii|p", &xo, &yo, &b0, &b1, &b2, &a1, &a2, &l1, &l2, &L, &k, &acc_bits,
+                          &rounding, &overflow, &width, &ef))
         return NULL;
     arith_t ar;
     if (arith_init(&ar, k, acc_bits, rounding, overflow, width) < 0) return NULL;
@@ -473,7 +476,7 @@ static PyObject *py_sos_wide(PyObject *self, PyObject *args)
     const int64_t *x = (const int64_t *)xb.buf;
     int64_t *y = (int64_t *)yb.buf;
     long long ovf = 0, aovf = 0;
-    int64_t x1 = 0, x2 = 0, y1 = 0, y2 = 0;
+    int64_t x1 = 0, x2 = 0, y1 = 0, y2 = 0, e = 0;
     Py_BEGIN_ALLOW_THREADS
     for (Py_ssize_t i = 0; i < n; i++) {
         const int64_t in = x[i];
@@ -483,8 +486,11 @@ static PyObject *py_sos_wide(PyObject *self, PyObject *args)
         WS_INIT(w);
         WS_ADD(w, b0 * in); WS_ADD(w, b1 * x1); WS_ADD(w, b2 * x2);
         WS_ADD(w, -(a1 * y1)); WS_ADD(w, -(a2 * y2)); WS_ADD(w, -q);
+        if (ef) WS_ADD(w, e);
         const int64_t acc = WS_FINISH(w, &ar, &aovf);
-        const int64_t out = fit(rshift(acc, &ar), &ar, &ovf);
+        const int64_t v = rshift(acc, &ar);
+        if (ef) e = (int64_t)((uint64_t)acc - ((uint64_t)v << k)); /* the residual, |E| < 2^k */
+        const int64_t out = fit(v, &ar, &ovf);
         y[i] = out;
         x2 = x1; x1 = in; y2 = y1; y1 = out;
     }
@@ -1035,8 +1041,9 @@ static PyMethodDef engine_methods[] = {
      "coefs: int64 buffer of B0, B1, B2, A1, A2, k per section; ys: one writable int64 buffer per section."},
     {"fir", py_fir, METH_VARARGS, "fir(x, y, taps, k, acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)"},
     {"sos_wide", py_sos_wide, METH_VARARGS,
-     "sos_wide(x, y, B0, B1, B2, A1H, A2H, A1L, A2L, L, k, acc_bits, rounding, overflow, data_width)\n"
-     "-> (ovf, acc_ovf): one df1-wide-fb section (double-word feedback coefficients)."},
+     "sos_wide(x, y, B0, B1, B2, A1H, A2H, A1L, A2L, L, k, acc_bits, rounding, overflow, data_width[, ef])\n"
+     "-> (ovf, acc_ovf): one df1-wide-fb section (double-word feedback coefficients);\n"
+     "ef = True (optional last argument): df1ef-wide-fb (with first-order error feedback)."},
     {"gain", py_gain, METH_VARARGS, "gain(x, y, C, k, acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)"},
     {"sos_f32", py_sos_f32, METH_VARARGS, "sos_f32(x, y, b0, b1, b2, a1, a2, structure) -> None (float32)"},
     {"fir_f32", py_fir_f32, METH_VARARGS, "fir_f32(x, y, taps) -> None (float32)"},

@@ -20,7 +20,12 @@ Double-precision feedback coefficients ("coefficient splitting", a feedback
 coefficient held in two words) are the classic answer to the coarse pole grid of
 a direct form near z = 1: Dattorro, "The implementation of recursive digital
 filters for high-fidelity audio", J. Audio Eng. Soc. 36(11), 1988 (double-precision
-coefficients and "fraction saving" for low-frequency sections; from memory); see
+coefficients and "fraction saving" for low-frequency sections; from memory); its
+"fraction saving" is first-order error feedback (the rounding residual added back
+before the next rounding), used there together with the double-precision
+coefficients (``df1ef-wide-fb``); on error feedback see also Higgins, *Digital
+Signal Processing in VLSI*, Prentice Hall, 1990 (error feedback in fixed-point
+recursive sections; from memory); see
 also Jackson, *Digital Filters and Signal Processing*, 3rd ed., 1996, ch. 11
 (coefficient quantisation and pole-grid density of the direct form; from memory).
 
@@ -60,6 +65,22 @@ Exact definitions shared by the engine, the C kernels and the noise analysis
            source at the rounding node (mean about 2^-k/2, variance about 2^-2k/12
            output LSB).  The feedback coefficients then have Fc + L fraction bits, so
            the grid of realisable poles near z = 1 is 2^L times finer per axis.
+
+    df1ef-wide-fb  (df1ef and df1-wide-fb together: error feedback and double-word
+           feedback coefficients; L, AH, AL as for df1-wide-fb; E the previous residual)
+           P    = A1L*y[n-1] + A2L*y[n-2]                    (exact)
+           acc  = wrapA(B0*x[n] + B1*x[n-1] + B2*x[n-2] - A1H*y[n-1] - A2H*y[n-2]
+                        - floor(P / 2^L) + E)
+           v    = round_shift(acc, k)
+           E    = acc - v * 2^k                (the rounding residual, |E| < 2^k)
+           y[n] = fit_data(v)
+           The low products are floored first and the floored integer is part of
+           acc, so E is the residual of the accumulator that already holds
+           -floor(P / 2^L): the rounding to the data word is fed back (its error is
+           shaped by (1 - z^-1) before 1/A(z)), the fraction f in [0, 1) of an
+           accumulator LSB that the floor drops is not (it is never in acc, so E
+           cannot carry it): a second, unshaped source at the rounding node, mean
+           about 2^-k/2 and variance about 2^-2k/12 output LSB, through 1/A(z).
 
     fir    acc  = wrapA(sum_k C_k * x[n-k]);   y[n] = fit_data(round_shift(acc, k))
            (folding symmetric taps gives the identical integer result)
@@ -153,6 +174,9 @@ STRUCTURE_TABLE: dict[str, Structure] = {s.name: s for s in (
               error_feedback=True, float32=False),
     Structure("df1-wide-fb", "direct form I with double-word feedback coefficients", 4, data_states=4,
               acc_states=0, float32=False, wide_feedback=True, multiplies=7),
+    Structure("df1ef-wide-fb", "direct form I with first-order error feedback and double-word feedback "
+              "coefficients", 5, data_states=4, acc_states=1, error_feedback=True, float32=False,
+              wide_feedback=True, multiplies=7),
 )}
 STRUCTURES = tuple(STRUCTURE_TABLE)
 SCALINGS = ("none", "l1", "l2", "linf")
@@ -202,8 +226,8 @@ class SectionOp:
     """One second-order section: ``b = (B0, B1, B2)``, ``a = (A1, A2)``, coefficient shift.
 
     ``structure`` is a name of :data:`STRUCTURE_TABLE` (``df1``, ``tdf2``, ``df1ef``,
-    ``df1-wide-fb``).  Integers for fixed-point arithmetic, float32 values otherwise.
-    For ``df1-wide-fb`` ``a`` holds the high words and ``a_lo`` the low words, of
+    ``df1-wide-fb``, ``df1ef-wide-fb``).  Integers for fixed-point arithmetic, float32
+    values otherwise.  For ``df1-wide-fb`` and ``df1ef-wide-fb`` ``a`` holds the high words and ``a_lo`` the low words, of
     weight ``2^-L`` with ``L = Wc - 1`` (:func:`lo_bits`); an empty ``a_lo`` means
     low words of zero.  Other structures leave ``a_lo`` empty.
     """

@@ -1,8 +1,8 @@
 """Bit-true engine: a :class:`~coefc.program.ChannelProgram` and input samples in,
 the output samples (and optionally every op's output and overflow counts) out.
 
-The arithmetic is exactly the one stated in :mod:`coefc.program` (df1, tdf2, df1ef
-sections, FIR, gain, delay; accumulators wrap modulo ``2^acc_bits``; rounding and
+The arithmetic is exactly the one stated in :mod:`coefc.program` (df1, tdf2, df1ef,
+df1-wide-fb and df1ef-wide-fb sections, FIR, gain, delay; accumulators wrap modulo ``2^acc_bits``; rounding and
 overflow by the program's arithmetic).  Input for fixed-point programs is an
 integer array of data words (any integer dtype; values must lie in the data
 word), output an int64 array; for float32 programs input and output are float32.
@@ -173,7 +173,8 @@ def _run_fast(program: ChannelProgram, op, x: np.ndarray):
     common = (ar.acc_bits, _ROUND_CODE[ar.rounding], _OVF_CODE[ar.overflow], ar.data.width)
     if _wide(op):
         o, a = _engine.sos_wide(x, y, *[int(v) for v in op.b], *[int(v) for v in op.a], *_lo(op),
-                                lo_bits(ar.coef), _k(program, op), *common)
+                                lo_bits(ar.coef), _k(program, op), *common,
+                                STRUCTURE_TABLE[op.structure].error_feedback)
     elif isinstance(op, SectionOp):
         o, a = _engine.sos(x, y, *[int(v) for v in op.b], *[int(v) for v in op.a], _k(program, op),
                            _STRUCT_CODE[op.structure], *common)
@@ -326,6 +327,7 @@ def _run_exact(program: ChannelProgram, op, x: np.ndarray):
         a1, a2 = (int(v) for v in op.a)
         l1, l2 = _lo(op)
         wide, L = _wide(op), lo_bits(ar.coef)
+        ef = STRUCTURE_TABLE[op.structure].error_feedback  # df1ef, df1ef-wide-fb
         x1 = x2 = y1 = y2 = 0
         s1 = s2 = e = 0
         for n, xn in enumerate(xs):
@@ -341,14 +343,14 @@ def _run_exact(program: ChannelProgram, op, x: np.ndarray):
                     n_acc += 1
             else:
                 exact = b0 * xn + b1 * x1 + b2 * x2 - a1 * y1 - a2 * y2
-                if op.structure == "df1ef":
+                if ef:
                     exact += e
                 if wide:
                     exact -= (l1 * y1 + l2 * y2) >> L  # floor(P / 2^L)
                 acc = acc_of(exact)
                 yn, v = out(acc)
-                if op.structure == "df1ef":
-                    e = acc - (v << k)
+                if ef:
+                    e = acc - (v << k)  # the residual of the acc that holds the floored low products
             ys[n] = yn
             x2, x1, y2, y1 = x1, xn, y1, yn
     else:
