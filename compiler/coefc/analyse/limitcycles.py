@@ -515,7 +515,7 @@ def _runs_exit(ea, eb, lo, hi, d):
 
 
 def ef_interval_search(a1: int, a2: int, k: int, arith: Arithmetic, B: int, D: int, S: int, order: int,
-                       max_work: int = 3_000_000):
+                       max_work: int = 3_000_000, low: tuple[int, int, int] | None = None):
     """Exhaustive zero-input search of a df1ef section over (y1, y2) and every residual E.
 
     For fixed outputs ``(y1, y2)`` the next output is constant on at most a few
@@ -529,13 +529,19 @@ def ef_interval_search(a1: int, a2: int, k: int, arith: Arithmetic, B: int, D: i
     drift always ends.  Returns ``(status, pairs, found)`` with status ``none`` or
     ``found``, or ``None`` when it did not settle within *max_work* interval steps
     (or the numbers would not fit 64 bits).
+
+    *low* ``= (A1L, A2L, L)``: the section is ``df1ef-wide-fb``; the accumulator of a
+    state is ``-A1 y1 - A2 y2 - floor((A1L y1 + A2L y2) / 2^L) + E``, still an integer
+    constant per output pair plus ``E``, so the same interval argument holds with
+    that constant.
     """
     K = 1 << k
     lo_e, hi_e = _residual_range(k, arith.rounding)
     mode = arith.rounding
     W = 2 * B + 1
     big = 1 << (k + 2)  # separates the residual ranges of different output pairs
-    if ((abs(a1) + abs(a2)) * B + 2 * K >= 1 << min(arith.acc_bits - 1, 62)
+    l1, l2, L = low if low is not None else (0, 0, 1)
+    if ((abs(a1) + abs(a2)) * B + (((abs(l1) + abs(l2)) * B) >> L) + 1 + 2 * K >= 1 << min(arith.acc_bits - 1, 62)
             or W * W * big >= 1 << 62 or k < 1):
         return None
     y1 = np.arange(-B, B + 1, dtype=np.int64)
@@ -552,6 +558,8 @@ def ef_interval_search(a1: int, a2: int, k: int, arith: Arithmetic, B: int, D: i
     work = 0
     while work <= max_work:
         P = -np.int64(a1) * y1 - np.int64(a2) * y2
+        if low is not None:
+            P = P - ((np.int64(l1) * y1 + np.int64(l2) * y2) >> L)  # floor(P_lo / 2^L)
         lo, hi = P + ea, P + eb
         v0 = round_shift(lo, k, mode)
         m = round_shift(hi, k, mode) - v0 + 1  # windows of consecutive outputs tile the range
@@ -600,7 +608,11 @@ def ef_interval_search(a1: int, a2: int, k: int, arith: Arithmetic, B: int, D: i
             if not np.any(live):
                 return "none", pairs, None
             i = int(np.argmax(np.where(live, np.maximum(np.abs(y1), np.abs(y2)), -1)))
-            per, am, cyc = _walk_ef(int(y1[i]), int(y2[i]), int(ea[i]), a1, a2, k, arith, 1 << 20)
+            if low is None:
+                per, am, cyc = _walk_ef(int(y1[i]), int(y2[i]), int(ea[i]), a1, a2, k, arith, 1 << 20)
+            else:
+                per, am, cyc = _walk_ef_wide(int(y1[i]), int(y2[i]), int(ea[i]), (a1, a2, l1, l2, L), k, arith,
+                                             1 << 20)
             if not per:  # pragma: no cover - every state of the settled set lies on a cycle
                 return None
             start_state = max(cyc, key=lambda p: abs(p[0]))
@@ -710,11 +722,240 @@ def _analyse_wide(op: SectionOp, index: int, arith: Arithmetic, *, sample_starts
     return SectionLimitCycles(index, **res, **ov)
 
 
+def _wide_words(op: SectionOp, arith: Arithmetic) -> tuple[int, int, int, int, int]:
+    """``(A1H, A2H, A1L, A2L, L)`` of a double-word-feedback section."""
+    l1, l2 = (int(v) for v in op.a_lo) if op.a_lo else (0, 0)
+    return int(op.a[0]), int(op.a[1]), l1, l2, lo_bits(arith.coef)
+
+
+def step_ef_wide_int(y1: int, y2: int, e: int, words, k: int, arith: Arithmetic) -> tuple[int, int]:
+    """Zero-input ``df1ef-wide-fb`` step in exact integers: ``(y[n], new residual E)``.
+
+    *words* is ``(A1H, A2H, A1L, A2L, L)`` (:func:`_wide_words`); the recurrence is
+    coefc.program's: the floored low products are in the accumulator whose
+    residual is kept.
+    """
+    a1, a2, l1, l2, L = words
+    acc = fit_word(-a1 * y1 - a2 * y2 - ((l1 * y1 + l2 * y2) >> L) + e, arith.acc_bits, "wrap")
+    v = round_shift(acc, k, arith.rounding)
+    return fit_word(v, arith.data.width, arith.overflow), acc - (v << k)
+
+
+def zero_input_step_ef_wide(y1, y2, e, words, k: int, arith: Arithmetic):
+    """:func:`step_ef_wide_int` on int64 arrays (accumulators up to 64 bits, products exact in int64)."""
+    a1, a2, l1, l2, L = words
+    acc = -(np.int64(a1) * y1) - (np.int64(a2) * y2) - ((np.int64(l1) * y1 + np.int64(l2) * y2) >> L) + e
+    if arith.acc_bits < 64:
+        acc = fit_word(acc, arith.acc_bits, "wrap")
+    v = round_shift(acc, k, arith.rounding)
+    return fit_word(v, arith.data.width, arith.overflow), acc - np.left_shift(v, k)
+
+
+def _walk_ef_wide(y1, y2, e, words, k, arith, limit):
+    """Follow a df1ef-wide-fb state ``(y1, y2, E)`` until it repeats: (period, amplitude, cycle states)."""
+    seen, path = {}, []
+    s = (y1, y2, e)
+    for i in range(limit):
+        if s in seen:
+            cyc = path[seen[s]:]
+            return len(cyc), max(abs(p[0]) for p in cyc), cyc
+        seen[s] = i
+        path.append(s)
+        y0, en = step_ef_wide_int(s[0], s[1], s[2], words, k, arith)
+        s = (y0, s[0], en)
+    return None, None, []
+
+
+def ef_wide_bounds(a_phys, k: int, rounding: str) -> tuple[float, float, float] | None:
+    """Rigorous granular bounds (LSB) of a ``df1ef-wide-fb`` section, as :func:`granular_bounds`.
+
+    With zero input and no overflow, ``acc[n] = -K (a1' y[n-1] + a2' y[n-2]) + phi[n] +
+    E[n-1]`` (``K = 2^k``, ``a'`` the physical coefficients with the low words, ``phi``
+    in ``[0, 1)`` the fraction the floor of the low products adds) and ``y[n] =
+    (acc[n] - E[n]) / K``, so ``A(z) y = (1 - z^-1)(-E/K) + phi/K``: the residual
+    ``-E/K`` lies in the rounding's error interval and reaches ``y`` through
+    ``(1 - z^-1)/A(z)``, ``phi/K`` lies in ``[0, 2^-k)`` and reaches it through
+    ``1/A(z)``.  A periodic ``y`` is the convolution of these bounded sequences with
+    the two impulse responses, so each bound is the sum of the two l1 bounds
+    (Jackson 1969's argument applied to both sources).  ``None`` when not stable.
+    """
+    n = _length(a_phys)
+    if n == 0:
+        return None
+    hs = _impulse(np.array([1.0, -1.0]), a_phys, n)
+    hf = _impulse(np.array([1.0]), a_phys, n)
+    c, r = error_interval(rounding)
+    cf = rf = 2.0 ** -k / 2
+    out = []
+    for comb in ((1.0,), (1.0, -1.0), (1.0, 1.0)):
+        gs, gf = np.convolve(hs, comb), np.convolve(hf, comb)
+        out.append(abs(c) * abs(float(np.sum(gs))) + r * float(np.sum(np.abs(gs)))
+                   + cf * abs(float(np.sum(gf))) + rf * float(np.sum(np.abs(gf))) + 2e-9 * (1 + n))
+    return tuple(out)
+
+
+def _analyse_ef_wide(op: SectionOp, index: int, arith: Arithmetic, *, sample_starts: int = 256,
+                     sample_steps: int = 4096, seed: int = 1969, ef_work: int = 3_000_000,
+                     overflow_starts: int = 256) -> SectionLimitCycles:
+    """Limit-cycle verdicts of a ``df1ef-wide-fb`` section.
+
+    Granular: the bounds of :func:`ef_wide_bounds` (rigorous); inside them the
+    exhaustive search over every output pair and every rounding residual of
+    :func:`ef_interval_search` (with the floored low products in each pair's
+    constant) gives ``none`` or ``found``; when the bound reaches full scale or the
+    search does not settle, ``unproven`` with the reason (a sampled search may still
+    find a cycle).  Overflow: the zero-input accumulator ``ceil(-T / 2^L) + E``, ``T``
+    linear in ``(y1, y2)``, is extreme at a corner of the data-word box and an end
+    of the residual range (exact); when every rounded extreme fits, no step
+    overflows (``none``); otherwise full-scale corners and random large states are
+    run (``found`` when one oscillates), else ``unproven``: the state space (two
+    data words and a residual) is too large to search.
+    """
+    words = _wide_words(op, arith)
+    a1, a2, l1, l2, L = words
+    order = 2 if (a2 != 0 or l2 != 0) else 1
+    k = arith.coef.frac_bits - op.shift
+    a_phys = _section_phys(op, arith)
+    fs_lsb = float(arith.data.max_int)
+    bounds = ef_wide_bounds(a_phys, k, arith.rounding) if k >= 1 else None
+    notes = []
+    if k < 1:
+        res = dict(status="unproven", bound_lsb=None, exhaustive=False, states_searched=0,
+                   note="the loop does not round (shift >= coefficient fraction bits)")
+    elif bounds is None:
+        res = dict(status="unproven", bound_lsb=None, exhaustive=False, states_searched=0,
+                   note="no amplitude bound: the realised section is not stable, or its poles lie too close to "
+                        "the unit circle to sum the bound rigorously")
+    else:
+        Bf, Df, Sf = bounds
+        B, D, S = int(math.floor(Bf)), int(math.floor(Df)), int(math.floor(Sf))
+        if order == 1:
+            D = S = 2 * B
+        else:
+            B = min(B, (D + S) // 2)
+        found = None
+        if B < fs_lsb:
+            found = _granular_cached(("efwide", words, k, B, D, S, order, ef_work), arith,
+                                     lambda: ef_interval_search(a1, a2 if order == 2 else 0, k, arith, B, D, S,
+                                                                order, max_work=ef_work, low=(l1, l2, L)))
+            if found is None:
+                notes.append("df1ef-wide-fb keeps the rounding residual as state; the search over residual "
+                             f"intervals did not settle within its work limit ({ef_work} interval steps) or its "
+                             "numbers would not fit 64 bits; sampled search only")
+        else:
+            notes.append(f"the granular bound ({Bf:.4g} LSB) reaches full scale: the floor of the low products "
+                         "is not fed back and 1/A(z) amplifies it; sampled search only")
+        if found is not None:
+            status, keys, cyc = found
+            res = dict(status=status, bound_lsb=Bf, exhaustive=True, states_searched=keys)
+            if cyc:
+                res.update(cyc)
+            notes.append(f"searched {keys} output-state pairs, each with every rounding residual (as intervals)")
+        else:
+            res = dict(status="unproven", bound_lsb=Bf, exhaustive=False, states_searched=0)
+            hit = _sampled_ef_wide(words, k, arith, int(min(B, fs_lsb)), order, sample_starts, sample_steps, seed)
+            if hit:
+                res.update(hit, status="found", states_searched=sample_starts)
+    res["note"] = "; ".join(notes) if notes else res.get("note", "")
+    return SectionLimitCycles(index, **res, **_overflow_ef_wide(words, k, a_phys, arith, order, bounds,
+                                                                 overflow_starts, seed))
+
+
+def _run_ef_wide(y1, y2, e, words, k, arith, order, steps, tail=0):
+    """int64 zero-input runs of df1ef-wide-fb states: ``(y1, y2, e, peak |y1| over the last *tail* steps)``."""
+    big = np.zeros(len(y1))
+    for i in range(steps + tail):
+        y0, e = zero_input_step_ef_wide(y1, y2, e, words, k, arith)
+        y1, y2 = y0, (y1 if order == 2 else np.zeros_like(y1))
+        if i >= steps:
+            big = np.maximum(big, np.abs(y1).astype(float))
+    return y1, y2, e, big
+
+
+def _sampled_ef_wide(words, k, arith, B, order, starts, steps, seed):
+    """Random states inside the bound (random residuals): the largest cycle they settle in, if any."""
+    if arith.acc_bits > 64 or B < 1:
+        return None
+    rng = np.random.default_rng(seed)
+    y1 = rng.integers(-B, B + 1, starts).astype(np.int64)
+    y2 = rng.integers(-B, B + 1, starts).astype(np.int64) if order == 2 else np.zeros(starts, np.int64)
+    lo_e, hi_e = _residual_range(k, arith.rounding)
+    e = rng.integers(lo_e, hi_e + 1, starts).astype(np.int64)
+    y1, y2, e, _ = _run_ef_wide(y1, y2, e, words, k, arith, order, steps)
+    alive = (y1 != 0) | (y2 != 0)
+    finals = sorted(set(zip(y1[alive].tolist(), y2[alive].tolist(), e[alive].tolist())),
+                    key=lambda p: -max(abs(p[0]), abs(p[1])))
+    best = None
+    for s in finals[:8]:
+        per, am, cyc = _walk_ef_wide(s[0], s[1], s[2], words, k, arith, 4 * steps)
+        if per and am and (best is None or am > best[1]):
+            best = (per, am, max(cyc, key=lambda p: abs(p[0])))
+    if best is None:
+        return None
+    return dict(amplitude_lsb=int(best[1]), period=int(best[0]), start_state=tuple(int(v) for v in best[2]))
+
+
+def _overflow_ef_wide(words, k, a_phys, arith, order, bounds, starts, seed) -> dict:
+    """Overflow-oscillation verdict of a df1ef-wide-fb section (keyword fields of SectionLimitCycles)."""
+    a1, a2, l1, l2, L = words
+    lo, hi = arith.data.min_int, arith.data.max_int
+    corners = [(u, v) for u in (lo, hi) for v in ((lo, hi) if order == 2 else (0,))]
+    sums = [-a1 * u - a2 * v - ((l1 * u + l2 * v) >> L) for u, v in corners]
+    elo, ehi = _residual_range(k, arith.rounding) if k >= 1 else (0, 0)
+    amin, amax = min(sums) + elo, max(sums) + ehi
+    top = 1 << (arith.acc_bits - 1)
+    if amax >= top or amin < -top:
+        detail = f"the accumulator can wrap ({amin}..{amax} outside {arith.acc_bits} bits)"
+    else:
+        rmin, rmax = round_shift(amin, k, arith.rounding), round_shift(amax, k, arith.rounding)
+        detail = (f"over every state of the data word and every residual the rounded accumulator spans "
+                  f"{rmin}..{rmax} LSB against the word's {lo}..{hi}")
+        if lo <= rmin and rmax <= hi:
+            return dict(overflow_status="none",
+                        overflow_note=f"no zero-input step can overflow: {detail} (exact, rounding, residual and "
+                                      "the low products included), so every cycle lies inside the granular bound")
+    why = (f"overflow is possible ({detail}), and the state space (two {arith.data.width}-bit words and a "
+           "rounding residual) is too large to search exhaustively")
+    if arith.acc_bits > 64:
+        return dict(overflow_status="unproven", overflow_note=why + "; no large-state run for accumulators "
+                                                                    "wider than 64 bits")
+    rng = np.random.default_rng(seed + 1)
+    cs = np.array([(hi, hi), (hi, lo), (lo, hi), (lo, lo), (hi, 0), (lo, 0), (0, hi), (0, lo)], dtype=np.int64)
+    st = np.vstack([cs, rng.integers(lo, hi + 1, size=(starts, 2), dtype=np.int64)])
+    y1 = st[:, 0].copy()
+    y2 = st[:, 1].copy() if order == 2 else np.zeros(len(st), np.int64)
+    e = np.zeros(len(st), dtype=np.int64)
+    r = float(np.max(np.abs(np.roots(a_phys[: order + 1])))) if order else 0.0
+    steps = int(min(8192, max(256, 40.0 / max(1e-6, 1.0 - r)))) if r < 1 else 1024
+    gran = (bounds[0] if bounds else 0.0) + 1.0
+    y1, y2, e, big = _run_ef_wide(y1, y2, e, words, k, arith, order, steps, 64)
+    bad = np.nonzero(big > gran)[0]
+    mode = "wrap-around" if arith.overflow == "wrap" else "saturation"
+    if len(bad) == 0:
+        return dict(overflow_status="unproven",
+                    overflow_note=f"{why}; no oscillation from {len(st)} large and full-scale states in "
+                                  f"{steps} steps ({mode}), which is not a proof")
+    j = int(bad[np.argmax(big[bad])])
+    s0 = (int(st[j, 0]), int(st[j, 1]) if order == 2 else 0)
+    per, am, cyc = _walk_ef_wide(int(y1[j]), int(y2[j]), int(e[j]), words, k, arith, 1 << 15)
+    if not per or am <= gran:
+        return dict(overflow_status="unproven",
+                    overflow_note=f"{why}; from state {s0} the zero-input output is still "
+                                  f"{big[j] / (hi + 1):.3g} of full scale after {steps} steps ({mode}) but no "
+                                  "period was found: a very slow decay or a long oscillation")
+    return dict(overflow_status="found",
+                overflow_note=f"zero-input overflow oscillation with {mode} from state {s0}",
+                overflow_amplitude=float(big[j]) / (hi + 1), overflow_period=per, overflow_start=s0)
+
+
 def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states: int = MAX_STATES,
                     sample_starts: int = 512, sample_steps: int = 2048, overflow_starts: int = 256,
                     seed: int = 1969, ef_work: int = 3_000_000) -> SectionLimitCycles:
     """Granular limit cycles and overflow oscillations of one section with zero input."""
-    if STRUCTURE_TABLE[op.structure or arith.structure].wide_feedback:
+    st = STRUCTURE_TABLE[op.structure or arith.structure]
+    if st.wide_feedback and st.error_feedback:
+        return _analyse_ef_wide(op, index, arith, seed=seed, ef_work=ef_work, overflow_starts=overflow_starts)
+    if st.wide_feedback:
         return _analyse_wide(op, index, arith, seed=seed)
     a1, a2 = int(op.a[0]), int(op.a[1])
     order = 2 if a2 != 0 else 1
@@ -1217,7 +1458,13 @@ def cycle_outputs(op: SectionOp, res: SectionLimitCycles, arith: Arithmetic) -> 
     k = arith.coef.frac_bits - op.shift
     st = res.start_state
     ys = []
-    if len(st) == 3:
+    if len(st) == 3 and STRUCTURE_TABLE[op.structure or arith.structure].wide_feedback:
+        y1, y2, e = st
+        for _ in range(res.period):
+            y0, e = step_ef_wide_int(y1, y2, e, _wide_words(op, arith), k, arith)
+            ys.append(y0)
+            y1, y2 = y0, y1
+    elif len(st) == 3:
         y1, y2, e = st
         for _ in range(res.period):
             y0, e = step_ef_int(y1, y2, e, a1, a2, k, arith)

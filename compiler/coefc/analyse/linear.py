@@ -20,6 +20,13 @@ Structures (the recurrences are those of :mod:`coefc.program`):
            variance ``(1 - 2^-2L)/12 * 2^-2k`` (uniform on its grid, taken
            independent of the rounding error; the model of Jackson 1970 applied to
            the extra quantiser).  ``extra_mean``/``extra_var`` carry it.
+``df1ef-wide-fb``  both: the rounding error is fed back, ``E -> Y`` is
+           ``(1 - z^-1)/A(z)`` as for ``df1ef``; the floor of the low products
+           happens before the accumulator whose residual is fed back, so its
+           fraction is never fed back: a second source with the statistics above
+           whose transfer is the unshaped ``1/A(z)`` (``extra_noise_b = [1]``).  Near
+           z = 1 that source, ``2^-k`` times smaller than the rounding, can dominate:
+           ``1/A(z)`` has the large DC gain that ``1 - z^-1`` removes from the rounding.
 
 References
 ----------
@@ -64,6 +71,7 @@ class OpModel:
     structure: str = ""
     extra_mean: float = 0.0  # a second error source at the rounding node, output LSB (df1-wide-fb)
     extra_var: float = 0.0
+    extra_noise_b: np.ndarray | None = None  # its transfer's numerator when not noise_b (df1ef-wide-fb: [1])
 
     @property
     def recursive(self) -> bool:
@@ -149,7 +157,9 @@ def _build_models(program: ChannelProgram) -> list[OpModel]:
                 L, kk = lo_bits(ar.coef), fc - op.shift
                 em = 0.5 * (1.0 - 2.0 ** -L) * 2.0 ** -kk
                 ev = (1.0 - 2.0 ** (-2 * L)) / 12.0 * 2.0 ** (-2 * kk)
-            out.append(OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift), structure, em, ev))
+            # df1ef-wide-fb: the floor is outside the fed-back residual, its error is not shaped
+            xb = one if wide and STRUCTURE_TABLE[structure].error_feedback else None
+            out.append(OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift), structure, em, ev, xb))
         elif isinstance(op, FirOp):
             b = np.array([phys(c, op.shift) for c in op.taps])
             k = 0 if ar.is_float else effective_drop(op.taps, fc - op.shift)

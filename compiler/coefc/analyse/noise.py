@@ -72,7 +72,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..program import ChannelProgram
-from .linear import OpModel, chain_filter, node_impulses, noise_impulse, op_models, pole_radius, response_length
+from .linear import (OpModel, _run, chain_filter, node_impulses, noise_impulse, op_models, pole_radius,
+                     response_length, tail_impulse)
 
 #: power of a full-scale sine (full scale = 1.0): the 0 dBFS reference of AES17
 FULL_SCALE_SINE_POWER = 0.5
@@ -141,6 +142,7 @@ class NoiseSource:
     dc_gain: float
     output_variance_lsb2: float
     correlated_gain: float = 0.0  # magnitude truncation: c_j of the signal-following part
+    noise_b: tuple | None = None  # numerator of its transfer when not its op's noise_b (df1ef-wide-fb's floor)
 
 
 @dataclass(frozen=True, eq=False)
@@ -188,7 +190,7 @@ class NoiseAnalysis:
         corr = np.zeros(f.shape, dtype=complex)
         for src in self.sources:
             m = models[src.op_index]
-            G = _freq(m.noise_b, m.noise_a, w)
+            G = _freq(m.noise_b if src.noise_b is None else np.asarray(src.noise_b), m.noise_a, w)
             for r in resp[src.op_index + 1:]:
                 G = G * r
             psd += src.variance_lsb2 * self.lsb ** 2 * np.abs(G) ** 2
@@ -260,11 +262,21 @@ def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
         else:
             cg = 0.0
         # a second source at the same node (df1-wide-fb's floor of the low products), independent
-        mu, s2 = mu + m.extra_mean, s2 + m.extra_var
+        if m.extra_noise_b is None:
+            mu, s2 = mu + m.extra_mean, s2 + m.extra_var
         sources.append(NoiseSource(m.index, m.k, mu, s2, pg, dc, s2 * pg, cg))
         var += s2 * pg
         mean += mu * dc
         dc_var += s2 * dc * dc
+        if m.extra_noise_b is not None and (m.extra_var or m.extra_mean):
+            # its own transfer (df1ef-wide-fb: the floor is not fed back, 1/A(z) unshaped)
+            g2 = _run(m.extra_noise_b, m.noise_a, tail_impulse(models, m.index + 1, n))
+            pg2, dc2 = float(np.dot(g2, g2)), float(np.sum(g2))
+            sources.append(NoiseSource(m.index, m.k, m.extra_mean, m.extra_var, pg2, dc2, m.extra_var * pg2, 0.0,
+                                       tuple(float(v) for v in m.extra_noise_b)))
+            var += m.extra_var * pg2
+            mean += m.extra_mean * dc2
+            dc_var += m.extra_var * dc2 * dc2
     correlated = float(np.dot(corr, corr))
     var += correlated
     var *= lsb ** 2

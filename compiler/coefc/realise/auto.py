@@ -66,7 +66,7 @@ def _evaluate(design, program: ChannelProgram, budget) -> tuple[list[float], flo
             idx = [i for i, op in enumerate(program.ops) if isinstance(op, SectionOp)]
             for s in na.sources:
                 if s.op_index in idx:
-                    contrib[idx.index(s.op_index)] = s.output_variance_lsb2
+                    contrib[idx.index(s.op_index)] += s.output_variance_lsb2  # a section may have two
     return radii, dev, noise_db, contrib
 
 
