@@ -149,11 +149,13 @@ def test_reference_kernels_refuse_double_word_feedback_in_one_line():
     # df1-wide-fb runs only in generated code: the operation-table header refuses it, naming the section and the fix
     from coefc.emit.header import EmitError
 
+    # (df1ef-wide-fb, the same with error feedback, likewise)
     for target_name in ("mcu16", "mcu32", "dsp24"):
         target = find_target(target_name)
         path = next(p for p in example_files() if p.stem == "sound_level_meter")  # one with sections
-        real = load(path).design().realise(target, Overrides(structure="df1-wide-fb"))
-        with pytest.raises(EmitError) as e:
-            render(real, None, header_name="x.h", vectors=0)
-        msg = str(e.value)
-        assert "\n" not in msg and "df1-wide-fb" in msg and "--kernel" in msg and "section 1" in msg
+        for structure in ("df1-wide-fb", "df1ef-wide-fb"):
+            real = load(path).design().realise(target, Overrides(structure=structure))
+            with pytest.raises(EmitError) as e:
+                render(real, None, header_name="x.h", vectors=0)
+            msg = str(e.value)
+            assert "\n" not in msg and structure in msg and "--kernel" in msg and "section 1" in msg

@@ -192,6 +192,23 @@ def test_cost_figures_in_the_header():
     assert "#define DEMO_SYM17_MULS_PER_SAMPLE 9" in h  # folded: ceil(17 / 2)
 
 
+def test_cost_figures_of_error_feedback_with_double_word_feedback():
+    """df1ef-wide-fb: per section the 5 products of df1 and the 2 of the low feedback words, 7 adds (the 6 of
+    df1-wide-fb and E), 7 stored coefficient words, state: 4 data words and E in the accumulator container
+    (coefc.program's recurrence; counting as for df1, common practice, no source)."""
+    target = find_target("mcu16")
+    files = generated_files(hand_programs(target.arithmetic, ("df1ef-wide-fb",)), "mcu16", "demo")
+    h, c = files["demo.h"], files["demo.c"]
+    ident = c_identifier("sec_df1ef-wide-fb", "channel", "x").upper()
+    assert f"#define DEMO_{ident}_MULS_PER_SAMPLE 21\n" in h  # three sections
+    assert f"#define DEMO_{ident}_ADDS_PER_SAMPLE 21\n" in h
+    assert f"#define DEMO_{ident}_COEF_BYTES 42\n" in h  # 21 words of 2 bytes
+    assert f"#define DEMO_{ident}_STATE_BYTES 36\n" in h  # 3 x (4 data words of 2 bytes + E of 4 bytes)
+    # the low products are floored before E is added, and E is the residual of that accumulator
+    body = c[c.index("lq ="):]
+    assert body.index("acc -= (uint32_t)lq;") < body.index("acc += e;") < body.index("e = w - (v << ")
+
+
 def test_generated_names_that_collide_are_refused():
     """The one place that builds the C names refuses two channels that would
     define the same identifier (here: the same channel name twice)."""

@@ -190,7 +190,7 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
     Counts the products and the sums of products of the generated code
     (rounding and saturation steps not counted): a section 5 multiplies and
     4 adds (5 with error feedback; df1-wide-fb 7 multiplies, 6 adds and 7 stored
-    coefficients); an FIR of N taps N multiplies and N - 1 adds,
+    coefficients, df1ef-wide-fb 7 multiplies, 7 adds and 7 stored coefficients); an FIR of N taps N multiplies and N - 1 adds,
     folded ceil(N/2) multiplies and N - 1 adds; a gain one multiply; a delay none.
     Coefficient bytes count the stored coefficient words (a folded FIR stores
     ceil(N/2)); state bytes the fields of the generated state structure before
@@ -432,11 +432,13 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                 if max(abs(A1L), abs(A2L)) > 1 << (L - 1):
                     raise GeneratedCodeError(f"section {n_sec}: low feedback word beyond 2^{L - 1}; realise again")
                 head[0] += f", low words a1 {A1L}, a2 {A2L} (weight 2^-{L})"
+            ef = STRUCTURE_TABLE[op.structure].error_feedback
             if op.structure in ("df1", "df1ef") or wide:
                 head.append("acc = b0 x[n] + b1 x[n-1] + b2 x[n-2] - a1 y[n-1] - a2 y[n-2]"
-                            + (" + E" if op.structure == "df1ef" else "")
                             + (f" - floor((a1lo y[n-1] + a2lo y[n-2]) / 2^{L})" if wide else "")
-                            + f"; y[n] = fit(round(acc / 2^{k}))")
+                            + (" + E" if ef else "")
+                            + f"; y[n] = fit(round(acc / 2^{k}))"
+                            + ("; E = acc - round(acc / 2^k) 2^k" if ef else ""))
                 terms = [(1, B0, "x"), (1, B1, "x1"), (1, B2, "x2"), (-1, A1, "y1"), (-1, A2, "y2")]
                 fields = [(D, f"{f}_x", 2, "x[n-1], x[n-2]"), (D, f"{f}_y", 2, "y[n-1], y[n-2]")]
                 pre = [f"{D} x1 = s->{f}_x[0], x2 = s->{f}_x[1];", f"{D} y1 = s->{f}_y[0], y2 = s->{f}_y[1];"]
@@ -447,6 +449,14 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                     pre.append(f"{U} e = s->{f}_e;")
                     post.append(f"s->{f}_e = e;")
                     body += fx.sum_lines("acc", C, terms, )
+                    body.append("acc += e;")
+                    body += fx.finish("acc", k, C, "y", residual="e")
+                elif wide and ef:  # df1ef-wide-fb: E is the residual of the acc that holds the floored term
+                    fields.append((U, f"{f}_e", 0, "E, the previous rounding residual (modulo the container)"))
+                    pre.append(f"{U} e = s->{f}_e;")
+                    post.append(f"s->{f}_e = e;")
+                    body += fx.sum_lines("acc", C, terms)
+                    body += fx.low_products("acc", C, A1L, A2L, L)
                     body.append("acc += e;")
                     body += fx.finish("acc", k, C, "y", residual="e")
                 elif wide:
