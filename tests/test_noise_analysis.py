@@ -251,3 +251,44 @@ def test_offset_and_noise_in_the_metrics_json():
     assert m["output_noise_dbfs"] == pytest.approx(10 * math.log10((1 / 12) / (1 - a * a) * lsb ** 2 / 0.5),
                                                    abs=1e-6)
     assert abs(m["output_noise_dbfs_simulated"] - m["output_noise_dbfs"]) < 0.3
+
+
+def _wide_section(a1: float, a2: float, ar: Arithmetic, b0: float) -> ChannelProgram:
+    from coefc.realise.coefficients import split_feedback
+
+    fc = ar.coef.frac_bits
+    hi, lo, bad = split_feedback((1.0, a1, a2), ar.coef, 1)  # coefficient shift 1: |a1| up to 4
+    assert not bad
+    op = SectionOp(b=(round(b0 * 2 ** (fc - 1)), 0, 0), a=hi, a_lo=lo, shift=1, structure=ar.structure)
+    return ChannelProgram("t", 48000.0, ar, (op,))
+
+
+@pytest.mark.parametrize("rounding", ["add-half", "truncate", "half-even", "toward-zero"])
+def test_error_feedback_with_double_word_feedback_two_sources(rounding):
+    # df1ef-wide-fb on 16-bit words: the rounding error reaches the output through (1 - z^-1)/A(z), the floor of
+    # the low products (not fed back) through 1/A(z) (coefc.program's recurrence; the linear model of Jackson 1970
+    # applied to each quantiser).  The power gains are checked against scipy.signal.lfilter impulse responses (a
+    # reference library), and the analytic noise against the bit-true engine
+    from scipy import signal
+
+    ar = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 14), acc_bits=32, rounding=rounding, overflow="saturate",
+                    structure="df1ef-wide-fb")
+    r, th = 0.99, 2 * math.pi * 300 / 48000
+    p = _wide_section(-2 * r * math.cos(th), r * r, ar, b0=0.02)
+    an = analytic_noise(p)
+    assert len(an.sources) == 2
+    rnd, flo = an.sources
+    a = np.array([1.0, *p.ops[0].a_phys(ar.coef)])
+    imp = np.zeros(200000)
+    imp[0] = 1.0
+    g_shaped, g_plain = signal.lfilter([1.0, -1.0], a, imp), signal.lfilter([1.0], a, imp)
+    assert rnd.power_gain == pytest.approx(float(np.dot(g_shaped, g_shaped)), rel=1e-6)
+    assert flo.power_gain == pytest.approx(float(np.dot(g_plain, g_plain)), rel=1e-6)
+    # the floor drops a fraction in [0, 1) of an accumulator LSB: 2^-k output LSB, k = 14 - 1
+    assert flo.variance_lsb2 == pytest.approx((1 - 2.0 ** -30) / 12 * 2.0 ** -26, rel=1e-9)
+    assert flo.mean_lsb == pytest.approx(0.5 * (1 - 2.0 ** -15) * 2.0 ** -13, rel=1e-9)
+    me = measured_noise(p, samples=1 << 16)
+    assert abs(an.dbfs - me.dbfs) < 1.0
+    # error feedback takes the rounding's share far below plain double-word feedback's
+    plain = analytic_noise(_wide_section(-2 * r * math.cos(th), r * r, ar.with_(structure="df1-wide-fb"), 0.02))
+    assert an.dbfs < plain.dbfs - 20
