@@ -269,8 +269,15 @@ def with_defaults(budget: Budget) -> tuple[Budget, dict]:
     return (replace(budget, **defaults) if defaults else budget), defaults
 
 
+def _has_error_feedback(structure) -> bool:
+    """Whether *structure* already feeds its rounding residual back (df1ef, df1ef-wide-fb)."""
+    from .program import STRUCTURE_TABLE
+
+    return structure in STRUCTURE_TABLE and STRUCTURE_TABLE[structure].error_feedback
+
+
 _REMEDIES = {  # remedy -> (its words, the setting that means it is already in use)
-    "df1ef": ("use error feedback (df1ef)", lambda m: getattr(m, "structure", None) == "df1ef"),
+    "df1ef": ("use error feedback (df1ef)", lambda m: _has_error_feedback(getattr(m, "structure", None))),
     "l1": ("scaling = \"l1\"", lambda m: getattr(m, "scaling", None) == "l1"),
     "saturate": ("saturation", lambda m: getattr(m, "overflow_mode", None) == "saturate"),
     "gain": ("a gain stage before the filter", lambda m: False),
@@ -350,7 +357,7 @@ def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], di
             + ("" if ok else f", above the {format_limit(lim)} dBFS limit; "
                + ("try tdf2, or a fixed-point target with a wide data word and error feedback (df1ef)"
                   if metrics.is_float else "widen the data word"
-                  + ("" if metrics.structure == "df1ef" else " or use error feedback (df1ef)")))
+                  + ("" if _has_error_feedback(metrics.structure) else " or use error feedback (df1ef)")))
             + (f"; note: {metrics.measured.note}" if metrics.measured is not None and metrics.measured.note else ""))
 
     lim = getattr(budget, "output_offset_lsb", None)
