@@ -287,3 +287,23 @@ def test_unstable_float_design_is_a_clear_error_with_scaling():
     with pytest.raises(RealisationError, match="unstable"):
         realise_channel(_design(SosBlock(sos)), MCU32.with_(scaling="l2"))
     assert realise_channel(_design(SosBlock(sos)), MCU32.with_(scaling="none")).sections()
+
+
+def test_auto_reaches_error_feedback_with_double_word_feedback(tmp_path):
+    # IEC 61672-1 A weighting at 48 kHz on a 16-bit word (mcu16): the 20.6 Hz pole pair needs double-word feedback
+    # coefficients for its place and error feedback for its noise; with a -75 dBFS budget (df1-wide-fb alone
+    # gives about -47 dBFS, measured by coefc check) auto must climb to df1ef-wide-fb, the most expensive
+    # candidate of the table (7 multiplies, 5 state words), and the result must meet the budget
+    from coefc.analyse.noise import analytic_noise
+    from coefc.api import load
+
+    f = tmp_path / "aw.toml"
+    f.write_text('name = "aw16"\nsample_rate_hz = 48000\n[implementation]\ntarget = "mcu16"\nstructure = "auto"\n'
+                 'scaling = "l1"\n[budget]\npassband_deviation_db = 0.1\noutput_noise_dbfs = -75\n'
+                 'passband = [[20, 16000]]\n[[channel]]\nname = "a"\n'
+                 'stages = [{ kind = "weighting", weighting = "A" }]\n')
+    prog = load(f).design().realise().programs[0]
+    chosen = [op.structure for op in prog.ops if isinstance(op, SectionOp)]
+    assert "df1ef-wide-fb" in chosen
+    assert any("df1ef-wide-fb chosen by auto" in n for n in prog.notes)
+    assert analytic_noise(prog).dbfs <= -75
