@@ -124,7 +124,9 @@ def _physical(prog):
         if isinstance(op, SectionOp):
             sc = 2.0 ** (op.shift - fc)
             a = np.array([1.0, op.a[0] * sc, op.a[1] * sc])
-            nb = [1.0, -1.0] if op.structure == "df1ef" else [1.0]
+            if op.a_lo:  # double-word feedback: the low words weigh 2^-(Wc - 1) of a high word
+                a[1:] += np.array(op.a_lo, dtype=float) * sc * 2.0 ** -(ar.coef.width - 1)
+            nb = [1.0, -1.0] if op.structure in ("df1ef", "df1ef-wide-fb") else [1.0]  # error feedback
             out.append((np.array(op.b) * sc, a, nb))
         elif isinstance(op, FirOp):
             out.append((np.array(op.taps) * 2.0 ** (op.shift - fc), np.array([1.0]), [1.0]))
