@@ -174,7 +174,8 @@ def design_channel(channel: ChannelSpec, sample_rate_hz: float, source: str) -> 
         results.append((st.index, res))
         summaries.append(StageSummary(index=st.index, kind=st.kind, text=res.text, order=res.order,
                                       sections=res.sections, taps=res.taps,
-                                      latency_samples=res.latency_samples, requirement=res.requirement))
+                                      latency_samples=res.latency_samples, requirement=res.requirement,
+                                      details=res.details))
     warnings = _channel_warnings(blocks, results, float(sample_rate_hz))
     return ChannelDesign(name=channel.name, sample_rate_hz=float(sample_rate_hz), blocks=tuple(blocks),
                          stages=tuple(summaries), warnings=tuple(warnings),
