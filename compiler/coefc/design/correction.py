@@ -171,29 +171,30 @@ def load_problem(ctx: StageContext) -> Problem:
     sf, sdb = smooth_fractional_octave(m.freqs_hz, m.magnitude_db, width)
     grid = log_axis(lo, hi, FIT_POINTS_PER_OCTAVE)
     measured = np.interp(np.log(grid), np.log(sf), sdb)
-    which = ctx.one_of(("target_db", "target"), required=False)
-    if which == "target_db":
-        level = float(ctx.params["target_db"])
-        target = np.full(grid.shape, level)
-        target_text = f"flat at {level:g} dB"
-    elif which == "target":
+    shape = np.zeros(grid.shape)
+    if ctx.has("target"):
         t = _read(ctx, "target")
         if not t.covers(lo, hi):
             raise ctx.error(f"{t.path} spans {t.freqs_hz[0]:g}..{t.freqs_hz[-1]:g} Hz, which does not cover "
                             f"range_hz [{lo:g}, {hi:g}]; extend the target curve or narrow range_hz", "target")
-        target = t.magnitude_at(grid)
-        target_text = f"curve {t.path}"
+        shape = t.magnitude_at(grid)
+        shape = shape - np.median(shape)
+    if ctx.has("target_db"):
+        level = float(ctx.params["target_db"])
+        level_text = f"{level:g} dB"
     else:
         level = float(np.median(measured))
-        target = np.full(grid.shape, level)
-        target_text = f"flat at the measurement's median {level:.2f} dB"
+        level_text = f"the measurement's median {level:.2f} dB"
+    target = shape + level
+    target_text = (f"curve {t.path} with its median at {level_text}" if ctx.has("target")
+                   else f"flat at {level_text}")
     smoothing_text = f"{_octave_text(width)} smoothing" if width > 0 else "unsmoothed"
     return Problem(m, sf, sdb, (float(lo), float(hi)), grid, measured, target, target_text, smoothing_text)
 
 
 def _octave_text(width: float) -> str:
     inv = 1 / width
-    return f"1/{inv:.0f}-octave" if abs(inv - round(inv)) < 1e-3 else f"{width:g}-octave"
+    return f"1/{inv:.0f}-octave" if abs(inv - round(inv)) < 0.01 * inv else f"{width:g}-octave"
 
 
 def dense_grid(fs: float) -> np.ndarray:
@@ -268,7 +269,7 @@ class _Fit:
         lb, ub = self.bounds(kinds)
         span = ub - lb
         x0 = np.clip(np.asarray(x0, dtype=float), lb + 1e-6 * span, ub - 1e-6 * span)
-        res = least_squares(self.residuals, x0, bounds=(lb, ub), args=(kinds,), method="trf",
+        res = least_squares(self.residuals, x0, bounds=(lb, ub), args=(kinds,), method="trf", tr_solver="lsmr",
                             x_scale=np.maximum(span, 1e-3) / 4, max_nfev=200 * (1 + len(x0)))
         return res.x, float(np.sqrt(np.mean((self._curve(kinds, res.x, self.zgrid) - self.want) ** 2)))
 
