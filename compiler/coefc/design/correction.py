@@ -269,7 +269,8 @@ class _Fit:
         lb, ub = self.bounds(kinds)
         span = ub - lb
         x0 = np.clip(np.asarray(x0, dtype=float), lb + 1e-6 * span, ub - 1e-6 * span)
-        res = least_squares(self.residuals, x0, bounds=(lb, ub), args=(kinds,), method="trf", tr_solver="lsmr",
+        res = least_squares(self.residuals, x0, bounds=(lb, ub), args=(kinds,), method="trf",
+                            tr_solver="lsmr" if len(x0) > 2 else "exact",
                             x_scale=np.maximum(span, 1e-3) / 4, max_nfev=200 * (1 + len(x0)))
         return res.x, float(np.sqrt(np.mean((self._curve(kinds, res.x, self.zgrid) - self.want) ** 2)))
 
