@@ -552,6 +552,21 @@ def _sections(program) -> list[dict]:
     return out
 
 
+def _boost_cautions(designs) -> list[str]:
+    """The caution for every correction stage that boosts (its largest boost, from the design)."""
+    out = []
+    for d in designs:
+        for st in d.stages:
+            req = st.requirement or {}
+            boost = req.get("largest_boost_db")
+            if boost is not None and boost > 0.005:
+                out.append(f"channel '{d.name}', stage {st.index}: the {st.kind} boosts by up to {boost:+.2f} dB "
+                           f"near {req['largest_boost_hz']:.0f} Hz; that costs {boost:.2f} dB of headroom and "
+                           "raises driver excursion and heating there: check it against the transducer's "
+                           "excursion and thermal limits and the product's own safety limits")
+    return out
+
+
 def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
     """Analyse every channel of *realisation* and compare it with *budget*.
 
@@ -602,6 +617,7 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
             if lc not in tolerated:
                 tolerated.append(lc)
     cautions = [CAUTION.format(what=" and ".join(tolerated))] if tolerated else []
+    cautions += _boost_cautions(designs[p.name] for p in realisation.programs)
     budget, _ = with_defaults(budget)
     return CheckReport(realisation.design.loaded.description.source, realisation.target.name, tuple(reports),
                        budget, tuple(cautions), defaults)

@@ -13,6 +13,9 @@ Stage kinds (``kind = ...`` in a description) and the module that designs them:
     by ``method`` = ``kaiser`` (default), ``equiripple`` or ``least-squares`` -- :mod:`.fir`.
 ``peaking``, ``lowshelf``, ``highshelf``, ``notch``, ``allpass``
     audio EQ biquads (``freq_hz``, ``gain_db``, ``q``/``bandwidth_oct``/``slope``) -- :mod:`.eq`.
+``correction``, ``fir-correction``
+    a measured response (``measurement``, ``range_hz``) corrected by fitted cookbook
+    sections or a regularised inverse FIR -- :mod:`.correction`.
 ``weighting``
     IEC 61672 A or C frequency weighting (``weighting = "A"``) -- :mod:`.weighting`.
 ``dc-blocker``
