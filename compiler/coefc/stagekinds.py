@@ -145,7 +145,9 @@ BASIC = {
         {"db": Key("number", "dB"), "linear": _POS, "invert": Key("boolean")})),
     "delay": StageKind("delay", "basic", "design_delay", MappingProxyType(
         {"samples": Key("integer", "samples"), "ms": Key("non_negative", "ms"),
-         "metres": Key("non_negative", "m"), "air_temperature_c": Key("number", "degC")})),
+         "metres": Key("non_negative", "m"), "air_temperature_c": Key("number", "degC"),
+         "interpolation": Key("choice", choices=("none", "thiran", "lagrange")),
+         "max_error_samples": Key("positive", "samples"), "accuracy_hz": Key("frequency", "Hz")})),
     "sos": StageKind("sos", "basic", "design_sos", MappingProxyType({"sections": Key("sections")})),
     "transfer": StageKind("transfer", "basic", "design_transfer", MappingProxyType(
         {"b": Key("numbers", length=(1, MAX_FIR_TAPS)), "a": Key("numbers", length=(1, 2 * MAX_IIR_ORDER + 1))})),
