@@ -110,11 +110,12 @@ def resolve(description: str, name: str) -> tuple[Path, str]:
     return path, str(path)
 
 
-def _read_bytes(path: Path, shown: str) -> bytes:
+def _read_bytes(path: Path, shown: str, hint: str = "the path is relative to the description's folder") -> bytes:
+    """The bytes of a measurement file (a regular file of at most MAX_FILE_BYTES); *hint* follows "file not found"."""
     try:
         st = os.stat(path)
     except FileNotFoundError:
-        raise MeasurementError(f"{shown}: file not found; the path is relative to the description's folder") from None
+        raise MeasurementError(f"{shown}: file not found; {hint}") from None
     except OSError as e:
         raise MeasurementError(f"{shown}: cannot read it ({e.strerror or e}); check the path") from None
     if stat.S_ISDIR(st.st_mode):
