@@ -328,3 +328,51 @@ def test_fir_correction_phases(tmp_path):
     for ch, tol in ((lin, 0.7), (mini, 0.1)):
         total = db(signal.sosfreqz(meas, worN=f, fs=FS)[1] * ch.response(f))
         assert np.max(np.abs(total - np.median(total))) < tol
+
+
+# ---------------------------------------------------------------- the budget check and the boost caution
+
+
+def test_correction_error_check_bounds_the_realised_error(tmp_path):
+    from types import SimpleNamespace
+
+    from coefc.budget import _boost_cautions, channel_checks
+    from coefc.spec import Budget
+
+    meas = np.array([cookbook_peaking(800, 1.0, -6.0)])
+    write_csv(tmp_path / "m.csv", meas)
+    ch = design_in(tmp_path, '{ kind = "correction", measurement = "m.csv", range_hz = [100, 8000], '
+                             'sections = 1, max_boost_db = 3 }')
+    residual = ch.stages[0].requirement["residual_max_db"]
+    f = np.geomspace(10, 23000, 400)
+    float_db = db(ch.response(f))
+    quantised = float_db + np.where((f > 1000) & (f < 1200), 0.05, 0.0)  # a known quantisation deviation
+    m = SimpleNamespace(response=SimpleNamespace(freqs_hz=f, float_db=float_db, quantised_db=quantised,
+                                                 stable=True, max_pole_radius=0.9),
+                        limit_cycles=None, overflow=None)
+    # triangle inequality (arithmetic): realised error <= float residual + |quantised - float|
+    for lim, ok in ((residual + 0.06, True), (residual + 0.04, False)):
+        checks, why = channel_checks(m, Budget(correction_error_db=lim), design=ch)
+        c = next(c for c in checks if c.name == "correction_error_db")
+        assert c.value == pytest.approx(residual + 0.05, abs=1e-12) and c.ok is ok
+    # the boost the correction needed (close to the 3 dB limit) is a caution that states it
+    boost = ch.stages[0].requirement["largest_boost_db"]
+    assert 2 < boost <= 3.01
+    (caution,) = _boost_cautions([SimpleNamespace(name="c", stages=ch.stages)])
+    assert f"boosts by up to {boost:+.2f} dB" in caution and "excursion and thermal limits" in caution
+
+
+def test_correction_error_is_not_applicable_without_a_correction():
+    from types import SimpleNamespace
+
+    from coefc.budget import channel_checks
+    from coefc.spec import Budget
+    from design_util import design
+
+    ch = design('{ kind = "gain", db = -3 }')
+    m = SimpleNamespace(response=SimpleNamespace(freqs_hz=np.array([1.0]), float_db=np.zeros(1),
+                                                 quantised_db=np.zeros(1), stable=True, max_pole_radius=0.0),
+                        limit_cycles=None, overflow=None)
+    checks, why = channel_checks(m, Budget(correction_error_db=0.5), design=ch)
+    c = next(c for c in checks if c.name == "correction_error_db")
+    assert c.value is None and c.ok and "not applicable" in why["correction_error_db"]

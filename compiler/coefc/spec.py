@@ -65,6 +65,7 @@ class Budget:
     overflow: str | None = None  # "none" or "allow"
     output_offset_lsb: float | None = None  # maximum |DC offset of the output error|, LSB
     tone_gain_error_db: float | str | None = None  # None: the default limit; "off": not checked
+    correction_error_db: float | None = None  # largest error of a correction stage against its target
     tone_levels_dbfs: tuple[float, ...] | None = None  # None: the default levels
     passband: tuple[tuple[float, float], ...] | None = None
     stopband: tuple[tuple[float, float], ...] | None = None
