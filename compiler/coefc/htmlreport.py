@@ -94,6 +94,30 @@ def noise_svg(plt, metrics, fs: float) -> str | None:
     return _svg(fig)
 
 
+def correction_svgs(plt, design) -> list[dict]:
+    """For each correction stage: measured, correction, corrected and target over the stage's range."""
+    out = []
+    for st in design.stages:
+        c = (st.requirement or {}).get("curves")
+        if not c:
+            continue
+        f = np.asarray(c["freq_hz"])
+        meas, corr, tgt = (np.asarray(c[k]) for k in ("measured_db", "correction_db", "target_db"))
+        fig, ax = plt.subplots(figsize=(8.0, 4.0), constrained_layout=True)
+        ax.semilogx(f, meas, label="measured (smoothed)", lw=1.2)
+        ax.semilogx(f, corr + float(np.median(tgt)), label="correction (float, placed at the target level)",
+                    lw=1.0, ls=":")
+        ax.semilogx(f, meas + corr, label="corrected", lw=1.6)
+        ax.semilogx(f, tgt, label="target", lw=1.0, ls="--", color="black")
+        ax.set_xlabel("frequency (Hz)")
+        ax.set_ylabel("magnitude (dB)")
+        ax.set_xlim(f[0], f[-1])
+        ax.grid(True, which="both", alpha=0.3)
+        ax.legend(fontsize=8)
+        out.append({"title": f"Stage {st.index}: {st.kind} against its measurement", "svg": _svg(fig)})
+    return out
+
+
 def poles_zeros(design, program) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """(float zeros, float poles, realised zeros, realised poles) of the IIR sections."""
     from .blocks import SosBlock
@@ -172,6 +196,7 @@ def render_report(report, realisation) -> str:
             "response_svg": response_svg(plt, m, ch.sample_rate_hz, budget.passband_deviation_db),
             "noise_svg": noise_svg(plt, m, ch.sample_rate_hz),
             "pole_zero_svg": pole_zero_svg(plt, design, program),
+            "correction_svgs": correction_svgs(plt, design),
         })
     plt.close("all")
     env = environment(TEMPLATE_DIR, autoescape=True)

@@ -21,10 +21,11 @@ woofer   a closed box (second-order high-pass, 52 Hz, Q 0.9), an enclosure dip
          Q 1.5, +2.5 dB), the cone's own roll-off (second-order low-pass, 4 kHz,
          Q 0.7), a tilt of -0.8 dB per decade, level 86 dB, and measurement noise
          (normal, 0.15 dB standard deviation, fixed seed).
-tweeter  a second-order high-pass (1.1 kHz, Q 0.8), a dome breakup peak (peaking,
-         17 kHz, Q 4, +5 dB), a tilt of +0.5 dB per decade above 1 kHz (shelf), the
-         whole made digital by the bilinear transform at 48 kHz, delayed by 40
-         samples, with noise at -90 dB re the peak (fixed seed).
+tweeter  a second-order high-pass (1.1 kHz, Q 0.8) and a dome breakup peak (peaking,
+         17 kHz, Q 4, +5 dB), made digital by the bilinear transform at 48 kHz
+         without pre-warping (which moves the peak to about 13 kHz), then a rising
+         first-order shelf (about +3 dB towards the top), a delay of 40 samples,
+         a gain of 0.5 and noise at -90 dB re the peak (fixed seed).
 """
 
 from __future__ import annotations

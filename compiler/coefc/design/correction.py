@@ -374,6 +374,13 @@ def _limit_q(ctx: StageContext) -> tuple[float, float]:
     return q_min, q_max
 
 
+def _curves(prob: Problem, corr_on_grid: np.ndarray) -> dict:
+    """The curves the HTML report overlays (on the fit grid): measured (smoothed), target and correction, dB."""
+    r = lambda a: [round(float(x), 4) for x in a]  # noqa: E731
+    return {"freq_hz": r(prob.grid), "measured_db": r(prob.measured), "target_db": r(prob.target),
+            "correction_db": r(corr_on_grid)}
+
+
 def _report(prob: Problem, corr_on_grid: np.ndarray, dense_f: np.ndarray, dense_c: np.ndarray,
             max_boost_db: float) -> tuple[float, float, float, float, list[str]]:
     err = prob.measured + corr_on_grid - prob.target
@@ -406,8 +413,8 @@ def design_correction(ctx: StageContext) -> StageResult:
                                       q_max=q_max, shelves=bool(ctx.get("shelves", True)))
     df = dense_grid(ctx.fs)
     dc = correction_db(sections, level, df, ctx.fs)
-    e_max, e_rms, big, at, warnings = _report(prob, correction_db(sections, level, prob.grid, ctx.fs), df, dc,
-                                              boost)
+    on_grid = correction_db(sections, level, prob.grid, ctx.fs)
+    e_max, e_rms, big, at, warnings = _report(prob, on_grid, df, dc, boost)
     lo, hi = prob.range_hz
     text = (f"correction of {prob.measurement.path} ({prob.smoothing_text}) over {lo:g}-{hi:g} Hz, target "
             f"{prob.target_text}: {len(sections)} section{'s' if len(sections) != 1 else ''}"
@@ -427,7 +434,7 @@ def design_correction(ctx: StageContext) -> StageResult:
                    "largest_boost_db": big, "largest_boost_hz": at,
                    "sections": [{"kind": s.kind, "freq_hz": s.freq_hz, "gain_db": s.gain_db,
                                  ("q" if s.kind == "peaking" else "slope"): s.shape} for s in sections],
-                   "level_db": level}
+                   "level_db": level, "curves": _curves(prob, on_grid)}
     return StageResult(blocks=tuple(blocks), text=text, order=2 * len(sections), sections=len(sections),
                        warnings=tuple(warnings), requirement=requirement, details=details)
 
@@ -524,7 +531,7 @@ def design_fir_correction(ctx: StageContext) -> StageResult:
     requirement = {"range_hz": [lo, hi], "target": prob.target_text, "smoothing": prob.smoothing_text,
                    "max_boost_db": boost, "phase": phase, "regularisation_db": reg_db,
                    "residual_max_db": e_max, "residual_rms_db": e_rms,
-                   "largest_boost_db": big, "largest_boost_hz": at}
+                   "largest_boost_db": big, "largest_boost_hz": at, "curves": _curves(prob, on_grid)}
     return StageResult(blocks=(FirBlock(h, label=f"fir-correction {taps} taps, {phase} phase"),), text=text,
                        order=taps - 1, taps=taps, latency_samples=latency, warnings=tuple(warnings),
                        requirement=requirement)
