@@ -376,3 +376,23 @@ def test_correction_error_is_not_applicable_without_a_correction():
     checks, why = channel_checks(m, Budget(correction_error_db=0.5), design=ch)
     c = next(c for c in checks if c.name == "correction_error_db")
     assert c.value is None and c.ok and "not applicable" in why["correction_error_db"]
+
+
+def test_report_overlays_measured_correction_corrected_and_target(tmp_path):
+    pytest.importorskip("matplotlib")
+    from coefc.htmlreport import _pyplot, correction_svgs
+
+    write_csv(tmp_path / "m.csv", np.array([cookbook_peaking(800, 1.0, 4.0)]))
+    ch = design_in(tmp_path, '{ kind = "correction", measurement = "m.csv", range_hz = [100, 8000], sections = 1 }',
+                   '{ kind = "gain", db = -1 }')
+    curves = ch.stages[0].requirement["curves"]
+    # corrected = measured + correction on the stage's own grid (what the plot draws)
+    corrected = np.array(curves["measured_db"]) + np.array(curves["correction_db"])
+    assert np.max(np.abs(corrected - np.array(curves["target_db"]))) == pytest.approx(
+        ch.stages[0].requirement["residual_max_db"], abs=1e-3)
+    plt = _pyplot()
+    (fig,) = correction_svgs(plt, ch)
+    plt.close("all")
+    assert fig["title"].startswith("Stage 1: correction")
+    for label in ("measured (smoothed)", "corrected", "target"):
+        assert label in fig["svg"]
