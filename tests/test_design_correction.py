@@ -396,3 +396,19 @@ def test_report_overlays_measured_correction_corrected_and_target(tmp_path):
     assert fig["title"].startswith("Stage 1: correction")
     for label in ("measured (smoothed)", "corrected", "target"):
         assert label in fig["svg"]
+
+
+def test_header_banner_names_each_input_file_with_its_sha256(tmp_path):
+    import hashlib
+
+    import coefc
+    from coefc.emit import render
+
+    write_csv(tmp_path / "m.csv", np.array([cookbook_peaking(800, 1.0, -4.0)]))
+    (tmp_path / "d.toml").write_text('name = "t"\nsample_rate_hz = 48000\n[[channel]]\nname = "c"\nstages = [\n'
+                                     '  { kind = "correction", measurement = "m.csv", range_hz = [100, 8000], '
+                                     'sections = 1, max_boost_db = 3 },\n]\n')
+    real = coefc.load(str(tmp_path / "d.toml")).design().realise(target="mcu32")
+    files = render(real, header_name="t.h")
+    sha = hashlib.sha256((tmp_path / "m.csv").read_bytes()).hexdigest()  # FIPS 180-4 via hashlib
+    assert f"input        m.csv (sha256 {sha})" in files["t.h"]

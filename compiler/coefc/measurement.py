@@ -74,6 +74,7 @@ class Measurement:
     freqs_hz: np.ndarray
     magnitude_db: np.ndarray
     phase_deg: np.ndarray | None = None
+    sha256: str = ""  # of the file's bytes (the header banner names each input file with it)
 
     def magnitude_at(self, freqs_hz) -> np.ndarray:
         """Magnitude in dB at *freqs_hz*, interpolated linearly in dB over log frequency.
@@ -153,10 +154,12 @@ def read_measurement(description: str, name: str, sample_rate_hz: float) -> Meas
     if suffix not in (".csv", ".wav"):
         raise MeasurementError(f"{shown}: unsupported measurement format '{suffix or '(no suffix)'}'; give a .csv "
                                "table (frequency_hz,magnitude_db[,phase_deg]) or a mono .wav impulse response")
+    import dataclasses
+    import hashlib
+
     raw = _read_bytes(path, shown)
-    if suffix == ".csv":
-        return parse_csv(raw, shown, sample_rate_hz)
-    return parse_wav(raw, shown, sample_rate_hz)
+    m = parse_csv(raw, shown, sample_rate_hz) if suffix == ".csv" else parse_wav(raw, shown, sample_rate_hz)
+    return dataclasses.replace(m, sha256=hashlib.sha256(raw).hexdigest())
 
 
 def parse_csv(raw: bytes, shown: str, sample_rate_hz: float | None = None) -> Measurement:

@@ -133,6 +133,7 @@ class Problem:
     target: np.ndarray  # dB on grid
     target_text: str
     smoothing_text: str
+    inputs: tuple[tuple[str, str], ...] = ()  # (file as the description names it, sha256)
 
     def measured_at(self, f) -> np.ndarray:
         """Smoothed measured dB at *f*, held constant beyond the measured span."""
@@ -172,8 +173,10 @@ def load_problem(ctx: StageContext) -> Problem:
     grid = log_axis(lo, hi, FIT_POINTS_PER_OCTAVE)
     measured = np.interp(np.log(grid), np.log(sf), sdb)
     shape = np.zeros(grid.shape)
+    inputs = [(ctx.params["measurement"], m.sha256)]
     if ctx.has("target"):
         t = _read(ctx, "target")
+        inputs.append((ctx.params["target"], t.sha256))
         if not t.covers(lo, hi):
             raise ctx.error(f"{t.path} spans {t.freqs_hz[0]:g}..{t.freqs_hz[-1]:g} Hz, which does not cover "
                             f"range_hz [{lo:g}, {hi:g}]; extend the target curve or narrow range_hz", "target")
@@ -189,7 +192,8 @@ def load_problem(ctx: StageContext) -> Problem:
     target_text = (f"curve {t.path} with its median at {level_text}" if ctx.has("target")
                    else f"flat at {level_text}")
     smoothing_text = f"{_octave_text(width)} smoothing" if width > 0 else "unsmoothed"
-    return Problem(m, sf, sdb, (float(lo), float(hi)), grid, measured, target, target_text, smoothing_text)
+    return Problem(m, sf, sdb, (float(lo), float(hi)), grid, measured, target, target_text, smoothing_text,
+                   tuple(inputs))
 
 
 def _octave_text(width: float) -> str:
@@ -434,7 +438,8 @@ def design_correction(ctx: StageContext) -> StageResult:
                    "largest_boost_db": big, "largest_boost_hz": at,
                    "sections": [{"kind": s.kind, "freq_hz": s.freq_hz, "gain_db": s.gain_db,
                                  ("q" if s.kind == "peaking" else "slope"): s.shape} for s in sections],
-                   "level_db": level, "curves": _curves(prob, on_grid)}
+                   "level_db": level, "curves": _curves(prob, on_grid),
+                   "inputs": [{"file": n, "sha256": h} for n, h in prob.inputs]}
     return StageResult(blocks=tuple(blocks), text=text, order=2 * len(sections), sections=len(sections),
                        warnings=tuple(warnings), requirement=requirement, details=details)
 
@@ -531,7 +536,8 @@ def design_fir_correction(ctx: StageContext) -> StageResult:
     requirement = {"range_hz": [lo, hi], "target": prob.target_text, "smoothing": prob.smoothing_text,
                    "max_boost_db": boost, "phase": phase, "regularisation_db": reg_db,
                    "residual_max_db": e_max, "residual_rms_db": e_rms,
-                   "largest_boost_db": big, "largest_boost_hz": at, "curves": _curves(prob, on_grid)}
+                   "largest_boost_db": big, "largest_boost_hz": at, "curves": _curves(prob, on_grid),
+                   "inputs": [{"file": n, "sha256": h} for n, h in prob.inputs]}
     return StageResult(blocks=(FirBlock(h, label=f"fir-correction {taps} taps, {phase} phase"),), text=text,
                        order=taps - 1, taps=taps, latency_samples=latency, warnings=tuple(warnings),
                        requirement=requirement)
