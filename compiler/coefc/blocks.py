@@ -93,6 +93,8 @@ class StageSummary:
     latency_samples: float  # pure delay or FIR group delay at DC, where defined
     # Designs given by requirements: asked, margin for quantisation, reached, how the margin was kept.
     requirement: Mapping | None = None
+    # Further lines the design report prints under the stage (e.g. fitted correction sections).
+    details: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True, eq=False)
