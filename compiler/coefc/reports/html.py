@@ -321,7 +321,7 @@ def section_zoom_svg(plt, design, program) -> str | None:
 
 def sum_svg(plt, analysis, fs: float, title: str) -> str:
     """Magnitude and phase of a sum of channels: float design, bit-true, each channel, target band."""
-    from .analyse.sums import _db
+    from ..analyse.sums import _db
 
     a = analysis
     f = a.freqs_hz
@@ -428,7 +428,7 @@ def _sum_items(plt, report, realisation) -> list[dict]:
                                for c in sm.checks],
                     "svg": sum_svg(plt, sm.analysis, fs, f"sum '{sm.name}': " + " + ".join(sm.analysis.channels))})
     if not out and len(realisation.programs) > 1:
-        from .analyse.sums import analyse_sum
+        from ..analyse.sums import analyse_sum
         from ..spec import SumSpec
 
         names = tuple(p.name for p in realisation.programs)
