@@ -276,15 +276,15 @@ def design_peak_gain(design: ChannelDesign, n: int = 0) -> float | None:
     from scipy import signal
 
     from ..blocks import DelayBlock, FirBlock, GainBlock, SosBlock
-    from .linear import DECAY, MAX_LENGTH
+    from ..blocks import MAX_IMPULSE, decay_samples
 
     poles = [abs(p) for blk in design.blocks if isinstance(blk, SosBlock)
              for row in np.atleast_2d(blk.sos) for p in np.roots(row[3:]) if row[4] or row[5]]
     r = max(poles, default=0.0)
-    own = int(np.ceil(np.log(DECAY) / np.log(r))) * 2 if 0 < r < 1 else 0
+    own = decay_samples(r) * 2 if 0 < r < 1 else 0
     own += sum(len(blk.taps) for blk in design.blocks if isinstance(blk, FirBlock))
     own += sum(blk.samples for blk in design.blocks if isinstance(blk, DelayBlock))
-    h = np.zeros(max(int(n), min(own + 8, MAX_LENGTH), 1))
+    h = np.zeros(max(int(n), min(own + 8, MAX_IMPULSE), 1))
     h[0] = 1.0
     for blk in design.blocks:
         if isinstance(blk, SosBlock):

@@ -33,12 +33,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from ..blocks import impulse_length
 from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE, lo_bits
 
-#: impulse responses stop where the slowest pole has decayed below this factor
-DECAY = 1e-13
-MAX_LENGTH = 1 << 18
-MIN_LENGTH = 256
 
 
 @dataclass(frozen=True, eq=False)
@@ -177,17 +174,8 @@ def pole_radius(models: list[OpModel]) -> float:
 
 
 def response_length(models: list[OpModel]) -> int:
-    """Impulse-response length that captures every node to a relative ``DECAY``."""
-    r = pole_radius(models)
-    fir = sum(len(m.b) - 1 for m in models if not m.recursive)
-    if r >= 1.0:
-        n = 1 << 14
-    elif r > 0:
-        n = int(np.ceil(np.log(DECAY) / np.log(r))) * 2
-    else:
-        n = 0
-    n += fir + 8
-    return int(min(max(n, MIN_LENGTH), MAX_LENGTH))
+    """Impulse-response length that captures every node (:func:`coefc.blocks.impulse_length`)."""
+    return impulse_length(pole_radius(models), sum(len(m.b) - 1 for m in models if not m.recursive))
 
 
 def _run(b, a, x):

@@ -328,12 +328,10 @@ L1_MAX_LOSS_BITS = 4
 
 def _l1_length(chain) -> int:
     """Impulse-response length for the l1 bounds: as long as the overflow analysis uses."""
-    from ..analyse.linear import DECAY, MAX_LENGTH, MIN_LENGTH
+    from ..blocks import impulse_length
 
     r = max([pairing.pole_radius(op[1]) for kind, op in chain if kind == "sos"] + [0.0])
-    fir = sum(len(op) - 1 for kind, op in chain if kind != "sos")
-    n = int(np.ceil(np.log(DECAY) / np.log(r))) * 2 if 0.0 < r < 1.0 else (1 << 14 if r >= 1.0 else 0)
-    return int(min(max(n + fir + 8, MIN_LENGTH), MAX_LENGTH))
+    return impulse_length(r, sum(len(op) - 1 for kind, op in chain if kind != "sos"))
 
 
 def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: float, notes: list) -> ChannelProgram:
