@@ -40,21 +40,54 @@ Exact definitions shared by the engine, the C kernels and the noise analysis
            y[n] = fit_data(v)
            so the rounding error is shaped by (1 - z^-1) before 1/A(z).
 
+    coupled  (coupled, or normal, form of Rader and Gold; two states S1, S2 kept as
+           data words; b = (D, C1, C2, G), a = (A11, A12, A21, A22); both state
+           updates read the states of the previous sample)
+           accY = wrapA(D*x[n] + C1*S1 + C2*S2);   y[n] = fit_data(round_shift(accY, k))
+           acc1 = wrapA(A11*S1 + A12*S2 + G*x[n])
+           acc2 = wrapA(A21*S1 + A22*S2)
+           S1   = fit_data(round_shift(acc1, k));  S2 = fit_data(round_shift(acc2, k))
+           With the physical values (``C * 2^(s - Fc)``) the section is the state-space
+           system  s[n+1] = A s[n] + (G, 0)' x[n],  y[n] = (C1, C2) s[n] + D x[n],  so
+             H(z) = D + G (C1 (z - A22) + C2 A21) / det(zI - A)
+             det(zI - A) = z^2 - (A11 + A22) z + (A11 A22 - A12 A21).
+           A complex pole pair r e^(+-j theta) is realised as the rotation
+           A11 = A22 = alpha = r cos(theta), A21 = -A12 = beta = r sin(theta): the
+           coefficients are the real and imaginary parts of the pole, so the grid of
+           realisable poles is uniform in the plane (dense near z = 1, where the
+           direct form's grid, uniform in r^2 and r cos(theta), is sparse).  A pair
+           of real poles p1, p2 is realised with A11 = p1, A22 = p2, A12 = 0 and
+           A21 = 1 - max|p| (two first-order recursions in cascade; the coupling
+           balances the two states' gains and keeps ||A||_2 < 1).  G sets the
+           states' level (chosen by the realiser), C1, C2 and D realise the zeros.
+           Three roundings per sample: the output and each state update.
+
     fir    acc  = wrapA(sum_k C_k * x[n-k]);   y[n] = fit_data(round_shift(acc, k))
            (folding symmetric taps gives the identical integer result)
     gain   acc  = wrapA(C * x[n]);             y[n] = fit_data(round_shift(acc, k))
     delay  y[n] = x[n - D]
 
 An *accumulator overflow* is a sample where the exact (unwrapped) sum of that
-sample's terms lies outside the accumulator's range (for tdf2: any of its three
-sums); wrapping in between is harmless and not counted.  A *data overflow* is a
-sample where ``fit_data`` changed the value.
+sample's terms lies outside the accumulator's range (for tdf2 and coupled: any of
+its three sums); wrapping in between is harmless and not counted.  A *data overflow* is a
+sample where ``fit_data`` changed the value (for coupled: any of its three).
 
 float32 order (every step rounded to float32, no fused multiply-add)::
 
     df1    acc = b0*x0; acc += b1*x1; acc += b2*x2; acc -= a1*y1; acc -= a2*y2; y = acc
     tdf2   y = b0*x + s1; s1 = (b1*x - a1*y) + s2; s2 = b2*x - a2*y
     fir    acc = t0*x[n]; acc += t_k*x[n-k] for k = 1, 2, ...;  gain  y = g*x
+    (coupled has no float32 order: fixed point only)
+
+References
+----------
+C. M. Rader and B. Gold, "Effects of parameter quantization on the poles of a
+digital filter", Proc. IEEE 55(5), 1967 (the coupled form; cited from memory).
+C. T. Mullis and R. A. Roberts, "Roundoff noise in digital filters: frequency
+transformations and invariants", IEEE Trans. ASSP-24(6), 1976 (normal-form
+state-space sections; from memory).
+L. B. Jackson, *Digital Filters and Signal Processing*, 3rd ed., Kluwer 1996,
+sec. 11 (coupled-form sections and their noise; from memory).
 """
 
 from __future__ import annotations
@@ -104,7 +137,8 @@ class Structure:
     accumulator precision (kernel state words, state bytes, memory estimates),
     ``error_feedback`` whether the rounding residual is fed back (the noise is then
     shaped by ``1 - z^-1``: noise model, scaling, limit-cycle search, an extra add),
-    ``float32`` whether a float32 target can run it.
+    ``float32`` whether a float32 target can run it, ``state_space`` whether the
+    section holds a 2x2 state matrix (``coupled``) instead of ``b``/``a`` polynomials.
     """
 
     name: str
@@ -114,6 +148,7 @@ class Structure:
     acc_states: int
     error_feedback: bool = False
     float32: bool = True
+    state_space: bool = False  # b = (D, C1, C2, G), a = (A11, A12, A21, A22): see section_transfer
 
     @property
     def state_words(self) -> int:
@@ -128,6 +163,8 @@ STRUCTURE_TABLE: dict[str, Structure] = {s.name: s for s in (
     Structure("tdf2", "transposed direct form II", 1, data_states=0, acc_states=2),
     Structure("df1ef", "direct form I with first-order error feedback", 2, data_states=4, acc_states=1,
               error_feedback=True, float32=False),
+    Structure("coupled", "coupled (normal) form of Rader and Gold", 3, data_states=2, acc_states=0,
+              float32=False, state_space=True),
 )}
 STRUCTURES = tuple(STRUCTURE_TABLE)
 SCALINGS = ("none", "l1", "l2", "linf")
@@ -176,14 +213,38 @@ class Arithmetic:
 class SectionOp:
     """One second-order section: ``b = (B0, B1, B2)``, ``a = (A1, A2)``, coefficient shift.
 
-    ``structure`` is ``df1``, ``tdf2`` or ``df1ef`` (DF1 with first-order error
-    feedback).  Integers for fixed-point arithmetic, float32 values otherwise.
+    ``structure`` is ``df1``, ``tdf2``, ``df1ef`` (DF1 with first-order error
+    feedback) or ``coupled``; for ``coupled`` ``b = (D, C1, C2, G)`` and
+    ``a = (A11, A12, A21, A22)`` (the recurrence in the module docstring; use
+    :func:`section_transfer` for the polynomials).  Integers for fixed-point
+    arithmetic, float32 values otherwise.
     """
 
     b: tuple
     a: tuple
     shift: int = 0
     structure: str = "df1"
+
+
+def section_transfer(op: "SectionOp", frac_bits: int = 0):
+    """Physical ``(b, a)`` of a section: ``b = [b0, b1, b2]``, ``a = [1, a1, a2]`` (floats).
+
+    For ``coupled`` the polynomials of its state-space form (module docstring):
+    ``b = [D, D a1 + G C1, D a2 + G (C2 A21 - C1 A22)]``, ``a = [1, -(A11 + A22),
+    A11 A22 - A12 A21]``; *frac_bits* is ``Fc`` (0 for float values).
+
+    Examples
+    --------
+    >>> section_transfer(SectionOp(b=(0, 4, 0, 4), a=(2, 0, 1, 2), structure="coupled"), 2)
+    ([0.0, 1.0, -0.5], [1.0, -1.0, 0.25])
+    """
+    sc = 2.0 ** (op.shift - frac_bits)
+    if STRUCTURE_TABLE[op.structure].state_space:
+        d, c1, c2, g = (float(v) * sc for v in op.b)
+        a11, a12, a21, a22 = (float(v) * sc for v in op.a)
+        a1, a2 = -(a11 + a22), a11 * a22 - a12 * a21
+        return [d, d * a1 + g * c1, d * a2 + g * (c2 * a21 - c1 * a22)], [1.0, a1, a2]
+    return [float(v) * sc for v in op.b], [1.0] + [float(v) * sc for v in op.a]
 
 
 @dataclass(frozen=True)
