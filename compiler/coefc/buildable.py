@@ -225,6 +225,12 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
             if op.structure not in target.structures:
                 fail(f"target '{target.name}' has no kernel for structure '{op.structure}'; it supports "
                      f"{', '.join(target.structures)} (--structure)")
+            if STRUCTURE_TABLE[op.structure].state_space:
+                # no reference kernel runs it (emit refuses the operation table); generated code does
+                k = rshift(op.shift, what, True)
+                ops.append(KernelOp(op.structure.upper(), k, 1, words((*op.b, *op.a), what),
+                                    STATE_WORDS[op.structure], f"{what}, {op.structure}, coefficient shift {op.shift}"))
+                continue
             terms = {"b0": op.b[0], "b1": op.b[1], "b2": op.b[2], "a1": op.a[0], "a2": op.a[1]}
             values = [-terms[t[1:]] if t.startswith("-") else terms[t] for t in info.section_layout]
             k = rshift(op.shift, what, True)
@@ -293,6 +299,21 @@ def validate(realisation) -> tuple[BuildInfo, Names, tuple[tuple[KernelOp, ...],
     places = {"data": desc.source, "coef": desc.source, "acc_bits": desc.source}
     check_kernel_words(arith, target, places)
     return info, names, tuple(kernel_program(p, info, target, desc.source) for p in programs)
+
+
+#: structures the reference kernels (the operation table) run; the others only as generated code
+KERNEL_STRUCTURES = tuple(s.name for s in STRUCTURE_TABLE.values() if not s.state_space)
+
+
+def table_refusal(realisation) -> str | None:
+    """Why the operation table (reference kernel) cannot hold *realisation*, or ``None``."""
+    for p in realisation.programs:
+        for op in p.ops:
+            if isinstance(op, SectionOp) and op.structure not in KERNEL_STRUCTURES:
+                return (f"{realisation.design.loaded.description.source}: channel '{p.name}': the reference "
+                        f"kernels have no {op.structure} sections; build with --kernel (generated code) or use "
+                        f"--structure {' or '.join(KERNEL_STRUCTURES)}")
+    return None
 
 
 def refusal(realisation) -> str | None:

@@ -449,6 +449,11 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
             sample_rate_hz=str(int(desc.sample_rate_hz)) if float(desc.sample_rate_hz).is_integer()
             else repr(float(desc.sample_rate_hz)),
             over_budget=over, golden_inputs=inputs if vectors else None, golden_outs=golden_outs)
+    from .buildable import table_refusal
+
+    why = table_refusal(realisation)
+    if why:
+        raise EmitError(why)
     attrs = []
     if info.alignment:
         attrs.append(f"aligned({info.alignment})")
