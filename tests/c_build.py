@@ -19,7 +19,7 @@ import numpy as np
 
 from coefc.api import Design, Loaded, Realisation
 from coefc.emit import render
-from coefc.program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
+from coefc.program import STRUCTURE_TABLE, Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp
 from coefc.spec import Budget, Description, Implementation
 from coefc.targets import build_info, find_target
 
@@ -132,6 +132,12 @@ def _section(rng, arith: Arithmetic, structure: str, shift: int) -> SectionOp:
         return SectionOp(tuple(f(v) for v in b), (f(a1), f(a2)), 0, structure)
     scale = 2.0 ** (arith.coef.frac_bits - shift)
     q = lambda v: int(round(v * scale))  # noqa: E731
+    if STRUCTURE_TABLE[structure].state_space:
+        # coupled: the rotation of the pole pair (alpha = r cos, beta = r sin), an output combination
+        # and an input gain that drives the states into their limits at the golden input's steps
+        al, be = r * np.cos(th), r * np.sin(th)
+        c = rng.uniform(-0.9, 0.9, 2)
+        return SectionOp((q(b[0]), q(c[0]), q(c[1]), q(0.7)), (q(al), q(-be), q(be), q(al)), shift, structure)
     return SectionOp(tuple(q(v) for v in b), (q(a1), q(a2)), shift, structure)
 
 

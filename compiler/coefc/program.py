@@ -56,8 +56,8 @@ Exact definitions shared by the engine, the C kernels and the noise analysis
            coefficients are the real and imaginary parts of the pole, so the grid of
            realisable poles is uniform in the plane (dense near z = 1, where the
            direct form's grid, uniform in r^2 and r cos(theta), is sparse).  A pair
-           of real poles p1, p2 is realised with A11 = p1, A22 = p2, A12 = 0 and
-           A21 = 1 - max|p| (two first-order recursions in cascade; the coupling
+           of real poles |p1| <= |p2| is realised with A11 = p1, A22 = p2, A12 = 0
+           and A21 = 1 - |p2| (two first-order recursions in cascade; the coupling
            balances the two states' gains and keeps ||A||_2 < 1).  G sets the
            states' level (chosen by the realiser), C1, C2 and D realise the zeros.
            Three roundings per sample: the output and each state update.

@@ -51,7 +51,7 @@ from .limitcycles import SectionLimitCycles, error_interval
 
 #: exhaustive search: at most this many states in the box, at most this many state-steps in all
 MAX_BOX = 1 << 22
-MAX_WORK = 1 << 28
+MAX_WORK = 1 << 25
 
 
 def _ints(op: SectionOp):

@@ -55,8 +55,8 @@ def pole_matrix(a) -> np.ndarray:
         al, be = -a1 / 2.0, float(np.sqrt(-disc)) / 2.0
         return np.array([[al, -be], [be, al]])
     r = float(np.sqrt(disc))
-    p = sorted([(-a1 + r) / 2.0, (-a1 - r) / 2.0], key=abs, reverse=True)
-    return np.array([[p[0], 0.0], [max(1.0 - abs(p[0]), 0.0), p[1]]])
+    p = sorted([(-a1 + r) / 2.0, (-a1 - r) / 2.0], key=abs)  # the slower pole in the second state
+    return np.array([[p[0], 0.0], [max(1.0 - abs(p[1]), 0.0), p[1]]])
 
 
 def _length(A: np.ndarray) -> int:
