@@ -414,12 +414,11 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
             fields = [(D, f"{f}_s", 2, "S1, S2 (data words)")]
             pre = [f"{D} s1 = s->{f}_s[0], s2 = s->{f}_s[1];"]
             post = [f"s->{f}_s[0] = s1;", f"s->{f}_s[1] = s2;"]
-            body = fx.sum_lines("acc", C, [(1, Dc, "x"), (1, C1, "s1"), (1, C2, "s2")])
-            body += fx.finish("acc", k, C, "y")
-            body.append(f"{D} n1, n2;")
-            for name, terms in (("n1", [(1, A11, "s1"), (1, A12, "s2"), (1, G, "x")]),
+            body = [f"{D} y, n1, n2;"]  # three sibling blocks: each rounding's temporaries stay in its own
+            for name, terms in (("y", [(1, Dc, "x"), (1, C1, "s1"), (1, C2, "s2")]),
+                                ("n1", [(1, A11, "s1"), (1, A12, "s2"), (1, G, "x")]),
                                 ("n2", [(1, A21, "s1"), (1, A22, "s2")])):
-                inner = fx.sum_lines("a", C, terms) + fx.finish("a", k, C, "r") + [f"{name} = r;"]
+                inner = fx.sum_lines("a", C, terms) + fx.finish("a", k, C, "res") + [f"{name} = res;"]
                 body += ["{", *_indent(inner, 4), "}"]
             body += ["s1 = n1;", "s2 = n2;", "out[t] = y;"]
             lines = pre + _loop(src, body, D) + post
