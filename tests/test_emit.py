@@ -91,7 +91,7 @@ def test_no_vectors_means_no_golden_arrays():
 
 
 def test_identical_inputs_give_identical_bytes():
-    progs = hand_programs(MCU32, STRUCTURES)
+    progs = hand_programs(MCU32, KERNEL_STRUCTURES)  # the operation table: structures a reference kernel runs
     assert _render(progs) == _render(progs)
 
 
