@@ -78,6 +78,12 @@ def build(
                                        data=data, coef=coef, acc=acc, rounding=rounding,
                                        overflow=overflow, structure=structure, scaling=scaling)
     validate(real)  # every refusal rule (shared with check) before the (slower) check
+    if not kernel:
+        from ..buildable import EmitError, table_refusal
+
+        why = table_refusal(real)  # a structure only generated code runs: refused before the check
+        if why:
+            raise EmitError(why)
     info = build_info(real.target)  # a check-only target: names the build table it lacks
     # the target's own files are inputs too: writing into the target folder must not replace them
     inputs = [file, real.target.folder / "target.toml", *info.kernel_files(real.target.folder)]
