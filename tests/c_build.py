@@ -137,12 +137,18 @@ def _section(rng, arith: Arithmetic, structure: str, shift: int) -> SectionOp:
 
         hi, lo, _ = split_feedback((1.0, a1, a2), arith.coef, shift)
         return SectionOp(tuple(q(v) for v in b), hi, shift, structure, a_lo=lo)
+    if STRUCTURE_TABLE[structure].state_space:
+        # coupled: the rotation of the pole pair (alpha = r cos, beta = r sin), an output combination
+        # and an input gain that drives the states into their limits at the golden input's steps
+        al, be = r * np.cos(th), r * np.sin(th)
+        c = rng.uniform(-0.9, 0.9, 2)
+        return SectionOp((q(b[0]), q(c[0]), q(c[1]), q(0.7)), (q(al), q(-be), q(be), q(al)), shift, structure)
     return SectionOp(tuple(q(v) for v in b), (q(a1), q(a2)), shift, structure)
 
 
 def kernel_structures(structures) -> tuple:
     """The structures a reference kernel runs (df1-wide-fb runs only in generated code)."""
-    return tuple(s for s in structures if not STRUCTURE_TABLE[s].wide_feedback)
+    return tuple(s for s in structures if STRUCTURE_TABLE[s].reference_kernel)
 
 
 def _coef(arith: Arithmetic, v: float, shift: int = 0):

@@ -59,12 +59,38 @@ class Model:
         y, bad = fit(v, self.W, self.ovf)
         return y, v, bad
 
+    def coupled(self, x, b, a, shift):
+        """The coupled form (coefc.program docstring): (y, data overflows, accumulator overflows).
+
+        State update s' = A s + (G, 0)' x and output y = C s + D x, each of the three
+        sums wrapped, rounded and fitted on its own; one event per sample at most.
+        """
+        k = self.Fc - shift
+        D, C = b[0], (b[1], b[2])
+        G = b[3]
+        A = ((a[0], a[1]), (a[2], a[3]))
+        s = [0, 0]
+        ys, no, na = [], 0, 0
+        for xn in x:
+            sums = [D * xn + C[0] * s[0] + C[1] * s[1],
+                    A[0][0] * s[0] + A[0][1] * s[1] + G * xn,
+                    A[1][0] * s[0] + A[1][1] * s[1]]
+            wrapped = [self._acc(t) for t in sums]
+            outs = [self._out(w, k) for w, _ in wrapped]
+            na += any(bad for _, bad in wrapped)
+            no += any(o[2] for o in outs)
+            ys.append(outs[0][0])
+            s = [outs[1][0], outs[2][0]]
+        return ys, no, na
+
     def section(self, x, b, a, shift, structure, a_lo=(0, 0), coef_width=None):
         """Returns (y, data overflow count, accumulator overflow count).
 
         ``df1-wide-fb``: *a* are the high feedback words, *a_lo* the low words of
         weight 2^-L, L = coef_width - 1 (coefc.program's docstring).
         """
+        if structure == "coupled":
+            return self.coupled(x, b, a, shift)
         if structure not in ("df1", "tdf2", "df1ef", "df1-wide-fb"):  # the structures this model knows (independently)
             raise NotImplementedError(f"exact model: no recurrence for structure '{structure}'")
         k = self.Fc - shift

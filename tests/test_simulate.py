@@ -34,6 +34,14 @@ def arithmetics(draw, max_acc=64, wide=False):
                       structure=draw(st.sampled_from(STRUCTURES)))
 
 
+def _sec(c, shift, structure):
+    """A section of *structure* from coefficient words *c* (8 words for the coupled form, else 5)."""
+    if STRUCTURE_TABLE[structure].state_space:
+        c = list(c) + list(c)[: 8 - len(c)] if len(c) < 8 else list(c)
+        return SectionOp(b=tuple(c[:4]), a=tuple(c[4:8]), shift=shift, structure=structure)
+    return SectionOp(b=tuple(c[:3]), a=tuple(c[3:5]), shift=shift, structure=structure)
+
+
 def _word(draw, fmt):
     edge = st.sampled_from([fmt.min_int, fmt.max_int, 0, -1, 1])
     return draw(st.one_of(edge, st.integers(fmt.min_int, fmt.max_int)))
@@ -45,9 +53,10 @@ def ops(draw, ar):
     kind = draw(st.sampled_from(("sos", "sos", "sos", "fir", "gain", "delay")))
     shift = draw(st.integers(max(fc - 62, -4), fc - 1))
     if kind == "sos":
-        c = [_word(draw, ar.coef) for _ in range(5)]
-        lo = tuple(_word(draw, ar.coef) for _ in range(2)) if STRUCTURE_TABLE[ar.structure].wide_feedback else ()
-        return SectionOp(b=tuple(c[:3]), a=tuple(c[3:]), shift=shift, structure=ar.structure, a_lo=lo)
+        c = [_word(draw, ar.coef) for _ in range(8)]
+        if STRUCTURE_TABLE[ar.structure].wide_feedback:
+            return SectionOp(b=tuple(c[:3]), a=tuple(c[3:5]), shift=shift, structure=ar.structure, a_lo=tuple(c[5:7]))
+        return _sec(c, shift, ar.structure)
     if kind == "fir":
         n = draw(st.integers(1, 9))
         taps = [_word(draw, ar.coef) for _ in range(n)]
@@ -112,8 +121,8 @@ def test_full_scale_32_bit_words_hit_both_accumulator_paths(structure, acc):
     ar = Arithmetic(data=QFormat(1, 31), coef=QFormat(2, 30), acc_bits=acc, structure=structure)
     big = (1 << 31) - 1
     prog = ChannelProgram("t", 48000, ar, (
-        SectionOp(b=(big, -big - 1, big), a=(-big - 1, big), shift=0, structure=structure),
-        SectionOp(b=(1 << 28, 1 << 29, 1 << 28), a=(-(1 << 31) + 5, (1 << 30) - 9), shift=0, structure=structure),
+        _sec((big, -big - 1, big, -big - 1, big), 0, structure),
+        _sec((1 << 28, 1 << 29, 1 << 28, -(1 << 31) + 5, (1 << 30) - 9), 0, structure),
     ))
     rng = np.random.default_rng(7)
     x = rng.choice([-(1 << 31), (1 << 31) - 1, 0, 12345], size=200).tolist()
@@ -216,7 +225,8 @@ def test_fast_path_detects_a_difference_that_leaves_int64(structure):
 def test_first_sum_wraps_while_the_states_stay_in_range(structure, rounding):
     # a single large tap and a 40-bit accumulator: only B0 x[n] leaves the range
     ar = Arithmetic(data=QFormat(1, 31), coef=QFormat(2, 30), acc_bits=40, structure=structure, rounding=rounding)
-    prog = ChannelProgram("t", 48000, ar, (SectionOp(b=(1 << 29, 0, 0), a=(0, 0), structure=structure),))
+    c = (1 << 29, 0, 0, 0, 0, 0, 0, 0) if STRUCTURE_TABLE[structure].state_space else (1 << 29, 0, 0, 0, 0)
+    prog = ChannelProgram("t", 48000, ar, (_sec(c, 0, structure),))
     x = [(1 << 31) - 1, -(1 << 31), 1 << 20, -(1 << 25), 12345, (1 << 31) - 1]
     _compare(prog, x)
     assert sim.simulate(prog, x, trace=True).acc_overflow_counts[0] > 0
@@ -259,3 +269,29 @@ def test_wide_feedback_section_equals_exact_model_on_every_mode(rounding, overfl
     prog = ChannelProgram("t", 48000, ar, secs)
     _compare(prog, x.tolist())
     _compare(prog, x.tolist(), exact=True)
+
+
+@pytest.mark.parametrize("rounding", ROUNDING_MODES)
+@pytest.mark.parametrize("overflow", OVERFLOW_MODES)
+@pytest.mark.parametrize("acc", [24, 32, 40])
+def test_coupled_form_equals_exact_model_at_full_scale(rounding, overflow, acc):
+    # Q1.15 data, Q2.14 coefficients (a 16-bit part): poles 0.999 e^(+-j 0.01) as a rotation
+    # (Rader & Gold 1967, from memory: alpha = r cos(theta), beta = r sin(theta)), an output
+    # combination that saturates, full-scale and random inputs; a 24-bit accumulator wraps
+    ar = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 14), acc_bits=acc, rounding=rounding,
+                    overflow=overflow, structure="coupled")
+    al, be = round(0.999 * np.cos(0.01) * 2 ** 14), round(0.999 * np.sin(0.01) * 2 ** 14)
+    prog = ChannelProgram("t", 48000, ar, (
+        SectionOp(b=(8000, 30000, -30000, 2000), a=(al, -be, be, al), shift=0, structure="coupled"),
+        SectionOp(b=(-32768, 32767, 32767, -32768), a=(32767, -32768, 32767, 32767), shift=1, structure="coupled"),
+    ))
+    rng = np.random.default_rng(13)
+    x = np.concatenate([np.full(300, 32767), np.full(200, -32768),
+                        rng.integers(-32768, 32768, 800)]).tolist()
+    _compare(prog, x)
+    _compare(prog, x, exact=True)
+    t = sim.simulate(prog, x, trace=True)
+    if acc == 24:
+        assert t.acc_overflow_counts[0] > 0 and t.acc_overflow_counts[1] > 0
+    else:
+        assert t.overflow_counts[0] > 0  # the states (DC gain about 8.6) overflow their word

@@ -8,6 +8,8 @@
  *
  *   cascade(x, ys, coefs, structure, acc_bits, rounding, overflow, data_width)
  *       consecutive second-order sections, fused sample by sample
+ *   coupled(x, y, coefs, acc_bits, rounding, overflow, data_width)
+ *       one coupled-form section (engine code 3; exact wide sums)
  *   fir(x, y, taps, k, acc_bits, rounding, overflow, data_width)
  *   gain(x, y, C, k, acc_bits, rounding, overflow, data_width)
  *   sos_wide(x, y, B0..A2H, A1L, A2L, L, k, ...): one df1-wide-fb section
@@ -562,6 +564,62 @@ done:
     return result;
 }
 
+/* ------------------------------------------------------------ coupled form
+ * coupled(x, y, coefs, acc_bits, rounding, overflow, width) -> (ovf, acc_ovf)
+ * coefs = (D, C1, C2, G, A11, A12, A21, A22, k) (coefc/program.py, "coupled"):
+ *   accY = wrapA(D x + C1 S1 + C2 S2);  y = fit(round_shift(accY, k))
+ *   acc1 = wrapA(A11 S1 + A12 S2 + G x);  acc2 = wrapA(A21 S1 + A22 S2)
+ *   S1 = fit(round_shift(acc1, k));  S2 = fit(round_shift(acc2, k))
+ * Every product of two words fits int64; the sums are exact (wsum_t).  A sample
+ * counts one data overflow when any of its three fits changed a value, one
+ * accumulator overflow when any of its three sums left the accumulator. */
+static PyObject *py_coupled(PyObject *self, PyObject *args)
+{
+    PyObject *xo, *yo, *co;
+    int acc_bits, rounding, overflow, width;
+    if (!PyArg_ParseTuple(args, "OOOiiii", &xo, &yo, &co, &acc_bits, &rounding, &overflow, &width))
+        return NULL;
+    Py_buffer xb, yb, cb;
+    if (get_xy(xo, yo, &xb, &yb, 'i') < 0) return NULL;
+    if (get_buf(co, &cb, 0, 'i', "coefs") < 0) { PyBuffer_Release(&xb); PyBuffer_Release(&yb); return NULL; }
+    if (cb.len / 8 != 9) {
+        PyErr_SetString(PyExc_ValueError, "engine: coupled coefs must hold 9 integers");
+        PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&cb);
+        return NULL;
+    }
+    const int64_t *c = (const int64_t *)cb.buf;
+    arith_t ar;
+    if (arith_init(&ar, (int)c[8], acc_bits, rounding, overflow, width) < 0) {
+        PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&cb);
+        return NULL;
+    }
+    const int64_t D = c[0], C1 = c[1], C2 = c[2], G = c[3], A11 = c[4], A12 = c[5], A21 = c[6], A22 = c[7];
+    Py_ssize_t n = xb.len / 8;
+    const int64_t *x = (const int64_t *)xb.buf;
+    int64_t *y = (int64_t *)yb.buf;
+    long long ovf = 0, aovf = 0;
+    int64_t s1 = 0, s2 = 0;
+    Py_BEGIN_ALLOW_THREADS
+    for (Py_ssize_t i = 0; i < n; i++) {
+        long long bad = 0, o = 0;
+        wsum_t w, w1, w2;
+        WS_INIT(w); WS_ADD(w, D * x[i]); WS_ADD(w, C1 * s1); WS_ADD(w, C2 * s2);
+        WS_INIT(w1); WS_ADD(w1, A11 * s1); WS_ADD(w1, A12 * s2); WS_ADD(w1, G * x[i]);
+        WS_INIT(w2); WS_ADD(w2, A21 * s1); WS_ADD(w2, A22 * s2);
+        int64_t accy = WS_FINISH(w, &ar, &bad);
+        int64_t acc1 = WS_FINISH(w1, &ar, &bad);
+        int64_t acc2 = WS_FINISH(w2, &ar, &bad);
+        y[i] = fit(rshift(accy, &ar), &ar, &o);
+        s1 = fit(rshift(acc1, &ar), &ar, &o);
+        s2 = fit(rshift(acc2, &ar), &ar, &o);
+        ovf += o != 0;
+        aovf += bad != 0;
+    }
+    Py_END_ALLOW_THREADS
+    PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&cb);
+    return Py_BuildValue("LL", ovf, aovf);
+}
+
 /* ------------------------------------------------------------ zero-input iteration */
 
 /* The zero-input recursion of a section (coefc.analyse.limitcycles), run on many
@@ -1033,6 +1091,8 @@ static PyMethodDef engine_methods[] = {
     {"cascade", py_cascade, METH_VARARGS,
      "cascade(x, ys, coefs, structure, acc_bits, rounding, overflow, data_width) -> [(ovf, acc_ovf), ...]\n"
      "coefs: int64 buffer of B0, B1, B2, A1, A2, k per section; ys: one writable int64 buffer per section."},
+    {"coupled", py_coupled, METH_VARARGS,
+     "coupled(x, y, coefs[D, C1, C2, G, A11, A12, A21, A22, k], acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)"},
     {"fir", py_fir, METH_VARARGS, "fir(x, y, taps, k, acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)"},
     {"sos_wide", py_sos_wide, METH_VARARGS,
      "sos_wide(x, y, B0, B1, B2, A1H, A2H, A1L, A2L, L, k, acc_bits, rounding, overflow, data_width)\n"

@@ -169,7 +169,7 @@ def as_float_blocks(program: ChannelProgram) -> tuple[Block, ...]:
     coefficients (roundoff noise and overflow aside).  Consecutive sections become
     one :class:`SosBlock`.
     """
-    from .program import DelayOp, FirOp, GainOp, SectionOp
+    from .program import DelayOp, FirOp, GainOp, SectionOp, section_transfer
 
     ar = program.arithmetic
     fc = 0 if ar.is_float else ar.coef.frac_bits
@@ -184,7 +184,8 @@ def as_float_blocks(program: ChannelProgram) -> tuple[Block, ...]:
     for op in program.ops:
         scale = 1.0 if ar.is_float else 2.0 ** (op.shift - fc) if not isinstance(op, DelayOp) else 1.0
         if isinstance(op, SectionOp):
-            rows.append([float(v) * scale for v in op.b] + [1.0] + list(op.a_phys(None if ar.is_float else ar.coef)))
+            bq, aq = section_transfer(op, 0 if ar.is_float else ar.coef)
+            rows.append(bq + aq)
             continue
         flush()
         if isinstance(op, FirOp):

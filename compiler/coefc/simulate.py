@@ -1,8 +1,8 @@
 """Bit-true engine: a :class:`~coefc.program.ChannelProgram` and input samples in,
 the output samples (and optionally every op's output and overflow counts) out.
 
-The arithmetic is exactly the one stated in :mod:`coefc.program` (df1, tdf2, df1ef
-sections, FIR, gain, delay; accumulators wrap modulo ``2^acc_bits``; rounding and
+The arithmetic is exactly the one stated in :mod:`coefc.program` (df1, tdf2, df1ef,
+coupled sections, FIR, gain, delay; accumulators wrap modulo ``2^acc_bits``; rounding and
 overflow by the program's arithmetic).  Input for fixed-point programs is an
 integer array of data words (any integer dtype; values must lie in the data
 word), output an int64 array; for float32 programs input and output are float32.
@@ -138,7 +138,8 @@ def simulate(program: ChannelProgram, x, *, trace: bool = False, _exact: bool = 
     i = 0
     while i < len(ops):
         op = ops[i]
-        if fast and not ar.is_float and isinstance(op, SectionOp) and not _wide(op):
+        if fast and not ar.is_float and isinstance(op, SectionOp) and not _wide(op) \
+                and not STRUCTURE_TABLE[op.structure].state_space:
             j = i
             while j < len(ops) and isinstance(ops[j], SectionOp) and ops[j].structure == op.structure \
                     and not _wide(ops[j]):
@@ -174,6 +175,9 @@ def _run_fast(program: ChannelProgram, op, x: np.ndarray):
     if _wide(op):
         o, a = _engine.sos_wide(x, y, *[int(v) for v in op.b], *[int(v) for v in op.a], *_lo(op),
                                 lo_bits(ar.coef), _k(program, op), *common)
+    elif isinstance(op, SectionOp) and STRUCTURE_TABLE[op.structure].state_space:
+        coefs = np.array([int(v) for v in (*op.b, *op.a)] + [_k(program, op)], dtype=np.int64)
+        o, a = _engine.coupled(x, y, coefs, *common)
     elif isinstance(op, SectionOp):
         o, a = _engine.sos(x, y, *[int(v) for v in op.b], *[int(v) for v in op.a], _k(program, op),
                            _STRUCT_CODE[op.structure], *common)
@@ -213,6 +217,8 @@ def _delay(x: np.ndarray, d: int) -> np.ndarray:
 def _run_float(op, x: np.ndarray, fast: bool):
     if isinstance(op, DelayOp):
         return _delay(x, op.samples), 0, 0
+    if isinstance(op, SectionOp) and not STRUCTURE_TABLE[op.structure].float32:
+        raise TypeError(f"structure '{op.structure}' has no float32 recurrence")
     y = np.empty_like(x)
     if fast:
         if isinstance(op, SectionOp):
@@ -321,6 +327,19 @@ def _run_exact(program: ChannelProgram, op, x: np.ndarray):
                     break
                 s += t * xs[n - j]
             ys[n] = out(acc_of(s))[0]
+    elif isinstance(op, SectionOp) and STRUCTURE_TABLE[op.structure].state_space:
+        d, c1, c2, g = (int(v) for v in op.b)
+        a11, a12, a21, a22 = (int(v) for v in op.a)
+        s1 = s2 = 0
+        for n, xn in enumerate(xs):
+            before_acc, before_ovf = n_acc, n_ovf
+            accy = acc_of(d * xn + c1 * s1 + c2 * s2)
+            acc1 = acc_of(a11 * s1 + a12 * s2 + g * xn)
+            acc2 = acc_of(a21 * s1 + a22 * s2)
+            ys[n] = out(accy)[0]
+            s1, s2 = out(acc1)[0], out(acc2)[0]
+            n_acc = before_acc + (n_acc != before_acc)  # one event per sample
+            n_ovf = before_ovf + (n_ovf != before_ovf)
     elif isinstance(op, SectionOp):
         b0, b1, b2 = (int(v) for v in op.b)
         a1, a2 = (int(v) for v in op.a)

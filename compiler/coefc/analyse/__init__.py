@@ -252,10 +252,14 @@ def instability(program: ChannelProgram) -> str | None:
             a1, a2 = (Fraction(float(c)) for c in op.a)
         else:
             unit = Fraction(2) ** (fc - op.shift)  # the integer that means 1.0 in this section
-            a1, a2 = Fraction(int(op.a[0])) / unit, Fraction(int(op.a[1])) / unit
-            if op.a_lo:  # df1-wide-fb: the low words, of weight 2^-L (coefc.program)
-                lo = unit * 2 ** lo_bits(ar.coef)
-                a1, a2 = a1 + Fraction(int(op.a_lo[0])) / lo, a2 + Fraction(int(op.a_lo[1])) / lo
+            if len(op.a) == 4:  # coupled: the characteristic polynomial of the integer state matrix
+                a11, a12, a21, a22 = (Fraction(int(v)) / unit for v in op.a)
+                a1, a2 = -(a11 + a22), a11 * a22 - a12 * a21
+            else:
+                a1, a2 = Fraction(int(op.a[0])) / unit, Fraction(int(op.a[1])) / unit
+                if op.a_lo:  # df1-wide-fb: the low words, of weight 2^-L (coefc.program)
+                    lo = unit * 2 ** lo_bits(ar.coef)
+                    a1, a2 = a1 + Fraction(int(op.a_lo[0])) / lo, a2 + Fraction(int(op.a_lo[1])) / lo
         if abs(a2) < 1 and abs(a1) < 1 + a2:
             continue
         import numpy as np

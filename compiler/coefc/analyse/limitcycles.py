@@ -1204,7 +1204,13 @@ def analyse_limit_cycles(program: ChannelProgram, *, max_states: int = MAX_STATE
     for i, op in enumerate(program.ops):
         if isinstance(op, SectionOp):
             nsec += 1
-            if int(op.a[0]) != 0 or int(op.a[1]) != 0 or any(int(v) for v in op.a_lo):
+            if len(op.a) == 4:  # coupled (state-space) sections: coefc.analyse.coupled_cycles
+                from .coupled_cycles import analyse_coupled
+
+                res = analyse_coupled(op, i, ar)
+                out.append(replace(res, **_at_output(program, res)))
+                numbers.append(nsec)
+            elif int(op.a[0]) != 0 or int(op.a[1]) != 0 or any(int(v) for v in op.a_lo):
                 res = analyse_section(op, i, ar, max_states=max_states, **kw)
                 out.append(replace(res, **_at_output(program, res)))
                 numbers.append(nsec)
@@ -1213,6 +1219,10 @@ def analyse_limit_cycles(program: ChannelProgram, *, max_states: int = MAX_STATE
 
 def cycle_outputs(op: SectionOp, res: SectionLimitCycles, arith: Arithmetic) -> list[int]:
     """The outputs of one period of the granular cycle found in *res* (from its start state)."""
+    if len(op.a) == 4:
+        from .coupled_cycles import cycle_outputs as coupled_outputs
+
+        return coupled_outputs(op, res.start_state, res.period, arith)
     a1, a2 = int(op.a[0]), int(op.a[1])
     k = arith.coef.frac_bits - op.shift
     st = res.start_state
@@ -1247,7 +1257,7 @@ def _at_output(program: ChannelProgram, res: SectionLimitCycles) -> dict:
     section's bound times the l1 gain of the later operations (realised
     coefficients) plus the worst-case roundoff of the later operations themselves.
     """
-    from .linear import noise_impulse, op_models, pole_radius, response_length, tail_impulse
+    from .linear import noise_impulses, op_models, pole_radius, response_length, tail_impulse
 
     rest = program.ops[res.op_index + 1:]
     if not rest:
@@ -1267,8 +1277,9 @@ def _at_output(program: ChannelProgram, res: SectionLimitCycles) -> dict:
         nb = max(n, response_length(models))
         h = tail_impulse(models, res.op_index + 1, nb)
         c, r = error_interval(ar.rounding)
-        rnd = sum((abs(c) + r) * float(np.sum(np.abs(noise_impulse(models, j, nb))))
-                  for j in range(res.op_index + 1, len(models)) if models[j].k > 0)
+        rnd = sum((abs(c) + r) * float(np.sum(np.abs(g)))
+                  for j in range(res.op_index + 1, len(models)) if models[j].k > 0
+                  for g in noise_impulses(models, j, nb))
         if np.all(np.isfinite(h)) and np.isfinite(rnd):
             bound = (res.bound_lsb * float(np.sum(np.abs(h))) + rnd) * (1 + 1e-9)  # l1 sums of decayed tails
     amp = None

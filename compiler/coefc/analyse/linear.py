@@ -20,11 +20,22 @@ Structures (the recurrences are those of :mod:`coefc.program`):
            variance ``(1 - 2^-2L)/12 * 2^-2k`` (uniform on its grid, taken
            independent of the rounding error; the model of Jackson 1970 applied to
            the extra quantiser).  ``extra_mean``/``extra_var`` carry it.
+``coupled`` three rounding points (:mod:`coefc.program`): the output rounding reaches
+           ``y`` directly (``E0 -> Y`` is 1); the rounding of state ``j`` enters
+           ``s[n+1]`` and reaches ``y`` through ``C (zI - A)^-1 e_j``:
+           ``E1 -> Y = (C1 z^-1 + (C2 A21 - C1 A22) z^-2)/A(z)``,
+           ``E2 -> Y = (C2 z^-1 + (C1 A12 - C2 A11) z^-2)/A(z)``.  The two states are
+           internal nodes (data words): ``X -> S1 = G (z^-1 - A22 z^-2)/A(z)``,
+           ``X -> S2 = G A21 z^-2/A(z)``; state ``j``'s rounding reaches state ``i``
+           through entry ``(i, j)`` of ``z^-1 (I - A z^-1)^-1``.
 
 References
 ----------
 L. B. Jackson, "Roundoff-noise analysis for fixed-point digital filters realized in
 cascade or parallel form", IEEE Trans. Audio Electroacoust. AU-18(2), 1970.
+C. T. Mullis and R. A. Roberts, "Synthesis of minimum roundoff noise fixed point
+digital filters", IEEE Trans. Circuits Syst. CAS-23(9), 1976 (state-space noise
+transfer ``C (zI - A)^-1``; from memory).
 """
 
 from __future__ import annotations
@@ -34,7 +45,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..blocks import impulse_length
-from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE, lo_bits
+from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE, lo_bits, section_transfer
 
 
 
@@ -61,6 +72,17 @@ class OpModel:
     structure: str = ""
     extra_mean: float = 0.0  # a second error source at the rounding node, output LSB (df1-wide-fb)
     extra_var: float = 0.0
+    # state-space sections (coupled): further rounding sources with the same k, their (b, a) to the
+    # op output; the states as internal nodes, (b, a) from the op input; per state, (b, a) from
+    # each state rounding to that state
+    extra_noise: tuple = ()
+    states: tuple = ()
+    state_noise: tuple = ()
+
+    @property
+    def noise_paths(self) -> list:
+        """``(b, a)`` from every rounding source of the op to its output (the first is ``noise_b/noise_a``)."""
+        return [(self.noise_b, self.noise_a), *self.extra_noise]
 
     @property
     def recursive(self) -> bool:
@@ -132,7 +154,19 @@ def _build_models(program: ChannelProgram) -> list[OpModel]:
 
     one = np.array([1.0])
     for i, op in enumerate(program.ops):
-        if isinstance(op, SectionOp):
+        if isinstance(op, SectionOp) and STRUCTURE_TABLE[op.structure].state_space and not ar.is_float:
+            bq, aq = section_transfer(op, fc)
+            b, a = np.array(bq), np.array(aq)
+            k = effective_drop(tuple(op.b) + tuple(op.a), fc - op.shift)
+            d, c1, c2, g = (phys(c, op.shift) for c in op.b)
+            a11, a12, a21, a22 = (phys(c, op.shift) for c in op.a)
+            extra = ((np.array([0.0, c1, c2 * a21 - c1 * a22]), a), (np.array([0.0, c2, c1 * a12 - c2 * a11]), a))
+            states = ((np.array([0.0, g, -g * a22]), a), (np.array([0.0, 0.0, g * a21]), a))
+            snoise = (((np.array([0.0, 1.0, -a22]), a), (np.array([0.0, 0.0, a12]), a)),
+                      ((np.array([0.0, 0.0, a21]), a), (np.array([0.0, 1.0, -a11]), a)))
+            out.append(OpModel(i, "section", b, a, one, one, k, fs_data, acc_fs(op.shift), op.structure,
+                               extra_noise=extra, states=states, state_noise=snoise))
+        elif isinstance(op, SectionOp):
             b = np.array([phys(c, op.shift) for c in op.b])
             a = np.array([1.0] + list(op.a_phys(None if ar.is_float else ar.coef)))
             structure = op.structure or ar.structure
@@ -146,7 +180,8 @@ def _build_models(program: ChannelProgram) -> list[OpModel]:
                 L, kk = lo_bits(ar.coef), fc - op.shift
                 em = 0.5 * (1.0 - 2.0 ** -L) * 2.0 ** -kk
                 ev = (1.0 - 2.0 ** (-2 * L)) / 12.0 * 2.0 ** (-2 * kk)
-            out.append(OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift), structure, em, ev))
+            out.append(OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift), structure, extra_mean=em,
+                               extra_var=ev))
         elif isinstance(op, FirOp):
             b = np.array([phys(c, op.shift) for c in op.taps])
             k = 0 if ar.is_float else effective_drop(op.taps, fc - op.shift)
@@ -242,13 +277,19 @@ def tail_impulse(models: list[OpModel], j: int, n: int) -> np.ndarray:
     return tails[j]
 
 
-def noise_impulse(models: list[OpModel], j: int, n: int) -> np.ndarray:
-    """Impulse response from the rounding error of operation *j* to the channel output (read-only)."""
+def noise_impulse(models: list[OpModel], j: int, n: int, source: int = 0) -> np.ndarray:
+    """Impulse response from rounding source *source* of operation *j* to the channel output (read-only)."""
     noise = _responses(models, n)["noise"]
-    if j not in noise:
-        m = models[j]
-        noise[j] = _frozen(_run(m.noise_b, m.noise_a, tail_impulse(models, j + 1, n)))
-    return noise[j]
+    key = j if source == 0 else (j, source)
+    if key not in noise:
+        nb, na = models[j].noise_paths[source]
+        noise[key] = _frozen(_run(nb, na, tail_impulse(models, j + 1, n)))
+    return noise[key]
+
+
+def noise_impulses(models: list[OpModel], j: int, n: int) -> list[np.ndarray]:
+    """Impulse responses from every rounding source of operation *j* to the channel output."""
+    return [noise_impulse(models, j, n, s) for s in range(len(models[j].noise_paths))]
 
 
 def chain_filter(models: list[OpModel], x: np.ndarray) -> np.ndarray:

@@ -72,7 +72,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..program import ChannelProgram
-from .linear import OpModel, chain_filter, node_impulses, noise_impulse, op_models, pole_radius, response_length
+from .linear import OpModel, chain_filter, node_impulses, noise_impulses, op_models, pole_radius, response_length
 
 #: power of a full-scale sine (full scale = 1.0): the 0 dBFS reference of AES17
 FULL_SCALE_SINE_POWER = 0.5
@@ -141,6 +141,7 @@ class NoiseSource:
     dc_gain: float
     output_variance_lsb2: float
     correlated_gain: float = 0.0  # magnitude truncation: c_j of the signal-following part
+    source: int = 0  # which rounding of the op (coupled: 0 the output, 1 and 2 the states)
 
 
 @dataclass(frozen=True, eq=False)
@@ -188,18 +189,25 @@ class NoiseAnalysis:
         corr = np.zeros(f.shape, dtype=complex)
         for src in self.sources:
             m = models[src.op_index]
-            G = _freq(m.noise_b, m.noise_a, w)
+            G = _freq(*m.noise_paths[src.source], w)
             for r in resp[src.op_index + 1:]:
                 G = G * r
             psd += src.variance_lsb2 * self.lsb ** 2 * np.abs(G) ** 2
             if src.correlated_gain:
                 H = np.ones(f.shape, dtype=complex)
-                for r in resp[: src.op_index + 1]:
+                for r in resp[: src.op_index]:
                     H = H * r
+                H = H * (_freq(*m.states[src.source - 1], w) if src.source else resp[src.op_index])
                 corr += src.correlated_gain * G * H
         psd += self.lsb ** 2 * np.abs(corr) ** 2
         with np.errstate(divide="ignore"):
             return 10 * np.log10(2.0 * psd / fs / FULL_SCALE_SINE_POWER)
+
+
+def _unit(n: int) -> np.ndarray:
+    u = np.zeros(n)
+    u[0] = 1.0
+    return u
 
 
 def _freq(b, a, w):
@@ -242,29 +250,33 @@ def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
     for m in models:
         if m.k <= 0:
             continue
-        mu, s2 = rounding_error_stats(m.k, ar.rounding)
-        g = noise_impulse(models, m.index, n)
-        pg = float(np.dot(g, g))
-        dc = float(np.sum(g))
-        if ar.rounding == "toward-zero":
-            # e = -sign(v) u: split into a white part and a part proportional to the value v
-            # (Bussgang), which reaches the output along the signal's own path
-            eu = 0.5 * (1.0 - 2.0 ** -m.k)
-            white = (s2 - eu * eu) + eu * eu * (1.0 - 2.0 / math.pi)
-            h = node_imps[m.index]
-            hn = math.sqrt(float(np.dot(h, h)))
-            cg = -eu * math.sqrt(2.0 / math.pi) / hn if hn > 0 else 0.0
-            if cg:
-                corr += cg * _conv(g, h)
-            s2 = white
-        else:
-            cg = 0.0
-        # a second source at the same node (df1-wide-fb's floor of the low products), independent
-        mu, s2 = mu + m.extra_mean, s2 + m.extra_var
-        sources.append(NoiseSource(m.index, m.k, mu, s2, pg, dc, s2 * pg, cg))
-        var += s2 * pg
-        mean += mu * dc
-        dc_var += s2 * dc * dc
+        for src, g in enumerate(noise_impulses(models, m.index, n)):
+            mu, s2 = rounding_error_stats(m.k, ar.rounding)
+            pg = float(np.dot(g, g))
+            dc = float(np.sum(g))
+            if ar.rounding == "toward-zero":
+                # e = -sign(v) u: split into a white part and a part proportional to the value v
+                # (Bussgang), which reaches the output along the signal's own path
+                eu = 0.5 * (1.0 - 2.0 ** -m.k)
+                white = (s2 - eu * eu) + eu * eu * (1.0 - 2.0 / math.pi)
+                h = node_imps[m.index]
+                if src:  # a coupled state: the value rounded is the state
+                    from .linear import _run
+
+                    h = _run(*m.states[src - 1], node_imps[m.index - 1] if m.index else _unit(n))
+                hn = math.sqrt(float(np.dot(h, h)))
+                cg = -eu * math.sqrt(2.0 / math.pi) / hn if hn > 0 else 0.0
+                if cg:
+                    corr += cg * _conv(g, h)
+                s2 = white
+            else:
+                cg = 0.0
+            if not src:  # a second source at the same node (df1-wide-fb's floor of the low products), independent
+                mu, s2 = mu + m.extra_mean, s2 + m.extra_var
+            sources.append(NoiseSource(m.index, m.k, mu, s2, pg, dc, s2 * pg, cg, src))
+            var += s2 * pg
+            mean += mu * dc
+            dc_var += s2 * dc * dc
     correlated = float(np.dot(corr, corr))
     var += correlated
     var *= lsb ** 2

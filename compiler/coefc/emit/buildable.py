@@ -230,14 +230,19 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
             if op.structure not in target.structures:
                 fail(f"target '{target.name}' has no kernel for structure '{op.structure}'; it supports "
                      f"{', '.join(target.structures)} ({setting('structure')})")
+            if not STRUCTURE_TABLE[op.structure].reference_kernel and not generated:
+                fail(f"{what} is {op.structure} ({STRUCTURE_TABLE[op.structure].description}), which the "
+                     f"reference kernel of target '{target.name}' does not run; write generated code "
+                     f"({setting('kernel')}) or choose another structure ({setting('structure')})")
+            if STRUCTURE_TABLE[op.structure].state_space:  # generated code only (checked above)
+                k = rshift(op.shift, what, True)
+                ops.append(KernelOp(op.structure.upper(), k, 1, words((*op.b, *op.a), what),
+                                    STATE_WORDS[op.structure], f"{what}, {op.structure}, coefficient shift {op.shift}"))
+                continue
             terms = {"b0": op.b[0], "b1": op.b[1], "b2": op.b[2], "a1": op.a[0], "a2": op.a[1]}
             values = [-terms[t[1:]] if t.startswith("-") else terms[t] for t in info.section_layout]
             k = rshift(op.shift, what, True)
-            if STRUCTURE_TABLE[op.structure].wide_feedback:
-                if not generated:
-                    fail(f"{what} is {op.structure} (double-word feedback coefficients), which the reference "
-                         f"kernel of target '{target.name}' does not run; write generated code (coefc build "
-                         "--kernel) or choose another structure (--structure)")
+            if STRUCTURE_TABLE[op.structure].wide_feedback:  # generated code only (checked above)
                 values = list(values) + [int(v) for v in (op.a_lo or (0, 0))]
             ops.append(KernelOp(op.structure.upper().replace("-", "_"), k, 1, words(values, what),
                                 STATE_WORDS[op.structure], f"{what}, {op.structure}, coefficient shift {op.shift}"))
@@ -307,6 +312,10 @@ def validate(realisation, generated: bool = False) -> tuple[BuildInfo, Names, tu
     places = {"data": desc.source, "coef": desc.source, "acc_bits": desc.source}
     check_kernel_words(arith, target, places)
     return info, names, tuple(kernel_program(p, info, target, desc.source, generated) for p in programs)
+
+
+#: structures the reference kernels (the operation table) run; the others only as generated code
+KERNEL_STRUCTURES = tuple(s.name for s in STRUCTURE_TABLE.values() if s.reference_kernel)
 
 
 def refusal(realisation, generated: bool = False) -> str | None:

@@ -190,7 +190,8 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
     Counts the products and the sums of products of the generated code
     (rounding and saturation steps not counted): a section 5 multiplies and
     4 adds (5 with error feedback; df1-wide-fb 7 multiplies, 6 adds and 7 stored
-    coefficients); an FIR of N taps N multiplies and N - 1 adds,
+    coefficients; a coupled section 8 multiplies, 5 adds and 8 coefficients); an FIR of
+    N taps N multiplies and N - 1 adds,
     folded ceil(N/2) multiplies and N - 1 adds; a gain one multiply; a delay none.
     Coefficient bytes count the stored coefficient words (a folded FIR stores
     ceil(N/2)); state bytes the fields of the generated state structure before
@@ -200,7 +201,12 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
     muls = adds = coefs = 0
     state = 0
     for op in program.ops:
-        if isinstance(op, SectionOp):
+        if isinstance(op, SectionOp) and STRUCTURE_TABLE[op.structure].state_space:
+            muls += STRUCTURE_TABLE[op.structure].multiplies  # coupled: y 3, S1 3, S2 2
+            adds += 5
+            coefs += 8
+            state += _section_state_bytes(op, program, data_bytes)
+        elif isinstance(op, SectionOp):
             st = STRUCTURE_TABLE[op.structure]
             muls += st.multiplies
             adds += (5 if st.error_feedback else 4) + (2 if st.wide_feedback else 0)
@@ -416,7 +422,29 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
     for i, op in enumerate(program.ops, 1):
         src = "in" if not out else "out"
         f = f"op{i}"
-        if isinstance(op, SectionOp):
+        if isinstance(op, SectionOp) and STRUCTURE_TABLE[op.structure].state_space:
+            n_sec += 1
+            k = fx.k_of(op.shift)
+            C = _container(program, k)
+            Dc, C1, C2, G = (int(v) for v in op.b)
+            A11, A12, A21, A22 = (int(v) for v in op.a)
+            head = [f"section {n_sec}, coupled: D {Dc}, C1 {C1}, C2 {C2}, G {G}, A11 {A11}, A12 {A12}, "
+                    f"A21 {A21}, A22 {A22} (coefficient shift {op.shift}, rounding shift {k}, {C}-bit container)",
+                    f"y = fit(round((D x + C1 S1 + C2 S2) / 2^{k})); S1 = fit(round((A11 S1 + A12 S2 + G x) / 2^{k})); "
+                    f"S2 = fit(round((A21 S1 + A22 S2) / 2^{k})) (old S1, S2 on the right)"]
+            fields = [(D, f"{f}_s", 2, "S1, S2 (data words)")]
+            pre = [f"{D} s1 = s->{f}_s[0], s2 = s->{f}_s[1];"]
+            post = [f"s->{f}_s[0] = s1;", f"s->{f}_s[1] = s2;"]
+            body = [f"{D} y, n1, n2;"]  # three sibling blocks: each rounding's temporaries stay in its own
+            for name, terms in (("y", [(1, Dc, "x"), (1, C1, "s1"), (1, C2, "s2")]),
+                                ("n1", [(1, A11, "s1"), (1, A12, "s2"), (1, G, "x")]),
+                                ("n2", [(1, A21, "s1"), (1, A22, "s2")])):
+                inner = fx.sum_lines("a", C, terms) + fx.finish("a", k, C, "res") + [f"{name} = res;"]
+                body += ["{", *_indent(inner, 4), "}"]
+            body += ["s1 = n1;", "s2 = n2;", "out[t] = y;"]
+            lines = pre + _loop(src, body, D) + post
+            out.append(_OpCode(head, fields, lines))
+        elif isinstance(op, SectionOp):
             n_sec += 1
             k = fx.k_of(op.shift)
             C = _container(program, k)
