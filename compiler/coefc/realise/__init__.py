@@ -194,7 +194,8 @@ def _chain_freq(chain, f):
 def _fixed_gain(g: float, arithmetic: Arithmetic, notes: list, where: str) -> GainOp:
     fmt = arithmetic.coef
     ints, s, sat = coefficients.fit_group([g], fmt, arithmetic.rounding,
-                                          min_shift=coefficients.lowest_shift([g], fmt))
+                                          min_shift=coefficients.lowest_shift([g], fmt),
+                                          min_k=arithmetic.product_shift)
     if sat:
         notes.append(Note("saturated", f"{where} gain {g:.6g} does not fit the coefficient word {fmt}: saturated"))
     return GainOp(coef=ints[0], shift=s)
@@ -269,7 +270,8 @@ def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: in
     if kind == "sos":
         b, a = op
         bs = np.asarray(b, dtype=float) * c
-        ints, s, sat = coefficients.fit_section(bs, a, fmt, arithmetic.rounding, min_shift=0)
+        ints, s, sat = coefficients.fit_section(bs, a, fmt, arithmetic.rounding, min_shift=0,
+                                                     min_k=arithmetic.product_shift)
         if sat:
             notes.append(Note("saturated", f"section {n_sec}: coefficients do not fit {fmt} even with a coefficient "
                               f"shift of {s}; saturated (the response will be wrong): use a wider coefficient word"))
@@ -280,7 +282,8 @@ def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: in
     ts = taps * c
     ints, s, sat = coefficients.fit_group(ts, fmt, arithmetic.rounding,
                                           min_shift=coefficients.lowest_shift(ts, fmt),
-                                          acc_limit=arithmetic.acc_bits, data_width=arithmetic.data.width)
+                                          acc_limit=arithmetic.acc_bits + arithmetic.product_shift,
+                                          data_width=arithmetic.data.width, min_k=arithmetic.product_shift)
     if sat:
         notes.append(Note("saturated", f"FIR of {len(op)} taps: taps do not fit {fmt} with the accumulator of "
                           f"{arithmetic.acc_bits} bits; saturated"))
