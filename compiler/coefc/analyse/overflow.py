@@ -141,7 +141,16 @@ def roundoff_bound_lsb(models: list[OpModel], n: int, rounding: str) -> float:
     from .linear import noise_impulse
 
     c, r = error_interval(rounding)
-    return sum((abs(c) + r) * float(np.sum(np.abs(noise_impulse(models, m.index, n)))) for m in models if m.k > 0)
+    total = sum((abs(c) + r) * float(np.sum(np.abs(noise_impulse(models, m.index, n)))) for m in models if m.k > 0)
+    return total + sum(m.product_bound * float(np.sum(np.abs(_product_path(models, m, n))))
+                       for m in models if m.product_bound)
+
+
+def _product_path(models: list[OpModel], m: OpModel, n: int) -> np.ndarray:
+    """Impulse response from the rounded products of *m* (entering at its accumulator) to the output."""
+    from .linear import _run, tail_impulse
+
+    return _run(np.array([1.0]), m.noise_a, tail_impulse(models, m.index + 1, n))
 
 
 def internal_node_bounds(models: list[OpModel], imps: list[np.ndarray], n: int,
@@ -163,11 +172,13 @@ def internal_node_bounds(models: list[OpModel], imps: list[np.ndarray], n: int,
     out = []
     last = max((m.index for m in models if m.kind != "delay"), default=-1)
     for m, h in zip(models, imps):
-        paths = [_run(m.b, m.a, p) for p in paths]
+        paths = [(w, _run(m.b, m.a, p)) for w, p in paths]
         if m.k > 0:
-            paths.append(_run(m.noise_b, m.noise_a, unit))
+            paths.append((eps, _run(m.noise_b, m.noise_a, unit)))
+        if m.product_bound:  # rounded products: each sample's worst total error, through 1/A(z)
+            paths.append((m.product_bound * lsb, _run(np.array([1.0]), m.noise_a, unit)))
         if m.kind != "delay" and m.index != last:
-            out.append((m.index, float(np.sum(np.abs(h))) + eps * sum(float(np.sum(np.abs(p))) for p in paths)))
+            out.append((m.index, float(np.sum(np.abs(h))) + sum(w * float(np.sum(np.abs(p))) for w, p in paths)))
     return out
 
 
