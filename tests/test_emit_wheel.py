@@ -14,7 +14,7 @@ from pathlib import Path
 import pytest
 
 REPO = Path(__file__).resolve().parent.parent
-BUILTINS = ("mcu16", "mcu32", "dsp24", "float32")
+BUILTINS = ("mcu16", "mcu32", "dsp24", "float32", "mcu32hw")
 
 
 @pytest.mark.skipif(importlib.util.find_spec("build") is None, reason="the 'build' package is not installed")

@@ -370,6 +370,8 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
             pn = [_run(m.b, m.a, p) for p in paths]
             if m.k > 0:
                 pn.append(_run(m.noise_b, m.noise_a, unit))
+            if m.product_bound:  # rounded products: their worst total, through 1/A(z), in units of eps
+                pn.append(_run(np.array([1.0]), m.noise_a, unit) * (m.product_bound / (abs(cen) + rad)))
             roundoff = eps * sum(float(np.sum(np.abs(p))) for p in pn)
             bound = float(np.sum(np.abs(hn))) + roundoff
             state = (rop, g, trial_notes, hn, pn, bound)
