@@ -14,6 +14,9 @@ with its states in local variables, so a compiler keeps them in registers.
 The exact arithmetic is the one stated in :mod:`coefc.program`.  It is written
 without any implementation-defined or undefined C operation:
 
+* with ``[arithmetic] product_shift = P`` every product is formed exactly in int64_t,
+  biased by 2^62 into uint64_t and shifted by P with the target's product rounding
+  (no shift of a negative value), then added modulo the container; otherwise
 * products are formed exactly (``int32_t`` when ``data + coef`` bits fit 32,
   otherwise ``int64_t``) and summed in an *unsigned* container ``U`` of
   ``C = 32`` or ``64`` bits, so the sum is the exact sum modulo ``2^C``; the

@@ -246,6 +246,13 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
                                "a data word needs at least 2 (scaling to 1 - 2 LSB of full scale needs them); "
                                "use a wider data word such as Q1.15",
                                key="--data" if where == "<command line>" else "data")
+    if not arith.is_float and arith.product_shift and arith.product_shift >= arith.coef.frac_bits:
+        where = width_from["coef"]
+        raise DescriptionError(where, f"coefficient word {arith.coef} has {arith.coef.frac_bits} fractional bits, but "
+                               f"target '{target.name}' rounds every product by 2^{arith.product_shift} "
+                               "([arithmetic] product_shift); use a coefficient word with more than "
+                               f"{arith.product_shift} fractional bits", key="--coef" if where == "<command line>"
+                               else "coef")
     if not arith.is_float and arith.acc_bits < arith.data.width:
         where = width_from["acc_bits"] if width_from["acc_bits"] != str(target.folder / "target.toml") \
             else width_from["data"]
