@@ -600,7 +600,7 @@ def _float_ops(program: ChannelProgram) -> list[_OpCode]:
                         f"p = {b2} * x;", f"acc = {a2} * y;", "s2 = p - acc;", "out[t] = y;"]
             else:
                 raise GeneratedCodeError(f"channel '{program.name}': float32 has no {op.structure} sections")
-            out.append(_OpCode(head + fx.product_note(), fields, pre + _loop(src, body, D) + post))
+            out.append(_OpCode(head, fields, pre + _loop(src, body, D) + post))
         elif isinstance(op, FirOp):
             taps = [flt(v) for v in op.taps]
             n = len(taps)
