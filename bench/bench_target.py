@@ -191,6 +191,39 @@ void bench_plain(const int32_t *in, int32_t *out, size_t n)
 }
 """
 
+PLAIN_DF1_HW = r"""
+#include <stddef.h>
+#include <stdint.h>
+/* The plain loop of a high-word-product kernel (mcu32hw): each product rounded by
+   2^29 into a 32-bit word, the words summed in a 32-bit register. */
+#define HW(c, v) ((uint32_t)(int32_t)(((int64_t)(c) * (v) + ((int64_t)1 << 28)) >> 29))
+static const int32_t co[%(S)d][5] = {
+%(rows)s
+};
+static int32_t st[%(S)d][4];
+void bench_plain(const int32_t *in, int32_t *out, size_t n);
+void bench_plain(const int32_t *in, int32_t *out, size_t n)
+{
+    int s;
+    for (s = 0; s < %(S)d; s++) {
+        const int32_t b0 = co[s][0], b1 = co[s][1], b2 = co[s][2], na1 = co[s][3], na2 = co[s][4];
+        int32_t x1 = st[s][0], x2 = st[s][1], y1 = st[s][2], y2 = st[s][3];
+        const int32_t *src = s ? out : in;
+        size_t t;
+        for (t = 0; t < n; t++) {
+            const int32_t x = src[t];
+            int32_t a = (int32_t)(HW(b0, x) + HW(b1, x1) + HW(b2, x2) + HW(na1, y1) + HW(na2, y2));
+            int32_t y;
+            a = %(FINAL)s;
+            y = a > 134217727 ? 134217727 : a < -134217728 ? -134217728 : a;
+            x2 = x1; x1 = x; y2 = y1; y1 = y;
+            out[t] = y;
+        }
+        st[s][0] = x1; st[s][1] = x2; st[s][2] = y1; st[s][3] = y2;
+    }
+}
+"""
+
 PLAIN_FIR = r"""
 #include <stddef.h>
 #include <stdint.h>
@@ -219,11 +252,11 @@ void bench_plain(const int32_t *in, int32_t *out, size_t n)
 """
 
 
-def _fake(programs, name):
-    return generated_files(programs, "mcu32", name)
+def _fake(programs, name, target: str = "mcu32"):
+    return generated_files(programs, target, name)
 
 
-def df1_cascade(arith, sections: int = 8, structure: str = "df1") -> ChannelProgram:
+def df1_cascade(arith, sections: int = 8, structure: str = "df1", shift_all: int | None = None) -> ChannelProgram:
     """An 8-section low-pass cascade (elliptic, 3 kHz at 48 kHz) in Q2.30, shift 0 or 1."""
     from scipy import signal
 
@@ -231,7 +264,7 @@ def df1_cascade(arith, sections: int = 8, structure: str = "df1") -> ChannelProg
     ops = []
     for row in sos:
         b, a = row[:3], row[4:]
-        shift = 1 if max(abs(np.r_[b, a])) >= 2 else 0
+        shift = (1 if max(abs(np.r_[b, a])) >= 2 else 0) if shift_all is None else shift_all
         scale = 2.0 ** (arith.coef.frac_bits - shift)
         ops.append(SectionOp(tuple(int(round(v * scale)) for v in b), tuple(int(round(v * scale)) for v in a),
                              shift, structure))
@@ -336,6 +369,23 @@ def main() -> None:
                                              args.samples)
                 print(f"[{label}] {name}: generated {g / n_taps:.2f}, plain loop {p / n_taps:.2f} instructions per "
                       f"tap-sample (ratio {g / p:.2f}; goal <= 1.1); generated .text {size} bytes")
+        # mcu32hw: every product rounded by 2^29 (high-word products), 32-bit accumulator; one
+        # coefficient shift for all sections (1: the final shift is 0) so the plain loop matches
+        hw = find_target("mcu32hw").arithmetic
+        hw_cascade = df1_cascade(hw, shift_all=1)
+        hk = hw.final_shift(1)
+        hw_rows = ",\n".join("    {%d, %d, %d, %d, %d}" % (*op.b, -op.a[0], -op.a[1]) for op in hw_cascade.ops)
+        final = "a" if hk == 0 else f"(int32_t)((a + (1 << {hk - 1})) >> {hk})"
+        with tempfile.TemporaryDirectory() as tmp:
+            work = Path(tmp)
+            files = _fake([hw_cascade], "bench", "mcu32hw")
+            g, p, size = build_and_count(work, platform, files, "bench.h", "bench_cascade_process",
+                                         "bench_cascade_state_t",
+                                         PLAIN_DF1_HW % {"S": S, "rows": hw_rows, "FINAL": final}, args.samples)
+            print(f"[{label}] DF1 on mcu32hw (products rounded by 2^29, 32-bit accumulator): generated {g / S:.1f}, "
+                  f"plain loop {p / S:.1f} instructions per section-sample (ratio {g / p:.2f}); "
+                  f"generated .text {size} bytes")
+
 
 if __name__ == "__main__":
     main()

@@ -47,8 +47,18 @@ def fit(v: int, bits: int, overflow: str) -> tuple[int, bool]:
 class Model:
     """The arithmetic: data width, coefficient frac bits, acc bits, rounding, overflow."""
 
-    def __init__(self, data_width: int, coef_frac: int, acc_bits: int, rounding: str, overflow: str):
+    def __init__(self, data_width: int, coef_frac: int, acc_bits: int, rounding: str, overflow: str,
+                 product_shift: int = 0, product_rounding: str = "truncate"):
         self.W, self.Fc, self.A, self.rnd, self.ovf = data_width, coef_frac, acc_bits, rounding, overflow
+        self.P, self.prnd = product_shift, product_rounding
+
+    def q(self, coef: int, word: int) -> int:
+        """A product term as it enters the accumulator: coef * word / 2^P rounded (docstring,
+        "Rounded products"); a subtracted term is the product of the negated coefficient."""
+        return rshift(coef * word, self.P, self.prnd) if self.P else coef * word
+
+    def _k(self, shift: int) -> int:
+        return self.Fc - shift - self.P
 
     def _acc(self, exact: int) -> tuple[int, bool]:
         w = wrap(exact, self.A)
@@ -93,7 +103,7 @@ class Model:
             return self.coupled(x, b, a, shift)
         if structure not in ("df1", "tdf2", "df1ef", "df1-wide-fb"):  # the structures this model knows (independently)
             raise NotImplementedError(f"exact model: no recurrence for structure '{structure}'")
-        k = self.Fc - shift
+        k = self._k(shift)
         b0, b1, b2 = b
         a1, a2 = a
         xh = [0, 0]  # x[n-1], x[n-2]
@@ -103,13 +113,14 @@ class Model:
         ys, no, na = [], 0, 0
         for xn in x:
             if structure == "tdf2":
-                acc, w0 = self._acc(b0 * xn + s1)
+                acc, w0 = self._acc(self.q(b0, xn) + s1)
                 yn, _, bad = self._out(acc, k)
-                s1, w1 = self._acc(b1 * xn - a1 * yn + s2)
-                s2, w2 = self._acc(b2 * xn - a2 * yn)
+                s1, w1 = self._acc(self.q(b1, xn) + self.q(-a1, yn) + s2)
+                s2, w2 = self._acc(self.q(b2, xn) + self.q(-a2, yn))
                 na += w0 or w1 or w2
             else:
-                total = b0 * xn + b1 * xh[0] + b2 * xh[1] - a1 * yh[0] - a2 * yh[1]
+                total = (self.q(b0, xn) + self.q(b1, xh[0]) + self.q(b2, xh[1])
+                         + self.q(-a1, yh[0]) + self.q(-a2, yh[1]))
                 if structure == "df1ef":
                     total += e
                 if structure == "df1-wide-fb":
@@ -127,10 +138,10 @@ class Model:
         return ys, no, na
 
     def fir(self, x, taps, shift):
-        k = self.Fc - shift
+        k = self._k(shift)
         ys, no, na = [], 0, 0
         for n in range(len(x)):
-            total = sum(t * x[n - j] for j, t in enumerate(taps) if n - j >= 0)
+            total = sum(self.q(t, x[n - j]) for j, t in enumerate(taps) if n - j >= 0)
             acc, w = self._acc(total)
             yn, _, bad = self._out(acc, k)
             ys.append(yn)
@@ -142,7 +153,7 @@ class Model:
         """The same FIR with symmetric taps folded: t_j (x[n-j] + x[n-N+1+j])."""
         N = len(taps)
         assert list(taps) == list(taps)[::-1]
-        k = self.Fc - shift
+        k = self._k(shift)
         ys = []
         for n in range(len(x)):
             xv = lambda i: x[i] if 0 <= i else 0  # noqa: E731
@@ -154,10 +165,10 @@ class Model:
         return ys
 
     def gain(self, x, c, shift):
-        k = self.Fc - shift
+        k = self._k(shift)
         ys, no, na = [], 0, 0
         for xn in x:
-            acc, w = self._acc(c * xn)
+            acc, w = self._acc(self.q(c, xn))
             yn, _, bad = self._out(acc, k)
             ys.append(yn)
             no += bad
@@ -174,7 +185,8 @@ def run_program(program, x):
     from coefc.program import DelayOp, FirOp, GainOp, SectionOp
 
     ar = program.arithmetic
-    m = Model(ar.data.width, ar.coef.frac_bits, ar.acc_bits, ar.rounding, ar.overflow)
+    m = Model(ar.data.width, ar.coef.frac_bits, ar.acc_bits, ar.rounding, ar.overflow,
+              ar.product_shift, ar.product_rounding)
     cur = [int(v) for v in x]
     nodes, ovf, aovf = [], [], []
     for op in program.ops:

@@ -295,3 +295,72 @@ def test_coupled_form_equals_exact_model_at_full_scale(rounding, overflow, acc):
         assert t.acc_overflow_counts[0] > 0 and t.acc_overflow_counts[1] > 0
     else:
         assert t.overflow_counts[0] > 0  # the states (DC gain about 8.6) overflow their word
+
+
+# ---------------------------------------------------------------- rounded products
+# [arithmetic] product_shift / product_rounding: every product rounded by 2^P before
+# it is added (coefc.program docstring, "Rounded products"); the exact model is
+# written from that text.
+
+#: the structures coefc models with rounded products (the others need exact products: coefc.targetspec)
+EXACT_PRODUCT_FREE = [s for s in STRUCTURES if not (STRUCTURE_TABLE[s].wide_feedback or STRUCTURE_TABLE[s].state_space)]
+
+
+@st.composite
+def rounded_product_programs(draw, product_rounding=None):
+    wd = draw(st.integers(4, 32))
+    wc = draw(st.integers(4, min(32, 64 - wd)))
+    fc = draw(st.integers(2, wc - 1))
+    P = draw(st.integers(1, fc))
+    ar = Arithmetic(data=QFormat(1, wd - 1), coef=QFormat(wc - fc, fc), acc_bits=draw(st.integers(wd, 64)),
+                    rounding=draw(st.sampled_from(ROUNDING_MODES)), overflow=draw(st.sampled_from(OVERFLOW_MODES)),
+                    structure=draw(st.sampled_from(EXACT_PRODUCT_FREE)), product_shift=P,
+                    product_rounding=product_rounding or draw(st.sampled_from(ROUNDING_MODES)))
+    out = []
+    for _ in range(draw(st.integers(1, 3))):
+        op = draw(ops(ar))
+        if not isinstance(op, DelayOp):  # the final shift Fc - s - P must not be negative
+            op = type(op)(**{**op.__dict__, "shift": draw(st.integers(max(fc - P - 62, -4), fc - P))})
+        out.append(op)
+    n = draw(st.integers(0, 40))
+    return ChannelProgram("t", 48000, ar, tuple(out)), [_word(draw, ar.data) for _ in range(n)]
+
+
+@pytest.mark.parametrize("product_rounding", ROUNDING_MODES)
+@settings(**dict(SETTINGS, max_examples=150))
+@given(data=st.data())
+def test_rounded_products_engine_equals_exact_model(product_rounding, data):
+    prog, x = data.draw(rounded_product_programs(product_rounding))
+    assert sim._fast_ok(prog)
+    _compare(prog, x)
+    _compare(prog, x, exact=True)
+
+
+@pytest.mark.parametrize("structure", STRUCTURES)
+@pytest.mark.parametrize("product_rounding", ROUNDING_MODES)
+def test_rounded_products_by_hand(structure, product_rounding):
+    """A worked case: Q1.7 data, Q2.6 coefficients, P = 6 = Fc (no final shift), so every
+    output is the sum of the rounded products; checked against Python's own rounding."""
+    import math
+    from fractions import Fraction
+
+    rnd = {"add-half": lambda f: math.floor(f + Fraction(1, 2)), "truncate": math.floor,
+           "half-even": round, "toward-zero": math.trunc}[product_rounding]  # Python semantics
+    ar = Arithmetic(data=QFormat(1, 7), coef=QFormat(2, 6), acc_bits=16, rounding="add-half",
+                    overflow="saturate", structure=structure, product_shift=6, product_rounding=product_rounding)
+    b, a = (23, -41, 9), (-70, 30)
+    prog = ChannelProgram("t", 48000, ar, (SectionOp(b, a, 0, structure),))
+    x = [100, -37, 5, 0, 0, -128, 127, 3]
+    y = sim.simulate(prog, np.array(x, dtype=np.int64)).tolist()
+    q = lambda c, v: rnd(Fraction(c * v, 64))  # noqa: E731
+    x1 = x2 = y1 = y2 = 0
+    s1 = s2 = 0
+    for n, xn in enumerate(x):
+        if structure == "tdf2":
+            yn = max(-128, min(127, q(b[0], xn) + s1))
+            s1 = q(b[1], xn) + q(-a[0], yn) + s2
+            s2 = q(b[2], xn) + q(-a[1], yn)
+        else:  # df1ef feeds back E = 0: with no final shift there is no residual
+            yn = max(-128, min(127, q(b[0], xn) + q(b[1], x1) + q(b[2], x2) + q(-a[0], y1) + q(-a[1], y2)))
+        assert y[n] == yn, n
+        x2, x1, y2, y1 = x1, xn, y1, yn

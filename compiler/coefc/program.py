@@ -87,6 +87,24 @@ Exact definitions shared by the engine, the C kernels and the noise analysis
     gain   acc  = wrapA(C * x[n]);             y[n] = fit_data(round_shift(acc, k))
     delay  y[n] = x[n - D]
 
+Rounded products (``[arithmetic] product_shift = P > 0``, ``product_rounding``): many
+32-bit parts without a 64-bit multiply-accumulate keep only the high part of each
+product and accumulate those.  Then every product term ``t`` of the sums above
+(``B_i*x[n-i]``, ``C_k*x[n-k]``, ``C*x[n]``, and for the subtracted terms the product
+of the negated coefficient, ``(-A_i)*y[n-i]``) enters the accumulator as::
+
+    q(t) = round_shift_P(t, P)        (rounded by product_rounding, one of the four
+                                       rounding modes, exactly as round_shift)
+
+so the accumulator holds units of ``2^P`` and the final shift is ``k = Fc - s - P >= 0``
+(``k = 0``: ``round_shift(v, 0) = v`` and df1ef's residual ``E`` is 0).  For example
+``tdf2`` becomes ``acc = wrapA(q(B0*x[n]) + S1)``, ``S1 = wrapA(q(B1*x[n]) + q(-A1*y[n]) + S2)``,
+``S2 = wrapA(q(B2*x[n]) + q(-A2*y[n]))``; df1ef adds ``E`` after the rounded products.
+Symmetric FIR taps are never folded (``q(C*(x1+x2)) != q(C*x1) + q(C*x2)``).  With
+``P = 0`` (the default) products are exact and everything above holds as written.
+``(int32_t)(((int64_t)c * x + 2^(P-1)) >> P)`` is ``q`` for add-half, without the
+addition for truncate.
+
 An *accumulator overflow* is a sample where the exact (unwrapped) sum of that
 sample's terms lies outside the accumulator's range (for tdf2 and coupled: any of
 its three sums); wrapping in between is harmless and not counted.  A *data overflow* is a
@@ -212,10 +230,16 @@ class Arithmetic:
     rounding: str = "add-half"
     overflow: str = "saturate"
     scaling: str = "none"
+    product_shift: int = 0  # P: every product rounded to a multiple of 2^P before it is added (0: exact)
+    product_rounding: str = "truncate"  # how each product is rounded when product_shift > 0
 
     @property
     def is_float(self) -> bool:
         return self.kind == "float32"
+
+    def final_shift(self, shift: int) -> int:
+        """The accumulator's right shift of an op with coefficient shift *shift*: ``Fc - s - P``."""
+        return self.coef.frac_bits - shift - self.product_shift
 
     def with_(self, **changes) -> "Arithmetic":
         return replace(self, **changes)
@@ -231,7 +255,8 @@ class Arithmetic:
             "rounding": self.rounding,
             "overflow": self.overflow,
             "scaling": self.scaling,
-        }
+        } | ({"product_shift": self.product_shift, "product_rounding": self.product_rounding}
+             if self.product_shift else {})
 
 
 @dataclass(frozen=True)

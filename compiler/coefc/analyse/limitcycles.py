@@ -713,10 +713,23 @@ def _analyse_wide(op: SectionOp, index: int, arith: Arithmetic, *, sample_starts
 def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states: int = MAX_STATES,
                     sample_starts: int = 512, sample_steps: int = 2048, overflow_starts: int = 256,
                     seed: int = 1969, ef_work: int = 3_000_000) -> SectionLimitCycles:
-    """Granular limit cycles and overflow oscillations of one section with zero input."""
+    """Granular limit cycles and overflow oscillations of one section with zero input.
+
+    With rounded products (``arith.product_shift > 0``) the zero-input map rounds each
+    feedback product before the sum, ``y = fit(round_shift(q(-A1 y1) + q(-A2 y2), k))``;
+    the bounds and searches here are written for the map with exact products, so
+    both verdicts are ``unproven`` and say why (no claim rests on an argument that
+    does not cover the map).
+    """
     if STRUCTURE_TABLE[op.structure or arith.structure].wide_feedback:
         return _analyse_wide(op, index, arith, seed=seed)
     a1, a2 = int(op.a[0]), int(op.a[1])
+    if not arith.is_float and arith.product_shift and (a1 or a2):
+        why = (f"every product is rounded by 2^{arith.product_shift} before the sum ([arithmetic] "
+               "product_shift); the amplitude bound and the exhaustive searches cover only the zero-input map "
+               "with exact products, so nothing is proven for this map")
+        return SectionLimitCycles(index, status="unproven", bound_lsb=None, exhaustive=False, states_searched=0,
+                                  note=why, overflow_status="unproven", overflow_note=why)
     order = 2 if a2 != 0 else 1
     k = arith.coef.frac_bits - op.shift
     a_phys = _section_phys(op, arith)

@@ -83,6 +83,12 @@ class OpModel:
     def noise_paths(self) -> list:
         """``(b, a)`` from every rounding source of the op to its output (the first is ``noise_b/noise_a``)."""
         return [(self.noise_b, self.noise_a), *self.extra_noise]
+    #: rounded products (``product_shift > 0``): one ``(mean, variance)`` in LSB (LSB^2) of the
+    #: data word per product that is rounded; each enters where the accumulator is formed, so it
+    #: reaches the output through ``1 / A(z)`` of the operation (never shaped by error feedback)
+    product_noise: tuple = ()
+    #: the largest total error of those products in one sample (LSB): sum of their worst cases
+    product_bound: float = 0.0
 
     @property
     def recursive(self) -> bool:
@@ -109,6 +115,16 @@ def effective_drop(coefs, k: int) -> int:
     if not nz or k <= 0:
         return 0
     return max(0, k - min(_v2(c) for c in nz))
+
+
+def _product_stats(d: int, kf: int, mode: str) -> tuple[float, float]:
+    """Mean and variance (data LSB, LSB^2) of one product that drops *d* bits by *mode*, in an
+    accumulator whose unit is ``2^-kf`` LSB (the product's quantum ``2^P`` over the final shift)."""
+    from .noise import rounding_error_stats
+
+    mu, s2 = rounding_error_stats(d, mode)
+    scale = 2.0 ** -kf
+    return mu * scale, s2 * scale * scale
 
 
 #: the models of the last few programs, and the responses computed from them (see :func:`op_models`)
@@ -149,8 +165,34 @@ def _build_models(program: ChannelProgram) -> list[OpModel]:
     def acc_fs(shift):
         if ar.is_float:
             return None
-        # acc * 2^(shift - Fc - Fd) is the physical pre-rounding value
-        return 2.0 ** (ar.acc_bits - 1 + shift - fc - ar.data.frac_bits)
+        # acc * 2^(shift + P - Fc - Fd) is the physical pre-rounding value (P: the product shift)
+        return 2.0 ** (ar.acc_bits - 1 + shift + ar.product_shift - fc - ar.data.frac_bits)
+
+
+    P = 0 if ar.is_float else ar.product_shift
+
+    def drop(coefs, shift):
+        """Bits the final rounding drops, and the (mean, variance) of each rounded product."""
+        if ar.is_float:
+            return 0, ()
+        if not P:
+            return effective_drop(coefs, fc - shift), ()
+        kf = fc - shift - P
+        nz = [int(c) for c in coefs if int(c) != 0]
+        # a product C*x with 2^d | C drops only P - d bits (none when d >= P)
+        prods = tuple(_product_stats(P - _v2(c), kf, ar.product_rounding) for c in nz if _v2(c) < P)
+        if not prods:  # every product exact: the accumulator holds (C / 2^P) * x
+            return effective_drop([c >> P for c in nz], kf), ()
+        return max(0, kf), prods
+
+    def pbound(coefs, shift):
+        if ar.is_float or not P:
+            return 0.0
+        from .limitcycles import error_interval
+
+        c, r = error_interval(ar.product_rounding)
+        n = sum(1 for v in coefs if int(v) != 0 and _v2(v) < P)
+        return n * (abs(c) + r) * 2.0 ** -(fc - shift - P)
 
     one = np.array([1.0])
     for i, op in enumerate(program.ops):
@@ -169,11 +211,11 @@ def _build_models(program: ChannelProgram) -> list[OpModel]:
         elif isinstance(op, SectionOp):
             b = np.array([phys(c, op.shift) for c in op.b])
             a = np.array([1.0] + list(op.a_phys(None if ar.is_float else ar.coef)))
+            k, prods = drop(tuple(op.b) + tuple(op.a), op.shift)
             structure = op.structure or ar.structure
             wide = not ar.is_float and STRUCTURE_TABLE[structure].wide_feedback and any(op.a_lo)
-            # floor(P / 2^L) of df1-wide-fb is any integer: every bit of the rounding shift is dropped
-            k = 0 if ar.is_float else effective_drop(tuple(op.b) + tuple(op.a) + ((1,) if wide else ()),
-                                                     fc - op.shift)
+            if wide:  # floor(P / 2^L) of df1-wide-fb is any integer: every bit of the rounding shift is dropped
+                k = effective_drop(tuple(op.b) + tuple(op.a) + (1,), fc - op.shift)
             nb = np.array([1.0, -1.0]) if STRUCTURE_TABLE[structure].error_feedback else one
             em = ev = 0.0
             if wide:
@@ -181,15 +223,18 @@ def _build_models(program: ChannelProgram) -> list[OpModel]:
                 em = 0.5 * (1.0 - 2.0 ** -L) * 2.0 ** -kk
                 ev = (1.0 - 2.0 ** (-2 * L)) / 12.0 * 2.0 ** (-2 * kk)
             out.append(OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift), structure, extra_mean=em,
-                               extra_var=ev))
+                               extra_var=ev, product_noise=prods,
+                               product_bound=pbound(tuple(op.b) + tuple(op.a), op.shift)))
         elif isinstance(op, FirOp):
             b = np.array([phys(c, op.shift) for c in op.taps])
-            k = 0 if ar.is_float else effective_drop(op.taps, fc - op.shift)
-            out.append(OpModel(i, "fir", b, one, one, one, k, fs_data, acc_fs(op.shift)))
+            k, prods = drop(op.taps, op.shift)
+            out.append(OpModel(i, "fir", b, one, one, one, k, fs_data, acc_fs(op.shift), product_noise=prods,
+                               product_bound=pbound(op.taps, op.shift)))
         elif isinstance(op, GainOp):
             b = np.array([phys(op.coef, op.shift)])
-            k = 0 if ar.is_float else effective_drop((op.coef,), fc - op.shift)
-            out.append(OpModel(i, "gain", b, one, one, one, k, fs_data, acc_fs(op.shift)))
+            k, prods = drop((op.coef,), op.shift)
+            out.append(OpModel(i, "gain", b, one, one, one, k, fs_data, acc_fs(op.shift), product_noise=prods,
+                               product_bound=pbound((op.coef,), op.shift)))
         elif isinstance(op, DelayOp):
             b = np.zeros(op.samples + 1)
             b[-1] = 1.0

@@ -49,6 +49,16 @@ would otherwise swamp the noise figure.
 Levels are in dBFS as in AES17: full scale = 1.0, 0 dBFS is the RMS level of a
 full-scale sine, so a noise of variance ``s2`` reads ``10*log10(s2/0.5)`` dBFS.
 
+Rounded products (``product_shift = P``, coefc.program): each product ``C*x`` whose
+coefficient is not a multiple of ``2^P`` is a source of its own, dropping ``P - v2(C)``
+bits by the product rounding (statistics as above, in units of ``2^P``, scaled by
+``2^-(Fc - s - P)`` into data LSB); all enter where the accumulator is formed and reach
+the output through ``1/A(z)`` of their operation (error feedback shapes only the final
+rounding).  This is Jackson's model of rounding after every multiplication, ``k_j``
+sources of variance ``q^2/12`` at a node (Jackson 1970; Oppenheim & Schafer, ch. 6).
+Under ``toward-zero`` the products' correlated part is not split off: each counts with
+its whole mean square, which overstates a little.
+
 References
 ----------
 L. B. Jackson, "Roundoff-noise analysis for fixed-point digital filters realized in
@@ -72,7 +82,14 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..program import ChannelProgram
-from .linear import OpModel, chain_filter, node_impulses, noise_impulses, op_models, pole_radius, response_length
+from .linear import (OpModel, chain_filter, node_impulses, noise_impulse, noise_impulses, op_models, pole_radius,
+                     response_length, tail_impulse)
+
+
+def _run_noise(a, x):
+    from scipy import signal
+
+    return signal.lfilter([1.0], a, x)
 
 #: power of a full-scale sine (full scale = 1.0): the 0 dBFS reference of AES17
 FULL_SCALE_SINE_POWER = 0.5
@@ -277,6 +294,23 @@ def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
             var += s2 * pg
             mean += mu * dc
             dc_var += s2 * dc * dc
+    for m in models:
+        if not m.product_noise:
+            continue
+        # rounded products (Jackson 1970: one source per multiplier, each white with the
+        # q^2/12-type variance of its dropped bits): all enter at the accumulator and
+        # reach the output through 1/A(z) of the operation, also under error feedback
+        if np.array_equal(m.noise_b, [1.0]):
+            g = noise_impulse(models, m.index, n)
+        else:
+            g = _run_noise(m.a, tail_impulse(models, m.index + 1, n))
+        pg, dc = float(np.dot(g, g)), float(np.sum(g))
+        mu = sum(p[0] for p in m.product_noise)
+        s2 = sum(p[1] for p in m.product_noise)
+        sources.append(NoiseSource(m.index, ar.product_shift, mu, s2, pg, dc, s2 * pg, 0.0))
+        var += s2 * pg
+        mean += mu * dc
+        dc_var += s2 * dc * dc
     correlated = float(np.dot(corr, corr))
     var += correlated
     var *= lsb ** 2

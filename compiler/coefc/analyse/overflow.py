@@ -144,8 +144,17 @@ def roundoff_bound_lsb(models: list[OpModel], n: int, rounding: str) -> float:
     from .linear import noise_impulses
 
     c, r = error_interval(rounding)
-    return sum((abs(c) + r) * float(np.sum(np.abs(g))) for m in models if m.k > 0
-               for g in noise_impulses(models, m.index, n))
+    total = sum((abs(c) + r) * float(np.sum(np.abs(g))) for m in models if m.k > 0
+                for g in noise_impulses(models, m.index, n))
+    return total + sum(m.product_bound * float(np.sum(np.abs(_product_path(models, m, n))))
+                       for m in models if m.product_bound)
+
+
+def _product_path(models: list[OpModel], m: OpModel, n: int) -> np.ndarray:
+    """Impulse response from the rounded products of *m* (entering at its accumulator) to the output."""
+    from .linear import _run, tail_impulse
+
+    return _run(np.array([1.0]), m.noise_a, tail_impulse(models, m.index + 1, n))
 
 
 def internal_node_bounds(models: list[OpModel], imps: list[np.ndarray], n: int,
@@ -172,16 +181,18 @@ def internal_node_bounds(models: list[OpModel], imps: list[np.ndarray], n: int,
     for m, h in zip(models, imps):
         for j, (sb, sa) in enumerate(m.states):
             sig = float(np.sum(np.abs(_run(sb, sa, prev))))
-            rnd = sum(float(np.sum(np.abs(_run(sb, sa, p)))) for p in paths)
+            rnd = sum(w * float(np.sum(np.abs(_run(sb, sa, p)))) for w, p in paths)
             if m.k > 0:
-                rnd += sum(float(np.sum(np.abs(_run(nb, na, unit)))) for nb, na in m.state_noise[j])
-            out.append((m.index, sig + eps * rnd, f"state {j + 1}"))
-        paths = [_run(m.b, m.a, p) for p in paths]
+                rnd += eps * sum(float(np.sum(np.abs(_run(nb, na, unit)))) for nb, na in m.state_noise[j])
+            out.append((m.index, sig + rnd, f"state {j + 1}"))
+        paths = [(w, _run(m.b, m.a, p)) for w, p in paths]
         if m.k > 0:
-            paths.extend(_run(nb, na, unit) for nb, na in m.noise_paths)
+            paths.extend((eps, _run(nb, na, unit)) for nb, na in m.noise_paths)
+        if m.product_bound:  # rounded products: each sample's worst total error, through 1/A(z)
+            paths.append((m.product_bound * lsb, _run(np.array([1.0]), m.noise_a, unit)))
         prev = h
         if m.kind != "delay" and m.index != last:
-            out.append((m.index, float(np.sum(np.abs(h))) + eps * sum(float(np.sum(np.abs(p))) for p in paths),
+            out.append((m.index, float(np.sum(np.abs(h))) + sum(w * float(np.sum(np.abs(p))) for w, p in paths),
                         "output"))
     return out
 

@@ -193,16 +193,17 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
                    "set [layout] coef_shift = true in the target if its kernel shifts, or choose such a target")
             fail(f"{what} needs coefficient shift {shift} but target '{target.name}' has none "
                  f"([layout] coef_shift = false); {fix}")
-        k = fc - shift
+        P = arith.product_shift  # rounded products: the accumulator holds units of 2^P
+        k = fc - shift - P
         top = min(MAX_RSHIFT, state_bits - 2) if section else MAX_RSHIFT
-        if not 1 <= k <= top:
+        if not (0 if P else 1) <= k <= top:
             room = (f"the kernel of target '{target.name}' rounds a section by 1..{top} bits "
                     f"(below its {state_bits}-bit state word)" if section and top < MAX_RSHIFT
                     else f"the kernels round by 1..{MAX_RSHIFT} bits")
             fix = ("give the coefficient word more fractional bits (" + setting("coef") + ")" if k < 1 else
                    "give the coefficient word fewer fractional bits (" + setting("coef") + ")")
             fail(f"{what} needs a right shift of {k} bits ({fc} fractional coefficient bits minus "
-                 f"coefficient shift {shift}); {room}; {fix}")
+                 f"coefficient shift {shift}{f' minus product shift {P}' if P else ''}); {room}; {fix}")
         return k
 
     def words(values, what: str) -> tuple:

@@ -61,7 +61,7 @@ from .buildable import (C_KEYWORDS, FOLDED_FIR_ABI, SUPPORTED_ABI, EmitError, Ke
 from ..checks import SAFETY_CAUTION, over_budget_text
 from ..errors import CoefcError, TargetError, setting
 from ..program import DelayOp, FirOp, GainOp, SectionOp
-from ..targetspec import Target
+from ..targetspec import BuildInfo, Target, common_dir
 from ..templating import TemplateLimitError, environment, render_bounded
 
 __all__ = ["render", "c_identifier", "golden_input", "GOLDEN_DEFAULT", "EmitError", "C_KEYWORDS",
@@ -211,7 +211,9 @@ def render_template(folder: Path, rel: str, context: dict) -> str:
     import jinja2
 
     path = folder / rel
-    env = environment(folder)
+    if not path.is_file() and (common_dir() / rel).is_file():
+        path = common_dir() / rel  # the shared template (messages name the file used)
+    env = environment(folder, shared=common_dir())
     try:
         template = env.get_template(Path(rel).as_posix())
     except jinja2.TemplateSyntaxError as e:
@@ -499,12 +501,75 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
     if info.source_template:
         out[Path(header_name).stem + ".c"] = render_template(target.folder, info.source_template, context)
     if with_kernel:
-        for path in info.kernel_files(target.folder):
-            if path.name in out:
-                raise TargetError(f"{path}: kernel file name '{path.name}' clashes with the generated "
-                                  "header; choose another output name")
-            try:
-                out[path.name] = path.read_text(encoding="utf-8")
-            except (OSError, UnicodeDecodeError) as e:
-                raise TargetError(f"{path}: cannot read the kernel file ({e})") from None
+        for name, text in kernel_texts(target, info).items():
+            if name in out:
+                raise TargetError(f"{target.folder / 'target.toml'}: kernel file name '{name}' clashes with the "
+                                  "generated header; choose another output name")
+            out[name] = text
+    return out
+
+
+_C_INT_BITS = {"int16_t": 16, "int32_t": 32, "int64_t": 64}
+
+
+def kernel_context(target: Target, info: BuildInfo) -> dict:
+    """The finished values a kernel family's templates lay out (``k`` in the templates).
+
+    Every C type and width is decided here from the target's ``[c]``, ``[limits]``,
+    ``[layout]`` and ``[arithmetic]``: the accumulator container is the state word,
+    a product is formed in the narrowest of int32_t/int64_t that holds any product
+    of a data and a coefficient container.
+    """
+    a = target.arithmetic
+    prefix = info.kernel_prefix
+    dbits, cbits = _C_INT_BITS.get(info.data_type, 32), _C_INT_BITS.get(info.coef_type, 32)
+    abits = _C_INT_BITS.get(info.state_type, 64)
+    negated = any(t.startswith("-") for t in info.section_layout)
+    pshift = getattr(a, "product_shift", 0) or 0
+    prounding = getattr(a, "product_rounding", "truncate")
+    words = [f"{info.max_data_bits}-bit data words, {info.max_coef_bits}-bit coefficient words,"]
+    if dbits > info.max_data_bits or cbits > info.max_coef_bits:
+        words += [f"held right-justified (sign-extended) in {info.data_type} / {info.coef_type} containers,"]
+    words += [f"an accumulator of up to {info.max_acc_bits} bits (formed exactly in uint{abits}_t)"]
+    if pshift:
+        words += [f"and every product rounded to a multiple of 2^{pshift} ({prounding}) before it is added"]
+    return {
+        "target": target.name, "prefix": prefix, "PREFIX": prefix.upper(), "abi": info.kernel_abi,
+        "header": Path(info.kernel_header).name, "words": words,
+        "data_type": info.data_type, "coef_type": info.coef_type, "state_type": info.state_type,
+        "data_container_bits": dbits, "coef_container_bits": cbits, "data_bits": info.max_data_bits,
+        "coef_bits": info.max_coef_bits, "max_acc_bits": info.max_acc_bits,
+        "acc_container_bits": abits, "uacc_type": f"uint{abits}_t", "sacc_type": f"int{abits}_t",
+        "prod_type": "int32_t" if dbits + cbits <= 32 else "int64_t",
+        "a_negated": negated, "asub": "mac" if negated else "msub",
+        "a1_note": " /* c[3] = -a1 */" if negated else "", "a2_note": " /* c[4] = -a2 */" if negated else "",
+        "product_shift": pshift, "product_rounding": prounding,
+        "PRODUCT_ROUNDING": prounding.upper().replace("-", "_"),
+        "pad_process": " " * len(f"void {prefix}_process("),
+        "pad_selftest": " " * len(f"long {prefix}_selftest("),
+    }
+
+
+def kernel_texts(target: Target, info: BuildInfo) -> dict[str, str]:
+    """The target's reference kernel: ``{file name: text}`` for its header and sources.
+
+    A target with ``[kernel] family`` has its kernel rendered from the templates
+    ``kernel/<family>/kernel.h.j2`` and ``kernel.c.j2`` (any template, also one
+    the family's templates include, is taken from the target folder when it has
+    one of that name, else from ``targets/_common``); otherwise its files are
+    copied as they are.
+    """
+    out = {}
+    if info.kernel_family is not None:
+        context = {"k": kernel_context(target, info)}
+        base = f"kernel/{info.kernel_family}/kernel"
+        out[Path(info.kernel_header).name] = render_template(target.folder, base + ".h.j2", context)
+        for src in info.kernel_sources:
+            out[Path(src).name] = render_template(target.folder, base + ".c.j2", context)
+        return out
+    for path in info.kernel_files(target.folder):
+        try:
+            out[path.name] = path.read_text(encoding="utf-8")
+        except (OSError, UnicodeDecodeError) as e:
+            raise TargetError(f"{path}: cannot read the kernel file ({e})") from None
     return out

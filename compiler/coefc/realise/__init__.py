@@ -200,7 +200,8 @@ def _chain_freq(chain, f):
 def _fixed_gain(g: float, arithmetic: Arithmetic, notes: list, where: str) -> GainOp:
     fmt = arithmetic.coef
     ints, s, sat = coefficients.fit_group([g], fmt, arithmetic.rounding,
-                                          min_shift=coefficients.lowest_shift([g], fmt))
+                                          min_shift=coefficients.lowest_shift([g], fmt),
+                                          min_k=arithmetic.product_shift)
     if sat:
         notes.append(Note("saturated", f"{where} gain {g:.6g} does not fit the coefficient word {fmt}: saturated"))
     return GainOp(coef=ints[0], shift=s)
@@ -295,7 +296,8 @@ def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: in
             rop = SectionOp(b=bi, a=ai, shift=s, structure=arithmetic.structure)
             phys = np.array(section_transfer(rop, fmt.frac_bits)[0])
             return rop, coefficients.realised_gain(b, phys)
-        ints, s, sat = coefficients.fit_section(bs, a, fmt, arithmetic.rounding, min_shift=0)
+        ints, s, sat = coefficients.fit_section(bs, a, fmt, arithmetic.rounding, min_shift=0,
+                                                     min_k=arithmetic.product_shift)
         if sat:
             notes.append(Note("saturated", f"section {n_sec}: coefficients do not fit {fmt} even with a coefficient "
                               f"shift of {s}; saturated (the response will be wrong): use a wider coefficient word"))
@@ -312,7 +314,8 @@ def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: in
     ts = taps * c
     ints, s, sat = coefficients.fit_group(ts, fmt, arithmetic.rounding,
                                           min_shift=coefficients.lowest_shift(ts, fmt),
-                                          acc_limit=arithmetic.acc_bits, data_width=arithmetic.data.width)
+                                          acc_limit=arithmetic.acc_bits + arithmetic.product_shift,
+                                          data_width=arithmetic.data.width, min_k=arithmetic.product_shift)
     if sat:
         notes.append(Note("saturated", f"FIR of {len(op)} taps: taps do not fit {fmt} with the accumulator of "
                           f"{arithmetic.acc_bits} bits; saturated"))
@@ -398,6 +401,8 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
             pn = [_run(m.b, m.a, p) for p in paths]
             if m.k > 0:
                 pn.extend(_run(nb, na, unit) for nb, na in m.noise_paths)
+            if m.product_bound:  # rounded products: their worst total, through 1/A(z), in units of eps
+                pn.append(_run(np.array([1.0]), m.noise_a, unit) * (m.product_bound / (abs(cen) + rad)))
             roundoff = eps * sum(float(np.sum(np.abs(p))) for p in pn)
             bound = float(np.sum(np.abs(hn))) + roundoff
             state = (rop, g, trial_notes, hn, pn, bound)
