@@ -12,7 +12,8 @@ Platforms: user-mode 32-bit ARM (arm-linux-gnueabihf-gcc -O2 -mthumb, qemu-arm)
 and bare-metal Cortex-M4 (arm-none-eabi-gcc -O2 -mcpu=cortex-m4, qemu-system-arm
 -M mps2-an386).  Goal: the 8-section Q1.31 / 64-bit add-half saturating DF1 cascade
 at <= 36 instructions per section-sample (parity with the plain loop; stretch 25);
-other structures within 1.1x of their plain loops.  Generated code size is printed.
+tdf2, df1ef, FIR per tap and folded (symmetric) FIR per tap within 1.1x of their
+plain loops.  Generated code size is printed.
 
 Run:  python bench/bench_target.py [--samples N]
 """
@@ -96,6 +97,133 @@ void bench_plain(const int32_t *in, int32_t *out, size_t n)
 }
 """
 
+PLAIN_TDF2 = r"""
+#include <stddef.h>
+#include <stdint.h>
+/* A plain transposed direct form II: b0 b1 b2 -a1 -a2 per section, 64-bit states in locals. */
+static const int32_t co[%(S)d][5] = {
+%(rows)s
+};
+static int64_t st[%(S)d][2];
+void bench_plain(const int32_t *in, int32_t *out, size_t n);
+void bench_plain(const int32_t *in, int32_t *out, size_t n)
+{
+    int s;
+    for (s = 0; s < %(S)d; s++) {
+        const int32_t b0 = co[s][0], b1 = co[s][1], b2 = co[s][2], na1 = co[s][3], na2 = co[s][4];
+        int64_t s1 = st[s][0], s2 = st[s][1];
+        const int32_t *src = s ? out : in;
+        size_t t;
+        for (t = 0; t < n; t++) {
+            const int32_t x = src[t];
+            int64_t acc = (int64_t)b0 * x + s1;
+            int32_t y;
+            acc = (acc + ((int64_t)1 << (%(K)d - 1))) >> %(K)d;
+            y = acc > INT32_MAX ? INT32_MAX : acc < INT32_MIN ? INT32_MIN : (int32_t)acc;
+            s1 = (int64_t)b1 * x + (int64_t)na1 * y + s2;
+            s2 = (int64_t)b2 * x + (int64_t)na2 * y;
+            out[t] = y;
+        }
+        st[s][0] = s1; st[s][1] = s2;
+    }
+}
+"""
+
+PLAIN_DF1EF = r"""
+#include <stddef.h>
+#include <stdint.h>
+/* A plain DF1 with first-order error feedback: the rounding residual is added next sample. */
+static const int32_t co[%(S)d][5] = {
+%(rows)s
+};
+static int32_t st[%(S)d][4];
+static int64_t er[%(S)d];
+void bench_plain(const int32_t *in, int32_t *out, size_t n);
+void bench_plain(const int32_t *in, int32_t *out, size_t n)
+{
+    int s;
+    for (s = 0; s < %(S)d; s++) {
+        const int32_t b0 = co[s][0], b1 = co[s][1], b2 = co[s][2], na1 = co[s][3], na2 = co[s][4];
+        int32_t x1 = st[s][0], x2 = st[s][1], y1 = st[s][2], y2 = st[s][3];
+        int64_t e = er[s];
+        const int32_t *src = s ? out : in;
+        size_t t;
+        for (t = 0; t < n; t++) {
+            const int32_t x = src[t];
+            int64_t acc = (int64_t)b0 * x + (int64_t)b1 * x1 + (int64_t)b2 * x2 + (int64_t)na1 * y1
+                          + (int64_t)na2 * y2 + e;
+            int64_t v = (acc + ((int64_t)1 << (%(K)d - 1))) >> %(K)d;
+            int32_t y;
+            e = acc - v * ((int64_t)1 << %(K)d);
+            y = v > INT32_MAX ? INT32_MAX : v < INT32_MIN ? INT32_MIN : (int32_t)v;
+            x2 = x1; x1 = x; y2 = y1; y1 = y;
+            out[t] = y;
+        }
+        st[s][0] = x1; st[s][1] = x2; st[s][2] = y1; st[s][3] = y2; er[s] = e;
+    }
+}
+"""
+
+PLAIN_FOLDED = r"""
+#include <stddef.h>
+#include <stdint.h>
+/* A plain folded (symmetric) FIR: mirrored samples added before one multiply per tap pair. */
+static const int32_t h[%(H)d] = { %(taps)s };
+static int32_t z[2 * %(T)d];
+static unsigned p;
+void bench_plain(const int32_t *in, int32_t *out, size_t n);
+void bench_plain(const int32_t *in, int32_t *out, size_t n)
+{
+    size_t t;
+    for (t = 0; t < n; t++) {
+        int64_t acc = 0;
+        int32_t y;
+        unsigned j;
+        p = p ? p - 1u : %(T)du - 1u;
+        z[p] = z[p + %(T)du] = in[t];
+        for (j = 0; j < %(T)du / 2u; j++) {
+            acc += (int64_t)h[j] * ((int64_t)z[p + j] + z[p + %(T)du - 1u - j]);
+        }
+        acc = (acc + ((int64_t)1 << (%(K)d - 1))) >> %(K)d;
+        y = acc > INT32_MAX ? INT32_MAX : acc < INT32_MIN ? INT32_MIN : (int32_t)acc;
+        out[t] = y;
+    }
+}
+"""
+
+PLAIN_DF1_HW = r"""
+#include <stddef.h>
+#include <stdint.h>
+/* The plain loop of a high-word-product kernel (mcu32hw): each product rounded by
+   2^29 into a 32-bit word, the words summed in a 32-bit register. */
+#define HW(c, v) ((uint32_t)(int32_t)(((int64_t)(c) * (v) + ((int64_t)1 << 28)) >> 29))
+static const int32_t co[%(S)d][5] = {
+%(rows)s
+};
+static int32_t st[%(S)d][4];
+void bench_plain(const int32_t *in, int32_t *out, size_t n);
+void bench_plain(const int32_t *in, int32_t *out, size_t n)
+{
+    int s;
+    for (s = 0; s < %(S)d; s++) {
+        const int32_t b0 = co[s][0], b1 = co[s][1], b2 = co[s][2], na1 = co[s][3], na2 = co[s][4];
+        int32_t x1 = st[s][0], x2 = st[s][1], y1 = st[s][2], y2 = st[s][3];
+        const int32_t *src = s ? out : in;
+        size_t t;
+        for (t = 0; t < n; t++) {
+            const int32_t x = src[t];
+            int32_t a = (int32_t)(HW(b0, x) + HW(b1, x1) + HW(b2, x2) + HW(na1, y1) + HW(na2, y2));
+            int32_t y;
+            a = %(FINAL)s;
+            y = a > 134217727 ? 134217727 : a < -134217728 ? -134217728 : a;
+            x2 = x1; x1 = x; y2 = y1; y1 = y;
+            out[t] = y;
+        }
+        st[s][0] = x1; st[s][1] = x2; st[s][2] = y1; st[s][3] = y2;
+    }
+}
+"""
+
 PLAIN_FIR = r"""
 #include <stddef.h>
 #include <stdint.h>
@@ -124,11 +252,11 @@ void bench_plain(const int32_t *in, int32_t *out, size_t n)
 """
 
 
-def _fake(programs, name):
-    return generated_files(programs, "mcu32", name)
+def _fake(programs, name, target: str = "mcu32"):
+    return generated_files(programs, target, name)
 
 
-def df1_cascade(arith, sections: int = 8) -> ChannelProgram:
+def df1_cascade(arith, sections: int = 8, structure: str = "df1", shift_all: int | None = None) -> ChannelProgram:
     """An 8-section low-pass cascade (elliptic, 3 kHz at 48 kHz) in Q2.30, shift 0 or 1."""
     from scipy import signal
 
@@ -136,10 +264,10 @@ def df1_cascade(arith, sections: int = 8) -> ChannelProgram:
     ops = []
     for row in sos:
         b, a = row[:3], row[4:]
-        shift = 1 if max(abs(np.r_[b, a])) >= 2 else 0
+        shift = (1 if max(abs(np.r_[b, a])) >= 2 else 0) if shift_all is None else shift_all
         scale = 2.0 ** (arith.coef.frac_bits - shift)
         ops.append(SectionOp(tuple(int(round(v * scale)) for v in b), tuple(int(round(v * scale)) for v in a),
-                             shift, "df1"))
+                             shift, structure))
     return ChannelProgram("cascade", 48000.0, arith, tuple(ops))
 
 
@@ -210,28 +338,53 @@ def main() -> None:
     rng = np.random.default_rng(5)
     taps = tuple(int(round(v * 2 ** 29)) for v in rng.uniform(-0.3, 0.3, 32))
     fir = ChannelProgram("fir", 48000.0, arith, (FirOp(taps, 1),))
+    half = taps[:16]
+    sym = tuple(half) + tuple(reversed(half))  # a linear-phase FIR of 32 taps: generated code folds it
+    folded = ChannelProgram("folded", 48000.0, arith, (FirOp(sym, 1, symmetric=True),))
     print(f"{S}-section Q1.31 DF1 cascade, 64-bit accumulator, add-half, saturate; FIR of {len(taps)} taps "
           f"(Q2.30, shift 1); {args.samples} samples, gcc -O2")
     for platform in platforms:
         label = "32-bit ARM Thumb-2, qemu-arm" if platform == "arm" else "Cortex-M4, qemu-system-arm mps2-an386"
+        for structure, plain in (("df1", PLAIN_DF1), ("tdf2", PLAIN_TDF2), ("df1ef", PLAIN_DF1EF)):
+            with tempfile.TemporaryDirectory() as tmp:
+                work = Path(tmp)
+                files = _fake([df1_cascade(arith, S, structure)], "bench")
+                # the plain loop rounds by one shift for all sections: use the cascade's when all agree
+                kk = k if k is not None else arith.coef.frac_bits
+                g, p, size = build_and_count(work, platform, files, "bench.h", "bench_cascade_process",
+                                             "bench_cascade_state_t", plain % {"S": S, "rows": rows, "K": kk},
+                                             args.samples)
+                goal = " goal <= 36, stretch <= 25;" if structure == "df1" else " goal ratio <= 1.1;"
+                print(f"[{label}] {structure.upper()}: generated {g / S:.1f}, plain loop {p / S:.1f} instructions "
+                      f"per section-sample (ratio {g / p:.2f};{goal} generated .text {size} bytes)")
+        for name, prog, plain, n_taps in (
+                ("FIR", fir, PLAIN_FIR % {"T": len(taps), "taps": ", ".join(map(str, taps)), "K": 29}, len(taps)),
+                ("folded FIR", folded, PLAIN_FOLDED % {"T": len(sym), "H": len(sym) // 2,
+                                                       "taps": ", ".join(map(str, sym[: len(sym) // 2])), "K": 29},
+                 len(sym))):
+            with tempfile.TemporaryDirectory() as tmp:
+                work = Path(tmp)
+                g, p, size = build_and_count(work, platform, _fake([prog], "bench"), "bench.h",
+                                             f"bench_{prog.name}_process", f"bench_{prog.name}_state_t", plain,
+                                             args.samples)
+                print(f"[{label}] {name}: generated {g / n_taps:.2f}, plain loop {p / n_taps:.2f} instructions per "
+                      f"tap-sample (ratio {g / p:.2f}; goal <= 1.1); generated .text {size} bytes")
+        # mcu32hw: every product rounded by 2^29 (high-word products), 32-bit accumulator; one
+        # coefficient shift for all sections (1: the final shift is 0) so the plain loop matches
+        hw = find_target("mcu32hw").arithmetic
+        hw_cascade = df1_cascade(hw, shift_all=1)
+        hk = hw.final_shift(1)
+        hw_rows = ",\n".join("    {%d, %d, %d, %d, %d}" % (*op.b, -op.a[0], -op.a[1]) for op in hw_cascade.ops)
+        final = "a" if hk == 0 else f"(int32_t)((a + (1 << {hk - 1})) >> {hk})"
         with tempfile.TemporaryDirectory() as tmp:
             work = Path(tmp)
-            files = _fake([cascade], "bench")
-            # the plain loop rounds by one shift for all sections: use the cascade's when all agree
-            kk = k if k is not None else arith.coef.frac_bits
+            files = _fake([hw_cascade], "bench", "mcu32hw")
             g, p, size = build_and_count(work, platform, files, "bench.h", "bench_cascade_process",
-                                         "bench_cascade_state_t", PLAIN_DF1 % {"S": S, "rows": rows, "K": kk},
-                                         args.samples)
-            print(f"[{label}] DF1: generated {g / S:.1f}, plain loop {p / S:.1f} instructions per "
-                  f"section-sample (ratio {g / p:.2f}; goal <= 36, stretch <= 25); generated .text {size} bytes")
-        with tempfile.TemporaryDirectory() as tmp:
-            work = Path(tmp)
-            files = _fake([fir], "bench")
-            g, p, size = build_and_count(work, platform, files, "bench.h", "bench_fir_process", "bench_fir_state_t",
-                                         PLAIN_FIR % {"T": len(taps), "taps": ", ".join(map(str, taps)), "K": 29},
-                                         args.samples)
-            print(f"[{label}] FIR: generated {g / len(taps):.2f}, plain loop {p / len(taps):.2f} instructions per "
-                  f"tap-sample (ratio {g / p:.2f}; goal <= 1.1); generated .text {size} bytes")
+                                         "bench_cascade_state_t",
+                                         PLAIN_DF1_HW % {"S": S, "rows": hw_rows, "FINAL": final}, args.samples)
+            print(f"[{label}] DF1 on mcu32hw (products rounded by 2^29, 32-bit accumulator): generated {g / S:.1f}, "
+                  f"plain loop {p / S:.1f} instructions per section-sample (ratio {g / p:.2f}); "
+                  f"generated .text {size} bytes")
 
 
 if __name__ == "__main__":

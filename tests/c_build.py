@@ -64,6 +64,17 @@ def fake_realisation(programs, target_name: str, name: str = "bench", source: st
     return Realisation(Design(Loaded(desc), ()), find_target(target_name), tuple(programs))
 
 
+def write_kernel(folder: Path, target_name: str, target_dirs=()) -> Path:
+    """Write the target's reference kernel (rendered from its templates, or its own files) into *folder*."""
+    from coefc.emit.header import kernel_texts
+
+    target = find_target(target_name, target_dirs)
+    folder.mkdir(parents=True, exist_ok=True)
+    for name, text in kernel_texts(target, build_info(target)).items():
+        (folder / name).write_text(text)
+    return folder
+
+
 def run_headers(workdir: Path, target_name: str, headers: list[tuple[str, str, str]], *,
                 cc: str = "gcc", extra: tuple[str, ...] = (), opt: str = "-O2", target_dirs=(),
                 extra_sources=()) -> tuple[int, str]:
@@ -77,8 +88,8 @@ def run_headers(workdir: Path, target_name: str, headers: list[tuple[str, str, s
     info = build_info(target)
     prefix = info.kernel_prefix
     workdir.mkdir(parents=True, exist_ok=True)
-    kdir = target.folder / Path(info.kernel_header).parent
-    sources = [str(p) for p in info.kernel_files(target.folder)[1:]] + [str(p) for p in extra_sources]
+    kdir = write_kernel(workdir / "kernel", target_name, target_dirs)
+    sources = [str(kdir / Path(p).name) for p in info.kernel_sources] + [str(p) for p in extra_sources]
     calls = []
     for i, (fname, cname, text) in enumerate(headers):
         (workdir / fname).write_text(text)
@@ -137,12 +148,18 @@ def _section(rng, arith: Arithmetic, structure: str, shift: int) -> SectionOp:
 
         hi, lo, _ = split_feedback((1.0, a1, a2), arith.coef, shift)
         return SectionOp(tuple(q(v) for v in b), hi, shift, structure, a_lo=lo)
+    if STRUCTURE_TABLE[structure].state_space:
+        # coupled: the rotation of the pole pair (alpha = r cos, beta = r sin), an output combination
+        # and an input gain that drives the states into their limits at the golden input's steps
+        al, be = r * np.cos(th), r * np.sin(th)
+        c = rng.uniform(-0.9, 0.9, 2)
+        return SectionOp((q(b[0]), q(c[0]), q(c[1]), q(0.7)), (q(al), q(-be), q(be), q(al)), shift, structure)
     return SectionOp(tuple(q(v) for v in b), (q(a1), q(a2)), shift, structure)
 
 
 def kernel_structures(structures) -> tuple:
     """The structures a reference kernel runs (df1-wide-fb runs only in generated code)."""
-    return tuple(s for s in structures if not STRUCTURE_TABLE[s].wide_feedback)
+    return tuple(s for s in structures if STRUCTURE_TABLE[s].reference_kernel)
 
 
 def _coef(arith: Arithmetic, v: float, shift: int = 0):

@@ -22,15 +22,18 @@ def example_files() -> list[Path]:
 
 def target_copy(tmp_path: Path, fixture: str, abi: int | None = None) -> Path:
     """A copy of the target folder tests/target_fixtures/*fixture* with the built-in
-    mcu32 kernel copied into its kernel/ folder (a target folder is self-contained:
-    coefc refuses files outside it), stating interface *abi* if given."""
+    mcu32 kernel (rendered from the shared templates) written into its kernel/ folder
+    (a target folder is self-contained: coefc refuses files outside it), stating
+    interface *abi* if given."""
     import re
     import shutil
 
     src = Path(__file__).resolve().parent / "target_fixtures" / fixture
     dst = tmp_path / fixture
     shutil.copytree(src, dst)
-    shutil.copytree(REPO / "targets" / "mcu32" / "kernel", dst / "kernel")
+    from c_build import write_kernel
+
+    write_kernel(dst / "kernel", "mcu32")
     if abi is not None:
         toml = dst / "target.toml"
         text = re.sub(r"(?m)^abi = \d+", f"abi = {abi}", toml.read_text())

@@ -47,8 +47,18 @@ def fit(v: int, bits: int, overflow: str) -> tuple[int, bool]:
 class Model:
     """The arithmetic: data width, coefficient frac bits, acc bits, rounding, overflow."""
 
-    def __init__(self, data_width: int, coef_frac: int, acc_bits: int, rounding: str, overflow: str):
+    def __init__(self, data_width: int, coef_frac: int, acc_bits: int, rounding: str, overflow: str,
+                 product_shift: int = 0, product_rounding: str = "truncate"):
         self.W, self.Fc, self.A, self.rnd, self.ovf = data_width, coef_frac, acc_bits, rounding, overflow
+        self.P, self.prnd = product_shift, product_rounding
+
+    def q(self, coef: int, word: int) -> int:
+        """A product term as it enters the accumulator: coef * word / 2^P rounded (docstring,
+        "Rounded products"); a subtracted term is the product of the negated coefficient."""
+        return rshift(coef * word, self.P, self.prnd) if self.P else coef * word
+
+    def _k(self, shift: int) -> int:
+        return self.Fc - shift - self.P
 
     def _acc(self, exact: int) -> tuple[int, bool]:
         w = wrap(exact, self.A)
@@ -59,6 +69,30 @@ class Model:
         y, bad = fit(v, self.W, self.ovf)
         return y, v, bad
 
+    def coupled(self, x, b, a, shift):
+        """The coupled form (coefc.program docstring): (y, data overflows, accumulator overflows).
+
+        State update s' = A s + (G, 0)' x and output y = C s + D x, each of the three
+        sums wrapped, rounded and fitted on its own; one event per sample at most.
+        """
+        k = self.Fc - shift
+        D, C = b[0], (b[1], b[2])
+        G = b[3]
+        A = ((a[0], a[1]), (a[2], a[3]))
+        s = [0, 0]
+        ys, no, na = [], 0, 0
+        for xn in x:
+            sums = [D * xn + C[0] * s[0] + C[1] * s[1],
+                    A[0][0] * s[0] + A[0][1] * s[1] + G * xn,
+                    A[1][0] * s[0] + A[1][1] * s[1]]
+            wrapped = [self._acc(t) for t in sums]
+            outs = [self._out(w, k) for w, _ in wrapped]
+            na += any(bad for _, bad in wrapped)
+            no += any(o[2] for o in outs)
+            ys.append(outs[0][0])
+            s = [outs[1][0], outs[2][0]]
+        return ys, no, na
+
     def section(self, x, b, a, shift, structure, a_lo=(0, 0), coef_width=None):
         """Returns (y, data overflow count, accumulator overflow count).
 
@@ -67,10 +101,12 @@ class Model:
         the same, plus the residual E of the previous accumulator (which holds the
         floored low-product term), as in ``df1ef``.
         """
+        if structure == "coupled":
+            return self.coupled(x, b, a, shift)
         known = ("df1", "tdf2", "df1ef", "df1-wide-fb", "df1ef-wide-fb")  # the structures this model knows
         if structure not in known:
             raise NotImplementedError(f"exact model: no recurrence for structure '{structure}'")
-        k = self.Fc - shift
+        k = self._k(shift)
         b0, b1, b2 = b
         a1, a2 = a
         xh = [0, 0]  # x[n-1], x[n-2]
@@ -80,13 +116,14 @@ class Model:
         ys, no, na = [], 0, 0
         for xn in x:
             if structure == "tdf2":
-                acc, w0 = self._acc(b0 * xn + s1)
+                acc, w0 = self._acc(self.q(b0, xn) + s1)
                 yn, _, bad = self._out(acc, k)
-                s1, w1 = self._acc(b1 * xn - a1 * yn + s2)
-                s2, w2 = self._acc(b2 * xn - a2 * yn)
+                s1, w1 = self._acc(self.q(b1, xn) + self.q(-a1, yn) + s2)
+                s2, w2 = self._acc(self.q(b2, xn) + self.q(-a2, yn))
                 na += w0 or w1 or w2
             else:
-                total = b0 * xn + b1 * xh[0] + b2 * xh[1] - a1 * yh[0] - a2 * yh[1]
+                total = (self.q(b0, xn) + self.q(b1, xh[0]) + self.q(b2, xh[1])
+                         + self.q(-a1, yh[0]) + self.q(-a2, yh[1]))
                 if structure in ("df1ef", "df1ef-wide-fb"):
                     total += e
                 if structure in ("df1-wide-fb", "df1ef-wide-fb"):
@@ -104,10 +141,10 @@ class Model:
         return ys, no, na
 
     def fir(self, x, taps, shift):
-        k = self.Fc - shift
+        k = self._k(shift)
         ys, no, na = [], 0, 0
         for n in range(len(x)):
-            total = sum(t * x[n - j] for j, t in enumerate(taps) if n - j >= 0)
+            total = sum(self.q(t, x[n - j]) for j, t in enumerate(taps) if n - j >= 0)
             acc, w = self._acc(total)
             yn, _, bad = self._out(acc, k)
             ys.append(yn)
@@ -119,7 +156,7 @@ class Model:
         """The same FIR with symmetric taps folded: t_j (x[n-j] + x[n-N+1+j])."""
         N = len(taps)
         assert list(taps) == list(taps)[::-1]
-        k = self.Fc - shift
+        k = self._k(shift)
         ys = []
         for n in range(len(x)):
             xv = lambda i: x[i] if 0 <= i else 0  # noqa: E731
@@ -131,10 +168,10 @@ class Model:
         return ys
 
     def gain(self, x, c, shift):
-        k = self.Fc - shift
+        k = self._k(shift)
         ys, no, na = [], 0, 0
         for xn in x:
-            acc, w = self._acc(c * xn)
+            acc, w = self._acc(self.q(c, xn))
             yn, _, bad = self._out(acc, k)
             ys.append(yn)
             no += bad
@@ -151,7 +188,8 @@ def run_program(program, x):
     from coefc.program import DelayOp, FirOp, GainOp, SectionOp
 
     ar = program.arithmetic
-    m = Model(ar.data.width, ar.coef.frac_bits, ar.acc_bits, ar.rounding, ar.overflow)
+    m = Model(ar.data.width, ar.coef.frac_bits, ar.acc_bits, ar.rounding, ar.overflow,
+              ar.product_shift, ar.product_rounding)
     cur = [int(v) for v in x]
     nodes, ovf, aovf = [], [], []
     for op in program.ops:

@@ -23,9 +23,9 @@ from coefc.emit.header import EmitError, render
 from coefc.qformat import ROUNDING_MODES
 from coefc.targetspec import Overrides, find_target
 
-TARGETS = ("mcu16", "mcu32", "dsp24", "float32")
+TARGETS = ("mcu16", "mcu32", "dsp24", "float32", "mcu32hw")
 # accumulators narrower than a product plus headroom, so sums wrap
-NARROW_ACC = {"mcu16": 24, "mcu32": 40, "dsp24": 44}
+NARROW_ACC = {"mcu16": 24, "mcu32": 40, "dsp24": 44, "mcu32hw": 30}
 
 
 def _headers(target_name: str) -> list[tuple[str, str, str]]:

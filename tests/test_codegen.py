@@ -33,8 +33,8 @@ from coefc.errors import DescriptionError
 from coefc.qformat import ROUNDING_MODES
 from coefc.targetspec import Overrides, find_target
 
-TARGETS = ("mcu16", "mcu32", "dsp24", "float32")
-NARROW_ACC = {"mcu16": 24, "mcu32": 40, "dsp24": 44}
+TARGETS = ("mcu16", "mcu32", "dsp24", "float32", "mcu32hw")
+NARROW_ACC = {"mcu16": 24, "mcu32": 40, "dsp24": 44, "mcu32hw": 30}
 
 
 def _units(target_name: str, every_mode: bool = True, examples: bool = True):

@@ -109,3 +109,84 @@ def test_group_delay_is_finite_at_a_notch_null():
     rows = response_rows(ch, [1000.0, 2000.0])
     assert rows[0]["magnitude_db"] is None or rows[0]["magnitude_db"] < -200
     assert all(r["group_delay_samples"] is not None for r in rows)
+
+
+# ---------------------------------------------------------------- sub-sample delays (Thiran, Lagrange)
+
+import math  # noqa: E402
+
+from coefc.design.fractional_delay import lagrange_taps, thiran_denominator  # noqa: E402
+
+
+@pytest.mark.parametrize("d", [0.3, 0.6, 1.2])
+def test_thiran_first_and_second_order_closed_forms(d):
+    # Laakso et al., "Splitting the unit delay", IEEE SP Magazine 1996 (from memory):
+    # N = 1: a1 = (1 - d) / (1 + d);  N = 2: a1 = -2 (d - 2) / (d + 1), a2 = (d - 1)(d - 2) / ((d + 1)(d + 2))
+    np.testing.assert_allclose(thiran_denominator(d, 1), [1, (1 - d) / (1 + d)], rtol=1e-12)
+    d2 = d + 1
+    np.testing.assert_allclose(thiran_denominator(d2, 2),
+                               [1, -2 * (d2 - 2) / (d2 + 1), (d2 - 1) * (d2 - 2) / ((d2 + 1) * (d2 + 2))],
+                               rtol=1e-12)
+
+
+@pytest.mark.parametrize("order, d, w1", [(1, 0.7, 0.02), (2, 1.6, 0.02), (3, 3.3, 0.02), (5, 4.8, 0.1)])
+def test_thiran_group_delay_at_dc_is_the_delay_and_maximally_flat(order, d, w1):
+    # Thiran 1971 (from memory): group delay maximally flat at DC with value d.  Reference: scipy.signal.group_delay.
+    # (w1 for order 5 is larger: nearer DC its error is below double precision)
+    a = thiran_denominator(d, order)
+    w = np.array([1e-4, w1, 2 * w1])
+    gd = signal.group_delay((a[::-1], a), w=w)[1]
+    assert gd[0] == pytest.approx(d, abs=1e-7)
+    # maximally flat: the error grows like w^(2N) near DC (halving w divides it by about 2^(2N))
+    ratio = (gd[2] - d) / (gd[1] - d)
+    assert ratio == pytest.approx(2 ** (2 * order), rel=0.05)
+
+
+@pytest.mark.parametrize("d", [0.25, 0.5, 0.9])
+def test_lagrange_first_order_error_matches_its_closed_form(d):
+    # Linear interpolation H = (1 - d) + d e^{-jw} has |H|^2 = 1 - 2 d (1 - d)(1 - cos w) (derived from the taps).
+    h = lagrange_taps(d, 1)
+    w = np.linspace(0.01, 3.0, 50)
+    mag2 = np.abs(signal.freqz(h, 1, worN=w)[1]) ** 2
+    np.testing.assert_allclose(mag2, 1 - 2 * d * (1 - d) * (1 - np.cos(w)), rtol=1e-12)
+
+
+@pytest.mark.parametrize("order", [2, 3, 4, 7])
+def test_lagrange_is_exact_for_polynomials_up_to_its_order(order):
+    # Lagrange interpolation (Laakso et al. 1996, from memory): sum_n h[n] n^p = d^p for p <= N.
+    d = order / 2 + 0.37
+    h = lagrange_taps(d, order)
+    n = np.arange(order + 1)
+    for p in range(order + 1):
+        assert float(np.sum(h * n ** p)) == pytest.approx(d ** p, rel=1e-9)
+
+
+@pytest.mark.parametrize("interp", ["thiran", "lagrange"])
+def test_fractional_delay_meets_002_samples_at_1khz(interp):
+    # The request (0.3521 ms at 48 kHz = 16.9008 samples); reference: scipy.signal.group_delay of the blocks.
+    from coefc.blocks import DelayBlock, FirBlock, SosBlock
+
+    ch = design(f'{{ kind = "delay", ms = 0.3521, interpolation = "{interp}" }}')
+    w = np.array([2 * math.pi * 1000 / 48000])
+    gd = 0.0
+    for b in ch.blocks:
+        if isinstance(b, DelayBlock):
+            gd += b.samples
+        elif isinstance(b, SosBlock):
+            for row in b.sos:
+                gd += signal.group_delay((row[:3], row[3:]), w=w)[1][0]
+        elif isinstance(b, FirBlock):
+            gd += signal.group_delay((b.taps, [1.0]), w=w)[1][0]
+    assert abs(gd - 0.3521e-3 * 48000) <= 0.02
+
+
+def test_tighter_accuracy_raises_the_order():
+    loose = design('{ kind = "delay", ms = 1.01, interpolation = "lagrange", accuracy_hz = 8000 }')
+    tight = design('{ kind = "delay", ms = 1.01, interpolation = "lagrange", accuracy_hz = 8000, '
+                   'max_error_samples = 0.0005 }')
+    assert tight.stages[0].order > loose.stages[0].order
+
+
+def test_accuracy_keys_need_an_interpolation():
+    with pytest.raises(DescriptionError, match="only applies with interpolation"):
+        design('{ kind = "delay", ms = 1.01, max_error_samples = 0.01 }')

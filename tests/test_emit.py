@@ -11,14 +11,14 @@ from types import SimpleNamespace
 import numpy as np
 import pytest
 
-from c_build import STRICT, emit_text, fake_realisation, hand_programs, kernel_structures, run_headers
+from c_build import STRICT, emit_text, fake_realisation, hand_programs, kernel_structures, run_headers, write_kernel
 from conftest import lab_board_copy, target_copy
-from coefc.emit.header import C_KEYWORDS, EmitError, c_identifier, golden_input, render
+from coefc.emit.header import C_KEYWORDS, EmitError, c_identifier, golden_input, kernel_texts, render
 from coefc.errors import DescriptionError, TargetError
 from coefc.program import Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURES
 from coefc.qformat import QFormat
 from coefc.simulate import simulate
-from coefc.targetspec import find_target
+from coefc.targetspec import build_info, find_target
 
 HERE = Path(__file__).resolve().parent
 MCU32 = Arithmetic()
@@ -202,7 +202,7 @@ def test_guards_stop_a_header_used_with_the_wrong_kernel(target, tmp_path):
     fname, cname, text = emit_text(hand_programs(t.arithmetic, kernel_structures(t.structures)), target, "guarded",
                                    vectors=0)
     (tmp_path / fname).write_text(text)
-    kernel = (t.folder / "kernel" / f"coefc_{target}.h").read_text()
+    kernel = kernel_texts(t, build_info(t))[f"coefc_{target}.h"]
     P = f"COEFC_{target.upper()}"
     abi = int(re.search(rf"#define {P}_ABI (\d+)", kernel).group(1))
     assert f"{P}_ABI != {abi}" in text  # the header was made for this kernel
@@ -367,7 +367,7 @@ def test_an_interface_1_target_gets_every_tap_and_refuses_the_new_kernel(tmp_pat
     assert _array(files["lab.c"], "lab_x_coefs") == [str(v) for v in taps]
     (tmp_path / "lab.h").write_text(files["lab.h"])
     (tmp_path / "use.c").write_text('#include "lab.h"\nint main(void) { return 0; }\n')
-    kdir = find_target("mcu32").folder / "kernel"
+    kdir = write_kernel(tmp_path / "kernel", "mcu32")
     r = subprocess.run(["gcc", *STRICT, "-fsyntax-only", "-I", str(kdir), "-I", str(tmp_path),
                         str(tmp_path / "use.c")], capture_output=True, text=True)
     assert r.returncode != 0 and "#error" in r.stderr and "interface 1" in r.stderr

@@ -14,7 +14,7 @@ from pathlib import Path
 import pytest
 
 REPO = Path(__file__).resolve().parent.parent
-BUILTINS = ("mcu16", "mcu32", "dsp24", "float32")
+BUILTINS = ("mcu16", "mcu32", "dsp24", "float32", "mcu32hw")
 
 
 @pytest.mark.skipif(importlib.util.find_spec("build") is None, reason="the 'build' package is not installed")
@@ -35,9 +35,12 @@ def test_wheel_contains_targets_templates_and_kernels(tmp_path):
     (wheel,) = (tmp_path / "dist").glob("coefc-*.whl")
     names = set(zipfile.ZipFile(wheel).namelist())
     for t in BUILTINS:
-        base = f"coefc/_builtin_targets/{t}"
-        for rel in ("target.toml", "templates/header.h.j2", f"kernel/coefc_{t}.h", f"kernel/coefc_{t}.c"):
-            assert f"{base}/{rel}" in names, f"{base}/{rel} missing from {wheel.name}"
+        assert f"coefc/_builtin_targets/{t}/target.toml" in names, f"{t}/target.toml missing from {wheel.name}"
+    # float32 ships its kernel as files; the fixed-point kernels and every header are
+    # rendered from the shared templates of targets/_common
+    for rel in ("float32/kernel/coefc_float32.h", "float32/kernel/coefc_float32.c", "_common/templates/header.h.j2",
+                *(f"_common/kernel/fixed/{n}.j2" for n in ("kernel.h", "kernel.c", "arith.c", "sections.c", "fir.c"))):
+        assert f"coefc/_builtin_targets/{rel}" in names, f"{rel} missing from {wheel.name}"
     assert "coefc/emit/header.py" in names and "coefc/cli/build_cmd.py" in names
     assert "coefc/reports/templates/report.html.j2" in names  # coefc report's page template
     assert any(n.startswith("coefc/_engine") and n.endswith(".so") for n in names)  # the compiled engine core

@@ -137,8 +137,13 @@ int main() {
 
 
 def test_output_into_the_target_folder_cannot_replace_its_files(tmp_path):
-    board = tmp_path / "targets" / "board"
+    from c_build import write_kernel
+
+    board = tmp_path / "targets" / "board"  # mcu32 with kernel files of its own (no [kernel] family)
     shutil.copytree(Path(__file__).resolve().parents[1] / "targets" / "mcu32", board)
+    write_kernel(board / "kernel", "mcu32")
+    toml = board / "target.toml"
+    toml.write_text("\n".join(t for t in toml.read_text().splitlines() if not t.startswith("family")) + "\n")
     before = (board / "kernel" / "coefc_mcu32.h").read_bytes()
     r = coefc("build", EXAMPLE, "--target-dir", tmp_path / "targets", "--target", "board", "--reference-kernel",
               "-o", board / "kernel" / "filters.h")

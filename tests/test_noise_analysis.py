@@ -292,3 +292,42 @@ def test_error_feedback_with_double_word_feedback_two_sources(rounding):
     # error feedback takes the rounding's share far below plain double-word feedback's
     plain = analytic_noise(_wide_section(-2 * r * math.cos(th), r * r, ar.with_(structure="df1-wide-fb"), 0.02))
     assert an.dbfs < plain.dbfs - 20
+# rounded products ([arithmetic] product_shift): one source per rounded product, all at the
+# accumulator (Jackson 1970: rounding after every multiplication, k_j sources of q^2/12 at a
+# node [confirmed]); error feedback shapes only the final rounding.
+HW = Arithmetic(data=QFormat(1, 27), coef=QFormat(2, 30), acc_bits=32, rounding="add-half", overflow="saturate",
+                product_shift=29, product_rounding="add-half")
+
+
+@pytest.mark.parametrize("structure", ["df1", "tdf2", "df1ef"])
+@pytest.mark.parametrize("product_rounding", ["add-half", "half-even", "truncate"])
+def test_rounded_products_measured_matches_analytic(structure, product_rounding):
+    ar = HW.with_(structure=structure, product_rounding=product_rounding)
+    p = one_section(-2 * 0.95 * math.cos(0.3), 0.95 ** 2, ar, b0=0.05)
+    an = analytic_noise(p)
+    me = measured_noise(p, samples=1 << 15)
+    assert me.model_holds
+    assert abs(an.dbfs - me.dbfs) < 1.0, (an.dbfs, me.dbfs)
+    if product_rounding == "truncate":  # each product's -q/2 passes at the DC gain of 1/A
+        assert me.mean == pytest.approx(an.mean, rel=0.05)
+
+
+def test_rounded_products_add_one_source_per_product():
+    # b0 and a1, a2 nonzero (b1 = b2 = 0): three products each dropping 29 bits, q = 2^-1 LSB
+    # (k = Fc - P = 1), so 3 (q^2/12) through 1/A beside the final rounding of 1 bit
+    p = one_section(-2 * 0.95 * math.cos(0.3), 0.95 ** 2, HW, b0=0.05)
+    exact = analytic_noise(one_section(-2 * 0.95 * math.cos(0.3), 0.95 ** 2, HW.with_(product_shift=0), b0=0.05))
+    an = analytic_noise(p)
+    prod = [s for s in an.sources if s.k == 29]
+    assert len(prod) == 1
+    assert prod[0].variance_lsb2 == pytest.approx(3 * 0.25 / 12, rel=1e-6)
+    assert an.variance > exact.variance
+
+
+def test_error_feedback_does_not_shape_rounded_products():
+    a1, a2 = -2 * 0.99 * math.cos(0.05), 0.99 ** 2
+    ef = analytic_noise(one_section(a1, a2, HW.with_(structure="df1ef"), b0=0.01))
+    plain = analytic_noise(one_section(a1, a2, HW.with_(structure="df1"), b0=0.01))
+    assert ef.dbfs > plain.dbfs - 3  # the products' noise still goes through 1/A(z)
+    me = measured_noise(one_section(a1, a2, HW.with_(structure="df1ef"), b0=0.01), samples=1 << 15)
+    assert abs(ef.dbfs - me.dbfs) < 1.0, (ef.dbfs, me.dbfs)

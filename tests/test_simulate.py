@@ -34,6 +34,14 @@ def arithmetics(draw, max_acc=64, wide=False):
                       structure=draw(st.sampled_from(STRUCTURES)))
 
 
+def _sec(c, shift, structure):
+    """A section of *structure* from coefficient words *c* (8 words for the coupled form, else 5)."""
+    if STRUCTURE_TABLE[structure].state_space:
+        c = list(c) + list(c)[: 8 - len(c)] if len(c) < 8 else list(c)
+        return SectionOp(b=tuple(c[:4]), a=tuple(c[4:8]), shift=shift, structure=structure)
+    return SectionOp(b=tuple(c[:3]), a=tuple(c[3:5]), shift=shift, structure=structure)
+
+
 def _word(draw, fmt):
     edge = st.sampled_from([fmt.min_int, fmt.max_int, 0, -1, 1])
     return draw(st.one_of(edge, st.integers(fmt.min_int, fmt.max_int)))
@@ -45,9 +53,10 @@ def ops(draw, ar):
     kind = draw(st.sampled_from(("sos", "sos", "sos", "fir", "gain", "delay")))
     shift = draw(st.integers(max(fc - 62, -4), fc - 1))
     if kind == "sos":
-        c = [_word(draw, ar.coef) for _ in range(5)]
-        lo = tuple(_word(draw, ar.coef) for _ in range(2)) if STRUCTURE_TABLE[ar.structure].wide_feedback else ()
-        return SectionOp(b=tuple(c[:3]), a=tuple(c[3:]), shift=shift, structure=ar.structure, a_lo=lo)
+        c = [_word(draw, ar.coef) for _ in range(8)]
+        if STRUCTURE_TABLE[ar.structure].wide_feedback:
+            return SectionOp(b=tuple(c[:3]), a=tuple(c[3:5]), shift=shift, structure=ar.structure, a_lo=tuple(c[5:7]))
+        return _sec(c, shift, ar.structure)
     if kind == "fir":
         n = draw(st.integers(1, 9))
         taps = [_word(draw, ar.coef) for _ in range(n)]
@@ -112,8 +121,8 @@ def test_full_scale_32_bit_words_hit_both_accumulator_paths(structure, acc):
     ar = Arithmetic(data=QFormat(1, 31), coef=QFormat(2, 30), acc_bits=acc, structure=structure)
     big = (1 << 31) - 1
     prog = ChannelProgram("t", 48000, ar, (
-        SectionOp(b=(big, -big - 1, big), a=(-big - 1, big), shift=0, structure=structure),
-        SectionOp(b=(1 << 28, 1 << 29, 1 << 28), a=(-(1 << 31) + 5, (1 << 30) - 9), shift=0, structure=structure),
+        _sec((big, -big - 1, big, -big - 1, big), 0, structure),
+        _sec((1 << 28, 1 << 29, 1 << 28, -(1 << 31) + 5, (1 << 30) - 9), 0, structure),
     ))
     rng = np.random.default_rng(7)
     x = rng.choice([-(1 << 31), (1 << 31) - 1, 0, 12345], size=200).tolist()
@@ -216,7 +225,8 @@ def test_fast_path_detects_a_difference_that_leaves_int64(structure):
 def test_first_sum_wraps_while_the_states_stay_in_range(structure, rounding):
     # a single large tap and a 40-bit accumulator: only B0 x[n] leaves the range
     ar = Arithmetic(data=QFormat(1, 31), coef=QFormat(2, 30), acc_bits=40, structure=structure, rounding=rounding)
-    prog = ChannelProgram("t", 48000, ar, (SectionOp(b=(1 << 29, 0, 0), a=(0, 0), structure=structure),))
+    c = (1 << 29, 0, 0, 0, 0, 0, 0, 0) if STRUCTURE_TABLE[structure].state_space else (1 << 29, 0, 0, 0, 0)
+    prog = ChannelProgram("t", 48000, ar, (_sec(c, 0, structure),))
     x = [(1 << 31) - 1, -(1 << 31), 1 << 20, -(1 << 25), 12345, (1 << 31) - 1]
     _compare(prog, x)
     assert sim.simulate(prog, x, trace=True).acc_overflow_counts[0] > 0
@@ -316,3 +326,96 @@ def test_error_feedback_wide_section_beyond_64_bits_takes_the_exact_path(roundin
     assert not sim._fast_ok(prog)
     x = np.r_[np.full(30, (1 << 31) - 1), np.full(30, -(1 << 31)), np.zeros(40)].astype(np.int64)
     _compare(prog, x.tolist())
+@pytest.mark.parametrize("rounding", ROUNDING_MODES)
+@pytest.mark.parametrize("overflow", OVERFLOW_MODES)
+@pytest.mark.parametrize("acc", [24, 32, 40])
+def test_coupled_form_equals_exact_model_at_full_scale(rounding, overflow, acc):
+    # Q1.15 data, Q2.14 coefficients (a 16-bit part): poles 0.999 e^(+-j 0.01) as a rotation
+    # (Rader & Gold 1967, from memory: alpha = r cos(theta), beta = r sin(theta)), an output
+    # combination that saturates, full-scale and random inputs; a 24-bit accumulator wraps
+    ar = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 14), acc_bits=acc, rounding=rounding,
+                    overflow=overflow, structure="coupled")
+    al, be = round(0.999 * np.cos(0.01) * 2 ** 14), round(0.999 * np.sin(0.01) * 2 ** 14)
+    prog = ChannelProgram("t", 48000, ar, (
+        SectionOp(b=(8000, 30000, -30000, 2000), a=(al, -be, be, al), shift=0, structure="coupled"),
+        SectionOp(b=(-32768, 32767, 32767, -32768), a=(32767, -32768, 32767, 32767), shift=1, structure="coupled"),
+    ))
+    rng = np.random.default_rng(13)
+    x = np.concatenate([np.full(300, 32767), np.full(200, -32768),
+                        rng.integers(-32768, 32768, 800)]).tolist()
+    _compare(prog, x)
+    _compare(prog, x, exact=True)
+    t = sim.simulate(prog, x, trace=True)
+    if acc == 24:
+        assert t.acc_overflow_counts[0] > 0 and t.acc_overflow_counts[1] > 0
+    else:
+        assert t.overflow_counts[0] > 0  # the states (DC gain about 8.6) overflow their word
+
+
+# ---------------------------------------------------------------- rounded products
+# [arithmetic] product_shift / product_rounding: every product rounded by 2^P before
+# it is added (coefc.program docstring, "Rounded products"); the exact model is
+# written from that text.
+
+#: the structures coefc models with rounded products (the others need exact products: coefc.targetspec)
+EXACT_PRODUCT_FREE = [s for s in STRUCTURES if not (STRUCTURE_TABLE[s].wide_feedback or STRUCTURE_TABLE[s].state_space)]
+
+
+@st.composite
+def rounded_product_programs(draw, product_rounding=None):
+    wd = draw(st.integers(4, 32))
+    wc = draw(st.integers(4, min(32, 64 - wd)))
+    fc = draw(st.integers(2, wc - 1))
+    P = draw(st.integers(1, fc))
+    ar = Arithmetic(data=QFormat(1, wd - 1), coef=QFormat(wc - fc, fc), acc_bits=draw(st.integers(wd, 64)),
+                    rounding=draw(st.sampled_from(ROUNDING_MODES)), overflow=draw(st.sampled_from(OVERFLOW_MODES)),
+                    structure=draw(st.sampled_from(EXACT_PRODUCT_FREE)), product_shift=P,
+                    product_rounding=product_rounding or draw(st.sampled_from(ROUNDING_MODES)))
+    out = []
+    for _ in range(draw(st.integers(1, 3))):
+        op = draw(ops(ar))
+        if not isinstance(op, DelayOp):  # the final shift Fc - s - P must not be negative
+            op = type(op)(**{**op.__dict__, "shift": draw(st.integers(max(fc - P - 62, -4), fc - P))})
+        out.append(op)
+    n = draw(st.integers(0, 40))
+    return ChannelProgram("t", 48000, ar, tuple(out)), [_word(draw, ar.data) for _ in range(n)]
+
+
+@pytest.mark.parametrize("product_rounding", ROUNDING_MODES)
+@settings(**dict(SETTINGS, max_examples=150))
+@given(data=st.data())
+def test_rounded_products_engine_equals_exact_model(product_rounding, data):
+    prog, x = data.draw(rounded_product_programs(product_rounding))
+    assert sim._fast_ok(prog)
+    _compare(prog, x)
+    _compare(prog, x, exact=True)
+
+
+@pytest.mark.parametrize("structure", STRUCTURES)
+@pytest.mark.parametrize("product_rounding", ROUNDING_MODES)
+def test_rounded_products_by_hand(structure, product_rounding):
+    """A worked case: Q1.7 data, Q2.6 coefficients, P = 6 = Fc (no final shift), so every
+    output is the sum of the rounded products; checked against Python's own rounding."""
+    import math
+    from fractions import Fraction
+
+    rnd = {"add-half": lambda f: math.floor(f + Fraction(1, 2)), "truncate": math.floor,
+           "half-even": round, "toward-zero": math.trunc}[product_rounding]  # Python semantics
+    ar = Arithmetic(data=QFormat(1, 7), coef=QFormat(2, 6), acc_bits=16, rounding="add-half",
+                    overflow="saturate", structure=structure, product_shift=6, product_rounding=product_rounding)
+    b, a = (23, -41, 9), (-70, 30)
+    prog = ChannelProgram("t", 48000, ar, (SectionOp(b, a, 0, structure),))
+    x = [100, -37, 5, 0, 0, -128, 127, 3]
+    y = sim.simulate(prog, np.array(x, dtype=np.int64)).tolist()
+    q = lambda c, v: rnd(Fraction(c * v, 64))  # noqa: E731
+    x1 = x2 = y1 = y2 = 0
+    s1 = s2 = 0
+    for n, xn in enumerate(x):
+        if structure == "tdf2":
+            yn = max(-128, min(127, q(b[0], xn) + s1))
+            s1 = q(b[1], xn) + q(-a[0], yn) + s2
+            s2 = q(b[2], xn) + q(-a[1], yn)
+        else:  # df1ef feeds back E = 0: with no final shift there is no residual
+            yn = max(-128, min(127, q(b[0], xn) + q(b[1], x1) + q(b[2], x2) + q(-a[0], y1) + q(-a[1], y2)))
+        assert y[n] == yn, n
+        x2, x1, y2, y1 = x1, xn, y1, yn

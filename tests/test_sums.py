@@ -20,7 +20,7 @@ import coefc
 from coefc.analyse.sums import multisine
 from coefc.blocks import chain_response
 from coefc.budget import run_check
-from coefc.realise import as_float_blocks
+from coefc.blocks import as_float_blocks
 from coefc.errors import DescriptionError
 from coefc.spec import load_description
 

@@ -109,6 +109,26 @@ def test_fewest_bits_matches_brute_force(sweeper):
         assert found.evaluated < found.grid
 
 
+def test_processes_give_the_same_table_and_minimum(lp_file):
+    # Configurations are independent: evaluating them in forked worker processes must
+    # give exactly the serial results, in the grid's order (the serial run is the reference).
+    def fresh():
+        d = coefc.load(lp_file).design()
+        return Sweeper(d, d.loaded.description.budget, options=AnalysisOptions(measure_noise=False))
+
+    serial, parallel = fresh(), fresh()
+    configs, _ = serial.configs(["mcu32"], None, None, (20, 24, 28), (16, 20, 24))
+    one = serial.run(configs, jobs=1)
+    two = parallel.run(configs, jobs=2)
+    assert [r.config for r in two.results] == [r.config for r in one.results]
+    assert two.to_json() == one.to_json()
+    for ci, name in enumerate(("lp", "hp")):
+        a = fewest_bits(fresh(), ci, name, "mcu32", "df1", 64, (16, 20, 24, 28), (12, 16, 20, 24))
+        b = fewest_bits(fresh(), ci, name, "mcu32", "df1", 64, (16, 20, 24, 28), (12, 16, 20, 24), jobs=3)
+        assert (a.data_bits, a.coef_bits) == (b.data_bits, b.coef_bits)
+        assert a.evaluated <= b.evaluated < a.evaluated + 3
+
+
 def test_cheapest_is_cheapest(sweeper):
     configs, _ = sweeper.configs(["mcu32"], None, None, (24, 28, 32), (20, 24, 28))
     res = sweeper.run(configs)

@@ -28,6 +28,7 @@ GOOD_BAD = {
     "limit_cycles": ("none", "few"),
     "overflow": ("allow", "sometimes"),
     "tone_gain_error_db": ("off", "loud"),
+    "correction_error_db": (0.5, 0.0),
 }
 
 

@@ -14,6 +14,7 @@ import pytest
 
 from coefc.errors import TargetError
 from coefc.qformat import QFormat
+from coefc.emit.header import kernel_texts
 from coefc.targetspec import ENV_VAR, build_info, find_target, key_line, list_targets
 from conftest import lab_board_copy
 
@@ -46,8 +47,7 @@ def test_builtin_fixed_targets_state_their_arithmetic(name, data, coef, acc):
     assert width[info.data_type] >= QFormat.parse(data).width
     assert width[info.coef_type] >= QFormat.parse(coef).width
     assert info.max_acc_bits == acc
-    for p in info.kernel_files(t.folder):
-        assert p.is_file(), p
+    assert info.kernel_family == "fixed"  # rendered from targets/_common/kernel/fixed
 
 
 def test_float32_target_and_the_default():
@@ -61,9 +61,51 @@ def test_dsp24_stores_negated_a_and_its_kernel_agrees():
     t = find_target("dsp24")
     info = build_info(t)
     assert info.section_layout == ("b0", "b1", "b2", "-a1", "-a2")
-    kernel_h = (t.folder / info.kernel_header).read_text()
-    assert "#define COEFC_DSP24_SECTION_A_NEGATED 1" in kernel_h
-    assert "msub" not in (t.folder / info.kernel_sources[0]).read_text()  # MAC only
+    texts = kernel_texts(t, info)
+    assert "#define COEFC_DSP24_SECTION_A_NEGATED 1" in texts["coefc_dsp24.h"]
+    assert "msub" not in texts["coefc_dsp24.c"]  # MAC only
+
+
+def test_fixed_point_kernels_come_from_one_set_of_templates():
+    """mcu16, mcu32 and dsp24 differ only in what the target states (types, widths, names)."""
+    import re
+
+    texts = {}
+    for name in ("mcu16", "mcu32", "dsp24"):
+        t = find_target(name)
+        info = build_info(t)
+        assert info.kernel_family == "fixed" and not (t.folder / "kernel").exists()
+        src = kernel_texts(t, info)[f"coefc_{name}.c"]
+        texts[name] = re.sub(r"coefc_\w+|COEFC_[A-Z0-9]+|u?int\d+_t|\d+", "#", src)
+    # the same skeleton once names, types and numbers are masked (the a-term comments differ for dsp24)
+    assert texts["mcu16"] == texts["mcu32"]
+    assert texts["mcu32"].count("case #_OP_") == texts["dsp24"].count("case #_OP_") == 7
+
+
+def test_a_target_folder_template_wins_over_the_shared_one(tmp_path):
+    """A user target copies one piece of the kernel (or the header template) and changes only that."""
+    from c_build import fake_realisation, hand_programs
+    from coefc.emit.header import render
+    from coefc.targetspec import common_dir
+
+    board = tmp_path / "board"
+    shutil.copytree(find_target("mcu32").folder, board)
+    (board / "kernel" / "fixed").mkdir(parents=True)
+    fir = (common_dir() / "kernel" / "fixed" / "fir.c.j2").read_text()
+    (board / "kernel" / "fixed" / "fir.c.j2").write_text(fir.replace(
+        "    case {{ k.PREFIX }}_OP_FIR:\n", "    case {{ k.PREFIX }}_OP_FIR: /* board's own FIR */\n"))
+    (board / "templates").mkdir()
+    head = (common_dir() / "templates" / "header.h.j2").read_text()
+    (board / "templates" / "header.h.j2").write_text(head.replace("#define {{ guard }}\n",
+                                                                   "#define {{ guard }}\n/* board's header */\n"))
+    t = find_target("board", [tmp_path])
+    texts = kernel_texts(t, build_info(t))
+    assert "/* board's own FIR */" in texts["coefc_mcu32.c"]
+    assert "board's own" not in kernel_texts(find_target("mcu32"), build_info(find_target("mcu32")))["coefc_mcu32.c"]
+    real = fake_realisation(hand_programs(t.arithmetic, t.structures), "mcu32")
+    real = type(real)(real.design, t, real.programs)
+    files = render(real, None, header_name="lab.h", vectors=0, with_kernel=True)
+    assert "/* board's header */" in files["lab.h"] and "/* board's own FIR */" in files["coefc_mcu32.c"]
 
 
 def test_every_builtin_is_listed():
@@ -104,11 +146,11 @@ def test_broken_target_tables_name_file_and_line(fixture, pattern):
 
 
 def test_missing_kernel_file_is_named(tmp_path):
-    folder = tmp_path / "half_board"
-    shutil.copytree(find_target("mcu32").folder, folder)
-    (folder / "kernel" / "coefc_mcu32.c").unlink()
+    # lab_board ships its kernel as files (no [kernel] family): each must exist
+    folder = lab_board_copy(tmp_path)
+    (folder / "lab_board" / "kernel" / "coefc_mcu32.c").unlink()
     with pytest.raises(TargetError, match=r"target\.toml:\d+: \[kernel\] sources: file 'kernel/coefc_mcu32\.c' not found"):
-        build_info(find_target("half_board", [tmp_path]))
+        build_info(find_target("lab_board", [folder]))
 
 
 def test_target_without_build_tables_lists_but_cannot_build(tmp_path):

@@ -8,6 +8,8 @@
  *
  *   cascade(x, ys, coefs, structure, acc_bits, rounding, overflow, data_width)
  *       consecutive second-order sections, fused sample by sample
+ *   coupled(x, y, coefs, acc_bits, rounding, overflow, data_width)
+ *       one coupled-form section (engine code 3; exact wide sums)
  *   fir(x, y, taps, k, acc_bits, rounding, overflow, data_width)
  *   gain(x, y, C, k, acc_bits, rounding, overflow, data_width)
  *   sos_wide(x, y, B0..A2H, A1L, A2L, L, k, ..., ef): one df1-wide-fb section
@@ -568,6 +570,62 @@ done:
     return result;
 }
 
+/* ------------------------------------------------------------ coupled form
+ * coupled(x, y, coefs, acc_bits, rounding, overflow, width) -> (ovf, acc_ovf)
+ * coefs = (D, C1, C2, G, A11, A12, A21, A22, k) (coefc/program.py, "coupled"):
+ *   accY = wrapA(D x + C1 S1 + C2 S2);  y = fit(round_shift(accY, k))
+ *   acc1 = wrapA(A11 S1 + A12 S2 + G x);  acc2 = wrapA(A21 S1 + A22 S2)
+ *   S1 = fit(round_shift(acc1, k));  S2 = fit(round_shift(acc2, k))
+ * Every product of two words fits int64; the sums are exact (wsum_t).  A sample
+ * counts one data overflow when any of its three fits changed a value, one
+ * accumulator overflow when any of its three sums left the accumulator. */
+static PyObject *py_coupled(PyObject *self, PyObject *args)
+{
+    PyObject *xo, *yo, *co;
+    int acc_bits, rounding, overflow, width;
+    if (!PyArg_ParseTuple(args, "OOOiiii", &xo, &yo, &co, &acc_bits, &rounding, &overflow, &width))
+        return NULL;
+    Py_buffer xb, yb, cb;
+    if (get_xy(xo, yo, &xb, &yb, 'i') < 0) return NULL;
+    if (get_buf(co, &cb, 0, 'i', "coefs") < 0) { PyBuffer_Release(&xb); PyBuffer_Release(&yb); return NULL; }
+    if (cb.len / 8 != 9) {
+        PyErr_SetString(PyExc_ValueError, "engine: coupled coefs must hold 9 integers");
+        PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&cb);
+        return NULL;
+    }
+    const int64_t *c = (const int64_t *)cb.buf;
+    arith_t ar;
+    if (arith_init(&ar, (int)c[8], acc_bits, rounding, overflow, width) < 0) {
+        PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&cb);
+        return NULL;
+    }
+    const int64_t D = c[0], C1 = c[1], C2 = c[2], G = c[3], A11 = c[4], A12 = c[5], A21 = c[6], A22 = c[7];
+    Py_ssize_t n = xb.len / 8;
+    const int64_t *x = (const int64_t *)xb.buf;
+    int64_t *y = (int64_t *)yb.buf;
+    long long ovf = 0, aovf = 0;
+    int64_t s1 = 0, s2 = 0;
+    Py_BEGIN_ALLOW_THREADS
+    for (Py_ssize_t i = 0; i < n; i++) {
+        long long bad = 0, o = 0;
+        wsum_t w, w1, w2;
+        WS_INIT(w); WS_ADD(w, D * x[i]); WS_ADD(w, C1 * s1); WS_ADD(w, C2 * s2);
+        WS_INIT(w1); WS_ADD(w1, A11 * s1); WS_ADD(w1, A12 * s2); WS_ADD(w1, G * x[i]);
+        WS_INIT(w2); WS_ADD(w2, A21 * s1); WS_ADD(w2, A22 * s2);
+        int64_t accy = WS_FINISH(w, &ar, &bad);
+        int64_t acc1 = WS_FINISH(w1, &ar, &bad);
+        int64_t acc2 = WS_FINISH(w2, &ar, &bad);
+        y[i] = fit(rshift(accy, &ar), &ar, &o);
+        s1 = fit(rshift(acc1, &ar), &ar, &o);
+        s2 = fit(rshift(acc2, &ar), &ar, &o);
+        ovf += o != 0;
+        aovf += bad != 0;
+    }
+    Py_END_ALLOW_THREADS
+    PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&cb);
+    return Py_BuildValue("LL", ovf, aovf);
+}
+
 /* ------------------------------------------------------------ zero-input iteration */
 
 /* The zero-input recursion of a section (coefc.analyse.limitcycles), run on many
@@ -1035,10 +1093,101 @@ static PyObject *py_gain_f32(PyObject *self, PyObject *args)
     Py_RETURN_NONE;
 }
 
+/* ------------------------------------------------------------ rounded products
+ * Targets whose multiplier keeps only the high part of each product: every
+ * product p is rounded to q(p) = round_shift(p, P) by the target's product
+ * rounding before it is added (coefc/program.py, "product shift").  One op per
+ * call, sample by sample; sums exact (wide_t), so accumulator overflows count as
+ * in the exact-product ops.  kind 0/1/2 = df1/tdf2/df1ef (coefs B0 B1 B2 A1 A2),
+ * 3 = FIR (coefs = taps), 4 = gain (coefs = C); k = the final shift, 0..62.
+ */
+static inline int64_t pround(int64_t v, int p, int mode)
+{
+    int64_t q = v >> p;
+    uint64_t rem = (uint64_t)v & ((UINT64_C(1) << p) - 1), half = UINT64_C(1) << (p - 1);
+    switch (mode) {
+    case 0: return q + (rem >= half);
+    case 1: return q;
+    case 2: return q + (rem > half || (rem == half && (q & 1)));
+    default: return q + (v < 0 && rem != 0);
+    }
+}
+
+static PyObject *py_rounded_products(PyObject *self, PyObject *args)
+{
+    PyObject *xo, *yo, *co;
+    int kind, k, P, prnd, acc_bits, rounding, overflow, width;
+    if (!PyArg_ParseTuple(args, "OOOiiiiiiii", &xo, &yo, &co, &kind, &k, &P, &prnd, &acc_bits, &rounding,
+                          &overflow, &width))
+        return NULL;
+    arith_t ar;
+    /* arith_init needs k >= 1; k == 0 (no final shift) is handled here */
+    if (arith_init(&ar, k < 1 ? 1 : k, acc_bits, rounding, overflow, width) < 0) return NULL;
+    if (k < 0 || P < 1 || P > 62 || prnd < 0 || prnd > 3 || kind < 0 || kind > 4) {
+        PyErr_SetString(PyExc_ValueError, "engine: rounded_products: k 0..62, P 1..62, kind 0..4");
+        return NULL;
+    }
+    Py_buffer xb, yb, cb;
+    if (get_xy(xo, yo, &xb, &yb, 'i') < 0) return NULL;
+    if (get_buf(co, &cb, 0, 'i', "coefs") < 0) { PyBuffer_Release(&xb); PyBuffer_Release(&yb); return NULL; }
+    Py_ssize_t n = xb.len / 8, nc = cb.len / 8;
+    const int64_t *x = (const int64_t *)xb.buf, *c = (const int64_t *)cb.buf;
+    int64_t *y = (int64_t *)yb.buf;
+    long long ovf = 0, aovf = 0;
+    if ((kind <= 2 && nc != 5) || (kind == 4 && nc != 1)) {
+        PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&cb);
+        PyErr_SetString(PyExc_ValueError, "engine: rounded_products: 5 coefficients per section, 1 per gain");
+        return NULL;
+    }
+    Py_BEGIN_ALLOW_THREADS
+    int64_t x1 = 0, x2 = 0, y1 = 0, y2 = 0, e = 0, s1 = 0, s2 = 0;
+    for (Py_ssize_t i = 0; i < n; i++) {
+        int64_t xn = x[i], acc, v, yn;
+        wide_t w = {0, 0};
+        if (kind == 3) {
+            Py_ssize_t m = i + 1 < nc ? i + 1 : nc;
+            for (Py_ssize_t j = 0; j < m; j++) wadd(&w, pround(c[j] * x[i - j], P, prnd));
+        } else if (kind == 4) {
+            wadd(&w, pround(c[0] * xn, P, prnd));
+        } else if (kind == 1) {
+            wadd(&w, pround(c[0] * xn, P, prnd)); wadd(&w, s1);
+        } else {
+            wadd(&w, pround(c[0] * xn, P, prnd)); wadd(&w, pround(c[1] * x1, P, prnd));
+            wadd(&w, pround(c[2] * x2, P, prnd));
+            wadd(&w, pround(-(c[3] * y1), P, prnd)); wadd(&w, pround(-(c[4] * y2), P, prnd));
+            if (kind == 2) wadd(&w, e);
+        }
+        acc = wfinish(&w, &ar, &aovf);
+        v = k == 0 ? acc : rshift(acc, &ar);
+        yn = fit(v, &ar, &ovf);
+        if (kind == 2) e = k == 0 ? 0 : (int64_t)((uint64_t)acc - ((uint64_t)v << k));
+        if (kind == 1) {
+            long long t1 = 0, t2 = 0;
+            wide_t w1 = {0, 0}, w2 = {0, 0};
+            wadd(&w1, pround(c[1] * xn, P, prnd)); wadd(&w1, pround(-(c[3] * yn), P, prnd)); wadd(&w1, s2);
+            wadd(&w2, pround(c[2] * xn, P, prnd)); wadd(&w2, pround(-(c[4] * yn), P, prnd));
+            s1 = wfinish(&w1, &ar, &t1);
+            s2 = wfinish(&w2, &ar, &t2);
+            /* one sample counts once, whichever of its three sums left the range */
+            if ((t1 || t2) && !(w.c != 0 || (int64_t)w.s < ar.acc_lo || (int64_t)w.s > ar.acc_hi)) aovf++;
+        }
+        x2 = x1; x1 = xn; y2 = y1; y1 = yn;
+        y[i] = yn;
+    }
+    Py_END_ALLOW_THREADS
+    PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&cb);
+    return Py_BuildValue("LL", ovf, aovf);
+}
+
 static PyMethodDef engine_methods[] = {
+    {"rounded_products", py_rounded_products, METH_VARARGS,
+     "rounded_products(x, y, coefs, kind, k, P, product_rounding, acc_bits, rounding, overflow, data_width)\n"
+     "-> (ovf, acc_ovf): one op (0 df1, 1 tdf2, 2 df1ef, 3 FIR, 4 gain) with every product rounded by 2^P."},
     {"cascade", py_cascade, METH_VARARGS,
      "cascade(x, ys, coefs, structure, acc_bits, rounding, overflow, data_width) -> [(ovf, acc_ovf), ...]\n"
      "coefs: int64 buffer of B0, B1, B2, A1, A2, k per section; ys: one writable int64 buffer per section."},
+    {"coupled", py_coupled, METH_VARARGS,
+     "coupled(x, y, coefs[D, C1, C2, G, A11, A12, A21, A22, k], acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)"},
     {"fir", py_fir, METH_VARARGS, "fir(x, y, taps, k, acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)"},
     {"sos_wide", py_sos_wide, METH_VARARGS,
      "sos_wide(x, y, B0, B1, B2, A1H, A2H, A1L, A2L, L, k, acc_bits, rounding, overflow, data_width[, ef])\n"

@@ -20,6 +20,45 @@ if TYPE_CHECKING:
     from .program import ChannelProgram
 
 
+#: Impulse responses (the scaling norms, node gains, noise gains) are followed until
+#: the slowest pole has decayed below this factor: one rule for the realiser and the analyses.
+DECAY = 1e-13
+
+
+def decay_samples(radius: float) -> int:
+    """Samples for a pole of *radius* (``0 < radius < 1``) to decay below :data:`DECAY`.
+
+    >>> decay_samples(0.5)
+    44
+    """
+    return int(np.ceil(np.log(DECAY) / np.log(radius)))
+
+
+#: bounds of :func:`impulse_length`
+MIN_IMPULSE = 256
+MAX_IMPULSE = 1 << 18
+
+
+def impulse_length(radius: float, extra: int = 0) -> int:
+    """Samples that capture a realised chain's impulse response at every node.
+
+    Twice the decay of the slowest pole (*radius*; ``1 << 14`` samples when it does
+    not decay), plus *extra* samples of FIR taps, plus 8, within
+    ``[MIN_IMPULSE, MAX_IMPULSE]``: the one length of the l1 scaling bounds and of
+    every analysis of the realised program.
+
+    >>> impulse_length(0.0), impulse_length(0.999)
+    (256, 59846)
+    """
+    if radius >= 1.0:
+        n = 1 << 14
+    elif radius > 0.0:
+        n = decay_samples(radius) * 2
+    else:
+        n = 0
+    return int(min(max(n + int(extra) + 8, MIN_IMPULSE), MAX_IMPULSE))
+
+
 @dataclass(frozen=True, eq=False)
 class SosBlock:
     """A cascade of second-order sections, shape (n, 6), a0 normalised to 1."""
@@ -93,6 +132,8 @@ class StageSummary:
     latency_samples: float  # pure delay or FIR group delay at DC, where defined
     # Designs given by requirements: asked, margin for quantisation, reached, how the margin was kept.
     requirement: Mapping | None = None
+    # Further lines the design report prints under the stage (e.g. fitted correction sections).
+    details: tuple[str, ...] = ()
 
 
 @dataclass(frozen=True, eq=False)
@@ -128,7 +169,7 @@ def as_float_blocks(program: ChannelProgram) -> tuple[Block, ...]:
     coefficients (roundoff noise and overflow aside).  Consecutive sections become
     one :class:`SosBlock`.
     """
-    from .program import DelayOp, FirOp, GainOp, SectionOp
+    from .program import DelayOp, FirOp, GainOp, SectionOp, section_transfer
 
     ar = program.arithmetic
     fc = 0 if ar.is_float else ar.coef.frac_bits
@@ -143,7 +184,8 @@ def as_float_blocks(program: ChannelProgram) -> tuple[Block, ...]:
     for op in program.ops:
         scale = 1.0 if ar.is_float else 2.0 ** (op.shift - fc) if not isinstance(op, DelayOp) else 1.0
         if isinstance(op, SectionOp):
-            rows.append([float(v) * scale for v in op.b] + [1.0] + list(op.a_phys(None if ar.is_float else ar.coef)))
+            bq, aq = section_transfer(op, 0 if ar.is_float else ar.coef)
+            rows.append(bq + aq)
             continue
         flush()
         if isinstance(op, FirOp):

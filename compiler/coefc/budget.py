@@ -292,13 +292,14 @@ def _remedies(metrics, *names: str) -> str:
     return ", ".join(words[:-1]) + (" or " if len(words) > 1 else "") + words[-1]
 
 
-def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], dict[str, str]]:
+def channel_checks(metrics, budget: Budget, tones=None, design=None) -> tuple[list[Check], dict[str, str]]:
     """The checks of one channel: (list of Check, reasons by check name).
 
     Compares *budget* as given (keys set to ``None`` are not checked); :func:`run_check`
     fills in the hazard defaults first.
 
-    *tones* is the channel's :class:`coefc.analyse.tones.ToneAnalysis` (None: not run).
+    *tones* is the channel's :class:`coefc.analyse.tones.ToneAnalysis` (None: not run);
+    *design* its float design (for ``correction_error_db``).
     """
     r, lc, ov = metrics.response, metrics.limit_cycles, metrics.overflow
     checks: list[Check] = []
@@ -325,6 +326,9 @@ def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], di
         why["passband_deviation_db"] = (
             f"passband ({r.passband_rule}) deviates by up to {_PASSBAND.value_text(v, lim, ok)} dB"
             + ("" if ok else f", over the {format_limit(lim)} dB limit; widen the coefficient word"))
+
+    if budget.correction_error_db is not None:
+        checks.append(_correction_check(r, design, budget.correction_error_db, why))
 
     if budget.stopband_attenuation_db is not None:
         v, lim = r.stopband_attenuation_db, budget.stopband_attenuation_db
@@ -616,6 +620,50 @@ def _sections(program) -> list[dict]:
     return out
 
 
+def _correction_check(r, design, lim: float, why: dict) -> Check:
+    """``correction_error_db``: each correction stage's float residual plus the channel's quantisation deviation
+    over the stage's range (a bound on the realised error by the triangle inequality in dB)."""
+    import numpy as np
+
+    kind = BY_NAME["correction_error_db"]
+    worst, where = None, ""
+    for st in (design.stages if design is not None else ()):
+        req = st.requirement or {}
+        if "residual_max_db" not in req or "range_hz" not in req:
+            continue
+        lo, hi = req["range_hz"]
+        sel = (r.freqs_hz >= lo) & (r.freqs_hz <= hi)
+        dev = float(np.max(np.abs(r.quantised_db[sel] - r.float_db[sel]))) if np.any(sel) else 0.0
+        v = float(req["residual_max_db"]) + dev
+        if worst is None or v > worst:
+            worst = v
+            where = (f"stage {st.index} ({st.kind}): float residual {req['residual_max_db']:.3g} dB + quantisation "
+                     f"{dev:.3g} dB over {lo:g}-{hi:g} Hz")
+    if worst is None:
+        why["correction_error_db"] = "not applicable: no correction stage in this channel"
+        return Check("correction_error_db", None, lim, True)
+    ok = kind.holds(worst, lim)
+    why["correction_error_db"] = (f"correction error up to {kind.value_text(worst, lim, ok)} dB, {where}"
+                                  + ("" if ok else f", over the {format_limit(lim)} dB limit; allow more sections "
+                                                   "or taps, more boost, or a narrower range"))
+    return Check("correction_error_db", worst, lim, ok)
+
+
+def _boost_cautions(designs) -> list[str]:
+    """The caution for every correction stage that boosts (its largest boost, from the design)."""
+    out = []
+    for d in designs:
+        for st in d.stages:
+            req = st.requirement or {}
+            boost = req.get("largest_boost_db")
+            if boost is not None and boost > 0.005:
+                out.append(f"channel '{d.name}', stage {st.index}: the {st.kind} boosts by up to {boost:+.2f} dB "
+                           f"near {req['largest_boost_hz']:.0f} Hz; that costs {boost:.2f} dB of headroom and "
+                           "raises driver excursion and heating there: check it against the transducer's "
+                           "excursion and thermal limits and the product's own safety limits")
+    return out
+
+
 def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
     """Analyse every channel of *realisation* and compare it with *budget*.
 
@@ -649,7 +697,7 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
             opt = replace(opt, stopband=tuple(cb.stopband))
         m = analyse_channel(designs[prog.name], prog, opt)
         tones = _run_tones(designs[prog.name], prog, m, cb)
-        checks, why = channel_checks(m, cb, tones)
+        checks, why = channel_checks(m, cb, tones, designs[prog.name])
         checks.sort(key=lambda c: c.ok)  # failing rows first
         md = m.as_dict()
         md["cost"] = cost_of(prog)  # of the generated code (coefc.emit.codegen)
@@ -666,6 +714,7 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
             if lc not in tolerated:
                 tolerated.append(lc)
     cautions = [CAUTION.format(what=" and ".join(tolerated))] if tolerated else []
+    cautions += _boost_cautions(designs[p.name] for p in realisation.programs)
     budget, _ = with_defaults(budget)
     return CheckReport(realisation.design.loaded.description.source, realisation.target.name, tuple(reports),
                        budget, tuple(cautions), defaults, sum_reports(realisation))

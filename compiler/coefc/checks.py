@@ -215,6 +215,11 @@ CHECKS: tuple[CheckKind, ...] = (
               "steady tones through the bit-true engine: max |measured - linear response| gain <= limit "
               "(\"off\" switches it off)",
               budget_key=True, validate=_tone, default=DEFAULT_TONE_GAIN_ERROR_DB),
+    CheckKind("correction_error_db", "<=", "dB", "correction error",
+              "for each correction stage: its float residual |measured x correction - target| over its range plus "
+              "the channel's largest |quantised - float| there (a bound) <= limit; no correction: not applicable",
+              budget_key=True, validate=_positive("1.0"), option="--max-correction-error-db", metavar="DB",
+              option_help="Budget override: largest error of a measurement-based correction against its target, dB."),
     CheckKind("iec61672_class1_excess_db", "<=", "dB", "IEC 61672-1 class 1 excess",
               "with the tone check, for a weighting stage: largest excess over the class 1 limits <= 0 dB"),
     CheckKind("sum_deviation_db", "<=", "dB", "sum of channels",

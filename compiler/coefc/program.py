@@ -65,6 +65,27 @@ Exact definitions shared by the engine, the C kernels and the noise analysis
            source at the rounding node (mean about 2^-k/2, variance about 2^-2k/12
            output LSB).  The feedback coefficients then have Fc + L fraction bits, so
            the grid of realisable poles near z = 1 is 2^L times finer per axis.
+    coupled  (coupled, or normal, form of Rader and Gold; two states S1, S2 kept as
+           data words; b = (D, C1, C2, G), a = (A11, A12, A21, A22); both state
+           updates read the states of the previous sample)
+           accY = wrapA(D*x[n] + C1*S1 + C2*S2);   y[n] = fit_data(round_shift(accY, k))
+           acc1 = wrapA(A11*S1 + A12*S2 + G*x[n])
+           acc2 = wrapA(A21*S1 + A22*S2)
+           S1   = fit_data(round_shift(acc1, k));  S2 = fit_data(round_shift(acc2, k))
+           With the physical values (``C * 2^(s - Fc)``) the section is the state-space
+           system  s[n+1] = A s[n] + (G, 0)' x[n],  y[n] = (C1, C2) s[n] + D x[n],  so
+             H(z) = D + G (C1 (z - A22) + C2 A21) / det(zI - A)
+             det(zI - A) = z^2 - (A11 + A22) z + (A11 A22 - A12 A21).
+           A complex pole pair r e^(+-j theta) is realised as the rotation
+           A11 = A22 = alpha = r cos(theta), A21 = -A12 = beta = r sin(theta): the
+           coefficients are the real and imaginary parts of the pole, so the grid of
+           realisable poles is uniform in the plane (dense near z = 1, where the
+           direct form's grid, uniform in r^2 and r cos(theta), is sparse).  A pair
+           of real poles |p1| <= |p2| is realised with A11 = p1, A22 = p2, A12 = 0
+           and A21 = 1 - |p2| (two first-order recursions in cascade; the coupling
+           balances the two states' gains and keeps ||A||_2 < 1).  G sets the
+           states' level (chosen by the realiser), C1, C2 and D realise the zeros.
+           Three roundings per sample: the output and each state update.
 
     df1ef-wide-fb  (df1ef and df1-wide-fb together: error feedback and double-word
            feedback coefficients; L, AH, AL as for df1-wide-fb; E the previous residual)
@@ -87,16 +108,45 @@ Exact definitions shared by the engine, the C kernels and the noise analysis
     gain   acc  = wrapA(C * x[n]);             y[n] = fit_data(round_shift(acc, k))
     delay  y[n] = x[n - D]
 
+Rounded products (``[arithmetic] product_shift = P > 0``, ``product_rounding``): many
+32-bit parts without a 64-bit multiply-accumulate keep only the high part of each
+product and accumulate those.  Then every product term ``t`` of the sums above
+(``B_i*x[n-i]``, ``C_k*x[n-k]``, ``C*x[n]``, and for the subtracted terms the product
+of the negated coefficient, ``(-A_i)*y[n-i]``) enters the accumulator as::
+
+    q(t) = round_shift_P(t, P)        (rounded by product_rounding, one of the four
+                                       rounding modes, exactly as round_shift)
+
+so the accumulator holds units of ``2^P`` and the final shift is ``k = Fc - s - P >= 0``
+(``k = 0``: ``round_shift(v, 0) = v`` and df1ef's residual ``E`` is 0).  For example
+``tdf2`` becomes ``acc = wrapA(q(B0*x[n]) + S1)``, ``S1 = wrapA(q(B1*x[n]) + q(-A1*y[n]) + S2)``,
+``S2 = wrapA(q(B2*x[n]) + q(-A2*y[n]))``; df1ef adds ``E`` after the rounded products.
+Symmetric FIR taps are never folded (``q(C*(x1+x2)) != q(C*x1) + q(C*x2)``).  With
+``P = 0`` (the default) products are exact and everything above holds as written.
+``(int32_t)(((int64_t)c * x + 2^(P-1)) >> P)`` is ``q`` for add-half, without the
+addition for truncate.
+
 An *accumulator overflow* is a sample where the exact (unwrapped) sum of that
-sample's terms lies outside the accumulator's range (for tdf2: any of its three
-sums); wrapping in between is harmless and not counted.  A *data overflow* is a
-sample where ``fit_data`` changed the value.
+sample's terms lies outside the accumulator's range (for tdf2 and coupled: any of
+its three sums); wrapping in between is harmless and not counted.  A *data overflow* is a
+sample where ``fit_data`` changed the value (for coupled: any of its three).
 
 float32 order (every step rounded to float32, no fused multiply-add)::
 
     df1    acc = b0*x0; acc += b1*x1; acc += b2*x2; acc -= a1*y1; acc -= a2*y2; y = acc
     tdf2   y = b0*x + s1; s1 = (b1*x - a1*y) + s2; s2 = b2*x - a2*y
     fir    acc = t0*x[n]; acc += t_k*x[n-k] for k = 1, 2, ...;  gain  y = g*x
+    (coupled has no float32 order: fixed point only)
+
+References
+----------
+C. M. Rader and B. Gold, "Effects of parameter quantization on the poles of a
+digital filter", Proc. IEEE 55(5), 1967 (the coupled form; cited from memory).
+C. T. Mullis and R. A. Roberts, "Roundoff noise in digital filters: frequency
+transformations and invariants", IEEE Trans. ASSP-24(6), 1976 (normal-form
+state-space sections; from memory).
+L. B. Jackson, *Digital Filters and Signal Processing*, 3rd ed., Kluwer 1996,
+sec. 11 (coupled-form sections and their noise; from memory).
 """
 
 from __future__ import annotations
@@ -146,7 +196,8 @@ class Structure:
     accumulator precision (kernel state words, state bytes, memory estimates),
     ``error_feedback`` whether the rounding residual is fed back (the noise is then
     shaped by ``1 - z^-1``: noise model, scaling, limit-cycle search, an extra add),
-    ``float32`` whether a float32 target can run it.
+    ``float32`` whether a float32 target can run it, ``state_space`` whether the
+    section holds a 2x2 state matrix (``coupled``) instead of ``b``/``a`` polynomials.
     """
 
     name: str
@@ -158,6 +209,8 @@ class Structure:
     float32: bool = True
     wide_feedback: bool = False  # a1, a2 each in a high and a low coefficient word (df1-wide-fb)
     multiplies: int = 5  # multiplies per sample of one second-order section (cost, structure = "auto")
+    reference_kernel: bool = True  # the targets' reference kernels (operation table) run it; else generated code only
+    state_space: bool = False  # b = (D, C1, C2, G), a = (A11, A12, A21, A22): see section_transfer
 
     @property
     def state_words(self) -> int:
@@ -173,10 +226,12 @@ STRUCTURE_TABLE: dict[str, Structure] = {s.name: s for s in (
     Structure("df1ef", "direct form I with first-order error feedback", 2, data_states=4, acc_states=1,
               error_feedback=True, float32=False),
     Structure("df1-wide-fb", "direct form I with double-word feedback coefficients", 4, data_states=4,
-              acc_states=0, float32=False, wide_feedback=True, multiplies=7),
+              acc_states=0, float32=False, wide_feedback=True, multiplies=7, reference_kernel=False),
+    Structure("coupled", "coupled (normal) form of Rader and Gold", 3, data_states=2, acc_states=0,
+              float32=False, state_space=True, multiplies=8, reference_kernel=False),
     Structure("df1ef-wide-fb", "direct form I with first-order error feedback and double-word feedback "
               "coefficients", 5, data_states=4, acc_states=1, error_feedback=True, float32=False,
-              wide_feedback=True, multiplies=7),
+              wide_feedback=True, multiplies=7, reference_kernel=False),
 )}
 STRUCTURES = tuple(STRUCTURE_TABLE)
 SCALINGS = ("none", "l1", "l2", "linf")
@@ -199,10 +254,16 @@ class Arithmetic:
     rounding: str = "add-half"
     overflow: str = "saturate"
     scaling: str = "none"
+    product_shift: int = 0  # P: every product rounded to a multiple of 2^P before it is added (0: exact)
+    product_rounding: str = "truncate"  # how each product is rounded when product_shift > 0
 
     @property
     def is_float(self) -> bool:
         return self.kind == "float32"
+
+    def final_shift(self, shift: int) -> int:
+        """The accumulator's right shift of an op with coefficient shift *shift*: ``Fc - s - P``."""
+        return self.coef.frac_bits - shift - self.product_shift
 
     def with_(self, **changes) -> "Arithmetic":
         return replace(self, **changes)
@@ -218,18 +279,21 @@ class Arithmetic:
             "rounding": self.rounding,
             "overflow": self.overflow,
             "scaling": self.scaling,
-        }
+        } | ({"product_shift": self.product_shift, "product_rounding": self.product_rounding}
+             if self.product_shift else {})
 
 
 @dataclass(frozen=True)
 class SectionOp:
     """One second-order section: ``b = (B0, B1, B2)``, ``a = (A1, A2)``, coefficient shift.
 
-    ``structure`` is a name of :data:`STRUCTURE_TABLE` (``df1``, ``tdf2``, ``df1ef``,
-    ``df1-wide-fb``, ``df1ef-wide-fb``).  Integers for fixed-point arithmetic, float32
-    values otherwise.  For ``df1-wide-fb`` and ``df1ef-wide-fb`` ``a`` holds the high words and ``a_lo`` the low words, of
-    weight ``2^-L`` with ``L = Wc - 1`` (:func:`lo_bits`); an empty ``a_lo`` means
-    low words of zero.  Other structures leave ``a_lo`` empty.
+    ``structure`` is a name of :data:`STRUCTURE_TABLE`; for ``coupled``
+    ``b = (D, C1, C2, G)`` and ``a = (A11, A12, A21, A22)`` (the recurrence in the
+    module docstring; :func:`section_transfer` gives the polynomials of any
+    section).  For ``df1-wide-fb`` and ``df1ef-wide-fb`` ``a`` holds the high words and ``a_lo`` the low
+    words, of weight ``2^-L`` with ``L = Wc - 1`` (:func:`lo_bits`); an empty
+    ``a_lo`` means low words of zero.  Other structures leave ``a_lo`` empty.
+    Integers for fixed-point arithmetic, float32 values otherwise.
     """
 
     b: tuple
@@ -244,6 +308,8 @@ class SectionOp:
         *coef* is the arithmetic's coefficient format (``None`` for float32: the
         stored values).
         """
+        if STRUCTURE_TABLE[self.structure].state_space:  # the polynomial's, from the state matrix
+            return tuple(section_transfer(self, coef)[1][1:])
         if coef is None:
             return (float(self.a[0]), float(self.a[1]))
         sc = 2.0 ** (self.shift - coef.frac_bits)
@@ -256,6 +322,34 @@ class SectionOp:
 def lo_bits(coef: QFormat) -> int:
     """``L``, the weight ``2^-L`` of a low feedback word relative to its high word (``Wc - 1``)."""
     return coef.width - 1
+
+
+def section_transfer(op: "SectionOp", coef: "QFormat | int | None" = 0):
+    """Physical ``(b, a)`` of a section: ``b = [b0, b1, b2]``, ``a = [1, a1, a2]`` (floats).
+
+    For ``coupled`` the polynomials of its state-space form (module docstring):
+    ``b = [D, D a1 + G C1, D a2 + G (C2 A21 - C1 A22)]``, ``a = [1, -(A11 + A22),
+    A11 A22 - A12 A21]``; for ``df1-wide-fb`` the feedback with its low words.
+    *coef* is the coefficient format, or just its ``Fc`` (0 or ``None`` for float
+    values; a section with low words needs the format).
+
+    Examples
+    --------
+    >>> section_transfer(SectionOp(b=(0, 4, 0, 4), a=(2, 0, 1, 2), structure="coupled"), 2)
+    ([0.0, 1.0, -0.5], [1.0, -1.0, 0.25])
+    """
+    frac_bits = coef.frac_bits if isinstance(coef, QFormat) else int(coef or 0)
+    sc = 2.0 ** (op.shift - frac_bits)
+    if op.a_lo:
+        if not isinstance(coef, QFormat):
+            raise ValueError("a section with low feedback words needs the coefficient format")
+        return [float(v) * sc for v in op.b], [1.0, *op.a_phys(coef)]
+    if STRUCTURE_TABLE[op.structure].state_space:
+        d, c1, c2, g = (float(v) * sc for v in op.b)
+        a11, a12, a21, a22 = (float(v) * sc for v in op.a)
+        a1, a2 = -(a11 + a22), a11 * a22 - a12 * a21
+        return [d, d * a1 + g * c1, d * a2 + g * (c2 * a21 - c1 * a22)], [1.0, a1, a2]
+    return [float(v) * sc for v in op.b], [1.0] + [float(v) * sc for v in op.a]
 
 
 @dataclass(frozen=True)

@@ -2,7 +2,7 @@
 the output samples (and optionally every op's output and overflow counts) out.
 
 The arithmetic is exactly the one stated in :mod:`coefc.program` (df1, tdf2, df1ef,
-df1-wide-fb and df1ef-wide-fb sections, FIR, gain, delay; accumulators wrap modulo ``2^acc_bits``; rounding and
+df1-wide-fb, df1ef-wide-fb and coupled sections, FIR, gain, delay; accumulators wrap modulo ``2^acc_bits``; rounding and
 overflow by the program's arithmetic).  Input for fixed-point programs is an
 integer array of data words (any integer dtype; values must lie in the data
 word), output an int64 array; for float32 programs input and output are float32.
@@ -87,7 +87,8 @@ def _lo(op: SectionOp) -> tuple[int, int]:
 
 
 def _k(program: ChannelProgram, op) -> int:
-    return program.arithmetic.coef.frac_bits - op.shift
+    """The accumulator's final right shift ``Fc - s - P`` (P = the product shift, usually 0)."""
+    return program.arithmetic.final_shift(op.shift)
 
 
 def _fast_ok(program: ChannelProgram) -> bool:
@@ -100,7 +101,8 @@ def _fast_ok(program: ChannelProgram) -> bool:
         return False
     if ar.data.width + ar.coef.width > 63 and any(_wide(op) for op in program.ops):
         return False  # the low-word sum P of df1-wide-fb must be exact in int64
-    return all(1 <= _k(program, op) <= 62 for op in program.ops if not isinstance(op, DelayOp))
+    lowest = 0 if ar.product_shift else 1
+    return all(lowest <= _k(program, op) <= 62 for op in program.ops if not isinstance(op, DelayOp))
 
 
 def simulate(program: ChannelProgram, x, *, trace: bool = False, _exact: bool = False):
@@ -138,7 +140,9 @@ def simulate(program: ChannelProgram, x, *, trace: bool = False, _exact: bool = 
     i = 0
     while i < len(ops):
         op = ops[i]
-        if fast and not ar.is_float and isinstance(op, SectionOp) and not _wide(op):
+        if fast and not ar.is_float and isinstance(op, SectionOp) and not _wide(op) \
+                and not ar.product_shift \
+                and not STRUCTURE_TABLE[op.structure].state_space:
             j = i
             while j < len(ops) and isinstance(ops[j], SectionOp) and ops[j].structure == op.structure \
                     and not _wide(ops[j]):
@@ -171,10 +175,22 @@ def _run_fast(program: ChannelProgram, op, x: np.ndarray):
     ar = program.arithmetic
     y = np.empty_like(x)
     common = (ar.acc_bits, _ROUND_CODE[ar.rounding], _OVF_CODE[ar.overflow], ar.data.width)
+    if ar.product_shift and not isinstance(op, DelayOp):
+        if isinstance(op, SectionOp):
+            kind, cs = _STRUCT_CODE[op.structure], (*op.b, *op.a)
+        else:
+            kind, cs = (3, op.taps) if isinstance(op, FirOp) else (4, (op.coef,))
+        coefs = np.ascontiguousarray(np.array([int(v) for v in cs], dtype=np.int64))
+        o, a = _engine.rounded_products(x, y, coefs, kind, _k(program, op), ar.product_shift,
+                                        _ROUND_CODE[ar.product_rounding], *common)
+        return y, o, a
     if _wide(op):
         o, a = _engine.sos_wide(x, y, *[int(v) for v in op.b], *[int(v) for v in op.a], *_lo(op),
                                 lo_bits(ar.coef), _k(program, op), *common,
                                 STRUCTURE_TABLE[op.structure].error_feedback)
+    elif isinstance(op, SectionOp) and STRUCTURE_TABLE[op.structure].state_space:
+        coefs = np.array([int(v) for v in (*op.b, *op.a)] + [_k(program, op)], dtype=np.int64)
+        o, a = _engine.coupled(x, y, coefs, *common)
     elif isinstance(op, SectionOp):
         o, a = _engine.sos(x, y, *[int(v) for v in op.b], *[int(v) for v in op.a], _k(program, op),
                            _STRUCT_CODE[op.structure], *common)
@@ -214,6 +230,8 @@ def _delay(x: np.ndarray, d: int) -> np.ndarray:
 def _run_float(op, x: np.ndarray, fast: bool):
     if isinstance(op, DelayOp):
         return _delay(x, op.samples), 0, 0
+    if isinstance(op, SectionOp) and not STRUCTURE_TABLE[op.structure].float32:
+        raise TypeError(f"structure '{op.structure}' has no float32 recurrence")
     y = np.empty_like(x)
     if fast:
         if isinstance(op, SectionOp):
@@ -291,6 +309,11 @@ def _run_exact(program: ChannelProgram, op, x: np.ndarray):
     A, W, rnd, ovf = ar.acc_bits, ar.data.width, ar.rounding, ar.overflow
     lo, hi = -(1 << (A - 1)), (1 << (A - 1)) - 1
     k = _k(program, op)
+    P, prnd = ar.product_shift, ar.product_rounding
+
+    def q(t: int) -> int:  # a product as it enters the accumulator
+        return round_shift(t, P, prnd) if P else t
+
     xs = [int(v) for v in x]
     ys = [0] * len(xs)
     n_ovf = n_acc = 0
@@ -312,7 +335,7 @@ def _run_exact(program: ChannelProgram, op, x: np.ndarray):
     if isinstance(op, GainOp):
         c = int(op.coef)
         for n, xn in enumerate(xs):
-            ys[n] = out(acc_of(c * xn))[0]
+            ys[n] = out(acc_of(q(c * xn)))[0]
     elif isinstance(op, FirOp):
         taps = [int(v) for v in op.taps]
         for n in range(len(xs)):
@@ -320,8 +343,21 @@ def _run_exact(program: ChannelProgram, op, x: np.ndarray):
             for j, t in enumerate(taps):
                 if n - j < 0:
                     break
-                s += t * xs[n - j]
+                s += q(t * xs[n - j])
             ys[n] = out(acc_of(s))[0]
+    elif isinstance(op, SectionOp) and STRUCTURE_TABLE[op.structure].state_space:
+        d, c1, c2, g = (int(v) for v in op.b)
+        a11, a12, a21, a22 = (int(v) for v in op.a)
+        s1 = s2 = 0
+        for n, xn in enumerate(xs):
+            before_acc, before_ovf = n_acc, n_ovf
+            accy = acc_of(d * xn + c1 * s1 + c2 * s2)
+            acc1 = acc_of(a11 * s1 + a12 * s2 + g * xn)
+            acc2 = acc_of(a21 * s1 + a22 * s2)
+            ys[n] = out(accy)[0]
+            s1, s2 = out(acc1)[0], out(acc2)[0]
+            n_acc = before_acc + (n_acc != before_acc)  # one event per sample
+            n_ovf = before_ovf + (n_ovf != before_ovf)
     elif isinstance(op, SectionOp):
         b0, b1, b2 = (int(v) for v in op.b)
         a1, a2 = (int(v) for v in op.a)
@@ -333,16 +369,16 @@ def _run_exact(program: ChannelProgram, op, x: np.ndarray):
         for n, xn in enumerate(xs):
             if op.structure == "tdf2":
                 before = n_acc
-                acc = acc_of(b0 * xn + s1)
+                acc = acc_of(q(b0 * xn) + s1)
                 yn = out(acc)[0]
-                t1 = b1 * xn - a1 * yn + s2
-                t2 = b2 * xn - a2 * yn
+                t1 = q(b1 * xn) + q(-a1 * yn) + s2
+                t2 = q(b2 * xn) + q(-a2 * yn)
                 s1 = _wrap(t1, A)
                 s2 = _wrap(t2, A)
                 if n_acc == before and (t1 != s1 or t2 != s2):
                     n_acc += 1
             else:
-                exact = b0 * xn + b1 * x1 + b2 * x2 - a1 * y1 - a2 * y2
+                exact = q(b0 * xn) + q(b1 * x1) + q(b2 * x2) + q(-a1 * y1) + q(-a2 * y2)
                 if ef:
                     exact += e
                 if wide:

@@ -65,6 +65,7 @@ class Budget:
     overflow: str | None = None  # "none" or "allow"
     output_offset_lsb: float | None = None  # maximum |DC offset of the output error|, LSB
     tone_gain_error_db: float | str | None = None  # None: the default limit; "off": not checked
+    correction_error_db: float | None = None  # largest error of a correction stage against its target
     tone_levels_dbfs: tuple[float, ...] | None = None  # None: the default levels
     passband: tuple[tuple[float, float], ...] | None = None
     stopband: tuple[tuple[float, float], ...] | None = None
@@ -291,6 +292,13 @@ def _band(v, where: _Place, allow_zero: bool = False) -> tuple[float, float]:
     return (lo, hi)
 
 
+def _file_name(v, where: _Place) -> str:
+    s = _string(v, where)
+    if not s.strip():
+        raise where.fail("empty file name; name a file relative to the description, e.g. \"woofer.csv\"")
+    return s
+
+
 # Stage schemas: kind -> {key: checker}, built from the tables of stage kinds
 # (coefc.stagekinds).  ``kind`` itself is always allowed.  Edge keys (cutoff_hz,
 # passband_hz, stopband_hz) are a number for low/high-pass kinds and a band for
@@ -308,7 +316,7 @@ def _checker(key):
         return _number_list(*key.length)
     return {"frequency": _frequency, "positive": _positive, "non_negative": _non_negative, "number": _number,
             "integer": _integer, "positive_int": _positive_int, "boolean": _boolean,
-            "sections": _sections}[key.rule]
+            "sections": _sections, "band": _band, "file": _file_name}[key.rule]
 
 
 STAGE_KEYS: dict[str, dict] = {kind: {k: _checker(key) for k, key in sk.keys.items()}

@@ -22,7 +22,7 @@ from typing import Literal, Mapping
 
 #: The rules a key's value can follow (:mod:`coefc.spec` holds one checker per rule).
 Rule = Literal["frequency", "edge", "positive", "non_negative", "number", "integer", "positive_int",
-               "boolean", "choice", "numbers", "sections"]
+               "boolean", "choice", "numbers", "sections", "band", "file"]
 
 #: Largest IIR order and FIR length accepted (beyond them no fixed-point
 #: realisation is sensible and the float design itself loses accuracy).
@@ -36,8 +36,9 @@ class Key:
     """One key of a stage kind: the rule its value follows and its unit (``""``: a plain number or word).
 
     ``edge`` is a frequency for low/high-pass kinds and a band ``[low_hz, high_hz]``
-    for band-pass/stop kinds; ``choice`` takes one of ``choices``; ``numbers`` a list
-    of ``length`` = (fewest, most) numbers.
+    for band-pass/stop kinds; ``band`` is always a band ``[low_hz, high_hz]``;
+    ``choice`` takes one of ``choices``; ``numbers`` a list of ``length`` = (fewest,
+    most) numbers; ``file`` a path relative to the description file.
     """
 
     rule: Rule
@@ -144,7 +145,9 @@ BASIC = {
         {"db": Key("number", "dB"), "linear": _POS, "invert": Key("boolean")})),
     "delay": StageKind("delay", "basic", "design_delay", MappingProxyType(
         {"samples": Key("integer", "samples"), "ms": Key("non_negative", "ms"),
-         "metres": Key("non_negative", "m"), "air_temperature_c": Key("number", "degC")})),
+         "metres": Key("non_negative", "m"), "air_temperature_c": Key("number", "degC"),
+         "interpolation": Key("choice", choices=("none", "thiran", "lagrange")),
+         "max_error_samples": Key("positive", "samples"), "accuracy_hz": Key("frequency", "Hz")})),
     "sos": StageKind("sos", "basic", "design_sos", MappingProxyType({"sections": Key("sections")})),
     "transfer": StageKind("transfer", "basic", "design_transfer", MappingProxyType(
         {"b": Key("numbers", length=(1, MAX_FIR_TAPS)), "a": Key("numbers", length=(1, 2 * MAX_IIR_ORDER + 1))})),
@@ -152,10 +155,43 @@ BASIC = {
         {"taps": Key("numbers", length=(1, MAX_FIR_TAPS))})),
 }
 
+# ------------------------------------------------------------------ coefc.design.correction
+
+#: Most sections one ``correction`` stage may fit.
+MAX_CORRECTION_SECTIONS = 16
+CORRECTION_PHASES = ("minimum", "linear")
+
+_MEASURED = {
+    "measurement": Key("file"),           # .csv (frequency_hz,magnitude_db[,phase_deg]) or mono .wav impulse response
+    "range_hz": Key("band", "Hz"),         # where the corrected response should follow the target
+    "target_db": Key("number", "dB"),      # flat target at this level (same unit as the measurement)
+    "target": Key("file"),                 # target curve, a .csv like the measurement
+    "smoothing_oct": Key("non_negative", "octaves"),  # fractional-octave smoothing window (0: none)
+    "max_boost_db": Key("non_negative", "dB"),
+}
+CORRECTION = {
+    **_kinds("correction", "design_correction", ("correction",), {
+        **_MEASURED,
+        "sections": Key("positive_int", "sections"),
+        "max_cut_db": Key("positive", "dB"),
+        "q_min": _POS,
+        "q_max": _POS,
+        "shelves": Key("boolean"),
+    }),
+    **_kinds("correction", "design_fir_correction", ("fir-correction",), {
+        **_MEASURED,
+        "taps": Key("positive_int", "taps"),
+        "phase": Key("choice", choices=CORRECTION_PHASES),
+        "regularisation_db": Key("number", "dB"),      # in-range regularisation (relative to the target's power)
+        "transition_oct": Key("positive", "octaves"),  # how fast it rises outside range_hz
+    }),
+}
+
 # ------------------------------------------------------------------ all kinds
 
 #: every stage kind, in the order messages list them
-STAGE_KINDS_TABLE: Mapping[str, StageKind] = MappingProxyType({**IIR, **FIR, **EQ, **WEIGHTING, **BASIC})
+STAGE_KINDS_TABLE: Mapping[str, StageKind] = MappingProxyType({**IIR, **FIR, **EQ, **WEIGHTING, **BASIC,
+                                                                  **CORRECTION})
 
 IIR_KINDS = tuple(IIR)
 FIR_KINDS = tuple(FIR)

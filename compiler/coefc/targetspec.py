@@ -42,6 +42,12 @@ def builtin_dir() -> Path:
     return Path(str(resources.files("coefc._builtin_targets")))
 
 
+def common_dir() -> Path:
+    """The built-in targets' shared templates (``targets/_common``): the header template and
+    the fixed-point reference kernel, looked up after a target folder's own files."""
+    return builtin_dir() / "_common"
+
+
 def search_dirs(extra: Iterable[str | os.PathLike] = ()) -> list[Path]:
     dirs = [Path(d) for d in extra]
     env = os.environ.get(ENV_VAR, "")
@@ -146,9 +152,18 @@ def load_target(folder: Path) -> Target:
         acc = get("acc_bits", typ=int)
         if not 2 <= acc <= 128:
             raise TargetError(f"{path}: [arithmetic] acc_bits = {acc}; use 2..128")
+        pshift = get("product_shift", typ=int, default=0)
+        if not 0 <= pshift <= min(62, coef.frac_bits - 1):
+            raise TargetError(f"{path}: [arithmetic] product_shift = {pshift}; use 0 (exact products) up to "
+                              f"{min(62, coef.frac_bits - 1)} (below the coefficient's {coef.frac_bits} fractional bits)")
+        exact_only = [s for s in structures if STRUCTURE_TABLE[s].wide_feedback or STRUCTURE_TABLE[s].state_space]
+        if pshift and exact_only:
+            raise TargetError(f"{path}: [arithmetic] structures lists {', '.join(exact_only)}, which coefc models "
+                              "with exact products only; drop them or set product_shift = 0")
         arith = Arithmetic(kind="fixed", structure=structure, data=data, coef=coef, acc_bits=acc,
                            rounding=get("rounding", ROUNDING_MODES), overflow=get("overflow", OVERFLOW_MODES),
-                           scaling=scaling)
+                           scaling=scaling, product_shift=pshift,
+                           product_rounding=get("product_rounding", ROUNDING_MODES, default="truncate"))
     return Target(name=folder.name, folder=folder, summary=str(raw.get("summary", "")),
                   arithmetic=arith, structures=tuple(structures), raw=MappingProxyType(raw))
 
@@ -236,6 +251,13 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
                                "a data word needs at least 2 (scaling to 1 - 2 LSB of full scale needs them); "
                                "use a wider data word such as Q1.15",
                                key=setting("data") if where == "<command line>" else "data")
+    if not arith.is_float and arith.product_shift and arith.product_shift >= arith.coef.frac_bits:
+        where = width_from["coef"]
+        raise DescriptionError(where, f"coefficient word {arith.coef} has {arith.coef.frac_bits} fractional bits, but "
+                               f"target '{target.name}' rounds every product by 2^{arith.product_shift} "
+                               "([arithmetic] product_shift); use a coefficient word with more than "
+                               f"{arith.product_shift} fractional bits", key=setting("coef") if where == "<command line>"
+                               else "coef")
     if not arith.is_float and arith.acc_bits < arith.data.width:
         where = width_from["acc_bits"] if width_from["acc_bits"] != str(target.folder / "target.toml") \
             else width_from["data"]
@@ -262,9 +284,14 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
 #              coef_shift = true   whether a per-operation coefficient shift is allowed
 #   [memory]   alignment (bytes, power of two), linker_section ("" = default)
 #   [kernel]   prefix (C prefix of the kernel's names), abi (interface version),
-#              header (file the generated header includes), sources (list)
+#              header (file the generated header includes), sources (list),
+#              family (optional): the kernel is rendered from the templates
+#              kernel/<family>/kernel.h.j2 and kernel.c.j2 (the target folder's
+#              own file of a name wins over targets/_common's), written under the
+#              names header and sources; without it they are files in the folder
 #   [templates] header (Jinja2 template of the header), source (optional,
-#              template of a companion .c file)
+#              template of a companion .c file); looked up in the folder, then
+#              in targets/_common
 # ---------------------------------------------------------------------------
 
 SECTION_TERMS = ("b0", "b1", "b2", "a1", "a2")
@@ -292,6 +319,7 @@ class BuildInfo:
     kernel_sources: tuple[str, ...]  # relative to the target folder
     header_template: str  # relative to the target folder
     source_template: str | None
+    kernel_family: str | None = None  # rendered from kernel/<family>/*.j2 (None: files copied as they are)
 
     def kernel_files(self, folder: Path) -> tuple[Path, ...]:
         """The kernel header and sources as paths inside *folder*."""
@@ -424,12 +452,28 @@ def build_info(target: Target) -> BuildInfo:
     abi = get("kernel", "abi", int)
     header = get("kernel", "header", str)
     sources = get("kernel", "sources", list, default=[], optional=True)
+    family = get("kernel", "family", str, optional=True)
+    if family is not None and not _IDENT_RE.match(family):
+        raise TargetError(f"{where('kernel', 'family')}: [kernel] family = {family!r}; name a folder of "
+                          "kernel templates such as \"fixed\" (letters, digits, '_')")
     header_t = get("templates", "header", str)
     source_t = get("templates", "source", str, optional=True)
-    for tname, key, rel in [("kernel", "header", header), ("templates", "header", header_t)] + \
-            [("kernel", "sources", s) for s in sources] + \
-            ([("templates", "source", source_t)] if source_t else []):
-        _contained_file(target.folder, rel, where(tname, key), f"[{tname}] {key}")
+    files = [("templates", "header", header_t)] + ([("templates", "source", source_t)] if source_t else [])
+    if family is None:
+        files += [("kernel", "header", header)] + [("kernel", "sources", s) for s in sources]
+    else:  # rendered under these names: they need not exist, but stay inside the folder
+        for key, rel in [("header", header)] + [("sources", s) for s in sources]:
+            real = Path(os.path.realpath(target.folder / rel)) if isinstance(rel, str) else None
+            if real is None or Path(rel).is_absolute() or not real.is_relative_to(os.path.realpath(target.folder)):
+                raise TargetError(f"{where('kernel', key)}: [kernel] {key}: {rel!r} leads outside the target folder "
+                                  f"{target.folder}; keep every file the target names inside its folder")
+    for tname, key, rel in files:
+        try:
+            _contained_file(target.folder, rel, where(tname, key), f"[{tname}] {key}")
+        except TargetError:
+            if tname != "templates" or not isinstance(rel, str) or not (common_dir() / rel).is_file():
+                raise
+            _contained_file(common_dir(), rel, where(tname, key), f"[{tname}] {key}")
     for key, rel, suffix in [("header", header, ".h")] + [("sources", s, ".c") for s in sources]:
         if not Path(rel).name.endswith(suffix) or not _IDENT_FILE_RE.match(Path(rel).name):
             raise TargetError(f"{where('kernel', key)}: [kernel] {key}: {rel!r} is copied beside the header, so "
@@ -439,7 +483,7 @@ def build_info(target: Target) -> BuildInfo:
                      section_layout=tuple(layout), coef_shift=coef_shift, alignment=alignment,
                      linker_section=section, kernel_prefix=prefix, kernel_abi=abi,
                      kernel_header=header, kernel_sources=tuple(sources),
-                     header_template=header_t, source_template=source_t)
+                     header_template=header_t, source_template=source_t, kernel_family=family)
 
 
 #: The tables that make a target buildable; a target with none of them is a

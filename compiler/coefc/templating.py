@@ -28,20 +28,29 @@ class TemplateLimitError(Exception):
     """A template left its folder or exceeded a rendering limit (message says which)."""
 
 
-def environment(folder: Path, *, autoescape: bool = False):
-    """A sandboxed, strict Jinja2 environment loading templates from inside *folder* only."""
+def environment(folder: Path, *, autoescape: bool = False, shared: Path | None = None):
+    """A sandboxed, strict Jinja2 environment loading templates from inside *folder* only.
+
+    With *shared* (the built-in targets' common templates, ``targets/_common``), a
+    template name missing from *folder* is looked up there: the target folder's
+    own file of the same name always wins.  Each folder keeps its containment.
+    """
     import jinja2
     from jinja2.sandbox import SandboxedEnvironment
 
     root = os.path.realpath(folder)
+    roots = [root] + ([os.path.realpath(shared)] if shared is not None else [])
 
     class ContainedLoader(jinja2.FileSystemLoader):
         def get_source(self, environment, template):
-            real = os.path.realpath(os.path.join(root, template))
-            if os.path.commonpath([root, real]) != root:
-                raise TemplateLimitError(f"template '{template}' resolves to {real}, outside the target "
-                                         f"folder {root}; keep every template file inside it")
-            return super().get_source(environment, template)
+            for base in roots:
+                real = os.path.realpath(os.path.join(base, template))
+                if os.path.commonpath([base, real]) != base:
+                    raise TemplateLimitError(f"template '{template}' resolves to {real}, outside the target "
+                                             f"folder {base}; keep every template file inside it")
+                if base == roots[-1] or os.path.isfile(real):
+                    return jinja2.FileSystemLoader(base).get_source(environment, template)
+            raise jinja2.TemplateNotFound(template)  # pragma: no cover (the last root answers)
 
     class StrictSandbox(SandboxedEnvironment):
         def is_safe_attribute(self, obj, attr, value):

@@ -252,10 +252,14 @@ def instability(program: ChannelProgram) -> str | None:
             a1, a2 = (Fraction(float(c)) for c in op.a)
         else:
             unit = Fraction(2) ** (fc - op.shift)  # the integer that means 1.0 in this section
-            a1, a2 = Fraction(int(op.a[0])) / unit, Fraction(int(op.a[1])) / unit
-            if op.a_lo:  # df1-wide-fb: the low words, of weight 2^-L (coefc.program)
-                lo = unit * 2 ** lo_bits(ar.coef)
-                a1, a2 = a1 + Fraction(int(op.a_lo[0])) / lo, a2 + Fraction(int(op.a_lo[1])) / lo
+            if len(op.a) == 4:  # coupled: the characteristic polynomial of the integer state matrix
+                a11, a12, a21, a22 = (Fraction(int(v)) / unit for v in op.a)
+                a1, a2 = -(a11 + a22), a11 * a22 - a12 * a21
+            else:
+                a1, a2 = Fraction(int(op.a[0])) / unit, Fraction(int(op.a[1])) / unit
+                if op.a_lo:  # df1-wide-fb: the low words, of weight 2^-L (coefc.program)
+                    lo = unit * 2 ** lo_bits(ar.coef)
+                    a1, a2 = a1 + Fraction(int(op.a_lo[0])) / lo, a2 + Fraction(int(op.a_lo[1])) / lo
         if abs(a2) < 1 and abs(a1) < 1 + a2:
             continue
         import numpy as np
@@ -276,15 +280,15 @@ def design_peak_gain(design: ChannelDesign, n: int = 0) -> float | None:
     from scipy import signal
 
     from ..blocks import DelayBlock, FirBlock, GainBlock, SosBlock
-    from .linear import DECAY, MAX_LENGTH
+    from ..blocks import MAX_IMPULSE, decay_samples
 
     poles = [abs(p) for blk in design.blocks if isinstance(blk, SosBlock)
              for row in np.atleast_2d(blk.sos) for p in np.roots(row[3:]) if row[4] or row[5]]
     r = max(poles, default=0.0)
-    own = int(np.ceil(np.log(DECAY) / np.log(r))) * 2 if 0 < r < 1 else 0
+    own = decay_samples(r) * 2 if 0 < r < 1 else 0
     own += sum(len(blk.taps) for blk in design.blocks if isinstance(blk, FirBlock))
     own += sum(blk.samples for blk in design.blocks if isinstance(blk, DelayBlock))
-    h = np.zeros(max(int(n), min(own + 8, MAX_LENGTH), 1))
+    h = np.zeros(max(int(n), min(own + 8, MAX_IMPULSE), 1))
     h[0] = 1.0
     for blk in design.blocks:
         if isinstance(blk, SosBlock):

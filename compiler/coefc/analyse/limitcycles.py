@@ -951,13 +951,26 @@ def _overflow_ef_wide(words, k, a_phys, arith, order, bounds, starts, seed) -> d
 def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states: int = MAX_STATES,
                     sample_starts: int = 512, sample_steps: int = 2048, overflow_starts: int = 256,
                     seed: int = 1969, ef_work: int = 3_000_000) -> SectionLimitCycles:
-    """Granular limit cycles and overflow oscillations of one section with zero input."""
+    """Granular limit cycles and overflow oscillations of one section with zero input.
+
+    With rounded products (``arith.product_shift > 0``) the zero-input map rounds each
+    feedback product before the sum, ``y = fit(round_shift(q(-A1 y1) + q(-A2 y2), k))``;
+    the bounds and searches here are written for the map with exact products, so
+    both verdicts are ``unproven`` and say why (no claim rests on an argument that
+    does not cover the map).
+    """
     st = STRUCTURE_TABLE[op.structure or arith.structure]
     if st.wide_feedback and st.error_feedback:
         return _analyse_ef_wide(op, index, arith, seed=seed, ef_work=ef_work, overflow_starts=overflow_starts)
     if st.wide_feedback:
         return _analyse_wide(op, index, arith, seed=seed)
     a1, a2 = int(op.a[0]), int(op.a[1])
+    if not arith.is_float and arith.product_shift and (a1 or a2):
+        why = (f"every product is rounded by 2^{arith.product_shift} before the sum ([arithmetic] "
+               "product_shift); the amplitude bound and the exhaustive searches cover only the zero-input map "
+               "with exact products, so nothing is proven for this map")
+        return SectionLimitCycles(index, status="unproven", bound_lsb=None, exhaustive=False, states_searched=0,
+                                  note=why, overflow_status="unproven", overflow_note=why)
     order = 2 if a2 != 0 else 1
     k = arith.coef.frac_bits - op.shift
     a_phys = _section_phys(op, arith)
@@ -1445,7 +1458,13 @@ def analyse_limit_cycles(program: ChannelProgram, *, max_states: int = MAX_STATE
     for i, op in enumerate(program.ops):
         if isinstance(op, SectionOp):
             nsec += 1
-            if int(op.a[0]) != 0 or int(op.a[1]) != 0 or any(int(v) for v in op.a_lo):
+            if len(op.a) == 4:  # coupled (state-space) sections: coefc.analyse.coupled_cycles
+                from .coupled_cycles import analyse_coupled
+
+                res = analyse_coupled(op, i, ar)
+                out.append(replace(res, **_at_output(program, res)))
+                numbers.append(nsec)
+            elif int(op.a[0]) != 0 or int(op.a[1]) != 0 or any(int(v) for v in op.a_lo):
                 res = analyse_section(op, i, ar, max_states=max_states, **kw)
                 out.append(replace(res, **_at_output(program, res)))
                 numbers.append(nsec)
@@ -1454,6 +1473,10 @@ def analyse_limit_cycles(program: ChannelProgram, *, max_states: int = MAX_STATE
 
 def cycle_outputs(op: SectionOp, res: SectionLimitCycles, arith: Arithmetic) -> list[int]:
     """The outputs of one period of the granular cycle found in *res* (from its start state)."""
+    if len(op.a) == 4:
+        from .coupled_cycles import cycle_outputs as coupled_outputs
+
+        return coupled_outputs(op, res.start_state, res.period, arith)
     a1, a2 = int(op.a[0]), int(op.a[1])
     k = arith.coef.frac_bits - op.shift
     st = res.start_state
@@ -1494,7 +1517,7 @@ def _at_output(program: ChannelProgram, res: SectionLimitCycles) -> dict:
     section's bound times the l1 gain of the later operations (realised
     coefficients) plus the worst-case roundoff of the later operations themselves.
     """
-    from .linear import noise_impulse, op_models, pole_radius, response_length, tail_impulse
+    from .linear import noise_impulses, op_models, pole_radius, response_length, tail_impulse
 
     rest = program.ops[res.op_index + 1:]
     if not rest:
@@ -1514,8 +1537,9 @@ def _at_output(program: ChannelProgram, res: SectionLimitCycles) -> dict:
         nb = max(n, response_length(models))
         h = tail_impulse(models, res.op_index + 1, nb)
         c, r = error_interval(ar.rounding)
-        rnd = sum((abs(c) + r) * float(np.sum(np.abs(noise_impulse(models, j, nb))))
-                  for j in range(res.op_index + 1, len(models)) if models[j].k > 0)
+        rnd = sum((abs(c) + r) * float(np.sum(np.abs(g)))
+                  for j in range(res.op_index + 1, len(models)) if models[j].k > 0
+                  for g in noise_impulses(models, j, nb))
         if np.all(np.isfinite(h)) and np.isfinite(rnd):
             bound = (res.bound_lsb * float(np.sum(np.abs(h))) + rnd) * (1 + 1e-9)  # l1 sums of decayed tails
     amp = None

@@ -27,11 +27,22 @@ Structures (the recurrences are those of :mod:`coefc.program`):
            whose transfer is the unshaped ``1/A(z)`` (``extra_noise_b = [1]``).  Near
            z = 1 that source, ``2^-k`` times smaller than the rounding, can dominate:
            ``1/A(z)`` has the large DC gain that ``1 - z^-1`` removes from the rounding.
+``coupled`` three rounding points (:mod:`coefc.program`): the output rounding reaches
+           ``y`` directly (``E0 -> Y`` is 1); the rounding of state ``j`` enters
+           ``s[n+1]`` and reaches ``y`` through ``C (zI - A)^-1 e_j``:
+           ``E1 -> Y = (C1 z^-1 + (C2 A21 - C1 A22) z^-2)/A(z)``,
+           ``E2 -> Y = (C2 z^-1 + (C1 A12 - C2 A11) z^-2)/A(z)``.  The two states are
+           internal nodes (data words): ``X -> S1 = G (z^-1 - A22 z^-2)/A(z)``,
+           ``X -> S2 = G A21 z^-2/A(z)``; state ``j``'s rounding reaches state ``i``
+           through entry ``(i, j)`` of ``z^-1 (I - A z^-1)^-1``.
 
 References
 ----------
 L. B. Jackson, "Roundoff-noise analysis for fixed-point digital filters realized in
 cascade or parallel form", IEEE Trans. Audio Electroacoust. AU-18(2), 1970.
+C. T. Mullis and R. A. Roberts, "Synthesis of minimum roundoff noise fixed point
+digital filters", IEEE Trans. Circuits Syst. CAS-23(9), 1976 (state-space noise
+transfer ``C (zI - A)^-1``; from memory).
 """
 
 from __future__ import annotations
@@ -40,12 +51,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE, lo_bits
+from ..blocks import impulse_length
+from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE, lo_bits, section_transfer
 
-#: impulse responses stop where the slowest pole has decayed below this factor
-DECAY = 1e-13
-MAX_LENGTH = 1 << 18
-MIN_LENGTH = 256
 
 
 @dataclass(frozen=True, eq=False)
@@ -72,6 +80,23 @@ class OpModel:
     extra_mean: float = 0.0  # a second error source at the rounding node, output LSB (df1-wide-fb)
     extra_var: float = 0.0
     extra_noise_b: np.ndarray | None = None  # its transfer's numerator when not noise_b (df1ef-wide-fb: [1])
+    # state-space sections (coupled): further rounding sources with the same k, their (b, a) to the
+    # op output; the states as internal nodes, (b, a) from the op input; per state, (b, a) from
+    # each state rounding to that state
+    extra_noise: tuple = ()
+    states: tuple = ()
+    state_noise: tuple = ()
+
+    @property
+    def noise_paths(self) -> list:
+        """``(b, a)`` from every rounding source of the op to its output (the first is ``noise_b/noise_a``)."""
+        return [(self.noise_b, self.noise_a), *self.extra_noise]
+    #: rounded products (``product_shift > 0``): one ``(mean, variance)`` in LSB (LSB^2) of the
+    #: data word per product that is rounded; each enters where the accumulator is formed, so it
+    #: reaches the output through ``1 / A(z)`` of the operation (never shaped by error feedback)
+    product_noise: tuple = ()
+    #: the largest total error of those products in one sample (LSB): sum of their worst cases
+    product_bound: float = 0.0
 
     @property
     def recursive(self) -> bool:
@@ -98,6 +123,16 @@ def effective_drop(coefs, k: int) -> int:
     if not nz or k <= 0:
         return 0
     return max(0, k - min(_v2(c) for c in nz))
+
+
+def _product_stats(d: int, kf: int, mode: str) -> tuple[float, float]:
+    """Mean and variance (data LSB, LSB^2) of one product that drops *d* bits by *mode*, in an
+    accumulator whose unit is ``2^-kf`` LSB (the product's quantum ``2^P`` over the final shift)."""
+    from .noise import rounding_error_stats
+
+    mu, s2 = rounding_error_stats(d, mode)
+    scale = 2.0 ** -kf
+    return mu * scale, s2 * scale * scale
 
 
 #: the models of the last few programs, and the responses computed from them (see :func:`op_models`)
@@ -138,19 +173,57 @@ def _build_models(program: ChannelProgram) -> list[OpModel]:
     def acc_fs(shift):
         if ar.is_float:
             return None
-        # acc * 2^(shift - Fc - Fd) is the physical pre-rounding value
-        return 2.0 ** (ar.acc_bits - 1 + shift - fc - ar.data.frac_bits)
+        # acc * 2^(shift + P - Fc - Fd) is the physical pre-rounding value (P: the product shift)
+        return 2.0 ** (ar.acc_bits - 1 + shift + ar.product_shift - fc - ar.data.frac_bits)
+
+
+    P = 0 if ar.is_float else ar.product_shift
+
+    def drop(coefs, shift):
+        """Bits the final rounding drops, and the (mean, variance) of each rounded product."""
+        if ar.is_float:
+            return 0, ()
+        if not P:
+            return effective_drop(coefs, fc - shift), ()
+        kf = fc - shift - P
+        nz = [int(c) for c in coefs if int(c) != 0]
+        # a product C*x with 2^d | C drops only P - d bits (none when d >= P)
+        prods = tuple(_product_stats(P - _v2(c), kf, ar.product_rounding) for c in nz if _v2(c) < P)
+        if not prods:  # every product exact: the accumulator holds (C / 2^P) * x
+            return effective_drop([c >> P for c in nz], kf), ()
+        return max(0, kf), prods
+
+    def pbound(coefs, shift):
+        if ar.is_float or not P:
+            return 0.0
+        from .limitcycles import error_interval
+
+        c, r = error_interval(ar.product_rounding)
+        n = sum(1 for v in coefs if int(v) != 0 and _v2(v) < P)
+        return n * (abs(c) + r) * 2.0 ** -(fc - shift - P)
 
     one = np.array([1.0])
     for i, op in enumerate(program.ops):
-        if isinstance(op, SectionOp):
+        if isinstance(op, SectionOp) and STRUCTURE_TABLE[op.structure].state_space and not ar.is_float:
+            bq, aq = section_transfer(op, fc)
+            b, a = np.array(bq), np.array(aq)
+            k = effective_drop(tuple(op.b) + tuple(op.a), fc - op.shift)
+            d, c1, c2, g = (phys(c, op.shift) for c in op.b)
+            a11, a12, a21, a22 = (phys(c, op.shift) for c in op.a)
+            extra = ((np.array([0.0, c1, c2 * a21 - c1 * a22]), a), (np.array([0.0, c2, c1 * a12 - c2 * a11]), a))
+            states = ((np.array([0.0, g, -g * a22]), a), (np.array([0.0, 0.0, g * a21]), a))
+            snoise = (((np.array([0.0, 1.0, -a22]), a), (np.array([0.0, 0.0, a12]), a)),
+                      ((np.array([0.0, 0.0, a21]), a), (np.array([0.0, 1.0, -a11]), a)))
+            out.append(OpModel(i, "section", b, a, one, one, k, fs_data, acc_fs(op.shift), op.structure,
+                               extra_noise=extra, states=states, state_noise=snoise))
+        elif isinstance(op, SectionOp):
             b = np.array([phys(c, op.shift) for c in op.b])
             a = np.array([1.0] + list(op.a_phys(None if ar.is_float else ar.coef)))
+            k, prods = drop(tuple(op.b) + tuple(op.a), op.shift)
             structure = op.structure or ar.structure
             wide = not ar.is_float and STRUCTURE_TABLE[structure].wide_feedback and any(op.a_lo)
-            # floor(P / 2^L) of df1-wide-fb is any integer: every bit of the rounding shift is dropped
-            k = 0 if ar.is_float else effective_drop(tuple(op.b) + tuple(op.a) + ((1,) if wide else ()),
-                                                     fc - op.shift)
+            if wide:  # floor(P / 2^L) of df1-wide-fb is any integer: every bit of the rounding shift is dropped
+                k = effective_drop(tuple(op.b) + tuple(op.a) + (1,), fc - op.shift)
             nb = np.array([1.0, -1.0]) if STRUCTURE_TABLE[structure].error_feedback else one
             em = ev = 0.0
             if wide:
@@ -159,15 +232,19 @@ def _build_models(program: ChannelProgram) -> list[OpModel]:
                 ev = (1.0 - 2.0 ** (-2 * L)) / 12.0 * 2.0 ** (-2 * kk)
             # df1ef-wide-fb: the floor is outside the fed-back residual, its error is not shaped
             xb = one if wide and STRUCTURE_TABLE[structure].error_feedback else None
-            out.append(OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift), structure, em, ev, xb))
+            out.append(OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift), structure, extra_mean=em,
+                               extra_var=ev, extra_noise_b=xb, product_noise=prods,
+                               product_bound=pbound(tuple(op.b) + tuple(op.a), op.shift)))
         elif isinstance(op, FirOp):
             b = np.array([phys(c, op.shift) for c in op.taps])
-            k = 0 if ar.is_float else effective_drop(op.taps, fc - op.shift)
-            out.append(OpModel(i, "fir", b, one, one, one, k, fs_data, acc_fs(op.shift)))
+            k, prods = drop(op.taps, op.shift)
+            out.append(OpModel(i, "fir", b, one, one, one, k, fs_data, acc_fs(op.shift), product_noise=prods,
+                               product_bound=pbound(op.taps, op.shift)))
         elif isinstance(op, GainOp):
             b = np.array([phys(op.coef, op.shift)])
-            k = 0 if ar.is_float else effective_drop((op.coef,), fc - op.shift)
-            out.append(OpModel(i, "gain", b, one, one, one, k, fs_data, acc_fs(op.shift)))
+            k, prods = drop((op.coef,), op.shift)
+            out.append(OpModel(i, "gain", b, one, one, one, k, fs_data, acc_fs(op.shift), product_noise=prods,
+                               product_bound=pbound((op.coef,), op.shift)))
         elif isinstance(op, DelayOp):
             b = np.zeros(op.samples + 1)
             b[-1] = 1.0
@@ -187,17 +264,8 @@ def pole_radius(models: list[OpModel]) -> float:
 
 
 def response_length(models: list[OpModel]) -> int:
-    """Impulse-response length that captures every node to a relative ``DECAY``."""
-    r = pole_radius(models)
-    fir = sum(len(m.b) - 1 for m in models if not m.recursive)
-    if r >= 1.0:
-        n = 1 << 14
-    elif r > 0:
-        n = int(np.ceil(np.log(DECAY) / np.log(r))) * 2
-    else:
-        n = 0
-    n += fir + 8
-    return int(min(max(n, MIN_LENGTH), MAX_LENGTH))
+    """Impulse-response length that captures every node (:func:`coefc.blocks.impulse_length`)."""
+    return impulse_length(pole_radius(models), sum(len(m.b) - 1 for m in models if not m.recursive))
 
 
 def _run(b, a, x):
@@ -264,13 +332,19 @@ def tail_impulse(models: list[OpModel], j: int, n: int) -> np.ndarray:
     return tails[j]
 
 
-def noise_impulse(models: list[OpModel], j: int, n: int) -> np.ndarray:
-    """Impulse response from the rounding error of operation *j* to the channel output (read-only)."""
+def noise_impulse(models: list[OpModel], j: int, n: int, source: int = 0) -> np.ndarray:
+    """Impulse response from rounding source *source* of operation *j* to the channel output (read-only)."""
     noise = _responses(models, n)["noise"]
-    if j not in noise:
-        m = models[j]
-        noise[j] = _frozen(_run(m.noise_b, m.noise_a, tail_impulse(models, j + 1, n)))
-    return noise[j]
+    key = j if source == 0 else (j, source)
+    if key not in noise:
+        nb, na = models[j].noise_paths[source]
+        noise[key] = _frozen(_run(nb, na, tail_impulse(models, j + 1, n)))
+    return noise[key]
+
+
+def noise_impulses(models: list[OpModel], j: int, n: int) -> list[np.ndarray]:
+    """Impulse responses from every rounding source of operation *j* to the channel output."""
+    return [noise_impulse(models, j, n, s) for s in range(len(models[j].noise_paths))]
 
 
 def chain_filter(models: list[OpModel], x: np.ndarray) -> np.ndarray:

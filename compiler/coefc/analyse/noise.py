@@ -49,6 +49,16 @@ would otherwise swamp the noise figure.
 Levels are in dBFS as in AES17: full scale = 1.0, 0 dBFS is the RMS level of a
 full-scale sine, so a noise of variance ``s2`` reads ``10*log10(s2/0.5)`` dBFS.
 
+Rounded products (``product_shift = P``, coefc.program): each product ``C*x`` whose
+coefficient is not a multiple of ``2^P`` is a source of its own, dropping ``P - v2(C)``
+bits by the product rounding (statistics as above, in units of ``2^P``, scaled by
+``2^-(Fc - s - P)`` into data LSB); all enter where the accumulator is formed and reach
+the output through ``1/A(z)`` of their operation (error feedback shapes only the final
+rounding).  This is Jackson's model of rounding after every multiplication, ``k_j``
+sources of variance ``q^2/12`` at a node (Jackson 1970; Oppenheim & Schafer, ch. 6).
+Under ``toward-zero`` the products' correlated part is not split off: each counts with
+its whole mean square, which overstates a little.
+
 References
 ----------
 L. B. Jackson, "Roundoff-noise analysis for fixed-point digital filters realized in
@@ -72,8 +82,14 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..program import ChannelProgram
-from .linear import (OpModel, _run, chain_filter, node_impulses, noise_impulse, op_models, pole_radius,
+from .linear import (OpModel, _run, chain_filter, node_impulses, noise_impulse, noise_impulses, op_models, pole_radius,
                      response_length, tail_impulse)
+
+
+def _run_noise(a, x):
+    from scipy import signal
+
+    return signal.lfilter([1.0], a, x)
 
 #: power of a full-scale sine (full scale = 1.0): the 0 dBFS reference of AES17
 FULL_SCALE_SINE_POWER = 0.5
@@ -142,6 +158,7 @@ class NoiseSource:
     dc_gain: float
     output_variance_lsb2: float
     correlated_gain: float = 0.0  # magnitude truncation: c_j of the signal-following part
+    source: int = 0  # which rounding of the op (coupled: 0 the output, 1 and 2 the states)
     noise_b: tuple | None = None  # numerator of its transfer when not its op's noise_b (df1ef-wide-fb's floor)
 
 
@@ -190,18 +207,26 @@ class NoiseAnalysis:
         corr = np.zeros(f.shape, dtype=complex)
         for src in self.sources:
             m = models[src.op_index]
-            G = _freq(m.noise_b if src.noise_b is None else np.asarray(src.noise_b), m.noise_a, w)
+            G = _freq(*((np.asarray(src.noise_b), m.noise_a) if src.noise_b is not None
+                        else m.noise_paths[src.source]), w)
             for r in resp[src.op_index + 1:]:
                 G = G * r
             psd += src.variance_lsb2 * self.lsb ** 2 * np.abs(G) ** 2
             if src.correlated_gain:
                 H = np.ones(f.shape, dtype=complex)
-                for r in resp[: src.op_index + 1]:
+                for r in resp[: src.op_index]:
                     H = H * r
+                H = H * (_freq(*m.states[src.source - 1], w) if src.source else resp[src.op_index])
                 corr += src.correlated_gain * G * H
         psd += self.lsb ** 2 * np.abs(corr) ** 2
         with np.errstate(divide="ignore"):
             return 10 * np.log10(2.0 * psd / fs / FULL_SCALE_SINE_POWER)
+
+
+def _unit(n: int) -> np.ndarray:
+    u = np.zeros(n)
+    u[0] = 1.0
+    return u
 
 
 def _freq(b, a, w):
@@ -244,39 +269,60 @@ def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
     for m in models:
         if m.k <= 0:
             continue
-        mu, s2 = rounding_error_stats(m.k, ar.rounding)
-        g = noise_impulse(models, m.index, n)
-        pg = float(np.dot(g, g))
-        dc = float(np.sum(g))
-        if ar.rounding == "toward-zero":
-            # e = -sign(v) u: split into a white part and a part proportional to the value v
-            # (Bussgang), which reaches the output along the signal's own path
-            eu = 0.5 * (1.0 - 2.0 ** -m.k)
-            white = (s2 - eu * eu) + eu * eu * (1.0 - 2.0 / math.pi)
-            h = node_imps[m.index]
-            hn = math.sqrt(float(np.dot(h, h)))
-            cg = -eu * math.sqrt(2.0 / math.pi) / hn if hn > 0 else 0.0
-            if cg:
-                corr += cg * _conv(g, h)
-            s2 = white
-        else:
-            cg = 0.0
-        # a second source at the same node (df1-wide-fb's floor of the low products), independent
-        if m.extra_noise_b is None:
-            mu, s2 = mu + m.extra_mean, s2 + m.extra_var
-        sources.append(NoiseSource(m.index, m.k, mu, s2, pg, dc, s2 * pg, cg))
-        var += s2 * pg
-        mean += mu * dc
-        dc_var += s2 * dc * dc
+        for src, g in enumerate(noise_impulses(models, m.index, n)):
+            mu, s2 = rounding_error_stats(m.k, ar.rounding)
+            pg = float(np.dot(g, g))
+            dc = float(np.sum(g))
+            if ar.rounding == "toward-zero":
+                # e = -sign(v) u: split into a white part and a part proportional to the value v
+                # (Bussgang), which reaches the output along the signal's own path
+                eu = 0.5 * (1.0 - 2.0 ** -m.k)
+                white = (s2 - eu * eu) + eu * eu * (1.0 - 2.0 / math.pi)
+                h = node_imps[m.index]
+                if src:  # a coupled state: the value rounded is the state
+                    from .linear import _run
+
+                    h = _run(*m.states[src - 1], node_imps[m.index - 1] if m.index else _unit(n))
+                hn = math.sqrt(float(np.dot(h, h)))
+                cg = -eu * math.sqrt(2.0 / math.pi) / hn if hn > 0 else 0.0
+                if cg:
+                    corr += cg * _conv(g, h)
+                s2 = white
+            else:
+                cg = 0.0
+            if not src and m.extra_noise_b is None:
+                # a second source at the same node (df1-wide-fb's floor of the low products), independent
+                mu, s2 = mu + m.extra_mean, s2 + m.extra_var
+            sources.append(NoiseSource(m.index, m.k, mu, s2, pg, dc, s2 * pg, cg, src))
+            var += s2 * pg
+            mean += mu * dc
+            dc_var += s2 * dc * dc
         if m.extra_noise_b is not None and (m.extra_var or m.extra_mean):
             # its own transfer (df1ef-wide-fb: the floor is not fed back, 1/A(z) unshaped)
             g2 = _run(m.extra_noise_b, m.noise_a, tail_impulse(models, m.index + 1, n))
             pg2, dc2 = float(np.dot(g2, g2)), float(np.sum(g2))
             sources.append(NoiseSource(m.index, m.k, m.extra_mean, m.extra_var, pg2, dc2, m.extra_var * pg2, 0.0,
-                                       tuple(float(v) for v in m.extra_noise_b)))
+                                       noise_b=tuple(float(v) for v in m.extra_noise_b)))
             var += m.extra_var * pg2
             mean += m.extra_mean * dc2
             dc_var += m.extra_var * dc2 * dc2
+    for m in models:
+        if not m.product_noise:
+            continue
+        # rounded products (Jackson 1970: one source per multiplier, each white with the
+        # q^2/12-type variance of its dropped bits): all enter at the accumulator and
+        # reach the output through 1/A(z) of the operation, also under error feedback
+        if np.array_equal(m.noise_b, [1.0]):
+            g = noise_impulse(models, m.index, n)
+        else:
+            g = _run_noise(m.a, tail_impulse(models, m.index + 1, n))
+        pg, dc = float(np.dot(g, g)), float(np.sum(g))
+        mu = sum(p[0] for p in m.product_noise)
+        s2 = sum(p[1] for p in m.product_noise)
+        sources.append(NoiseSource(m.index, ar.product_shift, mu, s2, pg, dc, s2 * pg, 0.0))
+        var += s2 * pg
+        mean += mu * dc
+        dc_var += s2 * dc * dc
     correlated = float(np.dot(corr, corr))
     var += correlated
     var *= lsb ** 2

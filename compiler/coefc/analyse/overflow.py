@@ -45,7 +45,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..program import ChannelProgram
-from .linear import OpModel, node_impulses, op_models, response_length
+from .linear import OpModel, _run, node_impulses, op_models, response_length
 
 
 @dataclass(frozen=True)
@@ -105,6 +105,9 @@ def _node_responses(models: list[OpModel], impulses: list[np.ndarray]):
                 s1 = m.b[1] * x - m.a[1] * h + np.concatenate([[0.0], s2[:-1]])
                 out.append((m.index, "state 1", s1, m.acc_full_scale))
                 out.append((m.index, "state 2", s2, m.acc_full_scale))
+        for j, (sb, sa) in enumerate(m.states):  # coupled: the states are data words
+            x = prev if prev is not None else _unit(len(h))
+            out.append((m.index, f"state {j + 1}", _run(sb, sa, x), m.full_scale))
         prev = h
     return out
 
@@ -138,22 +141,34 @@ def worst_case_input(h: np.ndarray, peak_int: int, min_int: int) -> np.ndarray:
 def roundoff_bound_lsb(models: list[OpModel], n: int, rounding: str) -> float:
     """Largest roundoff error at the output, in LSB: sum of e_max * ||g_j||_1 over rounding nodes."""
     from .limitcycles import error_interval
-    from .linear import noise_impulse
+    from .linear import noise_impulses
 
     c, r = error_interval(rounding)
-    return sum((abs(c) + r) * float(np.sum(np.abs(noise_impulse(models, m.index, n)))) for m in models if m.k > 0)
+    total = sum((abs(c) + r) * float(np.sum(np.abs(g))) for m in models if m.k > 0
+                for g in noise_impulses(models, m.index, n))
+    return total + sum(m.product_bound * float(np.sum(np.abs(_product_path(models, m, n))))
+                       for m in models if m.product_bound)
+
+
+def _product_path(models: list[OpModel], m: OpModel, n: int) -> np.ndarray:
+    """Impulse response from the rounded products of *m* (entering at its accumulator) to the output."""
+    from .linear import _run, tail_impulse
+
+    return _run(np.array([1.0]), m.noise_a, tail_impulse(models, m.index + 1, n))
 
 
 def internal_node_bounds(models: list[OpModel], imps: list[np.ndarray], n: int,
-                         rounding: str, lsb: float) -> list[tuple[int, float]]:
-    """``(op index, bound)`` of every internal op output (all but the last op).
+                         rounding: str, lsb: float) -> list[tuple[int, float, str]]:
+    """``(op index, bound, node)`` of every internal op output (all but the last op).
 
     The bound is ``||h_i||_1 + sum_j e_max ||g_j->i||_1 * lsb`` over the rounding ops
     ``j <= i``: no input within full scale can drive the node past it (Jackson's l1
-    argument, with the roundoff bounded instead of neglected).
+    argument, with the roundoff bounded instead of neglected).  The states of a
+    coupled section are internal nodes too (of every op, the last included): their
+    bound adds the paths of the earlier roundings through the op's state responses
+    and of the op's own state roundings.
     """
     from .limitcycles import error_interval
-    from .linear import _run
 
     c, r = error_interval(rounding)
     eps = (abs(c) + r) * lsb
@@ -162,12 +177,23 @@ def internal_node_bounds(models: list[OpModel], imps: list[np.ndarray], n: int,
     paths: list[np.ndarray] = []
     out = []
     last = max((m.index for m in models if m.kind != "delay"), default=-1)
+    prev = unit
     for m, h in zip(models, imps):
-        paths = [_run(m.b, m.a, p) for p in paths]
+        for j, (sb, sa) in enumerate(m.states):
+            sig = float(np.sum(np.abs(_run(sb, sa, prev))))
+            rnd = sum(w * float(np.sum(np.abs(_run(sb, sa, p)))) for w, p in paths)
+            if m.k > 0:
+                rnd += eps * sum(float(np.sum(np.abs(_run(nb, na, unit)))) for nb, na in m.state_noise[j])
+            out.append((m.index, sig + rnd, f"state {j + 1}"))
+        paths = [(w, _run(m.b, m.a, p)) for w, p in paths]
         if m.k > 0:
-            paths.append(_run(m.noise_b, m.noise_a, unit))
+            paths.extend((eps, _run(nb, na, unit)) for nb, na in m.noise_paths)
+        if m.product_bound:  # rounded products: each sample's worst total error, through 1/A(z)
+            paths.append((m.product_bound * lsb, _run(np.array([1.0]), m.noise_a, unit)))
+        prev = h
         if m.kind != "delay" and m.index != last:
-            out.append((m.index, float(np.sum(np.abs(h))) + eps * sum(float(np.sum(np.abs(p))) for p in paths)))
+            out.append((m.index, float(np.sum(np.abs(h))) + sum(w * float(np.sum(np.abs(p))) for w, p in paths),
+                        "output"))
     return out
 
 
@@ -201,8 +227,8 @@ def analyse_overflow(program: ChannelProgram, *, run_engine: bool = True,
     if ar.scaling == "l1" and not ar.is_float:
         bounds = internal_node_bounds(models, imps, n, ar.rounding, ar.data.lsb)
         if bounds:
-            i, l1w = max(bounds, key=lambda t: t[1])
-            l1node, l1lim = f"op {i + 1} output", ar.data.max_value
+            i, l1w, node = max(bounds, key=lambda t: t[1])
+            l1node, l1lim = f"op {i + 1} {node}", ar.data.max_value
     last = max((m.index for m in models if m.kind != "delay"), default=-1)
     runs = 0
     peak = 1.0

@@ -44,7 +44,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..blocks import ChannelDesign, FirBlock, SosBlock, chain_response
-from ..program import ChannelProgram, SectionOp
+from ..program import section_transfer, ChannelProgram, SectionOp
 
 GRID_POINTS = 2048
 F_MIN_HZ = 10.0
@@ -182,8 +182,8 @@ def analyse_response(design: ChannelDesign, program: ChannelProgram, *, passband
     rows_q = []
     for op in program.ops:
         if isinstance(op, SectionOp):
-            sc = 1.0 if fc is None else 2.0 ** (op.shift - fc)
-            rows_q.append([float(c) * sc for c in op.b] + [1.0] + list(op.a_phys(program.arithmetic.coef)))
+            bq, aq = section_transfer(op, program.arithmetic.coef if fc is not None else 0)
+            rows_q.append(bq + aq)
     rows_f = [row for blk in design.blocks if isinstance(blk, SosBlock) for row in np.asarray(blk.sos)]
     pq, pf = _roots(rows_q, "poles"), _roots(rows_f, "poles")
     zq, zf = _roots(rows_q, "zeros"), _roots(rows_f, "zeros")

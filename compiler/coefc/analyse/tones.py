@@ -75,7 +75,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..blocks import ChannelDesign, SosBlock, block_response
-from ..program import ChannelProgram, DelayOp, FirOp, SectionOp
+from ..program import section_transfer, ChannelProgram, DelayOp, FirOp, SectionOp
 
 DEFAULT_LEVELS_DBFS = (-20.0, -60.0)
 RANGE_DB = 60.0
@@ -187,8 +187,7 @@ def slowest_pole_radius(program: ChannelProgram) -> float:
     r = 0.0
     for op in program.ops:
         if isinstance(op, SectionOp):
-            sc = 1.0 if ar.is_float else 2.0 ** (op.shift - ar.coef.frac_bits)
-            a1, a2 = op.a_phys(ar.coef)
+            _, (_, a1, a2) = section_transfer(op, 0 if ar.is_float else ar.coef)
             r = max(r, float(np.max(np.abs(np.roots([1.0, a1, a2])))) if (a1 or a2) else 0.0)
     return r
 

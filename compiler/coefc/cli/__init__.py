@@ -61,6 +61,7 @@ from . import (  # noqa: E402,F401
     sweep_cmd,
     report_cmd,
     targets_cmd,
+    align_cmd,
 )
 
 try:  # Typer 0.2x ships its own copy of click; older releases use click itself

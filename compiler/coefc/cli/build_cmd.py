@@ -80,7 +80,8 @@ def build(
     validate(real, generated=kernel)  # every refusal rule (shared with check) before the (slower) check
     info = build_info(real.target)  # a check-only target: names the build table it lacks
     # the target's own files are inputs too: writing into the target folder must not replace them
-    inputs = [file, real.target.folder / "target.toml", *info.kernel_files(real.target.folder)]
+    inputs = [file, real.target.folder / "target.toml",
+              *(info.kernel_files(real.target.folder) if info.kernel_family is None else ())]
     if not check_only:
         check_output(output, inputs, "header")
     budget = apply_overrides(loaded.description.budget, **budget_overrides)

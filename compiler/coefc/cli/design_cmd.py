@@ -69,6 +69,7 @@ def render_text(desc, summaries: list[dict]) -> str:
             if s["taps"]:
                 facts.append(f"{s['taps']} taps")
             lines.append(f"  {s['index']:>2}. {s['text']}" + (f"  [{', '.join(facts)}]" if facts else ""))
+            lines.extend(f"      {d}" for d in s.get("details", ()))
         lines.append(f"  {'Hz':>9}  {'magnitude dB':>12}  {'phase deg':>9}  {'group delay (samples)':>21}")
         for r in ch["response"]:
             lines.append(f"  {r['freq_hz']:>9g}  {_num(r['magnitude_db'], '12.3f', '        null'):>12}  "

@@ -36,6 +36,7 @@ def sweep(
     fewest: Annotated[bool, typer.Option("--fewest-bits", help="Find the smallest passing widths per channel: the grid's minimum, cheapest points first.")] = False,
     per_op: Annotated[bool, typer.Option("--per-op", help="With --fewest-bits: also the smallest coefficient width of each section, FIR and gain.")] = False,
     measure_noise: Annotated[bool, typer.Option("--measure-noise", help="Also measure noise with the bit-true engine (slower).")] = False,
+    jobs: Annotated[Optional[int], typer.Option("--jobs", "-j", metavar="N", min=1, max=256, help="Evaluate configurations in N processes (default: the machine's cores).")] = None,
     json_out: options.JsonOut = None,
     csv_out: Annotated[Optional[str], typer.Option("--csv", metavar="PATH", help="Write one CSV row per configuration and channel to PATH ('-' for stdout).")] = None,
     plot_out: Annotated[Optional[Path], typer.Option("--plot", metavar="OUT.png|OUT.svg", help="Draw each metric against word length to PATH (.png or .svg; needs matplotlib).")] = None,
@@ -55,8 +56,8 @@ def sweep(
     from ..budget import apply_overrides
     from ..errors import CoefcError
     from ..explore.opwidths import fewest_op_widths
-    from ..explore.sweep import (MAX_SWEEP_POINTS, Sweeper, fewest_bits as run_fewest_bits, grid_size, parse_names,
-                         parse_widths, plot)
+    from ..explore.sweep import (MAX_SWEEP_POINTS, Sweeper, default_jobs, fewest_bits as run_fewest_bits,
+                                 grid_size, parse_names, parse_widths, plot)
 
     if per_op and not fewest:
         raise CoefcError("--per-op refines --fewest-bits; give both")
@@ -93,6 +94,7 @@ def sweep(
     sweeper = Sweeper(design, budget, options.overrides(rounding=rounding, overflow=overflow, scaling=scaling),
                       target_dir or (), AnalysisOptions(measure_noise=measure_noise))
     configs, skipped = sweeper.configs(targets, structures, accs, datas, coefs)
+    jobs = jobs or default_jobs()
     if not configs:
         raise CoefcError(f"{file}: no configuration to evaluate ({'; '.join(skipped) or 'empty ranges'})")
 
@@ -103,7 +105,7 @@ def sweep(
             total = len(groups) * len(design.channels)
             for gi, (t, st, a) in enumerate(groups):
                 for ci, ch in enumerate(design.channels):
-                    m = run_fewest_bits(sweeper, ci, ch.name, t, st, a, datas, coefs)
+                    m = run_fewest_bits(sweeper, ci, ch.name, t, st, a, datas, coefs, jobs)
                     if per_op and m.data_bits is not None:
                         widths = coefs or sweeper.default_widths(t)[1]
                         m.per_op.extend(fewest_op_widths(sweeper, ci, t, st, a, m.data_bits,
@@ -112,7 +114,7 @@ def sweep(
                     tick(gi * len(design.channels) + ci + 1, total)
             result = None
         else:
-            result = sweeper.run(configs, skipped, progress=tick)
+            result = sweeper.run(configs, skipped, progress=tick, jobs=jobs)
 
     if fewest:
         if json_out != "-":

@@ -40,6 +40,8 @@ def targets(target_dir: options.TargetDirs = None, json_out: options.JsonOut = N
         else:
             arith = (f"data {a.data}, coef {a.coef}, acc {a.acc_bits} bits, rounding {a.rounding}, "
                      f"overflow {a.overflow}")
+            if a.product_shift:
+                arith += f", products rounded by 2^{a.product_shift} ({a.product_rounding})"
         sys.stdout.write(f"{t.name:<10} {arith}\n{'':<10} structures {', '.join(t.structures)} "
                          f"(default {a.structure}), scaling {a.scaling}\n{'':<10} {t.summary}\n"
                          f"{'':<10} {t.folder}\n")

@@ -13,6 +13,9 @@ Stage kinds (``kind = ...`` in a description) and the module that designs them:
     by ``method`` = ``kaiser`` (default), ``equiripple`` or ``least-squares`` -- :mod:`.fir`.
 ``peaking``, ``lowshelf``, ``highshelf``, ``notch``, ``allpass``
     audio EQ biquads (``freq_hz``, ``gain_db``, ``q``/``bandwidth_oct``/``slope``) -- :mod:`.eq`.
+``correction``, ``fir-correction``
+    a measured response (``measurement``, ``range_hz``) corrected by fitted cookbook
+    sections or a regularised inverse FIR -- :mod:`.correction`.
 ``weighting``
     IEC 61672 A or C frequency weighting (``weighting = "A"``) -- :mod:`.weighting`.
 ``dc-blocker``
@@ -174,7 +177,8 @@ def design_channel(channel: ChannelSpec, sample_rate_hz: float, source: str) -> 
         results.append((st.index, res))
         summaries.append(StageSummary(index=st.index, kind=st.kind, text=res.text, order=res.order,
                                       sections=res.sections, taps=res.taps,
-                                      latency_samples=res.latency_samples, requirement=res.requirement))
+                                      latency_samples=res.latency_samples, requirement=res.requirement,
+                                      details=res.details))
     warnings = _channel_warnings(blocks, results, float(sample_rate_hz))
     return ChannelDesign(name=channel.name, sample_rate_hz=float(sample_rate_hz), blocks=tuple(blocks),
                          stages=tuple(summaries), warnings=tuple(warnings),

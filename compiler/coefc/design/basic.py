@@ -80,6 +80,13 @@ def design_delay(ctx: StageContext) -> StageResult:
         what = f"{metres:g} m at {t:g} C (c = {c:.3f} m/s)"
     if exact > MAX_DELAY_SAMPLES:
         raise ctx.error(f"{what} is {exact:.0f} samples; at most {MAX_DELAY_SAMPLES} samples are accepted", which)
+    interp = ctx.get("interpolation", "none")
+    if interp == "none":
+        for key in ("max_error_samples", "accuracy_hz"):
+            if ctx.has(key):
+                raise ctx.error("only applies with interpolation = \"thiran\" or \"lagrange\"; remove it", key)
+    elif which != "samples" and exact != math.floor(exact):
+        return _fractional_delay(ctx, exact, what, interp)
     n = int(math.floor(exact + 0.5))
     residual = exact - n
     if which == "samples":
@@ -87,6 +94,48 @@ def design_delay(ctx: StageContext) -> StageResult:
     else:
         text = f"delay {what} -> {n} samples (residual {residual:+.3f} sample)"
     return StageResult(blocks=(DelayBlock(n, label=text),), text=text, latency_samples=float(n))
+
+
+def _fractional_delay(ctx: StageContext, exact: float, what: str, interp: str) -> StageResult:
+    """A delay of *exact* samples: a whole-sample delay and a Thiran all-pass or a Lagrange FIR.
+
+    References
+    ----------
+    J.-P. Thiran (1971); T. I. Laakso et al., "Splitting the unit delay", IEEE SP
+    Magazine 13(1), 1996 -- see :mod:`coefc.design.fractional_delay`.
+    """
+    from . import fractional_delay as fd
+
+    max_err = float(ctx.get("max_error_samples", fd.DEFAULT_MAX_ERROR_SAMPLES))
+    acc_hz = float(ctx.get("accuracy_hz", min(fd.DEFAULT_ACCURACY_HZ, ctx.fs / 4)))
+    if acc_hz >= ctx.fs / 2 * 0.95:
+        raise ctx.error(f"{acc_hz:g} Hz is too close to Nyquist for a fractional delay; use at most "
+                        f"{ctx.fs / 2 * 0.9:g} Hz", "accuracy_hz")
+    got = fd.design(exact, interp, ctx.fs, max_err, acc_hz)
+    if got is None:
+        raise ctx.error(f"no {interp} fractional delay up to order {fd.MAX_ORDER} gives {what} ({exact:.4f} samples) "
+                        f"within {max_err:g} samples up to {acc_hz:g} Hz; relax max_error_samples, lower "
+                        "accuracy_hz, or lengthen the delay (the filter needs about its order in samples)",
+                        "max_error_samples" if ctx.has("max_error_samples") else "interpolation")
+    kind, order, m, d, coef, err = got
+    name = "Thiran all-pass" if kind == "thiran" else "Lagrange FIR"
+    droop = ""
+    if kind == "lagrange":
+        w = 2 * math.pi * np.linspace(0.0, acc_hz, 256) / ctx.fs
+        mag = np.abs(np.exp(-1j * np.outer(w, np.arange(coef.size))) @ coef)
+        droop = f", magnitude within {float(np.max(np.abs(20 * np.log10(mag)))):.2g} dB"
+    text = (f"delay {what} = {exact:.4f} samples: {m} whole samples + {name} order {order} ({d:.4f} samples; "
+            f"group delay within {err:.2g} samples{droop} up to {acc_hz:g} Hz)")
+    blocks = [DelayBlock(m, label=f"delay {m} samples")] if m else []
+    if kind == "thiran":
+        from scipy import signal
+
+        sos = signal.tf2sos(coef[::-1], coef)
+        blocks.append(SosBlock(sos, label=f"Thiran all-pass order {order}, {d:.4f} samples"))
+        return StageResult(blocks=tuple(blocks), text=text, order=order, sections=len(sos),
+                           latency_samples=float(m))
+    blocks.append(FirBlock(coef, label=f"Lagrange FIR order {order}, {d:.4f} samples"))
+    return StageResult(blocks=tuple(blocks), text=text, order=order, taps=order + 1, latency_samples=float(m))
 
 
 def dc_blocker_sos(cutoff_hz: float, fs: float) -> np.ndarray:

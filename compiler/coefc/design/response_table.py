@@ -133,7 +133,8 @@ def channel_summary(design: ChannelDesign, freqs_hz) -> dict:
         "stages": [
             {"index": s.index, "kind": s.kind, "text": s.text, "order": s.order, "sections": s.sections,
              "taps": s.taps, "latency_samples": s.latency_samples,
-             "requirement": dict(s.requirement) if s.requirement is not None else None}
+             "requirement": dict(s.requirement) if s.requirement is not None else None,
+             "details": list(s.details)}
             for s in design.stages
         ],
         "warnings": list(design.warnings),

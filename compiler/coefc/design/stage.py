@@ -93,6 +93,8 @@ class StageResult:
     #: For designs given by requirements: what was asked, the quantisation margin kept,
     #: what the float design reaches (dense grid) and how the margin was paid for.
     requirement: Mapping | None = None
+    #: Further lines the design report prints under the stage (e.g. fitted sections).
+    details: tuple[str, ...] = ()
 
 
 def edges_in_order(ctx: StageContext, wp, ws) -> float:

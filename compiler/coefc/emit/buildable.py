@@ -193,16 +193,17 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
                    "set [layout] coef_shift = true in the target if its kernel shifts, or choose such a target")
             fail(f"{what} needs coefficient shift {shift} but target '{target.name}' has none "
                  f"([layout] coef_shift = false); {fix}")
-        k = fc - shift
+        P = arith.product_shift  # rounded products: the accumulator holds units of 2^P
+        k = fc - shift - P
         top = min(MAX_RSHIFT, state_bits - 2) if section else MAX_RSHIFT
-        if not 1 <= k <= top:
+        if not (0 if P else 1) <= k <= top:
             room = (f"the kernel of target '{target.name}' rounds a section by 1..{top} bits "
                     f"(below its {state_bits}-bit state word)" if section and top < MAX_RSHIFT
                     else f"the kernels round by 1..{MAX_RSHIFT} bits")
             fix = ("give the coefficient word more fractional bits (" + setting("coef") + ")" if k < 1 else
                    "give the coefficient word fewer fractional bits (" + setting("coef") + ")")
             fail(f"{what} needs a right shift of {k} bits ({fc} fractional coefficient bits minus "
-                 f"coefficient shift {shift}); {room}; {fix}")
+                 f"coefficient shift {shift}{f' minus product shift {P}' if P else ''}); {room}; {fix}")
         return k
 
     def words(values, what: str) -> tuple:
@@ -230,14 +231,19 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
             if op.structure not in target.structures:
                 fail(f"target '{target.name}' has no kernel for structure '{op.structure}'; it supports "
                      f"{', '.join(target.structures)} ({setting('structure')})")
+            if not STRUCTURE_TABLE[op.structure].reference_kernel and not generated:
+                fail(f"{what} is {op.structure} ({STRUCTURE_TABLE[op.structure].description}), which the "
+                     f"reference kernel of target '{target.name}' does not run; write generated code "
+                     f"({setting('kernel')}) or choose another structure ({setting('structure')})")
+            if STRUCTURE_TABLE[op.structure].state_space:  # generated code only (checked above)
+                k = rshift(op.shift, what, True)
+                ops.append(KernelOp(op.structure.upper(), k, 1, words((*op.b, *op.a), what),
+                                    STATE_WORDS[op.structure], f"{what}, {op.structure}, coefficient shift {op.shift}"))
+                continue
             terms = {"b0": op.b[0], "b1": op.b[1], "b2": op.b[2], "a1": op.a[0], "a2": op.a[1]}
             values = [-terms[t[1:]] if t.startswith("-") else terms[t] for t in info.section_layout]
             k = rshift(op.shift, what, True)
-            if STRUCTURE_TABLE[op.structure].wide_feedback:
-                if not generated:
-                    fail(f"{what} is {op.structure} (double-word feedback coefficients), which the reference "
-                         f"kernel of target '{target.name}' does not run; write generated code (coefc build "
-                         "--kernel) or choose another structure (--structure)")
+            if STRUCTURE_TABLE[op.structure].wide_feedback:  # generated code only (checked above)
                 values = list(values) + [int(v) for v in (op.a_lo or (0, 0))]
             ops.append(KernelOp(op.structure.upper().replace("-", "_"), k, 1, words(values, what),
                                 STATE_WORDS[op.structure], f"{what}, {op.structure}, coefficient shift {op.shift}"))
@@ -307,6 +313,10 @@ def validate(realisation, generated: bool = False) -> tuple[BuildInfo, Names, tu
     places = {"data": desc.source, "coef": desc.source, "acc_bits": desc.source}
     check_kernel_words(arith, target, places)
     return info, names, tuple(kernel_program(p, info, target, desc.source, generated) for p in programs)
+
+
+#: structures the reference kernels (the operation table) run; the others only as generated code
+KERNEL_STRUCTURES = tuple(s.name for s in STRUCTURE_TABLE.values() if s.reference_kernel)
 
 
 def refusal(realisation, generated: bool = False) -> str | None:

@@ -14,6 +14,9 @@ with its states in local variables, so a compiler keeps them in registers.
 The exact arithmetic is the one stated in :mod:`coefc.program`.  It is written
 without any implementation-defined or undefined C operation:
 
+* with ``[arithmetic] product_shift = P`` every product is formed exactly in int64_t,
+  biased by 2^62 into uint64_t and shifted by P with the target's product rounding
+  (no shift of a negative value), then added modulo the container; otherwise
 * products are formed exactly (``int32_t`` when ``data + coef`` bits fit 32,
   otherwise ``int64_t``) and summed in an *unsigned* container ``U`` of
   ``C = 32`` or ``64`` bits, so the sum is the exact sum modulo ``2^C``; the
@@ -190,7 +193,9 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
     Counts the products and the sums of products of the generated code
     (rounding and saturation steps not counted): a section 5 multiplies and
     4 adds (5 with error feedback; df1-wide-fb 7 multiplies, 6 adds and 7 stored
-    coefficients, df1ef-wide-fb 7 multiplies, 7 adds and 7 stored coefficients); an FIR of N taps N multiplies and N - 1 adds,
+    coefficients, df1ef-wide-fb 7 multiplies, 7 adds and 7 stored coefficients; a coupled
+    section 8 multiplies, 5 adds and 8 coefficients); an FIR of N taps N multiplies and
+    N - 1 adds,
     folded ceil(N/2) multiplies and N - 1 adds; a gain one multiply; a delay none.
     Coefficient bytes count the stored coefficient words (a folded FIR stores
     ceil(N/2)); state bytes the fields of the generated state structure before
@@ -200,7 +205,12 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
     muls = adds = coefs = 0
     state = 0
     for op in program.ops:
-        if isinstance(op, SectionOp):
+        if isinstance(op, SectionOp) and STRUCTURE_TABLE[op.structure].state_space:
+            muls += STRUCTURE_TABLE[op.structure].multiplies  # coupled: y 3, S1 3, S2 2
+            adds += 5
+            coefs += 8
+            state += _section_state_bytes(op, program, data_bytes)
+        elif isinstance(op, SectionOp):
             st = STRUCTURE_TABLE[op.structure]
             muls += st.multiplies
             adds += (5 if st.error_feedback else 4) + (2 if st.wide_feedback else 0)
@@ -208,7 +218,7 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
             state += _section_state_bytes(op, program, data_bytes)
         elif isinstance(op, FirOp):
             n = len(op.taps)
-            folded = op.symmetric and fixed
+            folded = op.symmetric and fixed and not program.arithmetic.product_shift
             muls += (n + 1) // 2 if folded else n
             adds += n - 1
             coefs += (n + 1) // 2 if folded else n
@@ -245,7 +255,7 @@ def _section_state_bytes(op: SectionOp, program: ChannelProgram, data_bytes: int
     st = STRUCTURE_TABLE[op.structure]
     if program.arithmetic.is_float:
         return 4 * st.state_words
-    k = program.arithmetic.coef.frac_bits - op.shift
+    k = program.arithmetic.final_shift(op.shift)
     return st.data_states * data_bytes + st.acc_states * (_container(program, k) // 8)
 
 
@@ -266,11 +276,35 @@ class _Fixed:
         self.A = a.acc_bits
         self.rounding = a.rounding
         self.overflow = a.overflow
+        self.P = a.product_shift  # rounded products (coefc.program, "Rounded products")
+        self.prounding = a.product_rounding
         self.dmax = (1 << (self.d - 1)) - 1
         self.dmin = -(1 << (self.d - 1))
 
     # products -------------------------------------------------------------
+    def qprod(self, x: str, c: int, C: int) -> str:
+        """The rounded product ``round(c x / 2^P)`` modulo 2^C: the exact int64 product (|c x| <= 2^62)
+        biased by 2^62 into uint64_t, so every shift is of a non-negative value."""
+        P = self.P
+        assert 1 <= P <= 61
+        p = f"(int64_t){x} * {c if isinstance(c, str) else _s(c, 64)}"
+        u = f"((uint64_t)({p}) + {_u(1 << 62, 64)})"
+        off = _u(1 << (62 - P), 64)
+        if self.prounding == "truncate":
+            q = f"(({u} >> {P}) - {off})"
+        elif self.prounding == "add-half":
+            q = f"((({u} + {_u(1 << (P - 1), 64)}) >> {P}) - {off})"
+        elif self.prounding == "half-even":
+            mask, half = _u((1 << P) - 1, 64), _u(1 << (P - 1), 64)
+            q = (f"(({u} >> {P}) + (uint64_t)(({u} & {mask}) > {half} || "
+                 f"(({u} & {mask}) == {half} && (({u} >> {P}) & 1u) != 0u)) - {off})")
+        else:  # toward-zero: floor, plus one for a negative product with dropped bits
+            q = f"(({u} >> {P}) + (uint64_t)(({p}) < 0 && ({u} & {_u((1 << P) - 1, 64)}) != 0u) - {off})"
+        return q if C == 64 else f"(uint32_t){q}"
+
     def prod(self, x: str, c: int, C: int) -> str:
+        if self.P:
+            return self.qprod(x, c, C)
         if C == 64:
             return f"(uint64_t)((int64_t){x} * {_s(c, 64)})"
         if self.d + self.cb <= 32 and -(1 << 31) <= c < (1 << 31):
@@ -279,6 +313,8 @@ class _Fixed:
 
     def prodv(self, x: str, h: str, C: int) -> str:
         """The product of sample *x* and the int32_t coefficient variable *h*."""
+        if self.P:
+            return self.qprod(x, h, C)
         if C == 64:
             return f"(uint64_t)((int64_t){x} * {h})"
         if self.d + self.cb <= 32:
@@ -300,7 +336,9 @@ class _Fixed:
             c = int(c)
             if c == 0:
                 continue
-            if sign < 0 and self.fits_coef(-c):
+            if sign < 0 and self.P:  # the product of the negated coefficient is the one rounded
+                parts.append(("+", self.prod(x, -c, C)))
+            elif sign < 0 and self.fits_coef(-c):
                 parts.append(("+", self.prod(x, -c, C)))
             elif sign < 0:
                 parts.append(("-", self.prod(x, c, C)))
@@ -342,7 +380,10 @@ class _Fixed:
         U = f"uint{C}_t"
         A = self.A
         bias = 1 << (C - 1)
-        assert 1 <= k <= C - 2 and A <= C
+        assert (0 if self.P else 1) <= k <= C - 2 and A <= C
+        if k == 0 and C == 64:
+            raise GeneratedCodeError("no final shift with a 64-bit accumulator container has no generated code; "
+                                     "use an accumulator of at most 32 bits or a smaller product shift")
         lines = []
         if A == C:
             lines.append(f"const {U} w = {acc} ^ {_u(bias, C)}; /* a + 2^{C - 1} */")
@@ -350,8 +391,10 @@ class _Fixed:
             lines.append(f"const {U} w = (({acc} ^ {_u(1 << (A - 1), C)}) & {_u((1 << A) - 1, C)}) + "
                          f"{_u(bias - (1 << (A - 1)), C)}; /* a (from {A} bits) + 2^{C - 1} */")
         off = 1 << (C - 1 - k)  # the bias after the shift
-        half, mask = 1 << (k - 1), (1 << k) - 1
-        if self.rounding == "truncate":
+        half, mask = (1 << (k - 1), (1 << k) - 1) if k else (0, 0)
+        if k == 0:
+            lines.append(f"const {U} v = w; /* no final rounding: the products were rounded */")
+        elif self.rounding == "truncate":
             lines.append(f"const {U} v = w >> {k}; /* floor(a / 2^{k}) + 2^{C - 1 - k} */")
         elif self.rounding == "add-half":
             lines.append(f"const {U} v = (w >> {k}) + ((w >> {k - 1}) & 1u); /* floor((a + 2^{k - 1}) / 2^{k}) "
@@ -366,7 +409,9 @@ class _Fixed:
                          "/* towards zero */")
         else:  # pragma: no cover - the spec refuses other modes
             raise GeneratedCodeError(f"rounding mode '{self.rounding}' has no generated code")
-        if residual is not None:
+        if residual is not None and k == 0:
+            lines.append(f"{residual} = 0u; /* E = 0: nothing is rounded here */")
+        elif residual is not None:
             lines.append(f"{residual} = w - (v << {k}); /* E = a - round(a) * 2^{k}, |E| < 2^{k} */")
         vmax = 1 << (C - k)  # largest v (inclusive)
         D = self.D
@@ -389,8 +434,14 @@ class _Fixed:
                          f"/* wrap to {self.d} bits */")
         return lines
 
+    def product_note(self) -> list[str]:
+        if not self.P:
+            return []
+        return [f"every product rounded before the sum: q(c v) = round(c v / 2^{self.P}) ({self.prounding}); "
+                "a subtracted term is q(-c v)"]
+
     def k_of(self, shift: int) -> int:
-        return self.fc - shift
+        return self.fc - shift - self.P
 
 
 def _indent(lines, n: int) -> list[str]:
@@ -416,7 +467,29 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
     for i, op in enumerate(program.ops, 1):
         src = "in" if not out else "out"
         f = f"op{i}"
-        if isinstance(op, SectionOp):
+        if isinstance(op, SectionOp) and STRUCTURE_TABLE[op.structure].state_space:
+            n_sec += 1
+            k = fx.k_of(op.shift)
+            C = _container(program, k)
+            Dc, C1, C2, G = (int(v) for v in op.b)
+            A11, A12, A21, A22 = (int(v) for v in op.a)
+            head = [f"section {n_sec}, coupled: D {Dc}, C1 {C1}, C2 {C2}, G {G}, A11 {A11}, A12 {A12}, "
+                    f"A21 {A21}, A22 {A22} (coefficient shift {op.shift}, rounding shift {k}, {C}-bit container)",
+                    f"y = fit(round((D x + C1 S1 + C2 S2) / 2^{k})); S1 = fit(round((A11 S1 + A12 S2 + G x) / 2^{k})); "
+                    f"S2 = fit(round((A21 S1 + A22 S2) / 2^{k})) (old S1, S2 on the right)"]
+            fields = [(D, f"{f}_s", 2, "S1, S2 (data words)")]
+            pre = [f"{D} s1 = s->{f}_s[0], s2 = s->{f}_s[1];"]
+            post = [f"s->{f}_s[0] = s1;", f"s->{f}_s[1] = s2;"]
+            body = [f"{D} y, n1, n2;"]  # three sibling blocks: each rounding's temporaries stay in its own
+            for name, terms in (("y", [(1, Dc, "x"), (1, C1, "s1"), (1, C2, "s2")]),
+                                ("n1", [(1, A11, "s1"), (1, A12, "s2"), (1, G, "x")]),
+                                ("n2", [(1, A21, "s1"), (1, A22, "s2")])):
+                inner = fx.sum_lines("a", C, terms) + fx.finish("a", k, C, "res") + [f"{name} = res;"]
+                body += ["{", *_indent(inner, 4), "}"]
+            body += ["s1 = n1;", "s2 = n2;", "out[t] = y;"]
+            lines = pre + _loop(src, body, D) + post
+            out.append(_OpCode(head, fields, lines))
+        elif isinstance(op, SectionOp):
             n_sec += 1
             k = fx.k_of(op.shift)
             C = _container(program, k)
@@ -480,14 +553,14 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                 t2 = fx.sum_lines("n2", C, [(1, B2, "x"), (-1, A2, "y")])
                 body += t1 + t2 + ["s1 = n1 + s2;", "s2 = n2;", "out[t] = y;"]
             lines = pre + _loop(src, body, D) + post
-            out.append(_OpCode(head, fields, lines))
+            out.append(_OpCode(head + fx.product_note(), fields, lines))
         elif isinstance(op, FirOp):
             taps = [int(v) for v in op.taps]
             n = len(taps)
             k = fx.k_of(op.shift)
             C = _container(program, k)
             U = f"uint{C}_t"
-            folded = op.symmetric and taps == taps[::-1]
+            folded = op.symmetric and taps == taps[::-1] and not fx.P  # rounded products do not fold
             stored = taps[:(n + 1) // 2] if folded else taps
             ct = ("int16_t" if all(-(1 << 15) <= c < (1 << 15) for c in stored) and fx.cb <= 16 else
                   "int32_t" if all(-(1 << 31) <= c < (1 << 31) for c in stored) else "int64_t")
@@ -534,14 +607,14 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                 body += [f"{U} acc = 0u;", f"for (j = 0u; j < {n}u; j++) {{",
                          f"    acc += {fx.prodv('z[p + j]', 'h[j]', C)};", "}"]
             body += fx.finish("acc", k, C, "y") + ["out[t] = y;"]
-            out.append(_OpCode(head, fields, pre + _loop(src, body, D) + post))
+            out.append(_OpCode(head + fx.product_note(), fields, pre + _loop(src, body, D) + post))
         elif isinstance(op, GainOp):
             k = fx.k_of(op.shift)
             C = _container(program, k)
             c = int(op.coef)
             head = [f"gain {c} (coefficient shift {op.shift}, rounding shift {k}): y = fit(round(c x / 2^{k}))"]
             body = fx.sum_lines("acc", C, [(1, c, "x")]) + fx.finish("acc", k, C, "y") + ["out[t] = y;"]
-            out.append(_OpCode(head, [], _loop(src, body, D)))
+            out.append(_OpCode(head + fx.product_note(), [], _loop(src, body, D)))
         elif isinstance(op, DelayOp):
             out.append(_delay(op, f, src, D))
         else:  # pragma: no cover - emit refuses first

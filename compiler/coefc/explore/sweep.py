@@ -39,7 +39,9 @@ from __future__ import annotations
 
 import itertools
 import math
+import os
 import re
+import signal
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
 
@@ -414,19 +416,83 @@ class Sweeper:
                     out.append(Config(tgt.name, st, acc, d, c))
         return out, skipped
 
+    def evaluate_many(self, configs: Sequence[Config], jobs: int = 1,
+                      progress: Callable[[int, int], None] | None = None) -> list[ConfigResult]:
+        """:meth:`evaluate` every one of *configs*, in their order, in up to *jobs* processes.
+
+        Configurations are independent, so the results are the same whatever *jobs*
+        is; each worker is a fork of this process (the float design and every cache
+        filled so far are shared, not rebuilt), and the results come back into this
+        sweeper's cache.  Neighbouring configurations share a data word and with it
+        most of the section ordering and limit-cycle work, so each worker takes runs
+        of them.  Without ``fork`` (or with one job) they are evaluated here.
+        """
+        todo = [c for c in dict.fromkeys(configs) if c not in self._cache]
+        jobs = max(1, min(int(jobs), len(todo)))
+        done = len(configs) - len(todo)
+        if jobs > 1 and "fork" in _mp_methods():
+            import multiprocessing
+
+            global _WORKER
+            _WORKER = self
+            chunk = max(1, math.ceil(len(todo) / (jobs * 4)))
+            pool = multiprocessing.get_context("fork").Pool(jobs, initializer=_worker_init)
+            try:
+                for cfg, res in zip(todo, pool.imap(_worker_evaluate, todo, chunksize=chunk)):
+                    self._cache[cfg] = res
+                    done += 1
+                    if progress:
+                        progress(done, len(configs))
+                pool.close()
+            finally:
+                pool.terminate()
+                pool.join()
+                _WORKER = None
+        else:
+            for cfg in todo:
+                self.evaluate(cfg)
+                done += 1
+                if progress:
+                    progress(done, len(configs))
+        return [self._cache[c] for c in configs]
+
     def run(self, configs: Sequence[Config], skipped: Sequence[str] = (),
-            progress: Callable[[int, int], None] | None = None) -> SweepResult:
-        """Evaluate *configs*; a realisation build would refuse moves to ``skipped``."""
+            progress: Callable[[int, int], None] | None = None, jobs: int = 1) -> SweepResult:
+        """Evaluate *configs* (in up to *jobs* processes); a realisation build would refuse moves to ``skipped``."""
         results, skipped = [], list(skipped)
-        for i, cfg in enumerate(configs):
-            r = self.evaluate(cfg)
+        for cfg, r in zip(configs, self.evaluate_many(configs, jobs, progress)):
             if r.refused is None:
                 results.append(r)
             else:
                 skipped.append(f"{cfg.label()}: build would refuse it: {r.refused}")
-            if progress:
-                progress(i + 1, len(configs))
         return SweepResult(self.design.loaded.description.source, self.budget, tuple(results), tuple(skipped))
+
+
+def default_jobs() -> int:
+    """The processes a sweep uses by default: the cores this process may run on."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):
+        return max(1, os.cpu_count() or 1)
+
+
+def _mp_methods() -> list[str]:
+    import multiprocessing
+
+    return multiprocessing.get_all_start_methods()
+
+
+_WORKER: Sweeper | None = None  # the sweeper a forked worker evaluates with
+
+
+def _worker_init() -> None:
+    # the parent handles interruption and terminates the pool; a worker just stops
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_DFL)
+
+
+def _worker_evaluate(config: Config) -> ConfigResult:
+    return _WORKER.evaluate(config)
 
 
 @dataclass(frozen=True)
@@ -452,7 +518,8 @@ class FewestBitsResult:
 
 
 def fewest_bits(sweeper: Sweeper, channel_index: int, channel: str, target: str, structure: str,
-                acc_bits: int | None, datas: Sequence[int] | None, coefs: Sequence[int] | None) -> FewestBitsResult:
+                acc_bits: int | None, datas: Sequence[int] | None, coefs: Sequence[int] | None,
+                jobs: int = 1) -> FewestBitsResult:
     """Smallest (data + coef, then data) passing widths of one channel: the grid's own minimum.
 
     The grid's points that build would accept are evaluated cheapest first, ties
@@ -460,7 +527,10 @@ def fewest_bits(sweeper: Sweeper, channel_index: int, channel: str, target: str,
     cheaper point has been evaluated and fails, so the answer is the exhaustive
     grid's whatever the shape of the verdict.  ``None`` widths when no point of
     the grid passes (then every point was evaluated).  ``None`` for *datas* or
-    *coefs* means the target's default widths.
+    *coefs* means the target's default widths.  With *jobs* > 1 the points are
+    evaluated *jobs* at a time, still in cost order, and the first passing one in
+    that order is the answer (so the result is the same; a few more points may be
+    evaluated).
     """
     base = sweeper.base_arithmetic(target)
     if base.is_float:
@@ -471,14 +541,18 @@ def fewest_bits(sweeper: Sweeper, channel_index: int, channel: str, target: str,
               if not sweeper.refused(target, structure, acc, d, c)]
     points.sort(key=lambda p: (p[0] + p[1], p[0]))
     evaluated = refused = 0
-    for d, c in points:
-        r = sweeper.evaluate(Config(sweeper.target(target).name, structure, acc, d, c))
-        evaluated += 1
-        if r.refused is not None:
-            refused += 1
-        elif r.channels[channel_index].ok:
-            return FewestBitsResult(channel, target, structure, acc, d, c, evaluated, len(points) - refused,
-                                    refused)
+    name = sweeper.target(target).name
+    step = max(1, int(jobs))
+    for at in range(0, len(points), step):
+        batch = points[at:at + step]
+        results = sweeper.evaluate_many([Config(name, structure, acc, d, c) for d, c in batch], step)
+        for (d, c), r in zip(batch, results):
+            evaluated += 1
+            if r.refused is not None:
+                refused += 1
+            elif r.channels[channel_index].ok:
+                return FewestBitsResult(channel, target, structure, acc, d, c, evaluated,
+                                        len(points) - refused, refused)
     return FewestBitsResult(channel, target, structure, acc, None, None, evaluated, len(points) - refused, refused)
 
 

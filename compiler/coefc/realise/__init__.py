@@ -1,7 +1,7 @@
 """Realisation: a float :class:`~coefc.blocks.ChannelDesign` and an Arithmetic in, a
 :class:`~coefc.program.ChannelProgram` out.
 
-The exact integer recurrences of every op (``df1``, ``tdf2``, ``df1ef`` sections,
+The exact integer recurrences of every op (``df1``, ``tdf2``, ``df1ef``, ``coupled`` sections,
 FIR, gain, delay, and the float32 operation order) are stated in the docstring of
 :mod:`coefc.program`; this module only decides the ops and their integers.
 
@@ -49,7 +49,9 @@ With ``scaling = "none"`` the sections are realised exactly as designed, in desi
 order, and no gain is moved; a note warns when a designed numerator keeps fewer
 than 8 significant bits (a design that puts its whole gain in one section).
 
-Coefficients are fitted by :mod:`.coefficients`; saturated coefficients, kept
+Coefficients are fitted by :mod:`.coefficients` (``coupled`` sections by
+:mod:`.coupled`: poles as the real and imaginary parts of the pole pair, the
+states' level set by the scaling norm, the zeros by an output combination); saturated coefficients, kept
 pairings and quantised poles on or outside the unit circle are recorded in
 ``ChannelProgram.notes``.  For float32 arithmetic the same ops are built with
 float32 coefficients and shift 0.
@@ -70,8 +72,9 @@ import numpy as np
 from ..blocks import ChannelDesign, DelayBlock, FirBlock, GainBlock, SosBlock
 from ..errors import CoefcError
 from ..program import STRUCTURE_TABLE, Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, Note, SectionOp
+from ..program import section_transfer
 from ..qformat import QFormat  # noqa: F401 (used by the doctest)
-from . import coefficients, pairing, scaling
+from . import coefficients, coupled, pairing, scaling
 
 __all__ = ["realise_channel"]
 
@@ -197,7 +200,8 @@ def _chain_freq(chain, f):
 def _fixed_gain(g: float, arithmetic: Arithmetic, notes: list, where: str) -> GainOp:
     fmt = arithmetic.coef
     ints, s, sat = coefficients.fit_group([g], fmt, arithmetic.rounding,
-                                          min_shift=coefficients.lowest_shift([g], fmt))
+                                          min_shift=coefficients.lowest_shift([g], fmt),
+                                          min_k=arithmetic.product_shift)
     if sat:
         notes.append(Note("saturated", f"{where} gain {g:.6g} does not fit the coefficient word {fmt}: saturated"))
     return GainOp(coef=ints[0], shift=s)
@@ -227,9 +231,9 @@ def realise_channel(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelPro
     >>> p.ops[0].a, p.ops[0].b[1] == 2 * p.ops[0].b[0] == 2 * p.ops[0].b[2]
     ((-29743, 13615), True)
     """
-    if arithmetic.is_float and not STRUCTURE_TABLE.get(arithmetic.structure, STRUCTURE_TABLE["df1"]).float32:
-        raise RealisationError(f"channel '{design.name}': structure '{arithmetic.structure}' (error feedback) needs "
-                               "fixed-point arithmetic; use "
+    if arithmetic.is_float and not STRUCTURE_TABLE[arithmetic.structure].float32:
+        raise RealisationError(f"channel '{design.name}': structure '{arithmetic.structure}' "
+                               f"({STRUCTURE_TABLE[arithmetic.structure].description}) needs fixed-point arithmetic; use "
                                + " or ".join(s.name for s in STRUCTURE_TABLE.values() if s.float32) + " for float32")
     pre_gain, delay, chain0, final0, notes = _float_plan(design, arithmetic)
     if arithmetic.scaling == "none":
@@ -279,7 +283,21 @@ def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: in
     if kind == "sos":
         b, a = op
         bs = np.asarray(b, dtype=float) * c
-        ints, s, sat = coefficients.fit_section(bs, a, fmt, arithmetic.rounding, min_shift=0)
+        if STRUCTURE_TABLE[arithmetic.structure].state_space:
+            from ..analyse.limitcycles import error_interval
+
+            cen, rad = error_interval(arithmetic.rounding)
+            bi, ai, s, sat = coupled.fit_coupled(bs, a, fmt, arithmetic.rounding, arithmetic.data,
+                                                 arithmetic.scaling, abs(cen) + rad)
+            if sat:
+                notes.append(Note("saturated", f"section {n_sec}: coupled-form coefficients do not fit {fmt} even "
+                                  f"with a coefficient shift of {s}; saturated (the response will be wrong): use a "
+                                  "wider coefficient word"))
+            rop = SectionOp(b=bi, a=ai, shift=s, structure=arithmetic.structure)
+            phys = np.array(section_transfer(rop, fmt.frac_bits)[0])
+            return rop, coefficients.realised_gain(b, phys)
+        ints, s, sat = coefficients.fit_section(bs, a, fmt, arithmetic.rounding, min_shift=0,
+                                                     min_k=arithmetic.product_shift)
         if sat:
             notes.append(Note("saturated", f"section {n_sec}: coefficients do not fit {fmt} even with a coefficient "
                               f"shift of {s}; saturated (the response will be wrong): use a wider coefficient word"))
@@ -296,7 +314,8 @@ def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: in
     ts = taps * c
     ints, s, sat = coefficients.fit_group(ts, fmt, arithmetic.rounding,
                                           min_shift=coefficients.lowest_shift(ts, fmt),
-                                          acc_limit=arithmetic.acc_bits, data_width=arithmetic.data.width)
+                                          acc_limit=arithmetic.acc_bits + arithmetic.product_shift,
+                                          data_width=arithmetic.data.width, min_k=arithmetic.product_shift)
     if sat:
         notes.append(Note("saturated", f"FIR of {len(op)} taps: taps do not fit {fmt} with the accumulator of "
                           f"{arithmetic.acc_bits} bits; saturated"))
@@ -328,12 +347,10 @@ L1_MAX_LOSS_BITS = 4
 
 def _l1_length(chain) -> int:
     """Impulse-response length for the l1 bounds: as long as the overflow analysis uses."""
-    from ..analyse.linear import DECAY, MAX_LENGTH, MIN_LENGTH
+    from ..blocks import impulse_length
 
     r = max([pairing.pole_radius(op[1]) for kind, op in chain if kind == "sos"] + [0.0])
-    fir = sum(len(op) - 1 for kind, op in chain if kind != "sos")
-    n = int(np.ceil(np.log(DECAY) / np.log(r))) * 2 if 0.0 < r < 1.0 else (1 << 14 if r >= 1.0 else 0)
-    return int(min(max(n + fir + 8, MIN_LENGTH), MAX_LENGTH))
+    return impulse_length(r, sum(len(op) - 1 for kind, op in chain if kind != "sos"))
 
 
 def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: float, notes: list) -> ChannelProgram:
@@ -383,7 +400,9 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
             hn = _run(m.b, m.a, h)
             pn = [_run(m.b, m.a, p) for p in paths]
             if m.k > 0:
-                pn.append(_run(m.noise_b, m.noise_a, unit))
+                pn.extend(_run(nb, na, unit) for nb, na in m.noise_paths)
+            if m.product_bound:  # rounded products: their worst total, through 1/A(z), in units of eps
+                pn.append(_run(np.array([1.0]), m.noise_a, unit) * (m.product_bound / (abs(cen) + rad)))
             roundoff = eps * sum(float(np.sum(np.abs(p))) for p in pn)
             bound = float(np.sum(np.abs(hn))) + roundoff
             state = (rop, g, trial_notes, hn, pn, bound)
@@ -401,12 +420,13 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
             if best is not None:  # filling up overshot: keep the last fit
                 state = best
                 break
-            ints = rop.b if kind == "sos" else rop.taps
+            ints = (rop.b[:3] if STRUCTURE_TABLE[rop.structure].state_space else rop.b) if kind == "sos" \
+                else rop.taps
             lower = c * maxv / bound
             if _fixed_op(kind, op, lower, ar, [], n_sec)[0] == rop:  # the same integers: one step down
                 lower *= 1.0 - 1.0 / max(max(abs(v) for v in ints), 2)
             c = lower
-            zero = kind == "sos" and not any(_fixed_op(kind, op, c, ar, [], n_sec)[0].b)
+            zero = kind == "sos" and not any(_fixed_op(kind, op, c, ar, [], n_sec)[0].b[:3])
             if c < c0 * 2.0 ** -L1_MAX_LOSS_BITS or roundoff >= maxv or zero:
                 stop = (f"lowering its scale factor by up to {L1_MAX_LOSS_BITS} bits did not make it fit"
                         if c < c0 * 2.0 ** -L1_MAX_LOSS_BITS else "the roundoff alone reaches full scale"

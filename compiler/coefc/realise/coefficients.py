@@ -78,7 +78,8 @@ def place_zeros(ints, minus: int, plus: int) -> list[int]:
     return out
 
 
-def fit_section(b, a, fmt: QFormat, rounding: str, *, min_shift: int = 0) -> tuple[tuple[int, ...], int, bool]:
+def fit_section(b, a, fmt: QFormat, rounding: str, *, min_shift: int = 0,
+                min_k: int = 1) -> tuple[tuple[int, ...], int, bool]:
     """Quantise a section ``(b, a)`` with one shared shift, zeros at +-1 kept exactly.
 
     Returns ``(ints, shift, saturated)`` with ``ints = (B0, B1, B2, A1, A2)``; the
@@ -95,7 +96,7 @@ def fit_section(b, a, fmt: QFormat, rounding: str, *, min_shift: int = 0) -> tup
         ints = place_zeros(ints, minus, plus)
         if all(fmt.min_int <= v <= fmt.max_int for v in ints):
             return tuple(ints), s, False
-        if fmt.frac_bits - s <= 1:
+        if fmt.frac_bits - s <= max(1, min_k):  # min_k: the product shift, Fc - s - P >= 0
             return tuple(fit_word(v, fmt.width, "saturate") for v in ints), s, True
         s += 1
 
@@ -157,7 +158,7 @@ def _quantise(values, fmt: QFormat, s: int, rounding: str) -> tuple[list[int], b
 
 
 def fit_group(values, fmt: QFormat, rounding: str, *, min_shift: int, acc_limit: int | None = None,
-              data_width: int | None = None) -> tuple[tuple[int, ...], int, bool]:
+              data_width: int | None = None, min_k: int = 1) -> tuple[tuple[int, ...], int, bool]:
     """Quantise *values* with one shared shift; return ``(ints, shift, saturated)``.
 
     The shift starts at *min_shift* and rises until every value fits (and, with
@@ -174,7 +175,7 @@ def fit_group(values, fmt: QFormat, rounding: str, *, min_shift: int, acc_limit:
             fits = sum(abs(v) for v in ints) << (data_width - 1) < (1 << (acc_limit - 1))
         if fits:
             return tuple(ints), s, False
-        if fmt.frac_bits - s <= 1:
+        if fmt.frac_bits - s <= max(1, min_k):
             return tuple(fit_word(v, fmt.width, "saturate") for v in ints), s, True
         s += 1
 

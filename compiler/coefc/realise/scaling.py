@@ -33,6 +33,7 @@ from __future__ import annotations
 import numpy as np
 from scipy import signal
 
+from ..blocks import decay_samples
 from ..program import STRUCTURE_TABLE
 
 MAX_LEN = 1 << 18
@@ -40,7 +41,7 @@ MIN_LEN = 1 << 11
 
 
 def response_length(chain) -> int:
-    """Samples needed for the impulse response of *chain* to decay by 10^-12."""
+    """Samples needed for the impulse response of *chain* to decay below :data:`coefc.blocks.DECAY`."""
     n = MIN_LEN
     for kind, op in chain:
         if kind == "sos":
@@ -48,7 +49,7 @@ def response_length(chain) -> int:
             if r >= 1.0:
                 return MAX_LEN
             if r > 0.0:
-                n = max(n, int(np.ceil(np.log(1e-12) / np.log(r))) + 8)
+                n = max(n, decay_samples(r) + 8)
         else:
             n = max(n, 4 * len(op))
     n = 1 << int(np.ceil(np.log2(n)))

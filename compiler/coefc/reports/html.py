@@ -223,6 +223,30 @@ def section_rows(program) -> list[tuple[int, int, list]]:
     return out
 
 
+def correction_svgs(plt, design) -> list[dict]:
+    """For each correction stage: measured, correction, corrected and target over the stage's range."""
+    out = []
+    for st in design.stages:
+        c = (st.requirement or {}).get("curves")
+        if not c:
+            continue
+        f = np.asarray(c["freq_hz"])
+        meas, corr, tgt = (np.asarray(c[k]) for k in ("measured_db", "correction_db", "target_db"))
+        fig, ax = plt.subplots(figsize=(8.0, 4.0), constrained_layout=True)
+        ax.semilogx(f, meas, label="measured (smoothed)", lw=1.2)
+        ax.semilogx(f, corr + float(np.median(tgt)), label="correction (float, placed at the target level)",
+                    lw=1.0, ls=":")
+        ax.semilogx(f, meas + corr, label="corrected", lw=1.6)
+        ax.semilogx(f, tgt, label="target", lw=1.0, ls="--", color="black")
+        ax.set_xlabel("frequency (Hz)")
+        ax.set_ylabel("magnitude (dB)")
+        ax.set_xlim(f[0], f[-1])
+        ax.grid(True, which="both", alpha=0.3)
+        ax.legend(fontsize=8)
+        out.append({"title": f"Stage {st.index}: {st.kind} against its measurement", "svg": _svg(fig)})
+    return out
+
+
 def pole_zero_svg(plt, design, program) -> str | None:
     """The whole z-plane: IIR poles and zeros (float and realised) and FIR zeros."""
     fz, fp, rz, rp = poles_zeros(design, program)
@@ -297,7 +321,7 @@ def section_zoom_svg(plt, design, program) -> str | None:
 
 def sum_svg(plt, analysis, fs: float, title: str) -> str:
     """Magnitude and phase of a sum of channels: float design, bit-true, each channel, target band."""
-    from .analyse.sums import _db
+    from ..analyse.sums import _db
 
     a = analysis
     f = a.freqs_hz
@@ -386,6 +410,7 @@ def _channel_items(plt, report, realisation) -> list[dict]:
             "phase_svg": phase_svg(plt, design, program, ch.sample_rate_hz),
             "noise_svg": noise_svg(plt, m, ch.sample_rate_hz),
             "pole_zero_svg": pole_zero_svg(plt, design, program),
+            "correction_svgs": correction_svgs(plt, design),
             "zoom_svg": section_zoom_svg(plt, design, program),
         })
     return channels
@@ -403,7 +428,7 @@ def _sum_items(plt, report, realisation) -> list[dict]:
                                for c in sm.checks],
                     "svg": sum_svg(plt, sm.analysis, fs, f"sum '{sm.name}': " + " + ".join(sm.analysis.channels))})
     if not out and len(realisation.programs) > 1:
-        from .analyse.sums import analyse_sum
+        from ..analyse.sums import analyse_sum
         from ..spec import SumSpec
 
         names = tuple(p.name for p in realisation.programs)

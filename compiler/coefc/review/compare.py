@@ -289,7 +289,7 @@ def realised_db(program, freqs_hz) -> list[float]:
     import numpy as np
 
     from ..blocks import chain_response
-    from ..realise import as_float_blocks
+    from ..blocks import as_float_blocks
 
     h = np.abs(chain_response(as_float_blocks(program), np.asarray(freqs_hz, dtype=float), program.sample_rate_hz))
     with np.errstate(divide="ignore"):
