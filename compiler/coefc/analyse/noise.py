@@ -280,8 +280,6 @@ def analytic_noise(program: ChannelProgram, models: list[OpModel] | None = None,
                 white = (s2 - eu * eu) + eu * eu * (1.0 - 2.0 / math.pi)
                 h = node_imps[m.index]
                 if src:  # a coupled state: the value rounded is the state
-                    from .linear import _run
-
                     h = _run(*m.states[src - 1], node_imps[m.index - 1] if m.index else _unit(n))
                 hn = math.sqrt(float(np.dot(h, h)))
                 cg = -eu * math.sqrt(2.0 / math.pi) / hn if hn > 0 else 0.0
