@@ -610,6 +610,7 @@ def _section_within(s, lim: float) -> bool:
 
 def _sections(program) -> list[dict]:
     out = []
+    why = {n.section: str(n) for n in getattr(program, "notes", ()) if getattr(n, "kind", "") == "choice"}
     for op in program.ops:
         if isinstance(op, SectionOp):
             conv = float if program.arithmetic.is_float else int
@@ -617,6 +618,8 @@ def _sections(program) -> list[dict]:
                         "structure": op.structure})
             if op.a_lo:  # df1-wide-fb: the low feedback words (coefc.program)
                 out[-1]["a_lo"] = [int(c) for c in op.a_lo]
+            if len(out) in why:  # structure = "auto": why this section's structure was chosen
+                out[-1]["chosen"] = why[len(out)]
     return out
 
 

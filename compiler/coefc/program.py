@@ -158,7 +158,7 @@ from .qformat import QFormat
 
 
 #: what a realisation note is about
-NoteKind = Literal["unstable", "saturated", "precision", "pairing", "scaling"]
+NoteKind = Literal["unstable", "saturated", "precision", "pairing", "scaling", "choice"]
 
 
 class Note(str):
@@ -167,18 +167,21 @@ class Note(str):
     ``unstable`` (quantised poles on or outside the unit circle) and ``saturated``
     (a coefficient that does not fit its word) mean the program is not what the
     design meant (:attr:`departs_from_design`); ``precision``, ``pairing`` and
-    ``scaling`` explain choices and costs.
+    ``scaling`` explain choices and costs; ``choice`` says why ``structure = "auto"``
+    chose a section's structure (``section`` names the section, 1-based).
     """
 
     kind: NoteKind
+    section: int | None  # the 1-based section a note is about, where it is about one (choice notes)
 
-    def __new__(cls, kind: NoteKind, text: str) -> "Note":
+    def __new__(cls, kind: NoteKind, text: str, section: int | None = None) -> "Note":
         note = super().__new__(cls, text)
         note.kind = kind
+        note.section = section
         return note
 
     def __getnewargs__(self):
-        return (self.kind, str(self))
+        return (self.kind, str(self), self.section)
 
     @property
     def departs_from_design(self) -> bool:

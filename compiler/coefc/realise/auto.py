@@ -104,7 +104,7 @@ def realise_auto(design, arithmetic: Arithmetic, target_structures, budget, real
             best = (miss, text)
         if not (bad_stable or bad_dev or bad_noise):
             notes = tuple(prog.notes) + tuple(
-                Note("precision", f"section {i + 1}: structure {cands[lv]} chosen by auto ({why[i]})")
+                Note("choice", f"section {i + 1}: structure {cands[lv]} chosen by auto ({why[i]})", section=i + 1)
                 for i, lv in enumerate(level))
             return ChannelProgram(prog.name, prog.sample_rate_hz, arithmetic, prog.ops, notes)
         if bad_stable:
