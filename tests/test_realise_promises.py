@@ -15,7 +15,7 @@ from scipy import signal
 import coefc
 from coefc.blocks import ChannelDesign, SosBlock
 from coefc.budget import run_check
-from coefc.program import Arithmetic, FirOp, GainOp, SectionOp, STRUCTURES
+from coefc.program import STRUCTURE_TABLE, Arithmetic, FirOp, GainOp, SectionOp, STRUCTURES
 from coefc.qformat import QFormat
 from coefc.realise import realise_channel
 from coefc.simulate import simulate
@@ -218,7 +218,7 @@ stages = [ { kind = "peaking", freq_hz = FREQ, q = 2.0, gain_db = 6.0 } ]
 
 
 @pytest.mark.parametrize("freq", [40, 120, 1000])
-@pytest.mark.parametrize("structure", STRUCTURES)
+@pytest.mark.parametrize("structure", [s for s in STRUCTURES if not STRUCTURE_TABLE[s].state_space])
 def test_a_shortfall_is_a_failing_check_that_counts_the_missing_bits(tmp_path, freq, structure):
     # The issue case: a 40 Hz peaking EQ on mcu16 whose roundoff alone exceeds full scale
     # passed with a realisation note.  Now: the check holds exactly when the independent
