@@ -9,6 +9,7 @@
  *   cascade(x, ys, coefs, structure, acc_bits, rounding, overflow, data_width)
  *       consecutive second-order sections, fused sample by sample
  *   fir(x, y, taps, k, acc_bits, rounding, overflow, data_width)
+ *   fir_rate(x, y, taps, down, up, k, ...): polyphase decimating / interpolating FIR
  *   gain(x, y, C, k, acc_bits, rounding, overflow, data_width)
  *   sos_wide(x, y, B0..A2H, A1L, A2L, L, k, ...): one df1-wide-fb section
  *   sos_f32 / fir_f32 / gain_f32: float32 in the stated operation order
@@ -203,6 +204,57 @@ static PyObject *py_fir(PyObject *self, PyObject *args)
         } else {
             wide_t w = {0, 0};
             for (Py_ssize_t j = 0; j < m; j++) wadd(&w, t[j] * x[i - j]);
+            acc = wfinish(&w, &ar, &aovf);
+        }
+        y[i] = fit(rshift(acc, &ar), &ar, &ovf);
+    }
+    Py_END_ALLOW_THREADS
+    PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&tb);
+    return Py_BuildValue("LL", ovf, aovf);
+}
+
+/* polyphase FIR (coefc.program, "polyfir"): y[i] = fit(round(wrap(sum over k with L | (i*M - k),
+   i*M - k >= 0 of t[k] * x[(i*M - k) / L]))), for i < ny; exactly one of M, L above 1 (or both 1).
+   Only the kept outputs (M > 1) and the non-zero products (L > 1) are computed. */
+static PyObject *py_fir_rate(PyObject *self, PyObject *args)
+{
+    PyObject *xo, *yo, *to;
+    int k, acc_bits, rounding, overflow, width, down, up;
+    if (!PyArg_ParseTuple(args, "OOOiiiiiii", &xo, &yo, &to, &down, &up, &k, &acc_bits, &rounding, &overflow,
+                          &width))
+        return NULL;
+    if (down < 1 || up < 1 || (down > 1 && up > 1)) {
+        PyErr_SetString(PyExc_ValueError, "engine: fir_rate needs down >= 1, up >= 1, not both above 1");
+        return NULL;
+    }
+    arith_t ar;
+    if (arith_init(&ar, k, acc_bits, rounding, overflow, width) < 0) return NULL;
+    Py_buffer xb, yb, tb;
+    if (get_buf(xo, &xb, 0, 'i', "x") < 0) return NULL;
+    if (get_buf(yo, &yb, 1, 'i', "y") < 0) { PyBuffer_Release(&xb); return NULL; }
+    if (get_buf(to, &tb, 0, 'i', "taps") < 0) { PyBuffer_Release(&xb); PyBuffer_Release(&yb); return NULL; }
+    Py_ssize_t n = xb.len / 8, ny = yb.len / 8, nt = tb.len / 8;
+    if (ny != (n * up + down - 1) / down) {
+        PyErr_SetString(PyExc_ValueError, "engine: fir_rate output length must be ceil(n * up / down)");
+        PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&tb);
+        return NULL;
+    }
+    const int64_t *x = (const int64_t *)xb.buf, *t = (const int64_t *)tb.buf;
+    int64_t *y = (int64_t *)yb.buf;
+    long long ovf = 0, aovf = 0;
+    int fast = width <= 62 && sum_bound_ok(t, nt, width, 0);
+    Py_BEGIN_ALLOW_THREADS
+    for (Py_ssize_t i = 0; i < ny; i++) {
+        Py_ssize_t r = i * (Py_ssize_t)down;       /* index into the upsampled input u */
+        Py_ssize_t k0 = r % up;                    /* first tap meeting a non-zero u sample */
+        int64_t acc;
+        if (fast) {
+            int64_t s = 0;
+            for (Py_ssize_t kk = k0; kk < nt && kk <= r; kk += up) s += t[kk] * x[(r - kk) / up];
+            acc = afinish(s, &ar, &aovf);
+        } else {
+            wide_t w = {0, 0};
+            for (Py_ssize_t kk = k0; kk < nt && kk <= r; kk += up) wadd(&w, t[kk] * x[(r - kk) / up]);
             acc = wfinish(&w, &ar, &aovf);
         }
         y[i] = fit(rshift(acc, &ar), &ar, &ovf);
@@ -1034,6 +1086,9 @@ static PyMethodDef engine_methods[] = {
      "cascade(x, ys, coefs, structure, acc_bits, rounding, overflow, data_width) -> [(ovf, acc_ovf), ...]\n"
      "coefs: int64 buffer of B0, B1, B2, A1, A2, k per section; ys: one writable int64 buffer per section."},
     {"fir", py_fir, METH_VARARGS, "fir(x, y, taps, k, acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)"},
+    {"fir_rate", py_fir_rate, METH_VARARGS,
+     "fir_rate(x, y, taps, down, up, k, acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)\n"
+     "polyphase FIR: len(y) = ceil(len(x) * up / down); only the kept outputs are computed."},
     {"sos_wide", py_sos_wide, METH_VARARGS,
      "sos_wide(x, y, B0, B1, B2, A1H, A2H, A1L, A2L, L, k, acc_bits, rounding, overflow, data_width)\n"
      "-> (ovf, acc_ovf): one df1-wide-fb section (double-word feedback coefficients)."},

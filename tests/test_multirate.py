@@ -1,0 +1,155 @@
+"""Multirate: polyphase decimating and interpolating FIRs, rate ops (issue 14).
+
+The engine (compiled and Python paths) against the independent exact model of
+tests/exact_model.py, and the polyphase results against filter-then-downsample
+(decimation) and upsample-then-filter (interpolation) computed with numpy in exact
+integers, and scipy.signal.upfirdn on the float side.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+
+import exact_model
+from coefc import simulate as sim
+from coefc.program import ChannelProgram, FirOp, PolyFirOp, RateOp, decimation, output_length
+from coefc.qformat import QFormat, ROUNDING_MODES
+from coefc.program import Arithmetic
+from test_simulate import SETTINGS, _word, arithmetics, ops
+
+
+@st.composite
+def rate_ops(draw, ar):
+    fc = ar.coef.frac_bits
+    shift = draw(st.integers(max(fc - 62, -4), fc - 1))
+    factor = draw(st.integers(2, 5))
+    down = draw(st.booleans())
+    if draw(st.integers(0, 3)) == 0:
+        return RateOp(down=factor) if down else RateOp(up=factor)
+    taps = tuple(_word(draw, ar.coef) for _ in range(draw(st.integers(1, 13))))
+    return PolyFirOp(taps=taps, shift=shift, down=factor if down else 1, up=1 if down else factor)
+
+
+@st.composite
+def multirate_programs(draw, max_acc=64, wide=False):
+    ar = draw(arithmetics(max_acc, wide))
+    seq = []
+    for _ in range(draw(st.integers(1, 4))):
+        seq.append(draw(st.one_of(rate_ops(ar), ops(ar))))
+    prog = ChannelProgram("t", 48000, ar, tuple(seq))
+    x = [_word(draw, ar.data) for _ in range(draw(st.integers(0, 30)))]
+    return prog, x
+
+
+def _compare(prog, x, exact=False):
+    t = sim.simulate(prog, np.array(x, dtype=np.int64), trace=True, _exact=exact)
+    y, nodes, ovf, aovf = exact_model.run_program(prog, x)
+    assert t.y.tolist() == y
+    assert len(y) == output_length(prog.ops, len(x))
+    assert [n.tolist() for n in t.node_outputs] == nodes
+    assert t.overflow_counts == ovf
+    assert t.acc_overflow_counts == aovf
+
+
+@settings(**SETTINGS)
+@given(multirate_programs())
+def test_compiled_engine_equals_exact_model_with_rate_changes(case):
+    prog, x = case
+    assert sim._fast_ok(prog)
+    _compare(prog, x)
+
+
+@settings(**dict(SETTINGS, max_examples=150))
+@given(multirate_programs())
+def test_python_path_equals_exact_model_with_rate_changes(case):
+    _compare(*case, exact=True)
+
+
+@settings(**dict(SETTINGS, max_examples=40))
+@given(multirate_programs(max_acc=100, wide=True))
+def test_wide_words_equal_exact_model_with_rate_changes(case):
+    _compare(*case)
+
+
+def _round_shift_np(acc, k, mode):
+    """Rounding of an exact integer array by the four modes, written with numpy floor division."""
+    acc = np.asarray(acc, dtype=object)
+    if mode == "add-half":
+        return (acc + (1 << (k - 1))) // (1 << k)
+    if mode == "truncate":
+        return acc // (1 << k)
+    q, r = np.array([divmod(int(v), 1 << k) for v in acc], dtype=object).T if len(acc) else (acc, acc)
+    if mode == "toward-zero":
+        return np.array([int(qq) + (1 if (rr and v < 0) else 0) for qq, rr, v in zip(q, r, acc)], dtype=object)
+    half = 1 << (k - 1)  # half-even
+    return np.array([int(qq) + (1 if rr > half or (rr == half and qq % 2) else 0) for qq, rr in zip(q, r)],
+                    dtype=object)
+
+
+@pytest.mark.parametrize("rounding", ROUNDING_MODES)
+@pytest.mark.parametrize("M", [2, 3, 4, 7])
+def test_polyphase_decimation_equals_fir_then_downsample_exactly(rounding, M):
+    # Reference: numpy.convolve in exact Python integers (object dtype), the full-rate FIR, then
+    # every M-th sample kept -- the definition of decimation (Crochiere & Rabiner 1983, ch. 2;
+    # from memory).  Wide accumulator and data word, so nothing saturates: the identity is exact.
+    rng = np.random.default_rng(M)
+    ar = Arithmetic(data=QFormat(1, 23), coef=QFormat(2, 22), acc_bits=64, rounding=rounding)
+    taps = tuple(int(v) for v in rng.integers(-(1 << 20), 1 << 20, size=31))
+    x = rng.integers(-(1 << 23), 1 << 23, size=997)  # not a multiple of M: ceil(n/M) outputs
+    shift = 3
+    poly = sim.simulate(ChannelProgram("d", 96000, ar, (PolyFirOp(taps=taps, shift=shift, down=M),)), x)
+    full = np.convolve(np.array(x, dtype=object), np.array(taps, dtype=object))[: len(x)]
+    ref = _round_shift_np(full, ar.coef.frac_bits - shift, rounding)[::M]
+    ref = np.clip(ref.astype(np.int64), ar.data.min_int, ar.data.max_int)
+    assert poly.tolist() == ref.tolist()
+    # and the engine's own full-rate FIR, then keeping every M-th sample, is the same
+    fir = sim.simulate(ChannelProgram("d", 96000, ar, (FirOp(taps=taps, shift=shift),)), x)
+    assert poly.tolist() == fir[::M].tolist()
+
+
+@pytest.mark.parametrize("L", [2, 3, 5])
+def test_polyphase_interpolation_equals_upsample_then_fir_exactly(L):
+    # Reference: zero insertion then numpy.convolve in exact integers (the definition of
+    # interpolation, Crochiere & Rabiner 1983, ch. 2; from memory); float side: scipy.signal.upfirdn.
+    from scipy import signal
+
+    rng = np.random.default_rng(L)
+    ar = Arithmetic(data=QFormat(1, 23), coef=QFormat(2, 22), acc_bits=64, rounding="add-half")
+    taps = tuple(int(v) for v in rng.integers(-(1 << 20), 1 << 20, size=24))
+    x = rng.integers(-(1 << 23), 1 << 23, size=301)
+    y = sim.simulate(ChannelProgram("i", 48000, ar, (PolyFirOp(taps=taps, shift=0, up=L),)), x)
+    u = np.zeros(len(x) * L, dtype=object)
+    u[::L] = [int(v) for v in x]
+    full = np.convolve(u, np.array(taps, dtype=object))[: len(u)]
+    ref = np.clip(_round_shift_np(full, ar.coef.frac_bits, "add-half").astype(np.int64),
+                  ar.data.min_int, ar.data.max_int)
+    assert y.tolist() == ref.tolist()
+    # float side (scipy.signal.upfirdn, the reference library): the same up to the rounding of each output
+    f = signal.upfirdn(np.array(taps, float) / 2.0 ** 22, x.astype(float), up=L)[: len(x) * L]
+    assert np.max(np.abs(f - y)) <= 0.5 + 1e-9
+
+
+def test_float_polyphase_decimation_equals_scipy_upfirdn():
+    # scipy.signal.upfirdn(h, x, down=M) is filter-then-downsample (the reference library)
+    from scipy import signal
+
+    rng = np.random.default_rng(5)
+    taps = rng.normal(size=20) / 10
+    x = rng.normal(size=200).astype(np.float32) / 4
+    ar = Arithmetic(kind="float32", data=None, coef=None, acc_bits=0)
+    op = PolyFirOp(taps=tuple(float(np.float32(t)) for t in taps), down=3)
+    y = sim.simulate(ChannelProgram("f", 48000, ar, (op,)), x)
+    ref = signal.upfirdn(np.array(op.taps), x.astype(float), down=3)[: len(y)]
+    assert len(y) == 67
+    assert np.allclose(y, ref, rtol=0, atol=1e-5)
+
+
+def test_block_length_rule_and_output_length():
+    ops_ = (PolyFirOp(taps=(1,), down=2), RateOp(down=3))
+    assert decimation(ops_) == 6
+    assert output_length(ops_, 12) == 2
+    assert output_length(ops_, 13) == 3  # ceil(ceil(13/2)/3)
+    assert output_length((PolyFirOp(taps=(1,), up=4),), 5) == 20
