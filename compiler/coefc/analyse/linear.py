@@ -29,11 +29,12 @@ cascade or parallel form", IEEE Trans. Audio Electroacoust. AU-18(2), 1970.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
+from fractions import Fraction
 
 import numpy as np
 
-from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE, lo_bits
+from ..program import ChannelProgram, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp, STRUCTURE_TABLE, lo_bits
 
 #: impulse responses stop where the slowest pole has decayed below this factor
 DECAY = 1e-13
@@ -64,6 +65,11 @@ class OpModel:
     structure: str = ""
     extra_mean: float = 0.0  # a second error source at the rounding node, output LSB (df1-wide-fb)
     extra_var: float = 0.0
+    # multirate (coefc.program's polyfir and rate ops): b and a above are expanded to the rate of the
+    # equivalent single-rate model, b(z^expand) (noble identities); down/up of a rate-changing op
+    expand: int = 1
+    down: int = 1
+    up: int = 1
 
     @property
     def recursive(self) -> bool:
@@ -134,37 +140,77 @@ def _build_models(program: ChannelProgram) -> list[OpModel]:
         return 2.0 ** (ar.acc_bits - 1 + shift - fc - ar.data.frac_bits)
 
     one = np.array([1.0])
+    # A multirate channel is modelled by its equivalent single-rate model at the highest rate it
+    # reaches: an op running at `top / e` by its polynomials in z^e (the noble identities,
+    # Vaidyanathan 1993, sec. 4.2; from memory).  Exact for the signal path and the l1 bounds of
+    # every node (each kept sample is one sample of the expanded node); a rounding error made at
+    # the lower rate keeps its variance and mean through the expanded tail.
+    rate, top = Fraction(1), Fraction(1)
+    for op in program.ops:
+        if isinstance(op, (PolyFirOp, RateOp)):
+            rate *= Fraction(op.up, op.down)
+            top = max(top, rate)
+    rate = Fraction(1)
     for i, op in enumerate(program.ops):
-        if isinstance(op, SectionOp):
-            b = np.array([phys(c, op.shift) for c in op.b])
-            a = np.array([1.0] + list(op.a_phys(None if ar.is_float else ar.coef)))
-            structure = op.structure or ar.structure
-            wide = not ar.is_float and STRUCTURE_TABLE[structure].wide_feedback and any(op.a_lo)
-            # floor(P / 2^L) of df1-wide-fb is any integer: every bit of the rounding shift is dropped
-            k = 0 if ar.is_float else effective_drop(tuple(op.b) + tuple(op.a) + ((1,) if wide else ()),
-                                                     fc - op.shift)
-            nb = np.array([1.0, -1.0]) if STRUCTURE_TABLE[structure].error_feedback else one
-            em = ev = 0.0
-            if wide:
-                L, kk = lo_bits(ar.coef), fc - op.shift
-                em = 0.5 * (1.0 - 2.0 ** -L) * 2.0 ** -kk
-                ev = (1.0 - 2.0 ** (-2 * L)) / 12.0 * 2.0 ** (-2 * kk)
-            out.append(OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift), structure, em, ev))
-        elif isinstance(op, FirOp):
-            b = np.array([phys(c, op.shift) for c in op.taps])
-            k = 0 if ar.is_float else effective_drop(op.taps, fc - op.shift)
-            out.append(OpModel(i, "fir", b, one, one, one, k, fs_data, acc_fs(op.shift)))
-        elif isinstance(op, GainOp):
-            b = np.array([phys(op.coef, op.shift)])
-            k = 0 if ar.is_float else effective_drop((op.coef,), fc - op.shift)
-            out.append(OpModel(i, "gain", b, one, one, one, k, fs_data, acc_fs(op.shift)))
-        elif isinstance(op, DelayOp):
-            b = np.zeros(op.samples + 1)
-            b[-1] = 1.0
-            out.append(OpModel(i, "delay", b, one, one, one, 0, fs_data, None))
-        else:  # pragma: no cover - program.Op is closed
-            raise TypeError(f"unknown operation {op!r}")
+        if isinstance(op, (PolyFirOp, RateOp)):
+            taps_rate = rate if op.down > 1 else rate * op.up  # the prototype's rate: the higher one
+            e = int(top / taps_rate)
+            if isinstance(op, PolyFirOp):
+                b = np.array([phys(c, op.shift) for c in op.taps])
+                k = 0 if ar.is_float else effective_drop(op.taps, fc - op.shift)
+                m = _expanded(OpModel(i, "polyfir", b, one, one, one, k, fs_data, acc_fs(op.shift),
+                                      down=op.down, up=op.up), e)
+            else:
+                m = OpModel(i, "rate", one, one, one, one, 0, fs_data, None, down=op.down, up=op.up)
+            out.append(m)
+            rate *= Fraction(op.up, op.down)
+            continue
+        out.append(_expanded(_single_rate_model(op, i, ar, phys, acc_fs, fs_data, fc, one), int(top / rate)))
     return out
+
+
+def _expanded(m: OpModel, e: int) -> OpModel:
+    """*m* with its polynomials in ``z^e`` (an op at ``1/e`` of the model's rate)."""
+    if e == 1:
+        return m
+
+    def ex(p):
+        q = np.zeros((len(p) - 1) * e + 1)
+        q[::e] = p
+        return q
+
+    return replace(m, b=ex(m.b), a=ex(m.a), noise_b=ex(m.noise_b), noise_a=ex(m.noise_a), expand=e)
+
+
+def _single_rate_model(op, i, ar, phys, acc_fs, fs_data, fc, one) -> OpModel:
+    if isinstance(op, SectionOp):
+        b = np.array([phys(c, op.shift) for c in op.b])
+        a = np.array([1.0] + list(op.a_phys(None if ar.is_float else ar.coef)))
+        structure = op.structure or ar.structure
+        wide = not ar.is_float and STRUCTURE_TABLE[structure].wide_feedback and any(op.a_lo)
+        # floor(P / 2^L) of df1-wide-fb is any integer: every bit of the rounding shift is dropped
+        k = 0 if ar.is_float else effective_drop(tuple(op.b) + tuple(op.a) + ((1,) if wide else ()),
+                                                 fc - op.shift)
+        nb = np.array([1.0, -1.0]) if STRUCTURE_TABLE[structure].error_feedback else one
+        em = ev = 0.0
+        if wide:
+            L, kk = lo_bits(ar.coef), fc - op.shift
+            em = 0.5 * (1.0 - 2.0 ** -L) * 2.0 ** -kk
+            ev = (1.0 - 2.0 ** (-2 * L)) / 12.0 * 2.0 ** (-2 * kk)
+        return OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift), structure, em, ev)
+    if isinstance(op, FirOp):
+        b = np.array([phys(c, op.shift) for c in op.taps])
+        k = 0 if ar.is_float else effective_drop(op.taps, fc - op.shift)
+        return OpModel(i, "fir", b, one, one, one, k, fs_data, acc_fs(op.shift))
+    if isinstance(op, GainOp):
+        b = np.array([phys(op.coef, op.shift)])
+        k = 0 if ar.is_float else effective_drop((op.coef,), fc - op.shift)
+        return OpModel(i, "gain", b, one, one, one, k, fs_data, acc_fs(op.shift))
+    if isinstance(op, DelayOp):
+        b = np.zeros(op.samples + 1)
+        b[-1] = 1.0
+        return OpModel(i, "delay", b, one, one, one, 0, fs_data, None)
+    raise TypeError(f"unknown operation {op!r}")  # pragma: no cover - program.Op is closed
 
 
 def pole_radius(models: list[OpModel]) -> float:
@@ -264,8 +310,19 @@ def noise_impulse(models: list[OpModel], j: int, n: int) -> np.ndarray:
 
 
 def chain_filter(models: list[OpModel], x: np.ndarray) -> np.ndarray:
-    """Float64 output of the realised coefficients for input *x* (no rounding)."""
+    """Float64 output of the realised coefficients for input *x* (no rounding).
+
+    A multirate channel runs its equivalent single-rate model: the input
+    upsampled (zeros between) by every interpolation factor, the expanded ops,
+    then every decimation factor's samples kept -- the channel's output samples.
+    """
     y = np.asarray(x, dtype=np.float64)
+    up = int(np.prod([m.up for m in models])) if models else 1
+    down = int(np.prod([m.down for m in models])) if models else 1
+    if up > 1:
+        u = np.zeros(len(y) * up)
+        u[::up] = y
+        y = u
     for m in models:
         y = _run(m.b, m.a, y)
-    return y
+    return y[::down] if down > 1 else y
