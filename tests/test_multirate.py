@@ -153,3 +153,80 @@ def test_block_length_rule_and_output_length():
     assert output_length(ops_, 12) == 2
     assert output_length(ops_, 13) == 3  # ceil(ceil(13/2)/3)
     assert output_length((PolyFirOp(taps=(1,), up=4),), 5) == 20
+
+
+# ---------------------------------------------------------------- generated code (coefc build --kernel)
+
+def _multirate_programs(arith, seed=3):
+    """Decimating channels: a polyphase FIR (plain and symmetric), sections and a gain after it at the
+    lower rate, two decimations in a row, and a bare keep-every-M-th (allow_aliasing)."""
+    from c_build import _coef, _section
+
+    rng = np.random.default_rng(seed)
+    fixed = not arith.is_float
+    sh = 1 if fixed else 0
+    taps = tuple(_coef(arith, t, sh) for t in rng.uniform(-0.4, 0.4, 23))
+    half = [_coef(arith, t, sh) for t in rng.uniform(-0.3, 0.3, 10)]
+    sym = tuple(half + half[::-1])
+    structure = "df1" if not fixed else "tdf2"
+    return [
+        ChannelProgram("dec3", 96000.0, arith, (PolyFirOp(taps, sh, down=3),)),
+        ChannelProgram("dec2_sym", 96000.0, arith, (PolyFirOp(sym, sh, down=2, symmetric=True),
+                                                    _section(rng, arith, structure, 0),
+                                                    GainOp(_coef(arith, 1.5, sh), sh))),
+        ChannelProgram("dec2x2", 96000.0, arith, (PolyFirOp(taps[:9], sh, down=2), PolyFirOp(sym, sh, down=2))),
+        ChannelProgram("keep4", 96000.0, arith, (RateOp(down=4), GainOp(_coef(arith, 0.75, sh), sh))),
+    ]
+
+
+from coefc.program import GainOp  # noqa: E402
+
+
+@pytest.mark.parametrize("target_name", ["mcu16", "mcu32", "dsp24", "float32"])
+def test_generated_code_decimates_bit_exact_at_both_rates(target_name, tmp_path):
+    # golden vectors: input at the input rate, outputs at the output rate (n / M), computed by the
+    # engine (itself proven against tests/exact_model.py above); blocks of 1..64 times M, some in place
+    from c_build import compilers, generated_files, run_generated, ubsan_works
+    from coefc.targetspec import find_target
+    from test_codegen import _native
+
+    target = find_target(target_name)
+    progs = _multirate_programs(target.arithmetic)
+    files = generated_files(progs, target_name, "mrate", vectors=240)
+    c = files["mrate.c"]
+    assert "polyphase FIR decimating by 3" in c and "n = o;" in c
+    assert "MRATE_DEC3_DECIMATION 3" in files["mrate.h"]
+    for cc in compilers():
+        flags = ("-O1", "-fsanitize=undefined", "-fno-sanitize-recover=all") if ubsan_works(cc) else ("-O2",)
+        rc, out = run_generated(tmp_path / cc, [("mrate", files)], _native(cc, *flags))
+        assert rc == 0, out
+        assert "MISMATCH" not in out and "runtime error" not in out, out
+
+
+def test_generated_code_catches_a_wrong_decimated_golden_value(tmp_path):
+    from c_build import compilers, generated_files, run_generated
+    from coefc.targetspec import find_target
+    from test_codegen import _native
+
+    progs = _multirate_programs(find_target("mcu32").arithmetic)[:1]
+    files = generated_files(progs, "mcu32", "mbad", vectors=240)
+    # change the last golden output value of the channel (80 = 240 / 3 outputs)
+    c = files["mbad.c"]
+    start = c.index("mbad_dec3_golden_out[80] = {")
+    end = c.index("};", start)
+    body = c[start:end].rstrip().rstrip(",")
+    last = body.split(",")[-1].strip()
+    c = c[:start] + body[: len(body) - len(last)] + str(int(last) + 1) + ",\n" + c[end:]
+    rc, out = run_generated(tmp_path, [("mbad", dict(files, **{"mbad.c": c}))], _native(compilers()[0], "-O2"))
+    assert "compile failed" not in out
+    assert rc != 0 and ": ok" not in out, out
+
+
+def test_golden_length_not_a_multiple_of_the_decimation_is_one_line():
+    from c_build import generated_files
+    from coefc.emit.codegen import GeneratedCodeError
+    from coefc.targetspec import find_target
+
+    progs = _multirate_programs(find_target("mcu32").arithmetic)[:1]
+    with pytest.raises(GeneratedCodeError, match="not a multiple of it"):
+        generated_files(progs, "mcu32", "modd", vectors=100)

@@ -51,7 +51,7 @@ from typing import Mapping, NamedTuple
 from .checks import (BUDGET_CHECKS, BY_NAME, DEFAULT_TONE_GAIN_ERROR_DB, HAZARD_DEFAULTS,  # noqa: F401
                      SAFETY_CAUTION, LimitError, kind_of)
 from .errors import DescriptionError
-from .program import SectionOp
+from .program import SectionOp, decimation
 from .reports.text import format_limit
 from .spec import Budget
 
@@ -93,6 +93,8 @@ class ChannelReport:
     reasons: dict[str, str]
     analysis: object = field(default=None, repr=False)  # coefc.analyse.Metrics
     budget: Budget | None = None  # this channel's budget as applied ([channel.budget], overrides, defaults)
+    output_rate_hz: float | None = None  # the rate of the output samples (multirate channels); None: the input rate
+    block_multiple: int = 1  # a block's input length must be a multiple of this (the decimation factor)
 
     @property
     def ok(self) -> bool:
@@ -102,6 +104,8 @@ class ChannelReport:
         return {
             "name": self.name,
             "sample_rate_hz": self.sample_rate_hz,
+            "output_rate_hz": self.output_rate_hz if self.output_rate_hz is not None else self.sample_rate_hz,
+            "block_multiple": self.block_multiple,
             "arithmetic": self.arithmetic,
             "sections": self.sections,
             "metrics": self.metrics,
@@ -596,7 +600,7 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
 
             md["tones"] = _clean(tones.as_dict())
         reports.append(ChannelReport(prog.name, prog.sample_rate_hz, prog.arithmetic.as_dict(), _sections(prog),
-                                     md, checks, why, m, cb))
+                                     md, checks, why, m, cb, prog.output_rate_hz, decimation(prog.ops)))
         if cb.overflow == "allow" and "overflow" not in tolerated:
             tolerated.append("overflow")
         if cb.limit_cycles is not None and cb.limit_cycles != "none":
