@@ -210,13 +210,12 @@ def test_generated_code_catches_a_wrong_decimated_golden_value(tmp_path):
 
     progs = _multirate_programs(find_target("mcu32").arithmetic)[:1]
     files = generated_files(progs, "mcu32", "mbad", vectors=240)
-    # change the last golden output value of the channel (80 = 240 / 3 outputs)
+    # change the first golden output value of the channel (80 = 240 / 3 outputs) by one LSB
     c = files["mbad.c"]
-    start = c.index("mbad_dec3_golden_out[80] = {")
-    end = c.index("};", start)
-    body = c[start:end].rstrip().rstrip(",")
-    last = body.split(",")[-1].strip()
-    c = c[:start] + body[: len(body) - len(last)] + str(int(last) + 1) + ",\n" + c[end:]
+    start = c.index("mbad_dec3_golden_out[80] = {\n    ") + len("mbad_dec3_golden_out[80] = {\n    ")
+    end = c.index(",", start)
+    v = int(c[start:end])
+    c = c[:start] + str(v + 1 if v < 0 else v - 1) + c[end:]
     rc, out = run_generated(tmp_path, [("mbad", dict(files, **{"mbad.c": c}))], _native(compilers()[0], "-O2"))
     assert "compile failed" not in out
     assert rc != 0 and ": ok" not in out, out
