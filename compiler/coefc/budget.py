@@ -282,6 +282,22 @@ def channel_checks(metrics, budget: Budget, tones=None) -> tuple[list[Check], di
                 + ("" if ok else f", short of {format_limit(lim)} dB; widen the coefficient word or name the "
                    "stopband bands"))
 
+    if budget.alias_attenuation_db is not None:
+        a, lim = getattr(metrics, "alias", None), budget.alias_attenuation_db
+        if a is None:
+            checks.append(Check("alias_attenuation_db", None, lim, True))
+            why["alias_attenuation_db"] = "not applicable: the channel does not change its rate"
+        else:
+            ok = kind_of("alias_attenuation_db").holds(a.attenuation_db, lim)
+            checks.append(Check("alias_attenuation_db", a.attenuation_db, lim, ok))
+            why["alias_attenuation_db"] = (
+                f"what folds into the output passband ({a.passband_rule}; multiples of {a.low_rate_hz:g} Hz) is "
+                f"{kind_of('alias_attenuation_db').value_text(a.attenuation_db, lim, ok)} dB down at least, "
+                f"worst at {a.worst_hz:.6g} Hz, landing on {a.folds_to_hz:.6g} Hz "
+                f"(float design {_fmt(a.float_attenuation_db)} dB)"
+                + ("" if ok else f", short of {format_limit(lim)} dB; a longer anti-alias (or image) filter, a "
+                   "lower passband edge, or a wider coefficient word"))
+
     if budget.output_noise_dbfs is not None and unstable:
         checks.append(Check("output_noise_dbfs", None, budget.output_noise_dbfs, False))
         why["output_noise_dbfs"] = no_figure

@@ -61,6 +61,7 @@ class Budget:
 
     passband_deviation_db: float | None = None
     stopband_attenuation_db: float | None = None
+    alias_attenuation_db: float | None = None  # multirate: what folds into the output passband
     output_noise_dbfs: float | None = None
     limit_cycles: str | float | None = None  # "none" or a maximum amplitude in LSB
     overflow: str | None = None  # "none" or "allow"

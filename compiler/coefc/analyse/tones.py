@@ -75,7 +75,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..blocks import ChannelDesign, SosBlock, block_response
-from ..program import ChannelProgram, DelayOp, FirOp, SectionOp, rate_ratio
+from ..program import ChannelProgram, DelayOp, FirOp, PolyFirOp, SectionOp, decimation, rate_ratio
 
 DEFAULT_LEVELS_DBFS = (-20.0, -60.0)
 RANGE_DB = 60.0
@@ -196,7 +196,7 @@ def slowest_pole_radius(program: ChannelProgram) -> float:
 def settle_length(program: ChannelProgram) -> tuple[int, bool, float, float]:
     """``(samples, capped, r_max, r_max ** samples)``: how long the tones run before the window."""
     r = slowest_pole_radius(program)
-    fixed = sum(len(op.taps) for op in program.ops if isinstance(op, FirOp))
+    fixed = sum(len(op.taps) for op in program.ops if isinstance(op, (FirOp, PolyFirOp)))
     fixed += sum(op.samples for op in program.ops if isinstance(op, DelayOp))
     if r <= 0.0:
         n = 0
@@ -205,6 +205,7 @@ def settle_length(program: ChannelProgram) -> tuple[int, bool, float, float]:
     else:
         n = math.ceil(math.log(SETTLE_DECAY) / math.log(r))
     n += fixed + 64  # a margin for coinciding poles (n r^n decays slower than r^n)
+    n *= decimation(program.ops)  # counted in input samples: an op after a decimation by M settles M times slower
     capped = n > MAX_SETTLE
     n = min(n, MAX_SETTLE)
     return n, capped, r, (r ** n if r < 1.0 else 1.0)
