@@ -87,11 +87,12 @@ def render_text(report) -> str:
         else:
             arith = f"{a['structure']} data {a['data']} coef {a['coef']} acc {a['acc_bits']} {a['rounding']} {a['overflow']}"
         rate = f"{ch.sample_rate_hz:g} Hz"
-        if ch.output_rate_hz is not None and ch.output_rate_hz != ch.sample_rate_hz:
-            rate += f" -> {ch.output_rate_hz:g} Hz"
+        out_rate = getattr(ch, "output_rate_hz", None)
+        if out_rate is not None and out_rate != ch.sample_rate_hz:
+            rate += f" -> {out_rate:g} Hz"
         lines.append(f"channel {ch.name}  [{'PASS' if ch.ok else 'FAIL'}]  {rate}, "
                      f"{report.target}: {arith}")
-        if ch.block_multiple > 1:
+        if getattr(ch, "block_multiple", 1) > 1:
             lines.append(f"  blocks: the input length of every call must be a multiple of {ch.block_multiple} "
                          "(the decimation factor), so each block starts at the same polyphase phase")
         w = max([len(c.name) for c in ch.checks] + [10])
