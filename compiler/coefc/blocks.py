@@ -60,8 +60,9 @@ class RateBlock:
     changes are those of its equivalent single-rate model (the noble identities,
     Vaidyanathan 1993, sec. 4.2; from memory): each block is evaluated at the
     physical frequency at its own rate, i.e. ``H(z^M)`` at the input rate after a
-    decimation by ``M``; the rate change itself has gain 1 (an interpolating FIR
-    carries the gain ``L`` that zero insertion takes away).
+    decimation by ``M``; a decimation has gain 1, an interpolation ``1/L`` (zero
+    insertion spreads the signal over ``L`` images; the FIR after it carries the gain
+    ``L`` back).
     """
 
     down: int = 1
@@ -89,8 +90,8 @@ def block_response(block: Block, freqs_hz: np.ndarray, fs: float) -> np.ndarray:
         return np.full(f.shape, complex(block.gain))
     if isinstance(block, DelayBlock):
         return np.exp(-2j * np.pi * f / fs * block.samples)
-    if isinstance(block, RateBlock):
-        return np.ones(f.shape, dtype=complex)
+    if isinstance(block, RateBlock):  # zero insertion keeps 1/L of the amplitude at each frequency
+        return np.full(f.shape, complex(1.0 / block.up))
     raise TypeError(f"not a block: {block!r}")
 
 
@@ -103,10 +104,9 @@ def chain_response(blocks, freqs_hz, fs: float) -> np.ndarray:
     f = np.atleast_1d(np.asarray(freqs_hz, dtype=np.float64))
     h = np.ones(f.shape, dtype=complex)
     for b in blocks:
+        h = h * block_response(b, f, fs)
         if isinstance(b, RateBlock):
             fs = fs * b.up / b.down
-            continue
-        h = h * block_response(b, f, fs)
     return h
 
 
