@@ -117,7 +117,7 @@ class CNames:
                         "golden_out": "_golden_out", "check": "_check"}
     GLOBAL_MACROS = ("COEFC_H", "DATA_BITS", "DATA_FRAC_BITS", "COEF_BITS", "COEF_FRAC_BITS", "ACC_BITS",
                      "SAMPLE_RATE_HZ", "OVER_BUDGET", "N_CHANNELS", "GOLDEN_LEN", "GENERATED_CODE")
-    CHANNEL_MACROS = ("MULS_PER_SAMPLE", "ADDS_PER_SAMPLE", "COEF_BYTES", "STATE_BYTES", "SECTIONS")
+    CHANNEL_MACROS = ("MULS_PER_SAMPLE", "ADDS_PER_SAMPLE", "COEF_BYTES", "STATE_BYTES", "SECTIONS", "DECIMATION")
 
     def description(self) -> dict[str, str]:
         """The description's identifiers by field (``data_t``, ``selftest``, ``golden_in``)."""
