@@ -248,7 +248,13 @@ static PyObject *py_fir_rate(PyObject *self, PyObject *args)
         Py_ssize_t r = i * (Py_ssize_t)down;       /* index into the upsampled input u */
         Py_ssize_t k0 = r % up;                    /* first tap meeting a non-zero u sample */
         int64_t acc;
-        if (fast) {
+        if (fast && up == 1) { /* decimation: the plain FIR sum at the kept sample */
+            int64_t s = 0;
+            const int64_t *xp = x + r;
+            Py_ssize_t m = r + 1 < nt ? r + 1 : nt;
+            for (Py_ssize_t j = 0; j < m; j++) s += t[j] * xp[-j];
+            acc = afinish(s, &ar, &aovf);
+        } else if (fast) {
             int64_t s = 0;
             for (Py_ssize_t kk = k0; kk < nt && kk <= r; kk += up) s += t[kk] * x[(r - kk) / up];
             acc = afinish(s, &ar, &aovf);
