@@ -240,10 +240,18 @@ def float_reference(blocks, x):
     """Float64 run of float blocks through scipy.signal.sosfilt / lfilter (the reference library)."""
     from scipy import signal
 
-    from coefc.blocks import DelayBlock, FirBlock, GainBlock, SosBlock
+    from coefc.blocks import DelayBlock, FirBlock, GainBlock, RateBlock, SosBlock
 
     y = np.asarray(x, dtype=float)
     for b in blocks:
+        if isinstance(b, RateBlock):  # keep every M-th sample (the first included), or insert L - 1 zeros
+            if b.down > 1:
+                y = y[::b.down]
+            else:
+                u = np.zeros(len(y) * b.up)
+                u[::b.up] = y
+                y = u
+            continue
         if isinstance(b, SosBlock):
             y = signal.sosfilt(b.sos, y)
         elif isinstance(b, FirBlock):
