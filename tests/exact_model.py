@@ -182,10 +182,38 @@ class Model:
     def delay(x, d):
         return ([0] * d + list(x))[: len(x)], 0, 0
 
+    def polyfir(self, x, taps, shift, down, up):
+        """The polyphase FIR of coefc.program's docstring, written as stated there: the input
+        upsampled by *up* (zeros between), every product of the taps summed, the sum taken at
+        output index i from u[i*down - k]; no branch decomposition (that is the engine's business)."""
+        k = self.Fc - shift
+        u = []
+        for v in x:
+            u += [v] + [0] * (up - 1)
+        n_out = -(-len(x) * up // down)
+        ys, no, na = [], 0, 0
+        for i in range(n_out):
+            total = sum(t * u[i * down - j] for j, t in enumerate(taps) if i * down - j >= 0)
+            acc, w = self._acc(total)
+            yn, _, bad = self._out(acc, k)
+            ys.append(yn)
+            no += bad
+            na += w
+        return ys, no, na
+
+    @staticmethod
+    def rate(x, down, up):
+        if down > 1:
+            return [v for i, v in enumerate(x) if i % down == 0], 0, 0
+        out = []
+        for v in x:
+            out += [v] + [0] * (up - 1)
+        return out, 0, 0
+
 
 def run_program(program, x):
     """Run a ChannelProgram through the model: (y, per-op outputs, ovf, acc ovf)."""
-    from coefc.program import DelayOp, FirOp, GainOp, SectionOp
+    from coefc.program import DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp
 
     ar = program.arithmetic
     m = Model(ar.data.width, ar.coef.frac_bits, ar.acc_bits, ar.rounding, ar.overflow,
@@ -202,6 +230,10 @@ def run_program(program, x):
             r = m.gain(cur, int(op.coef), op.shift)
         elif isinstance(op, DelayOp):
             r = m.delay(cur, op.samples)
+        elif isinstance(op, PolyFirOp):
+            r = m.polyfir(cur, [int(v) for v in op.taps], op.shift, op.down, op.up)
+        elif isinstance(op, RateOp):
+            r = m.rate(cur, op.down, op.up)
         cur = r[0]
         nodes.append(cur)
         ovf.append(r[1])
@@ -249,10 +281,18 @@ def float_reference(blocks, x):
     """Float64 run of float blocks through scipy.signal.sosfilt / lfilter (the reference library)."""
     from scipy import signal
 
-    from coefc.blocks import DelayBlock, FirBlock, GainBlock, SosBlock
+    from coefc.blocks import DelayBlock, FirBlock, GainBlock, RateBlock, SosBlock
 
     y = np.asarray(x, dtype=float)
     for b in blocks:
+        if isinstance(b, RateBlock):  # keep every M-th sample (the first included), or insert L - 1 zeros
+            if b.down > 1:
+                y = y[::b.down]
+            else:
+                u = np.zeros(len(y) * b.up)
+                u[::b.up] = y
+                y = u
+            continue
         if isinstance(b, SosBlock):
             y = signal.sosfilt(b.sos, y)
         elif isinstance(b, FirBlock):

@@ -76,7 +76,11 @@ def test_every_example_can_be_written_for_every_target(target_name):
     """The realiser keeps every rounding shift k = Fc - s >= 1 (coefc.program), so
     each example realised on each built-in target has a C form."""
     _, refused = _example_headers(target_name)
-    assert not refused, refused
+    # the reference kernels do not run multirate ops (issue 14): a decimating example is refused in
+    # one line pointing to generated code, and nothing else is refused
+    multirate = [r for r in refused if "multirate" in r[2]]
+    assert all("\n" not in e and "--kernel" in e for _, _, e in multirate)
+    assert not [r for r in refused if r not in multirate], refused
 
 
 def test_hand_headers_exercise_the_folded_fir(target_headers):

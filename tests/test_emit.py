@@ -336,11 +336,24 @@ def test_float32_symmetric_fir_is_not_folded():
 
 def test_the_long_example_firs_are_folded():
     """The linear-phase decimation FIRs of filters/ (279 and 46 taps) store 140 and
-    23 coefficients on a fixed-point target."""
+    23 coefficients on a fixed-point target: folded in the generated polyphase code
+    (the examples decimate, issue 14; the operation-table header refuses them in one
+    line), and in the operation-table header when the same FIR runs at one rate."""
+    from dataclasses import replace
+
     from coefc.api import load
+    from coefc.program import FirOp, PolyFirOp
 
     for path, n in (("decimator_88k2.toml", 279), ("decimator_192k.toml", 46)):
         real = load(HERE.parent / "filters" / path).design().realise(find_target("mcu32"))
+        c = render(real, None, header_name="d.h", vectors=0, generated=True)["d.c"]
+        assert f"polyphase FIR decimating by 2, {n} taps, symmetric: {(n + 1) // 2} stored, folded" in c, path
+        with pytest.raises(EmitError, match="--kernel"):
+            render(real, None, header_name="d.h", vectors=0)
+        prog = real.programs[0]
+        one_rate = tuple(FirOp(op.taps, op.shift, op.symmetric) if isinstance(op, PolyFirOp) else op
+                         for op in prog.ops)
+        real = replace(real, programs=(replace(prog, ops=one_rate),))
         text = render(real, None, header_name="d.h", vectors=0)["d.h"]
         assert re.search(rf"\{{COEFC_MCU32_OP_FIR_SYM, \d+u, {n}u, 0u, 0u\}}, /\* FIR, {n} taps, symmetric: "
                          rf"{(n + 1) // 2} stored", text), path

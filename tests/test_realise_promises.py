@@ -5,6 +5,8 @@ scale (checked on the realised integers with an independent bound and the bit-tr
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import math
 from pathlib import Path
 
@@ -117,10 +119,33 @@ def test_the_numerator_gain_lost_in_rounding_is_restored_by_the_final_gain(words
 
 def _physical(prog):
     """(b, a, noise numerator, rounds?) per op from the integers (program.py recurrences)."""
+    from coefc.program import PolyFirOp, RateOp
+
     ar = prog.arithmetic
     fc = ar.coef.frac_bits
     out = []
+    e = 1  # a decimating channel: ops after a decimation by M run in z^M at the input rate (noble identities)
+
+    def ex(p):
+        q = np.zeros((len(p) - 1) * e + 1)
+        q[::e] = p
+        return q
+
     for op in prog.ops:
+        if isinstance(op, (PolyFirOp, RateOp)):
+            assert op.up == 1, "this model covers decimation only"
+            if isinstance(op, PolyFirOp):
+                out.append((ex(np.array(op.taps) * 2.0 ** (op.shift - fc)), np.array([1.0]), [1.0]))
+            else:
+                out.append((np.array([1.0]), np.array([1.0]), None))
+            e *= op.down
+            continue
+        if e > 1:
+            start = len(out)
+            out.extend(_physical(replace(prog, ops=(op,))))
+            b, a, nb = out[start]
+            out[start] = (ex(b), ex(a), None if nb is None else ex(np.array(nb)))
+            continue
         if isinstance(op, SectionOp):
             sc = 2.0 ** (op.shift - fc)
             a = np.array([1.0, op.a[0] * sc, op.a[1] * sc])

@@ -23,6 +23,7 @@ from test_budget import fake_metrics
 GOOD_BAD = {
     "passband_deviation_db": (0.05, -1.0),
     "stopband_attenuation_db": (80.0, 0.0),
+    "alias_attenuation_db": (96.0, -3.0),
     "output_noise_dbfs": (-120.0, 3.0),
     "output_offset_lsb": (0.5, -0.5),
     "limit_cycles": ("none", "few"),

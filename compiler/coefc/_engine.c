@@ -11,6 +11,7 @@
  *   coupled(x, y, coefs, acc_bits, rounding, overflow, data_width)
  *       one coupled-form section (engine code 3; exact wide sums)
  *   fir(x, y, taps, k, acc_bits, rounding, overflow, data_width)
+ *   fir_rate(x, y, taps, down, up, k, ...): polyphase decimating / interpolating FIR
  *   gain(x, y, C, k, acc_bits, rounding, overflow, data_width)
  *   sos_wide(x, y, B0..A2H, A1L, A2L, L, k, ..., ef): one df1-wide-fb section
  *       (ef = 1: df1ef-wide-fb, the same with first-order error feedback)
@@ -206,6 +207,63 @@ static PyObject *py_fir(PyObject *self, PyObject *args)
         } else {
             wide_t w = {0, 0};
             for (Py_ssize_t j = 0; j < m; j++) wadd(&w, t[j] * x[i - j]);
+            acc = wfinish(&w, &ar, &aovf);
+        }
+        y[i] = fit(rshift(acc, &ar), &ar, &ovf);
+    }
+    Py_END_ALLOW_THREADS
+    PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&tb);
+    return Py_BuildValue("LL", ovf, aovf);
+}
+
+/* polyphase FIR (coefc.program, "polyfir"): y[i] = fit(round(wrap(sum over k with L | (i*M - k),
+   i*M - k >= 0 of t[k] * x[(i*M - k) / L]))), for i < ny; exactly one of M, L above 1 (or both 1).
+   Only the kept outputs (M > 1) and the non-zero products (L > 1) are computed. */
+static PyObject *py_fir_rate(PyObject *self, PyObject *args)
+{
+    PyObject *xo, *yo, *to;
+    int k, acc_bits, rounding, overflow, width, down, up;
+    if (!PyArg_ParseTuple(args, "OOOiiiiiii", &xo, &yo, &to, &down, &up, &k, &acc_bits, &rounding, &overflow,
+                          &width))
+        return NULL;
+    if (down < 1 || up < 1 || (down > 1 && up > 1)) {
+        PyErr_SetString(PyExc_ValueError, "engine: fir_rate needs down >= 1, up >= 1, not both above 1");
+        return NULL;
+    }
+    arith_t ar;
+    if (arith_init(&ar, k, acc_bits, rounding, overflow, width) < 0) return NULL;
+    Py_buffer xb, yb, tb;
+    if (get_buf(xo, &xb, 0, 'i', "x") < 0) return NULL;
+    if (get_buf(yo, &yb, 1, 'i', "y") < 0) { PyBuffer_Release(&xb); return NULL; }
+    if (get_buf(to, &tb, 0, 'i', "taps") < 0) { PyBuffer_Release(&xb); PyBuffer_Release(&yb); return NULL; }
+    Py_ssize_t n = xb.len / 8, ny = yb.len / 8, nt = tb.len / 8;
+    if (ny != (n * up + down - 1) / down) {
+        PyErr_SetString(PyExc_ValueError, "engine: fir_rate output length must be ceil(n * up / down)");
+        PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&tb);
+        return NULL;
+    }
+    const int64_t *x = (const int64_t *)xb.buf, *t = (const int64_t *)tb.buf;
+    int64_t *y = (int64_t *)yb.buf;
+    long long ovf = 0, aovf = 0;
+    int fast = width <= 62 && sum_bound_ok(t, nt, width, 0);
+    Py_BEGIN_ALLOW_THREADS
+    for (Py_ssize_t i = 0; i < ny; i++) {
+        Py_ssize_t r = i * (Py_ssize_t)down;       /* index into the upsampled input u */
+        Py_ssize_t k0 = r % up;                    /* first tap meeting a non-zero u sample */
+        int64_t acc;
+        if (fast && up == 1) { /* decimation: the plain FIR sum at the kept sample */
+            int64_t s = 0;
+            const int64_t *xp = x + r;
+            Py_ssize_t m = r + 1 < nt ? r + 1 : nt;
+            for (Py_ssize_t j = 0; j < m; j++) s += t[j] * xp[-j];
+            acc = afinish(s, &ar, &aovf);
+        } else if (fast) {
+            int64_t s = 0;
+            for (Py_ssize_t kk = k0; kk < nt && kk <= r; kk += up) s += t[kk] * x[(r - kk) / up];
+            acc = afinish(s, &ar, &aovf);
+        } else {
+            wide_t w = {0, 0};
+            for (Py_ssize_t kk = k0; kk < nt && kk <= r; kk += up) wadd(&w, t[kk] * x[(r - kk) / up]);
             acc = wfinish(&w, &ar, &aovf);
         }
         y[i] = fit(rshift(acc, &ar), &ar, &ovf);
@@ -1189,6 +1247,9 @@ static PyMethodDef engine_methods[] = {
     {"coupled", py_coupled, METH_VARARGS,
      "coupled(x, y, coefs[D, C1, C2, G, A11, A12, A21, A22, k], acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)"},
     {"fir", py_fir, METH_VARARGS, "fir(x, y, taps, k, acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)"},
+    {"fir_rate", py_fir_rate, METH_VARARGS,
+     "fir_rate(x, y, taps, down, up, k, acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)\n"
+     "polyphase FIR: len(y) = ceil(len(x) * up / down); only the kept outputs are computed."},
     {"sos_wide", py_sos_wide, METH_VARARGS,
      "sos_wide(x, y, B0, B1, B2, A1H, A2H, A1L, A2L, L, k, acc_bits, rounding, overflow, data_width[, ef])\n"
      "-> (ovf, acc_ovf): one df1-wide-fb section (double-word feedback coefficients);\n"

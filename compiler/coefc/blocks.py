@@ -91,7 +91,29 @@ class DelayBlock:
     label: str = ""
 
 
-Block = SosBlock | FirBlock | GainBlock | DelayBlock
+@dataclass(frozen=True)
+class RateBlock:
+    """A rate change: keep every ``down``-th sample, or insert ``up - 1`` zeros after each.
+
+    Every block after it runs at the new rate.  Responses of a chain with rate
+    changes are those of its equivalent single-rate model (the noble identities,
+    Vaidyanathan 1993, sec. 4.2; from memory): each block is evaluated at the
+    physical frequency at its own rate, i.e. ``H(z^M)`` at the input rate after a
+    decimation by ``M``; a decimation has gain 1, an interpolation ``1/L`` (zero
+    insertion spreads the signal over ``L`` images; the FIR after it carries the gain
+    ``L`` back).
+    """
+
+    down: int = 1
+    up: int = 1
+    label: str = ""
+
+    @property
+    def ratio(self) -> float:
+        return self.up / self.down
+
+
+Block = SosBlock | FirBlock | GainBlock | DelayBlock | RateBlock
 
 
 def block_response(block: Block, freqs_hz: np.ndarray, fs: float) -> np.ndarray:
@@ -107,16 +129,42 @@ def block_response(block: Block, freqs_hz: np.ndarray, fs: float) -> np.ndarray:
         return np.full(f.shape, complex(block.gain))
     if isinstance(block, DelayBlock):
         return np.exp(-2j * np.pi * f / fs * block.samples)
+    if isinstance(block, RateBlock):  # zero insertion keeps 1/L of the amplitude at each frequency
+        return np.full(f.shape, complex(1.0 / block.up))
     raise TypeError(f"not a block: {block!r}")
 
 
 def chain_response(blocks, freqs_hz, fs: float) -> np.ndarray:
-    """Complex response of a chain of blocks (the product of their responses)."""
+    """Complex response of a chain of blocks (the product of their responses).
+
+    *fs* is the chain's input rate; after a :class:`RateBlock` the following
+    blocks are evaluated at the new rate (the equivalent single-rate model).
+    """
     f = np.atleast_1d(np.asarray(freqs_hz, dtype=np.float64))
     h = np.ones(f.shape, dtype=complex)
     for b in blocks:
         h = h * block_response(b, f, fs)
+        if isinstance(b, RateBlock):
+            fs = fs * b.up / b.down
     return h
+
+
+def rate_of(blocks, fs: float) -> float:
+    """The rate after *blocks* for an input rate *fs*."""
+    for b in blocks:
+        if isinstance(b, RateBlock):
+            fs = fs * b.up / b.down
+    return fs
+
+
+def model_rate(blocks, fs: float) -> float:
+    """The highest rate anywhere in the chain: the rate of its equivalent single-rate model."""
+    top = fs
+    for b in blocks:
+        if isinstance(b, RateBlock):
+            fs = fs * b.up / b.down
+            top = max(top, fs)
+    return top
 
 
 @dataclass(frozen=True)
@@ -134,6 +182,7 @@ class StageSummary:
     requirement: Mapping | None = None
     # Further lines the design report prints under the stage (e.g. fitted correction sections).
     details: tuple[str, ...] = ()
+    rate_hz: float = 0.0  # the stage's input rate (0: not known)
 
 
 @dataclass(frozen=True, eq=False)
@@ -156,6 +205,15 @@ class ChannelDesign:
         """Complex float response of the whole channel at *freqs_hz*."""
         return chain_response(self.blocks, freqs_hz, self.sample_rate_hz)
 
+    @property
+    def output_rate_hz(self) -> float:
+        """The rate of the channel's output (the input rate after every rate change)."""
+        return rate_of(self.blocks, self.sample_rate_hz)
+
+    @property
+    def multirate(self) -> bool:
+        return any(isinstance(b, RateBlock) for b in self.blocks)
+
     def sos(self) -> np.ndarray:
         """All IIR sections of the channel in one (n, 6) array (gains/FIR excluded)."""
         parts = [b.sos for b in self.blocks if isinstance(b, SosBlock)]
@@ -169,7 +227,7 @@ def as_float_blocks(program: ChannelProgram) -> tuple[Block, ...]:
     coefficients (roundoff noise and overflow aside).  Consecutive sections become
     one :class:`SosBlock`.
     """
-    from .program import DelayOp, FirOp, GainOp, SectionOp, section_transfer
+    from .program import DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp, section_transfer
 
     ar = program.arithmetic
     fc = 0 if ar.is_float else ar.coef.frac_bits
@@ -182,7 +240,17 @@ def as_float_blocks(program: ChannelProgram) -> tuple[Block, ...]:
             rows.clear()
 
     for op in program.ops:
+        if isinstance(op, RateOp):
+            flush()
+            out.append(RateBlock(down=op.down, up=op.up))
+            continue
         scale = 1.0 if ar.is_float else 2.0 ** (op.shift - fc) if not isinstance(op, DelayOp) else 1.0
+        if isinstance(op, PolyFirOp):  # the prototype FIR at the higher rate, then (or after) the rate change
+            flush()
+            fir = FirBlock(np.array([float(v) * scale for v in op.taps]))
+            rate = RateBlock(down=op.down, up=op.up)
+            out.extend((fir, rate) if op.down > 1 else (rate, fir))
+            continue
         if isinstance(op, SectionOp):
             bq, aq = section_transfer(op, 0 if ar.is_float else ar.coef)
             rows.append(bq + aq)

@@ -51,7 +51,7 @@ from typing import Mapping, NamedTuple
 from .checks import (BUDGET_CHECKS, BY_NAME, DEFAULT_TONE_GAIN_ERROR_DB, HAZARD_DEFAULTS,  # noqa: F401
                      SAFETY_CAUTION, LimitError, kind_of)
 from .errors import DescriptionError
-from .program import SectionOp
+from .program import SectionOp, decimation
 from .reports.text import format_limit
 from .spec import Budget
 
@@ -93,6 +93,8 @@ class ChannelReport:
     reasons: dict[str, str]
     analysis: object = field(default=None, repr=False)  # coefc.analyse.Metrics
     budget: Budget | None = None  # this channel's budget as applied ([channel.budget], overrides, defaults)
+    output_rate_hz: float | None = None  # the rate of the output samples (multirate channels); None: the input rate
+    block_multiple: int = 1  # a block's input length must be a multiple of this (the decimation factor)
 
     @property
     def ok(self) -> bool:
@@ -102,6 +104,8 @@ class ChannelReport:
         return {
             "name": self.name,
             "sample_rate_hz": self.sample_rate_hz,
+            "output_rate_hz": self.output_rate_hz if self.output_rate_hz is not None else self.sample_rate_hz,
+            "block_multiple": self.block_multiple,
             "arithmetic": self.arithmetic,
             "sections": self.sections,
             "metrics": self.metrics,
@@ -343,6 +347,22 @@ def channel_checks(metrics, budget: Budget, tones=None, design=None) -> tuple[li
                 f"(float design {_fmt(r.float_stopband_attenuation_db)} dB)"
                 + ("" if ok else f", short of {format_limit(lim)} dB; widen the coefficient word or name the "
                    "stopband bands"))
+
+    if budget.alias_attenuation_db is not None:
+        a, lim = getattr(metrics, "alias", None), budget.alias_attenuation_db
+        if a is None:
+            checks.append(Check("alias_attenuation_db", None, lim, True))
+            why["alias_attenuation_db"] = "not applicable: the channel does not change its rate"
+        else:
+            ok = kind_of("alias_attenuation_db").holds(a.attenuation_db, lim)
+            checks.append(Check("alias_attenuation_db", a.attenuation_db, lim, ok))
+            why["alias_attenuation_db"] = (
+                f"what folds into the output passband ({a.passband_rule}; multiples of {a.low_rate_hz:g} Hz) is "
+                f"{kind_of('alias_attenuation_db').value_text(a.attenuation_db, lim, ok)} dB down at least, "
+                f"worst at {a.worst_hz:.6g} Hz, landing on {a.folds_to_hz:.6g} Hz "
+                f"(float design {_fmt(a.float_attenuation_db)} dB)"
+                + ("" if ok else f", short of {format_limit(lim)} dB; a longer anti-alias (or image) filter, a "
+                   "lower passband edge, or a wider coefficient word"))
 
     if budget.output_noise_dbfs is not None and unstable:
         checks.append(Check("output_noise_dbfs", None, budget.output_noise_dbfs, False))
@@ -709,7 +729,7 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
 
             md["tones"] = _clean(tones.as_dict())
         reports.append(ChannelReport(prog.name, prog.sample_rate_hz, prog.arithmetic.as_dict(), _sections(prog),
-                                     md, checks, why, m, cb))
+                                     md, checks, why, m, cb, prog.output_rate_hz, decimation(prog.ops)))
         if cb.overflow == "allow" and "overflow" not in tolerated:
             tolerated.append("overflow")
         if cb.limit_cycles is not None and cb.limit_cycles != "none":

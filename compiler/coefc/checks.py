@@ -192,6 +192,11 @@ CHECKS: tuple[CheckKind, ...] = (
               "achieved attenuation >= limit (no stopband: not applicable)",
               budget_key=True, validate=_positive("80"), option="--min-stopband-attenuation-db", metavar="DB",
               option_help="Budget override: smallest stopband attenuation, dB."),
+    CheckKind("alias_attenuation_db", ">=", "dB", "alias attenuation",
+              "multirate channels: the smallest attenuation over every band that folds into the output "
+              "passband >= limit (a single-rate channel: not applicable)",
+              budget_key=True, validate=_positive("96"), option="--min-alias-attenuation-db", metavar="DB",
+              option_help="Budget override: smallest attenuation of what folds into the output passband, dB."),
     CheckKind("output_noise_dbfs", "<=", "dBFS", "output noise",
               "the larger of the analytic and the measured noise <= limit",
               budget_key=True, validate=_noise, option="--max-noise-dbfs", metavar="DBFS",

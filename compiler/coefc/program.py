@@ -125,6 +125,26 @@ Symmetric FIR taps are never folded (``q(C*(x1+x2)) != q(C*x1) + q(C*x2)``).  Wi
 ``P = 0`` (the default) products are exact and everything above holds as written.
 ``(int32_t)(((int64_t)c * x + 2^(P-1)) >> P)`` is ``q`` for add-half, without the
 addition for truncate.
+Rate-changing ops (multirate; the output runs at ``up/down`` times the input rate)::
+
+    polyfir  a polyphase FIR of factor ``down = M`` (decimating) or ``up = L``
+             (interpolating); exactly one factor is above 1.  With u the input
+             upsampled by L (u[r] = x[r/L] where L divides r, else 0):
+             acc  = wrapA(sum over k with L | (i*M - k), i*M - k >= 0 of
+                          C_k * x[(i*M - k) / L])
+             y[i] = fit_data(round_shift(acc, k))
+             decimating (L = 1):  y[i] = fir(x)[i*M], for i = 0 .. ceil(n/M) - 1: only
+                                  the kept samples are computed, bit-identical to the
+                                  full-rate fir op followed by keeping every M-th output
+             interpolating (M = 1): y[n*L + p] = fit_data(round_shift(wrapA(
+                                  sum_j C_(p + j*L) * x[n - j]), k)), for p = 0 .. L-1
+                                  (L sub-filters of the taps, one per output phase)
+    rate     down M: y[i] = x[i*M] (i = 0 .. ceil(n/M) - 1);
+             up L:   y[n*L] = x[n], y[n*L + p] = 0 for 0 < p < L   (no arithmetic)
+
+A block of n input samples gives ceil(n*L/M) output samples; a caller that feeds
+blocks must make n a multiple of the channel's total decimation factor, so that every
+block starts at the phase the polyphase branches expect.
 
 An *accumulator overflow* is a sample where the exact (unwrapped) sum of that
 sample's terms lies outside the accumulator's range (for tdf2 and coupled: any of
@@ -379,7 +399,76 @@ class DelayOp:
     samples: int
 
 
-Op = SectionOp | FirOp | GainOp | DelayOp
+@dataclass(frozen=True)
+class PolyFirOp:
+    """A polyphase FIR changing the rate: decimating (``down = M``) or interpolating (``up = L``).
+
+    ``taps`` hold the whole prototype filter at the higher of the two rates (its
+    ``k``-th tap multiplies ``u[i*M - k]``, see the module docstring); the engine,
+    the exact model and the generated code compute only the output samples kept
+    (decimating) or only the non-zero products (interpolating), branch by branch.
+
+    References
+    ----------
+    R. E. Crochiere and L. R. Rabiner, *Multirate Digital Signal Processing*,
+    Prentice-Hall, 1983, ch. 3 (polyphase structures; from memory).
+    P. P. Vaidyanathan, *Multirate Systems and Filter Banks*, Prentice-Hall, 1993,
+    sec. 4.3 (polyphase decomposition, noble identities; from memory).
+    """
+
+    taps: tuple
+    shift: int = 0
+    down: int = 1
+    up: int = 1
+    symmetric: bool = False
+
+    @property
+    def factor(self) -> int:
+        return self.down if self.down > 1 else self.up
+
+
+@dataclass(frozen=True)
+class RateOp:
+    """Keep every ``down``-th sample, or insert ``up - 1`` zeros after each sample (no arithmetic)."""
+
+    down: int = 1
+    up: int = 1
+
+    @property
+    def factor(self) -> int:
+        return self.down if self.down > 1 else self.up
+
+
+Op = SectionOp | FirOp | GainOp | DelayOp | PolyFirOp | RateOp
+
+
+def rate_ratio(ops) -> "Fraction":
+    """Output rate / input rate of a sequence of ops (a ``fractions.Fraction``)."""
+    from fractions import Fraction
+
+    r = Fraction(1)
+    for op in ops:
+        if isinstance(op, (PolyFirOp, RateOp)):
+            r *= Fraction(op.up, op.down)
+    return r
+
+
+def output_length(ops, n: int) -> int:
+    """Samples out for *n* samples in (each rate op: ``ceil(n * up / down)``)."""
+    for op in ops:
+        if isinstance(op, (PolyFirOp, RateOp)):
+            n = -(-n * op.up // op.down)
+    return n
+
+
+def decimation(ops) -> int:
+    """The block-length rule: a block's input length must be a multiple of this, the product of the
+    ``down`` factors (then every block starts at the phase the polyphase branches expect)."""
+    m = 1
+    for op in ops:
+        if isinstance(op, (PolyFirOp, RateOp)):
+            m *= op.down
+    return m
 
 
 @dataclass(frozen=True, eq=False)
@@ -391,6 +480,15 @@ class ChannelProgram:
     arithmetic: Arithmetic
     ops: tuple[Op, ...]
     notes: tuple[Note, ...] = field(default_factory=tuple)  # saturated coefficients, pairing choices, ...
+
+    @property
+    def output_rate_hz(self) -> float:
+        """The rate of the channel's output samples (the input rate times every ``up/down``)."""
+        return float(self.sample_rate_hz * rate_ratio(self.ops))
+
+    @property
+    def multirate(self) -> bool:
+        return any(isinstance(op, (PolyFirOp, RateOp)) for op in self.ops)
 
     def sections(self) -> tuple[SectionOp, ...]:
         return tuple(op for op in self.ops if isinstance(op, SectionOp))

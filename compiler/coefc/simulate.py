@@ -31,7 +31,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import DataError
-from .program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE, lo_bits
+from .program import ChannelProgram, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp, STRUCTURE_TABLE, lo_bits
 from .qformat import ROUNDING_MODES, round_shift
 
 try:  # the compiled core; the exact Python path covers its absence
@@ -102,7 +102,7 @@ def _fast_ok(program: ChannelProgram) -> bool:
     if ar.data.width + ar.coef.width > 63 and any(_wide(op) for op in program.ops):
         return False  # the low-word sum P of df1-wide-fb must be exact in int64
     lowest = 0 if ar.product_shift else 1
-    return all(lowest <= _k(program, op) <= 62 for op in program.ops if not isinstance(op, DelayOp))
+    return all(lowest <= _k(program, op) <= 62 for op in program.ops if not isinstance(op, (DelayOp, RateOp)))
 
 
 def simulate(program: ChannelProgram, x, *, trace: bool = False, _exact: bool = False):
@@ -120,7 +120,8 @@ def simulate(program: ChannelProgram, x, *, trace: bool = False, _exact: bool = 
     Returns
     -------
     numpy.ndarray or Trace
-        int64 (fixed) or float32 output of the same length as *x*.
+        int64 (fixed) or float32 output; of the same length as *x*, or
+        ``ceil(len(x) * up / down)`` over the rate-changing ops of a multirate channel.
 
     Examples
     --------
@@ -201,9 +202,24 @@ def _run_fast(program: ChannelProgram, op, x: np.ndarray):
         o, a = _engine.gain(x, y, int(op.coef), _k(program, op), *common)
     elif isinstance(op, DelayOp):
         return _delay(x, op.samples), 0, 0
+    elif isinstance(op, RateOp):
+        return _rate(x, op), 0, 0
+    elif isinstance(op, PolyFirOp):
+        taps = np.ascontiguousarray(np.array([int(v) for v in op.taps], dtype=np.int64))
+        y = np.empty(-(-len(x) * op.up // op.down), dtype=np.int64)
+        o, a = _engine.fir_rate(x, y, taps, op.down, op.up, _k(program, op), *common)
     else:
         raise TypeError(f"not an op: {op!r}")
     return y, o, a
+
+
+def _rate(x: np.ndarray, op: RateOp) -> np.ndarray:
+    """Keep every ``down``-th sample (from the first) or insert ``up - 1`` zeros after each."""
+    if op.down > 1:
+        return np.ascontiguousarray(x[::op.down])
+    y = np.zeros(len(x) * op.up, dtype=x.dtype)
+    y[::op.up] = x
+    return y
 
 
 def _run_cascade(program: ChannelProgram, secs, x: np.ndarray, keep_nodes: bool = True):
@@ -230,6 +246,11 @@ def _delay(x: np.ndarray, d: int) -> np.ndarray:
 def _run_float(op, x: np.ndarray, fast: bool):
     if isinstance(op, DelayOp):
         return _delay(x, op.samples), 0, 0
+    if isinstance(op, RateOp):
+        return _rate(x, op), 0, 0
+    if isinstance(op, PolyFirOp):
+        y = _poly_float(op, x)
+        return y, int(np.count_nonzero(~np.isfinite(y))), 0
     if isinstance(op, SectionOp) and not STRUCTURE_TABLE[op.structure].float32:
         raise TypeError(f"structure '{op.structure}' has no float32 recurrence")
     y = np.empty_like(x)
@@ -245,6 +266,23 @@ def _run_float(op, x: np.ndarray, fast: bool):
     else:
         y = _float_exact(op, x)
     return y, int(np.count_nonzero(~np.isfinite(y))), 0
+
+
+def _poly_float(op: PolyFirOp, x: np.ndarray) -> np.ndarray:
+    """float32 polyphase FIR: for each output, the products in increasing tap order (as the plain fir)."""
+    f = np.float32
+    t = [f(v) for v in op.taps]
+    M, L = op.down, op.up
+    y = np.empty(-(-len(x) * L // M), dtype=np.float32)
+    with np.errstate(over="ignore", invalid="ignore"):
+        for i in range(len(y)):
+            r = i * M
+            acc = None
+            for k in range(r % L, min(len(t) - 1, r) + 1, L):
+                p = t[k] * x[(r - k) // L]
+                acc = p if acc is None else acc + p
+            y[i] = f(0) if acc is None else acc
+    return y
 
 
 def _float_exact(op, x: np.ndarray) -> np.ndarray:
@@ -305,6 +343,8 @@ def _fit(v: int, width: int, overflow: str) -> tuple[int, bool]:
 def _run_exact(program: ChannelProgram, op, x: np.ndarray):
     if isinstance(op, DelayOp):
         return _delay(x, op.samples), 0, 0
+    if isinstance(op, RateOp):
+        return _rate(x, op), 0, 0
     ar = program.arithmetic
     A, W, rnd, ovf = ar.acc_bits, ar.data.width, ar.rounding, ar.overflow
     lo, hi = -(1 << (A - 1)), (1 << (A - 1)) - 1
@@ -358,6 +398,14 @@ def _run_exact(program: ChannelProgram, op, x: np.ndarray):
             s1, s2 = out(acc1)[0], out(acc2)[0]
             n_acc = before_acc + (n_acc != before_acc)  # one event per sample
             n_ovf = before_ovf + (n_ovf != before_ovf)
+    elif isinstance(op, PolyFirOp):
+        taps = [int(v) for v in op.taps]
+        M, L = op.down, op.up
+        ys = [0] * (-(-len(xs) * L // M))
+        for i in range(len(ys)):
+            r = i * M
+            s = sum(taps[j] * xs[(r - j) // L] for j in range(r % L, min(len(taps) - 1, r) + 1, L))
+            ys[i] = out(acc_of(s))[0]
     elif isinstance(op, SectionOp):
         b0, b1, b2 = (int(v) for v in op.b)
         a1, a2 = (int(v) for v in op.a)

@@ -29,7 +29,8 @@ from .checks import fmt_number as _fmt
 from .checks import type_name as _type_name
 from .errors import DescriptionError, close_match, setting
 from .stagekinds import (EQ_KINDS, FIR_KINDS, FIR_METHODS, IIR_KINDS, IIR_RESPONSES,  # noqa: F401 (re-exported)
-                         MAX_FIR_TAPS, MAX_IIR_ORDER, MAX_LS_TAPS, STAGE_KINDS_TABLE, WEIGHTINGS)
+                         MAX_FIR_TAPS, MAX_IIR_ORDER, MAX_LS_TAPS, MAX_RATE_FACTOR, RATE_KINDS,
+                         STAGE_KINDS_TABLE, WEIGHTINGS)
 from .stagekinds import FREQ_KEYS as _FREQ_KEYS
 
 # --------------------------------------------------------------------------- model
@@ -60,6 +61,7 @@ class Budget:
 
     passband_deviation_db: float | None = None
     stopband_attenuation_db: float | None = None
+    alias_attenuation_db: float | None = None  # multirate: what folds into the output passband
     output_noise_dbfs: float | None = None
     limit_cycles: str | float | None = None  # "none" or a maximum amplitude in LSB
     overflow: str | None = None  # "none" or "allow"
@@ -623,8 +625,33 @@ def _channel(ch: dict, number: int, source: str, fs: float, seen: set[str]) -> C
                                       "or split the channel")
     budget = _budget_values(ch["budget"], _Place(source, channel=name, table="budget"), fs, "channel.budget") \
         if "budget" in ch else {}
-    return ChannelSpec(name=name, stages=tuple(_stage(s, i + 1, source, name, fs) for i, s in enumerate(stages)),
+    return ChannelSpec(name=name, stages=_stages_at_their_rates(stages, source, name, fs),
                        budget=MappingProxyType(budget))
+
+
+def _stages_at_their_rates(stages, source: str, channel: str, fs: float) -> tuple:
+    """Every stage validated at its own rate: a ``decimate``/``interpolate`` stage changes the rate of
+    the stages after it (their frequencies are checked against the new Nyquist frequency)."""
+    out = []
+    for i, s in enumerate(stages):
+        st = _stage(s, i + 1, source, channel, fs)
+        out.append(st)
+        if st.kind in RATE_KINDS:
+            w = _Place(source, channel=channel, stage=i + 1).at("factor")
+            if "factor" not in st.params:
+                raise w.fail(f"missing; give the integer rate factor, e.g. {{ kind = \"{st.kind}\", factor = 2 }}")
+            m = st.params["factor"]
+            if m < 2 or m > MAX_RATE_FACTOR:
+                raise w.fail(f"factor {m} does not change the rate; use an integer from 2 to {MAX_RATE_FACTOR}")
+            if st.kind == "decimate":
+                new = fs / m
+                if new != int(new) or int(new) * m != fs:
+                    raise w.fail(f"{_fmt(fs)} Hz / {m} = {new:g} Hz is not a whole number of hertz; choose a factor "
+                                 f"that divides the rate {_fmt(fs)} Hz")
+                fs = new
+            else:
+                fs = fs * m
+    return tuple(out)
 
 
 def _stage(s, index: int, source: str, channel: str, fs: float) -> StageSpec:

@@ -186,12 +186,24 @@ CORRECTION = {
         "transition_oct": Key("positive", "octaves"),  # how fast it rises outside range_hz
     }),
 }
+# ------------------------------------------------------------------ coefc.design.multirate
+
+#: largest decimation or interpolation factor of one stage
+MAX_RATE_FACTOR = 1024
+
+MULTIRATE = {
+    "decimate": StageKind("decimate", "multirate", "design_decimate", MappingProxyType(
+        {"factor": Key("positive_int"), "allow_aliasing": Key("boolean")})),
+    "interpolate": StageKind("interpolate", "multirate", "design_interpolate", MappingProxyType(
+        {"factor": Key("positive_int"), "allow_imaging": Key("boolean")})),
+}
+RATE_KINDS = tuple(MULTIRATE)
 
 # ------------------------------------------------------------------ all kinds
 
 #: every stage kind, in the order messages list them
 STAGE_KINDS_TABLE: Mapping[str, StageKind] = MappingProxyType({**IIR, **FIR, **EQ, **WEIGHTING, **BASIC,
-                                                                  **CORRECTION})
+                                                                  **CORRECTION, **MULTIRATE})
 
 IIR_KINDS = tuple(IIR)
 FIR_KINDS = tuple(FIR)

@@ -69,6 +69,7 @@ class Metrics:
     structure: str = "df1"
     unstable: str | None = None  # why the realisation is unstable (None: every pole strictly inside)
     scaling: str = "none"  # the arithmetic's section scaling (hints never suggest what is in use)
+    alias: object = None  # coefc.analyse.response.AliasAnalysis of a multirate channel (None: single rate)
 
     @property
     def stable(self) -> bool:
@@ -169,6 +170,12 @@ class Metrics:
             "overflow_oscillation": "none" if self.is_float else lc.overflow_status,
             "noise_spectrum": self.noise_spectrum(),
         }
+        if self.alias is not None:
+            a = self.alias
+            d["alias_attenuation_db"] = a.attenuation_db
+            d["alias"] = {"attenuation_db": a.attenuation_db, "float_attenuation_db": a.float_attenuation_db,
+                          "worst_hz": a.worst_hz, "folds_to_hz": a.folds_to_hz, "passband_rule": a.passband_rule,
+                          "fold_rate_hz": a.low_rate_hz}
         return _clean(d)
 
     def _unstable_dict(self) -> dict:
@@ -356,5 +363,10 @@ def analyse_channel(design: ChannelDesign, program: ChannelProgram,
     ovf = replace(analyse_overflow(program, run_engine=opt.worst_case_runs, models=models, n=n),
                   design_peak_gain=dgain)
     lc = analyse_limit_cycles(program, max_states=opt.max_states)
+    from .response import alias_attenuation
+
+    alias = alias_attenuation(design, program, passband=opt.passband,
+                              passband_threshold_db=opt.passband_threshold_db)
     return Metrics(resp, noise, meas, ovf, lc, program.arithmetic.is_float, program.arithmetic.overflow,
-                   float(program.sample_rate_hz), program.arithmetic.structure, scaling=program.arithmetic.scaling)
+                   float(program.sample_rate_hz), program.arithmetic.structure, scaling=program.arithmetic.scaling,
+                   alias=alias)

@@ -47,12 +47,14 @@ transfer ``C (zI - A)^-1``; from memory).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
+from fractions import Fraction
 
 import numpy as np
 
 from ..blocks import impulse_length
-from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE, lo_bits, section_transfer
+from ..program import (ChannelProgram, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp, STRUCTURE_TABLE, lo_bits,
+                       section_transfer)
 
 
 
@@ -97,6 +99,11 @@ class OpModel:
     product_noise: tuple = ()
     #: the largest total error of those products in one sample (LSB): sum of their worst cases
     product_bound: float = 0.0
+    # multirate (coefc.program's polyfir and rate ops): b and a above are expanded to the rate of the
+    # equivalent single-rate model, b(z^expand) (noble identities); down/up of a rate-changing op
+    expand: int = 1
+    down: int = 1
+    up: int = 1
 
     @property
     def recursive(self) -> bool:
@@ -203,7 +210,9 @@ def _build_models(program: ChannelProgram) -> list[OpModel]:
         return n * (abs(c) + r) * 2.0 ** -(fc - shift - P)
 
     one = np.array([1.0])
-    for i, op in enumerate(program.ops):
+
+    def single(op, i) -> OpModel:
+        """The model of one single-rate op (sections of every structure, FIR, gain, delay)."""
         if isinstance(op, SectionOp) and STRUCTURE_TABLE[op.structure].state_space and not ar.is_float:
             bq, aq = section_transfer(op, fc)
             b, a = np.array(bq), np.array(aq)
@@ -214,8 +223,8 @@ def _build_models(program: ChannelProgram) -> list[OpModel]:
             states = ((np.array([0.0, g, -g * a22]), a), (np.array([0.0, 0.0, g * a21]), a))
             snoise = (((np.array([0.0, 1.0, -a22]), a), (np.array([0.0, 0.0, a12]), a)),
                       ((np.array([0.0, 0.0, a21]), a), (np.array([0.0, 1.0, -a11]), a)))
-            out.append(OpModel(i, "section", b, a, one, one, k, fs_data, acc_fs(op.shift), op.structure,
-                               extra_noise=extra, states=states, state_noise=snoise))
+            return OpModel(i, "section", b, a, one, one, k, fs_data, acc_fs(op.shift), op.structure,
+                           extra_noise=extra, states=states, state_noise=snoise)
         elif isinstance(op, SectionOp):
             b = np.array([phys(c, op.shift) for c in op.b])
             a = np.array([1.0] + list(op.a_phys(None if ar.is_float else ar.coef)))
@@ -232,26 +241,66 @@ def _build_models(program: ChannelProgram) -> list[OpModel]:
                 ev = (1.0 - 2.0 ** (-2 * L)) / 12.0 * 2.0 ** (-2 * kk)
             # df1ef-wide-fb: the floor is outside the fed-back residual, its error is not shaped
             xb = one if wide and STRUCTURE_TABLE[structure].error_feedback else None
-            out.append(OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift), structure, extra_mean=em,
-                               extra_var=ev, extra_noise_b=xb, product_noise=prods,
-                               product_bound=pbound(tuple(op.b) + tuple(op.a), op.shift)))
+            return OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift), structure, extra_mean=em,
+                           extra_var=ev, extra_noise_b=xb, product_noise=prods,
+                           product_bound=pbound(tuple(op.b) + tuple(op.a), op.shift))
         elif isinstance(op, FirOp):
             b = np.array([phys(c, op.shift) for c in op.taps])
             k, prods = drop(op.taps, op.shift)
-            out.append(OpModel(i, "fir", b, one, one, one, k, fs_data, acc_fs(op.shift), product_noise=prods,
-                               product_bound=pbound(op.taps, op.shift)))
+            return OpModel(i, "fir", b, one, one, one, k, fs_data, acc_fs(op.shift), product_noise=prods,
+                           product_bound=pbound(op.taps, op.shift))
         elif isinstance(op, GainOp):
             b = np.array([phys(op.coef, op.shift)])
             k, prods = drop((op.coef,), op.shift)
-            out.append(OpModel(i, "gain", b, one, one, one, k, fs_data, acc_fs(op.shift), product_noise=prods,
-                               product_bound=pbound((op.coef,), op.shift)))
+            return OpModel(i, "gain", b, one, one, one, k, fs_data, acc_fs(op.shift), product_noise=prods,
+                           product_bound=pbound((op.coef,), op.shift))
         elif isinstance(op, DelayOp):
             b = np.zeros(op.samples + 1)
             b[-1] = 1.0
-            out.append(OpModel(i, "delay", b, one, one, one, 0, fs_data, None))
+            return OpModel(i, "delay", b, one, one, one, 0, fs_data, None)
         else:  # pragma: no cover - program.Op is closed
             raise TypeError(f"unknown operation {op!r}")
+
+    # A multirate channel is modelled by its equivalent single-rate model at the highest rate it
+    # reaches: an op running at `top / e` by its polynomials in z^e (the noble identities,
+    # Vaidyanathan 1993, sec. 4.2; from memory).  Exact for the signal path and the l1 bounds of
+    # every node (each kept sample is one sample of the expanded node); a rounding error made at
+    # the lower rate keeps its variance and mean through the expanded tail.
+    rate, top = Fraction(1), Fraction(1)
+    for op in program.ops:
+        if isinstance(op, (PolyFirOp, RateOp)):
+            rate *= Fraction(op.up, op.down)
+            top = max(top, rate)
+    rate = Fraction(1)
+    for i, op in enumerate(program.ops):
+        if isinstance(op, (PolyFirOp, RateOp)):
+            taps_rate = rate if op.down > 1 else rate * op.up  # the prototype's rate: the higher one
+            e = int(top / taps_rate)
+            if isinstance(op, PolyFirOp):
+                b = np.array([phys(c, op.shift) for c in op.taps])
+                k = 0 if ar.is_float else effective_drop(op.taps, fc - op.shift)
+                m = _expanded(OpModel(i, "polyfir", b, one, one, one, k, fs_data, acc_fs(op.shift),
+                                      down=op.down, up=op.up), e)
+            else:
+                m = OpModel(i, "rate", one, one, one, one, 0, fs_data, None, down=op.down, up=op.up)
+            out.append(m)
+            rate *= Fraction(op.up, op.down)
+            continue
+        out.append(_expanded(single(op, i), int(top / rate)))
     return out
+
+
+def _expanded(m: OpModel, e: int) -> OpModel:
+    """*m* with its polynomials in ``z^e`` (an op at ``1/e`` of the model's rate)."""
+    if e == 1:
+        return m
+
+    def ex(p):
+        q = np.zeros((len(p) - 1) * e + 1)
+        q[::e] = p
+        return q
+
+    return replace(m, b=ex(m.b), a=ex(m.a), noise_b=ex(m.noise_b), noise_a=ex(m.noise_a), expand=e)
 
 
 def pole_radius(models: list[OpModel]) -> float:
@@ -348,8 +397,19 @@ def noise_impulses(models: list[OpModel], j: int, n: int) -> list[np.ndarray]:
 
 
 def chain_filter(models: list[OpModel], x: np.ndarray) -> np.ndarray:
-    """Float64 output of the realised coefficients for input *x* (no rounding)."""
+    """Float64 output of the realised coefficients for input *x* (no rounding).
+
+    A multirate channel runs its equivalent single-rate model: the input
+    upsampled (zeros between) by every interpolation factor, the expanded ops,
+    then every decimation factor's samples kept -- the channel's output samples.
+    """
     y = np.asarray(x, dtype=np.float64)
+    up = int(np.prod([m.up for m in models])) if models else 1
+    down = int(np.prod([m.down for m in models])) if models else 1
+    if up > 1:
+        u = np.zeros(len(y) * up)
+        u[::up] = y
+        y = u
     for m in models:
         y = _run(m.b, m.a, y)
-    return y
+    return y[::down] if down > 1 else y

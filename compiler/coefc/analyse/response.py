@@ -149,9 +149,12 @@ def analyse_response(design: ChannelDesign, program: ChannelProgram, *, passband
     """
     from ..blocks import as_float_blocks
 
+    from ..blocks import model_rate
+
     fs = float(design.sample_rate_hz)
     taps = sum(len(b.taps) for b in design.blocks if isinstance(b, FirBlock))
-    f = grid(fs, points, edges_hz=design.edges_hz, bands=tuple(passband or ()) + tuple(stopband or ()),
+    # a multirate channel: the grid of its equivalent single-rate model (the highest rate it reaches)
+    f = grid(model_rate(design.blocks, fs), points, edges_hz=design.edges_hz, bands=tuple(passband or ()) + tuple(stopband or ()),
              fir_taps=taps)
     hf = design.response(f)
     hq = chain_response(as_float_blocks(program), f, fs)
@@ -191,3 +194,85 @@ def analyse_response(design: ChannelDesign, program: ChannelProgram, *, passband
     return ResponseAnalysis(f, df, dq, dev, att, fatt, prule, srule, radius, radius < 1.0,
                             _match(pq, pf), _match(zq, zf), pmask, smask)
 
+
+
+@dataclass(frozen=True)
+class AliasAnalysis:
+    """What folds into the output passband of a multirate channel (:func:`alias_attenuation`)."""
+
+    attenuation_db: float  # the smallest, over every band that folds into the output passband (realised)
+    float_attenuation_db: float  # the same for the float design
+    worst_hz: float  # where (at the higher rate) the smallest attenuation is
+    folds_to_hz: float  # the passband frequency it lands on
+    passband_rule: str
+    low_rate_hz: float  # the rate whose multiples fold (the output rate of a decimator, the input rate of an interpolator)
+
+
+def alias_attenuation(design: ChannelDesign, program: ChannelProgram, *, passband=None,
+                      passband_threshold_db: float = 3.0, points: int = 1 << 15) -> AliasAnalysis | None:
+    """The smallest attenuation over every band that folds into the output passband.
+
+    At the lower rate ``fl`` of a channel (the output of a decimator, the input of an
+    interpolator) a frequency ``f`` of the higher rate lands on ``|f - k fl|`` for the
+    nearest multiple ``k fl``.  Every ``f`` above ``fl/2`` (up to half the higher rate)
+    whose image lies in the passband is an alias (decimation) or an image
+    (interpolation) of a passband frequency; the realised response of the channel's
+    equivalent single-rate model (:func:`coefc.blocks.chain_response`) must keep it
+    down.  The value is ``max(passband) - max(alias bands)`` in dB, on a dense
+    linear grid plus the band edges ``k fl +- passband edges``.  ``None`` for a
+    single-rate channel.
+
+    References
+    ----------
+    R. E. Crochiere and L. R. Rabiner, *Multirate Digital Signal Processing*,
+    Prentice-Hall, 1983, sec. 2.3-2.4 (aliasing in decimation, imaging in
+    interpolation; from memory).
+    """
+    from ..blocks import as_float_blocks, model_rate
+
+    fs = float(design.sample_rate_hz)
+    top = model_rate(design.blocks, fs)
+    low = min(fs, design.output_rate_hz)
+    if top == low:
+        return None
+    fl = np.linspace(0.0, low / 2, 4097)
+    if passband:
+        pmask_low = _in_bands(fl, passband)
+        bands = [(max(0.0, lo), min(hi, low / 2)) for lo, hi in passband if lo < low / 2]
+        rule = "bands " + ", ".join(f"{lo:g}-{hi:g} Hz" for lo, hi in passband)
+    else:
+        dfl = _db(design.response(fl))
+        pmask_low = dfl >= float(np.max(dfl)) - passband_threshold_db
+        edges = np.flatnonzero(np.diff(pmask_low.astype(int)) != 0)
+        bands = [(float(fl[0]), float(fl[-1]))] if not len(edges) else []
+        start = 0.0 if pmask_low[0] else None
+        for i in edges:
+            if pmask_low[i + 1]:
+                start = float(fl[i + 1])
+            elif start is not None:
+                bands.append((start, float(fl[i])))
+                start = None
+        if start is not None:
+            bands.append((start, float(fl[-1])))
+        rule = f"float design within {passband_threshold_db:g} dB of its peak below {low / 2:g} Hz"
+    if not bands:
+        return None
+    extra = [k * low + s * e for k in range(1, int(top / low) + 1) for lo, hi in bands for e in (lo, hi)
+             for s in (-1.0, 1.0)]
+    f = np.unique(np.concatenate([np.linspace(low / 2, top / 2, points), np.array(extra)]))
+    f = f[(f > low / 2) & (f <= top / 2)]
+    r = np.mod(f, low)
+    fold = np.minimum(r, low - r)
+    amask = np.zeros(f.shape, dtype=bool)
+    for lo, hi in bands:
+        amask |= (fold >= lo - 1e-9) & (fold <= hi + 1e-9)
+    if not np.any(amask):
+        return None
+    fp = np.unique(np.concatenate([np.linspace(b[0], b[1], 1024) for b in bands]))
+    hq = _db(chain_response(as_float_blocks(program), np.concatenate([fp, f[amask]]), fs))
+    hf = _db(design.response(np.concatenate([fp, f[amask]])))
+    nq, nf = hq[len(fp):], hf[len(fp):]
+    att = float(np.max(hq[:len(fp)])) - float(np.max(nq))
+    fatt = float(np.max(hf[:len(fp)])) - float(np.max(nf))
+    i = int(np.argmax(nq))
+    return AliasAnalysis(att, fatt, float(f[amask][i]), float(fold[amask][i]), rule, low)

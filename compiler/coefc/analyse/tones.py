@@ -75,7 +75,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..blocks import ChannelDesign, SosBlock, block_response
-from ..program import section_transfer, ChannelProgram, DelayOp, FirOp, SectionOp
+from ..program import ChannelProgram, DelayOp, FirOp, PolyFirOp, SectionOp, decimation, rate_ratio, section_transfer
 
 DEFAULT_LEVELS_DBFS = (-20.0, -60.0)
 RANGE_DB = 60.0
@@ -195,7 +195,7 @@ def slowest_pole_radius(program: ChannelProgram) -> float:
 def settle_length(program: ChannelProgram) -> tuple[int, bool, float, float]:
     """``(samples, capped, r_max, r_max ** samples)``: how long the tones run before the window."""
     r = slowest_pole_radius(program)
-    fixed = sum(len(op.taps) for op in program.ops if isinstance(op, FirOp))
+    fixed = sum(len(op.taps) for op in program.ops if isinstance(op, (FirOp, PolyFirOp)))
     fixed += sum(op.samples for op in program.ops if isinstance(op, DelayOp))
     if r <= 0.0:
         n = 0
@@ -204,6 +204,7 @@ def settle_length(program: ChannelProgram) -> tuple[int, bool, float, float]:
     else:
         n = math.ceil(math.log(SETTLE_DECAY) / math.log(r))
     n += fixed + 64  # a margin for coinciding poles (n r^n decays slower than r^n)
+    n *= decimation(program.ops)  # counted in input samples: an op after a decimation by M settles M times slower
     capped = n > MAX_SETTLE
     n = min(n, MAX_SETTLE)
     return n, capped, r, (r ** n if r < 1.0 else 1.0)
@@ -284,20 +285,28 @@ def _run(program: ChannelProgram, f: float, m: int, n: int, settle: int, peak: f
     x = np.concatenate([np.tile(win, reps)[reps * n - settle:], win]) if settle else win
     tr = simulate(program, x, trace=True)
     xw = x[settle:].astype(np.float64)
-    yw = tr.y[settle:].astype(np.float64)
-    w = 2.0 * np.pi * m * np.arange(n) / n
-    c, si = np.cos(w), np.sin(w)
+    # a multirate channel: the same m periods in the output window at the output rate
+    # (n and settle are multiples of the decimation, see analyse_tones)
+    ratio = rate_ratio(program.ops)
+    n_out, s_out = int(n * ratio), int(settle * ratio)
+    yw = tr.y[s_out:].astype(np.float64)
 
-    def fit(v):  # elementwise sums, not BLAS: a BLAS call may spin threads on a busy machine
-        dc = float(np.sum(v)) / n
-        a = 2.0 / n * float(np.sum(v * c))
-        b = 2.0 / n * float(np.sum(v * si))
+    def basis(nn):
+        w = 2.0 * np.pi * m * np.arange(nn) / nn
+        return np.cos(w), np.sin(w)
+
+    def fit(v, c, si):  # elementwise sums, not BLAS: a BLAS call may spin threads on a busy machine
+        nn = len(v)
+        dc = float(np.sum(v)) / nn
+        a = 2.0 / nn * float(np.sum(v * c))
+        b = 2.0 / nn * float(np.sum(v * si))
         return dc, math.hypot(a, b), (a, b)
 
-    _, ain, _ = fit(xw)
-    dc, aout, (a, b) = fit(yw)
+    _, ain, _ = fit(xw, *basis(n))
+    c, si = basis(n_out)
+    dc, aout, (a, b) = fit(yw, c, si)
     res = yw - dc - a * c - b * si
-    res_p = float(np.sum(res * res)) / n
+    res_p = float(np.sum(res * res)) / n_out
     ovf = int(sum(tr.overflow_counts))
     return ain, aout, dc, res_p, ovf, scale
 
@@ -338,13 +347,19 @@ def analyse_tones(design: ChannelDesign, program: ChannelProgram, freqs_hz: np.n
                             f"not measured: the realisation is unstable (pole radius {r:.6f}), a tone never settles")
     peak_db = float(np.max(float_db))
     weightings = _weightings(design)
-    std = _standard_freqs(fs) if weightings else []
+    # multirate: tones below the lower of the input and output Nyquist frequencies, windows that hold
+    # whole periods at that rate, the input window and settling a multiple of the decimation factor
+    low = float(min(fs, program.output_rate_hz))
+    per = int(round(fs / low))
+    if per > 1:
+        settle = -(-settle // per) * per
+    std = _standard_freqs(low) if weightings else []
     plan: list[tuple[float, float | None, tuple | None]] = []  # (freq, nominal, table row)
     for f_exact, row in std:
         plan.append((f_exact, float(row[0]), row))
-    f_min = fs / MAX_WINDOW
+    f_min = low / MAX_WINDOW
     skipped = []
-    for f in _grid_picks(np.asarray(freqs_hz), np.asarray(float_db), fs, range_db):
+    for f in _grid_picks(np.asarray(freqs_hz), np.asarray(float_db), low, range_db):
         if f < f_min:
             skipped.append(f)
         # the standard's one-third-octave tones already cover a weighting channel's grid
@@ -352,7 +367,8 @@ def analyse_tones(design: ChannelDesign, program: ChannelProgram, freqs_hz: np.n
             plan.append((f, None, None))
     plan.sort(key=lambda p: p[0])
 
-    coh = [_coherent(f, fs) for f, _, _ in plan]
+    coh = [_coherent(f, low) for f, _, _ in plan]
+    coh = [(fe, m, n * per) for fe, m, n in coh]
     fx = np.array([c[0] for c in coh])
     h_design = np.abs(design.response(fx))
     from ..blocks import chain_response

@@ -60,6 +60,10 @@ def render_text(desc, summaries: list[dict]) -> str:
                      f"section{'s' if ch['sections'] != 1 else ''}, {ch['fir_taps']} FIR taps; latency "
                      f"{ch['latency_samples']:g} samples ({ch['latency_ms']:.3f} ms)"
                      + (" plus the IIR group delay below" if ch["sections"] else ""))
+        multirate = ch["output_rate_hz"] != ch["sample_rate_hz"]
+        if multirate:
+            lines.append(f"  rates: input {ch['sample_rate_hz']:g} Hz, output {ch['output_rate_hz']:g} Hz (each "
+                         "stage at the rate in brackets; latency and group delay in input samples)")
         for s in ch["stages"]:
             facts = []
             if s["order"]:
@@ -68,7 +72,8 @@ def render_text(desc, summaries: list[dict]) -> str:
                 facts.append(f"{s['sections']} section" + ("s" if s["sections"] != 1 else ""))
             if s["taps"]:
                 facts.append(f"{s['taps']} taps")
-            lines.append(f"  {s['index']:>2}. {s['text']}" + (f"  [{', '.join(facts)}]" if facts else ""))
+            at = f"[{s['rate_hz']:g} Hz] " if multirate else ""
+            lines.append(f"  {s['index']:>2}. {at}{s['text']}" + (f"  [{', '.join(facts)}]" if facts else ""))
             lines.extend(f"      {d}" for d in s.get("details", ()))
         lines.append(f"  {'Hz':>9}  {'magnitude dB':>12}  {'phase deg':>9}  {'group delay (samples)':>21}")
         for r in ch["response"]:

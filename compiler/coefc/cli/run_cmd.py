@@ -2,7 +2,9 @@
 
 The input (mono WAV, or ``.txt`` with one raw data word per line) is fed to each
 chosen channel; the output is a WAV with one channel per filter channel, or a
-``.txt`` with a ``# channels: a b c`` header and one column per channel.  See
+``.txt`` with a ``# channels: a b c`` header and one column per channel, one line
+per output sample.  A multirate channel's output is written at its output rate
+(all chosen channels must end at the same rate).  See
 :mod:`coefc.fileio.samples` for the scaling between WAV and data words.
 """
 
@@ -64,8 +66,20 @@ def run(
         n_ovf = sum(t.overflow_counts)
         if n_ovf:
             overflowed.append(f"{prog.name} ({n_ovf} overflowed samples)")
-    write_samples(output_path, outputs, ar, desc.sample_rate_hz)
+    rates = {p.name: p.output_rate_hz for p in real.programs}
+    if len(set(rates.values())) > 1:  # one file holds one rate
+        from ..errors import DataError
+
+        raise DataError(f"{output_path}: the channels end at different rates ("
+                        + ", ".join(f"{n} {r:g} Hz" for n, r in rates.items())
+                        + "); one output file holds one rate: choose the channels of one rate with --channel")
+    out_rate = next(iter(rates.values()))
+    write_samples(output_path, outputs, ar, out_rate)
     arith = "float32" if ar.is_float else f"data {ar.data}, coef {ar.coef}, acc {ar.acc_bits} bits"
+    n_out = len(next(iter(outputs.values())))
+    if out_rate != desc.sample_rate_hz:
+        sys.stdout.write(f"{output_path}: {len(x)} samples at {desc.sample_rate_hz:g} Hz in, {n_out} samples at "
+                         f"{out_rate:g} Hz out\n")
     sys.stdout.write(f"{output_path}: {len(x)} samples x {len(outputs)} channel(s) "
                      f"({', '.join(outputs)}) on target {real.target.name} ({arith}, {ar.structure})\n")
     if overflowed:

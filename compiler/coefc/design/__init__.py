@@ -39,9 +39,9 @@ import math
 
 import numpy as np
 
-from ..blocks import ChannelDesign, DelayBlock, FirBlock, SosBlock, StageSummary
+from ..blocks import ChannelDesign, DelayBlock, FirBlock, GainBlock, RateBlock, SosBlock, StageSummary
 from ..spec import ChannelSpec
-from ..stagekinds import FIR_KINDS, IIR_KINDS, STAGE_KINDS_TABLE, designer_of
+from ..stagekinds import FIR_KINDS, IIR_KINDS, RATE_KINDS, STAGE_KINDS_TABLE, designer_of
 from ..stagekinds import FREQ_KEYS as _FREQ_KEYS
 from .stage import StageContext, StageResult
 
@@ -104,8 +104,11 @@ def _channel_warnings(blocks, stages: list[tuple[int, StageResult]], fs: float) 
                                    "circle; it needs long coefficient words and may limit-cycle")
     from ..blocks import chain_response
 
-    f = np.linspace(0.0, fs / 2, 2049)[:-1]
-    f = np.unique(np.concatenate([f, np.geomspace(1.0, fs / 2 * 0.999, 512)]))
+    from ..blocks import model_rate
+
+    top = model_rate(blocks, fs)  # the rate of the equivalent single-rate model (multirate channels)
+    f = np.linspace(0.0, top / 2, 2049)[:-1]
+    f = np.unique(np.concatenate([f, np.geomspace(1.0, top / 2 * 0.999, 512)]))
     mag = np.abs(chain_response(blocks, f, fs))
     peak = float(np.max(mag)) if mag.size else 1.0
     if 20 * math.log10(max(peak, 1e-300)) > HEADROOM_WARN_DB:
@@ -167,23 +170,75 @@ def design_channel(channel: ChannelSpec, sample_rate_hz: float, source: str) -> 
     blocks = []
     summaries = []
     results: list[tuple[int, StageResult]] = []
-    for st in channel.stages:
+    fs = float(sample_rate_hz)
+    gain_after_zeros = 1  # an interpolation's factor L, for the filter after it (zero insertion costs 1/L)
+    for pos, st in enumerate(channel.stages):
         ctx = StageContext(source=source, channel=channel.name, index=st.index, kind=st.kind,
-                           fs=float(sample_rate_hz), params=st.params)
+                           fs=fs, params=st.params)
+        if st.kind in RATE_KINDS:
+            _check_rate_change(ctx, channel, pos)
         res = _designer(ctx)(ctx)
         _check_sound(ctx, res)
+        if gain_after_zeros > 1:
+            res = _with_interpolation_gain(res, gain_after_zeros)
+            gain_after_zeros = 1
         blocks.extend(res.blocks)
         _check_totals(ctx, blocks)
         results.append((st.index, res))
         summaries.append(StageSummary(index=st.index, kind=st.kind, text=res.text, order=res.order,
                                       sections=res.sections, taps=res.taps,
                                       latency_samples=res.latency_samples, requirement=res.requirement,
-                                      details=res.details))
+                                      details=res.details, rate_hz=fs))
+        for b in res.blocks:
+            if isinstance(b, RateBlock):
+                fs = fs * b.up / b.down
+                gain_after_zeros = b.up
+    if gain_after_zeros > 1:  # an interpolation ends the channel (allow_imaging): its gain still applies
+        blocks.append(GainBlock(float(gain_after_zeros)))
     warnings = _channel_warnings(blocks, results, float(sample_rate_hz))
     return ChannelDesign(name=channel.name, sample_rate_hz=float(sample_rate_hz), blocks=tuple(blocks),
                          stages=tuple(summaries), warnings=tuple(warnings),
                          stopbands=required_stopbands(channel, float(sample_rate_hz)),
                          edges_hz=stage_frequencies(channel))
+
+
+def _check_rate_change(ctx: StageContext, channel: ChannelSpec, pos: int) -> None:
+    """A decimation needs an anti-alias filter right before it, an interpolation an image filter right
+    after it (unless ``allow_aliasing``/``allow_imaging``); one channel either decimates or interpolates."""
+    from .multirate import BAND_LIMITING_KINDS
+
+    kinds = [st.kind for st in channel.stages]
+    other = "interpolate" if ctx.kind == "decimate" else "decimate"
+    if other in kinds:
+        raise ctx.error(f"this channel both decimates and interpolates; a channel may change its rate in one "
+                        "direction only: split it into two channels or describe one rate change", "kind")
+    if ctx.kind == "decimate" and not ctx.get("allow_aliasing", False):
+        before = kinds[pos - 1] if pos > 0 else None
+        if before not in BAND_LIMITING_KINDS:
+            what = f"a '{before}' stage" if before else "nothing"
+            raise ctx.error(f"{what} comes right before this decimation, so everything above {ctx.fs / 2 / ctx.get('factor', 1):g} Hz "
+                            "folds into the output band; put an anti-alias low-pass (e.g. fir-lowpass) right "
+                            "before it, or write allow_aliasing = true", "factor")
+    if ctx.kind == "interpolate" and not ctx.get("allow_imaging", False):
+        after = kinds[pos + 1] if pos + 1 < len(kinds) else None
+        if after not in BAND_LIMITING_KINDS:
+            what = f"a '{after}' stage" if after else "nothing"
+            raise ctx.error(f"{what} comes right after this interpolation, so the images of the input spectrum "
+                            "stay in the output; put an image-rejection low-pass (e.g. fir-lowpass) right after "
+                            "it, or write allow_imaging = true", "factor")
+
+
+def _with_interpolation_gain(res: StageResult, gain: int) -> StageResult:
+    """The stage after an interpolation by *gain*: its first FIR scaled by the factor (zero insertion
+    leaves 1/L of the signal's amplitude), or a gain block put in front."""
+    from dataclasses import replace as _replace
+
+    first = res.blocks[0] if res.blocks else None
+    if isinstance(first, FirBlock):
+        return _replace(res, blocks=(FirBlock(first.taps * gain, first.label),) + tuple(res.blocks[1:]),
+                        text=res.text + f" (gain x{gain} after zero insertion)")
+    return _replace(res, blocks=(GainBlock(float(gain)),) + tuple(res.blocks),
+                    text=res.text + f" (gain x{gain} after zero insertion)")
 
 
 def stage_frequencies(channel: ChannelSpec) -> tuple[float, ...]:
@@ -225,7 +280,11 @@ def required_stopbands(channel: ChannelSpec, fs: float) -> tuple[tuple[float, fl
     Nyquist.  Stages given by order and cutoff state no stopband and add none.
     """
     bands = []
+    fs0 = fs
     for st in channel.stages:
+        if st.kind in RATE_KINDS:  # later stages run at the new rate: their stopbands end at its Nyquist
+            fs0 = fs0 / st.params["factor"] if st.kind == "decimate" else fs0 * st.params["factor"]
+        fs = fs0
         edge = st.params.get("stopband_hz")
         if edge is None or st.kind not in IIR_KINDS + FIR_KINDS:
             continue

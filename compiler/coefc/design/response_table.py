@@ -23,7 +23,7 @@ import math
 
 import numpy as np
 
-from ..blocks import ChannelDesign, DelayBlock, FirBlock, GainBlock, SosBlock
+from ..blocks import ChannelDesign, DelayBlock, FirBlock, GainBlock, RateBlock, SosBlock  # noqa: F401
 
 #: Nominal octave-band centre frequencies (IEC 61260-1 base-ten series, nominal values).
 OCTAVE_CENTRES_HZ = (31.5, 63.0, 125.0, 250.0, 500.0, 1000.0, 2000.0, 4000.0, 8000.0, 16000.0,
@@ -79,24 +79,28 @@ def _fir_delay(taps: np.ndarray, w: np.ndarray) -> np.ndarray:
 def group_delay_samples(design: ChannelDesign, freqs_hz) -> np.ndarray:
     """Group delay of the whole channel in samples at *freqs_hz* (NaN where undefined)."""
     f = np.atleast_1d(np.asarray(freqs_hz, dtype=float))
-    w = 2 * np.pi * f / design.sample_rate_hz
-    tau = np.zeros_like(w)
+    fs = design.sample_rate_hz
+    tau = np.zeros_like(f)
     for b in design.blocks:
+        # a block after a rate change runs at its own rate: its delay in its own samples,
+        # counted in samples of the channel input
+        w, per = 2 * np.pi * f / fs, design.sample_rate_hz / fs
         if isinstance(b, SosBlock):
             for row in b.sos:
-                tau += _poly_delay(row[:3], w) - _poly_delay(row[3:], w)
+                tau += per * (_poly_delay(row[:3], w) - _poly_delay(row[3:], w))
         elif isinstance(b, FirBlock):
-            tau += _fir_delay(np.asarray(b.taps, dtype=float), w)
+            tau += per * _fir_delay(np.asarray(b.taps, dtype=float), w)
         elif isinstance(b, DelayBlock):
-            tau += b.samples
-        elif isinstance(b, GainBlock):
-            pass
+            tau += per * b.samples
+        elif isinstance(b, RateBlock):
+            fs = fs * b.up / b.down
     return tau
 
 
 def latency_samples(design: ChannelDesign) -> float:
     """Frequency-independent delay: integer delays plus linear-phase FIR bulk delay."""
-    return float(sum(s.latency_samples for s in design.stages))
+    fs = design.sample_rate_hz  # a stage after a rate change counts its latency in its own samples
+    return float(sum(s.latency_samples * (fs / s.rate_hz if s.rate_hz else 1.0) for s in design.stages))
 
 
 def response_rows(design: ChannelDesign, freqs_hz) -> list[dict]:
@@ -126,13 +130,14 @@ def channel_summary(design: ChannelDesign, freqs_hz) -> dict:
     return {
         "name": design.name,
         "sample_rate_hz": design.sample_rate_hz,
+        "output_rate_hz": design.output_rate_hz,
         "latency_samples": lat,
         "latency_ms": lat / design.sample_rate_hz * 1e3,
         "sections": int(sum(s.sections for s in design.stages)),
         "fir_taps": int(sum(s.taps for s in design.stages)),
         "stages": [
             {"index": s.index, "kind": s.kind, "text": s.text, "order": s.order, "sections": s.sections,
-             "taps": s.taps, "latency_samples": s.latency_samples,
+             "taps": s.taps, "latency_samples": s.latency_samples, "rate_hz": s.rate_hz or design.sample_rate_hz,
              "requirement": dict(s.requirement) if s.requirement is not None else None,
              "details": list(s.details)}
             for s in design.stages

@@ -33,7 +33,7 @@ import re
 from dataclasses import dataclass
 
 from ..errors import CoefcError, DescriptionError, TargetError, setting
-from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
+from ..program import ChannelProgram, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp, STRUCTURE_TABLE
 from ..spec import C99_KEYWORDS
 from ..targetspec import BuildInfo, Target, check_kernel_words, kernel_info
 
@@ -275,6 +275,21 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
             if d < 0:
                 fail(f"op {i} is a negative delay ({d} samples); fix the delay")
             ops.append(KernelOp("DELAY", 0, d, (), d + 1 if d else 0, f"delay, {d} samples"))
+        elif isinstance(op, (PolyFirOp, RateOp)):
+            how = f"decimating by {op.down}" if op.down > 1 else f"interpolating by {op.up}"
+            what = (f"polyphase FIR (op {i}, {how})" if isinstance(op, PolyFirOp) else f"rate change (op {i}, {how})")
+            if not generated:
+                fail(f"op {i} is a {what}, which the reference kernel of target '{target.name}' does not run "
+                     "(a multirate channel); write generated code (coefc build --kernel)")
+            if isinstance(op, PolyFirOp):
+                taps = list(op.taps)
+                if not taps:
+                    fail(f"op {i} is an FIR without taps; realise the channel again")
+                k = rshift(op.shift, what, False)
+                ops.append(KernelOp("POLYFIR", k, len(taps), words(taps, what), len(taps) + 1,
+                                    f"polyphase FIR, {len(taps)} taps, {how}, coefficient shift {op.shift}"))
+            else:
+                ops.append(KernelOp("RATE", 0, op.factor, (), 0, f"rate change, {how}"))
         else:
             fail(f"op {i} ({type(op).__name__}) has no C form")
     return tuple(ops)

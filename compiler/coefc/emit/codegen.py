@@ -63,7 +63,8 @@ from pathlib import Path
 
 from .header import EmitError
 from ..errors import DescriptionError, setting
-from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE, lo_bits
+from ..program import (ChannelProgram, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp, STRUCTURE_TABLE,
+                       decimation, lo_bits)
 
 __all__ = ["CNames", "ChannelCNames", "channel_cost", "cost_of", "render_kernel", "GeneratedCodeError"]
 
@@ -119,7 +120,7 @@ class CNames:
                         "golden_out": "_golden_out", "check": "_check"}
     GLOBAL_MACROS = ("COEFC_H", "DATA_BITS", "DATA_FRAC_BITS", "COEF_BITS", "COEF_FRAC_BITS", "ACC_BITS",
                      "SAMPLE_RATE_HZ", "OVER_BUDGET", "N_CHANNELS", "GOLDEN_LEN", "GENERATED_CODE")
-    CHANNEL_MACROS = ("MULS_PER_SAMPLE", "ADDS_PER_SAMPLE", "COEF_BYTES", "STATE_BYTES", "SECTIONS")
+    CHANNEL_MACROS = ("MULS_PER_SAMPLE", "ADDS_PER_SAMPLE", "COEF_BYTES", "STATE_BYTES", "SECTIONS", "DECIMATION")
 
     def description(self) -> dict[str, str]:
         """The description's identifiers by field (``data_t``, ``selftest``, ``golden_in``)."""
@@ -199,12 +200,33 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
     folded ceil(N/2) multiplies and N - 1 adds; a gain one multiply; a delay none.
     Coefficient bytes count the stored coefficient words (a folded FIR stores
     ceil(N/2)); state bytes the fields of the generated state structure before
-    padding.
+    padding.  In a multirate channel the figures are per *input* sample, rounded
+    up: a polyphase FIR decimating by M costs N/M multiplies per input sample
+    (folded ceil(N/2)/M), and an op after a rate change counts its work times its
+    rate over the input rate.
     """
+    from fractions import Fraction
+
     fixed = not program.arithmetic.is_float
     muls = adds = coefs = 0
     state = 0
+    per = Fraction(1)  # this op's samples per channel input sample (multirate channels)
+    mr, ar_ = Fraction(0), Fraction(0)  # multiplies and adds of ops at other rates, per input sample
     for op in program.ops:
+        if isinstance(op, (PolyFirOp, RateOp)):
+            if isinstance(op, PolyFirOp):  # N products per output sample at the lower rate
+                n = len(op.taps)
+                folded = op.symmetric and fixed and op.down > 1
+                low = per / op.down if op.down > 1 else per
+                mr += low * ((n + 1) // 2 if folded else n)
+                ar_ += low * (n - 1)
+                coefs += (n + 1) // 2 if folded else n
+                state += 2 * n * data_bytes + 8
+            else:
+                state += 4
+            per = per * Fraction(op.up, op.down)
+            continue
+        m0, a0 = muls, adds
         if isinstance(op, SectionOp) and STRUCTURE_TABLE[op.structure].state_space:
             muls += STRUCTURE_TABLE[op.structure].multiplies  # coupled: y 3, S1 3, S2 2
             adds += 5
@@ -228,6 +250,13 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
             coefs += 1
         elif isinstance(op, DelayOp):
             state += (op.samples * data_bytes + 4) if op.samples else 0
+        if per != 1:  # an op after a rate change: its work counted per channel input sample
+            mr += per * (muls - m0)
+            ar_ += per * (adds - a0)
+            muls, adds = m0, a0
+    if mr or ar_:
+        muls += -(-mr.numerator // mr.denominator)
+        adds += -(-ar_.numerator // ar_.denominator)
     return {"muls_per_sample": muls, "adds_per_sample": adds, "coef_bytes": coefs * coef_bytes,
             "state_bytes": state}
 
@@ -554,7 +583,8 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                 body += t1 + t2 + ["s1 = n1 + s2;", "s2 = n2;", "out[t] = y;"]
             lines = pre + _loop(src, body, D) + post
             out.append(_OpCode(head + fx.product_note(), fields, lines))
-        elif isinstance(op, FirOp):
+        elif isinstance(op, (FirOp, PolyFirOp)):
+            _no_interpolation(program, op, i)
             taps = [int(v) for v in op.taps]
             n = len(taps)
             k = fx.k_of(op.shift)
@@ -607,7 +637,12 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                 body += [f"{U} acc = 0u;", f"for (j = 0u; j < {n}u; j++) {{",
                          f"    acc += {fx.prodv('z[p + j]', 'h[j]', C)};", "}"]
             body += fx.finish("acc", k, C, "y") + ["out[t] = y;"]
+            if isinstance(op, PolyFirOp):
+                head, fields, pre, body, post = _decimating(op, f, head, fields, pre, body, post,
+                                                            pushed=3 if unroll else 4)
             out.append(_OpCode(head + fx.product_note(), fields, pre + _loop(src, body, D) + post))
+        elif isinstance(op, RateOp):
+            out.append(_rate_op(program, op, f, src, D, i))
         elif isinstance(op, GainOp):
             k = fx.k_of(op.shift)
             C = _container(program, k)
@@ -620,6 +655,40 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
         else:  # pragma: no cover - emit refuses first
             raise GeneratedCodeError(f"channel '{program.name}': op {i} has no generated code")
     return out
+
+
+def _no_interpolation(program: ChannelProgram, op, i: int) -> None:
+    if isinstance(op, PolyFirOp) and op.up > 1:
+        raise GeneratedCodeError(f"channel '{program.name}': op {i} interpolates by {op.up}, which generated code "
+                                 "does not write yet (decimation it does); simulate it with coefc run")
+
+
+def _decimating(op: PolyFirOp, f: str, head, fields, pre, body, post, pushed: int, y: str = "y"):
+    """An FIR's code turned into its polyphase decimation by ``M = op.down``: every input enters the
+    history, the sum of products is formed only when the input phase is 0 (the kept samples,
+    coefc.program's polyfir), and the block's length becomes the number of outputs."""
+    M = op.down
+    push, comp = body[:pushed], body[pushed:-1]
+    head = [head[0].replace("FIR,", f"polyphase FIR decimating by {M},", 1), *head[1:],
+            f"only every {M}-th output (input phase 0) is computed"]
+    fields = fields + [("uint32_t", f"{f}_ph", 0, f"input phase 0 .. {M - 1}; an output is made at 0")]
+    pre = pre + [f"uint32_t ph = s->{f}_ph;", "size_t o = 0u;"]
+    body = push + ["if (ph == 0u) {", *_indent(comp + [f"out[o] = {y};", "o++;"], 4), "}",
+                   f"ph = (ph + 1u == {M}u) ? 0u : ph + 1u;"]
+    post = post + [f"s->{f}_ph = ph;", f"n = o; /* the block at the new rate: n / {M} samples */"]
+    return head, fields, pre, body, post
+
+
+def _rate_op(program: ChannelProgram, op: RateOp, f: str, src: str, D: str, i: int) -> _OpCode:
+    if op.up > 1:
+        raise GeneratedCodeError(f"channel '{program.name}': op {i} inserts zeros (interpolation by {op.up}), which "
+                                 "generated code does not write yet; simulate it with coefc run")
+    M = op.down
+    fields = [("uint32_t", f"{f}_ph", 0, f"input phase 0 .. {M - 1}; a sample is kept at 0")]
+    body = ["if (ph == 0u) {", "    out[o] = x;", "    o++;", "}", f"ph = (ph + 1u == {M}u) ? 0u : ph + 1u;"]
+    lines = [f"uint32_t ph = s->{f}_ph;", "size_t o = 0u;", *_loop(src, body, D), f"s->{f}_ph = ph;",
+             f"n = o; /* the block at the new rate: n / {M} samples */"]
+    return _OpCode([f"keep every {M}-th sample (no anti-alias filter: allow_aliasing)"], fields, lines)
 
 
 def _delay(op: DelayOp, f: str, src: str, D: str) -> _OpCode:
@@ -673,7 +742,8 @@ def _float_ops(program: ChannelProgram) -> list[_OpCode]:
             else:
                 raise GeneratedCodeError(f"channel '{program.name}': float32 has no {op.structure} sections")
             out.append(_OpCode(head, fields, pre + _loop(src, body, D) + post))
-        elif isinstance(op, FirOp):
+        elif isinstance(op, (FirOp, PolyFirOp)):
+            _no_interpolation(program, op, i)
             taps = [flt(v) for v in op.taps]
             n = len(taps)
             head = [f"FIR, {n} taps: acc = t0 x[n]; acc += t_j x[n-j] for j = 1 .. {n - 1} (each step rounded); "
@@ -686,7 +756,13 @@ def _float_ops(program: ChannelProgram) -> list[_OpCode]:
             body = ["uint32_t j;", f"p = (p == 0u) ? {n - 1}u : p - 1u;", "z[p] = x;", f"z[p + {n}u] = x;",
                     "float acc = h[0] * x;", f"for (j = 1u; j < {n}u; j++) {{", "    const float q = h[j] * z[p + j];",
                     "    acc = acc + q;", "}", "out[t] = acc;"]
-            out.append(_OpCode(head, fields, pre + _loop(src, body, D) + [f"s->{f}_p = p;"]))
+            post = [f"s->{f}_p = p;"]
+            if isinstance(op, PolyFirOp):
+                head, fields, pre, body, post = _decimating(op, f, head, fields, pre, body, post, pushed=4,
+                                                            y="acc")
+            out.append(_OpCode(head, fields, pre + _loop(src, body, D) + post))
+        elif isinstance(op, RateOp):
+            out.append(_rate_op(program, op, f, src, D, i))
         elif isinstance(op, GainOp):
             c = flt(op.coef)
             out.append(_OpCode([f"gain {c}: y = c x"], [], _loop(src, [f"out[t] = {c} * x;"], D)))
@@ -711,6 +787,10 @@ def _fields_sorted(ops: list[_OpCode]) -> list[dict]:
                          int(re.sub(r"\D", "", ctype))})
     rows.sort(key=lambda r: -r["bits"])
     return rows
+
+
+def _hz(v: float) -> str:
+    return str(int(v)) if float(v).is_integer() else repr(float(v))
 
 
 def render_kernel(*, programs, names: CNames, source: str, banner: list[str], header_name: str,
@@ -747,7 +827,16 @@ def render_kernel(*, programs, names: CNames, source: str, banner: list[str], he
             "uses_state": bool(fields),
             "ops": [{"comment": o.comment, "lines": o.lines} for o in ops],
             "golden_lines": _lines(golden_outs[i]) if golden_inputs else [],
+            # multirate: the decimation M (blocks of a multiple of M samples, n / M out) and the rates
+            "decim": decimation(p.ops),
+            "golden_len": len(golden_outs[i]) if golden_inputs else 0,
+            "rates": (f"{_hz(p.sample_rate_hz)} Hz in, {_hz(p.output_rate_hz)} Hz out"
+                      if p.output_rate_hz != p.sample_rate_hz else ""),
         })
+        if golden_inputs and len(golden_inputs) % channels[-1]["decim"]:
+            raise GeneratedCodeError(f"channel '{p.name}' decimates by {channels[-1]['decim']}, and the "
+                                     f"{len(golden_inputs)} golden-vector samples are not a multiple of it; give "
+                                     f"{setting('vectors')} a multiple of {channels[-1]['decim']}")
     context = {
         "banner": banner,
         "header_name": header_name,

@@ -69,10 +69,10 @@ from dataclasses import replace
 
 import numpy as np
 
-from ..blocks import ChannelDesign, DelayBlock, FirBlock, GainBlock, SosBlock
+from ..blocks import ChannelDesign, DelayBlock, FirBlock, GainBlock, RateBlock, SosBlock
 from ..errors import CoefcError
-from ..program import STRUCTURE_TABLE, Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, Note, SectionOp
-from ..program import section_transfer
+from ..program import (STRUCTURE_TABLE, Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, Note, PolyFirOp, RateOp,
+                       SectionOp, section_transfer)
 from ..qformat import QFormat  # noqa: F401 (used by the doctest)
 from . import coefficients, coupled, pairing, scaling
 
@@ -231,6 +231,11 @@ def realise_channel(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelPro
     >>> p.ops[0].a, p.ops[0].b[1] == 2 * p.ops[0].b[0] == 2 * p.ops[0].b[2]
     ((-29743, 13615), True)
     """
+    if any(isinstance(b, RateBlock) for b in design.blocks):
+        if arithmetic.product_shift:
+            raise RealisationError(f"channel '{design.name}': rate-changing stages are not modelled with rounded "
+                                   "products ([arithmetic] product_shift); choose a target with exact products")
+        return _realise_multirate(design, arithmetic)
     if arithmetic.is_float and not STRUCTURE_TABLE[arithmetic.structure].float32:
         raise RealisationError(f"channel '{design.name}': structure '{arithmetic.structure}' "
                                f"({STRUCTURE_TABLE[arithmetic.structure].description}) needs fixed-point arithmetic; use "
@@ -478,3 +483,78 @@ def _build(design, arithmetic, pre_gain, delay, chain, final_gain, notes) -> Cha
     for kind, op in chain:
         ops.append(_fixed_op(kind, op, 1.0, arithmetic, notes, sum(isinstance(o, SectionOp) for o in ops) + 1)[0])
     return _finish(design, arithmetic, delay, ops, final_gain, notes)
+
+
+def _realise_multirate(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelProgram:
+    """A channel with rate changes: each stretch between rate changes realised on its own, then joined.
+
+    Blocks do not commute across a rate change, so the op ordering, pairing and
+    scaling of :func:`realise_channel` act within each stretch at its own rate (each
+    stretch's input is a data word within full scale, so its scaling promise holds
+    on its own).  At the joins a decimation directly after an FIR becomes one
+    polyphase :class:`~coefc.program.PolyFirOp` (gains after that FIR are moved behind
+    the rate change: a gain is memoryless, so it commutes with keeping every M-th
+    sample bit for bit), and an interpolation directly before an FIR likewise (gains
+    before that FIR move in front of the zero insertion: the rounded gain of 0 is 0).
+    Otherwise the rate change stays a :class:`~coefc.program.RateOp`.  The gain that
+    restores a stretch's scaling is carried on to the next stretch (and so to the
+    channel's final gain op), so that no stretch output is driven past its scaling.
+
+    References
+    ----------
+    R. E. Crochiere and L. R. Rabiner, *Multirate Digital Signal Processing*,
+    Prentice-Hall, 1983, ch. 3 (polyphase structures; from memory).
+    """
+    stretches: list[tuple[float, list]] = [(design.sample_rate_hz, [])]
+    rates: list[RateBlock] = []
+    fs = design.sample_rate_hz
+    for b in design.blocks:
+        if isinstance(b, RateBlock):
+            fs = fs * b.up / b.down
+            rates.append(b)
+            stretches.append((fs, []))
+        else:
+            stretches[-1][1].append(b)
+    ops: list = []
+    notes: list[Note] = []
+    carry = 1.0  # the gain a stretch's final gain op would restore, carried into the next stretch
+    fc = 0 if arithmetic.is_float else arithmetic.coef.frac_bits
+    for i, (rate, blocks) in enumerate(stretches):
+        seg: list = []
+        if carry != 1.0:
+            blocks = [GainBlock(carry)] + list(blocks)
+            carry = 1.0
+        if blocks:
+            sub = realise_channel(ChannelDesign(f"{design.name}", rate, tuple(blocks)), arithmetic)
+            seg = list(sub.ops)
+            if i + 1 < len(stretches) and seg and isinstance(seg[-1], GainOp):
+                # the gain restoring this stretch's scale goes on, through the rate change (a gain is
+                # memoryless), to the end of the channel: restored here it could overflow the
+                # stretch's output, which is an internal node of the channel
+                g = seg.pop()
+                carry = float(g.coef) * 2.0 ** (g.shift - fc)
+            at = f"at {rate:g} Hz: " if i else ""
+            notes.extend(Note(n.kind, at + str(n)) for n in sub.notes)
+        if i > 0 and rates[i - 1].up > 1:  # the interpolation before this stretch
+            L = rates[i - 1].up
+            j = next((j for j, op in enumerate(seg) if not isinstance(op, GainOp)), len(seg))
+            if j < len(seg) and isinstance(seg[j], FirOp):
+                f = seg[j]
+                seg = seg[:j] + [PolyFirOp(taps=f.taps, shift=f.shift, up=L, symmetric=f.symmetric)] + seg[j + 1:]
+            else:
+                seg = seg[:j] + [RateOp(up=L)] + seg[j:]
+            j = next(j for j, op in enumerate(seg) if isinstance(op, (PolyFirOp, RateOp)))
+            ops.extend(seg[:j])  # gains moved in front of the zero insertion
+            seg = seg[j:]
+        if i < len(rates) and rates[i].down > 1:  # the decimation after this stretch
+            M = rates[i].down
+            j = len(seg)
+            while j > 0 and isinstance(seg[j - 1], GainOp):
+                j -= 1
+            if j > 0 and isinstance(seg[j - 1], FirOp):
+                f = seg[j - 1]
+                seg[j - 1] = PolyFirOp(taps=f.taps, shift=f.shift, down=M, symmetric=f.symmetric)
+            else:
+                seg.insert(j, RateOp(down=M))
+        ops.extend(seg)
+    return ChannelProgram(design.name, design.sample_rate_hz, arithmetic, tuple(ops), tuple(notes))

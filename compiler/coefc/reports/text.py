@@ -86,8 +86,15 @@ def render_text(report) -> str:
             arith = f"float32 {a['structure']}"
         else:
             arith = f"{a['structure']} data {a['data']} coef {a['coef']} acc {a['acc_bits']} {a['rounding']} {a['overflow']}"
-        lines.append(f"channel {ch.name}  [{'PASS' if ch.ok else 'FAIL'}]  {ch.sample_rate_hz:g} Hz, "
+        rate = f"{ch.sample_rate_hz:g} Hz"
+        out_rate = getattr(ch, "output_rate_hz", None)
+        if out_rate is not None and out_rate != ch.sample_rate_hz:
+            rate += f" -> {out_rate:g} Hz"
+        lines.append(f"channel {ch.name}  [{'PASS' if ch.ok else 'FAIL'}]  {rate}, "
                      f"{report.target}: {arith}")
+        if getattr(ch, "block_multiple", 1) > 1:
+            lines.append(f"  blocks: the input length of every call must be a multiple of {ch.block_multiple} "
+                         "(the decimation factor), so each block starts at the same polyphase phase")
         w = max([len(c.name) for c in ch.checks] + [10])
         for c in ch.checks:
             mark = "ok  " if c.ok else "FAIL"
