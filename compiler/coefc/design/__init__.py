@@ -210,7 +210,7 @@ def _check_rate_change(ctx: StageContext, channel: ChannelSpec, pos: int) -> Non
     kinds = [st.kind for st in channel.stages]
     other = "interpolate" if ctx.kind == "decimate" else "decimate"
     if other in kinds:
-        raise ctx.error(f"this channel both decimates and interpolates; a channel may change its rate in one "
+        raise ctx.error("this channel both decimates and interpolates; a channel may change its rate in one "
                         "direction only: split it into two channels or describe one rate change", "kind")
     if ctx.kind == "decimate" and not ctx.get("allow_aliasing", False):
         before = kinds[pos - 1] if pos > 0 else None
