@@ -161,5 +161,7 @@ def test_reference_kernels_refuse_double_word_feedback_in_one_line():
             real = load(path).design().realise(target, Overrides(structure=structure))
             with pytest.raises(EmitError) as e:
                 render(real, None, header_name="x.h", vectors=0)
-            msg = str(e.value)
+            from coefc.cli.options import OPTION_OF_SETTING
+
+            msg = e.value.spoken(OPTION_OF_SETTING)  # as the CLI prints it: the fix names the option
             assert "\n" not in msg and structure in msg and "--kernel" in msg and "section 1" in msg

@@ -84,7 +84,7 @@ def test_fixed_point_kernels_come_from_one_set_of_templates():
 
 def test_a_target_folder_template_wins_over_the_shared_one(tmp_path):
     """A user target copies one piece of the kernel (or the header template) and changes only that."""
-    from c_build import fake_realisation, hand_programs
+    from c_build import fake_realisation, hand_programs, kernel_structures
     from coefc.emit.header import render
     from coefc.targetspec import common_dir
 
@@ -102,7 +102,7 @@ def test_a_target_folder_template_wins_over_the_shared_one(tmp_path):
     texts = kernel_texts(t, build_info(t))
     assert "/* board's own FIR */" in texts["coefc_mcu32.c"]
     assert "board's own" not in kernel_texts(find_target("mcu32"), build_info(find_target("mcu32")))["coefc_mcu32.c"]
-    real = fake_realisation(hand_programs(t.arithmetic, t.structures), "mcu32")
+    real = fake_realisation(hand_programs(t.arithmetic, kernel_structures(t.structures)), "mcu32")
     real = type(real)(real.design, t, real.programs)
     files = render(real, None, header_name="lab.h", vectors=0, with_kernel=True)
     assert "/* board's header */" in files["lab.h"] and "/* board's own FIR */" in files["coefc_mcu32.c"]

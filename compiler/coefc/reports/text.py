@@ -100,7 +100,7 @@ def render_text(report) -> str:
             mark = "ok  " if c.ok else "FAIL"
             lines.append(f"  {mark} {c.name:<{w}} {_value(c.name, c):>14}  {_limit(c.name, c.limit):<12} "
                          f"{ch.reasons.get(c.name, '')}")
-        chosen = [s["chosen"] for s in ch.sections if isinstance(s, dict) and s.get("chosen")]
+        chosen = [s["chosen"] for s in getattr(ch, "sections", ()) if isinstance(s, dict) and s.get("chosen")]
         if chosen:
             lines.append(f"{ch.name}: structure auto: " + "; ".join(chosen))
         cost = ch.metrics.get("cost") if isinstance(ch.metrics, dict) else None
