@@ -20,6 +20,18 @@ def example_files() -> list[Path]:
     return sorted(FILTERS.glob("*.toml"))
 
 
+def examples_for(target) -> list[Path]:
+    """The examples *target* can realise: a rate change needs exact products (coefc.realise refuses
+    it on a target that rounds products), so those examples are left out there."""
+    import coefc
+    from coefc.stagekinds import RATE_KINDS
+
+    if not target.arithmetic.product_shift:
+        return example_files()
+    return [p for p in example_files()
+            if not any(st.kind in RATE_KINDS for ch in coefc.load(p).description.channels for st in ch.stages)]
+
+
 def target_copy(tmp_path: Path, fixture: str, abi: int | None = None) -> Path:
     """A copy of the target folder tests/target_fixtures/*fixture* with the built-in
     mcu32 kernel (rendered from the shared templates) written into its kernel/ folder

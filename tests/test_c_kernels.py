@@ -17,7 +17,8 @@ from __future__ import annotations
 import pytest
 
 from c_build import (compilers, emit_text, hand_programs, kernel_structures, m32_works, run_headers, ubsan_works)
-from conftest import example_files
+from coefc.cli.options import OPTION_OF_SETTING
+from conftest import example_files, examples_for
 from coefc.api import load
 from coefc.emit.header import EmitError, render
 from coefc.qformat import ROUNDING_MODES
@@ -51,7 +52,7 @@ def _example_headers(target_name: str):
     and the (example, structure, error) of any the emitter refused."""
     target = find_target(target_name)
     out, refused = [], []
-    for path in example_files():
+    for path in examples_for(target):
         for s in kernel_structures(target.structures):
             real = load(path).design().realise(target, Overrides(structure=s))
             name = real.design.loaded.description.name
@@ -59,7 +60,7 @@ def _example_headers(target_name: str):
             try:
                 text = render(real, None, header_name=fname, vectors=128)[fname]
             except EmitError as e:
-                refused.append((path.name, s, str(e)))
+                refused.append((path.name, s, e.spoken(OPTION_OF_SETTING)))  # as the CLI prints it
                 continue
             out.append((fname, name, text))
     return out, refused
@@ -161,7 +162,5 @@ def test_reference_kernels_refuse_double_word_feedback_in_one_line():
             real = load(path).design().realise(target, Overrides(structure=structure))
             with pytest.raises(EmitError) as e:
                 render(real, None, header_name="x.h", vectors=0)
-            from coefc.cli.options import OPTION_OF_SETTING
-
             msg = e.value.spoken(OPTION_OF_SETTING)  # as the CLI prints it: the fix names the option
             assert "\n" not in msg and structure in msg and "--kernel" in msg and "section 1" in msg

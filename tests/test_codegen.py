@@ -25,7 +25,7 @@ import pytest
 
 from c_build import (CROSS, Platform, compilers, generated_files, hand_programs, m32_works, run_generated,
                      ubsan_works)
-from conftest import example_files
+from conftest import example_files, examples_for
 from coefc.api import load
 from coefc.emit.codegen import CNames
 from coefc.emit.header import c_identifier, render
@@ -55,7 +55,7 @@ def _units(target_name: str, every_mode: bool = True, examples: bool = True):
             hand_programs(base.with_(acc_bits=NARROW_ACC[target_name], overflow="wrap"), target.structures, seed=99),
             target_name, "gen_narrow")))
     if examples:
-        for path in example_files():
+        for path in examples_for(target):
             for s in target.structures:
                 real = load(path).design().realise(target, Overrides(structure=s))
                 name = f"{path.stem}_{s}"

@@ -16,7 +16,7 @@ from ..targetspec import Overrides
 #: The option that sets each setting a library message may name (:func:`coefc.errors.setting`):
 #: the CLI prints errors with these, the library with the settings' own names.
 OPTION_OF_SETTING = {
-    "acc_bits": "--acc", "channel": "--channel", "coef": "--coef", "data": "--data", "force": "--force",
+    "acc_bits": "--acc", "band": "--band", "base": "--base", "channel": "--channel", "coef": "--coef", "data": "--data", "force": "--force",
     "kernel": "--kernel", "search_limit": "--search-limit", "structure": "--structure",
     "target_dirs": "--target-dir", "vectors": "--vectors",
 }

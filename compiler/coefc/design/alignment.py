@@ -28,7 +28,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..errors import DataError
+from ..errors import DataError, setting
 from ..fileio.measurement import MeasurementError, _read_bytes
 
 #: Fraction of a sample of the fine search grid around the correlation peak.
@@ -135,7 +135,7 @@ def align(paths: list[str], band_hz: tuple[float, float] | None = None) -> tuple
     band = band_hz or (100.0, min(10000.0, 0.45 * fs))
     if not 0 < band[0] < band[1] <= fs / 2:
         raise DataError(f"band [{band[0]:g}, {band[1]:g}] Hz must lie inside 0..{fs / 2:g} Hz (Nyquist) with the "
-                        "low edge first; fix --band")
+                        f"low edge first; fix the band ({setting('band')})")
     out = []
     for p, x in zip(paths, irs):
         lag, inv = (0.0, False) if x is irs[0] else relative_lag(x, irs[0])

@@ -280,7 +280,7 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
             what = (f"polyphase FIR (op {i}, {how})" if isinstance(op, PolyFirOp) else f"rate change (op {i}, {how})")
             if not generated:
                 fail(f"op {i} is a {what}, which the reference kernel of target '{target.name}' does not run "
-                     "(a multirate channel); write generated code (coefc build --kernel)")
+                     f"(a multirate channel); write generated code ({setting('kernel')})")
             if isinstance(op, PolyFirOp):
                 taps = list(op.taps)
                 if not taps:

@@ -357,7 +357,7 @@ def sum_svg(plt, analysis, fs: float, title: str) -> str:
 
 def op_rows(program) -> list[dict]:
     """Every realised op with its number and its integers as the chip stores them."""
-    from ..program import DelayOp, FirOp, GainOp, SectionOp
+    from ..program import DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp
 
     out, n_sec = [], 0
     for i, op in enumerate(program.ops):
@@ -371,6 +371,12 @@ def op_rows(program) -> list[dict]:
         elif isinstance(op, FirOp):
             row.update(kind=f"FIR, {len(op.taps)} taps" + (", symmetric" if op.symmetric else ""), shift=op.shift,
                        taps=", ".join(str(t) for t in op.taps))
+        elif isinstance(op, PolyFirOp):
+            how = f"decimating by {op.down}" if op.down > 1 else f"interpolating by {op.up}"
+            row.update(kind=f"FIR, {len(op.taps)} taps, polyphase, {how}" + (", symmetric" if op.symmetric else ""),
+                       shift=op.shift, taps=", ".join(str(t) for t in op.taps))
+        elif isinstance(op, RateOp):
+            row.update(kind=f"rate change, down {op.down}, up {op.up}")
         elif isinstance(op, DelayOp):
             row.update(kind=f"delay, {op.samples} samples")
         out.append(row)

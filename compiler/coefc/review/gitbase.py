@@ -13,7 +13,7 @@ import shutil
 import subprocess
 from pathlib import Path
 
-from ..errors import CoefcError
+from ..errors import CoefcError, setting
 
 _TIMEOUT_S = 60
 
@@ -21,15 +21,15 @@ _TIMEOUT_S = 60
 def _git(args, cwd: Path) -> subprocess.CompletedProcess:
     exe = shutil.which("git")
     if exe is None:
-        raise CoefcError("--base: the git program is not installed or not on PATH; install git, or give "
+        raise CoefcError(setting("base") + ": the git program is not installed or not on PATH; install git, or give "
                          "OLD.toml NEW.toml instead")
     try:
         return subprocess.run([exe, *args], cwd=cwd, capture_output=True, timeout=_TIMEOUT_S,
                               env={**_clean_env(), "GIT_TERMINAL_PROMPT": "0", "LC_ALL": "C"})
     except subprocess.TimeoutExpired:
-        raise CoefcError(f"--base: git did not answer within {_TIMEOUT_S} s in {cwd}; try again") from None
+        raise CoefcError(f"{setting('base')}: git did not answer within {_TIMEOUT_S} s in {cwd}; try again") from None
     except OSError as e:
-        raise CoefcError(f"--base: cannot run git ({e.strerror or e}); check the git installation") from None
+        raise CoefcError(f"{setting('base')}: cannot run git ({e.strerror or e}); check the git installation") from None
 
 
 def _clean_env() -> dict:
@@ -50,23 +50,23 @@ def read_at_revision(path, rev: str) -> tuple[bytes | None, str]:
         git missing, *path* outside a git repository, *rev* unknown.
     """
     if not rev or rev.startswith("-") or any(c in rev for c in "\n\r\0"):
-        raise CoefcError(f"--base '{rev}': not a revision; name a commit, branch or tag (e.g. origin/main)")
+        raise CoefcError(f"{setting('base')} '{rev}': not a revision; name a commit, branch or tag (e.g. origin/main)")
     p = Path(path)
     folder = p.parent if str(p.parent) else Path(".")
     if not folder.is_dir():
         raise CoefcError(f"{path}: its folder {folder} does not exist; check the path")
     top = _git(["rev-parse", "--show-toplevel"], folder)
     if top.returncode != 0:
-        raise CoefcError(f"{path}: not inside a git repository, so --base {rev} has no old version to read; "
+        raise CoefcError(f"{path}: not inside a git repository, so {setting('base')} {rev} has no old version to read; "
                          "run it inside the repository or give OLD.toml NEW.toml")
     root = Path(top.stdout.decode("utf-8", "surrogateescape").strip())
     if _git(["rev-parse", "--verify", "--quiet", "--end-of-options", f"{rev}^{{commit}}"], folder).returncode != 0:
-        raise CoefcError(f"--base {rev}: unknown revision in {root}; name a commit, branch or tag that exists "
+        raise CoefcError(f"{setting('base')} {rev}: unknown revision in {root}; name a commit, branch or tag that exists "
                          "there (git log shows them; in CI fetch the base branch first)")
     try:
         rel = p.resolve().relative_to(root.resolve()).as_posix()
     except ValueError:
-        raise CoefcError(f"{path}: outside the git repository at {root}; --base reads files of that repository "
+        raise CoefcError(f"{path}: outside the git repository at {root}; {setting('base')} reads files of that repository "
                          "only") from None
     name = f"{rev}:{rel}"
     if _git(["cat-file", "-e", name], root).returncode != 0:
@@ -74,5 +74,5 @@ def read_at_revision(path, rev: str) -> tuple[bytes | None, str]:
     shown = _git(["cat-file", "blob", name], root)
     if shown.returncode != 0:
         msg = shown.stderr.decode("utf-8", "replace").strip().splitlines()
-        raise CoefcError(f"--base: git cannot read {name}" + (f" ({msg[-1]})" if msg else "") + "; check the path")
+        raise CoefcError(f"{setting('base')}: git cannot read {name}" + (f" ({msg[-1]})" if msg else "") + "; check the path")
     return shown.stdout, name
