@@ -123,3 +123,16 @@ def close_match(word: str, choices: Iterable[str], stems: Iterable[tuple[str, st
             return f" (did you mean '{choice}'?)"
     hits = difflib.get_close_matches(word, list(choices), n=1, cutoff=0.6)
     return f" (did you mean '{hits[0]}'?)" if hits else ""
+
+
+def internal_error_line(exc: BaseException) -> str:
+    """The one line of an internal error (a bug in coefc): its type, where it was raised and its message."""
+    where = ""
+    tb = exc.__traceback__
+    while tb is not None and tb.tb_next is not None:
+        tb = tb.tb_next
+    if tb is not None:
+        where = f" at {tb.tb_frame.f_code.co_filename.rsplit('/', 1)[-1]}:{tb.tb_lineno}"
+    msg = " ".join(str(exc).split())[:300]
+    return (f"internal error (a bug in coefc; please report it with the input that caused it): "
+            f"{type(exc).__name__}{where}: {msg}")

@@ -751,19 +751,24 @@ def zero_input_step_ef_wide(y1, y2, e, words, k: int, arith: Arithmetic):
     return fit_word(v, arith.data.width, arith.overflow), acc - np.left_shift(v, k)
 
 
-def _walk_ef_wide(y1, y2, e, words, k, arith, limit):
-    """Follow a df1ef-wide-fb state ``(y1, y2, E)`` until it repeats: (period, amplitude, cycle states)."""
+def _walk_states(s, step, limit):
+    """Follow an error-feedback state ``s = (y1, y2, E)`` under ``step(y1, y2, E) -> (y0, E')``
+    until it repeats: ``(period, amplitude, cycle states)``, or ``(None, None, [])`` after *limit* steps."""
     seen, path = {}, []
-    s = (y1, y2, e)
     for i in range(limit):
         if s in seen:
             cyc = path[seen[s]:]
             return len(cyc), max(abs(p[0]) for p in cyc), cyc
         seen[s] = i
         path.append(s)
-        y0, en = step_ef_wide_int(s[0], s[1], s[2], words, k, arith)
+        y0, en = step(*s)
         s = (y0, s[0], en)
     return None, None, []
+
+
+def _walk_ef_wide(y1, y2, e, words, k, arith, limit):
+    """Follow a df1ef-wide-fb state ``(y1, y2, E)`` until it repeats: (period, amplitude, cycle states)."""
+    return _walk_states((y1, y2, e), lambda a, b, c: step_ef_wide_int(a, b, c, words, k, arith), limit)
 
 
 def ef_wide_bounds(a_phys, k: int, rounding: str) -> tuple[float, float, float] | None:
@@ -1173,17 +1178,7 @@ def _walk_ef(y1, y2, e, a1, a2, k, arith, limit):
 
 def _walk_ef_python(y1, y2, e, a1, a2, k, arith, limit):
     """:func:`_walk_ef` in Python integers (the reference)."""
-    seen, path = {}, []
-    s = (y1, y2, e)
-    for i in range(limit):
-        if s in seen:
-            cyc = path[seen[s]:]
-            return len(cyc), max(abs(p[0]) for p in cyc), cyc
-        seen[s] = i
-        path.append(s)
-        y0, en = step_ef_int(s[0], s[1], s[2], a1, a2, k, arith)
-        s = (y0, s[0], en)
-    return None, None, []
+    return _walk_states((y1, y2, e), lambda a, b, c: step_ef_int(a, b, c, a1, a2, k, arith), limit)
 
 
 def run_zero_input(y1, y2, e, a1: int, a2: int, k: int, arith: Arithmetic, ef: bool, order: int, steps: int,

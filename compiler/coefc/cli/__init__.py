@@ -15,7 +15,7 @@ import warnings
 
 import typer
 
-from ..errors import CoefcError
+from ..errors import CoefcError, internal_error_line
 from .options import OPTION_OF_SETTING
 
 app = typer.Typer(
@@ -115,7 +115,7 @@ def main() -> None:
             sys.exit(2)
         print(_usage_line(e), file=sys.stderr)
         sys.exit(2)
-    except (typer.Abort, KeyboardInterrupt) as e:
+    except (typer.Abort, KeyboardInterrupt):
         term = bool(_signalled)
         print(f"coefc: {'terminated' if term else 'interrupted'}", file=sys.stderr)
         sys.exit(143 if term else 130)
@@ -123,15 +123,7 @@ def main() -> None:
         print("coefc: error: the input needs more memory than this machine has; make it smaller", file=sys.stderr)
         sys.exit(2)
     except Exception as e:  # a bug: one line, its own exit code
-        where = ""
-        tb = e.__traceback__
-        while tb is not None and tb.tb_next is not None:
-            tb = tb.tb_next
-        if tb is not None:
-            where = f" at {tb.tb_frame.f_code.co_filename.rsplit('/', 1)[-1]}:{tb.tb_lineno}"
-        msg = " ".join(str(e).split())[:300]
-        print(f"coefc: internal error (a bug in coefc; please report it with the input that caused it): "
-              f"{type(e).__name__}{where}: {msg}", file=sys.stderr)
+        print(f"coefc: {internal_error_line(e)}", file=sys.stderr)
         sys.exit(3)
     if _signalled or rv == 130:  # Typer turns Ctrl-C (and our SIGTERM) into exit code 130
         print(f"coefc: {'terminated' if _signalled else 'interrupted'}", file=sys.stderr)

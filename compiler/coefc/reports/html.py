@@ -427,7 +427,6 @@ def _sum_items(plt, report, realisation) -> list[dict]:
     out = []
     fs = realisation.design.loaded.description.sample_rate_hz
     for sm in getattr(report, "sums", ()):
-        c = sm.checks[0]
         out.append({"name": sm.name, "ok": sm.ok, "declared": True,
                     "checks": [{"name": c.name, "value": kind_of(c.name).value_text(c.value, c.limit, c.ok),
                                 "limit": format_limit(c.limit), "ok": c.ok, "reason": sm.reasons.get(c.name, "")}

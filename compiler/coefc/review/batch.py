@@ -18,7 +18,7 @@ import os
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from ..errors import CoefcError, DescriptionError
+from ..errors import CoefcError, DescriptionError, internal_error_line
 
 #: exit codes from best to worst
 EXIT_ORDER = (0, 1, 2, 3)
@@ -168,17 +168,6 @@ def findings_of(report, description, text: str) -> list[Finding]:
     return out
 
 
-def error_line(exc: BaseException) -> str:
-    """The one line of an internal error (a bug in coefc), as the command line prints it."""
-    where = ""
-    tb = exc.__traceback__
-    while tb is not None and tb.tb_next is not None:
-        tb = tb.tb_next
-    if tb is not None:
-        where = f" at {tb.tb_frame.f_code.co_filename.rsplit('/', 1)[-1]}:{tb.tb_lineno}"
-    msg = " ".join(str(exc).split())[:300]
-    return (f"internal error (a bug in coefc; please report it with the input that caused it): "
-            f"{type(exc).__name__}{where}: {msg}")
 
 
 def _error_finding(path: str, e: CoefcError, text: str) -> Finding:
@@ -222,7 +211,7 @@ def run_file(path: str, settings: CheckSettings) -> FileOutcome:
     except (KeyboardInterrupt, SystemExit):
         raise
     except Exception as e:  # a bug of coefc: this file's outcome, the others still run
-        msg = error_line(e)
+        msg = internal_error_line(e)
         return FileOutcome(path, 3, findings=(Finding("internal-error", msg, None),), error=msg)
 
 
