@@ -30,7 +30,8 @@ ISO/IEC 9899:1999, section 6.4.1 (C keywords); section 7.1.3 (reserved names).
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
+from collections.abc import Mapping
+from dataclasses import dataclass, field
 
 from ..errors import CoefcError, DescriptionError, TargetError, setting
 from ..program import ChannelProgram, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp, STRUCTURE_TABLE
@@ -82,8 +83,25 @@ class EmitError(CoefcError):
 
 @dataclass(frozen=True)
 class Names:
+    """Every C identifier of a table header, made once here: the template lays them out and the
+    collision check of :func:`c_names` runs over exactly these."""
+
     name: str  # description prefix, sanitised
     channels: tuple[str, ...]  # "<name>_<channel>"
+    ids: Mapping[str, str] = field(default_factory=dict)  # the description's identifiers by role
+    channel_ids: tuple[Mapping[str, str], ...] = ()  # each channel's identifiers by role
+
+
+#: the description's identifiers of a table header: role -> suffix after ``<name>`` (arrays)
+HEADER_ARRAYS = {"channels": "_channels", "channel_names": "_channel_names", "golden_in": "_golden_in",
+                 "golden_out": "_golden_out"}
+#: ... and its macros: role -> suffix after ``<NAME>_``
+HEADER_MACROS = ("COEFC_H", "COEF_ATTR", "N_CHANNELS", "MAX_STATE_WORDS", "GOLDEN_LEN", "DATA_BITS",
+                 "DATA_FRAC_BITS", "COEF_BITS", "COEF_FRAC_BITS", "ACC_BITS", "SAMPLE_RATE_HZ", "OVER_BUDGET")
+#: a channel's identifiers: role -> suffix after ``<name>_<channel>`` (its kernel table, arrays) ...
+CHANNEL_ARRAYS = {"table": "", "coefs": "_coefs", "ops": "_ops", "golden_out": "_golden_out"}
+#: ... and its macros: role -> suffix after ``<NAME>_<CHANNEL>_``
+CHANNEL_MACROS = ("N_OPS", "N_COEFS", "STATE_WORDS")
 
 
 def c_identifier(text: str, what: str, source: str) -> str:
@@ -126,18 +144,19 @@ def c_names(desc_name: str, channel_names, source: str, kernel_prefix: str = "")
         chans.append(ident)
     # Every generated identifier (and macro) must be unique, e.g. a channel
     # 'woofer_ops' would collide with the operation table of channel 'woofer'.
-    suffixes = ("", "_coefs", "_ops", "_golden_out", "_N_OPS", "_N_COEFS", "_STATE_WORDS")
-    globals_ = ("_channels", "_channel_names", "_golden_in", "_golden_out", "_COEF_ATTR", "_N_CHANNELS",
-                "_MAX_STATE_WORDS", "_GOLDEN_LEN", "_DATA_BITS", "_DATA_FRAC_BITS", "_COEF_BITS",
-                "_COEF_FRAC_BITS", "_ACC_BITS", "_SAMPLE_RATE_HZ", "_OVER_BUDGET", "_COEFC_H")
-    made: dict[str, str] = {(name + g).upper(): "the description" for g in globals_}
+    ids = {**{r: name + s for r, s in HEADER_ARRAYS.items()}, **{m: f"{name.upper()}_{m}" for m in HEADER_MACROS}}
+    made: dict[str, str] = {v.upper(): "the description" for v in ids.values()}
+    channel_ids = []
     for ch, ident in zip(channel_names, chans):
-        for suf in suffixes:
-            key = (ident + suf).upper()
+        cids = {**{r: ident + s for r, s in CHANNEL_ARRAYS.items()},
+                **{m: f"{ident.upper()}_{m}" for m in CHANNEL_MACROS}}
+        for v in cids.values():
+            key = v.upper()
             if key in made:
-                raise DescriptionError(source, f"channel '{ch}' makes the C name '{ident}{suf}', which "
+                raise DescriptionError(source, f"channel '{ch}' makes the C name '{v}', which "
                                        f"{made[key]} also uses; rename the channel", channel=ch, key="name")
             made[key] = f"channel '{ch}'"
+        channel_ids.append(cids)
     kp = kernel_prefix.upper()
     for key, who in made.items():
         if key in STD_NAMES or key in C_KEYWORDS or (kp and (key == kp or key.startswith(kp + "_"))):
@@ -145,7 +164,7 @@ def c_names(desc_name: str, channel_names, source: str, kernel_prefix: str = "")
                 f"a name of the target's kernel ({kernel_prefix}_...)"
             raise DescriptionError(source, f"{who} makes the C name '{key}' (case ignored), which is {what}; "
                                    "rename the description or the channel", key="name")
-    return Names(name, tuple(chans))
+    return Names(name, tuple(chans), ids, tuple(channel_ids))
 
 
 # ---------------------------------------------------------------------------

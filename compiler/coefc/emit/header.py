@@ -363,7 +363,7 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
     report_channels = {c.name: c for c in getattr(report, "channels", ())} if report is not None else {}
     channels = []
     banner_metrics: list[str] = []
-    for p, ident, gout, kops in zip(programs, names.channels, golden_outs, kernel_ops):
+    for p, ident, cids, gout, kops in zip(programs, names.channels, names.channel_ids, golden_outs, kernel_ops):
         ops, coefs, state = _ops(kops, fixed, prefix)
         n_sec = sum(isinstance(o, SectionOp) for o in p.ops)
         taps = sum(len(o.taps) for o in p.ops if isinstance(o, FirOp))
@@ -382,6 +382,7 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
             "name": p.name,
             "ident": ident,
             "IDENT": ident.upper(),
+            "ids": cids,  # every identifier of the channel, made (and checked) by buildable.c_names
             "summary": summary,
             "n_ops": len(ops),
             "n_coefs": len(coefs),
@@ -389,8 +390,8 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
             "coef_lines": _lines(coefs, 5),
             "ops": [{"init": f"{{{kind}, {k}u, {cnt}u, {at}u, {st}u}}", "comment": cm}
                     for kind, k, cnt, at, st, cm in ops],
-            "ops_ref": f"{ident}_ops" if ops else "0",
-            "coefs_ref": f"{ident}_coefs" if coefs else "0",
+            "ops_ref": cids["ops"] if ops else "0",
+            "coefs_ref": cids["coefs"] if coefs else "0",
             "data_bits": arith.data.width if fixed else 32,
             "acc_bits": arith.acc_bits if fixed else 32,
             "rounding": f"{P}_ROUND_{arith.rounding.upper().replace('-', '_')}" if fixed else "0",
@@ -474,7 +475,8 @@ def render(realisation, report=None, *, header_name: str = "filters.h",
     context = {
         "banner": banner,
         "header_name": header_name,
-        "guard": f"{NAME}_COEFC_H",
+        "guard": names.ids["COEFC_H"],
+        "ids": names.ids,  # every identifier of the description, made (and checked) by buildable.c_names
         "name": names.name,
         "NAME": NAME,
         "fixed": fixed,
