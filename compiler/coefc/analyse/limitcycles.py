@@ -934,23 +934,8 @@ def _overflow_ef_wide(words, k, a_phys, arith, order, bounds, starts, seed) -> d
     steps = int(min(8192, max(256, 40.0 / max(1e-6, 1.0 - r)))) if r < 1 else 1024
     gran = (bounds[0] if bounds else 0.0) + 1.0
     y1, y2, e, big = _run_ef_wide(y1, y2, e, words, k, arith, order, steps, 64)
-    bad = np.nonzero(big > gran)[0]
-    mode = "wrap-around" if arith.overflow == "wrap" else "saturation"
-    if len(bad) == 0:
-        return dict(overflow_status="unproven",
-                    overflow_note=f"{why}; no oscillation from {len(st)} large and full-scale states in "
-                                  f"{steps} steps ({mode}), which is not a proof")
-    j = int(bad[np.argmax(big[bad])])
-    s0 = (int(st[j, 0]), int(st[j, 1]) if order == 2 else 0)
-    per, am, cyc = _walk_ef_wide(int(y1[j]), int(y2[j]), int(e[j]), words, k, arith, 1 << 15)
-    if not per or am <= gran:
-        return dict(overflow_status="unproven",
-                    overflow_note=f"{why}; from state {s0} the zero-input output is still "
-                                  f"{big[j] / (hi + 1):.3g} of full scale after {steps} steps ({mode}) but no "
-                                  "period was found: a very slow decay or a long oscillation")
-    return dict(overflow_status="found",
-                overflow_note=f"zero-input overflow oscillation with {mode} from state {s0}",
-                overflow_amplitude=float(big[j]) / (hi + 1), overflow_period=per, overflow_start=s0)
+    return _oscillation_verdict(big, gran, st, order, steps, hi, arith, why, lambda j: _walk_ef_wide(
+        int(y1[j]), int(y2[j]), int(e[j]), words, k, arith, 1 << 15))
 
 
 def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states: int = MAX_STATES,
@@ -1420,6 +1405,22 @@ def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed, ef=False, w
     # after `steps` steps, 64 more record the peaks; every 64 steps before that, stop once every
     # trajectory is back inside the granular bound
     y1, y2, e, big = run_zero_input(y1, y2, e, a1, a2, k, arith, ef, order, steps, 64, gran)
+    # settle the trajectory, then measure its period
+    if ef:
+        return _oscillation_verdict(big, gran, st, order, steps, hi, arith, why, lambda j: _walk_ef(
+            int(y1[j]), int(y2[j]), int(e[j]), a1, a2, k, arith, 1 << 15))
+    return _oscillation_verdict(big, gran, st, order, steps, hi, arith, why, lambda j: _walk(
+        int(y1[j]), int(y2[j]), a1, a2, k, arith, limit=1 << 15))
+
+
+def _oscillation_verdict(big, gran: float, st, order: int, steps: int, hi: int, arith: Arithmetic, why: str,
+                         walk) -> dict:
+    """The overflow-oscillation verdict of zero-input runs from large and full-scale states *st*.
+
+    *big* is each run's largest output after *steps* steps.  ``unproven`` when no run stays
+    above the granular bound *gran* (runs are not a proof) or when the largest one shows no
+    period; otherwise ``found``, with that run's start state and the period ``walk(j)`` finds.
+    """
     bad = np.nonzero(big > gran)[0]
     mode = "wrap-around" if arith.overflow == "wrap" else "saturation"
     if len(bad) == 0:
@@ -1428,11 +1429,7 @@ def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed, ef=False, w
                                   f"{steps} steps ({mode}), which is not a proof")
     j = int(bad[np.argmax(big[bad])])
     s0 = (int(st[j, 0]), int(st[j, 1]) if order == 2 else 0)
-    # settle the trajectory, then measure its period
-    if ef:
-        per, am, cyc = _walk_ef(int(y1[j]), int(y2[j]), int(e[j]), a1, a2, k, arith, 1 << 15)
-    else:
-        per, am, cyc = _walk(int(y1[j]), int(y2[j]), a1, a2, k, arith, limit=1 << 15)
+    per, am, _cyc = walk(j)
     if not per or am <= gran:
         return dict(overflow_status="unproven",
                     overflow_note=f"{why}; from state {s0} the zero-input output is still "
