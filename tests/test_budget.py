@@ -9,7 +9,8 @@ import pytest
 
 import coefc
 from coefc.analyse import AnalysisOptions
-from coefc.analyse.limitcycles import LimitCycleAnalysis, SectionLimitCycles
+from coefc.analyse.limitcycles import (AtOutput, Cycle, GranularVerdict, LimitCycleAnalysis, OverflowVerdict,
+                                       SectionLimitCycles)
 from coefc.budget import apply_overrides, channel_checks, run_check
 from coefc.errors import DescriptionError
 from coefc.spec import Budget
@@ -19,9 +20,9 @@ from conftest import FILTERS
 
 def fake_metrics(status="none", amplitude=None, bound=3.0, complete=True, overflow_count=0, osc="none",
                  sections=None):
-    sec = SectionLimitCycles(0, status, bound, complete, 0, amplitude_lsb=amplitude,
-                             period=2 if amplitude else None, start_state=(3, -3) if amplitude else None,
-                             overflow_status=osc, overflow_note="x")
+    sec = SectionLimitCycles(0, GranularVerdict(status, bound, complete, 0,
+                                                cycle=Cycle(amplitude, 2, (3, -3)) if amplitude else None),
+                             OverflowVerdict(osc, "x"))
     lc = LimitCycleAnalysis(tuple(sections) if sections else (sec,), tuple(range(1, 1 + len(sections or [0]))))
     resp = SimpleNamespace(stable=True, max_pole_radius=0.9, passband_deviation_db=0.01, passband_rule="r",
                            stopband_attenuation_db=None, stopband_rule="s", float_stopband_attenuation_db=None)
@@ -56,9 +57,10 @@ def test_channel_verdict_is_the_worst_section_and_names_each():
     # a 1 LSB cycle found in section 1 and section 2 unproven with a 275460 LSB bound (the case of
     # C weighting at 96 kHz on mcu32): the channel is unproven, fails both "none" and a 2 LSB limit,
     # and the reason names both sections
-    s1 = SectionLimitCycles(0, "found", 3.0, True, 10, amplitude_lsb=1, period=1, start_state=(1, 1),
-                            output_amplitude_lsb=1, output_bound_lsb=3.0)
-    s2 = SectionLimitCycles(1, "unproven", 275460.0, False, 0, output_bound_lsb=275460.0)
+    s1 = SectionLimitCycles(0, GranularVerdict("found", 3.0, True, 10, cycle=Cycle(1, 1, (1, 1))),
+                            OverflowVerdict("none", ""), AtOutput(1, 3.0))
+    s2 = SectionLimitCycles(1, GranularVerdict("unproven", 275460.0, False, 0), OverflowVerdict("none", ""),
+                            AtOutput(None, 275460.0))
     m = fake_metrics(sections=[s1, s2])
     assert m.limit_cycles.status == "unproven" and m.limit_cycles.amplitude_lsb == 1
     for limit in ("none", 2.0):
@@ -70,8 +72,8 @@ def test_channel_verdict_is_the_worst_section_and_names_each():
 
 def test_limit_is_applied_at_the_channel_output():
     # a 2 LSB cycle in its section that the later sections carry to 40 LSB fails a 4 LSB limit
-    s = SectionLimitCycles(0, "found", 3.0, True, 10, amplitude_lsb=2, period=1, start_state=(2, 2),
-                           output_amplitude_lsb=40, output_bound_lsb=60.0)
+    s = SectionLimitCycles(0, GranularVerdict("found", 3.0, True, 10, cycle=Cycle(2, 1, (2, 2))),
+                           OverflowVerdict("none", ""), AtOutput(40, 60.0))
     res, why = verdict(fake_metrics(sections=[s]), limit_cycles=4.0)
     assert res["limit_cycles"] is False and "40 LSB at the channel output" in why["limit_cycles"]
 

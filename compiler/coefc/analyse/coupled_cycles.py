@@ -47,7 +47,7 @@ import numpy as np
 
 from ..program import Arithmetic, SectionOp
 from ..qformat import round_shift
-from .limitcycles import SectionLimitCycles, error_interval
+from .limitcycles import Cycle, GranularVerdict, OverflowVerdict, SectionLimitCycles, error_interval
 
 #: exhaustive search: at most this many states in the box, at most this many state-steps in all
 MAX_BOX = 1 << 22
@@ -173,48 +173,48 @@ def analyse_coupled(op: SectionOp, index: int, arith: Arithmetic) -> SectionLimi
         ball = math.sqrt(2.0) * e_max / (1.0 - nrm) * (1 + 1e-9) if nrm < 1.0 else None
     # overflow oscillations
     if arith.rounding == "toward-zero" and pd and acc_ok and (sat or no_overflow):
-        ov = dict(overflow_status="none", overflow_note="||A||_2 < 1 with magnitude truncation: the state norm "
-                  "decreases at every step (Barnes & Fam 1977)")
+        ov = OverflowVerdict("none", "||A||_2 < 1 with magnitude truncation: the state norm decreases at every "
+                                     "step (Barnes & Fam 1977)")
     elif ball is not None and ball < arith.data.max_int:
-        ov = dict(overflow_status="none", overflow_note=f"||A||_2 = {nrm:.9f} < 1 with saturation: every cycle "
-                  f"lies within {ball:.4g} LSB of zero, below full scale")
+        ov = OverflowVerdict("none", f"||A||_2 = {nrm:.9f} < 1 with saturation: every cycle lies within "
+                                     f"{ball:.4g} LSB of zero, below full scale")
     elif no_overflow:
-        ov = dict(overflow_status="none", overflow_note="no state of the data-word box can overflow")
+        ov = OverflowVerdict("none", "no state of the data-word box can overflow")
     else:
         why = ("wrap arithmetic" if not sat else "||A||_2 >= 1 or the accumulator can wrap")
-        ov = dict(overflow_status="unproven", overflow_note=f"{why}: overflow oscillations not excluded")
+        ov = OverflowVerdict("unproven", f"{why}: overflow oscillations not excluded")
+
+    def verdict(status, bound, exhaustive: bool, n: int, note: str, cycle: Cycle | None = None):
+        return SectionLimitCycles(index, GranularVerdict(status, bound, exhaustive, n, cycle=cycle, note=note), ov)
+
     # granular
     if k <= 0:
-        return SectionLimitCycles(index, "none", 0.0, True, 0, note="the loop does not round", **ov)
+        return verdict("none", 0.0, True, 0, "the loop does not round")
     if arith.rounding == "toward-zero" and pd:
-        return SectionLimitCycles(index, "none", 0.0, True, 0,
-                                  note="coupled form, ||A||_2 < 1 and magnitude truncation: no limit cycle "
-                                       "(Barnes & Fam 1977; Mills, Mullis & Roberts 1978)", **ov)
+        return verdict("none", 0.0, True, 0, "coupled form, ||A||_2 < 1 and magnitude truncation: no limit cycle "
+                                             "(Barnes & Fam 1977; Mills, Mullis & Roberts 1978)")
     gb = _granular_bound(A, k, e_max)
     if gb is None and ball is None:
-        return SectionLimitCycles(index, "unproven", None, False, 0,
-                                  note="no amplitude bound: the realised section is not stable", **ov)
+        return verdict("unproven", None, False, 0, "no amplitude bound: the realised section is not stable")
     bounds = [v for v in (gb, (ball, ball) if ball is not None else None) if v is not None]
     B1f, B2f = min(v[0] for v in bounds), min(v[1] for v in bounds)
     B1, B2 = int(math.floor(B1f)), int(math.floor(B2f))
     out_bound = (abs(b[1]) * B1f + abs(b[2]) * B2f) * 2.0 ** -k + e_max  # at the section output
     if W + arith.coef.width > 62:
-        return SectionLimitCycles(index, "unproven", out_bound, False, 0,
-                                  note="data and coefficient words wider than 62 bits together: no exhaustive "
-                                       "search", **ov)
+        return verdict("unproven", out_bound, False, 0,
+                       "data and coefficient words wider than 62 bits together: no exhaustive search")
     if max(B1, B2) >= arith.data.max_int:
-        return SectionLimitCycles(index, "unproven", out_bound, False, 0,
-                                  note=f"the granular bound ({B1f:.4g}, {B2f:.4g} LSB) reaches full scale", **ov)
+        return verdict("unproven", out_bound, False, 0,
+                       f"the granular bound ({B1f:.4g}, {B2f:.4g} LSB) reaches full scale")
     found, n = _search(A, k, arith, B1, B2)
     if found is None:
-        return SectionLimitCycles(index, "unproven", out_bound, False, 0,
-                                  note=f"{n} candidate states (bound {B1f:.4g}, {B2f:.4g} LSB) exceed the exhaustive "
-                                       "search's limits", **ov)
+        return verdict("unproven", out_bound, False, 0,
+                       f"{n} candidate states (bound {B1f:.4g}, {B2f:.4g} LSB) exceed the exhaustive search's limits")
     s1, s2 = found
     nz = (s1 != 0) | (s2 != 0)
+    searched = f"exhaustive search of all {n} states within the granular bound"
     if not np.any(nz):
-        return SectionLimitCycles(index, "none", out_bound, True, n,
-                                  note=f"exhaustive search of all {n} states within the granular bound", **ov)
+        return verdict("none", out_bound, True, n, searched)
     ys = [abs(_output(int(a), int(c2), b[1:3], k, arith)) for a, c2 in zip(s1[nz], s2[nz])]
     j = int(np.argmax(ys))
     start = (int(s1[nz][j]), int(s2[nz][j]))
@@ -226,6 +226,4 @@ def analyse_coupled(op: SectionOp, index: int, arith: Arithmetic) -> SectionLimi
         if (int(t1[0]), int(t2[0])) == start or per > n:
             break
     amp = max(abs(y) for y in cycle_outputs(op, start, per, arith))
-    return SectionLimitCycles(index, "found", out_bound, True, n, amplitude_lsb=int(amp), period=per,
-                              start_state=start, note=f"exhaustive search of all {n} states within the granular "
-                              "bound", **ov)
+    return verdict("found", out_bound, True, n, searched, Cycle(int(amp), per, start))

@@ -81,29 +81,92 @@ Status = Literal["none", "found", "unproven"]
 
 
 @dataclass(frozen=True)
-class SectionLimitCycles:
-    """Verdicts for one recursive section (``op_index`` 0-based)."""
+class Cycle:
+    """One zero-input cycle: its largest output word, its period and a state on it."""
 
-    op_index: int
+    amplitude_lsb: int
+    period: int
+    start_state: tuple[int, ...]  # (y[n-1], y[n-2]) data words; df1ef adds the residual E
+
+
+@dataclass(frozen=True)
+class GranularVerdict:
+    """Granular limit cycles of one section (cycles that never overflow)."""
+
     status: Status
     bound_lsb: float | None  # rigorous amplitude bound (None: no finite bound)
     exhaustive: bool
     states_searched: int
-    amplitude_lsb: int | None = None
-    period: int | None = None
-    start_state: tuple[int, ...] | None = None  # (y[n-1], y[n-2]) data words; df1ef adds the residual E
-    overflow_status: Status = "none"
-    overflow_note: str = ""
-    overflow_amplitude: float | None = None  # fraction of full scale
-    overflow_period: int | None = None
-    overflow_start: tuple[int, ...] | None = None
+    cycle: Cycle | None = None  # the largest cycle found (``found``, or a sampled hit when ``unproven``)
     note: str = ""
-    # the cycle carried through the rest of the channel (filled in by analyse_limit_cycles)
-    output_amplitude_lsb: int | None = None  # bit-true engine, the found cycle fed to the later ops
-    output_bound_lsb: float | None = None  # rigorous bound at the channel output (None: no finite bound)
-    output_note: str = ""
     search_limited: bool = False  # unproven because the candidate states exceeded the search limit
 
+
+@dataclass(frozen=True)
+class OverflowVerdict:
+    """Overflow oscillations of one section (zero-input cycles through an overflow)."""
+
+    status: Status
+    note: str
+    amplitude: float | None = None  # fraction of full scale
+    period: int | None = None
+    start: tuple[int, ...] | None = None
+
+
+@dataclass(frozen=True)
+class AtOutput:
+    """A section's cycle carried through the rest of the channel."""
+
+    amplitude_lsb: int | None = None  # bit-true engine, the found cycle fed to the later ops
+    bound_lsb: float | None = None  # rigorous bound at the channel output (None: no finite bound)
+    note: str = ""
+
+
+@dataclass(frozen=True)
+class WholeSpace:
+    """Every cycle of a zero-input map over its whole state space: the largest of each kind."""
+
+    states: int
+    granular: Cycle | None
+    overflow: Cycle | None
+
+
+@dataclass(frozen=True)
+class SectionLimitCycles:
+    """Verdicts for one recursive section (``op_index`` 0-based).
+
+    The three records are made by separate arguments (granular bound and search,
+    overflow reach and runs, the rest of the channel); the read-only properties give
+    their fields by the flat names the budget and the reports use.
+    """
+
+    op_index: int
+    granular: GranularVerdict
+    overflow: OverflowVerdict
+    at_output: AtOutput | None = None  # filled in by analyse_limit_cycles
+
+    status = property(lambda self: self.granular.status)
+    bound_lsb = property(lambda self: self.granular.bound_lsb)
+    exhaustive = property(lambda self: self.granular.exhaustive)
+    states_searched = property(lambda self: self.granular.states_searched)
+    note = property(lambda self: self.granular.note)
+    search_limited = property(lambda self: self.granular.search_limited)
+    amplitude_lsb = property(lambda self: self.granular.cycle.amplitude_lsb if self.granular.cycle else None)
+    period = property(lambda self: self.granular.cycle.period if self.granular.cycle else None)
+    start_state = property(lambda self: self.granular.cycle.start_state if self.granular.cycle else None)
+    overflow_status = property(lambda self: self.overflow.status)
+    overflow_note = property(lambda self: self.overflow.note)
+    overflow_amplitude = property(lambda self: self.overflow.amplitude)
+    overflow_period = property(lambda self: self.overflow.period)
+    overflow_start = property(lambda self: self.overflow.start)
+    output_amplitude_lsb = property(lambda self: self.at_output.amplitude_lsb if self.at_output else None)
+    output_bound_lsb = property(lambda self: self.at_output.bound_lsb if self.at_output else None)
+    output_note = property(lambda self: self.at_output.note if self.at_output else "")
+
+
+_NO_BOUND = ("no amplitude bound: the realised section is not stable, or its poles lie too close to the unit "
+             "circle to sum the bound rigorously")
+_NO_ROUNDING = "the loop does not round (shift >= coefficient fraction bits)"
 
 _WORST = {"none": 0, "found": 1, "unproven": 2}
 
@@ -616,8 +679,7 @@ def ef_interval_search(a1: int, a2: int, k: int, arith: Arithmetic, B: int, D: i
             if not per:  # pragma: no cover - every state of the settled set lies on a cycle
                 return None
             start_state = max(cyc, key=lambda p: abs(p[0]))
-            return "found", pairs, dict(amplitude_lsb=int(am), period=int(per),
-                                        start_state=tuple(int(x) for x in start_state))
+            return "found", pairs, Cycle(int(am), int(per), tuple(int(x) for x in start_state))
         size = nsize
     return None
 
@@ -665,17 +727,15 @@ def _analyse_wide(op: SectionOp, index: int, arith: Arithmetic, *, sample_starts
         bounds = abs(c) * abs(float(np.sum(h))) + r * float(np.sum(np.abs(h))) + 1e-9 * (1 + n)
     fs_lsb = float(arith.data.max_int)
     if bounds is None:
-        res = dict(status="unproven", bound_lsb=None, exhaustive=False, states_searched=0,
-                   note="no amplitude bound: the realised section is not stable, or its poles lie too close to "
-                        "the unit circle to sum the bound rigorously")
+        res = GranularVerdict("unproven", None, False, 0, note=_NO_BOUND)
     elif bounds < 1.0:
-        res = dict(status="none", bound_lsb=bounds, exhaustive=True, states_searched=0,
-                   note="the granular bound is below one LSB: no nonzero state can lie on a cycle")
+        res = GranularVerdict("none", bounds, True, 0,
+                              note="the granular bound is below one LSB: no nonzero state can lie on a cycle")
     else:
-        res = dict(status="unproven", bound_lsb=bounds, exhaustive=False, states_searched=0,
-                   note=("df1-wide-fb: no exhaustive search of its zero-input map in coefc yet; "
-                         + ("the bound reaches full scale" if bounds >= fs_lsb else
-                            f"the granular bound is {bounds:.4g} LSB") + "; sampled search only"))
+        res = GranularVerdict("unproven", bounds, False, 0,
+                              note=("df1-wide-fb: no exhaustive search of its zero-input map in coefc yet; "
+                                    + ("the bound reaches full scale" if bounds >= fs_lsb else
+                                       f"the granular bound is {bounds:.4g} LSB") + "; sampled search only"))
         rng = np.random.default_rng(seed)
         B = int(min(bounds, fs_lsb))
         for _ in range(sample_starts):
@@ -689,9 +749,9 @@ def _analyse_wide(op: SectionOp, index: int, arith: Arithmetic, *, sample_starts
                         cyc.append(a)
                         a, b = step_wide_int(a, b, op, k, arith), a
                     amp = max(abs(v) for v in cyc)
-                    if amp > 0 and (res.get("amplitude_lsb") or 0) < amp:
-                        res.update(status="found", amplitude_lsb=amp, period=per, start_state=(y1, y2),
-                                   states_searched=sample_starts)
+                    if amp > 0 and (res.cycle.amplitude_lsb if res.cycle else 0) < amp:
+                        res = replace(res, status="found", cycle=Cycle(amp, per, (y1, y2)),
+                                      states_searched=sample_starts)
                     break
                 seen[(y1, y2)] = t
                 y1, y2 = step_wide_int(y1, y2, op, k, arith), y1
@@ -704,22 +764,22 @@ def _analyse_wide(op: SectionOp, index: int, arith: Arithmetic, *, sample_starts
     top = 1 << (arith.acc_bits - 1)
     amin, amax = min(sums), max(sums)
     if amax >= top or amin < -top:
-        ov = dict(overflow_status="unproven",
-                  overflow_note=f"the accumulator can wrap ({amin}..{amax} outside {arith.acc_bits} bits) and "
-                                "coefc has no exhaustive search of the df1-wide-fb map")
+        ov = OverflowVerdict("unproven",
+                             note=f"the accumulator can wrap ({amin}..{amax} outside {arith.acc_bits} bits) and "
+                                  "coefc has no exhaustive search of the df1-wide-fb map")
     else:
         rmin, rmax = round_shift(amin, k, arith.rounding), round_shift(amax, k, arith.rounding)
         if lo <= rmin and rmax <= hi:
-            ov = dict(overflow_status="none",
-                      overflow_note=f"no zero-input step can overflow: over every state of the data word the "
-                                    f"rounded accumulator spans {rmin}..{rmax} LSB against the word's {lo}..{hi} "
-                                    "(exact, rounding and the low products included)")
+            ov = OverflowVerdict("none",
+                                 note=f"no zero-input step can overflow: over every state of the data word the "
+                                      f"rounded accumulator spans {rmin}..{rmax} LSB against the word's {lo}..{hi} "
+                                      "(exact, rounding and the low products included)")
         else:
-            ov = dict(overflow_status="unproven",
-                      overflow_note=f"a zero-input step can overflow (rounded accumulator {rmin}..{rmax} LSB "
-                                    f"against {lo}..{hi}) and coefc has no exhaustive search of the "
-                                    "df1-wide-fb map")
-    return SectionLimitCycles(index, **res, **ov)
+            ov = OverflowVerdict("unproven",
+                                 note=f"a zero-input step can overflow (rounded accumulator {rmin}..{rmax} LSB "
+                                      f"against {lo}..{hi}) and coefc has no exhaustive search of the "
+                                      "df1-wide-fb map")
+    return SectionLimitCycles(index, res, ov)
 
 
 def _wide_words(op: SectionOp, arith: Arithmetic) -> tuple[int, int, int, int, int]:
@@ -825,12 +885,9 @@ def _analyse_ef_wide(op: SectionOp, index: int, arith: Arithmetic, *, sample_sta
     bounds = ef_wide_bounds(a_phys, k, arith.rounding) if k >= 1 else None
     notes = []
     if k < 1:
-        res = dict(status="unproven", bound_lsb=None, exhaustive=False, states_searched=0,
-                   note="the loop does not round (shift >= coefficient fraction bits)")
+        res = GranularVerdict("unproven", None, False, 0, note=_NO_ROUNDING)
     elif bounds is None:
-        res = dict(status="unproven", bound_lsb=None, exhaustive=False, states_searched=0,
-                   note="no amplitude bound: the realised section is not stable, or its poles lie too close to "
-                        "the unit circle to sum the bound rigorously")
+        res = GranularVerdict("unproven", None, False, 0, note=_NO_BOUND)
     else:
         Bf, Df, Sf = bounds
         B, D, S = int(math.floor(Bf)), int(math.floor(Df)), int(math.floor(Sf))
@@ -852,18 +909,15 @@ def _analyse_ef_wide(op: SectionOp, index: int, arith: Arithmetic, *, sample_sta
                          "is not fed back and 1/A(z) amplifies it; sampled search only")
         if found is not None:
             status, keys, cyc = found
-            res = dict(status=status, bound_lsb=Bf, exhaustive=True, states_searched=keys)
-            if cyc:
-                res.update(cyc)
+            res = GranularVerdict(status, Bf, True, keys, cycle=cyc)
             notes.append(f"searched {keys} output-state pairs, each with every rounding residual (as intervals)")
         else:
-            res = dict(status="unproven", bound_lsb=Bf, exhaustive=False, states_searched=0)
             hit = _sampled_ef_wide(words, k, arith, int(min(B, fs_lsb)), order, sample_starts, sample_steps, seed)
-            if hit:
-                res.update(hit, status="found", states_searched=sample_starts)
-    res["note"] = "; ".join(notes) if notes else res.get("note", "")
-    return SectionLimitCycles(index, **res, **_overflow_ef_wide(words, k, a_phys, arith, order, bounds,
-                                                                 overflow_starts, seed))
+            res = (GranularVerdict("found", Bf, False, sample_starts, cycle=hit) if hit
+                   else GranularVerdict("unproven", Bf, False, 0))
+        res = replace(res, note="; ".join(notes))
+    return SectionLimitCycles(index, res, _overflow_ef_wide(words, k, a_phys, arith, order, bounds,
+                                                             overflow_starts, seed))
 
 
 def _run_ef_wide(y1, y2, e, words, k, arith, order, steps, tail=0):
@@ -897,11 +951,11 @@ def _sampled_ef_wide(words, k, arith, B, order, starts, steps, seed):
             best = (per, am, max(cyc, key=lambda p: abs(p[0])))
     if best is None:
         return None
-    return dict(amplitude_lsb=int(best[1]), period=int(best[0]), start_state=tuple(int(v) for v in best[2]))
+    return Cycle(int(best[1]), int(best[0]), tuple(int(v) for v in best[2]))
 
 
-def _overflow_ef_wide(words, k, a_phys, arith, order, bounds, starts, seed) -> dict:
-    """Overflow-oscillation verdict of a df1ef-wide-fb section (keyword fields of SectionLimitCycles)."""
+def _overflow_ef_wide(words, k, a_phys, arith, order, bounds, starts, seed) -> OverflowVerdict:
+    """Overflow-oscillation verdict of a df1ef-wide-fb section."""
     a1, a2, l1, l2, L = words
     lo, hi = arith.data.min_int, arith.data.max_int
     corners = [(u, v) for u in (lo, hi) for v in ((lo, hi) if order == 2 else (0,))]
@@ -916,14 +970,13 @@ def _overflow_ef_wide(words, k, a_phys, arith, order, bounds, starts, seed) -> d
         detail = (f"over every state of the data word and every residual the rounded accumulator spans "
                   f"{rmin}..{rmax} LSB against the word's {lo}..{hi}")
         if lo <= rmin and rmax <= hi:
-            return dict(overflow_status="none",
-                        overflow_note=f"no zero-input step can overflow: {detail} (exact, rounding, residual and "
-                                      "the low products included), so every cycle lies inside the granular bound")
+            return OverflowVerdict("none",
+                                   note=f"no zero-input step can overflow: {detail} (exact, rounding, residual and "
+                                        "the low products included), so every cycle lies inside the granular bound")
     why = (f"overflow is possible ({detail}), and the state space (two {arith.data.width}-bit words and a "
            "rounding residual) is too large to search exhaustively")
     if arith.acc_bits > 64:
-        return dict(overflow_status="unproven", overflow_note=why + "; no large-state run for accumulators "
-                                                                    "wider than 64 bits")
+        return OverflowVerdict("unproven", why + "; no large-state run for accumulators wider than 64 bits")
     rng = np.random.default_rng(seed + 1)
     cs = np.array([(hi, hi), (hi, lo), (lo, hi), (lo, lo), (hi, 0), (lo, 0), (0, hi), (0, lo)], dtype=np.int64)
     st = np.vstack([cs, rng.integers(lo, hi + 1, size=(starts, 2), dtype=np.int64)])
@@ -959,8 +1012,8 @@ def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states:
         why = (f"every product is rounded by 2^{arith.product_shift} before the sum ([arithmetic] "
                "product_shift); the amplitude bound and the exhaustive searches cover only the zero-input map "
                "with exact products, so nothing is proven for this map")
-        return SectionLimitCycles(index, status="unproven", bound_lsb=None, exhaustive=False, states_searched=0,
-                                  note=why, overflow_status="unproven", overflow_note=why)
+        return SectionLimitCycles(index, GranularVerdict("unproven", None, False, 0, note=why),
+                                  OverflowVerdict("unproven", why))
     order = 2 if a2 != 0 else 1
     k = arith.coef.frac_bits - op.shift
     a_phys = _section_phys(op, arith)
@@ -972,35 +1025,29 @@ def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states:
     res = _granular(a1, a2, k, arith, order, structure, bounds, max_states, sample_starts, sample_steps, seed,
                     ef_work)
     whole = None
-    if can_overflow or res["status"] == "unproven":
+    if can_overflow or res.status == "unproven":
         whole = _whole_cached(a1, a2 if order == 2 else 0, k, arith, order, ef)
-    if whole is not None and res["status"] == "unproven":
+    if whole is not None and res.status == "unproven":
         # the whole map was searched: its overflow-free cycles are exactly the granular ones
-        g = whole["granular"]
-        note = (res["note"] + "; " if res["note"] else "") + \
-            f"resolved by an exhaustive search of all {whole['states']} states of the zero-input map"
-        res = dict(status="found" if g else "none", bound_lsb=res["bound_lsb"], exhaustive=True,
-                   states_searched=whole["states"], note=note)
-        if g:
-            res.update(g)
-    return SectionLimitCycles(index, **res, **_overflow(a1, a2, k, a_phys, arith, order, bounds, overflow_starts,
-                                                        seed, ef, whole))
+        note = (res.note + "; " if res.note else "") + \
+            f"resolved by an exhaustive search of all {whole.states} states of the zero-input map"
+        res = GranularVerdict("found" if whole.granular else "none", res.bound_lsb, True, whole.states,
+                              cycle=whole.granular, note=note)
+    return SectionLimitCycles(index, res, _overflow(a1, a2, k, a_phys, arith, order, bounds, overflow_starts,
+                                                    seed, ef, whole))
 
 
 def _granular(a1, a2, k, arith, order, structure, bounds, max_states, sample_starts, sample_steps, seed,
-              ef_work) -> dict:
-    """Granular verdict of one section (keyword fields of SectionLimitCycles, ``note`` included)."""
+              ef_work) -> GranularVerdict:
+    """Granular verdict of one section."""
     fs_lsb = float(arith.data.max_int)
     notes = []
     if k <= 0:
         # no rounding in the loop: the recursion is exact, only an unstable one can cycle
         status = "none" if bounds is not None else "unproven"
-        return dict(status=status, bound_lsb=0.0 if bounds else None, exhaustive=True, states_searched=0,
-                    note="the loop does not round (shift >= coefficient fraction bits)")
+        return GranularVerdict(status, 0.0 if bounds else None, True, 0, note=_NO_ROUNDING)
     if bounds is None:
-        return dict(status="unproven", bound_lsb=None, exhaustive=False, states_searched=0,
-                    note="no amplitude bound: the realised section is not stable, or its "
-                         "poles lie too close to the unit circle to sum the bound rigorously")
+        return GranularVerdict("unproven", None, False, 0, note=_NO_BOUND)
     Bf, Df, Sf = bounds
     B, D, S = int(math.floor(Bf)), int(math.floor(Df)), int(math.floor(Sf))
     if order == 1:
@@ -1021,35 +1068,26 @@ def _granular(a1, a2, k, arith, order, structure, bounds, max_states, sample_sta
         notes.append("the bound reaches full scale: the granular model gives no useful bound")
     if ef_result is not None:
         status, keys, found = ef_result
-        res = dict(status=status, bound_lsb=Bf, exhaustive=True, states_searched=keys)
-        if found:
-            res.update(found)
+        res = GranularVerdict(status, Bf, True, keys, cycle=found)
         notes.append(f"searched {keys} output-state pairs, each with every rounding residual (as intervals)")
     elif exhaustive_ok and count <= max_states:
         found = _granular_cached(("cycles", a1, a2, k, B, D, S, order), arith,
                                  lambda: _cycle_search(a1, a2, k, arith, B, D, S, order))
-        if found is None:
-            res = dict(status="none", bound_lsb=Bf, exhaustive=True, states_searched=count)
-        else:
-            res = dict(found)
-            res.update(status="found", bound_lsb=Bf, exhaustive=True, states_searched=count)
+        res = GranularVerdict("found" if found else "none", Bf, True, count, cycle=found)
     else:
-        res = dict(status="unproven", bound_lsb=Bf, exhaustive=False, states_searched=0)
+        res = GranularVerdict("unproven", Bf, False, 0)
         if exhaustive_ok:
             notes.append(f"more candidate states than the search limit of {max_states}")
-            res["search_limited"] = True
+            res = replace(res, search_limited=True)
         if structure in ("df1", "tdf2") or B < fs_lsb:
             found = _sampled(a1, a2 if order == 2 else 0, k, arith, B, sample_starts, sample_steps, seed,
                              ef=structure == "df1ef")
             if found:
-                res.update(found)
-                res.update(status="found")
-                res["states_searched"] = sample_starts
-    res["note"] = "; ".join(notes)
-    return res
+                res = replace(res, status="found", cycle=found, states_searched=sample_starts)
+    return replace(res, note="; ".join(notes))
 
 
-def _cycle_search(a1, a2, k, arith, B, D, S, order) -> dict | None:
+def _cycle_search(a1, a2, k, arith, B, D, S, order) -> Cycle | None:
     """The largest cycle among every state on a zero-input cycle in the region, or ``None``."""
     y1, y2 = cycle_states(a1, a2, k, arith, B, D, S, order)
     if len(y1) == 0:
@@ -1102,7 +1140,7 @@ def _describe(y1, y2, a1, a2, k, arith, cap: int = 4096):
         if best is not None and best[1] >= amp[order[0]]:
             break
     per, am, start = best
-    return dict(amplitude_lsb=int(am), period=int(per), start_state=tuple(int(v) for v in start))
+    return Cycle(int(am), int(per), tuple(int(v) for v in start))
 
 
 def _sampled(a1, a2, k, arith, B, starts, steps, seed, ef=False):
@@ -1132,7 +1170,7 @@ def _sampled(a1, a2, k, arith, B, starts, steps, seed, ef=False):
             best = (per, am, max(cyc, key=lambda p: abs(p[0])))
     if best is None:
         return None
-    return dict(amplitude_lsb=int(best[1]), period=int(best[0]), start_state=tuple(int(v) for v in best[2]))
+    return Cycle(int(best[1]), int(best[0]), tuple(int(v) for v in best[2]))
 
 
 def step_ef_int(y1: int, y2: int, e: int, a1: int, a2: int, k: int, arith: Arithmetic) -> tuple[int, int]:
@@ -1234,7 +1272,7 @@ def overflow_reach(a1: int, a2: int, k: int, arith: Arithmetic, order: int, ef: 
 
 
 def whole_space_cycles(a1: int, a2: int, k: int, arith: Arithmetic, order: int, ef: bool = False,
-                       max_states: int = MAX_WHOLE_STATES, *, engine: bool = True) -> dict | None:
+                       max_states: int = MAX_WHOLE_STATES, *, engine: bool = True) -> WholeSpace | None:
     """Every cycle of the zero-input map over the whole state space, exactly; ``None`` if too large.
 
     The states are ``(y1, y2)`` over the data-word box (``y1`` alone for a first-order
@@ -1263,13 +1301,13 @@ def whole_space_cycles(a1: int, a2: int, k: int, arith: Arithmetic, order: int, 
     got = _engine.whole_cycles(int(a1), int(a2) if order == 2 else 0, int(k), arith.acc_bits,
                                _ROUND_CODE[arith.rounding], _OVF_CODE[arith.overflow], W, int(order == 2),
                                int(bool(ef)), int(elo), int(ehi), int(max_states))
-    out = {"states": got[0], "granular": None, "overflow": None}
-    for kind, hit in (("granular", got[1]), ("overflow", got[2])):
-        if hit is not None:
-            amp, per, y1, y2, e = hit
-            out[kind] = dict(amplitude_lsb=int(amp), period=int(per),
-                             start_state=(int(y1), int(y2)) + ((int(e),) if ef else ()))
-    return out
+    def cycle(hit):
+        if hit is None:
+            return None
+        amp, per, y1, y2, e = hit
+        return Cycle(int(amp), int(per), (int(y1), int(y2)) + ((int(e),) if ef else ()))
+
+    return WholeSpace(int(got[0]), cycle(got[1]), cycle(got[2]))
 
 
 def _whole_space(a1: int, a2: int, k: int, arith: Arithmetic, order: int, ef: bool,
@@ -1287,7 +1325,7 @@ def _whole_space(a1: int, a2: int, k: int, arith: Arithmetic, order: int, ef: bo
 
 
 def whole_space_cycles_numpy(a1: int, a2: int, k: int, arith: Arithmetic, order: int, ef: bool = False,
-                             max_states: int = MAX_WHOLE_STATES) -> dict | None:
+                             max_states: int = MAX_WHOLE_STATES) -> WholeSpace | None:
     """Every cycle of the zero-input map over the whole state space, exactly; ``None`` if too large.
 
     The states are ``(y1, y2)`` over the data-word box (``y1`` alone for a first-order
@@ -1350,8 +1388,8 @@ def whole_space_cycles_numpy(a1: int, a2: int, k: int, arith: Arithmetic, order:
         members = np.flatnonzero(lab == r)
         j = int(cyc[members[np.argmax(amp_state[members])]])
         st = (int(y1[j]), int(y2[j])) + ((int(j % ne + elo),) if ef else ())
-        out[kind] = dict(amplitude_lsb=int(amp[r]), period=int(period[r]), start_state=st)
-    return out
+        out[kind] = Cycle(int(amp[r]), int(period[r]), st)
+    return WholeSpace(int(n), out["granular"], out["overflow"])
 
 
 _WHOLE_CACHE: dict = {}
@@ -1366,32 +1404,29 @@ def _whole_cached(a1, a2, k, arith, order, ef):
     return _WHOLE_CACHE[key]
 
 
-def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed, ef=False, whole=None) -> dict:
-    """Overflow-oscillation verdict of one section (keyword fields of SectionLimitCycles)."""
+def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed, ef=False, whole=None) -> OverflowVerdict:
+    """Overflow-oscillation verdict of one section."""
     a2 = a2 if order == 2 else 0
     can, detail = overflow_reach(a1, a2, k, arith, order, ef)
     emt = abs(a_phys[1]) + abs(a_phys[2])
     if not can:
-        return dict(overflow_status="none",
-                    overflow_note=f"no zero-input step can overflow: {detail} (exact, rounding included), so "
-                                  "every cycle lies inside the granular bound")
+        return OverflowVerdict("none",
+                               note=f"no zero-input step can overflow: {detail} (exact, rounding included), so "
+                                    "every cycle lies inside the granular bound")
     if whole is not None:
-        hit = whole["overflow"]
+        hit = whole.overflow
         if hit is None:
-            return dict(overflow_status="none",
-                        overflow_note=f"exhaustive search of all {whole['states']} states of the zero-input map: "
-                                      "no cycle passes through an overflow")
-        return dict(overflow_status="found",
-                    overflow_note=f"zero-input overflow oscillation from state {hit['start_state']} "
-                                  f"(exhaustive search of all {whole['states']} states)",
-                    overflow_amplitude=hit["amplitude_lsb"] / (arith.data.max_int + 1),
-                    overflow_period=hit["period"], overflow_start=hit["start_state"])
+            return OverflowVerdict("none", f"exhaustive search of all {whole.states} states of the zero-input "
+                                   "map: no cycle passes through an overflow")
+        return OverflowVerdict("found", f"zero-input overflow oscillation from state {hit.start_state} "
+                                        f"(exhaustive search of all {whole.states} states)",
+                               amplitude=hit.amplitude_lsb / (arith.data.max_int + 1),
+                               period=hit.period, start=hit.start_state)
     why = (f"overflow is possible ({detail}"
            + (f"; |a1| + |a2| = {emt:.6g} < 1, but the rounding reaches full scale" if emt < 1 else "")
            + f"), and the {arith.data.width}-bit state space is too large to search exhaustively")
     if arith.acc_bits > 64:
-        return dict(overflow_status="unproven", overflow_note=why + "; no large-state run for accumulators "
-                                                                  "wider than 64 bits")
+        return OverflowVerdict("unproven", why + "; no large-state run for accumulators wider than 64 bits")
     lo, hi = arith.data.min_int, arith.data.max_int
     rng = np.random.default_rng(seed + 1)
     corners = np.array([(hi, hi), (hi, lo), (lo, hi), (lo, lo), (hi, 0), (lo, 0), (0, hi), (0, lo)], dtype=np.int64)
@@ -1414,7 +1449,7 @@ def _overflow(a1, a2, k, a_phys, arith, order, bounds, starts, seed, ef=False, w
 
 
 def _oscillation_verdict(big, gran: float, st, order: int, steps: int, hi: int, arith: Arithmetic, why: str,
-                         walk) -> dict:
+                         walk) -> OverflowVerdict:
     """The overflow-oscillation verdict of zero-input runs from large and full-scale states *st*.
 
     *big* is each run's largest output after *steps* steps.  ``unproven`` when no run stays
@@ -1424,20 +1459,20 @@ def _oscillation_verdict(big, gran: float, st, order: int, steps: int, hi: int, 
     bad = np.nonzero(big > gran)[0]
     mode = "wrap-around" if arith.overflow == "wrap" else "saturation"
     if len(bad) == 0:
-        return dict(overflow_status="unproven",
-                    overflow_note=f"{why}; no oscillation from {len(st)} large and full-scale states in "
-                                  f"{steps} steps ({mode}), which is not a proof")
+        return OverflowVerdict("unproven",
+                               note=f"{why}; no oscillation from {len(st)} large and full-scale states in "
+                                    f"{steps} steps ({mode}), which is not a proof")
     j = int(bad[np.argmax(big[bad])])
     s0 = (int(st[j, 0]), int(st[j, 1]) if order == 2 else 0)
     per, am, _cyc = walk(j)
     if not per or am <= gran:
-        return dict(overflow_status="unproven",
-                    overflow_note=f"{why}; from state {s0} the zero-input output is still "
-                                  f"{big[j] / (hi + 1):.3g} of full scale after {steps} steps ({mode}) but no "
-                                  "period was found: a very slow decay or a long oscillation")
-    return dict(overflow_status="found",
-                overflow_note=f"zero-input overflow oscillation with {mode} from state {s0}",
-                overflow_amplitude=float(big[j]) / (hi + 1), overflow_period=per, overflow_start=s0)
+        return OverflowVerdict("unproven",
+                               note=f"{why}; from state {s0} the zero-input output is still "
+                                    f"{big[j] / (hi + 1):.3g} of full scale after {steps} steps ({mode}) but no "
+                                    "period was found: a very slow decay or a long oscillation")
+    return OverflowVerdict("found",
+                           note=f"zero-input overflow oscillation with {mode} from state {s0}",
+                           amplitude=float(big[j]) / (hi + 1), period=per, start=s0)
 
 
 def analyse_limit_cycles(program: ChannelProgram, *, max_states: int = MAX_STATES, **kw) -> LimitCycleAnalysis:
@@ -1454,11 +1489,11 @@ def analyse_limit_cycles(program: ChannelProgram, *, max_states: int = MAX_STATE
                 from .coupled_cycles import analyse_coupled
 
                 res = analyse_coupled(op, i, ar)
-                out.append(replace(res, **_at_output(program, res)))
+                out.append(replace(res, at_output=_at_output(program, res)))
                 numbers.append(nsec)
             elif int(op.a[0]) != 0 or int(op.a[1]) != 0 or any(int(v) for v in op.a_lo):
                 res = analyse_section(op, i, ar, max_states=max_states, **kw)
-                out.append(replace(res, **_at_output(program, res)))
+                out.append(replace(res, at_output=_at_output(program, res)))
                 numbers.append(nsec)
     return LimitCycleAnalysis(tuple(out), tuple(numbers))
 
@@ -1500,7 +1535,7 @@ def cycle_outputs(op: SectionOp, res: SectionLimitCycles, arith: Arithmetic) -> 
     return ys
 
 
-def _at_output(program: ChannelProgram, res: SectionLimitCycles) -> dict:
+def _at_output(program: ChannelProgram, res: SectionLimitCycles) -> AtOutput:
     """The section's cycle and bound carried through the rest of the channel.
 
     A found cycle's outputs, repeated, drive the later operations in the bit-true
@@ -1513,7 +1548,7 @@ def _at_output(program: ChannelProgram, res: SectionLimitCycles) -> dict:
 
     rest = program.ops[res.op_index + 1:]
     if not rest:
-        return dict(output_amplitude_lsb=res.amplitude_lsb, output_bound_lsb=res.bound_lsb)
+        return AtOutput(res.amplitude_lsb, res.bound_lsb)
     ar = program.arithmetic
     models = op_models(program)
     tail = models[res.op_index + 1:]
@@ -1549,4 +1584,4 @@ def _at_output(program: ChannelProgram, res: SectionLimitCycles) -> dict:
         amp = int(np.max(np.abs(last)))
         if not np.array_equal(last[:p], last[-p:]):
             notes.append("the channel output was not yet periodic at the end of the run")
-    return dict(output_amplitude_lsb=amp, output_bound_lsb=bound, output_note="; ".join(notes))
+    return AtOutput(amp, bound, "; ".join(notes))
