@@ -314,9 +314,9 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
             if not generated:
                 fail(f"op {i} is a {what}, which the reference kernel of target '{target.name}' does not run "
                      f"(a multirate channel); write generated code ({setting('kernel')})")
-            if not fixed:
-                fail(f"op {i} is a {what}, which runs in a wrap-around integer register only; choose a "
-                     "fixed-point target")
+            if not fixed or arith.product_shift:
+                fail(f"op {i} is a {what}, which runs in a wrap-around integer register with exact products "
+                     "only; choose a fixed-point target without product_shift")
             k = fc - op.shift  # the CIC's output shift (its own, not a coefficient shift of the target)
             if not 1 <= k <= 62 or not 2 <= op.register_bits <= 64:
                 fail(f"op {i}: the {what} needs an output shift of 1..62 bits and a register of at most 64 bits; "
