@@ -125,11 +125,12 @@ def _wrap(v, bits):
     return ((v + half) & ((1 << bits) - 1)) - half
 
 
-def _register_cic(X: np.ndarray, R: int, N: int, D: int, B: int) -> np.ndarray:
+def _register_cic(X: np.ndarray, R: int, N: int, D: int, B: int, integ=None, combs=None) -> np.ndarray:
     """Integrators and combs in a B-bit register (every step wrapped), over many sequences at once
-    (rows of X): the comb outputs v at input indices 0, R, 2R, ..."""
-    integ = [np.zeros(X.shape[0], dtype=np.int64) for _ in range(N)]
-    combs = [[np.zeros(X.shape[0], dtype=np.int64) for _ in range(D)] for _ in range(N)]
+    (rows of X), from zero states or the given ones: the comb outputs v at input indices 0, R, 2R, ..."""
+    integ = [np.zeros(X.shape[0], dtype=np.int64) for _ in range(N)] if integ is None else list(integ)
+    combs = ([[np.zeros(X.shape[0], dtype=np.int64) for _ in range(D)] for _ in range(N)] if combs is None
+             else [list(c) for c in combs])
     out, cp = [], 0
     for t in range(X.shape[1]):
         integ[0] = _wrap(integ[0] + X[:, t], B)
@@ -173,6 +174,27 @@ def test_modulo_property_exhaustive(R, N, D, W, L):
     for row, ex in zip(X[:: max(1, len(X) // 257)], exact[:: max(1, len(X) // 257)]):
         assert np.array_equal(signal.lfilter(h.astype(float), [1.0], row.astype(float))[::R], ex)
         assert np.array_equal(signal.upfirdn(h.astype(float), row.astype(float), down=R)[: len(ex)], ex)
+
+
+@pytest.mark.parametrize("R,N,D", [(2, 3, 1), (4, 2, 2), (3, 4, 1), (2, 5, 2)])
+def test_no_limit_cycle_from_any_state(R, N, D):
+    """The limit-cycle argument of budget.cic_cycle_argument: from arbitrary integrator and comb states
+    (any soft error, any past), with any input, the output equals the FIR of the input (zero input:
+    zero) from output N*D on -- the integrators' drift is a polynomial of degree < N that the N combs
+    remove, modulo 2^B as in the integers."""
+    rng = np.random.default_rng(7)
+    W, rows, L = 6, 4000, 40 * R
+    G = cic_growth(R, N, D)
+    B = W + G
+    lo, hi = -(1 << (B - 1)), 1 << (B - 1)
+    integ = [rng.integers(lo, hi, rows) for _ in range(N)]
+    combs = [[rng.integers(lo, hi, rows) for _ in range(D)] for _ in range(N)]
+    h = np.array(cic_impulse(R, N, D), dtype=np.int64)
+    for X in (np.zeros((rows, L), dtype=np.int64), rng.integers(-(1 << (W - 1)), 1 << (W - 1), (rows, L))):
+        got = _register_cic(X, R, N, D, B, integ, combs)
+        fir = np.stack([np.convolve(row, h)[:L][::R] for row in X])
+        assert np.array_equal(got[:, N * D:], fir[:, N * D:])
+        assert not np.array_equal(got[:, :N * D], fir[:, :N * D])  # the states did matter before that
 
 
 def test_engine_register_path_equals_exact_model_exhaustive_small_word():
