@@ -366,3 +366,33 @@ def test_cost_of_a_cic_chain():
     # R = 10, N = 3: gain 1000 is removed by one multiply per output sample: 1/10 per input, rounded up
     c = channel_cost(ChannelProgram("c", 480000.0, ar, (_cic(10, 3, 1, ar),)), 2, 2)
     assert c["muls_per_sample"] == 1 and c["coef_bytes"] == 2
+
+
+def test_pdm_example_realises_a_shift_only_cic_in_a_44_bit_register():
+    from pathlib import Path
+
+    import coefc
+
+    real = coefc.load(Path(__file__).resolve().parents[1] / "filters" / "pdm_microphone.toml").design().realise()
+    prog = real.programs[0]
+    op = prog.ops[0]
+    assert isinstance(op, CicOp) and (op.factor, op.stages, op.delay) == (16, 5, 1)
+    # 24-bit data word + 5 log2(16) = 20 bits of growth (Hogenauer 1981; from memory); gain 2^20: a shift
+    assert op.register_bits == 44 and op.coef == 1 and prog.arithmetic.final_shift(op.shift) == 20
+    assert any("44-bit register" in n and "modulo property" in n for n in prog.notes)
+    assert prog.output_rate_hz == 48000
+
+
+@pytest.mark.parametrize("R,N,D", [(10, 3, 1), (5, 4, 2), (3, 6, 1)])
+def test_gain_not_a_power_of_two_is_removed_by_a_coefficient(R, N, D):
+    from coefc.blocks import CicBlock
+    from coefc.realise import _cic_op
+
+    ar = Arithmetic(data=QFormat(1, 23), coef=QFormat(2, 22), acc_bits=56)
+    op = _cic_op("t", CicBlock(np.ones(1), factor=R, stages=N, delay=D), ar, 48000.0)
+    k = ar.final_shift(op.shift)
+    c = min(ar.coef.width - 1, 64 - op.register_bits)
+    assert op.coef < 1 << c and op.coef <= (1 << (ar.coef.width - 1)) - 1
+    assert op.register_bits + op.coef.bit_length() <= 64  # C v exact in 64 bits
+    gain = op.coef * op.gain / 2 ** k
+    assert 1 - 2.0 ** (1 - c) < gain <= 1
