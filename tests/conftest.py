@@ -22,10 +22,15 @@ def example_files() -> list[Path]:
 
 def examples_for(target) -> list[Path]:
     """The examples *target* can realise: a rate change needs exact products (coefc.realise refuses
-    it on a target that rounds products), so those examples are left out there."""
+    it on a target that rounds products), so those examples are left out there; a CIC decimator
+    needs integer arithmetic (its wrap-around register), so a float32 target leaves those out."""
     import coefc
     from coefc.stagekinds import RATE_KINDS
 
+    if target.arithmetic.is_float:
+        return [p for p in example_files()
+                if not any(st.kind == "cic-decimator" for ch in coefc.load(p).description.channels
+                           for st in ch.stages)]
     if not target.arithmetic.product_shift:
         return example_files()
     return [p for p in example_files()

@@ -13,6 +13,7 @@
  *   fir(x, y, taps, k, acc_bits, rounding, overflow, data_width)
  *   fir_rate(x, y, taps, down, up, k, ...): polyphase decimating / interpolating FIR
  *   gain(x, y, C, k, acc_bits, rounding, overflow, data_width)
+ *   cic(x, y, R, N, D, register_bits, C, k, ...): CIC decimator (integrators, keep every R-th, combs)
  *   sos_wide(x, y, B0..A2H, A1L, A2L, L, k, ..., ef): one df1-wide-fb section
  *       (ef = 1: df1ef-wide-fb, the same with first-order error feedback)
  *   sos_f32 / fir_f32 / gain_f32: float32 in the stated operation order
@@ -271,6 +272,70 @@ static PyObject *py_fir_rate(PyObject *self, PyObject *args)
     Py_END_ALLOW_THREADS
     PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&tb);
     return Py_BuildValue("LL", ovf, aovf);
+}
+
+/* CIC decimator (coefc.program, "cic"; Hogenauer 1981): N integrators at the input rate, every R-th
+   sample kept (from the first), N combs of differential delay D at the output rate, all modulo 2^64;
+   v = the result sign-extended from B = reg_bits bits, which is the exact FIR sum (the modulo property:
+   the exact sum fits B bits, so its residue modulo 2^64 or 2^B is itself); y = fit(round(C v / 2^k)),
+   C v exact in int64 (the realiser keeps B + bits(C) <= 64). */
+static PyObject *py_cic(PyObject *self, PyObject *args)
+{
+    PyObject *xo, *yo;
+    int R, N, D, B, k, rounding, overflow, width;
+    long long C;
+    if (!PyArg_ParseTuple(args, "OOiiiiLiiii", &xo, &yo, &R, &N, &D, &B, &C, &k, &rounding, &overflow, &width))
+        return NULL;
+    if (R < 1 || N < 1 || N > 8 || D < 1 || D > 4 || B < 2 || B > 64 || C < 1) {
+        PyErr_SetString(PyExc_ValueError, "engine: cic needs R >= 1, N 1..8, D 1..4, register 2..64 bits, C >= 1");
+        return NULL;
+    }
+    {   /* C * v must be exact in int64: |v| <= 2^(B-1), so C < 2^(64 - B) */
+        int cb = 0;
+        for (unsigned long long c = (unsigned long long)C; c; c >>= 1) cb++;
+        if (B + cb > 64) {
+            PyErr_SetString(PyExc_ValueError, "engine: cic needs register bits + coefficient bits <= 64");
+            return NULL;
+        }
+    }
+    arith_t ar;
+    if (arith_init(&ar, k, 64, rounding, overflow, width) < 0) return NULL;
+    Py_buffer xb, yb;
+    if (get_buf(xo, &xb, 0, 'i', "x") < 0) return NULL;
+    if (get_buf(yo, &yb, 1, 'i', "y") < 0) { PyBuffer_Release(&xb); return NULL; }
+    Py_ssize_t n = xb.len / 8, ny = yb.len / 8;
+    if (ny != (n + R - 1) / R) {
+        PyErr_SetString(PyExc_ValueError, "engine: cic output length must be ceil(n / R)");
+        PyBuffer_Release(&xb); PyBuffer_Release(&yb);
+        return NULL;
+    }
+    const int64_t *x = (const int64_t *)xb.buf;
+    int64_t *y = (int64_t *)yb.buf;
+    long long ovf = 0;
+    Py_BEGIN_ALLOW_THREADS
+    uint64_t integ[8] = {0}, comb[8][4];
+    memset(comb, 0, sizeof comb);
+    int cp = 0, ph = 0;
+    Py_ssize_t o = 0;
+    for (Py_ssize_t t = 0; t < n; t++) {
+        integ[0] += (uint64_t)x[t];
+        for (int j = 1; j < N; j++) integ[j] += integ[j - 1];
+        if (ph == 0) {
+            uint64_t c = integ[N - 1];
+            for (int j = 0; j < N; j++) {
+                uint64_t old = comb[j][cp];
+                comb[j][cp] = c;
+                c -= old;
+            }
+            cp = cp + 1 == D ? 0 : cp + 1;
+            int64_t v = sext(c, B);
+            y[o++] = fit(rshift((int64_t)C * v, &ar), &ar, &ovf);
+        }
+        ph = ph + 1 == R ? 0 : ph + 1;
+    }
+    Py_END_ALLOW_THREADS
+    PyBuffer_Release(&xb); PyBuffer_Release(&yb);
+    return Py_BuildValue("LL", ovf, 0LL);
 }
 
 static PyObject *py_gain(PyObject *self, PyObject *args)
@@ -1250,6 +1315,9 @@ static PyMethodDef engine_methods[] = {
     {"fir_rate", py_fir_rate, METH_VARARGS,
      "fir_rate(x, y, taps, down, up, k, acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)\n"
      "polyphase FIR: len(y) = ceil(len(x) * up / down); only the kept outputs are computed."},
+    {"cic", py_cic, METH_VARARGS,
+     "cic(x, y, R, N, D, register_bits, C, k, rounding, overflow, data_width) -> (ovf, 0)\n"
+     "CIC decimator: len(y) = ceil(len(x) / R); integrators and combs modulo 2^64, v from register_bits bits."},
     {"sos_wide", py_sos_wide, METH_VARARGS,
      "sos_wide(x, y, B0, B1, B2, A1H, A2H, A1L, A2L, L, k, acc_bits, rounding, overflow, data_width[, ef])\n"
      "-> (ovf, acc_ovf): one df1-wide-fb section (double-word feedback coefficients);\n"

@@ -75,6 +75,18 @@ class FirBlock:
     label: str = ""
 
 
+@dataclass(frozen=True, eq=False)
+class CicBlock(FirBlock):
+    """A CIC filter before its decimation by ``factor``: as a float block it is the FIR of its
+    impulse response normalised to DC gain 1 (``taps``), so every response and analysis treats
+    it as the FIR it is; the realiser turns it (with the :class:`RateBlock` after it) into a
+    :class:`coefc.program.CicOp` of integrators and combs (Hogenauer 1981)."""
+
+    factor: int = 1
+    stages: int = 1
+    delay: int = 1
+
+
 @dataclass(frozen=True)
 class GainBlock:
     """A plain multiplication (negative for polarity inversion)."""
@@ -113,7 +125,7 @@ class RateBlock:
         return self.up / self.down
 
 
-Block = SosBlock | FirBlock | GainBlock | DelayBlock | RateBlock
+Block = SosBlock | FirBlock | CicBlock | GainBlock | DelayBlock | RateBlock
 
 
 def block_response(block: Block, freqs_hz: np.ndarray, fs: float) -> np.ndarray:
@@ -227,7 +239,7 @@ def as_float_blocks(program: ChannelProgram) -> tuple[Block, ...]:
     coefficients (roundoff noise and overflow aside).  Consecutive sections become
     one :class:`SosBlock`.
     """
-    from .program import DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp, section_transfer
+    from .program import CicOp, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp, section_transfer
 
     ar = program.arithmetic
     fc = 0 if ar.is_float else ar.coef.frac_bits
@@ -245,6 +257,8 @@ def as_float_blocks(program: ChannelProgram) -> tuple[Block, ...]:
             out.append(RateBlock(down=op.down, up=op.up))
             continue
         scale = 1.0 if ar.is_float else 2.0 ** (op.shift - fc) if not isinstance(op, DelayOp) else 1.0
+        if isinstance(op, CicOp):  # its exact integer map: the FIR of coef * h, then keep every R-th sample
+            op = op.as_polyfir()
         if isinstance(op, PolyFirOp):  # the prototype FIR at the higher rate, then (or after) the rate change
             flush()
             fir = FirBlock(np.array([float(v) * scale for v in op.taps]))

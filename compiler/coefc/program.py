@@ -142,6 +142,26 @@ Rate-changing ops (multirate; the output runs at ``up/down`` times the input rat
     rate     down M: y[i] = x[i*M] (i = 0 .. ceil(n/M) - 1);
              up L:   y[n*L] = x[n], y[n*L + p] = 0 for 0 < p < L   (no arithmetic)
 
+    cic      a CIC decimator (Hogenauer 1981) of factor ``R``, ``N`` stages, differential
+             delay ``D``, in a register of ``B = Wd + G`` bits, ``G = ceil(N log2(R D))``
+             (the register growth); ``wrapB`` reduces modulo ``2^B`` into the signed range:
+               I_1[n] = wrapB(I_1[n-1] + x[n]);  I_j[n] = wrapB(I_j[n-1] + I_(j-1)[n])  (j = 2..N)
+               c_0[i] = I_N[i*R];  c_j[i] = wrapB(c_(j-1)[i] - c_(j-1)[i-D])         (j = 1..N)
+               v[i]   = c_N[i]     (i = 0 .. ceil(n/R) - 1; every state starts at zero)
+               y[i]   = fit_data(round_shift(C * v[i], k))
+             By the modulo property v[i] equals the exact sum_j h[j] x[i*R - j] of the
+             CIC's impulse response h (the coefficients of ((1 - z^-RD)/(1 - z^-1))^N,
+             summing to (R D)^N): every step is a ring operation modulo 2^B, so
+             v = that sum modulo 2^B, and |that sum| <= (R D)^N 2^(Wd-1) <= 2^(B-1) puts
+             it in the signed range, where reduction is the identity.  Any register
+             of at least B bits therefore gives the same v.  The product C * v is
+             exact (``C < 2^c`` with ``B + c <= 64``; no accumulator wrap).  When
+             (R D)^N = 2^G the gain is removed by the shift alone (C = 1, k = G);
+             otherwise C = floor(2^k / (R D)^N) with k = c + floor(log2 (R D)^N), so the
+             gain C (R D)^N / 2^k lies in (1 - 2^(1-c), 1]: never above 1, the output
+             word cannot overflow.  One rounding per output sample (the arithmetic's
+             rounding mode); the integrators and combs never round.
+
 A block of n input samples gives ceil(n*L/M) output samples; a caller that feeds
 blocks must make n a multiple of the channel's total decimation factor, so that every
 block starts at the phase the polyphase branches expect.
@@ -167,6 +187,8 @@ transformations and invariants", IEEE Trans. ASSP-24(6), 1976 (normal-form
 state-space sections; from memory).
 L. B. Jackson, *Digital Filters and Signal Processing*, 3rd ed., Kluwer 1996,
 sec. 11 (coupled-form sections and their noise; from memory).
+E. B. Hogenauer, "An economical class of digital filters for decimation and
+interpolation", IEEE Trans. ASSP-29(2), 1981 (the CIC filter; from memory).
 """
 
 from __future__ import annotations
@@ -439,7 +461,89 @@ class RateOp:
         return self.down if self.down > 1 else self.up
 
 
-Op = SectionOp | FirOp | GainOp | DelayOp | PolyFirOp | RateOp
+def cic_gain(factor: int, stages: int, delay: int) -> int:
+    """The DC gain ``(R D)^N`` of a CIC filter (the sum of its impulse response)."""
+    return (int(factor) * int(delay)) ** int(stages)
+
+
+def cic_growth(factor: int, stages: int, delay: int) -> int:
+    """Hogenauer's register growth ``G = ceil(N log2(R D))`` in bits (exact integer arithmetic).
+
+    >>> cic_growth(16, 5, 1), cic_growth(10, 3, 1), cic_growth(25, 4, 2)
+    (20, 10, 23)
+    """
+    return (cic_gain(factor, stages, delay) - 1).bit_length()
+
+
+def cic_impulse(factor: int, stages: int, delay: int) -> tuple[int, ...]:
+    """The integer impulse response of a CIC filter at the input rate: the coefficients of
+    ``((1 - z^-(R D)) / (1 - z^-1))^N`` = ``(1 + z^-1 + ... + z^-(R D - 1))^N``,
+    ``N (R D - 1) + 1`` taps summing to ``(R D)^N``.
+
+    >>> cic_impulse(2, 2, 1)
+    (1, 2, 1)
+    """
+    h = [1]
+    box = int(factor) * int(delay)
+    for _ in range(int(stages)):
+        out = [0] * (len(h) + box - 1)
+        run = 0
+        for i in range(len(out)):  # running sum of the last `box` values of h: the convolution with a boxcar
+            run += h[i] if i < len(h) else 0
+            run -= h[i - box] if i - box >= 0 else 0
+            out[i] = run
+        h = out
+    return tuple(h)
+
+
+@dataclass(frozen=True)
+class CicOp:
+    """A CIC decimator (``cic`` in the module docstring): ``N`` integrators at the input rate,
+    keep every ``R``-th sample, ``N`` combs of differential delay ``D`` at the output rate, in a
+    ``register_bits``-bit register that wraps by design; then ``y = fit(round(coef * v / 2^k))``
+    with ``k = Fc - shift`` (the arithmetic's final shift).
+
+    References
+    ----------
+    E. B. Hogenauer, "An economical class of digital filters for decimation and
+    interpolation", IEEE Trans. ASSP-29(2), 1981 (register growth, the modulo
+    property of two's complement arithmetic; from memory).
+    """
+
+    factor: int
+    stages: int
+    delay: int
+    register_bits: int
+    coef: int = 1
+    shift: int = 0
+
+    @property
+    def down(self) -> int:
+        return self.factor
+
+    @property
+    def up(self) -> int:
+        return 1
+
+    @property
+    def gain(self) -> int:
+        return cic_gain(self.factor, self.stages, self.delay)
+
+    def impulse(self) -> tuple[int, ...]:
+        return cic_impulse(self.factor, self.stages, self.delay)
+
+    def as_polyfir(self) -> "PolyFirOp":
+        """The same integer map as a polyphase FIR: taps ``coef * h`` and the same shift (exact:
+        ``v`` is the exact FIR sum, see the module docstring).  For the analyses' linear models;
+        the engine, the exact model and the generated code run the integrators and combs."""
+        return PolyFirOp(taps=tuple(int(self.coef) * h for h in self.impulse()), shift=self.shift,
+                         down=self.factor, symmetric=True)
+
+
+Op = SectionOp | FirOp | GainOp | DelayOp | PolyFirOp | RateOp | CicOp
+
+#: the ops that change the rate (each has ``down`` and ``up``)
+RATE_OPS = (PolyFirOp, RateOp, CicOp)
 
 
 def rate_ratio(ops) -> "Fraction":
@@ -448,7 +552,7 @@ def rate_ratio(ops) -> "Fraction":
 
     r = Fraction(1)
     for op in ops:
-        if isinstance(op, (PolyFirOp, RateOp)):
+        if isinstance(op, RATE_OPS):
             r *= Fraction(op.up, op.down)
     return r
 
@@ -456,7 +560,7 @@ def rate_ratio(ops) -> "Fraction":
 def output_length(ops, n: int) -> int:
     """Samples out for *n* samples in (each rate op: ``ceil(n * up / down)``)."""
     for op in ops:
-        if isinstance(op, (PolyFirOp, RateOp)):
+        if isinstance(op, RATE_OPS):
             n = -(-n * op.up // op.down)
     return n
 
@@ -466,7 +570,7 @@ def decimation(ops) -> int:
     ``down`` factors (then every block starts at the phase the polyphase branches expect)."""
     m = 1
     for op in ops:
-        if isinstance(op, (PolyFirOp, RateOp)):
+        if isinstance(op, RATE_OPS):
             m *= op.down
     return m
 
@@ -488,7 +592,7 @@ class ChannelProgram:
 
     @property
     def multirate(self) -> bool:
-        return any(isinstance(op, (PolyFirOp, RateOp)) for op in self.ops)
+        return any(isinstance(op, RATE_OPS) for op in self.ops)
 
     def sections(self) -> tuple[SectionOp, ...]:
         return tuple(op for op in self.ops if isinstance(op, SectionOp))

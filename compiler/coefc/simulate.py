@@ -31,7 +31,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import DataError
-from .program import ChannelProgram, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp, STRUCTURE_TABLE, lo_bits
+from .program import (ChannelProgram, CicOp, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp, STRUCTURE_TABLE,
+                      lo_bits)
 from .qformat import ROUNDING_MODES, round_shift
 
 try:  # the compiled core; the exact Python path covers its absence
@@ -208,6 +209,10 @@ def _run_fast(program: ChannelProgram, op, x: np.ndarray):
         taps = np.ascontiguousarray(np.array([int(v) for v in op.taps], dtype=np.int64))
         y = np.empty(-(-len(x) * op.up // op.down), dtype=np.int64)
         o, a = _engine.fir_rate(x, y, taps, op.down, op.up, _k(program, op), *common)
+    elif isinstance(op, CicOp):
+        y = np.empty(-(-len(x) // op.factor), dtype=np.int64)
+        o, a = _engine.cic(x, y, op.factor, op.stages, op.delay, op.register_bits, int(op.coef), _k(program, op),
+                           *common[1:])
     else:
         raise TypeError(f"not an op: {op!r}")
     return y, o, a
@@ -340,11 +345,38 @@ def _fit(v: int, width: int, overflow: str) -> tuple[int, bool]:
     return _wrap(v, width), True
 
 
+def _cic_exact(program: ChannelProgram, op: CicOp, x: np.ndarray):
+    """The ``cic`` recurrence of coefc.program as written: integrators and combs in a register of
+    ``op.register_bits`` bits, every step reduced modulo ``2^B`` into the signed range."""
+    ar = program.arithmetic
+    B, N, R, D = op.register_bits, op.stages, op.factor, op.delay
+    k, C = _k(program, op), int(op.coef)
+    integ = [0] * N
+    combs = [[0] * D for _ in range(N)]
+    ys, n_ovf, cp = [], 0, 0
+    for t, xn in enumerate(int(v) for v in x):
+        integ[0] = _wrap(integ[0] + xn, B)
+        for j in range(1, N):
+            integ[j] = _wrap(integ[j] + integ[j - 1], B)
+        if t % R == 0:
+            c = integ[-1]
+            for j in range(N):
+                old, combs[j][cp] = combs[j][cp], c
+                c = _wrap(c - old, B)
+            cp = (cp + 1) % D
+            y, bad = _fit(round_shift(C * c, k, ar.rounding), ar.data.width, ar.overflow)
+            ys.append(y)
+            n_ovf += bad
+    return np.array(ys, dtype=np.int64), n_ovf, 0
+
+
 def _run_exact(program: ChannelProgram, op, x: np.ndarray):
     if isinstance(op, DelayOp):
         return _delay(x, op.samples), 0, 0
     if isinstance(op, RateOp):
         return _rate(x, op), 0, 0
+    if isinstance(op, CicOp):
+        return _cic_exact(program, op, x)
     ar = program.arithmetic
     A, W, rnd, ovf = ar.acc_bits, ar.data.width, ar.rounding, ar.overflow
     lo, hi = -(1 << (A - 1)), (1 << (A - 1)) - 1

@@ -29,7 +29,8 @@ from .checks import fmt_number as _fmt
 from .checks import type_name as _type_name
 from .errors import DescriptionError, close_match, setting
 from .stagekinds import (EQ_KINDS, FIR_KINDS, FIR_METHODS, IIR_KINDS, IIR_RESPONSES,  # noqa: F401 (re-exported)
-                         MAX_FIR_TAPS, MAX_IIR_ORDER, MAX_LS_TAPS, MAX_RATE_FACTOR, RATE_KINDS,
+                         DECIMATING_KINDS, MAX_CIC_DELAY, MAX_CIC_GROWTH, MAX_CIC_STAGES, MAX_FIR_TAPS,
+                         MAX_IIR_ORDER, MAX_LS_TAPS, MAX_RATE_FACTOR, RATE_KINDS,
                          STAGE_KINDS_TABLE, WEIGHTINGS)
 from .stagekinds import FREQ_KEYS as _FREQ_KEYS
 
@@ -643,7 +644,9 @@ def _stages_at_their_rates(stages, source: str, channel: str, fs: float) -> tupl
             m = st.params["factor"]
             if m < 2 or m > MAX_RATE_FACTOR:
                 raise w.fail(f"factor {m} does not change the rate; use an integer from 2 to {MAX_RATE_FACTOR}")
-            if st.kind == "decimate":
+            if st.kind == "cic-decimator":
+                _check_cic(st.params, _Place(source, channel=channel, stage=i + 1))
+            if st.kind in DECIMATING_KINDS:
                 new = fs / m
                 if new != int(new) or int(new) * m != fs:
                     raise w.fail(f"{_fmt(fs)} Hz / {m} = {new:g} Hz is not a whole number of hertz; choose a factor "
@@ -652,6 +655,26 @@ def _stages_at_their_rates(stages, source: str, channel: str, fs: float) -> tupl
             else:
                 fs = fs * m
     return tuple(out)
+
+
+def _check_cic(params, where: "_Place") -> None:
+    """A CIC decimator's stages and differential delay within their limits, and its register growth
+    ``N log2(R D)`` (Hogenauer 1981) small enough for a 64-bit register beside the data word."""
+    from .program import cic_growth
+
+    if "stages" not in params:
+        raise where.at("stages").fail("missing; give the number of integrator/comb pairs, e.g. stages = 4")
+    n, d = params["stages"], params.get("differential_delay", 1)
+    if n > MAX_CIC_STAGES:
+        raise where.at("stages").fail(f"{n} stages; use 1 to {MAX_CIC_STAGES} (each stage adds log2(R*D) bits "
+                                      "of register growth)")
+    if d > MAX_CIC_DELAY:
+        raise where.at("differential_delay").fail(f"{d} samples; use 1 to {MAX_CIC_DELAY} (1 or 2 is usual)")
+    g = cic_growth(params["factor"], n, d)
+    if g > MAX_CIC_GROWTH:
+        raise where.at("stages").fail(f"the register grows by N*log2(R*D) = {g} bits, more than {MAX_CIC_GROWTH} "
+                                      "leave room for the data word in 64 bits; use fewer stages or a smaller "
+                                      "factor (decimate the rest with FIR stages)")
 
 
 def _stage(s, index: int, source: str, channel: str, fs: float) -> StageSpec:

@@ -191,13 +191,28 @@ CORRECTION = {
 #: largest decimation or interpolation factor of one stage
 MAX_RATE_FACTOR = 1024
 
+#: most integrator/comb pairs of a CIC decimator, and its largest differential delay
+MAX_CIC_STAGES = 8
+MAX_CIC_DELAY = 4
+#: largest register growth N*log2(R*D) of a CIC (bits): the register (data word + growth) must fit 64 bits
+MAX_CIC_GROWTH = 56
+
 MULTIRATE = {
     "decimate": StageKind("decimate", "multirate", "design_decimate", MappingProxyType(
         {"factor": Key("positive_int"), "allow_aliasing": Key("boolean")})),
     "interpolate": StageKind("interpolate", "multirate", "design_interpolate", MappingProxyType(
         {"factor": Key("positive_int"), "allow_imaging": Key("boolean")})),
+    "cic-decimator": StageKind("cic-decimator", "multirate", "design_cic_decimator", MappingProxyType(
+        {"factor": Key("positive_int"), "stages": Key("positive_int", "stages"),
+         "differential_delay": Key("positive_int", "samples")})),
+    "cic-compensator": StageKind("cic-compensator", "multirate", "design_cic_compensator", MappingProxyType(
+        {"passband_hz": _HZ, "stopband_hz": _HZ, "attenuation_db": _DB, "ripple_db": _DB,
+         "margin_db": Key("non_negative", "dB"), "taps": Key("positive_int", "taps")})),
 }
-RATE_KINDS = tuple(MULTIRATE)
+#: the stage kinds that change the rate (each with an integer ``factor``)
+RATE_KINDS = ("decimate", "interpolate", "cic-decimator")
+#: the stage kinds that decimate
+DECIMATING_KINDS = ("decimate", "cic-decimator")
 
 # ------------------------------------------------------------------ all kinds
 

@@ -70,6 +70,7 @@ class Metrics:
     unstable: str | None = None  # why the realisation is unstable (None: every pole strictly inside)
     scaling: str = "none"  # the arithmetic's section scaling (hints never suggest what is in use)
     alias: object = None  # coefc.analyse.response.AliasAnalysis of a multirate channel (None: single rate)
+    cic: tuple = ()  # (factor, stages, differential delay) of each CIC decimator (the limit-cycle argument)
 
     @property
     def stable(self) -> bool:
@@ -369,4 +370,5 @@ def analyse_channel(design: ChannelDesign, program: ChannelProgram,
                               passband_threshold_db=opt.passband_threshold_db)
     return Metrics(resp, noise, meas, ovf, lc, program.arithmetic.is_float, program.arithmetic.overflow,
                    float(program.sample_rate_hz), program.arithmetic.structure, scaling=program.arithmetic.scaling,
-                   alias=alias)
+                   alias=alias, cic=tuple((op.factor, op.stages, op.delay) for op in program.ops
+                                          if type(op).__name__ == "CicOp"))

@@ -53,8 +53,8 @@ from fractions import Fraction
 import numpy as np
 
 from ..blocks import impulse_length
-from ..program import (ChannelProgram, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp, STRUCTURE_TABLE, lo_bits,
-                       section_transfer)
+from ..program import (RATE_OPS, ChannelProgram, CicOp, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp,
+                       STRUCTURE_TABLE, lo_bits, section_transfer)
 
 
 
@@ -70,7 +70,7 @@ class OpModel:
     """
 
     index: int  # 0-based position in program.ops
-    kind: str  # "section", "fir", "gain", "delay"
+    kind: str  # "section", "fir", "gain", "delay", "polyfir", "rate", "cic"
     b: np.ndarray
     a: np.ndarray
     noise_b: np.ndarray
@@ -268,11 +268,22 @@ def _build_models(program: ChannelProgram) -> list[OpModel]:
     # the lower rate keeps its variance and mean through the expanded tail.
     rate, top = Fraction(1), Fraction(1)
     for op in program.ops:
-        if isinstance(op, (PolyFirOp, RateOp)):
+        if isinstance(op, RATE_OPS):
             rate *= Fraction(op.up, op.down)
             top = max(top, rate)
     rate = Fraction(1)
     for i, op in enumerate(program.ops):
+        if isinstance(op, CicOp):
+            # a CIC decimator is exactly the polyphase FIR of coef * h (the modulo property,
+            # coefc.program): its integrators and combs never round and never overflow (they wrap by
+            # design and the comb output is exact), the one rounding is at the output rate, and the
+            # product coef * v is exact (no accumulator to overflow: acc_full_scale None)
+            pf = op.as_polyfir()
+            b = np.array([phys(c, pf.shift) for c in pf.taps])
+            k = effective_drop(pf.taps, fc - pf.shift)
+            out.append(_expanded(OpModel(i, "cic", b, one, one, one, k, fs_data, None, down=op.down), int(top / rate)))
+            rate /= op.down
+            continue
         if isinstance(op, (PolyFirOp, RateOp)):
             taps_rate = rate if op.down > 1 else rate * op.up  # the prototype's rate: the higher one
             e = int(top / taps_rate)

@@ -192,8 +192,14 @@ def internal_node_bounds(models: list[OpModel], imps: list[np.ndarray], n: int,
             paths.append((m.product_bound * lsb, _run(np.array([1.0]), m.noise_a, unit)))
         prev = h
         if m.kind != "delay" and m.index != last:
-            out.append((m.index, float(np.sum(np.abs(h))) + sum(w * float(np.sum(np.abs(p))) for w, p in paths),
-                        "output"))
+            bound = float(np.sum(np.abs(h))) + sum(w * float(np.sum(np.abs(p))) for w, p in paths)
+            if m.kind == "cic" and float(np.sum(m.b)) <= 1.0:
+                # a CIC's input is a data word whatever came before, its exact output is the FIR of
+                # non-negative taps of sum C (R D)^N / 2^k <= 1 (coefc.program, "cic"), so it lies in
+                # [-fs, fs - lsb]; rounding is monotone and keeps integers: its output is always a data word,
+                # never saturated, for any input (the largest positive value is the largest data word)
+                bound = min(bound, m.full_scale - lsb)
+            out.append((m.index, bound, "output"))
     return out
 
 

@@ -75,7 +75,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..blocks import ChannelDesign, SosBlock, block_response
-from ..program import ChannelProgram, DelayOp, FirOp, PolyFirOp, SectionOp, decimation, rate_ratio, section_transfer
+from ..program import ChannelProgram, CicOp, DelayOp, FirOp, PolyFirOp, SectionOp, decimation, rate_ratio, section_transfer
 
 DEFAULT_LEVELS_DBFS = (-20.0, -60.0)
 RANGE_DB = 60.0
@@ -196,6 +196,7 @@ def settle_length(program: ChannelProgram) -> tuple[int, bool, float, float]:
     """``(samples, capped, r_max, r_max ** samples)``: how long the tones run before the window."""
     r = slowest_pole_radius(program)
     fixed = sum(len(op.taps) for op in program.ops if isinstance(op, (FirOp, PolyFirOp)))
+    fixed += sum(len(op.impulse()) for op in program.ops if isinstance(op, CicOp))  # a CIC is an FIR in effect
     fixed += sum(op.samples for op in program.ops if isinstance(op, DelayOp))
     if r <= 0.0:
         n = 0

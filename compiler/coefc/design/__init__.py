@@ -39,7 +39,7 @@ import math
 
 import numpy as np
 
-from ..blocks import ChannelDesign, DelayBlock, FirBlock, GainBlock, RateBlock, SosBlock, StageSummary
+from ..blocks import ChannelDesign, CicBlock, DelayBlock, FirBlock, GainBlock, RateBlock, SosBlock, StageSummary
 from ..spec import ChannelSpec
 from ..stagekinds import FIR_KINDS, IIR_KINDS, RATE_KINDS, STAGE_KINDS_TABLE, designer_of
 from ..stagekinds import FREQ_KEYS as _FREQ_KEYS
@@ -172,9 +172,10 @@ def design_channel(channel: ChannelSpec, sample_rate_hz: float, source: str) -> 
     results: list[tuple[int, StageResult]] = []
     fs = float(sample_rate_hz)
     gain_after_zeros = 1  # an interpolation's factor L, for the filter after it (zero insertion costs 1/L)
+    cic = None  # (R, N, D) of the CIC decimator the current rate comes from (for a cic-compensator)
     for pos, st in enumerate(channel.stages):
         ctx = StageContext(source=source, channel=channel.name, index=st.index, kind=st.kind,
-                           fs=fs, params=st.params)
+                           fs=fs, params=st.params, cic=cic)
         if st.kind in RATE_KINDS:
             _check_rate_change(ctx, channel, pos)
         res = _designer(ctx)(ctx)
@@ -193,6 +194,10 @@ def design_channel(channel: ChannelSpec, sample_rate_hz: float, source: str) -> 
             if isinstance(b, RateBlock):
                 fs = fs * b.up / b.down
                 gain_after_zeros = b.up
+                cic = None
+        for b in res.blocks:  # a CIC's own rate change leads to the rate its compensator runs at
+            if isinstance(b, CicBlock):
+                cic = (b.factor, b.stages, b.delay)
     if gain_after_zeros > 1:  # an interpolation ends the channel (allow_imaging): its gain still applies
         blocks.append(GainBlock(float(gain_after_zeros)))
     warnings = _channel_warnings(blocks, results, float(sample_rate_hz))
@@ -208,6 +213,12 @@ def _check_rate_change(ctx: StageContext, channel: ChannelSpec, pos: int) -> Non
     from .multirate import BAND_LIMITING_KINDS
 
     kinds = [st.kind for st in channel.stages]
+    if ctx.kind == "cic-decimator" and "interpolate" in kinds or ctx.kind == "interpolate" and \
+            "cic-decimator" in kinds:
+        raise ctx.error("this channel both decimates and interpolates; a channel may change its rate in one "
+                        "direction only: split it into two channels or describe one rate change", "kind")
+    if ctx.kind == "cic-decimator":  # its own response is the anti-alias filter (nulls on the folding bands)
+        return
     other = "interpolate" if ctx.kind == "decimate" else "decimate"
     if other in kinds:
         raise ctx.error("this channel both decimates and interpolates; a channel may change its rate in one "
@@ -283,12 +294,12 @@ def required_stopbands(channel: ChannelSpec, fs: float) -> tuple[tuple[float, fl
     fs0 = fs
     for st in channel.stages:
         if st.kind in RATE_KINDS:  # later stages run at the new rate: their stopbands end at its Nyquist
-            fs0 = fs0 / st.params["factor"] if st.kind == "decimate" else fs0 * st.params["factor"]
+            fs0 = fs0 / st.params["factor"] if st.kind != "interpolate" else fs0 * st.params["factor"]
         fs = fs0
         edge = st.params.get("stopband_hz")
-        if edge is None or st.kind not in IIR_KINDS + FIR_KINDS:
+        if edge is None or st.kind not in IIR_KINDS + FIR_KINDS + ("cic-compensator",):
             continue
-        kind = st.kind.removeprefix("fir-")
+        kind = "lowpass" if st.kind == "cic-compensator" else st.kind.removeprefix("fir-")
         e = [float(v) for v in edge] if isinstance(edge, (list, tuple)) else [float(edge)]
         if kind == "lowpass":
             bands.append((e[0], fs / 2))

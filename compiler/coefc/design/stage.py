@@ -30,6 +30,9 @@ class StageContext:
     kind: str
     fs: float
     params: Mapping
+    #: (factor, stages, differential_delay) of the CIC decimator whose output this stage runs at, if any
+    #: (no other rate change between them): what a ``cic-compensator`` corrects
+    cic: tuple | None = None
 
     @property
     def nyquist(self) -> float:

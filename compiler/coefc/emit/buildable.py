@@ -34,7 +34,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 
 from ..errors import CoefcError, DescriptionError, TargetError, setting
-from ..program import ChannelProgram, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp, STRUCTURE_TABLE
+from ..program import ChannelProgram, CicOp, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp, STRUCTURE_TABLE
 from ..spec import C99_KEYWORDS
 from ..targetspec import BuildInfo, Target, check_kernel_words, kernel_info
 
@@ -309,6 +309,21 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
                                     f"polyphase FIR, {len(taps)} taps, {how}, coefficient shift {op.shift}"))
             else:
                 ops.append(KernelOp("RATE", 0, op.factor, (), 0, f"rate change, {how}"))
+        elif isinstance(op, CicOp):
+            what = f"CIC decimator (op {i}, decimating by {op.factor})"
+            if not generated:
+                fail(f"op {i} is a {what}, which the reference kernel of target '{target.name}' does not run "
+                     f"(a multirate channel); write generated code ({setting('kernel')})")
+            if not fixed or arith.product_shift:
+                fail(f"op {i} is a {what}, which runs in a wrap-around integer register with exact products "
+                     "only; choose a fixed-point target without product_shift")
+            k = fc - op.shift  # the CIC's output shift (its own, not a coefficient shift of the target)
+            if not 1 <= k <= 62 or not 2 <= op.register_bits <= 64:
+                fail(f"op {i}: the {what} needs an output shift of 1..62 bits and a register of at most 64 bits; "
+                     "realise the channel again")
+            ops.append(KernelOp("CIC", k, op.factor, words([op.coef], what), 2 * op.stages * (1 + op.delay),
+                                f"CIC decimator by {op.factor}, {op.stages} stages, differential delay {op.delay}, "
+                                f"{op.register_bits}-bit register"))
         else:
             fail(f"op {i} ({type(op).__name__}) has no C form")
     return tuple(ops)

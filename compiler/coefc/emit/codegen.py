@@ -63,7 +63,7 @@ from pathlib import Path
 
 from .header import EmitError
 from ..errors import DescriptionError, setting
-from ..program import (ChannelProgram, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp, STRUCTURE_TABLE,
+from ..program import (ChannelProgram, CicOp, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp, STRUCTURE_TABLE,
                        decimation, lo_bits)
 
 __all__ = ["CNames", "ChannelCNames", "channel_cost", "cost_of", "render_kernel", "GeneratedCodeError"]
@@ -203,7 +203,9 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
     padding.  In a multirate channel the figures are per *input* sample, rounded
     up: a polyphase FIR decimating by M costs N/M multiplies per input sample
     (folded ceil(N/2)/M), and an op after a rate change counts its work times its
-    rate over the input rate.
+    rate over the input rate.  A CIC decimator of N stages by R costs N adds per input sample
+    (integrators) and N per output sample (combs), no multiply when its gain is a power of two
+    (one per output sample otherwise): its state is 8 (N + N D) bytes of register and its phase.
     """
     from fractions import Fraction
 
@@ -213,6 +215,14 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
     per = Fraction(1)  # this op's samples per channel input sample (multirate channels)
     mr, ar_ = Fraction(0), Fraction(0)  # multiplies and adds of ops at other rates, per input sample
     for op in program.ops:
+        if isinstance(op, CicOp):  # N adds per input sample, N adds and at most 1 multiply per output
+            low = per / op.factor
+            mr += low * (0 if int(op.coef) == 1 else 1)
+            ar_ += per * op.stages + low * op.stages
+            coefs += 0 if int(op.coef) == 1 else 1
+            state += 8 * op.stages * (1 + op.delay) + 4 + (4 if op.delay > 1 else 0)
+            per = per / op.factor
+            continue
         if isinstance(op, (PolyFirOp, RateOp)):
             if isinstance(op, PolyFirOp):  # N products per output sample at the lower rate
                 n = len(op.taps)
@@ -643,6 +653,8 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
             out.append(_OpCode(head + fx.product_note(), fields, pre + _loop(src, body, D) + post))
         elif isinstance(op, RateOp):
             out.append(_rate_op(program, op, f, src, D, i))
+        elif isinstance(op, CicOp):
+            out.append(_cic_code(fx, op, f, src, D))
         elif isinstance(op, GainOp):
             k = fx.k_of(op.shift)
             C = _container(program, k)
@@ -677,6 +689,54 @@ def _decimating(op: PolyFirOp, f: str, head, fields, pre, body, post, pushed: in
                    f"ph = (ph + 1u == {M}u) ? 0u : ph + 1u;"]
     post = post + [f"s->{f}_ph = ph;", f"n = o; /* the block at the new rate: n / {M} samples */"]
     return head, fields, pre, body, post
+
+
+def _cic_code(fx: "_Fixed", op: CicOp, f: str, src: str, D: str) -> _OpCode:
+    """A CIC decimator (coefc.program, "cic"): integrators and combs in uint64_t, i.e. modulo 2^64.
+
+    The program's register is ``B = op.register_bits <= 64`` bits; by the modulo property any
+    register of at least B bits gives the same comb output (the exact sum, which fits B bits), so
+    the code computes modulo 2^64 without masking.  ``C v`` is formed modulo 2^64 too: the exact
+    product lies inside the signed 64-bit range (the realiser keeps B + bits(C) <= 64), so that is
+    its two's complement, which :meth:`_Fixed.finish` rounds and fits as any 64-bit accumulator.
+    """
+    R, N, Dd = op.factor, op.stages, op.delay
+    k = fx.k_of(op.shift)
+    C = int(op.coef)
+    head = [f"CIC decimator by {R}: {N} integrators, keep every {R}-th sample, {N} combs of differential delay "
+            f"{Dd} (Hogenauer 1981); a {op.register_bits}-bit register is enough, computed here modulo 2^64, "
+            "which gives the same words (the modulo property)",
+            f"y = fit(round({'' if C == 1 else f'{C} * '}v / 2^{k})), v the last comb's output "
+            f"(gain ({R}*{Dd})^{N} = {op.gain} removed)"]
+    fields = [("uint64_t", f"{f}_i", N, "integrators, modulo 2^64"),
+              ("uint64_t", f"{f}_c", N * Dd, f"comb delay lines, {Dd} per comb"),
+              ("uint32_t", f"{f}_ph", 0, f"input phase 0 .. {R - 1}; an output is made at 0")]
+    if Dd > 1:
+        fields.append(("uint32_t", f"{f}_cp", 0, f"comb position 0 .. {Dd - 1}"))
+    pre = [f"uint64_t *const ig = s->{f}_i;", f"uint64_t *const cd = s->{f}_c;", f"uint32_t ph = s->{f}_ph;"]
+    if Dd > 1:
+        pre.append(f"uint32_t cp = s->{f}_cp;")
+    pre.append("size_t o = 0u;")
+    body = ["ig[0] += (uint64_t)x;"] + [f"ig[{j}] += ig[{j - 1}];" for j in range(1, N)]
+    comp = [f"uint64_t c = ig[{N - 1}];"]
+    for j in range(N):
+        at = f"{j * Dd}u + cp" if Dd > 1 else f"{j}u"
+        comp += ["{", f"    const uint64_t old = cd[{at}];", f"    cd[{at}] = c;", "    c -= old;", "}"]
+    if Dd > 1:
+        comp.append(f"cp = (cp + 1u == {Dd}u) ? 0u : cp + 1u;")
+    comp.append("const uint64_t acc = c; /* v modulo 2^64 */" if C == 1 else
+                f"const uint64_t acc = c * {_u(C, 64)}; /* C v modulo 2^64: its two's complement */")
+    A = fx.A
+    fx.A = 64  # the product is exact in 64 bits: no accumulator wrap (coefc.program, "cic")
+    try:
+        comp += fx.finish("acc", k, 64, "y")
+    finally:
+        fx.A = A
+    comp += ["out[o] = y;", "o++;"]
+    body += ["if (ph == 0u) {", *_indent(comp, 4), "}", f"ph = (ph + 1u == {R}u) ? 0u : ph + 1u;"]
+    post = [f"s->{f}_ph = ph;"] + ([f"s->{f}_cp = cp;"] if Dd > 1 else []) + \
+        [f"n = o; /* the block at the new rate: n / {R} samples */"]
+    return _OpCode(head, fields, pre + _loop(src, body, D) + post)
 
 
 def _rate_op(program: ChannelProgram, op: RateOp, f: str, src: str, D: str, i: int) -> _OpCode:

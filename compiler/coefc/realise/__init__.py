@@ -69,10 +69,10 @@ from dataclasses import replace
 
 import numpy as np
 
-from ..blocks import ChannelDesign, DelayBlock, FirBlock, GainBlock, RateBlock, SosBlock
+from ..blocks import ChannelDesign, CicBlock, DelayBlock, FirBlock, GainBlock, RateBlock, SosBlock
 from ..errors import CoefcError
-from ..program import (STRUCTURE_TABLE, Arithmetic, ChannelProgram, DelayOp, FirOp, GainOp, Note, PolyFirOp, RateOp,
-                       SectionOp, section_transfer)
+from ..program import (STRUCTURE_TABLE, Arithmetic, ChannelProgram, CicOp, DelayOp, FirOp, GainOp, Note, PolyFirOp,
+                       RateOp, SectionOp, cic_growth, section_transfer)
 from ..qformat import QFormat  # noqa: F401 (used by the doctest)
 from . import coefficients, coupled, pairing, scaling
 
@@ -524,6 +524,11 @@ def _realise_multirate(design: ChannelDesign, arithmetic: Arithmetic) -> Channel
         if carry != 1.0:
             blocks = [GainBlock(carry)] + list(blocks)
             carry = 1.0
+        cic = None
+        if blocks and isinstance(blocks[-1], CicBlock):  # a CIC ends its stretch: integrators, decimation, combs
+            cic = _cic_op(design.name, blocks[-1], arithmetic, rate)
+            notes.append(_cic_note(cic, arithmetic, i, rate))
+            blocks = blocks[:-1]
         if blocks:
             sub = realise_channel(ChannelDesign(f"{design.name}", rate, tuple(blocks)), arithmetic)
             seg = list(sub.ops)
@@ -546,7 +551,9 @@ def _realise_multirate(design: ChannelDesign, arithmetic: Arithmetic) -> Channel
             j = next(j for j, op in enumerate(seg) if isinstance(op, (PolyFirOp, RateOp)))
             ops.extend(seg[:j])  # gains moved in front of the zero insertion
             seg = seg[j:]
-        if i < len(rates) and rates[i].down > 1:  # the decimation after this stretch
+        if cic is not None:  # the CIC is its own decimation (its RateBlock follows it)
+            seg.append(cic)
+        elif i < len(rates) and rates[i].down > 1:  # the decimation after this stretch
             M = rates[i].down
             j = len(seg)
             while j > 0 and isinstance(seg[j - 1], GainOp):
@@ -558,3 +565,62 @@ def _realise_multirate(design: ChannelDesign, arithmetic: Arithmetic) -> Channel
                 seg.insert(j, RateOp(down=M))
         ops.extend(seg)
     return ChannelProgram(design.name, design.sample_rate_hz, arithmetic, tuple(ops), tuple(notes))
+
+
+#: fewest bits of the coefficient that removes a CIC gain which is not a power of two
+MIN_CIC_COEF_BITS = 8
+
+
+def _cic_op(name: str, block: CicBlock, arithmetic: Arithmetic, rate: float) -> CicOp:
+    """The CIC decimator of *block* in *arithmetic* (the ``cic`` recurrence of :mod:`coefc.program`).
+
+    The register is the data word plus Hogenauer's growth ``G = ceil(N log2(R D))``; it must fit
+    64 bits (the engine's and the generated code's register).  The gain ``(R D)^N`` is removed by
+    the output shift alone when it is ``2^G``; otherwise by the coefficient
+    ``C = floor(2^k / (R D)^N)`` of ``c`` bits, ``c = min(Wc - 1, 64 - B)`` (the product ``C v``
+    exact in 64 bits and ``C`` a positive coefficient word), ``k = c + floor(log2 (R D)^N)``.
+
+    References
+    ----------
+    E. B. Hogenauer, "An economical class of digital filters for decimation and interpolation",
+    IEEE Trans. ASSP-29(2), 1981 (register growth; from memory).
+    """
+    if arithmetic.is_float:
+        raise RealisationError(f"channel '{name}': a CIC decimator runs in a wrap-around integer register "
+                               "(its exactness rests on two's complement arithmetic); it has no float32 "
+                               "realisation: choose a fixed-point target")
+    r, n, d = block.factor, block.stages, block.delay
+    g = (r * d) ** n
+    growth = cic_growth(r, n, d)
+    width = arithmetic.data.width
+    reg = width + growth
+    if reg > 64:
+        raise RealisationError(f"channel '{name}': the CIC decimator at {rate:g} Hz needs a register of {width} "
+                               f"data bits + {growth} bits of growth = {reg} bits, more than 64; use a narrower "
+                               "data word, fewer CIC stages or a smaller factor")
+    fc = arithmetic.coef.frac_bits
+    if g == 1 << growth:
+        coef, k = 1, growth
+    else:
+        c = min(arithmetic.coef.width - 1, 64 - reg)
+        if c < MIN_CIC_COEF_BITS:
+            raise RealisationError(f"channel '{name}': the CIC decimator's gain (R*D)^N = {g} is not a power of two "
+                                   f"and a {reg}-bit register leaves {c} bits (fewer than {MIN_CIC_COEF_BITS}) for "
+                                   "the coefficient that removes it; choose R*D a power of two or a narrower data "
+                                   "word")
+        k = c + g.bit_length() - 1
+        coef = (1 << k) // g
+    if k > 62:
+        raise RealisationError(f"channel '{name}': the CIC decimator's output shift of {k} bits is above 62; use "
+                               "fewer stages or a smaller factor")
+    return CicOp(factor=r, stages=n, delay=d, register_bits=reg, coef=coef, shift=fc - k)
+
+
+def _cic_note(op: CicOp, arithmetic: Arithmetic, stretch: int, rate: float) -> Note:
+    k = arithmetic.final_shift(op.shift)
+    gain = "a shift" if op.coef == 1 else f"the coefficient {op.coef} and a shift"
+    at = f"at {rate:g} Hz: " if stretch else ""
+    return Note("precision", f"{at}CIC decimator: {op.stages} integrators and {op.stages} combs in a "
+                f"{op.register_bits}-bit register ({arithmetic.data.width} data bits + {op.register_bits - arithmetic.data.width} "
+                f"bits of growth, Hogenauer 1981) that wraps by design: the comb output is exact by the modulo "
+                f"property; the gain {op.gain} is removed by {gain} of {k} bits, one rounding per output sample")

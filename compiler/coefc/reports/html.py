@@ -357,7 +357,7 @@ def sum_svg(plt, analysis, fs: float, title: str) -> str:
 
 def op_rows(program) -> list[dict]:
     """Every realised op with its number and its integers as the chip stores them."""
-    from ..program import DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp
+    from ..program import CicOp, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp
 
     out, n_sec = [], 0
     for i, op in enumerate(program.ops):
@@ -377,6 +377,9 @@ def op_rows(program) -> list[dict]:
                        shift=op.shift, taps=", ".join(str(t) for t in op.taps))
         elif isinstance(op, RateOp):
             row.update(kind=f"rate change, down {op.down}, up {op.up}")
+        elif isinstance(op, CicOp):
+            row.update(kind=f"CIC decimator by {op.factor}, {op.stages} stages, differential delay {op.delay}, "
+                            f"{op.register_bits}-bit register", ints=[op.coef], shift=op.shift)
         elif isinstance(op, DelayOp):
             row.update(kind=f"delay, {op.samples} samples")
         out.append(row)

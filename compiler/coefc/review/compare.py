@@ -29,7 +29,7 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass, field
 
-from ..program import DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp
+from ..program import CicOp, DelayOp, FirOp, GainOp, PolyFirOp, RateOp, SectionOp
 
 #: IEC 61260-1 nominal octave-band mid-frequencies, 31.5 Hz to 16 kHz (the fallback check frequencies)
 OCTAVE_CENTRES_HZ = (31.5, 63.0, 125.0, 250.0, 500.0, 1000.0, 2000.0, 4000.0, 8000.0, 16000.0)
@@ -181,7 +181,7 @@ def compare_stages(old, new) -> list[StageChange]:
 
 def _op_kind(op) -> str:
     return {SectionOp: "section", FirOp: "fir", GainOp: "gain", DelayOp: "delay", PolyFirOp: "polyphase fir",
-            RateOp: "rate"}[type(op)]
+            RateOp: "rate", CicOp: "cic"}[type(op)]
 
 
 def op_integers(op) -> list:
@@ -196,6 +196,8 @@ def op_integers(op) -> list:
         return [*op.taps, op.shift, op.down, op.up]
     if isinstance(op, RateOp):
         return [op.down, op.up]
+    if isinstance(op, CicOp):
+        return [op.factor, op.stages, op.delay, op.register_bits, op.coef, op.shift]
     return [op.samples]
 
 
