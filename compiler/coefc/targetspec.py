@@ -182,8 +182,10 @@ class Overrides:
 
 
 def resolve_arithmetic(target: Target, implementation, overrides: Overrides | None = None,
-                       source: str = "<description>") -> Arithmetic:
-    """Target defaults, then the description's ``[implementation]``, then CLI overrides.
+                       source: str = "<description>", *, channel: str | None = None,
+                       channel_structure: str | None = None) -> Arithmetic:
+    """Target defaults, then the description's ``[implementation]``, then a channel's
+    own ``structure`` (*channel_structure*, of the channel named *channel*), then CLI overrides.
 
     One options schema, several ways to set it, same effect however given.  On a
     float32 target the description's fixed-point settings (Q formats, accumulator,
@@ -192,11 +194,15 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
     """
     arith = target.arithmetic
     structure_from = None
+    structure_channel = None  # the channel whose own structure is in force, for messages
     width_from = {k: str(target.folder / "target.toml") for k in ("data", "coef", "acc_bits")}
     layers = [(implementation, source)]
+    if channel_structure is not None:
+        layers.append((Overrides(structure=channel_structure), source))
     if overrides is not None:
         layers.append((overrides, "<command line>"))
-    for layer, where in layers:
+    for n_layer, (layer, where) in enumerate(layers):
+        in_channel = channel if (channel_structure is not None and n_layer == 1) else None
         changes = {}
         for key in ("structure", "data", "coef", "acc_bits", "rounding", "overflow", "scaling"):
             v = getattr(layer, key, None)
@@ -224,8 +230,9 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
                 if v not in STRUCTURES and v != "auto":
                     raise DescriptionError(where, f"unknown structure '{v}'; use one of {', '.join(STRUCTURES)} "
                                            "or auto",
-                                           key=key)
+                                           key=key, channel=in_channel)
                 structure_from = where  # checked against the target once every layer is applied
+                structure_channel = in_channel
             elif key == "rounding" and v not in ROUNDING_MODES:
                 raise DescriptionError(where, f"unknown rounding '{v}'{close_match(v, ROUNDING_MODES, ROUNDING_HINTS)}; "
                                        f"use one of {', '.join(ROUNDING_MODES)}", key=key)
@@ -244,7 +251,8 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
     if structure_from is not None and arith.structure not in target.structures and arith.structure != "auto":
         raise DescriptionError(
             structure_from, f"target '{target.name}' does not support structure '{arith.structure}'; "
-            f"it supports {', '.join(target.structures)}", key="structure")
+            f"it supports {', '.join(target.structures)} (or auto: per section, the cheapest of them)",
+            key="structure", channel=structure_channel)
     if not arith.is_float and arith.data.frac_bits < 2:
         where = width_from["data"]
         raise DescriptionError(where, f"data word {arith.data} has {arith.data.frac_bits} fractional bit(s); "

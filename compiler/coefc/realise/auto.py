@@ -13,8 +13,12 @@ the cheapest; while the channel misses its budget, sections move up one candidat
    largest noise contribution at the channel output.
 
 The criteria are the ``stable``, ``passband_deviation_db`` and ``output_noise_dbfs``
-checks of the channel's budget (budget overrides on the command line are not seen
-here; the check applies them afterwards).  When a section would move past its last
+checks of the channel's budget as the check applies it (:func:`coefc.budget.budget_for`:
+the table of its data word's width, its ``[channel.budget]``, and the command line's
+overrides over all; the caller passes it).  The per-section structures reach the
+realiser as an argument (``realise(design, arithmetic, structures)``), never as
+hidden state.  Limit cycles, the tones and the measured noise are not criteria
+here: the check judges them on the result.  When a section would move past its last
 candidate the search stops with one line naming the channel, the section and the
 nearest miss (the best configuration seen).  Each section's choice and one short
 reason are kept as ``precision`` notes of the program.
@@ -72,7 +76,7 @@ def _evaluate(design, program: ChannelProgram, budget) -> tuple[list[float], flo
 
 def realise_auto(design, arithmetic: Arithmetic, target_structures, budget, realise) -> ChannelProgram:  # noqa: C901
     """The channel realised with a structure per section (see the module docstring)."""
-    from . import SECTION_STRUCTURES, RealisationError
+    from . import RealisationError
 
     cands = candidates(target_structures, arithmetic)
     if not cands:
@@ -83,11 +87,7 @@ def realise_auto(design, arithmetic: Arithmetic, target_structures, budget, real
     why = ["cheapest"] * n
     best = None
     while True:
-        token = SECTION_STRUCTURES.set(tuple(cands[i] for i in level) or None)
-        try:
-            prog = realise(design, base)
-        finally:
-            SECTION_STRUCTURES.reset(token)
+        prog = realise(design, base, tuple(cands[i] for i in level) or None)
         radii, dev, noise_db, contrib = _evaluate(design, prog, budget)
         dev_lim = getattr(budget, "passband_deviation_db", None)
         noise_lim = getattr(budget, "output_noise_dbfs", None)

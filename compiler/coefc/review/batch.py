@@ -112,14 +112,14 @@ def check_loaded(loaded, settings: CheckSettings):
     a = dict(settings.arithmetic)
     ov = Overrides(structure=a.get("structure"), data=a.get("data"), coef=a.get("coef"), acc_bits=a.get("acc"),
                    rounding=a.get("rounding"), overflow=a.get("overflow"), scaling=a.get("scaling"))
-    real = loaded.design(settings.channels or None).realise(settings.target, ov, settings.target_dirs)
+    budget = apply_overrides(loaded.description.budget, **dict(settings.budget_overrides))
+    real = loaded.design(settings.channels or None).realise(settings.target, ov, settings.target_dirs, budget=budget)
     notes = []
     impl = loaded.description.implementation
     if real.programs and real.programs[0].arithmetic.is_float and impl.structure == "df1ef" and ov.structure is None:
         notes.append(f"{loaded.description.source}: target '{real.target.name}' runs the description's df1ef as "
                      "df1: float32 has no fixed-point rounding residual to feed back")
     validate(real, generated=True)  # what `coefc build --kernel` would refuse fails here too (exit 2), before the analysis
-    budget = apply_overrides(loaded.description.budget, **dict(settings.budget_overrides))
     report = run_check(real, budget, options=AnalysisOptions(noise_samples=settings.noise_samples,
                                                              max_states=settings.max_states))
     return report, real, notes
