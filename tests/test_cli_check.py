@@ -203,3 +203,29 @@ def test_budget_by_data_word_width(tmp_path):
     r = run(f, "--max-noise-dbfs", "-70", "--json", "-")
     (ch,) = json.loads(r.stdout)["channels"]
     assert ch["budget"]["output_noise_dbfs"] == -70
+
+
+def test_a_target_states_what_a_structure_costs_and_auto_orders_by_it(tmp_path):
+    # [arithmetic] section_cost: a chip where error feedback is dear (here 12 multiplies a section) makes
+    # auto reach for it last; the note names the cost it paid
+    import shutil
+
+    root = tmp_path / "targets"
+    shutil.copytree(FILTERS.parent / "targets" / "mcu16", root / "dear16")
+    toml = root / "dear16" / "target.toml"
+    toml.write_text(toml.read_text().replace('structure = "df1"\n', 'structure = "df1"\n'
+                                             'section_cost = { "df1ef" = 12 }\n', 1))
+    r = run(FILTERS / "vibration_sensor.toml", "--json", "-")
+    (ch,) = json.loads(r.stdout)["channels"]
+    assert ch["sections"][0]["structure"] == "df1ef"  # on mcu16 (5 multiplies) auto takes it for the 0.5 Hz pole
+    r = run(FILTERS / "vibration_sensor.toml", "--target-dir", root, "--target", "dear16", "--json", "-")
+    assert r.returncode in (0, 1), r.stderr
+    (ch,) = json.loads(r.stdout)["channels"]
+    assert "df1ef" not in [s["structure"] for s in ch["sections"]]
+    assert all("multiplies per sample" in s["chosen"] for s in ch["sections"])
+    # a cost for a structure the target does not list is one line naming the file and the fix
+    toml.write_text(toml.read_text().replace('section_cost = { "df1ef" = 12 }', 'section_cost = { "df1e" = 12 }'))
+    r = run(FILTERS / "vibration_sensor.toml", "--target-dir", root, "--target", "dear16")
+    assert r.returncode == 2
+    (line,) = r.stderr.strip().splitlines()
+    assert str(toml) in line and "section_cost names 'df1e'" in line and "did you mean 'df1ef'" in line

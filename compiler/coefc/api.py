@@ -83,7 +83,7 @@ class Design:
                     from .realise.auto import realise_auto
 
                     programs.append(realise_auto(ch, arith, tgt.structures, budget_for(budget, spec, arith),
-                                                 realise_channel))
+                                                 realise_channel, tgt.section_cost))
                 else:
                     programs.append(realise_channel(ch, arith))
         except DescriptionError:

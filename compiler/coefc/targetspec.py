@@ -35,6 +35,13 @@ class Target:
     arithmetic: Arithmetic  # the defaults
     structures: tuple[str, ...]
     raw: Mapping = field(default_factory=lambda: MappingProxyType({}))  # the whole target.toml
+    #: ``[arithmetic] section_cost``: what one second-order section of a structure costs on this
+    #: chip, in multiplies per sample, where the target states it (else the table's ``multiplies``)
+    section_cost: Mapping = field(default_factory=lambda: MappingProxyType({}))
+
+    def cost_of(self, structure: str) -> int:
+        """Multiplies per sample of one section in *structure* on this target (its own figure, else the table's)."""
+        return int(self.section_cost.get(structure, STRUCTURE_TABLE[structure].multiplies))
 
 
 def builtin_dir() -> Path:
@@ -140,6 +147,17 @@ def load_target(folder: Path) -> Target:
         raise TargetError(f"{path}: [arithmetic] structures must be a non-empty list drawn from {', '.join(STRUCTURES)}")
     structure = get("structure", STRUCTURES, default=structures[0])
     scaling = get("scaling", SCALINGS, default="none")
+    section_cost = ar.get("section_cost", {})
+    if not isinstance(section_cost, dict):
+        raise TargetError(f"{path}: [arithmetic] section_cost must be a table of structure = multiplies, e.g. "
+                          "section_cost = { \"df1-wide-fb\" = 9 }")
+    for name, cost in section_cost.items():
+        if name not in structures:
+            raise TargetError(f"{path}: [arithmetic] section_cost names '{name}'{close_match(name, structures)}, "
+                              f"which structures does not list; name one of {', '.join(structures)}")
+        if isinstance(cost, bool) or not isinstance(cost, int) or not 1 <= cost <= 1000:
+            raise TargetError(f"{path}: [arithmetic] section_cost of '{name}' = {cost!r}; write the multiplies per "
+                              "sample of one section on this chip, a whole number from 1 to 1000")
     if kind == "float32":
         arith = Arithmetic(kind="float32", structure=structure, data=None, coef=None, acc_bits=32,
                            rounding="add-half", overflow="saturate", scaling=scaling)
@@ -165,7 +183,8 @@ def load_target(folder: Path) -> Target:
                            scaling=scaling, product_shift=pshift,
                            product_rounding=get("product_rounding", ROUNDING_MODES, default="truncate"))
     return Target(name=folder.name, folder=folder, summary=str(raw.get("summary", "")),
-                  arithmetic=arith, structures=tuple(structures), raw=MappingProxyType(raw))
+                  arithmetic=arith, structures=tuple(structures), raw=MappingProxyType(raw),
+                  section_cost=MappingProxyType(dict(section_cost)))
 
 
 @dataclass(frozen=True)
