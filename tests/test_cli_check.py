@@ -128,3 +128,104 @@ def test_reports_name_peaks_re_full_scale_and_the_offset_apart(tmp_path):
     assert d["budget"]["output_offset_lsb"] == 1000
     assert "dBFS peak" not in r.stdout and "dB re full-scale peak" in r.stdout
     assert "output_offset_lsb" in r.stdout
+
+
+def _vibration_copy(tmp_path, budget_lines: str, channel_extra: str = "", implementation: str = "") -> object:
+    """filters/vibration_sensor.toml with its [budget] (and channel, [implementation]) rewritten."""
+    text = (FILTERS / "vibration_sensor.toml").read_text()
+    head, rest = text.split("[budget]", 1)
+    body = rest[rest.index("[[channel]]"):]
+    if implementation:
+        head = head[:head.index("[implementation]")] + implementation + "\n"
+    body = body.replace('name = "accel"\n', 'name = "accel"\n' + channel_extra)
+    f = tmp_path / "vib.toml"
+    f.write_text(head + "[budget]\n" + budget_lines + "\n" + body)
+    return f
+
+
+def test_auto_meets_the_budget_as_overridden_on_the_command_line(tmp_path):
+    # structure = "auto" chooses against the budget the check gates on, command-line overrides
+    # included: an impossible override stops auto with its one line (exit 2) ...
+    r = run(FILTERS / "vibration_sensor.toml", "--max-noise-dbfs", "-200")
+    assert r.returncode == 2, r.stdout + r.stderr
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and "channel 'accel'" in lines[0] and "nearest miss: output noise" in lines[0]
+    assert "-200 dBFS limit" in lines[0]
+    # ... and a reachable override rescues a description whose own budget auto cannot meet
+    f = _vibration_copy(tmp_path, 'passband_deviation_db = 0.05\noutput_noise_dbfs = -200\nlimit_cycles = "none"\n'
+                        'overflow = "none"\npassband = [[10, 1000]]')
+    assert run(f).returncode == 2
+    r = run(f, "--max-noise-dbfs", "-80", "--json", "-")
+    assert r.returncode == 0, r.stdout + r.stderr
+    (ch,) = json.loads(r.stdout)["channels"]
+    assert ch["budget"]["output_noise_dbfs"] == -80
+    assert all("chosen" in s for s in ch["sections"])
+
+
+def test_channel_structure_overrides_the_implementation_and_the_command_line_wins(tmp_path):
+    f = _vibration_copy(tmp_path, 'output_noise_dbfs = -60\nlimit_cycles = 1000\noverflow = "allow"\n'
+                        'tone_gain_error_db = "off"',
+                        channel_extra='structure = "df1ef"\n',
+                        implementation='[implementation]\ntarget = "mcu16"\nstructure = "tdf2"\nscaling = "l1"')
+    r = run(f, "--json", "-")
+    assert r.returncode == 0, r.stdout + r.stderr
+    (ch,) = json.loads(r.stdout)["channels"]
+    assert ch["arithmetic"]["structure"] == "df1ef"
+    assert {s["structure"] for s in ch["sections"]} == {"df1ef"}
+    r = run(f, "--structure", "df1", "--json", "-")
+    (ch,) = json.loads(r.stdout)["channels"]
+    assert {s["structure"] for s in ch["sections"]} == {"df1"}
+
+
+def test_channel_structure_the_target_cannot_run_is_one_line(tmp_path):
+    f = _vibration_copy(tmp_path, 'output_noise_dbfs = -60', channel_extra='structure = "coupled"\n',
+                        implementation='[implementation]\ntarget = "mcu32hw"')
+    r = run(f)
+    assert r.returncode == 2
+    lines = r.stderr.strip().splitlines()
+    assert len(lines) == 1 and "Traceback" not in r.stderr
+    assert str(f) in lines[0] and "channel 'accel'" in lines[0] and "key 'structure'" in lines[0]
+    assert "does not support structure 'coupled'" in lines[0] and "it supports df1, tdf2, df1ef" in lines[0]
+
+
+def test_budget_by_data_word_width(tmp_path):
+    # [budget.when_data_bits.16] applies where the data word is 16 bits wide (mcu16), not on a
+    # 32-bit word (mcu32), and a command-line override wins over it
+    f = _vibration_copy(tmp_path, 'passband_deviation_db = 0.05\noutput_noise_dbfs = -130\nlimit_cycles = "none"\n'
+                        'overflow = "none"\npassband = [[10, 1000]]\n[budget.when_data_bits.16]\noutput_noise_dbfs = -80')
+    r = run(f, "--json", "-")
+    assert r.returncode == 0, r.stdout + r.stderr
+    (ch,) = json.loads(r.stdout)["channels"]
+    assert ch["budget"]["output_noise_dbfs"] == -80
+    r = run(f, "--target", "mcu32", "--structure", "df1ef", "--json", "-")
+    (ch,) = json.loads(r.stdout)["channels"]
+    assert ch["budget"]["output_noise_dbfs"] == -130
+    r = run(f, "--max-noise-dbfs", "-70", "--json", "-")
+    (ch,) = json.loads(r.stdout)["channels"]
+    assert ch["budget"]["output_noise_dbfs"] == -70
+
+
+def test_a_target_states_what_a_structure_costs_and_auto_orders_by_it(tmp_path):
+    # [arithmetic] section_cost: a chip where error feedback is dear (here 12 multiplies a section) makes
+    # auto reach for it last; the note names the cost it paid
+    import shutil
+
+    root = tmp_path / "targets"
+    shutil.copytree(FILTERS.parent / "targets" / "mcu16", root / "dear16")
+    toml = root / "dear16" / "target.toml"
+    toml.write_text(toml.read_text().replace('structure = "df1"\n', 'structure = "df1"\n'
+                                             'section_cost = { "df1ef" = 12 }\n', 1))
+    r = run(FILTERS / "vibration_sensor.toml", "--json", "-")
+    (ch,) = json.loads(r.stdout)["channels"]
+    assert ch["sections"][0]["structure"] == "df1ef"  # on mcu16 (5 multiplies) auto takes it for the 0.5 Hz pole
+    r = run(FILTERS / "vibration_sensor.toml", "--target-dir", root, "--target", "dear16", "--json", "-")
+    assert r.returncode in (0, 1), r.stderr
+    (ch,) = json.loads(r.stdout)["channels"]
+    assert "df1ef" not in [s["structure"] for s in ch["sections"]]
+    assert all("multiplies per sample" in s["chosen"] for s in ch["sections"])
+    # a cost for a structure the target does not list is one line naming the file and the fix
+    toml.write_text(toml.read_text().replace('section_cost = { "df1ef" = 12 }', 'section_cost = { "df1e" = 12 }'))
+    r = run(FILTERS / "vibration_sensor.toml", "--target-dir", root, "--target", "dear16")
+    assert r.returncode == 2
+    (line,) = r.stderr.strip().splitlines()
+    assert str(toml) in line and "section_cost names 'df1e'" in line and "did you mean 'df1ef'" in line

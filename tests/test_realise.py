@@ -307,3 +307,35 @@ def test_auto_reaches_error_feedback_with_double_word_feedback(tmp_path):
     assert "df1ef-wide-fb" in chosen
     assert any("df1ef-wide-fb chosen by auto" in n for n in prog.notes)
     assert analytic_noise(prog).dbfs <= -75
+
+
+@pytest.mark.parametrize("scaling", ["none", "l1", "l2"])
+def test_per_section_structures_are_an_argument_not_hidden_state(scaling):
+    # structure = "auto" hands its per-section choice to the realiser as an argument; the
+    # realiser keeps no module-level state that could leak one channel's choice into another
+    from contextvars import ContextVar
+
+    import coefc.realise as realise_pkg
+
+    assert not any(isinstance(v, ContextVar) for v in vars(realise_pkg).values())
+    sos = signal.butter(4, 300, fs=FS, output="sos")
+    d = _design(SosBlock(sos))
+    p = realise_channel(d, MCU16.with_(scaling=scaling), ("df1ef", "coupled"))
+    assert [op.structure for op in p.sections()] == ["df1ef", "coupled"]
+    assert p.sections()[1].a[1] == -p.sections()[1].a[2] or p.sections()[1].a[1] == 0  # a coupled state matrix
+    # without the argument every section takes the arithmetic's structure, before and after
+    assert {op.structure for op in realise_channel(d, MCU16.with_(scaling=scaling)).sections()} == {"df1"}
+    # a section past the end of the tuple takes its last entry
+    assert [op.structure for op in realise_channel(d, MCU16.with_(scaling=scaling), ("tdf2",)).sections()] == \
+        ["tdf2", "tdf2"]
+
+
+def test_per_section_structures_count_across_rate_changes():
+    # sections are numbered over the whole channel, also across a decimation (each stretch is
+    # realised on its own, so the realiser must hand each stretch its part of the tuple)
+    from coefc.blocks import RateBlock
+
+    lp = signal.butter(2, 3000, fs=FS, output="sos")
+    d = _design(SosBlock(lp), RateBlock(down=2), SosBlock(signal.butter(2, 1000, fs=FS / 2, output="sos")))
+    p = realise_channel(d, MCU16.with_(scaling="l1"), ("df1ef", "tdf2"))
+    assert [op.structure for op in p.sections()] == ["df1ef", "tdf2"]

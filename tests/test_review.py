@@ -77,7 +77,14 @@ def test_line_scan_agrees_with_tomllib_on_every_example(path):
     doc = tomllib.loads(text)  # reference: Python's TOML parser
     lines = scan(text)
     src = text.splitlines()
-    for key in doc.get("budget", {}):
+    for key, value in doc.get("budget", {}).items():
+        if key == "when_data_bits":  # [budget.when_data_bits.N] tables: their keys by width
+            for width, table in value.items():
+                for k in table:
+                    assert src[lines.width_keys[width][k] - 1].lstrip().startswith(k)
+                    assert lines.budget_key(k, None, int(width)) == lines.width_keys[width][k]
+                    assert lines.budget_key(k, None, int(width) + 1) == lines.budget_keys.get(k)
+            continue
         assert src[lines.budget_keys[key] - 1].lstrip().startswith(key)
     assert [c.name for c in lines.channels] == [c["name"] for c in doc["channel"]]
     for cl, ch in zip(lines.channels, doc["channel"]):

@@ -272,3 +272,31 @@ def test_any_bytes_load_or_raise_description_error(raw):
         load_and_design(raw)
     except DescriptionError:
         pass
+
+
+def test_channel_structure_and_budgets_by_data_word_width():
+    from coefc.budget import apply_overrides, budget_for
+    from coefc.program import Arithmetic
+    from coefc.qformat import QFormat
+
+    d = parse_description(b'name = "t"\nsample_rate_hz = 48000\n[budget]\noutput_noise_dbfs = -130\n'
+                          b'passband_deviation_db = 0.05\n[budget.when_data_bits.16]\noutput_noise_dbfs = -90\n'
+                          b'[[channel]]\nname = "a"\nstructure = "auto"\nstages = [{ kind = "gain", db = -1 }]\n'
+                          b'[channel.budget]\npassband_deviation_db = 0.1\n'
+                          b'[[channel]]\nname = "b"\nstages = [{ kind = "gain", db = -1 }]\n')
+    a, b = d.channels
+    assert (a.structure, b.structure) == ("auto", None)
+    assert d.budget.when_data_bits == ((16, (("output_noise_dbfs", -90.0),)),)
+    q15 = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 14), acc_bits=32)
+    q31 = Arithmetic()
+    f32 = Arithmetic(kind="float32", data=None, coef=None)
+    # the width's table applies to a 16-bit word only; the channel's own keys still apply over it
+    assert budget_for(d.budget, a, q15).output_noise_dbfs == -90
+    assert budget_for(d.budget, a, q15).passband_deviation_db == 0.1
+    assert budget_for(d.budget, b, q31).output_noise_dbfs == -130
+    assert budget_for(d.budget, b, f32).output_noise_dbfs == -130
+    # a command-line override wins over the table
+    assert budget_for(apply_overrides(d.budget, output_noise_dbfs=-70), a, q15).output_noise_dbfs == -70
+    with pytest.raises(DescriptionError, match="not a data-word width"):
+        parse_description(b'name = "t"\nsample_rate_hz = 48000\n[budget.when_data_bits.1]\noutput_noise_dbfs = -9\n'
+                          b'[[channel]]\nname = "a"\nstages = [{ kind = "gain", db = -1 }]\n')

@@ -54,31 +54,43 @@ class Design:
         return find_target(name, target_dirs)
 
     def realise(self, target: str | Target | None = None, overrides: Overrides | None = None,
-                target_dirs: Iterable[str | os.PathLike] = ()) -> "Realisation":
-        from .realise import realise_channel
+                target_dirs: Iterable[str | os.PathLike] = (), budget=None) -> "Realisation":
+        """The fixed-point (or float32) programs of the channels on *target*.
 
+        The arithmetic is the target's, then ``[implementation]``, then a channel's
+        own ``structure``, then *overrides* (:func:`coefc.targetspec.resolve_arithmetic`).
+        *budget* is the budget ``structure = "auto"`` must meet: the description's
+        ``[budget]`` with command-line overrides applied (:func:`coefc.budget.apply_overrides`);
+        ``None`` means the description's own.  Each channel meets it as the check
+        applies it: the table of its data word's width, then its ``[channel.budget]``,
+        keys set on the command line winning (:func:`coefc.budget.budget_for`).
+        """
+        from .budget import budget_for
         from .errors import CoefcError, DescriptionError
+        from .realise import realise_channel
 
         tgt = target if isinstance(target, Target) else self.target(target, target_dirs)
         d = self.loaded.description
-        arith = resolve_arithmetic(tgt, d.implementation, overrides, d.source)
+        budget = d.budget if budget is None else budget
+        programs = []
         try:
-            if arith.structure == "auto":  # per section, the cheapest structure that meets the budget
-                from dataclasses import replace as _replace
+            for ch in self.channels:
+                spec = next((c for c in d.channels if c.name == ch.name), None)
+                arith = resolve_arithmetic(tgt, d.implementation, overrides, d.source,
+                                           channel=spec.name if spec is not None and spec.structure else None,
+                                           channel_structure=spec.structure if spec is not None else None)
+                if arith.structure == "auto":  # per section, the cheapest structure that meets the budget
+                    from .realise.auto import realise_auto
 
-                from .realise.auto import realise_auto
-
-                def budget_of(ch):
-                    extra = dict(d.channel(ch.name).budget) if ch.name in [c.name for c in d.channels] else {}
-                    return _replace(d.budget, **extra) if extra else d.budget
-
-                return Realisation(self, tgt, tuple(realise_auto(ch, arith, tgt.structures, budget_of(ch),
-                                                                 realise_channel) for ch in self.channels))
-            return Realisation(self, tgt, tuple(realise_channel(ch, arith) for ch in self.channels))
+                    programs.append(realise_auto(ch, arith, tgt.structures, budget_for(budget, spec, arith),
+                                                 realise_channel, tgt.section_cost))
+                else:
+                    programs.append(realise_channel(ch, arith))
         except DescriptionError:
             raise
         except CoefcError as e:  # name the file: realise only knows the channel (the type is kept)
             raise e.placed(d.source) from None
+        return Realisation(self, tgt, tuple(programs))
 
 
 @dataclass(frozen=True, eq=False)

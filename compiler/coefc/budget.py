@@ -257,6 +257,33 @@ def channel_budget(budget: Budget, overrides) -> Budget:
     return replace(budget, **keys) if keys else budget
 
 
+def width_budget(budget: Budget, arithmetic) -> Budget:
+    """*budget* with its ``[budget.when_data_bits.N]`` keys for *arithmetic*'s data word (N its width).
+
+    Float32 arithmetic has no data word: no table applies.  Keys set on the command
+    line win over the table's.
+    """
+    if arithmetic is None or arithmetic.is_float:
+        return budget
+    for width, keys in budget.when_data_bits:
+        if width == arithmetic.data.width:
+            return channel_budget(budget, dict(keys))
+    return budget
+
+
+def budget_for(budget: Budget, spec, arithmetic) -> Budget:
+    """One channel's budget as the check applies it, before the defaults (:func:`with_defaults`).
+
+    In order, later winning: the description's ``[budget]``, its table for the
+    channel's data-word width (:func:`width_budget`), the channel's own
+    ``[channel.budget]`` (*spec*: a :class:`coefc.spec.ChannelSpec` or ``None``),
+    and the keys set on the command line (``budget.command_line``) over all.
+    ``structure = "auto"`` meets exactly this budget (:func:`coefc.api.Design.realise`).
+    """
+    b = width_budget(budget, arithmetic)
+    return channel_budget(b, spec.budget) if spec is not None else b
+
+
 # ------------------------------------------------------------------ checks
 
 def _fmt(v, unit=""):
@@ -731,7 +758,7 @@ def run_check(realisation, budget: Budget, *, options=None) -> CheckReport:
     tolerated: list[str] = []
     for prog in realisation.programs:
         spec = specs.get(prog.name)
-        cb, defs = with_defaults(channel_budget(budget, spec.budget) if spec is not None else budget)
+        cb, defs = with_defaults(budget_for(budget, spec, prog.arithmetic))
         defaults.update(defs)
         opt = base
         if opt.passband is None and cb.passband:

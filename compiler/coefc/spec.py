@@ -73,6 +73,9 @@ class Budget:
     passband: tuple[tuple[float, float], ...] | None = None
     stopband: tuple[tuple[float, float], ...] | None = None
     command_line: frozenset = frozenset()  # keys set on the command line: no [channel.budget] overrides them
+    #: ``[budget.when_data_bits.N]``: budget keys that apply instead when the data word is N bits
+    #: wide, as ``((N, ((key, value), ...)), ...)`` (applied by :func:`coefc.budget.budget_for`)
+    when_data_bits: tuple = ()
 
 
 @dataclass(frozen=True)
@@ -91,6 +94,8 @@ class ChannelSpec:
     #: ``[channel.budget]``: the budget keys this channel sets for itself (they override
     #: the description's ``[budget]``; command-line overrides still win)
     budget: Mapping = field(default_factory=lambda: MappingProxyType({}))
+    #: the channel's own ``structure`` (a structure name or ``"auto"``; ``None``: ``[implementation]``'s)
+    structure: str | None = None
 
 
 @dataclass(frozen=True)
@@ -332,7 +337,9 @@ MAX_SUMS = 16
 _IMPL_KEYS = ("target", "structure", "data", "coef", "acc_bits", "rounding", "overflow", "scaling")
 #: [budget] keys: one per budget check (coefc.checks.CHECKS), then the keys that shape checks
 _BUDGET_KEYS = tuple(c.name for c in BUDGET_CHECKS) + ("passband", "stopband", "tone_levels_dbfs")
-_CHANNEL_KEYS = ("name", "stages", "budget")
+_CHANNEL_KEYS = ("name", "stages", "budget", "structure")
+#: the table of budgets by data-word width, inside [budget]
+WHEN_DATA_BITS = "when_data_bits"
 
 
 # ------------------------------------------------------------------- loading
@@ -556,7 +563,25 @@ def _implementation(t, source: str) -> Implementation:
 
 
 def _budget(t, source: str, fs: float) -> Budget:
-    return Budget(**_budget_values(t, _Place(source, table="budget"), fs, "budget"))
+    where = _Place(source, table="budget")
+    t = _table(t, _Place(source, key="budget"), "budget")
+    _check_keys(t, _BUDGET_KEYS + (WHEN_DATA_BITS,), where, "[budget]")
+    by_width = t.get(WHEN_DATA_BITS)
+    rest = {k: v for k, v in t.items() if k != WHEN_DATA_BITS}
+    tables = []
+    if by_width is not None:
+        w = where.at(WHEN_DATA_BITS)
+        if not isinstance(by_width, dict) or not all(isinstance(v, dict) for v in by_width.values()):
+            raise w.fail("must hold one table per data-word width; write e.g. [budget.when_data_bits.16] "
+                         "with budget keys in it")
+        for width, table in by_width.items():
+            if not (width.isdigit() and 2 <= int(width) <= 64 and str(int(width)) == width):
+                raise w.fail(f"'{width}' is not a data-word width; name the table by the width in bits, "
+                             "2 to 64, e.g. [budget.when_data_bits.16]")
+            header = f"budget.{WHEN_DATA_BITS}.{width}"
+            vals = _budget_values(table, _Place(source, table=header), fs, header)
+            tables.append((int(width), tuple(vals.items())))
+    return Budget(**_budget_values(rest, where, fs, "budget"), when_data_bits=tuple(sorted(tables)))
 
 
 def _budget_values(t, where: _Place, fs: float, header: str) -> dict:
@@ -626,8 +651,13 @@ def _channel(ch: dict, number: int, source: str, fs: float, seen: set[str]) -> C
                                       "or split the channel")
     budget = _budget_values(ch["budget"], _Place(source, channel=name, table="budget"), fs, "channel.budget") \
         if "budget" in ch else {}
+    structure = None
+    if "structure" in ch:
+        from .program import STRUCTURES
+
+        structure = _choice(*STRUCTURES, "auto")(ch["structure"], where.at("structure"))
     return ChannelSpec(name=name, stages=_stages_at_their_rates(stages, source, name, fs),
-                       budget=MappingProxyType(budget))
+                       budget=MappingProxyType(budget), structure=structure)
 
 
 def _stages_at_their_rates(stages, source: str, channel: str, fs: float) -> tuple:

@@ -35,6 +35,13 @@ class Target:
     arithmetic: Arithmetic  # the defaults
     structures: tuple[str, ...]
     raw: Mapping = field(default_factory=lambda: MappingProxyType({}))  # the whole target.toml
+    #: ``[arithmetic] section_cost``: what one second-order section of a structure costs on this
+    #: chip, in multiplies per sample, where the target states it (else the table's ``multiplies``)
+    section_cost: Mapping = field(default_factory=lambda: MappingProxyType({}))
+
+    def cost_of(self, structure: str) -> int:
+        """Multiplies per sample of one section in *structure* on this target (its own figure, else the table's)."""
+        return int(self.section_cost.get(structure, STRUCTURE_TABLE[structure].multiplies))
 
 
 def builtin_dir() -> Path:
@@ -140,6 +147,17 @@ def load_target(folder: Path) -> Target:
         raise TargetError(f"{path}: [arithmetic] structures must be a non-empty list drawn from {', '.join(STRUCTURES)}")
     structure = get("structure", STRUCTURES, default=structures[0])
     scaling = get("scaling", SCALINGS, default="none")
+    section_cost = ar.get("section_cost", {})
+    if not isinstance(section_cost, dict):
+        raise TargetError(f"{path}: [arithmetic] section_cost must be a table of structure = multiplies, e.g. "
+                          "section_cost = { \"df1-wide-fb\" = 9 }")
+    for name, cost in section_cost.items():
+        if name not in structures:
+            raise TargetError(f"{path}: [arithmetic] section_cost names '{name}'{close_match(name, structures)}, "
+                              f"which structures does not list; name one of {', '.join(structures)}")
+        if isinstance(cost, bool) or not isinstance(cost, int) or not 1 <= cost <= 1000:
+            raise TargetError(f"{path}: [arithmetic] section_cost of '{name}' = {cost!r}; write the multiplies per "
+                              "sample of one section on this chip, a whole number from 1 to 1000")
     if kind == "float32":
         arith = Arithmetic(kind="float32", structure=structure, data=None, coef=None, acc_bits=32,
                            rounding="add-half", overflow="saturate", scaling=scaling)
@@ -165,7 +183,8 @@ def load_target(folder: Path) -> Target:
                            scaling=scaling, product_shift=pshift,
                            product_rounding=get("product_rounding", ROUNDING_MODES, default="truncate"))
     return Target(name=folder.name, folder=folder, summary=str(raw.get("summary", "")),
-                  arithmetic=arith, structures=tuple(structures), raw=MappingProxyType(raw))
+                  arithmetic=arith, structures=tuple(structures), raw=MappingProxyType(raw),
+                  section_cost=MappingProxyType(dict(section_cost)))
 
 
 @dataclass(frozen=True)
@@ -182,8 +201,10 @@ class Overrides:
 
 
 def resolve_arithmetic(target: Target, implementation, overrides: Overrides | None = None,
-                       source: str = "<description>") -> Arithmetic:
-    """Target defaults, then the description's ``[implementation]``, then CLI overrides.
+                       source: str = "<description>", *, channel: str | None = None,
+                       channel_structure: str | None = None) -> Arithmetic:
+    """Target defaults, then the description's ``[implementation]``, then a channel's
+    own ``structure`` (*channel_structure*, of the channel named *channel*), then CLI overrides.
 
     One options schema, several ways to set it, same effect however given.  On a
     float32 target the description's fixed-point settings (Q formats, accumulator,
@@ -192,11 +213,15 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
     """
     arith = target.arithmetic
     structure_from = None
+    structure_channel = None  # the channel whose own structure is in force, for messages
     width_from = {k: str(target.folder / "target.toml") for k in ("data", "coef", "acc_bits")}
     layers = [(implementation, source)]
+    if channel_structure is not None:
+        layers.append((Overrides(structure=channel_structure), source))
     if overrides is not None:
         layers.append((overrides, "<command line>"))
-    for layer, where in layers:
+    for n_layer, (layer, where) in enumerate(layers):
+        in_channel = channel if (channel_structure is not None and n_layer == 1) else None
         changes = {}
         for key in ("structure", "data", "coef", "acc_bits", "rounding", "overflow", "scaling"):
             v = getattr(layer, key, None)
@@ -224,8 +249,9 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
                 if v not in STRUCTURES and v != "auto":
                     raise DescriptionError(where, f"unknown structure '{v}'; use one of {', '.join(STRUCTURES)} "
                                            "or auto",
-                                           key=key)
+                                           key=key, channel=in_channel)
                 structure_from = where  # checked against the target once every layer is applied
+                structure_channel = in_channel
             elif key == "rounding" and v not in ROUNDING_MODES:
                 raise DescriptionError(where, f"unknown rounding '{v}'{close_match(v, ROUNDING_MODES, ROUNDING_HINTS)}; "
                                        f"use one of {', '.join(ROUNDING_MODES)}", key=key)
@@ -244,7 +270,8 @@ def resolve_arithmetic(target: Target, implementation, overrides: Overrides | No
     if structure_from is not None and arith.structure not in target.structures and arith.structure != "auto":
         raise DescriptionError(
             structure_from, f"target '{target.name}' does not support structure '{arith.structure}'; "
-            f"it supports {', '.join(target.structures)}", key="structure")
+            f"it supports {', '.join(target.structures)} (or auto: per section, the cheapest of them)",
+            key="structure", channel=structure_channel)
     if not arith.is_float and arith.data.frac_bits < 2:
         where = width_from["data"]
         raise DescriptionError(where, f"data word {arith.data} has {arith.data.frac_bits} fractional bit(s); "

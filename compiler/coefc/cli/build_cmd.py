@@ -75,6 +75,7 @@ def build(
     if not check_only:
         check_output(output, [file], "header")
     loaded, real = options.realisation(file, channel=channel, target=target, target_dir=target_dir,
+                                       budget_overrides=budget_overrides,
                                        data=data, coef=coef, acc=acc, rounding=rounding,
                                        overflow=overflow, structure=structure, scaling=scaling)
     validate(real, generated=kernel)  # every refusal rule (shared with check) before the (slower) check

@@ -54,16 +54,19 @@ Channel = Annotated[Optional[list[str]], typer.Option("--channel", callback=_cha
 JsonOut = Annotated[Optional[str], typer.Option("--json", metavar="PATH", help="Write the JSON report to PATH ('-' for stdout).")]
 
 
-def realisation(file, *, channel=None, target=None, target_dir=None, **arithmetic):
+def realisation(file, *, channel=None, target=None, target_dir=None, budget_overrides=None, **arithmetic):
     """Load, design and realise *file* as the command line says: ``(loaded, realisation)``.
 
     *arithmetic* takes the override options (data, coef, acc, rounding, overflow,
-    structure, scaling) by their option names.
+    structure, scaling) by their option names; *budget_overrides* the budget
+    overrides (budget key -> value or None), which ``structure = "auto"`` meets.
     """
     from ..api import load
+    from ..budget import apply_overrides
 
     loaded = load(file)
-    real = loaded.design(channel or None).realise(target, overrides(**arithmetic), target_dir or ())
+    budget = apply_overrides(loaded.description.budget, **(budget_overrides or {}))
+    real = loaded.design(channel or None).realise(target, overrides(**arithmetic), target_dir or (), budget=budget)
     impl = loaded.description.implementation
     if (real.programs and real.programs[0].arithmetic.is_float and impl.structure == "df1ef"
             and arithmetic.get("structure") is None):

@@ -102,7 +102,7 @@ def fewest_op_widths(sweeper, channel_index: int, target: str, structure: str, a
     def program(c: int) -> ChannelProgram:
         if c not in progs:
             ov = sweeper.overrides_for(Config(tgt.name, structure, acc_bits, data_bits, c))
-            progs[c] = one.realise(tgt, ov).programs[0]
+            progs[c] = one.realise(tgt, ov, budget=sweeper.budget).programs[0]
         return progs[c]
 
     def passes(prog: ChannelProgram) -> bool:

@@ -326,7 +326,7 @@ class Sweeper:
 
         if config in self._cache:
             return self._cache[config]
-        real = self.design.realise(self.target(config.target), self.overrides_for(config))
+        real = self.design.realise(self.target(config.target), self.overrides_for(config), budget=self.budget)
         why = refusal(real)
         if why is not None:
             res = ConfigResult(config, (), why)

@@ -64,7 +64,6 @@ cascade or parallel form", IEEE Trans. Audio Electroacoust. AU-18(2), 1970.
 
 from __future__ import annotations
 
-from contextvars import ContextVar
 from dataclasses import replace
 
 import numpy as np
@@ -207,7 +206,8 @@ def _fixed_gain(g: float, arithmetic: Arithmetic, notes: list, where: str) -> Ga
     return GainOp(coef=ints[0], shift=s)
 
 
-def realise_channel(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelProgram:
+def realise_channel(design: ChannelDesign, arithmetic: Arithmetic,
+                    structures: tuple[str, ...] | None = None) -> ChannelProgram:
     """Realise one channel's float design in *arithmetic* (see the module docstring).
 
     Parameters
@@ -216,6 +216,10 @@ def realise_channel(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelPro
         The float blocks of the channel, in signal order.
     arithmetic : Arithmetic
         Formats, accumulator, rounding, overflow, structure and scaling.
+    structures : tuple of str, optional
+        One structure per second-order section, in realised order (what
+        ``structure = "auto"`` chose, :mod:`.auto`); a section past the end takes
+        the last one.  ``None``: every section in ``arithmetic.structure``.
 
     Returns
     -------
@@ -235,31 +239,36 @@ def realise_channel(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelPro
         if arithmetic.product_shift:
             raise RealisationError(f"channel '{design.name}': rate-changing stages are not modelled with rounded "
                                    "products ([arithmetic] product_shift); choose a target with exact products")
-        return _realise_multirate(design, arithmetic)
-    if arithmetic.is_float and not STRUCTURE_TABLE[arithmetic.structure].float32:
-        raise RealisationError(f"channel '{design.name}': structure '{arithmetic.structure}' "
-                               f"({STRUCTURE_TABLE[arithmetic.structure].description}) needs fixed-point arithmetic; use "
-                               + " or ".join(s.name for s in STRUCTURE_TABLE.values() if s.float32) + " for float32")
+        return _realise_multirate(design, arithmetic, structures)
+    for name in {arithmetic.structure, *(structures or ())}:
+        if arithmetic.is_float and not STRUCTURE_TABLE[name].float32:
+            raise RealisationError(f"channel '{design.name}': structure '{name}' "
+                                   f"({STRUCTURE_TABLE[name].description}) needs fixed-point arithmetic; use "
+                                   + " or ".join(s.name for s in STRUCTURE_TABLE.values() if s.float32) + " for float32")
     pre_gain, delay, chain0, final0, notes = _float_plan(design, arithmetic)
     if arithmetic.scaling == "none":
-        return _build(design, arithmetic, pre_gain, delay, chain0, final0, notes)
+        return _build(design, arithmetic, pre_gain, delay, chain0, final0, notes, structures)
     if arithmetic.is_float:
         chain, final_gain = _scale(chain0, final0, arithmetic.scaling, _target(arithmetic))
-        return _build(design, arithmetic, pre_gain, delay, chain, final_gain, notes)
+        return _build(design, arithmetic, pre_gain, delay, chain, final_gain, notes, structures)
     if arithmetic.scaling == "l1":
-        return _realise_l1(design, arithmetic, delay, chain0, final0, notes)
+        return _realise_l1(design, arithmetic, delay, chain0, final0, notes, structures)
     factors = scaling.scale_factors(chain0, arithmetic.scaling, _target(arithmetic))
     ops, gain = [], 1.0
     for (kind, op), c in zip(chain0, factors):
         c = _at_least_one_lsb(kind, op, c, arithmetic)
-        rop, g = _fixed_op(kind, op, c, arithmetic, notes, sum(isinstance(o, SectionOp) for o in ops) + 1)
+        n_sec = sum(isinstance(o, SectionOp) for o in ops) + 1
+        rop, g = _fixed_op(kind, op, c, _section_arithmetic(arithmetic, structures, n_sec), notes, n_sec)
         ops.append(rop)
         gain *= g
     return _finish(design, arithmetic, delay, ops, final0 / gain, notes)
 
 
-#: per-section structures while structure = "auto" realises a channel (None: the arithmetic's structure)
-SECTION_STRUCTURES: ContextVar[tuple[str, ...] | None] = ContextVar("SECTION_STRUCTURES", default=None)
+def _section_arithmetic(arithmetic: Arithmetic, structures: tuple[str, ...] | None, n_sec: int) -> Arithmetic:
+    """The arithmetic of section *n_sec* (1-based): *arithmetic* in that section's structure, if one is given."""
+    if not structures:
+        return arithmetic
+    return arithmetic.with_(structure=structures[min(n_sec, len(structures)) - 1])
 
 
 def _at_least_one_lsb(kind, op, c: float, arithmetic: Arithmetic) -> float:
@@ -282,9 +291,6 @@ def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: in
     the gain lost in rounding a numerator is restored there.
     """
     fmt = arithmetic.coef
-    chosen = SECTION_STRUCTURES.get()
-    if kind == "sos" and chosen is not None:  # structure = "auto": this section's choice (coefc.realise.auto)
-        arithmetic = arithmetic.with_(structure=chosen[min(n_sec, len(chosen)) - 1])
     if kind == "sos":
         b, a = op
         bs = np.asarray(b, dtype=float) * c
@@ -358,7 +364,8 @@ def _l1_length(chain) -> int:
     return impulse_length(r, sum(len(op) - 1 for kind, op in chain if kind != "sos"))
 
 
-def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: float, notes: list) -> ChannelProgram:
+def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: float, notes: list,
+                structures: tuple[str, ...] | None = None) -> ChannelProgram:
     """l1 scaling on the realised ops, one op at a time (Jackson's l1 argument, roundoff included).
 
     For op i the float design's l1 scale factor (output norm ``1 - 2 LSB``) is the
@@ -397,6 +404,7 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
         c, first, best, fill = c0, None, None, 0
         stop = ""
         n_sec = sum(isinstance(o, SectionOp) for o in ops) + 1
+        ar = _section_arithmetic(arithmetic, structures, n_sec) if kind == "sos" else arithmetic
         while True:
             trial_notes: list[str] = []
             rop, g = _fixed_op(kind, op, c, ar, trial_notes, n_sec)
@@ -455,10 +463,11 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
         notes.append(Note("scaling", "l1 scaling, by the realisation's bound (realised l1 gain plus roundoff): "
                           + "; ".join(parts) + ". The l1_scaling and overflow checks judge the realised program; "
                           "a wider data or coefficient word gives room"))
-    return _finish(design, ar, delay, ops, final0 / gain, notes)
+    return _finish(design, arithmetic, delay, ops, final0 / gain, notes)
 
 
-def _build(design, arithmetic, pre_gain, delay, chain, final_gain, notes) -> ChannelProgram:
+def _build(design, arithmetic, pre_gain, delay, chain, final_gain, notes,
+           structures: tuple[str, ...] | None = None) -> ChannelProgram:
     """The program of an already scaled float chain (float32, or fixed point without scaling)."""
     ops = []
     if arithmetic.is_float:
@@ -470,8 +479,9 @@ def _build(design, arithmetic, pre_gain, delay, chain, final_gain, notes) -> Cha
         for kind, op in chain:
             if kind == "sos":
                 b, a = op
+                n_sec = sum(isinstance(o, SectionOp) for o in ops) + 1
                 ops.append(SectionOp(b=tuple(f32(v) for v in b), a=(f32(a[1]), f32(a[2])),
-                                     structure=arithmetic.structure))
+                                     structure=_section_arithmetic(arithmetic, structures, n_sec).structure))
             else:
                 taps = tuple(f32(v) for v in op)
                 ops.append(FirOp(taps=taps, symmetric=taps == taps[::-1]))
@@ -481,11 +491,13 @@ def _build(design, arithmetic, pre_gain, delay, chain, final_gain, notes) -> Cha
     if pre_gain != 1.0:
         ops.append(_fixed_gain(pre_gain, arithmetic, notes, "input"))
     for kind, op in chain:
-        ops.append(_fixed_op(kind, op, 1.0, arithmetic, notes, sum(isinstance(o, SectionOp) for o in ops) + 1)[0])
+        n_sec = sum(isinstance(o, SectionOp) for o in ops) + 1
+        ops.append(_fixed_op(kind, op, 1.0, _section_arithmetic(arithmetic, structures, n_sec), notes, n_sec)[0])
     return _finish(design, arithmetic, delay, ops, final_gain, notes)
 
 
-def _realise_multirate(design: ChannelDesign, arithmetic: Arithmetic) -> ChannelProgram:
+def _realise_multirate(design: ChannelDesign, arithmetic: Arithmetic,
+                       structures: tuple[str, ...] | None = None) -> ChannelProgram:
     """A channel with rate changes: each stretch between rate changes realised on its own, then joined.
 
     Blocks do not commute across a rate change, so the op ordering, pairing and
@@ -530,7 +542,9 @@ def _realise_multirate(design: ChannelDesign, arithmetic: Arithmetic) -> Channel
             notes.append(_cic_note(cic, arithmetic, i, rate))
             blocks = blocks[:-1]
         if blocks:
-            sub = realise_channel(ChannelDesign(f"{design.name}", rate, tuple(blocks)), arithmetic)
+            done = sum(isinstance(op, SectionOp) for op in ops)  # sections of the earlier stretches
+            sub = realise_channel(ChannelDesign(f"{design.name}", rate, tuple(blocks)), arithmetic,
+                                  structures[min(done, len(structures) - 1):] if structures else None)
             seg = list(sub.ops)
             if i + 1 < len(stretches) and seg and isinstance(seg[-1], GainOp):
                 # the gain restoring this stretch's scale goes on, through the rate change (a gain is

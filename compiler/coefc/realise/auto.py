@@ -1,8 +1,11 @@
 """``structure = "auto"``: per section, the cheapest structure that meets the channel's budget.
 
 Candidates are the structures the target runs (``[arithmetic] structures``; float32
-only those marked ``float32``), ordered by cost from :data:`coefc.program.STRUCTURE_TABLE`:
-multiplies per sample, then state words, then table order.  Every section starts at
+only those marked ``float32``), ordered by cost: multiplies per sample of one section
+(the target's own figure in ``[arithmetic] section_cost`` where it states one, else
+:data:`coefc.program.STRUCTURE_TABLE`'s), then state words, then table order.  A
+structure a target makes dear (double-word feedback on a chip whose low-word products
+need a software multiply, say) is so chosen only for the sections that need it.  Every section starts at
 the cheapest; while the channel misses its budget, sections move up one candidate:
 
 1. every section whose realised poles are not strictly inside the unit circle;
@@ -13,8 +16,12 @@ the cheapest; while the channel misses its budget, sections move up one candidat
    largest noise contribution at the channel output.
 
 The criteria are the ``stable``, ``passband_deviation_db`` and ``output_noise_dbfs``
-checks of the channel's budget (budget overrides on the command line are not seen
-here; the check applies them afterwards).  When a section would move past its last
+checks of the channel's budget as the check applies it (:func:`coefc.budget.budget_for`:
+the table of its data word's width, its ``[channel.budget]``, and the command line's
+overrides over all; the caller passes it).  The per-section structures reach the
+realiser as an argument (``realise(design, arithmetic, structures)``), never as
+hidden state.  Limit cycles, the tones and the measured noise are not criteria
+here: the check judges them on the result.  When a section would move past its last
 candidate the search stops with one line naming the channel, the section and the
 nearest miss (the best configuration seen).  Each section's choice and one short
 reason are kept as ``precision`` notes of the program.
@@ -35,12 +42,18 @@ import numpy as np
 from ..program import STRUCTURE_TABLE, Arithmetic, ChannelProgram, Note, SectionOp
 
 
-def candidates(target_structures, arithmetic: Arithmetic) -> list[str]:
-    """The target's structures, cheapest first (multiplies, state words, table order)."""
+def candidates(target_structures, arithmetic: Arithmetic, costs=None) -> list[str]:
+    """The target's structures, cheapest first (multiplies, state words, table order).
+
+    *costs* maps a structure to the multiplies per sample one section costs on the
+    target, where the target states it (``[arithmetic] section_cost``); the others
+    cost the table's ``multiplies``.
+    """
     order = list(STRUCTURE_TABLE)
+    costs = costs or {}
     names = [s for s in target_structures if s in STRUCTURE_TABLE
              and (not arithmetic.is_float or STRUCTURE_TABLE[s].float32)]
-    return sorted(names, key=lambda s: (STRUCTURE_TABLE[s].multiplies, STRUCTURE_TABLE[s].state_words,
+    return sorted(names, key=lambda s: (costs.get(s, STRUCTURE_TABLE[s].multiplies), STRUCTURE_TABLE[s].state_words,
                                         order.index(s)))
 
 
@@ -70,11 +83,16 @@ def _evaluate(design, program: ChannelProgram, budget) -> tuple[list[float], flo
     return radii, dev, noise_db, contrib
 
 
-def realise_auto(design, arithmetic: Arithmetic, target_structures, budget, realise) -> ChannelProgram:  # noqa: C901
-    """The channel realised with a structure per section (see the module docstring)."""
-    from . import SECTION_STRUCTURES, RealisationError
+def realise_auto(design, arithmetic: Arithmetic, target_structures, budget, realise,  # noqa: C901
+                 costs=None) -> ChannelProgram:
+    """The channel realised with a structure per section (see the module docstring).
 
-    cands = candidates(target_structures, arithmetic)
+    *costs*: the target's own cost of a structure (:func:`candidates`).
+    """
+    from . import RealisationError
+
+    cands = candidates(target_structures, arithmetic, costs)
+    cost = {s: (costs or {}).get(s, STRUCTURE_TABLE[s].multiplies) for s in cands}
     if not cands:
         raise RealisationError(f"channel '{design.name}': the target runs no structure that auto can choose")
     base = arithmetic.with_(structure=cands[0])
@@ -83,11 +101,7 @@ def realise_auto(design, arithmetic: Arithmetic, target_structures, budget, real
     why = ["cheapest"] * n
     best = None
     while True:
-        token = SECTION_STRUCTURES.set(tuple(cands[i] for i in level) or None)
-        try:
-            prog = realise(design, base)
-        finally:
-            SECTION_STRUCTURES.reset(token)
+        prog = realise(design, base, tuple(cands[i] for i in level) or None)
         radii, dev, noise_db, contrib = _evaluate(design, prog, budget)
         dev_lim = getattr(budget, "passband_deviation_db", None)
         noise_lim = getattr(budget, "output_noise_dbfs", None)
@@ -104,7 +118,8 @@ def realise_auto(design, arithmetic: Arithmetic, target_structures, budget, real
             best = (miss, text)
         if not (bad_stable or bad_dev or bad_noise):
             notes = tuple(prog.notes) + tuple(
-                Note("choice", f"section {i + 1}: structure {cands[lv]} chosen by auto ({why[i]})", section=i + 1)
+                Note("choice", f"section {i + 1}: structure {cands[lv]} chosen by auto ({why[i]}; "
+                     f"{cost[cands[lv]]} multiplies per sample)", section=i + 1)
                 for i, lv in enumerate(level))
             return ChannelProgram(prog.name, prog.sample_rate_hz, arithmetic, prog.ops, notes)
         if bad_stable:

@@ -112,24 +112,35 @@ def check_loaded(loaded, settings: CheckSettings):
     a = dict(settings.arithmetic)
     ov = Overrides(structure=a.get("structure"), data=a.get("data"), coef=a.get("coef"), acc_bits=a.get("acc"),
                    rounding=a.get("rounding"), overflow=a.get("overflow"), scaling=a.get("scaling"))
-    real = loaded.design(settings.channels or None).realise(settings.target, ov, settings.target_dirs)
+    budget = apply_overrides(loaded.description.budget, **dict(settings.budget_overrides))
+    real = loaded.design(settings.channels or None).realise(settings.target, ov, settings.target_dirs, budget=budget)
     notes = []
     impl = loaded.description.implementation
     if real.programs and real.programs[0].arithmetic.is_float and impl.structure == "df1ef" and ov.structure is None:
         notes.append(f"{loaded.description.source}: target '{real.target.name}' runs the description's df1ef as "
                      "df1: float32 has no fixed-point rounding residual to feed back")
     validate(real, generated=True)  # what `coefc build --kernel` would refuse fails here too (exit 2), before the analysis
-    budget = apply_overrides(loaded.description.budget, **dict(settings.budget_overrides))
     report = run_check(real, budget, options=AnalysisOptions(noise_samples=settings.noise_samples,
                                                              max_states=settings.max_states))
     return report, real, notes
+
+
+def _width(qformat: str | None) -> int | None:
+    """The width in bits of a Q format as the report writes it (``"Q1.15"``: 16), or None."""
+    from ..qformat import QFormat
+
+    try:
+        return QFormat.parse(qformat).width if qformat else None
+    except ValueError:
+        return None
 
 
 def findings_of(report, description, text: str) -> list[Finding]:
     """A :class:`Finding` per failing check of *report*, at the line of its budget key or channel.
 
     The line is that of the key setting the limit: the channel's own
-    ``[channel.budget]`` key, else the ``[budget]`` key; a limit from the command
+    ``[channel.budget]`` key, else the key of the ``[budget.when_data_bits.N]`` table
+    of its data word's width, else the ``[budget]`` key; a limit from the command
     line or a default is placed at the channel's ``name``; ``stable`` and
     ``l1_scaling`` (no budget key) at the channel's first stage, and the IEC 61672
     check at its weighting stage.
@@ -148,7 +159,7 @@ def findings_of(report, description, text: str) -> list[Finding]:
             kind = kind_of(c.name)
             line = None
             if kind.budget_key and c.name not in report.budget.command_line:
-                line = where.budget_key(c.name, ch.name)
+                line = where.budget_key(c.name, ch.name, _width(ch.arithmetic.get("data")))
             if line is None and cl is not None:
                 spec = specs.get(ch.name)
                 weighting = [s.index for s in spec.stages if s.kind == "weighting"] if spec else []

@@ -59,6 +59,8 @@ class Lines:
     budget_keys: dict[str, int] = field(default_factory=dict)
     top_keys: dict[str, int] = field(default_factory=dict)
     channels: list[ChannelLines] = field(default_factory=list)
+    #: ``[budget.when_data_bits.N]``: N (as written) -> {key: line}
+    width_keys: dict[str, dict[str, int]] = field(default_factory=dict)
 
     def channel(self, name: str) -> ChannelLines | None:
         for ch in self.channels:
@@ -66,11 +68,14 @@ class Lines:
                 return ch
         return None
 
-    def budget_key(self, key: str, channel: str | None = None) -> int | None:
-        """The line that sets budget *key* for *channel*: its own ``[channel.budget]``, else ``[budget]``."""
+    def budget_key(self, key: str, channel: str | None = None, data_bits: int | None = None) -> int | None:
+        """The line that sets budget *key* for *channel*: its own ``[channel.budget]``, else the
+        ``[budget.when_data_bits.N]`` table of its data word's width *data_bits*, else ``[budget]``."""
         ch = self.channel(channel) if channel is not None else None
         if ch is not None and key in ch.budget_keys:
             return ch.budget_keys[key]
+        if data_bits is not None and key in self.width_keys.get(str(data_bits), {}):
+            return self.width_keys[str(data_bits)][key]
         return self.budget_keys.get(key)
 
 
@@ -116,7 +121,9 @@ def scan(text: str) -> Lines:
 
     def record_key(path: list[str], lineno: int) -> None:
         ch = channel()
-        if table == ("budget",) or (not table and path[:1] == ["budget"]):
+        if len(table) == 3 and table[:2] == ("budget", "when_data_bits"):
+            lines.width_keys.setdefault(table[2], {}).setdefault(path[0], lineno)
+        elif table == ("budget",) or (not table and path[:1] == ["budget"]):
             sub = path if table else path[1:]
             if sub:
                 lines.budget_keys.setdefault(sub[0], lineno)
