@@ -21,6 +21,7 @@
  *       limit-cycle searches of coefc.analyse.limitcycles)
  *   cycle_region / whole_cycles: exhaustive zero-input cycle searches (every state
  *       of a candidate region, or of the whole state space, visited once)
+ *   coupled_cycles: the exhaustive zero-input cycle search of a coupled-form section
  *   walk: the cycle one zero-input state runs into (Brent's cycle detection)
  *
  * The arithmetic is the one stated in the docstring of coefc/program.py.
@@ -1021,6 +1022,93 @@ static PyObject *py_whole_cycles(PyObject *self, PyObject *args)
     return Py_BuildValue("LNN", (long long)n, g, o);
 }
 
+/* coupled_cycles(A11, A12, A21, A22, k, acc_bits, rounding, overflow, width, B1, B2, max_states)
+ *     -> None when the box holds more than max_states states, else (s1 bytes, s2 bytes, n)
+ *
+ * Every state on a zero-input cycle of a coupled-form section (coefc.analyse.coupled_cycles)
+ * that stays inside the box |S1| <= B1, |S2| <= B2, as native int64 bytes in the order of
+ * (S1, S2); n is the number of states of the box.  One step:
+ *   t_i = Ai1 S1 + Ai2 S2 (exact in int64: the caller makes the data and coefficient words
+ *   together at most 62 bits wide);  w_i = the low acc_bits of t_i, sign-extended;
+ *   S_i' = fit_data(round_shift(w_i, k)).
+ * A step that wraps the accumulator (w_i != t_i) or changes a value in fit_data, or whose
+ * image leaves the box, has no successor (as the numpy search it replaces).  The map on the
+ * box is then a function on a finite set and every state is visited once (marks as in
+ * cycle_region): 0 new, 1 on the current path, 2 done, 3 on a cycle. */
+static inline int64_t cc_step(int64_t s1, int64_t s2, int64_t c1, int64_t c2, const arith_t *ar, int *bad)
+{
+    int64_t t = c1 * s1 + c2 * s2;
+    int64_t w = ar->acc_bits >= 64 ? t : sext((uint64_t)t, ar->acc_bits);
+    if (w != t) *bad = 1;
+    int64_t v = rshift(w, ar);
+    int64_t f = v;
+    if (v > ar->hi || v < ar->lo) {
+        *bad = 1;
+        f = ar->overflow == 0 ? (v > ar->hi ? ar->hi : ar->lo) : sext((uint64_t)v, ar->width);
+    }
+    return f;
+}
+
+static PyObject *py_coupled_cycles(PyObject *self, PyObject *args)
+{
+    long long a11, a12, a21, a22, B1, B2, max_states;
+    int k, acc_bits, rounding, overflow, width;
+    if (!PyArg_ParseTuple(args, "LLLLiiiiiLLL", &a11, &a12, &a21, &a22, &k, &acc_bits, &rounding, &overflow, &width,
+                          &B1, &B2, &max_states))
+        return NULL;
+    arith_t ar;
+    if (arith_init(&ar, k, acc_bits, rounding, overflow, width) < 0) return NULL;
+    if (B1 < 0 || B2 < 0 || B1 > (INT64_C(1) << 40) || B2 > (INT64_C(1) << 40) || width > 61 ||
+        max_states > (INT64_C(1) << 34)) {
+        PyErr_SetString(PyExc_ValueError, "engine: coupled_cycles box out of range");
+        return NULL;
+    }
+    const int64_t n2 = 2 * B2 + 1, n = (2 * B1 + 1) * n2;
+    if ((2 * B1 + 1) > max_states / n2 + 1 || n > max_states) Py_RETURN_NONE;
+    uint8_t *mark = PyMem_Calloc((size_t)n, 1);
+    if (!mark) return PyErr_NoMemory();
+    int64_t found = 0;
+    Py_BEGIN_ALLOW_THREADS
+#define CC_NEXT(s1, s2, i) do { int bad_ = 0; \
+        int64_t u1_ = cc_step((s1), (s2), a11, a12, &ar, &bad_), u2_ = cc_step((s1), (s2), a21, a22, &ar, &bad_); \
+        (s1) = u1_; (s2) = u2_; \
+        (i) = (bad_ || u1_ < -B1 || u1_ > B1 || u2_ < -B2 || u2_ > B2) ? -1 : (u1_ + B1) * n2 + (u2_ + B2); } while (0)
+    for (int64_t s = 0; s < n; s++) {
+        if (mark[s]) continue;
+        int64_t c = s, nx, c1 = s / n2 - B1, c2 = s % n2 - B2;
+        for (;;) {
+            mark[c] = 1;
+            CC_NEXT(c1, c2, nx);
+            if (nx < 0 || mark[nx] != 0) break;
+            c = nx;
+        }
+        if (nx >= 0 && mark[nx] == 1) { /* a new cycle through nx */
+            int64_t x = nx, x1 = nx / n2 - B1, x2 = nx % n2 - B2;
+            do {
+                mark[x] = 3;
+                found++;
+                CC_NEXT(x1, x2, x);
+            } while (x != nx);
+        }
+        for (int64_t x = s, x1 = s / n2 - B1, x2 = s % n2 - B2; x >= 0 && mark[x] == 1;) {
+            mark[x] = 2;
+            CC_NEXT(x1, x2, x);
+        }
+    }
+#undef CC_NEXT
+    Py_END_ALLOW_THREADS
+    int64_t *o = PyMem_Malloc(sizeof(int64_t) * 2 * (found ? found : 1));
+    if (!o) { PyMem_Free(mark); return PyErr_NoMemory(); }
+    int64_t j = 0;
+    for (int64_t s = 0; s < n; s++)
+        if (mark[s] == 3) { o[j] = s / n2 - B1; o[found + j] = s % n2 - B2; j++; }
+    PyMem_Free(mark);
+    PyObject *r = Py_BuildValue("y#y#L", (const char *)o, (Py_ssize_t)(found * 8), (const char *)(o + found),
+                                (Py_ssize_t)(found * 8), (long long)n);
+    PyMem_Free(o);
+    return r;
+}
+
 /* walk(y1, y2, E, A1, A2, k, acc_bits, rounding, overflow, width, ef, limit) -> None or bytes
  *
  * Follow one state (y1, y2, E) of the zero-input map, y2 taking the old y1 (E stays 0
@@ -1268,6 +1356,10 @@ static PyMethodDef engine_methods[] = {
     {"whole_cycles", py_whole_cycles, METH_VARARGS,
      "whole_cycles(A1, A2, k, acc_bits, rounding, overflow, data_width, order2, ef, elo, ehi, max_states)\n"
      "-> (n, granular, overflow), each None or (amplitude, period, y1, y2, E); None when n > max_states."},
+    {"coupled_cycles", py_coupled_cycles, METH_VARARGS,
+     "coupled_cycles(A11, A12, A21, A22, k, acc_bits, rounding, overflow, data_width, B1, B2, max_states)\n"
+     "-> None (box above max_states) or (s1, s2, n): every state on a zero-input cycle of a coupled-form\n"
+     "section inside |S1| <= B1, |S2| <= B2 (int64 bytes, in the order of (S1, S2)), n box states."},
     {"walk", py_walk, METH_VARARGS,
      "walk(y1, y2, E, A1, A2, k, acc_bits, rounding, overflow, data_width, ef, limit) -> None or the cycle\n"
      "reached from one zero-input state, as int64 triples (y1, y2, E), from the first cycle state met."},

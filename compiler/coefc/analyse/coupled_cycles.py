@@ -21,10 +21,14 @@ Granular bound
     An overflow-free cycle obeys ``s[n] = sum_t A^t e[n-1-t]``, so
     ``|S_i| <= e_max sum_t sum_j |(A^t)_ij|`` (the linear model with bounded error).
 Exhaustive search
-    Every state of the box given by the smaller of the two bounds is mapped until
-    the set stops shrinking (the image of a finite set under the map, intersected
-    with the box, keeps every cycle; when it no longer changes the map is a
-    bijection on it, so every state left is on a cycle).
+    Every state of the box given by the smaller of the two bounds is visited
+    once: the map restricted to the box (steps that overflow or leave it
+    dropped) is a function on a finite set, and following it from each unvisited
+    state finds every cycle (functional-graph cycle detection, in the compiled
+    engine core).  Without the core, the box is mapped until the set stops
+    shrinking (the image of a finite set under the map, intersected with the
+    box, keeps every cycle; when it no longer changes the map is a bijection on
+    it, so every state left is on a cycle).
 
 ``wrap`` arithmetic can turn a large state into one of the opposite sign; unless no
 state of the data-word box can overflow, overflow oscillations are ``unproven``.
@@ -47,11 +51,14 @@ import numpy as np
 
 from ..program import Arithmetic, SectionOp
 from ..qformat import round_shift
+from ..simulate import _OVF_CODE, _ROUND_CODE
 from .limitcycles import SectionLimitCycles, error_interval
 
-#: exhaustive search: at most this many states in the box, at most this many state-steps in all
-MAX_BOX = 1 << 22
-MAX_WORK = 1 << 25
+#: exhaustive search (compiled): at most this many states in the box (one byte of mark each)
+MAX_BOX = 1 << 26
+#: the numpy search (no compiled core): at most this many box states, at most this many state-steps in all
+NUMPY_MAX_BOX = 1 << 22
+NUMPY_MAX_WORK = 1 << 25
 
 
 def _ints(op: SectionOp):
@@ -132,10 +139,16 @@ def _granular_bound(A, k: int, e_max: float) -> tuple[float, float] | None:
     return tuple(e_max * (float(np.sum(np.abs(R[:, i, :]))) + tail) * (1 + 1e-9) for i in (0, 1))
 
 
-def _search(A, k: int, arith: Arithmetic, B1: int, B2: int):
-    """Cyclic states inside the box |S1| <= B1, |S2| <= B2 (numpy image iteration), or None past the limits."""
+def _search_numpy(A, k: int, arith: Arithmetic, B1: int, B2: int, max_box: int = NUMPY_MAX_BOX):
+    """Cyclic states inside the box |S1| <= B1, |S2| <= B2 by numpy image iteration, or None past the limits.
+
+    The image of the box under the map (steps that overflow or leave the box
+    dropped) is taken until it stops shrinking; what is left is a set the map
+    permutes, so every state in it is on a cycle.  The path without the compiled
+    engine core, and the reference the compiled search is tested against.
+    """
     n = (2 * B1 + 1) * (2 * B2 + 1)
-    if n > MAX_BOX:
+    if n > max_box:
         return None, n
     g1, g2 = np.meshgrid(np.arange(-B1, B1 + 1, dtype=np.int64), np.arange(-B2, B2 + 1, dtype=np.int64))
     s1, s2 = g1.ravel(), g2.ravel()
@@ -148,10 +161,38 @@ def _search(A, k: int, arith: Arithmetic, B1: int, B2: int):
         old = np.unique((s1 + B1) * (2 * B2 + 1) + (s2 + B2))
         if np.array_equal(codes, old):
             return (s1, s2), n
-        if work > MAX_WORK:
+        if work > NUMPY_MAX_WORK:
             return None, n
         s1 = codes // (2 * B2 + 1) - B1
         s2 = codes % (2 * B2 + 1) - B2
+
+
+def _search(A, k: int, arith: Arithmetic, B1: int, B2: int):
+    """Cyclic states inside the box |S1| <= B1, |S2| <= B2, or None past the limits.
+
+    The compiled engine core visits every state of the box once (functional-graph
+    cycle detection, ``_engine.coupled_cycles``), exact integers; without it, the
+    numpy image iteration (:func:`_search_numpy`).  The states come in the order of
+    (S1, S2), except when every state of the box is on a cycle: then in the order
+    of the numpy search's grid (S1 varying fastest), which decides the start state
+    reported among equal amplitudes.
+    """
+    from ..simulate import _engine
+
+    if _engine is None or not hasattr(_engine, "coupled_cycles"):
+        return _search_numpy(A, k, arith, B1, B2)
+    n = (2 * B1 + 1) * (2 * B2 + 1)
+    if n > MAX_BOX:
+        return None, n
+    got = _engine.coupled_cycles(*[int(v) for v in A], k, arith.acc_bits, _ROUND_CODE[arith.rounding],
+                                 _OVF_CODE[arith.overflow], arith.data.width, B1, B2, MAX_BOX)
+    if got is None:
+        return None, n
+    s1, s2 = np.frombuffer(got[0], dtype=np.int64), np.frombuffer(got[1], dtype=np.int64)
+    if len(s1) == n:  # the whole box: the grid order of the numpy search
+        g1, g2 = np.meshgrid(np.arange(-B1, B1 + 1, dtype=np.int64), np.arange(-B2, B2 + 1, dtype=np.int64))
+        s1, s2 = g1.ravel(), g2.ravel()
+    return (s1, s2), n
 
 
 def analyse_coupled(op: SectionOp, index: int, arith: Arithmetic) -> SectionLimitCycles:
