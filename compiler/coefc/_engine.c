@@ -613,23 +613,29 @@ V512 static inline __attribute__((always_inline)) void skew_body(lanes_t *g, con
     __m512i Y2 = _mm512_loadu_si512(g->y2), E = _mm512_loadu_si512(g->e), S1 = _mm512_loadu_si512(g->s1);
     __m512i S2 = _mm512_loadu_si512(g->s2), OUT = _mm512_loadu_si512(g->out);
     __m512i OVF = _mm512_loadu_si512(g->ovf);
+    /* tdf2: the vector S1 is s1 + bias (exact: the checked sum that made it, or checked here);
+       a lane where s1 + bias leaves int64 makes the next step go lane by lane (s1bad) */
+    __mmask8 s1bad = 0;
+#define S1_IN() do { const __m512i s_ = _mm512_loadu_si512(g->s1); S1 = _mm512_add_epi64(s_, BIAS); \
+        s1bad = _mm512_movepi64_mask(_mm512_ternarylogic_epi64(s_, BIAS, S1, 0x42)); } while (0)
+#define S1_OUT() _mm512_storeu_si512(g->s1, _mm512_sub_epi64(S1, BIAS))
+    if (structure == 1) S1_IN();
     Py_ssize_t tb = t0; /* first step of the staging block */
     for (Py_ssize_t t = t0; t < t1; t++) {
         const __m512i IN = _mm512_alignr_epi64(OUT, _mm512_set1_epi64(xin[t]), 7);
         __m512i F, T, r, V, O, N1 = S1, N2 = S2;
         __mmask8 bad;
-        if (structure == 1) {
+        /* the sums are ordered so that the newest terms (the input, the last output) come last */
+        if (structure == 1) { /* S1 holds the state plus the rounding bias (see below) */
             const __m512i P0 = _mm512_mullo_epi64(B0, IN);
-            r = _mm512_add_epi64(S1, BIAS);
-            F = _mm512_ternarylogic_epi64(S1, BIAS, r, 0x42);
-            T = _mm512_add_epi64(r, P0);
-            F = _mm512_or_si512(F, _mm512_ternarylogic_epi64(r, P0, T, 0x42));
+            T = _mm512_add_epi64(S1, P0);
+            F = _mm512_ternarylogic_epi64(S1, P0, T, 0x42);
         } else {
             const __m512i P1 = _mm512_mullo_epi64(B1, X1), P2 = _mm512_mullo_epi64(B2, X2);
             const __m512i Q1 = _mm512_mullo_epi64(NA1, Y1), Q2 = _mm512_mullo_epi64(NA2, Y2);
             const __m512i P0 = _mm512_mullo_epi64(B0, IN);
-            __m512i r1 = _mm512_add_epi64(P1, P2), r2 = _mm512_add_epi64(Q1, Q2);
-            F = _mm512_or_si512(_mm512_ternarylogic_epi64(P1, P2, r1, 0x42), _mm512_ternarylogic_epi64(Q1, Q2, r2, 0x42));
+            __m512i r1 = _mm512_add_epi64(P1, P2);
+            F = _mm512_ternarylogic_epi64(P1, P2, r1, 0x42);
             if (structure == 2) {
                 __m512i r1e = _mm512_add_epi64(r1, E);
                 F = _mm512_or_si512(F, _mm512_ternarylogic_epi64(r1, E, r1e, 0x42));
@@ -637,8 +643,10 @@ V512 static inline __attribute__((always_inline)) void skew_body(lanes_t *g, con
             }
             __m512i r1b = _mm512_add_epi64(r1, BIAS);
             F = _mm512_or_si512(F, _mm512_ternarylogic_epi64(r1, BIAS, r1b, 0x42));
-            r = _mm512_add_epi64(r1b, r2);
-            F = _mm512_or_si512(F, _mm512_ternarylogic_epi64(r1b, r2, r, 0x42));
+            __m512i r2 = _mm512_add_epi64(r1b, Q2);
+            F = _mm512_or_si512(F, _mm512_ternarylogic_epi64(r1b, Q2, r2, 0x42));
+            r = _mm512_add_epi64(r2, Q1);
+            F = _mm512_or_si512(F, _mm512_ternarylogic_epi64(r2, Q1, r, 0x42));
             T = _mm512_add_epi64(r, P0);
             F = _mm512_or_si512(F, _mm512_ternarylogic_epi64(r, P0, T, 0x42));
         }
@@ -658,29 +666,32 @@ V512 static inline __attribute__((always_inline)) void skew_body(lanes_t *g, con
         if (structure == 1) {
             const __m512i M1 = _mm512_mullo_epi64(B1, IN), M2 = _mm512_mullo_epi64(NA1, O);
             const __m512i M3 = _mm512_mullo_epi64(B2, IN), M4 = _mm512_mullo_epi64(NA2, O);
-            const __m512i q1 = _mm512_add_epi64(M1, M2);
-            N1 = _mm512_add_epi64(q1, S2);
+            /* N1 = s1' + bias = ((b1 in + s2) + bias) - a1 o: T of the next step is one addition */
+            const __m512i q1 = _mm512_add_epi64(M1, S2), q1b = _mm512_add_epi64(q1, BIAS);
+            N1 = _mm512_add_epi64(q1b, M2);
             N2 = _mm512_add_epi64(M3, M4);
-            __m512i G = _mm512_or_si512(_mm512_ternarylogic_epi64(M1, M2, q1, 0x42),
-                                        _mm512_ternarylogic_epi64(q1, S2, N1, 0x42));
+            __m512i G = _mm512_or_si512(_mm512_ternarylogic_epi64(M1, S2, q1, 0x42),
+                                        _mm512_ternarylogic_epi64(q1, BIAS, q1b, 0x42));
+            G = _mm512_or_si512(G, _mm512_ternarylogic_epi64(q1b, M2, N1, 0x42));
             G = _mm512_or_si512(G, _mm512_ternarylogic_epi64(M3, M4, N2, 0x42));
-            bad |= _mm512_movepi64_mask(G);
+            /* s1' = N1 - bias in the accumulator: N1 in [TLO, THI] (at 64 bits N1 >= TLO) */
+            bad |= _mm512_movepi64_mask(G) | _mm512_cmplt_epi64_mask(N1, TLO) | s1bad;
             if (!acc64)
-                bad |= _mm512_cmplt_epi64_mask(N1, ALO) | _mm512_cmpgt_epi64_mask(N1, AHI) |
-                       _mm512_cmplt_epi64_mask(N2, ALO) | _mm512_cmpgt_epi64_mask(N2, AHI);
+                bad |= _mm512_cmpgt_epi64_mask(N1, THI) | _mm512_cmplt_epi64_mask(N2, ALO) |
+                       _mm512_cmpgt_epi64_mask(N2, AHI);
         }
         if (UNLIKELY(bad & ((1u << L) - 1))) {
             /* redo this step lane by lane with the exact sums */
             _mm512_storeu_si512(g->x1, X1); _mm512_storeu_si512(g->x2, X2); _mm512_storeu_si512(g->y1, Y1);
-            _mm512_storeu_si512(g->y2, Y2); _mm512_storeu_si512(g->e, E); _mm512_storeu_si512(g->s1, S1);
+            _mm512_storeu_si512(g->y2, Y2); _mm512_storeu_si512(g->e, E); S1_OUT();
             _mm512_storeu_si512(g->s2, S2); _mm512_storeu_si512(g->out, OUT); _mm512_storeu_si512(g->ovf, OVF);
             skew_step_scalar(g, xin, n, t, structure, 0);
             X1 = _mm512_loadu_si512(g->x1); X2 = _mm512_loadu_si512(g->x2); Y1 = _mm512_loadu_si512(g->y1);
-            Y2 = _mm512_loadu_si512(g->y2); E = _mm512_loadu_si512(g->e); S1 = _mm512_loadu_si512(g->s1);
+            Y2 = _mm512_loadu_si512(g->y2); E = _mm512_loadu_si512(g->e); S1_IN();
             S2 = _mm512_loadu_si512(g->s2); OUT = _mm512_loadu_si512(g->out); OVF = _mm512_loadu_si512(g->ovf);
         } else {
             OVF = _mm512_mask_add_epi64(OVF, _mm512_cmpneq_epi64_mask(O, V), OVF, ONE);
-            if (structure == 1) { S1 = N1; S2 = N2; }
+            if (structure == 1) { S1 = N1; S2 = N2; s1bad = 0; }
             else {
                 if (structure == 2) /* E = acc - v 2^k with acc = T - bias, modulo 2^64 as the scalar loops */
                     E = _mm512_sub_epi64(_mm512_sub_epi64(T, BIAS), _mm512_sllv_epi64(V, K));
@@ -698,7 +709,9 @@ V512 static inline __attribute__((always_inline)) void skew_body(lanes_t *g, con
         }
     }
     _mm512_storeu_si512(g->x1, X1); _mm512_storeu_si512(g->x2, X2); _mm512_storeu_si512(g->y1, Y1);
-    _mm512_storeu_si512(g->y2, Y2); _mm512_storeu_si512(g->e, E); _mm512_storeu_si512(g->s1, S1);
+    _mm512_storeu_si512(g->y2, Y2); _mm512_storeu_si512(g->e, E); S1_OUT();
+#undef S1_IN
+#undef S1_OUT
     _mm512_storeu_si512(g->s2, S2); _mm512_storeu_si512(g->out, OUT); _mm512_storeu_si512(g->ovf, OVF);
     for (Py_ssize_t t = (t0 > n ? t0 : n); t < n + L - 1; t++) skew_step_scalar(g, xin, n, t, structure, 1);
 }
