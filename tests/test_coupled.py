@@ -144,3 +144,46 @@ def test_compiled_coupled_search_matches_the_numpy_search_and_a_walk(rounding, o
         assert n == n2 == (2 * B1 + 1) * (2 * B2 + 1)
         assert [a.tolist() for a in got] == [a.tolist() for a in ref]  # same states, same order
         assert set(zip(got[0].tolist(), got[1].tolist())) == _walk_cycles(A, 8, ar, B1, B2)
+
+
+@pytest.mark.parametrize("acc", [63, 64])
+def test_compiled_coupled_search_on_32_bit_words(acc):
+    # data and coefficient words 64 bits together (the search's widest case): every sum of two
+    # products stays inside int64 for states strictly inside the data word; the compiled search
+    # against the numpy search and the per-state walk (Python integers) on boxes near zero
+    from coefc.analyse.coupled_cycles import _search, _search_numpy
+    from coefc.simulate import HAVE_ENGINE
+
+    if not HAVE_ENGINE:
+        pytest.skip("no compiled engine core")
+    rng = np.random.default_rng(5)
+    for rounding in ("add-half", "truncate", "half-even"):
+        ar = Arithmetic(data=QFormat(1, 31), coef=QFormat(2, 30), acc_bits=acc, rounding=rounding,
+                        overflow="saturate", structure="coupled")
+        for _ in range(4):
+            r, th = rng.uniform(0.99, 1.0), rng.uniform(1e-3, 0.05)
+            al, be = round(r * np.cos(th) * 2 ** 30), round(r * np.sin(th) * 2 ** 30)
+            A = (al, -be, be, al)
+            got, _ = _search(A, 30, ar, 15, 15)
+            ref, _ = _search_numpy(A, 30, ar, 15, 15)
+            assert [a.tolist() for a in got] == [a.tolist() for a in ref]
+            assert set(zip(got[0].tolist(), got[1].tolist())) == _walk_cycles(A, 30, ar, 15, 15)
+    # a box at the edge of the word: products near 2^62, a sum near 2^63 (acc 63 wraps it)
+    ar = Arithmetic(data=QFormat(1, 31), coef=QFormat(2, 30), acc_bits=acc, structure="coupled")
+    A = (-(1 << 31), -(1 << 31), (1 << 31) - 1, 1 << 30)
+    top = (1 << 31) - 2
+    s1 = np.array([top, -top, top], dtype=np.int64)
+    s2 = np.array([top, -top, -top], dtype=np.int64)
+    t1, t2, bad = step(s1, s2, A, 30, ar)
+    from coefc.qformat import round_shift
+
+    lo, hi = ar.data.min_int, ar.data.max_int
+    for j, (a, b) in enumerate(zip(s1.tolist(), s2.tolist())):
+        want, over = [], False
+        for c1, c2 in ((A[0], A[1]), (A[2], A[3])):
+            t = c1 * a + c2 * b  # Python integers: exact
+            w = ((t + (1 << (acc - 1))) % (1 << acc)) - (1 << (acc - 1))
+            v = round_shift(w, 30, ar.rounding)
+            want.append(max(lo, min(hi, v)))
+            over |= w != t or want[-1] != v
+        assert (int(t1[j]), int(t2[j]), bool(bad[j])) == (want[0], want[1], over)

@@ -81,17 +81,17 @@ def contraction_norm(A: tuple[int, int, int, int], k: int) -> tuple[bool, float]
 def step(s1, s2, A, k: int, arith: Arithmetic):
     """One zero-input step on int64 arrays: (S1', S2', overflowed).
 
-    Exact when the data and coefficient words together are at most 62 bits wide
-    (every sum of two products fits int64); :func:`analyse_coupled` checks that.
+    Exact when the data and coefficient words together are at most 64 bits wide and
+    every state lies strictly inside the data word (|Ai1 S1 + Ai2 S2| < 2^63: every sum
+    of two products fits int64); :func:`analyse_coupled` searches only such boxes.
     """
     a11, a12, a21, a22 = A
     s1, s2 = np.asarray(s1, dtype=np.int64), np.asarray(s2, dtype=np.int64)
     acc = arith.acc_bits
-    lo = -(1 << (acc - 1))
     dlo, dhi = arith.data.min_int, arith.data.max_int
     out, bad = [], np.zeros(len(s1), dtype=bool)
     for t in (a11 * s1 + a12 * s2, a21 * s1 + a22 * s2):
-        w = ((t - lo) % (1 << acc)) + lo if acc < 63 else t
+        w = np.right_shift(np.left_shift(t, 64 - acc), 64 - acc) if acc < 64 else t  # the low acc bits
         bad |= w != t
         v = round_shift(w, k, arith.rounding)
         if arith.overflow == "saturate":
@@ -239,9 +239,9 @@ def analyse_coupled(op: SectionOp, index: int, arith: Arithmetic) -> SectionLimi
     B1f, B2f = min(v[0] for v in bounds), min(v[1] for v in bounds)
     B1, B2 = int(math.floor(B1f)), int(math.floor(B2f))
     out_bound = (abs(b[1]) * B1f + abs(b[2]) * B2f) * 2.0 ** -k + e_max  # at the section output
-    if W + arith.coef.width > 62:
+    if W + arith.coef.width > 64:
         return SectionLimitCycles(index, "unproven", out_bound, False, 0,
-                                  note="data and coefficient words wider than 62 bits together: no exhaustive "
+                                  note="data and coefficient words wider than 64 bits together: no exhaustive "
                                        "search", **ov)
     if max(B1, B2) >= arith.data.max_int:
         return SectionLimitCycles(index, "unproven", out_bound, False, 0,
