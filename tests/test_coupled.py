@@ -82,3 +82,108 @@ def test_limit_cycle_verdicts_agree_with_the_whole_state_space(rounding, overflo
             assert not big
         if rounding == "toward-zero" and overflow == "saturate":
             assert res.status == "none" and cyc == {(0, 0)}
+
+
+def _walk_cycles(A, k, ar, B1, B2):
+    """Independent enumerator: a box state is cyclic when following the map (pure Python
+    integers, no numpy) returns to it without overflowing or leaving the box."""
+    from coefc.qformat import round_shift
+
+    a, W = ar.acc_bits, ar.data.width
+    lo, hi = ar.data.min_int, ar.data.max_int
+
+    def one(s1, s2):
+        out = []
+        for c1, c2 in ((A[0], A[1]), (A[2], A[3])):
+            t = c1 * s1 + c2 * s2
+            w = ((t + (1 << (a - 1))) % (1 << a)) - (1 << (a - 1))
+            v = round_shift(w, k, ar.rounding)
+            f = max(lo, min(hi, v)) if ar.overflow == "saturate" else ((v - lo) % (1 << W)) + lo
+            if w != t or f != v:
+                return None
+            out.append(f)
+        return tuple(out)
+
+    cyc = set()
+    for s1 in range(-B1, B1 + 1):
+        for s2 in range(-B2, B2 + 1):
+            s, seen = (s1, s2), {(s1, s2)}
+            while True:
+                s = one(*s)
+                if s is None or abs(s[0]) > B1 or abs(s[1]) > B2:
+                    break
+                if s == (s1, s2):
+                    cyc.add(s)
+                    break
+                if s in seen:  # ran into a cycle not through the start
+                    break
+                seen.add(s)
+    return cyc
+
+
+@pytest.mark.parametrize("rounding", ["add-half", "truncate", "half-even", "toward-zero"])
+@pytest.mark.parametrize("overflow", ["saturate", "wrap"])
+def test_compiled_coupled_search_matches_the_numpy_search_and_a_walk(rounding, overflow):
+    # the compiled search (engine core) against the numpy image iteration it replaced and an
+    # independent per-state walk; boxes cover the whole 6-bit data space and smaller boxes
+    from coefc.analyse.coupled_cycles import _search, _search_numpy
+    from coefc.simulate import HAVE_ENGINE
+
+    if not HAVE_ENGINE:
+        pytest.skip("no compiled engine core")
+    ar = Arithmetic(data=QFormat(1, 5), coef=QFormat(2, 8), acc_bits=16, rounding=rounding, overflow=overflow,
+                    structure="coupled")
+    rng = np.random.default_rng(29)
+    for trial in range(12):
+        r, th = rng.uniform(0.8, 1.02), rng.uniform(0.02, 1.5)
+        al, be = round(r * np.cos(th) * 256), round(r * np.sin(th) * 256)
+        A = (al, -be, be, al) if trial % 3 else tuple(int(v) for v in rng.integers(-300, 300, 4))
+        B1, B2 = (31, 31) if trial % 2 else (int(rng.integers(0, 12)), int(rng.integers(0, 12)))
+        got, n = _search(A, 8, ar, B1, B2)
+        ref, n2 = _search_numpy(A, 8, ar, B1, B2)
+        assert n == n2 == (2 * B1 + 1) * (2 * B2 + 1)
+        assert [a.tolist() for a in got] == [a.tolist() for a in ref]  # same states, same order
+        assert set(zip(got[0].tolist(), got[1].tolist())) == _walk_cycles(A, 8, ar, B1, B2)
+
+
+@pytest.mark.parametrize("acc", [63, 64])
+def test_compiled_coupled_search_on_32_bit_words(acc):
+    # data and coefficient words 64 bits together (the search's widest case): every sum of two
+    # products stays inside int64 for states strictly inside the data word; the compiled search
+    # against the numpy search and the per-state walk (Python integers) on boxes near zero
+    from coefc.analyse.coupled_cycles import _search, _search_numpy
+    from coefc.simulate import HAVE_ENGINE
+
+    if not HAVE_ENGINE:
+        pytest.skip("no compiled engine core")
+    rng = np.random.default_rng(5)
+    for rounding in ("add-half", "truncate", "half-even"):
+        ar = Arithmetic(data=QFormat(1, 31), coef=QFormat(2, 30), acc_bits=acc, rounding=rounding,
+                        overflow="saturate", structure="coupled")
+        for _ in range(4):
+            r, th = rng.uniform(0.99, 1.0), rng.uniform(1e-3, 0.05)
+            al, be = round(r * np.cos(th) * 2 ** 30), round(r * np.sin(th) * 2 ** 30)
+            A = (al, -be, be, al)
+            got, _ = _search(A, 30, ar, 15, 15)
+            ref, _ = _search_numpy(A, 30, ar, 15, 15)
+            assert [a.tolist() for a in got] == [a.tolist() for a in ref]
+            assert set(zip(got[0].tolist(), got[1].tolist())) == _walk_cycles(A, 30, ar, 15, 15)
+    # a box at the edge of the word: products near 2^62, a sum near 2^63 (acc 63 wraps it)
+    ar = Arithmetic(data=QFormat(1, 31), coef=QFormat(2, 30), acc_bits=acc, structure="coupled")
+    A = (-(1 << 31), -(1 << 31), (1 << 31) - 1, 1 << 30)
+    top = (1 << 31) - 2
+    s1 = np.array([top, -top, top], dtype=np.int64)
+    s2 = np.array([top, -top, -top], dtype=np.int64)
+    t1, t2, bad = step(s1, s2, A, 30, ar)
+    from coefc.qformat import round_shift
+
+    lo, hi = ar.data.min_int, ar.data.max_int
+    for j, (a, b) in enumerate(zip(s1.tolist(), s2.tolist())):
+        want, over = [], False
+        for c1, c2 in ((A[0], A[1]), (A[2], A[3])):
+            t = c1 * a + c2 * b  # Python integers: exact
+            w = ((t + (1 << (acc - 1))) % (1 << acc)) - (1 << (acc - 1))
+            v = round_shift(w, 30, ar.rounding)
+            want.append(max(lo, min(hi, v)))
+            over |= w != t or want[-1] != v
+        assert (int(t1[j]), int(t2[j]), bool(bad[j])) == (want[0], want[1], over)

@@ -419,3 +419,34 @@ def test_rounded_products_by_hand(structure, product_rounding):
             yn = max(-128, min(127, q(b[0], xn) + q(b[1], x1) + q(b[2], x2) + q(-a[0], y1) + q(-a[1], y2)))
         assert y[n] == yn, n
         x2, x1, y2, y1 = x1, xn, y1, yn
+
+
+@st.composite
+def cascades(draw):
+    """Up to 19 sections of one structure (three groups of the 8-lane path) on up to 300 samples."""
+    ar = draw(arithmetics())
+    if STRUCTURE_TABLE[ar.structure].state_space or STRUCTURE_TABLE[ar.structure].wide_feedback:
+        ar = ar.with_(structure="df1")
+    fc = ar.coef.frac_bits
+    small = draw(st.booleans())  # small coefficients: the vector steps; full words: the exact fall-back
+    secs = []
+    for _ in range(draw(st.integers(1, 19))):
+        c = [_word(draw, ar.coef) >> (ar.coef.width // 2 if small else 0) for _ in range(5)]
+        secs.append(_sec(c, draw(st.integers(max(fc - 62, -4), fc - 1)), ar.structure))
+    n = draw(st.integers(0, 300))
+    return ChannelProgram("t", 48000, ar, tuple(secs)), [_word(draw, ar.data) for _ in range(n)]
+
+
+@pytest.mark.parametrize("lanes", [0, 1])
+@settings(**dict(SETTINGS, max_examples=150))
+@given(cascades())
+def test_long_cascades_equal_exact_model_with_and_without_lanes(lanes, case):
+    # the 512-bit lane path (where the processor has it) and the scalar loops, each against
+    # the exact model; more sections than one group of lanes, every rounding and overflow mode
+    prog, x = case
+    before = sim._engine.lanes()
+    try:
+        sim._engine.lanes(lanes)
+        _compare(prog, x)
+    finally:
+        sim._engine.lanes(int(before))

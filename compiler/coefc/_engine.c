@@ -22,6 +22,7 @@
  *       limit-cycle searches of coefc.analyse.limitcycles)
  *   cycle_region / whole_cycles: exhaustive zero-input cycle searches (every state
  *       of a candidate region, or of the whole state space, visited once)
+ *   coupled_cycles: the exhaustive zero-input cycle search of a coupled-form section
  *   walk: the cycle one zero-input state runs into (Brent's cycle detection)
  *
  * The arithmetic is the one stated in the docstring of coefc/program.py.
@@ -575,6 +576,246 @@ CASC_S(0) CASC_S(1) CASC_S(2)
 /* [structure][acc_bits == 64][overflow: 0 saturate, 1 wrap][rounding] */
 static const cascade_fn cascade_table[3][2][2][4] = {ROW(0), ROW(1), ROW(2)};
 
+/* ------------------------------------------------------------ skewed cascade on 512-bit lanes
+ * Up to eight consecutive sections run at once, one per 64-bit lane, on a skewed schedule:
+ * at step t, lane j (section j of the group) takes sample t - j, whose input is lane j-1's
+ * output of step t-1 (lane 0: the group's input).  The lanes of one step are independent,
+ * so one vector step advances eight sections.  Products are exact in int64 (data and
+ * coefficient words together at most 64 bits wide, as for the scalar loops); every addition
+ * is checked for int64 overflow (sign test) and, below 64-bit accumulators, the sums for the
+ * accumulator range: a step where any lane fails is redone lane by lane with the exact wide
+ * sums (lane_step), as are the first and last steps of the skew (lanes before their first
+ * or after their last sample).  Outputs go through a small staging block to each section's
+ * buffer; when every section writes the same buffer the last section's value still lands
+ * last.  Rounding and overflow counts are those of the scalar loops, lane by lane.
+ * Used where the processor has AVX-512F and -DQ (checked at run time); `lanes(0)` turns it
+ * off (the tests run both paths against the exact model).
+ */
+#define LANES 8
+typedef struct {
+    int64_t b0[LANES], b1[LANES], b2[LANES], a1[LANES], a2[LANES];
+    int64_t x1[LANES], x2[LANES], y1[LANES], y2[LANES], e[LANES], s1[LANES], s2[LANES], out[LANES];
+    long long ovf[LANES], aovf[LANES];
+    arith_t ar[LANES];
+    int64_t *y[LANES];
+    int L;
+} lanes_t;
+
+/* one sample of lane j with the exact wide sums (the arithmetic of the scalar loops) */
+static void lane_step(lanes_t *g, int j, int64_t in, int structure)
+{
+    const arith_t *ar = &g->ar[j];
+    int64_t out;
+    if (structure == 1) {
+        long long bad = 0;
+        wsum_t w, w1, w2;
+        WS_INIT(w); WS_ADD(w, g->b0[j] * in); WS_ADD(w, g->s1[j]);
+        int64_t acc = WS_FINISH(w, ar, &bad);
+        out = fit(rshift(acc, ar), ar, &g->ovf[j]);
+        WS_INIT(w1); WS_ADD(w1, g->b1[j] * in); WS_ADD(w1, -(g->a1[j] * out)); WS_ADD(w1, g->s2[j]);
+        WS_INIT(w2); WS_ADD(w2, g->b2[j] * in); WS_ADD(w2, -(g->a2[j] * out));
+        g->s1[j] = WS_FINISH(w1, ar, &bad);
+        g->s2[j] = WS_FINISH(w2, ar, &bad);
+        g->aovf[j] += bad != 0;
+    } else {
+        wsum_t w;
+        WS_INIT(w);
+        WS_ADD(w, g->b0[j] * in); WS_ADD(w, g->b1[j] * g->x1[j]); WS_ADD(w, g->b2[j] * g->x2[j]);
+        WS_ADD(w, -(g->a1[j] * g->y1[j])); WS_ADD(w, -(g->a2[j] * g->y2[j]));
+        if (structure == 2) WS_ADD(w, g->e[j]);
+        int64_t acc = WS_FINISH(w, ar, &g->aovf[j]);
+        int64_t v = rshift(acc, ar);
+        if (structure == 2) g->e[j] = (int64_t)((uint64_t)acc - ((uint64_t)v << ar->k));
+        out = fit(v, ar, &g->ovf[j]);
+        g->x2[j] = g->x1[j]; g->x1[j] = in;
+        g->y2[j] = g->y1[j]; g->y1[j] = out;
+    }
+    g->out[j] = out;
+}
+
+/* step t of the skew, lane by lane, for the lanes whose sample t - j lies in [0, n) */
+static void skew_step_scalar(lanes_t *g, const int64_t *xin, Py_ssize_t n, Py_ssize_t t, int structure, int store)
+{
+    for (int j = g->L - 1; j >= 0; j--) { /* from the last lane: lane j reads lane j-1's previous output */
+        Py_ssize_t i = t - j;
+        if (i < 0 || i >= n) continue;
+        lane_step(g, j, j == 0 ? xin[t] : g->out[j - 1], structure);
+        if (store) g->y[j][i] = g->out[j];
+    }
+}
+
+#if defined(__x86_64__) && (defined(__GNUC__) || defined(__clang__)) && !defined(COEFC_NO_AVX512)
+#define HAVE_LANES 1
+#include <immintrin.h>
+#define V512 __attribute__((target("avx512f,avx512dq")))
+#define STAGE 64
+
+V512 static inline __attribute__((always_inline)) void skew_body(lanes_t *g, const int64_t *xin, Py_ssize_t n,
+                                                                 const int structure, const int mode, const int sat,
+                                                                 const int acc64)
+{
+    const int L = g->L;
+    int64_t kk[LANES], bias[LANES], kmask[LANES];
+    for (int j = 0; j < LANES; j++) {
+        kk[j] = g->ar[j].k;
+        kmask[j] = (int64_t)g->ar[j].kmask;
+        bias[j] = (mode == 0 || mode == 2) ? (int64_t)g->ar[j].khalf : 0;
+    }
+    const arith_t *a0 = &g->ar[0];
+    const __m512i B0 = _mm512_loadu_si512(g->b0), B1 = _mm512_loadu_si512(g->b1), B2 = _mm512_loadu_si512(g->b2);
+    const __m512i NA1 = _mm512_sub_epi64(_mm512_setzero_si512(), _mm512_loadu_si512(g->a1));
+    const __m512i NA2 = _mm512_sub_epi64(_mm512_setzero_si512(), _mm512_loadu_si512(g->a2));
+    const __m512i K = _mm512_loadu_si512(kk), BIAS = _mm512_loadu_si512(bias), KMASK = _mm512_loadu_si512(kmask);
+    const __m512i ONE = _mm512_set1_epi64(1), HI = _mm512_set1_epi64(a0->hi), LO = _mm512_set1_epi64(a0->lo);
+    const __m512i AHI = _mm512_set1_epi64(a0->acc_hi), ALO = _mm512_set1_epi64(a0->acc_lo);
+    const __m512i TLO = _mm512_add_epi64(ALO, BIAS);
+    const __m512i THI = acc64 ? AHI : _mm512_add_epi64(AHI, BIAS); /* unused at 64 bits */
+    const __m512i WSH = _mm512_set1_epi64(64 - a0->width);
+    int64_t stage[STAGE][LANES];
+    Py_ssize_t t0 = L - 1, t1 = n; /* the vector steps: every lane has a sample */
+    for (Py_ssize_t t = 0; t < t0 && t < n + L - 1; t++) skew_step_scalar(g, xin, n, t, structure, 1);
+    __m512i X1 = _mm512_loadu_si512(g->x1), X2 = _mm512_loadu_si512(g->x2), Y1 = _mm512_loadu_si512(g->y1);
+    __m512i Y2 = _mm512_loadu_si512(g->y2), E = _mm512_loadu_si512(g->e), S1 = _mm512_loadu_si512(g->s1);
+    __m512i S2 = _mm512_loadu_si512(g->s2), OUT = _mm512_loadu_si512(g->out);
+    __m512i OVF = _mm512_loadu_si512(g->ovf);
+    /* tdf2: the vector S1 is s1 + bias (exact: the checked sum that made it, or checked here);
+       a lane where s1 + bias leaves int64 makes the next step go lane by lane (s1bad) */
+    __mmask8 s1bad = 0;
+#define S1_IN() do { const __m512i s_ = _mm512_loadu_si512(g->s1); S1 = _mm512_add_epi64(s_, BIAS); \
+        s1bad = _mm512_movepi64_mask(_mm512_ternarylogic_epi64(s_, BIAS, S1, 0x42)); } while (0)
+#define S1_OUT() _mm512_storeu_si512(g->s1, _mm512_sub_epi64(S1, BIAS))
+    if (structure == 1) S1_IN();
+    Py_ssize_t tb = t0; /* first step of the staging block */
+    for (Py_ssize_t t = t0; t < t1; t++) {
+        const __m512i IN = _mm512_alignr_epi64(OUT, _mm512_set1_epi64(xin[t]), 7);
+        __m512i F, T, r, V, O, N1 = S1, N2 = S2;
+        __mmask8 bad;
+        /* the sums are ordered so that the newest terms (the input, the last output) come last */
+        if (structure == 1) { /* S1 holds the state plus the rounding bias (see below) */
+            const __m512i P0 = _mm512_mullo_epi64(B0, IN);
+            T = _mm512_add_epi64(S1, P0);
+            F = _mm512_ternarylogic_epi64(S1, P0, T, 0x42);
+        } else {
+            const __m512i P1 = _mm512_mullo_epi64(B1, X1), P2 = _mm512_mullo_epi64(B2, X2);
+            const __m512i Q1 = _mm512_mullo_epi64(NA1, Y1), Q2 = _mm512_mullo_epi64(NA2, Y2);
+            const __m512i P0 = _mm512_mullo_epi64(B0, IN);
+            __m512i r1 = _mm512_add_epi64(P1, P2);
+            F = _mm512_ternarylogic_epi64(P1, P2, r1, 0x42);
+            if (structure == 2) {
+                __m512i r1e = _mm512_add_epi64(r1, E);
+                F = _mm512_or_si512(F, _mm512_ternarylogic_epi64(r1, E, r1e, 0x42));
+                r1 = r1e;
+            }
+            __m512i r1b = _mm512_add_epi64(r1, BIAS);
+            F = _mm512_or_si512(F, _mm512_ternarylogic_epi64(r1, BIAS, r1b, 0x42));
+            __m512i r2 = _mm512_add_epi64(r1b, Q2);
+            F = _mm512_or_si512(F, _mm512_ternarylogic_epi64(r1b, Q2, r2, 0x42));
+            r = _mm512_add_epi64(r2, Q1);
+            F = _mm512_or_si512(F, _mm512_ternarylogic_epi64(r2, Q1, r, 0x42));
+            T = _mm512_add_epi64(r, P0);
+            F = _mm512_or_si512(F, _mm512_ternarylogic_epi64(r, P0, T, 0x42));
+        }
+        V = _mm512_srav_epi64(T, K);
+        if (mode == 2) {
+            __mmask8 m = _mm512_testn_epi64_mask(T, KMASK) & _mm512_test_epi64_mask(V, ONE);
+            V = _mm512_mask_sub_epi64(V, m, V, ONE);
+        } else if (mode == 3) {
+            __mmask8 m = _mm512_movepi64_mask(T) & _mm512_test_epi64_mask(T, KMASK);
+            V = _mm512_mask_add_epi64(V, m, V, ONE);
+        }
+        if (sat) O = _mm512_min_epi64(_mm512_max_epi64(V, LO), HI);
+        else O = _mm512_srav_epi64(_mm512_sllv_epi64(V, WSH), WSH);
+        /* T = acc + bias: below TLO the exact acc lies below the accumulator (also at 64 bits) */
+        bad = _mm512_movepi64_mask(F) | _mm512_cmplt_epi64_mask(T, TLO);
+        if (!acc64) bad |= _mm512_cmpgt_epi64_mask(T, THI);
+        if (structure == 1) {
+            const __m512i M1 = _mm512_mullo_epi64(B1, IN), M2 = _mm512_mullo_epi64(NA1, O);
+            const __m512i M3 = _mm512_mullo_epi64(B2, IN), M4 = _mm512_mullo_epi64(NA2, O);
+            /* N1 = s1' + bias = ((b1 in + s2) + bias) - a1 o: T of the next step is one addition */
+            const __m512i q1 = _mm512_add_epi64(M1, S2), q1b = _mm512_add_epi64(q1, BIAS);
+            N1 = _mm512_add_epi64(q1b, M2);
+            N2 = _mm512_add_epi64(M3, M4);
+            __m512i G = _mm512_or_si512(_mm512_ternarylogic_epi64(M1, S2, q1, 0x42),
+                                        _mm512_ternarylogic_epi64(q1, BIAS, q1b, 0x42));
+            G = _mm512_or_si512(G, _mm512_ternarylogic_epi64(q1b, M2, N1, 0x42));
+            G = _mm512_or_si512(G, _mm512_ternarylogic_epi64(M3, M4, N2, 0x42));
+            /* s1' = N1 - bias in the accumulator: N1 in [TLO, THI] (at 64 bits N1 >= TLO) */
+            bad |= _mm512_movepi64_mask(G) | _mm512_cmplt_epi64_mask(N1, TLO) | s1bad;
+            if (!acc64)
+                bad |= _mm512_cmpgt_epi64_mask(N1, THI) | _mm512_cmplt_epi64_mask(N2, ALO) |
+                       _mm512_cmpgt_epi64_mask(N2, AHI);
+        }
+        if (UNLIKELY(bad & ((1u << L) - 1))) {
+            /* redo this step lane by lane with the exact sums */
+            _mm512_storeu_si512(g->x1, X1); _mm512_storeu_si512(g->x2, X2); _mm512_storeu_si512(g->y1, Y1);
+            _mm512_storeu_si512(g->y2, Y2); _mm512_storeu_si512(g->e, E); S1_OUT();
+            _mm512_storeu_si512(g->s2, S2); _mm512_storeu_si512(g->out, OUT); _mm512_storeu_si512(g->ovf, OVF);
+            skew_step_scalar(g, xin, n, t, structure, 0);
+            X1 = _mm512_loadu_si512(g->x1); X2 = _mm512_loadu_si512(g->x2); Y1 = _mm512_loadu_si512(g->y1);
+            Y2 = _mm512_loadu_si512(g->y2); E = _mm512_loadu_si512(g->e); S1_IN();
+            S2 = _mm512_loadu_si512(g->s2); OUT = _mm512_loadu_si512(g->out); OVF = _mm512_loadu_si512(g->ovf);
+        } else {
+            OVF = _mm512_mask_add_epi64(OVF, _mm512_cmpneq_epi64_mask(O, V), OVF, ONE);
+            if (structure == 1) { S1 = N1; S2 = N2; s1bad = 0; }
+            else {
+                if (structure == 2) /* E = acc - v 2^k with acc = T - bias, modulo 2^64 as the scalar loops */
+                    E = _mm512_sub_epi64(_mm512_sub_epi64(T, BIAS), _mm512_sllv_epi64(V, K));
+                X2 = X1; X1 = IN; Y2 = Y1; Y1 = O;
+            }
+            OUT = O;
+        }
+        _mm512_storeu_si512(stage[t - tb], OUT);
+        if (t - tb == STAGE - 1 || t == t1 - 1) {
+            for (int j = 0; j < L; j++) {
+                int64_t *yj = g->y[j] - j;
+                for (Py_ssize_t u = tb; u <= t; u++) yj[u] = stage[u - tb][j];
+            }
+            tb = t + 1;
+        }
+    }
+    _mm512_storeu_si512(g->x1, X1); _mm512_storeu_si512(g->x2, X2); _mm512_storeu_si512(g->y1, Y1);
+    _mm512_storeu_si512(g->y2, Y2); _mm512_storeu_si512(g->e, E); S1_OUT();
+#undef S1_IN
+#undef S1_OUT
+    _mm512_storeu_si512(g->s2, S2); _mm512_storeu_si512(g->out, OUT); _mm512_storeu_si512(g->ovf, OVF);
+    for (Py_ssize_t t = (t0 > n ? t0 : n); t < n + L - 1; t++) skew_step_scalar(g, xin, n, t, structure, 1);
+}
+
+typedef void (*skew_fn)(lanes_t *, const int64_t *, Py_ssize_t);
+#define SKEW(S, M, O, A) \
+    V512 static void skew_##S##_##M##_##O##_##A(lanes_t *g, const int64_t *x, Py_ssize_t n) \
+    { skew_body(g, x, n, S, M, O, A); }
+#define SKEW_A(S, O, A) SKEW(S, 0, O, A) SKEW(S, 1, O, A) SKEW(S, 2, O, A) SKEW(S, 3, O, A)
+#define SKEW_S(S) SKEW_A(S, 1, 0) SKEW_A(S, 0, 0) SKEW_A(S, 1, 1) SKEW_A(S, 0, 1)
+SKEW_S(0) SKEW_S(1) SKEW_S(2)
+#define SROW_A(S, O, A) {skew_##S##_0_##O##_##A, skew_##S##_1_##O##_##A, skew_##S##_2_##O##_##A, skew_##S##_3_##O##_##A}
+#define SROW(S) {{SROW_A(S, 1, 0), SROW_A(S, 0, 0)}, {SROW_A(S, 1, 1), SROW_A(S, 0, 1)}}
+/* [structure][acc_bits == 64][overflow: 0 saturate, 1 wrap][rounding] */
+static const skew_fn skew_table[3][2][2][4] = {SROW(0), SROW(1), SROW(2)};
+
+static int lanes_on = -1; /* -1: not yet decided */
+static int lanes_available(void)
+{
+    __builtin_cpu_init();
+    return __builtin_cpu_supports("avx512f") && __builtin_cpu_supports("avx512dq");
+}
+#else
+#define HAVE_LANES 0
+static int lanes_on = 0;
+static int lanes_available(void) { return 0; }
+#endif
+
+/* lanes([on]) -> whether the cascade runs on 512-bit lanes (on: 1 use them where the processor
+   has them, 0 never; without an argument only the query) */
+static PyObject *py_lanes(PyObject *self, PyObject *args)
+{
+    int on = -1;
+    if (!PyArg_ParseTuple(args, "|i", &on)) return NULL;
+    if (on >= 0) lanes_on = on && lanes_available();
+    else if (lanes_on < 0) lanes_on = lanes_available();
+    return PyBool_FromLong(lanes_on > 0);
+}
+
 /* ------------------------------------------------------------ df1-wide-fb, df1ef-wide-fb
  * sos_wide(x, y, B0, B1, B2, A1H, A2H, A1L, A2L, L, k, acc_bits, rounding, overflow, width[, ef])
  *     -> (ovf, acc_ovf)
@@ -677,9 +918,38 @@ static PyObject *py_cascade(PyObject *self, PyObject *args)
             secs[j].r_max = INT64_MAX - bias;
         }
     }
-    Py_BEGIN_ALLOW_THREADS
-    if (ns > 0) cascade_table[structure][acc_bits == 64][overflow][rounding]((const int64_t *)xb.buf, xb.len / 8, secs, (int)ns, &ar);
-    Py_END_ALLOW_THREADS
+    if (lanes_on < 0) lanes_on = lanes_available();
+#if HAVE_LANES
+    if (lanes_on > 0 && ns > 0 && xb.len > 0) {
+        Py_ssize_t n = xb.len / 8;
+        lanes_t *g = PyMem_Calloc(1, sizeof(lanes_t));
+        if (!g) { PyErr_NoMemory(); goto done; }
+        for (Py_ssize_t j0 = 0; j0 < ns; j0 += LANES) {
+            int L = ns - j0 < LANES ? (int)(ns - j0) : LANES;
+            memset(g, 0, sizeof(lanes_t));
+            g->L = L;
+            for (int j = 0; j < LANES; j++) {
+                const int64_t *cj = c + 6 * (j0 + j);
+                /* lanes past the group: zero coefficients, so zero states stay zero */
+                arith_init(&g->ar[j], j < L ? (int)cj[5] : 1, acc_bits, rounding, overflow, width);
+                if (j >= L) continue;
+                g->b0[j] = cj[0]; g->b1[j] = cj[1]; g->b2[j] = cj[2]; g->a1[j] = cj[3]; g->a2[j] = cj[4];
+                g->y[j] = secs[j0 + j].y;
+            }
+            const int64_t *xin = j0 == 0 ? (const int64_t *)xb.buf : secs[j0 - 1].y;
+            Py_BEGIN_ALLOW_THREADS
+            skew_table[structure][acc_bits == 64][overflow][rounding](g, xin, n);
+            Py_END_ALLOW_THREADS
+            for (int j = 0; j < L; j++) { secs[j0 + j].ovf = g->ovf[j]; secs[j0 + j].aovf = g->aovf[j]; }
+        }
+        PyMem_Free(g);
+    } else
+#endif
+    {
+        Py_BEGIN_ALLOW_THREADS
+        if (ns > 0) cascade_table[structure][acc_bits == 64][overflow][rounding]((const int64_t *)xb.buf, xb.len / 8, secs, (int)ns, &ar);
+        Py_END_ALLOW_THREADS
+    }
     result = PyList_New(ns);
     for (Py_ssize_t j = 0; result && j < ns; j++)
         PyList_SET_ITEM(result, j, Py_BuildValue("LL", secs[j].ovf, secs[j].aovf));
@@ -1086,6 +1356,93 @@ static PyObject *py_whole_cycles(PyObject *self, PyObject *args)
     return Py_BuildValue("LNN", (long long)n, g, o);
 }
 
+/* coupled_cycles(A11, A12, A21, A22, k, acc_bits, rounding, overflow, width, B1, B2, max_states)
+ *     -> None when the box holds more than max_states states, else (s1 bytes, s2 bytes, n)
+ *
+ * Every state on a zero-input cycle of a coupled-form section (coefc.analyse.coupled_cycles)
+ * that stays inside the box |S1| <= B1, |S2| <= B2, as native int64 bytes in the order of
+ * (S1, S2); n is the number of states of the box.  One step:
+ *   t_i = Ai1 S1 + Ai2 S2 (exact in int64: the caller makes the data and coefficient words
+ *   together at most 62 bits wide);  w_i = the low acc_bits of t_i, sign-extended;
+ *   S_i' = fit_data(round_shift(w_i, k)).
+ * A step that wraps the accumulator (w_i != t_i) or changes a value in fit_data, or whose
+ * image leaves the box, has no successor (as the numpy search it replaces).  The map on the
+ * box is then a function on a finite set and every state is visited once (marks as in
+ * cycle_region): 0 new, 1 on the current path, 2 done, 3 on a cycle. */
+static inline int64_t cc_step(int64_t s1, int64_t s2, int64_t c1, int64_t c2, const arith_t *ar, int *bad)
+{
+    int64_t t = c1 * s1 + c2 * s2;
+    int64_t w = ar->acc_bits >= 64 ? t : sext((uint64_t)t, ar->acc_bits);
+    if (w != t) *bad = 1;
+    int64_t v = rshift(w, ar);
+    int64_t f = v;
+    if (v > ar->hi || v < ar->lo) {
+        *bad = 1;
+        f = ar->overflow == 0 ? (v > ar->hi ? ar->hi : ar->lo) : sext((uint64_t)v, ar->width);
+    }
+    return f;
+}
+
+static PyObject *py_coupled_cycles(PyObject *self, PyObject *args)
+{
+    long long a11, a12, a21, a22, B1, B2, max_states;
+    int k, acc_bits, rounding, overflow, width;
+    if (!PyArg_ParseTuple(args, "LLLLiiiiiLLL", &a11, &a12, &a21, &a22, &k, &acc_bits, &rounding, &overflow, &width,
+                          &B1, &B2, &max_states))
+        return NULL;
+    arith_t ar;
+    if (arith_init(&ar, k, acc_bits, rounding, overflow, width) < 0) return NULL;
+    if (B1 < 0 || B2 < 0 || B1 > (INT64_C(1) << 40) || B2 > (INT64_C(1) << 40) || width > 61 ||
+        max_states > (INT64_C(1) << 34)) {
+        PyErr_SetString(PyExc_ValueError, "engine: coupled_cycles box out of range");
+        return NULL;
+    }
+    const int64_t n2 = 2 * B2 + 1, n = (2 * B1 + 1) * n2;
+    if ((2 * B1 + 1) > max_states / n2 + 1 || n > max_states) Py_RETURN_NONE;
+    uint8_t *mark = PyMem_Calloc((size_t)n, 1);
+    if (!mark) return PyErr_NoMemory();
+    int64_t found = 0;
+    Py_BEGIN_ALLOW_THREADS
+#define CC_NEXT(s1, s2, i) do { int bad_ = 0; \
+        int64_t u1_ = cc_step((s1), (s2), a11, a12, &ar, &bad_), u2_ = cc_step((s1), (s2), a21, a22, &ar, &bad_); \
+        (s1) = u1_; (s2) = u2_; \
+        (i) = (bad_ || u1_ < -B1 || u1_ > B1 || u2_ < -B2 || u2_ > B2) ? -1 : (u1_ + B1) * n2 + (u2_ + B2); } while (0)
+    for (int64_t s = 0; s < n; s++) {
+        if (mark[s]) continue;
+        int64_t c = s, nx, c1 = s / n2 - B1, c2 = s % n2 - B2;
+        for (;;) {
+            mark[c] = 1;
+            CC_NEXT(c1, c2, nx);
+            if (nx < 0 || mark[nx] != 0) break;
+            c = nx;
+        }
+        if (nx >= 0 && mark[nx] == 1) { /* a new cycle through nx */
+            int64_t x = nx, x1 = nx / n2 - B1, x2 = nx % n2 - B2;
+            do {
+                mark[x] = 3;
+                found++;
+                CC_NEXT(x1, x2, x);
+            } while (x != nx);
+        }
+        for (int64_t x = s, x1 = s / n2 - B1, x2 = s % n2 - B2; x >= 0 && mark[x] == 1;) {
+            mark[x] = 2;
+            CC_NEXT(x1, x2, x);
+        }
+    }
+#undef CC_NEXT
+    Py_END_ALLOW_THREADS
+    int64_t *o = PyMem_Malloc(sizeof(int64_t) * 2 * (found ? found : 1));
+    if (!o) { PyMem_Free(mark); return PyErr_NoMemory(); }
+    int64_t j = 0;
+    for (int64_t s = 0; s < n; s++)
+        if (mark[s] == 3) { o[j] = s / n2 - B1; o[found + j] = s % n2 - B2; j++; }
+    PyMem_Free(mark);
+    PyObject *r = Py_BuildValue("y#y#L", (const char *)o, (Py_ssize_t)(found * 8), (const char *)(o + found),
+                                (Py_ssize_t)(found * 8), (long long)n);
+    PyMem_Free(o);
+    return r;
+}
+
 /* walk(y1, y2, E, A1, A2, k, acc_bits, rounding, overflow, width, ef, limit) -> None or bytes
  *
  * Follow one state (y1, y2, E) of the zero-input map, y2 taking the old y1 (E stays 0
@@ -1336,6 +1693,13 @@ static PyMethodDef engine_methods[] = {
     {"whole_cycles", py_whole_cycles, METH_VARARGS,
      "whole_cycles(A1, A2, k, acc_bits, rounding, overflow, data_width, order2, ef, elo, ehi, max_states)\n"
      "-> (n, granular, overflow), each None or (amplitude, period, y1, y2, E); None when n > max_states."},
+    {"coupled_cycles", py_coupled_cycles, METH_VARARGS,
+     "coupled_cycles(A11, A12, A21, A22, k, acc_bits, rounding, overflow, data_width, B1, B2, max_states)\n"
+     "-> None (box above max_states) or (s1, s2, n): every state on a zero-input cycle of a coupled-form\n"
+     "section inside |S1| <= B1, |S2| <= B2 (int64 bytes, in the order of (S1, S2)), n box states."},
+    {"lanes", py_lanes, METH_VARARGS,
+     "lanes([on]) -> bool: whether cascades run eight sections at once on 512-bit lanes (on = 0: never,\n"
+     "1: where the processor has AVX-512F/DQ; without an argument only the query)."},
     {"walk", py_walk, METH_VARARGS,
      "walk(y1, y2, E, A1, A2, k, acc_bits, rounding, overflow, data_width, ef, limit) -> None or the cycle\n"
      "reached from one zero-input state, as int64 triples (y1, y2, E), from the first cycle state met."},

@@ -21,10 +21,14 @@ Granular bound
     An overflow-free cycle obeys ``s[n] = sum_t A^t e[n-1-t]``, so
     ``|S_i| <= e_max sum_t sum_j |(A^t)_ij|`` (the linear model with bounded error).
 Exhaustive search
-    Every state of the box given by the smaller of the two bounds is mapped until
-    the set stops shrinking (the image of a finite set under the map, intersected
-    with the box, keeps every cycle; when it no longer changes the map is a
-    bijection on it, so every state left is on a cycle).
+    Every state of the box given by the smaller of the two bounds is visited
+    once: the map restricted to the box (steps that overflow or leave it
+    dropped) is a function on a finite set, and following it from each unvisited
+    state finds every cycle (functional-graph cycle detection, in the compiled
+    engine core).  Without the core, the box is mapped until the set stops
+    shrinking (the image of a finite set under the map, intersected with the
+    box, keeps every cycle; when it no longer changes the map is a bijection on
+    it, so every state left is on a cycle).
 
 ``wrap`` arithmetic can turn a large state into one of the opposite sign; unless no
 state of the data-word box can overflow, overflow oscillations are ``unproven``.
@@ -47,11 +51,14 @@ import numpy as np
 
 from ..program import Arithmetic, SectionOp
 from ..qformat import round_shift
+from ..simulate import _OVF_CODE, _ROUND_CODE
 from .limitcycles import Cycle, GranularVerdict, OverflowVerdict, SectionLimitCycles, error_interval
 
-#: exhaustive search: at most this many states in the box, at most this many state-steps in all
-MAX_BOX = 1 << 22
-MAX_WORK = 1 << 25
+#: exhaustive search (compiled): at most this many states in the box (one byte of mark each)
+MAX_BOX = 1 << 26
+#: the numpy search (no compiled core): at most this many box states, at most this many state-steps in all
+NUMPY_MAX_BOX = 1 << 22
+NUMPY_MAX_WORK = 1 << 25
 
 
 def _ints(op: SectionOp):
@@ -74,17 +81,17 @@ def contraction_norm(A: tuple[int, int, int, int], k: int) -> tuple[bool, float]
 def step(s1, s2, A, k: int, arith: Arithmetic):
     """One zero-input step on int64 arrays: (S1', S2', overflowed).
 
-    Exact when the data and coefficient words together are at most 62 bits wide
-    (every sum of two products fits int64); :func:`analyse_coupled` checks that.
+    Exact when the data and coefficient words together are at most 64 bits wide and
+    every state lies strictly inside the data word (|Ai1 S1 + Ai2 S2| < 2^63: every sum
+    of two products fits int64); :func:`analyse_coupled` searches only such boxes.
     """
     a11, a12, a21, a22 = A
     s1, s2 = np.asarray(s1, dtype=np.int64), np.asarray(s2, dtype=np.int64)
     acc = arith.acc_bits
-    lo = -(1 << (acc - 1))
     dlo, dhi = arith.data.min_int, arith.data.max_int
     out, bad = [], np.zeros(len(s1), dtype=bool)
     for t in (a11 * s1 + a12 * s2, a21 * s1 + a22 * s2):
-        w = ((t - lo) % (1 << acc)) + lo if acc < 63 else t
+        w = np.right_shift(np.left_shift(t, 64 - acc), 64 - acc) if acc < 64 else t  # the low acc bits
         bad |= w != t
         v = round_shift(w, k, arith.rounding)
         if arith.overflow == "saturate":
@@ -132,10 +139,16 @@ def _granular_bound(A, k: int, e_max: float) -> tuple[float, float] | None:
     return tuple(e_max * (float(np.sum(np.abs(R[:, i, :]))) + tail) * (1 + 1e-9) for i in (0, 1))
 
 
-def _search(A, k: int, arith: Arithmetic, B1: int, B2: int):
-    """Cyclic states inside the box |S1| <= B1, |S2| <= B2 (numpy image iteration), or None past the limits."""
+def _search_numpy(A, k: int, arith: Arithmetic, B1: int, B2: int, max_box: int = NUMPY_MAX_BOX):
+    """Cyclic states inside the box |S1| <= B1, |S2| <= B2 by numpy image iteration, or None past the limits.
+
+    The image of the box under the map (steps that overflow or leave the box
+    dropped) is taken until it stops shrinking; what is left is a set the map
+    permutes, so every state in it is on a cycle.  The path without the compiled
+    engine core, and the reference the compiled search is tested against.
+    """
     n = (2 * B1 + 1) * (2 * B2 + 1)
-    if n > MAX_BOX:
+    if n > max_box:
         return None, n
     g1, g2 = np.meshgrid(np.arange(-B1, B1 + 1, dtype=np.int64), np.arange(-B2, B2 + 1, dtype=np.int64))
     s1, s2 = g1.ravel(), g2.ravel()
@@ -148,10 +161,38 @@ def _search(A, k: int, arith: Arithmetic, B1: int, B2: int):
         old = np.unique((s1 + B1) * (2 * B2 + 1) + (s2 + B2))
         if np.array_equal(codes, old):
             return (s1, s2), n
-        if work > MAX_WORK:
+        if work > NUMPY_MAX_WORK:
             return None, n
         s1 = codes // (2 * B2 + 1) - B1
         s2 = codes % (2 * B2 + 1) - B2
+
+
+def _search(A, k: int, arith: Arithmetic, B1: int, B2: int):
+    """Cyclic states inside the box |S1| <= B1, |S2| <= B2, or None past the limits.
+
+    The compiled engine core visits every state of the box once (functional-graph
+    cycle detection, ``_engine.coupled_cycles``), exact integers; without it, the
+    numpy image iteration (:func:`_search_numpy`).  The states come in the order of
+    (S1, S2), except when every state of the box is on a cycle: then in the order
+    of the numpy search's grid (S1 varying fastest), which decides the start state
+    reported among equal amplitudes.
+    """
+    from ..simulate import _engine
+
+    if _engine is None or not hasattr(_engine, "coupled_cycles"):
+        return _search_numpy(A, k, arith, B1, B2)
+    n = (2 * B1 + 1) * (2 * B2 + 1)
+    if n > MAX_BOX:
+        return None, n
+    got = _engine.coupled_cycles(*[int(v) for v in A], k, arith.acc_bits, _ROUND_CODE[arith.rounding],
+                                 _OVF_CODE[arith.overflow], arith.data.width, B1, B2, MAX_BOX)
+    if got is None:
+        return None, n
+    s1, s2 = np.frombuffer(got[0], dtype=np.int64), np.frombuffer(got[1], dtype=np.int64)
+    if len(s1) == n:  # the whole box: the grid order of the numpy search
+        g1, g2 = np.meshgrid(np.arange(-B1, B1 + 1, dtype=np.int64), np.arange(-B2, B2 + 1, dtype=np.int64))
+        s1, s2 = g1.ravel(), g2.ravel()
+    return (s1, s2), n
 
 
 def analyse_coupled(op: SectionOp, index: int, arith: Arithmetic) -> SectionLimitCycles:
@@ -200,9 +241,9 @@ def analyse_coupled(op: SectionOp, index: int, arith: Arithmetic) -> SectionLimi
     B1f, B2f = min(v[0] for v in bounds), min(v[1] for v in bounds)
     B1, B2 = int(math.floor(B1f)), int(math.floor(B2f))
     out_bound = (abs(b[1]) * B1f + abs(b[2]) * B2f) * 2.0 ** -k + e_max  # at the section output
-    if W + arith.coef.width > 62:
+    if W + arith.coef.width > 64:
         return verdict("unproven", out_bound, False, 0,
-                       "data and coefficient words wider than 62 bits together: no exhaustive search")
+                       "data and coefficient words wider than 64 bits together: no exhaustive search")
     if max(B1, B2) >= arith.data.max_int:
         return verdict("unproven", out_bound, False, 0,
                        f"the granular bound ({B1f:.4g}, {B2f:.4g} LSB) reaches full scale")
