@@ -405,7 +405,88 @@ class _Fixed:
 
     # rounding and fitting ------------------------------------------------
     def finish(self, acc: str, k: int, C: int, y: str, residual: str | None = None) -> list[str]:
-        """Lines computing data word *y* from accumulator *acc* (and the residual)."""
+        """Lines computing data word *y* from accumulator *acc* (and the residual).
+
+        The offset form (:meth:`_finish_offset`) where its range argument holds,
+        otherwise the biased form (:meth:`_finish_biased`)."""
+        lines = self._finish_offset(acc, k, C, y, residual)
+        return lines if lines is not None else self._finish_biased(acc, k, C, y, residual)
+
+    def _finish_offset(self, acc: str, k: int, C: int, y: str, residual: str | None) -> list[str] | None:
+        """Rounding and fitting by one added constant: ``g = a + o + 2^(d-1+k)`` modulo ``2^C``.
+
+        Every rounding mode is ``floor((a + o) / 2^k)`` with an offset ``0 <= o < 2^k``
+        (truncate 0; add-half ``2^(k-1)``; half-even ``2^(k-1) - 1 + bit_k(a)``;
+        toward-zero ``2^k - 1`` for a negative ``a``, else 0: the nested-floor
+        identity).  The rounded value fits the ``d``-bit data word exactly when
+        ``0 <= g < 2^(d+k)`` for the true (unreduced) ``g``; every true ``g`` lies in
+        ``[2^(d+k) - 2^C, 2^C)`` (checked here), so ``g`` modulo ``2^C`` is below
+        ``2^(d+k)`` exactly when it fits, and then ``y = (g >> k) - 2^(d-1)``.  The
+        low ``d + k`` bits of ``g`` do not depend on the reduction, so wrapping takes
+        ``g >> k`` modulo ``2^d``; a saturated word takes the sign of ``a`` (bit
+        ``A - 1``); the residual is ``E = (g mod 2^k) - o``.  ``None`` when the range
+        argument does not hold (the biased form is used).
+        """
+        U = f"uint{C}_t"
+        A, d = self.A, self.d
+        if not (0 <= k and A <= C and d <= 32 and d + k <= C - 1):
+            return None
+        B = 1 << (d - 1 + k)
+        mask = (1 << k) - 1
+        mode = self.rounding if k else "truncate"
+        omin, omax = {"truncate": (0, 0), "add-half": (1 << (k - 1), 1 << (k - 1)) if k else (0, 0),
+                      "half-even": ((1 << (k - 1)) - 1, 1 << (k - 1)) if k else (0, 0),
+                      "toward-zero": (0, mask)}[mode]
+        sat = self.overflow == "saturate"
+        if sat and not (-(1 << (A - 1)) + omin + B >= (1 << (d + k)) - (1 << C)
+                        and (1 << (A - 1)) - 1 + omax + B < (1 << C)):
+            return None
+        lines = []
+        # the accumulator's value a modulo 2^C: the container sign-extended from A bits when wider
+        ext = A < C and (sat or d + k > A or mode == "toward-zero")
+        sign = f"({acc} >> {A - 1})" if A == C else f"(({acc} >> {A - 1}) & 1u)"
+        if ext:
+            a_expr, extra = f"(({acc} ^ {_u(1 << (A - 1), C)}) & {_u((1 << A) - 1, C)})", -(1 << (A - 1))
+            what = f"a (from {A} bits)"
+        else:
+            a_expr, extra, what = acc, 0, "a"
+        if mode in ("truncate", "add-half"):
+            lines.append(f"const {U} g = {a_expr} + {_u((omin + B + extra) % (1 << C), C)}; "
+                         f"/* {what}{f' + 2^{k - 1}' if omin else ''} + 2^{d - 1 + k} */")
+            o = _u(omin, C) if omin else None
+        elif mode == "half-even":
+            lines.append(f"const {U} o = {_u(omin, C)} + (({acc} >> {k}) & 1u); "
+                         f"/* 2^{k - 1} - 1, plus 1 when floor(a / 2^{k}) is odd: ties to even */")
+            lines.append(f"const {U} g = {a_expr} + {_u((B + extra) % (1 << C), C)} + o; /* {what} + o + 2^{d - 1 + k} */")
+            o = "o"
+        else:  # toward-zero
+            lines.append(f"const {U} o = (0u - {sign}) & {_u(mask, C)}; /* 2^{k} - 1 when a < 0: towards zero */")
+            lines.append(f"const {U} g = {a_expr} + {_u((B + extra) % (1 << C), C)} + o; /* {what} + o + 2^{d - 1 + k} */")
+            o = "o"
+        if residual is not None and k == 0:
+            lines.append(f"{residual} = 0u; /* E = 0: nothing is rounded here */")
+        elif residual is not None:
+            lines.append(f"{residual} = (g & {_u(mask, C)}){f' - {o}' if o else ''}; "
+                         f"/* E = a - round(a) 2^{k}, |E| < 2^{k} */")
+        D = self.D
+        if d == 32:
+            value = f"({D})((int64_t)(uint32_t)(g >> {k}) - INT64_C(2147483648))"
+        elif sat:
+            value = f"({D})((int32_t)(g >> {k}) - {1 << (d - 1)})"
+        else:
+            value = f"({D})((int32_t)((uint32_t)(g >> {k}) & {_u((1 << d) - 1, 32)}) - {1 << (d - 1)})"
+        if sat:
+            # with C = 64 and d + k >= 32 the test needs only the high word (one compare on a 32-bit core)
+            fits = (f"(uint32_t)(g >> 32) < {_u(1 << (d + k - 32), 32)}" if C == 64 and d + k >= 32 else
+                    f"g < {_u(1 << (d + k), C)}")
+            lines.append(f"const {D} {y} = {fits} ? {value} : {sign} != 0u ? "
+                         f"({D}){_s(self.dmin, 32)} : ({D}){_s(self.dmax, 32)}; /* saturate to {d} bits */")
+        else:
+            lines.append(f"const {D} {y} = {value}; /* wrap to {d} bits */")
+        return lines
+
+    def _finish_biased(self, acc: str, k: int, C: int, y: str, residual: str | None = None) -> list[str]:
+        """Rounding and fitting on the biased accumulator ``w = a + 2^(C-1)`` (any shift and width)."""
         U = f"uint{C}_t"
         A = self.A
         bias = 1 << (C - 1)
