@@ -6,7 +6,8 @@ forms: the offset form (one added constant, one compare) where its range argumen
 holds, and the biased form everywhere.  Both are compiled here (strict C99, UBSan)
 and run on accumulators at every boundary the argument depends on: the ends of the
 A-bit accumulator, the saturation thresholds and the rounding ties around them,
-with arbitrary container bits above A; one small geometry (d = 8, k = 4, A = 16)
+with arbitrary container bits above A, and the residual
+both modulo the container and as an int32_t; one small geometry (d = 8, k = 4, A = 16)
 is enumerated over all 2^16 accumulator values.  The expected words come from
 tests/exact_model.py (rounding through exact rationals, written from the
 definitions in coefc.program).
@@ -20,7 +21,7 @@ import subprocess
 import pytest
 
 from c_build import STRICT, UBSAN, WARNINGS, compilers, ubsan_works
-from coefc.emit.codegen import _Fixed
+from coefc.emit.codegen import _Fixed, _narrow_residual
 from coefc.program import ChannelProgram
 from coefc.qformat import ROUNDING_MODES, QFormat
 from coefc.targetspec import find_target
@@ -56,14 +57,15 @@ def _accumulators(d, A, C, k, rng) -> list[int]:
 
 def _case_function(name: str, fx: _Fixed, k: int, C: int, form: str) -> str | None:
     U = f"uint{C}_t"
-    if form == "offset":
-        lines = fx._finish_offset("acc", k, C, "y", "e")
+    if form in ("offset", "narrow"):
+        lines = fx._finish_offset("acc", k, C, "y", "e", narrow=form == "narrow")
         if lines is None:
             return None
     else:
         lines = fx._finish_biased("acc", k, C, "y", "e")
     body = "\n".join("    " + ln for ln in lines)
-    return (f"static void {name}({U} acc, long long *yo, unsigned long long *eo)\n{{\n    {U} e;\n{body}\n"
+    et = "int32_t" if form == "narrow" else U
+    return (f"static void {name}({U} acc, long long *yo, unsigned long long *eo)\n{{\n    {et} e;\n{body}\n"
             f"    *yo = (long long)y;\n    *eo = (unsigned long long)e;\n}}\n")
 
 
@@ -79,8 +81,11 @@ def test_finish_forms_match_the_exact_model(cc, tmp_path):
         for rounding in ROUNDING_MODES:
             for overflow in ("saturate", "wrap"):
                 fx = _fixed(d, A, C, k, P, rounding, overflow)
-                for form in ("offset", "biased"):
+                for form in ("offset", "biased", "narrow"):
                     if form == "biased" and k == 0 and not P:
+                        continue
+                    if form == "narrow" and not _narrow_residual(ChannelProgram("c", 48000.0, fx.p.arithmetic, ()),
+                                                                  k, C):
                         continue
                     name = f"f{len(cases)}"
                     text = _case_function(name, fx, k, C, form)
@@ -94,9 +99,13 @@ def test_finish_forms_match_the_exact_model(cc, tmp_path):
                         v = rshift(a, k, rounding)
                         y, _ = fit(v, d, overflow)
                         inputs.append(f"{idx} {container:x}")
-                        expect.append((y, (a - (v << k)) % (1 << C), (geo, rounding, overflow, form, a)))
+                        # E modulo the container, or (an int32_t) its value sign-extended to 64 bits
+                        e = (a - (v << k)) % (1 << (64 if form == "narrow" else C))
+                        expect.append((y, e, (geo, rounding, overflow, form, a)))
     # the offset form holds for every geometry but the one with d + k = C (16 + 16 = 32)
     assert sum(1 for c in cases if c[2] == "offset") == (len(GEOMETRIES) - 1) * len(ROUNDING_MODES) * 2
+    # a 32-bit residual for the five geometries of a 64-bit container
+    assert sum(1 for c in cases if c[2] == "narrow") == 5 * len(ROUNDING_MODES) * 2
     dispatch = "\n".join(f"        case {i}: {name}((uint{C}_t)u, &y, &e); break;"
                          for i, (name, C, _) in enumerate(cases))
     src = ("#include <stdint.h>\n#include <stdio.h>\n\n" + "\n".join(funcs) +

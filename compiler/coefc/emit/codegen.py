@@ -280,12 +280,24 @@ def _container(program: ChannelProgram, k: int) -> int:
     return 32 if a.acc_bits <= 32 and k <= 30 else 64
 
 
+def _narrow_residual(program: ChannelProgram, k: int, C: int) -> bool:
+    """True when error feedback keeps ``E`` (``|E| < 2^k``) in an ``int32_t`` rather than the 64-bit
+    container: ``C = 64`` and ``k <= 31``.  Then ``d + k <= 63 = C - 1`` and every true ``g`` of the
+    offset form lies in ``[-2^63, 2^63 + 2^62 + 2^31)``, so :meth:`_Fixed.finish` writes the offset form,
+    which forms ``E = (g mod 2^k) - o`` as a signed value."""
+    return C == 64 and k <= 31 and program.arithmetic.data.width <= 32
+
+
 def _section_state_bytes(op: SectionOp, program: ChannelProgram, data_bytes: int) -> int:
     st = STRUCTURE_TABLE[op.structure]
     if program.arithmetic.is_float:
         return 4 * st.state_words
     k = program.arithmetic.final_shift(op.shift)
-    return st.data_states * data_bytes + st.acc_states * (_container(program, k) // 8)
+    C = _container(program, k)
+    if st.error_feedback:  # one of the accumulator-precision states is E
+        e_bytes = 4 if _narrow_residual(program, k, C) else C // 8
+        return st.data_states * data_bytes + (st.acc_states - 1) * (C // 8) + e_bytes
+    return st.data_states * data_bytes + st.acc_states * (C // 8)
 
 
 # ---------------------------------------------------------------------------
@@ -404,15 +416,20 @@ class _Fixed:
                 f"{acc} -= (uint{C}_t)lq;"]
 
     # rounding and fitting ------------------------------------------------
-    def finish(self, acc: str, k: int, C: int, y: str, residual: str | None = None) -> list[str]:
-        """Lines computing data word *y* from accumulator *acc* (and the residual).
+    def finish(self, acc: str, k: int, C: int, y: str, residual: str | None = None,
+               narrow: bool = False) -> list[str]:
+        """Lines computing data word *y* from accumulator *acc* (and the residual, an ``int32_t``
+        when *narrow*, else modulo the container).
 
         The offset form (:meth:`_finish_offset`) where its range argument holds,
         otherwise the biased form (:meth:`_finish_biased`)."""
-        lines = self._finish_offset(acc, k, C, y, residual)
+        lines = self._finish_offset(acc, k, C, y, residual, narrow)
+        if lines is None and narrow:  # pragma: no cover - _narrow_residual proves the offset form holds
+            raise GeneratedCodeError(f"internal: a 32-bit residual needs the offset form (k {k}, container {C})")
         return lines if lines is not None else self._finish_biased(acc, k, C, y, residual)
 
-    def _finish_offset(self, acc: str, k: int, C: int, y: str, residual: str | None) -> list[str] | None:
+    def _finish_offset(self, acc: str, k: int, C: int, y: str, residual: str | None,
+                       narrow: bool = False) -> list[str] | None:
         """Rounding and fitting by one added constant: ``g = a + o + 2^(d-1+k)`` modulo ``2^C``.
 
         Every rounding mode is ``floor((a + o) / 2^k)`` with an offset ``0 <= o < 2^k``
@@ -464,7 +481,10 @@ class _Fixed:
             lines.append(f"const {U} g = {a_expr} + {_u((B + extra) % (1 << C), C)} + o; /* {what} + o + 2^{d - 1 + k} */")
             o = "o"
         if residual is not None and k == 0:
-            lines.append(f"{residual} = 0u; /* E = 0: nothing is rounded here */")
+            lines.append(f"{residual} = {'0' if narrow else '0u'}; /* E = 0: nothing is rounded here */")
+        elif residual is not None and narrow:
+            lines.append(f"{residual} = (int32_t)((int64_t)(g & {_u(mask, C)}){f' - (int64_t){o}' if o else ''}); "
+                         f"/* E = a - round(a) 2^{k}, |E| < 2^{k} */")
         elif residual is not None:
             lines.append(f"{residual} = (g & {_u(mask, C)}){f' - {o}' if o else ''}; "
                          f"/* E = a - round(a) 2^{k}, |E| < 2^{k} */")
@@ -627,21 +647,21 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                 pre = [f"{D} x1 = s->{f}_x[0], x2 = s->{f}_x[1];", f"{D} y1 = s->{f}_y[0], y2 = s->{f}_y[1];"]
                 post = [f"s->{f}_x[0] = x1;", f"s->{f}_x[1] = x2;", f"s->{f}_y[0] = y1;", f"s->{f}_y[1] = y2;"]
                 body = []
+                if ef:  # E: an int32_t when |E| < 2^k fits one (_narrow_residual), else modulo the container
+                    narrow = _narrow_residual(program, k, C)
+                    et = "int32_t" if narrow else U
+                    fields.append((et, f"{f}_e", 0, "E, the previous rounding residual" +
+                                   ("" if narrow else " (modulo the container)")))
+                    pre.append(f"{et} e = s->{f}_e;")
+                    post.append(f"s->{f}_e = e;")
+                    start = f"({U})(int64_t)e" if narrow else "e"
                 if op.structure == "df1ef":
-                    fields.append((U, f"{f}_e", 0, "E, the previous rounding residual (modulo the container)"))
-                    pre.append(f"{U} e = s->{f}_e;")
-                    post.append(f"s->{f}_e = e;")
-                    body += fx.sum_lines("acc", C, terms, )
-                    body.append("acc += e;")
-                    body += fx.finish("acc", k, C, "y", residual="e")
+                    body += fx.sum_lines("acc", C, terms, start=start)  # products accumulate onto E
+                    body += fx.finish("acc", k, C, "y", residual="e", narrow=narrow)
                 elif wide and ef:  # df1ef-wide-fb: E is the residual of the acc that holds the floored term
-                    fields.append((U, f"{f}_e", 0, "E, the previous rounding residual (modulo the container)"))
-                    pre.append(f"{U} e = s->{f}_e;")
-                    post.append(f"s->{f}_e = e;")
-                    body += fx.sum_lines("acc", C, terms)
+                    body += fx.sum_lines("acc", C, terms, start=start)
                     body += fx.low_products("acc", C, A1L, A2L, L)
-                    body.append("acc += e;")
-                    body += fx.finish("acc", k, C, "y", residual="e")
+                    body += fx.finish("acc", k, C, "y", residual="e", narrow=narrow)
                 elif wide:
                     body += fx.sum_lines("acc", C, terms)
                     body += fx.low_products("acc", C, A1L, A2L, L)
@@ -656,12 +676,12 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                 fields = [(U, f"{f}_s", 2, "S1, S2 (modulo the container)")]
                 pre = [f"{U} s1 = s->{f}_s[0], s2 = s->{f}_s[1];"]
                 post = [f"s->{f}_s[0] = s1;", f"s->{f}_s[1] = s2;"]
-                body = fx.sum_lines("acc", C, [(1, B0, "x")])
-                body.append("acc += s1;")
+                # each sum starts from the state it adds (a multiply-accumulate onto it)
+                body = fx.sum_lines("acc", C, [(1, B0, "x")], start="s1")
                 body += fx.finish("acc", k, C, "y")
-                t1 = fx.sum_lines("n1", C, [(1, B1, "x"), (-1, A1, "y")])
+                t1 = fx.sum_lines("n1", C, [(1, B1, "x"), (-1, A1, "y")], start="s2")
                 t2 = fx.sum_lines("n2", C, [(1, B2, "x"), (-1, A2, "y")])
-                body += t1 + t2 + ["s1 = n1 + s2;", "s2 = n2;", "out[t] = y;"]
+                body += t1 + t2 + ["s1 = n1;", "s2 = n2;", "out[t] = y;"]
             lines = pre + _loop(src, body, D) + post
             out.append(_OpCode(head + fx.product_note(), fields, lines))
         elif isinstance(op, (FirOp, PolyFirOp)):
