@@ -21,6 +21,15 @@ without any implementation-defined or undefined C operation:
   otherwise ``int64_t``) and summed in an *unsigned* container ``U`` of
   ``C = 32`` or ``64`` bits, so the sum is the exact sum modulo ``2^C``; the
   accumulator's value modulo ``2^acc_bits`` follows because ``acc_bits <= C``;
+* rounding and fitting add one constant (the offset form, ``_Fixed._finish_offset``):
+  every rounding mode is ``floor((a + o) / 2^k)`` with ``0 <= o < 2^k``, and
+  ``g = a + o + 2^(d-1+k)`` modulo ``2^C`` is below ``2^(d+k)`` exactly when the
+  rounded value fits the ``d``-bit data word, where the range of the true ``g``
+  (checked per op) keeps the reduction from aliasing; then ``y = (g >> k) - 2^(d-1)``
+  (``g`` non-negative, no signed shift), a saturated word takes the sign of ``a``,
+  wrapping keeps ``g >> k`` modulo ``2^d``, and ``E = (g mod 2^k) - o``.  With a 64-bit
+  container the saturation test reads the high word only.  Where the range argument
+  does not hold:
 * the rounding shift works on the *biased* accumulator
   ``w = a + 2^(C-1)`` (``a`` the accumulator's signed value), which is never
   negative: ``w >> k = floor(a / 2^k) + 2^(C-1-k)`` exactly for ``k <= C - 2``,
@@ -34,8 +43,10 @@ without any implementation-defined or undefined C operation:
 * saturation compares the biased quotient with biased limits; wrapping keeps the
   low ``data`` bits and sign-extends them with an exclusive-or and a subtraction;
 * error feedback keeps ``E = a - v 2^k`` as ``w - (v_biased << k)`` modulo
-  ``2^C`` (exact, since ``|E| < 2^k``), and tdf2 keeps ``S1``, ``S2`` modulo
-  ``2^C``: both are only ever added into the accumulator.
+  ``2^C`` (exact, since ``|E| < 2^k``), or in an ``int32_t`` when ``k <= 31`` with a
+  64-bit container (then the offset form always holds), and tdf2 keeps ``S1``, ``S2``
+  modulo ``2^C``: both are only ever added into the accumulator, and each sum
+  starts from the state it adds, so a compiler accumulates the products onto it.
 
 float32 channels keep the reference kernel's statement order (one rounding per
 product and per sum, each product stored in its own variable so no compiler
