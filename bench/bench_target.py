@@ -323,7 +323,10 @@ def main() -> None:
     args = ap.parse_args()
     platforms = []
     if shutil.which("arm-linux-gnueabihf-gcc") and shutil.which("qemu-arm"):
-        platforms.append("arm")
+        if Path("/usr/arm-linux-gnueabihf/lib/crt1.o").exists():
+            platforms.append("arm")
+        else:
+            print("32-bit ARM skipped: its C library is missing (Debian: libc6-dev-armhf-cross)")
     if shutil.which("arm-none-eabi-gcc") and shutil.which("qemu-system-arm"):
         platforms.append("m4")
     if not platforms:

@@ -116,7 +116,7 @@ def test_generated_code_on_other_machines(platform, tmp_path):
     missing = platform.missing()
     if missing:
         pytest.skip(f"{platform.name}: {', '.join(missing)} not installed (Debian packages gcc-arm-linux-gnueabihf, "
-                    "gcc-s390x-linux-gnu, qemu-user, gcc-arm-none-eabi, libnewlib-arm-none-eabi, qemu-system-arm)")
+                    "libc6-dev-armhf-cross, gcc-s390x-linux-gnu, libc6-dev-s390x-cross, qemu-user, gcc-arm-none-eabi, libnewlib-arm-none-eabi, qemu-system-arm)")
     i = 0
     for t in TARGETS:
         group = _units(t, every_mode=False, examples=t in ("mcu32", "float32"))
