@@ -12,8 +12,8 @@ Platforms: user-mode 32-bit ARM (arm-linux-gnueabihf-gcc -O2 -mthumb, qemu-arm)
 and bare-metal Cortex-M4 (arm-none-eabi-gcc -O2 -mcpu=cortex-m4, qemu-system-arm
 -M mps2-an386).  Goal: the 8-section Q1.31 / 64-bit add-half saturating DF1 cascade
 at <= 36 instructions per section-sample (parity with the plain loop; stretch 25);
-tdf2, df1ef, FIR per tap and folded (symmetric) FIR per tap within 1.1x of their
-plain loops.  Generated code size is printed.
+tdf2, df1ef, FIR per tap and folded (symmetric) FIR per tap, and DF1 in the data words of
+mcu16, dsp24 and mcu32hw, within 1.1x of their plain loops.  Generated code size is printed.
 
 Run:  python bench/bench_target.py [--samples N]
 """
@@ -34,7 +34,7 @@ sys.path.insert(0, str(REPO / "tests"))
 
 from c_build import BAREMETAL, M4_FLAGS, generated_files  # noqa: E402
 from coefc.program import ChannelProgram, FirOp, SectionOp  # noqa: E402
-from coefc.targetspec import find_target  # noqa: E402
+from coefc.targetspec import build_info, find_target  # noqa: E402
 
 HARNESS = r"""
 #include <stddef.h>
@@ -53,7 +53,7 @@ int main(void)
         m = 64u;
         for (i = 0u; i < m; i++) {
             seed = seed * 1664525u + 1013904223u;
-            buf[i] = (%(D)s)(int32_t)((seed >> 8) & 0xFFFFu) - 32768;
+            buf[i] = (%(D)s)((int32_t)((seed >> 8) & 0xFFFFu) - 32768);
         }
 #if PLAIN
         bench_plain(buf, buf, m);
@@ -224,6 +224,39 @@ void bench_plain(const int32_t *in, int32_t *out, size_t n)
 }
 """
 
+PLAIN_DF1_WORD = r"""
+#include <stddef.h>
+#include <stdint.h>
+/* The plain DF1 loop of another data word: %(D)s data and coefficients, %(ACC)s sums,
+   add-half rounding by a constant shift, saturation to %(BITS)d bits. */
+static const %(D)s co[%(S)d][5] = {
+%(rows)s
+};
+static %(D)s st[%(S)d][4];
+void bench_plain(const %(D)s *in, %(D)s *out, size_t n);
+void bench_plain(const %(D)s *in, %(D)s *out, size_t n)
+{
+    int s;
+    for (s = 0; s < %(S)d; s++) {
+        const %(D)s b0 = co[s][0], b1 = co[s][1], b2 = co[s][2], na1 = co[s][3], na2 = co[s][4];
+        %(D)s x1 = st[s][0], x2 = st[s][1], y1 = st[s][2], y2 = st[s][3];
+        const %(D)s *src = s ? out : in;
+        size_t t;
+        for (t = 0; t < n; t++) {
+            const %(D)s x = src[t];
+            %(ACC)s acc = (%(ACC)s)b0 * x + (%(ACC)s)b1 * x1 + (%(ACC)s)b2 * x2 + (%(ACC)s)na1 * y1
+                          + (%(ACC)s)na2 * y2;
+            %(D)s y;
+            acc = (acc + ((%(ACC)s)1 << (%(K)d - 1))) >> %(K)d;
+            y = (%(D)s)(acc > %(MAX)s ? %(MAX)s : acc < %(MIN)s ? %(MIN)s : acc);
+            x2 = x1; x1 = x; y2 = y1; y1 = y;
+            out[t] = y;
+        }
+        st[s][0] = x1; st[s][1] = x2; st[s][2] = y1; st[s][3] = y2;
+    }
+}
+"""
+
 PLAIN_FIR = r"""
 #include <stddef.h>
 #include <stdint.h>
@@ -283,7 +316,7 @@ def count(cmd: list[str], log: Path) -> int:
 
 
 def build_and_count(work: Path, platform: str, files: dict, header: str, process: str, state: str,
-                    plain: str, samples: int) -> tuple[float, float, int]:
+                    plain: str, samples: int, data_type: str = "int32_t") -> tuple[float, float, int]:
     """(generated, plain) instructions per sample and the generated code's .text bytes."""
     for name, text in files.items():
         (work / name).write_text(text)
@@ -293,7 +326,7 @@ def build_and_count(work: Path, platform: str, files: dict, header: str, process
     for is_plain in (0, 1):
         counts = []
         for n in (samples, 2 * samples):
-            (work / "main.c").write_text(HARNESS % {"header": header, "D": "int32_t", "state": state,
+            (work / "main.c").write_text(HARNESS % {"header": header, "D": data_type, "state": state,
                                                     "process": process, "N": n})
             exe = work / f"b{is_plain}_{n}"
             common = ["-std=c99", "-O2", "-ffp-contract=off", f"-DPLAIN={is_plain}", "-I", str(work),
@@ -323,7 +356,10 @@ def main() -> None:
     args = ap.parse_args()
     platforms = []
     if shutil.which("arm-linux-gnueabihf-gcc") and shutil.which("qemu-arm"):
-        platforms.append("arm")
+        if Path("/usr/arm-linux-gnueabihf/lib/crt1.o").exists():
+            platforms.append("arm")
+        else:
+            print("32-bit ARM skipped: its C library is missing (Debian: libc6-dev-armhf-cross)")
     if shutil.which("arm-none-eabi-gcc") and shutil.which("qemu-system-arm"):
         platforms.append("m4")
     if not platforms:
@@ -369,6 +405,25 @@ def main() -> None:
                                              args.samples)
                 print(f"[{label}] {name}: generated {g / n_taps:.2f}, plain loop {p / n_taps:.2f} instructions per "
                       f"tap-sample (ratio {g / p:.2f}; goal <= 1.1); generated .text {size} bytes")
+        # the other data words: mcu16 (Q1.15, 32-bit sums) and dsp24 (Q1.23, 56-bit sums in int64_t);
+        # one coefficient shift for all sections (1) so the plain loop's shift is one constant
+        for tname, acc_t in (("mcu16", "int32_t"), ("dsp24", "int64_t")):
+            t = find_target(tname)
+            ar = t.arithmetic
+            casc = df1_cascade(ar, shift_all=1)
+            d_t = build_info(t).data_type
+            t_rows = ",\n".join("    {%d, %d, %d, %d, %d}" % (*op.b, -op.a[0], -op.a[1]) for op in casc.ops)
+            dmax = (1 << (ar.data.width - 1)) - 1
+            plain = PLAIN_DF1_WORD % {"S": S, "rows": t_rows, "D": d_t, "ACC": acc_t, "BITS": ar.data.width,
+                                      "K": ar.final_shift(1), "MAX": str(dmax), "MIN": f"({-dmax} - 1)"}
+            with tempfile.TemporaryDirectory() as tmp:
+                work = Path(tmp)
+                g, p, size = build_and_count(work, platform, _fake([casc], "bench", tname), "bench.h",
+                                             "bench_cascade_process", "bench_cascade_state_t", plain, args.samples,
+                                             data_type=d_t)
+                print(f"[{label}] DF1 on {tname} ({ar.data} data, {ar.acc_bits}-bit accumulator): generated "
+                      f"{g / S:.1f}, plain loop {p / S:.1f} instructions per section-sample (ratio {g / p:.2f}; "
+                      f"goal <= 1.1); generated .text {size} bytes")
         # mcu32hw: every product rounded by 2^29 (high-word products), 32-bit accumulator; one
         # coefficient shift for all sections (1: the final shift is 0) so the plain loop matches
         hw = find_target("mcu32hw").arithmetic

@@ -255,19 +255,23 @@ class Platform:
     runner: tuple[str, ...] | None = ()  # () runs natively
     needs: tuple[str, ...] = ()  # programs that must be installed
     baremetal: bool = False
+    files: tuple[str, ...] = ()  # files that must exist (the C library a qemu-user build links)
 
     def missing(self) -> list[str]:
-        return [p for p in (self.cc, *self.needs) if shutil.which(p) is None]
+        return ([p for p in (self.cc, *self.needs) if shutil.which(p) is None]
+                + [f for f in self.files if not Path(f).exists()])
 
 
-#: Where generated code is proven (Debian packages: gcc-arm-linux-gnueabihf,
-#: gcc-s390x-linux-gnu, qemu-user, gcc-arm-none-eabi, libnewlib-arm-none-eabi,
-#: qemu-system-arm).
+#: Where generated code is proven (Debian packages: gcc-arm-linux-gnueabihf and
+#: libc6-dev-armhf-cross, gcc-s390x-linux-gnu and libc6-dev-s390x-cross, qemu-user,
+#: gcc-arm-none-eabi, libnewlib-arm-none-eabi, qemu-system-arm).
 CROSS = (
     Platform("arm-linux-gnueabihf", "arm-linux-gnueabihf-gcc", ("-O2",),
-             ("qemu-arm", "-L", "/usr/arm-linux-gnueabihf"), ("qemu-arm",)),
+             ("qemu-arm", "-L", "/usr/arm-linux-gnueabihf"), ("qemu-arm",),
+             files=("/usr/arm-linux-gnueabihf/lib/crt1.o",)),
     Platform("s390x (big-endian)", "s390x-linux-gnu-gcc", ("-O2",),
-             ("qemu-s390x", "-L", "/usr/s390x-linux-gnu"), ("qemu-s390x",)),
+             ("qemu-s390x", "-L", "/usr/s390x-linux-gnu"), ("qemu-s390x",),
+             files=("/usr/s390x-linux-gnu/lib/crt1.o",)),
     Platform("cortex-m4 (mps2-an386)", "arm-none-eabi-gcc", ("-O2", *M4_FLAGS),
              ("qemu-system-arm", "-M", "mps2-an386", "-nographic", "-semihosting", "-kernel"),
              ("qemu-system-arm",), baremetal=True),

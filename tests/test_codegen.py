@@ -116,7 +116,7 @@ def test_generated_code_on_other_machines(platform, tmp_path):
     missing = platform.missing()
     if missing:
         pytest.skip(f"{platform.name}: {', '.join(missing)} not installed (Debian packages gcc-arm-linux-gnueabihf, "
-                    "gcc-s390x-linux-gnu, qemu-user, gcc-arm-none-eabi, libnewlib-arm-none-eabi, qemu-system-arm)")
+                    "libc6-dev-armhf-cross, gcc-s390x-linux-gnu, libc6-dev-s390x-cross, qemu-user, gcc-arm-none-eabi, libnewlib-arm-none-eabi, qemu-system-arm)")
     i = 0
     for t in TARGETS:
         group = _units(t, every_mode=False, examples=t in ("mcu32", "float32"))
@@ -174,7 +174,13 @@ def test_contract_names_and_specialisation():
     assert "int demo_selftest(void);" in h
     assert '#ifdef __cplusplus\nextern "C" {' in h
     assert "switch" not in c and "_ops" not in c
-    assert "w >> 30" in c  # the rounding shift of a section without coefficient shift is a literal
+    assert "g >> 30" in c  # the rounding shift of a section without coefficient shift is a literal
+    # rounding and saturation by one added constant and one compare of the high word (a + 2^29 + 2^61)
+    assert "const uint64_t g = acc + UINT64_C(0x2000000020000000);" in c
+    assert "(uint32_t)(g >> 32) < UINT32_C(0x40000000) ?" in c
+    # error feedback keeps E (|E| < 2^30) in 32 bits; tdf2 states are 64-bit (the accumulator's precision)
+    assert re.search(r"int32_t op\d+_e; /\* E, the previous rounding residual \*/", h)
+    assert re.search(r"uint64_t op\d+_s\[2\]; /\* S1, S2", h)
     # the df1 state words are data words
     assert re.search(r"int32_t op1_x\[2\]; /\* x\[n-1\], x\[n-2\] \*/", h)
 
@@ -189,6 +195,8 @@ def test_cost_figures_in_the_header():
     assert "#define DEMO_SEC_DF1_ADDS_PER_SAMPLE 12" in h
     assert "#define DEMO_SEC_DF1_COEF_BYTES 60" in h  # 15 words of 4 bytes
     assert "#define DEMO_SEC_DF1_STATE_BYTES 48" in h  # 3 x 4 data words of 4 bytes
+    assert "#define DEMO_SEC_DF1EF_STATE_BYTES 60" in h  # 3 x (4 data words + E in an int32_t, |E| < 2^30)
+    assert "#define DEMO_SEC_TDF2_STATE_BYTES 48" in h  # 3 x 2 states of the 64-bit accumulator
     assert "#define DEMO_SYM17_MULS_PER_SAMPLE 9" in h  # folded: ceil(17 / 2)
 
 
@@ -204,9 +212,10 @@ def test_cost_figures_of_error_feedback_with_double_word_feedback():
     assert f"#define DEMO_{ident}_ADDS_PER_SAMPLE 21\n" in h
     assert f"#define DEMO_{ident}_COEF_BYTES 42\n" in h  # 21 words of 2 bytes
     assert f"#define DEMO_{ident}_STATE_BYTES 36\n" in h  # 3 x (4 data words of 2 bytes + E of 4 bytes)
-    # the low products are floored before E is added, and E is the residual of that accumulator
-    body = c[c.index("lq ="):]
-    assert body.index("acc -= (uint32_t)lq;") < body.index("acc += e;") < body.index("e = w - (v << ")
+    # the low products are floored on their own, the sum starts from E, and E is the residual of the
+    # accumulator that holds the floored term (sums modulo the container: the order of the adds is free)
+    body = c[c.index("uint32_t acc = e;"):]
+    assert body.index("const int32_t lq =") < body.index("acc -= (uint32_t)lq;") < body.index("e = (g & ")
 
 
 def test_generated_names_that_collide_are_refused():

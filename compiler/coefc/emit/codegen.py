@@ -21,6 +21,15 @@ without any implementation-defined or undefined C operation:
   otherwise ``int64_t``) and summed in an *unsigned* container ``U`` of
   ``C = 32`` or ``64`` bits, so the sum is the exact sum modulo ``2^C``; the
   accumulator's value modulo ``2^acc_bits`` follows because ``acc_bits <= C``;
+* rounding and fitting add one constant (the offset form, ``_Fixed._finish_offset``):
+  every rounding mode is ``floor((a + o) / 2^k)`` with ``0 <= o < 2^k``, and
+  ``g = a + o + 2^(d-1+k)`` modulo ``2^C`` is below ``2^(d+k)`` exactly when the
+  rounded value fits the ``d``-bit data word, where the range of the true ``g``
+  (checked per op) keeps the reduction from aliasing; then ``y = (g >> k) - 2^(d-1)``
+  (``g`` non-negative, no signed shift), a saturated word takes the sign of ``a``,
+  wrapping keeps ``g >> k`` modulo ``2^d``, and ``E = (g mod 2^k) - o``.  With a 64-bit
+  container the saturation test reads the high word only.  Where the range argument
+  does not hold:
 * the rounding shift works on the *biased* accumulator
   ``w = a + 2^(C-1)`` (``a`` the accumulator's signed value), which is never
   negative: ``w >> k = floor(a / 2^k) + 2^(C-1-k)`` exactly for ``k <= C - 2``,
@@ -34,8 +43,10 @@ without any implementation-defined or undefined C operation:
 * saturation compares the biased quotient with biased limits; wrapping keeps the
   low ``data`` bits and sign-extends them with an exclusive-or and a subtraction;
 * error feedback keeps ``E = a - v 2^k`` as ``w - (v_biased << k)`` modulo
-  ``2^C`` (exact, since ``|E| < 2^k``), and tdf2 keeps ``S1``, ``S2`` modulo
-  ``2^C``: both are only ever added into the accumulator.
+  ``2^C`` (exact, since ``|E| < 2^k``), or in an ``int32_t`` when ``k <= 31`` with a
+  64-bit container (then the offset form always holds), and tdf2 keeps ``S1``, ``S2``
+  modulo ``2^C``: both are only ever added into the accumulator, and each sum
+  starts from the state it adds, so a compiler accumulates the products onto it.
 
 float32 channels keep the reference kernel's statement order (one rounding per
 product and per sum, each product stored in its own variable so no compiler
@@ -290,12 +301,24 @@ def _container(program: ChannelProgram, k: int) -> int:
     return 32 if a.acc_bits <= 32 and k <= 30 else 64
 
 
+def _narrow_residual(program: ChannelProgram, k: int, C: int) -> bool:
+    """True when error feedback keeps ``E`` (``|E| < 2^k``) in an ``int32_t`` rather than the 64-bit
+    container: ``C = 64`` and ``k <= 31``.  Then ``d + k <= 63 = C - 1`` and every true ``g`` of the
+    offset form lies in ``[-2^63, 2^63 + 2^62 + 2^31)``, so :meth:`_Fixed.finish` writes the offset form,
+    which forms ``E = (g mod 2^k) - o`` as a signed value."""
+    return C == 64 and k <= 31 and program.arithmetic.data.width <= 32
+
+
 def _section_state_bytes(op: SectionOp, program: ChannelProgram, data_bytes: int) -> int:
     st = STRUCTURE_TABLE[op.structure]
     if program.arithmetic.is_float:
         return 4 * st.state_words
     k = program.arithmetic.final_shift(op.shift)
-    return st.data_states * data_bytes + st.acc_states * (_container(program, k) // 8)
+    C = _container(program, k)
+    if st.error_feedback:  # one of the accumulator-precision states is E
+        e_bytes = 4 if _narrow_residual(program, k, C) else C // 8
+        return st.data_states * data_bytes + (st.acc_states - 1) * (C // 8) + e_bytes
+    return st.data_states * data_bytes + st.acc_states * (C // 8)
 
 
 # ---------------------------------------------------------------------------
@@ -414,8 +437,97 @@ class _Fixed:
                 f"{acc} -= (uint{C}_t)lq;"]
 
     # rounding and fitting ------------------------------------------------
-    def finish(self, acc: str, k: int, C: int, y: str, residual: str | None = None) -> list[str]:
-        """Lines computing data word *y* from accumulator *acc* (and the residual)."""
+    def finish(self, acc: str, k: int, C: int, y: str, residual: str | None = None,
+               narrow: bool = False) -> list[str]:
+        """Lines computing data word *y* from accumulator *acc* (and the residual, an ``int32_t``
+        when *narrow*, else modulo the container).
+
+        The offset form (:meth:`_finish_offset`) where its range argument holds,
+        otherwise the biased form (:meth:`_finish_biased`)."""
+        lines = self._finish_offset(acc, k, C, y, residual, narrow)
+        if lines is None and narrow:  # pragma: no cover - _narrow_residual proves the offset form holds
+            raise GeneratedCodeError(f"internal: a 32-bit residual needs the offset form (k {k}, container {C})")
+        return lines if lines is not None else self._finish_biased(acc, k, C, y, residual)
+
+    def _finish_offset(self, acc: str, k: int, C: int, y: str, residual: str | None,
+                       narrow: bool = False) -> list[str] | None:
+        """Rounding and fitting by one added constant: ``g = a + o + 2^(d-1+k)`` modulo ``2^C``.
+
+        Every rounding mode is ``floor((a + o) / 2^k)`` with an offset ``0 <= o < 2^k``
+        (truncate 0; add-half ``2^(k-1)``; half-even ``2^(k-1) - 1 + bit_k(a)``;
+        toward-zero ``2^k - 1`` for a negative ``a``, else 0: the nested-floor
+        identity).  The rounded value fits the ``d``-bit data word exactly when
+        ``0 <= g < 2^(d+k)`` for the true (unreduced) ``g``; every true ``g`` lies in
+        ``[2^(d+k) - 2^C, 2^C)`` (checked here), so ``g`` modulo ``2^C`` is below
+        ``2^(d+k)`` exactly when it fits, and then ``y = (g >> k) - 2^(d-1)``.  The
+        low ``d + k`` bits of ``g`` do not depend on the reduction, so wrapping takes
+        ``g >> k`` modulo ``2^d``; a saturated word takes the sign of ``a`` (bit
+        ``A - 1``); the residual is ``E = (g mod 2^k) - o``.  ``None`` when the range
+        argument does not hold (the biased form is used).
+        """
+        U = f"uint{C}_t"
+        A, d = self.A, self.d
+        if not (0 <= k and A <= C and d <= 32 and d + k <= C - 1):
+            return None
+        B = 1 << (d - 1 + k)
+        mask = (1 << k) - 1
+        mode = self.rounding if k else "truncate"
+        omin, omax = {"truncate": (0, 0), "add-half": (1 << (k - 1), 1 << (k - 1)) if k else (0, 0),
+                      "half-even": ((1 << (k - 1)) - 1, 1 << (k - 1)) if k else (0, 0),
+                      "toward-zero": (0, mask)}[mode]
+        sat = self.overflow == "saturate"
+        if sat and not (-(1 << (A - 1)) + omin + B >= (1 << (d + k)) - (1 << C)
+                        and (1 << (A - 1)) - 1 + omax + B < (1 << C)):
+            return None
+        lines = []
+        # the accumulator's value a modulo 2^C: the container sign-extended from A bits when wider
+        ext = A < C and (sat or d + k > A or mode == "toward-zero")
+        sign = f"({acc} >> {A - 1})" if A == C else f"(({acc} >> {A - 1}) & 1u)"
+        if ext:
+            a_expr, extra = f"(({acc} ^ {_u(1 << (A - 1), C)}) & {_u((1 << A) - 1, C)})", -(1 << (A - 1))
+            what = f"a (from {A} bits)"
+        else:
+            a_expr, extra, what = acc, 0, "a"
+        if mode in ("truncate", "add-half"):
+            lines.append(f"const {U} g = {a_expr} + {_u((omin + B + extra) % (1 << C), C)}; "
+                         f"/* {what}{f' + 2^{k - 1}' if omin else ''} + 2^{d - 1 + k} */")
+            o = _u(omin, C) if omin else None
+        elif mode == "half-even":
+            lines.append(f"const {U} o = {_u(omin, C)} + (({acc} >> {k}) & 1u); "
+                         f"/* 2^{k - 1} - 1, plus 1 when floor(a / 2^{k}) is odd: ties to even */")
+        else:  # toward-zero
+            lines.append(f"const {U} o = (0u - {sign}) & {_u(mask, C)}; /* 2^{k} - 1 when a < 0: towards zero */")
+        if mode in ("half-even", "toward-zero"):
+            lines.append(f"const {U} g = {a_expr} + {_u((B + extra) % (1 << C), C)} + o; "
+                         f"/* {what} + o + 2^{d - 1 + k} */")
+            o = "o"
+        if residual is not None and k == 0:
+            lines.append(f"{residual} = {'0' if narrow else '0u'}; /* E = 0: nothing is rounded here */")
+        elif residual is not None and narrow:
+            lines.append(f"{residual} = (int32_t)((int64_t)(g & {_u(mask, C)}){f' - (int64_t){o}' if o else ''}); "
+                         f"/* E = a - round(a) 2^{k}, |E| < 2^{k} */")
+        elif residual is not None:
+            lines.append(f"{residual} = (g & {_u(mask, C)}){f' - {o}' if o else ''}; "
+                         f"/* E = a - round(a) 2^{k}, |E| < 2^{k} */")
+        D = self.D
+        if d == 32:
+            value = f"({D})((int64_t)(uint32_t)(g >> {k}) - INT64_C(2147483648))"
+        elif sat:
+            value = f"({D})((int32_t)(g >> {k}) - {1 << (d - 1)})"
+        else:
+            value = f"({D})((int32_t)((uint32_t)(g >> {k}) & {_u((1 << d) - 1, 32)}) - {1 << (d - 1)})"
+        if sat:
+            # with C = 64 and d + k >= 32 the test needs only the high word (one compare on a 32-bit core)
+            fits = (f"(uint32_t)(g >> 32) < {_u(1 << (d + k - 32), 32)}" if C == 64 and d + k >= 32 else
+                    f"g < {_u(1 << (d + k), C)}")
+            lines.append(f"const {D} {y} = {fits} ? {value} : {sign} != 0u ? "
+                         f"({D}){_s(self.dmin, 32)} : ({D}){_s(self.dmax, 32)}; /* saturate to {d} bits */")
+        else:
+            lines.append(f"const {D} {y} = {value}; /* wrap to {d} bits */")
+        return lines
+
+    def _finish_biased(self, acc: str, k: int, C: int, y: str, residual: str | None = None) -> list[str]:
+        """Rounding and fitting on the biased accumulator ``w = a + 2^(C-1)`` (any shift and width)."""
         U = f"uint{C}_t"
         A = self.A
         bias = 1 << (C - 1)
@@ -556,21 +668,21 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                 pre = [f"{D} x1 = s->{f}_x[0], x2 = s->{f}_x[1];", f"{D} y1 = s->{f}_y[0], y2 = s->{f}_y[1];"]
                 post = [f"s->{f}_x[0] = x1;", f"s->{f}_x[1] = x2;", f"s->{f}_y[0] = y1;", f"s->{f}_y[1] = y2;"]
                 body = []
+                if ef:  # E: an int32_t when |E| < 2^k fits one (_narrow_residual), else modulo the container
+                    narrow = _narrow_residual(program, k, C)
+                    et = "int32_t" if narrow else U
+                    fields.append((et, f"{f}_e", 0, "E, the previous rounding residual" +
+                                   ("" if narrow else " (modulo the container)")))
+                    pre.append(f"{et} e = s->{f}_e;")
+                    post.append(f"s->{f}_e = e;")
+                    start = f"({U})(int64_t)e" if narrow else "e"
                 if op.structure == "df1ef":
-                    fields.append((U, f"{f}_e", 0, "E, the previous rounding residual (modulo the container)"))
-                    pre.append(f"{U} e = s->{f}_e;")
-                    post.append(f"s->{f}_e = e;")
-                    body += fx.sum_lines("acc", C, terms, )
-                    body.append("acc += e;")
-                    body += fx.finish("acc", k, C, "y", residual="e")
+                    body += fx.sum_lines("acc", C, terms, start=start)  # products accumulate onto E
+                    body += fx.finish("acc", k, C, "y", residual="e", narrow=narrow)
                 elif wide and ef:  # df1ef-wide-fb: E is the residual of the acc that holds the floored term
-                    fields.append((U, f"{f}_e", 0, "E, the previous rounding residual (modulo the container)"))
-                    pre.append(f"{U} e = s->{f}_e;")
-                    post.append(f"s->{f}_e = e;")
-                    body += fx.sum_lines("acc", C, terms)
+                    body += fx.sum_lines("acc", C, terms, start=start)
                     body += fx.low_products("acc", C, A1L, A2L, L)
-                    body.append("acc += e;")
-                    body += fx.finish("acc", k, C, "y", residual="e")
+                    body += fx.finish("acc", k, C, "y", residual="e", narrow=narrow)
                 elif wide:
                     body += fx.sum_lines("acc", C, terms)
                     body += fx.low_products("acc", C, A1L, A2L, L)
@@ -585,12 +697,12 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                 fields = [(U, f"{f}_s", 2, "S1, S2 (modulo the container)")]
                 pre = [f"{U} s1 = s->{f}_s[0], s2 = s->{f}_s[1];"]
                 post = [f"s->{f}_s[0] = s1;", f"s->{f}_s[1] = s2;"]
-                body = fx.sum_lines("acc", C, [(1, B0, "x")])
-                body.append("acc += s1;")
+                # each sum starts from the state it adds (a multiply-accumulate onto it)
+                body = fx.sum_lines("acc", C, [(1, B0, "x")], start="s1")
                 body += fx.finish("acc", k, C, "y")
-                t1 = fx.sum_lines("n1", C, [(1, B1, "x"), (-1, A1, "y")])
+                t1 = fx.sum_lines("n1", C, [(1, B1, "x"), (-1, A1, "y")], start="s2")
                 t2 = fx.sum_lines("n2", C, [(1, B2, "x"), (-1, A2, "y")])
-                body += t1 + t2 + ["s1 = n1 + s2;", "s2 = n2;", "out[t] = y;"]
+                body += t1 + t2 + ["s1 = n1;", "s2 = n2;", "out[t] = y;"]
             lines = pre + _loop(src, body, D) + post
             out.append(_OpCode(head + fx.product_note(), fields, lines))
         elif isinstance(op, (FirOp, PolyFirOp)):
