@@ -493,14 +493,14 @@ class _Fixed:
                          f"/* {what}{f' + 2^{k - 1}' if omin else ''} + 2^{d - 1 + k} */")
             o = _u(omin, C) if omin else None
         elif mode == "half-even":
-            lines.append(f"const {U} o = {_u(omin, C)} + (({acc} >> {k}) & 1u); "
+            lines.append(f"const {U} ro = {_u(omin, C)} + (({acc} >> {k}) & 1u); "
                          f"/* 2^{k - 1} - 1, plus 1 when floor(a / 2^{k}) is odd: ties to even */")
         else:  # toward-zero
-            lines.append(f"const {U} o = (0u - {sign}) & {_u(mask, C)}; /* 2^{k} - 1 when a < 0: towards zero */")
+            lines.append(f"const {U} ro = (0u - {sign}) & {_u(mask, C)}; /* 2^{k} - 1 when a < 0: towards zero */")
         if mode in ("half-even", "toward-zero"):
-            lines.append(f"const {U} g = {a_expr} + {_u((B + extra) % (1 << C), C)} + o; "
-                         f"/* {what} + o + 2^{d - 1 + k} */")
-            o = "o"
+            lines.append(f"const {U} g = {a_expr} + {_u((B + extra) % (1 << C), C)} + ro; "
+                         f"/* {what} + ro + 2^{d - 1 + k} */")
+            o = "ro"
         if residual is not None and k == 0:
             lines.append(f"{residual} = {'0' if narrow else '0u'}; /* E = 0: nothing is rounded here */")
         elif residual is not None and narrow:
