@@ -140,3 +140,28 @@ def test_tdf2_state_nodes():
     got = {g.node: g.l1 for g in res.nodes}
     assert got["state 1"] == pytest.approx(l1_s1, rel=1e-9)
     assert got["state 2"] == pytest.approx(l1_s2, rel=1e-9)
+
+
+@pytest.mark.parametrize("rounding", ["add-half", "truncate"])
+def test_l1_promise_from_the_realiser_equals_a_fresh_computation(rounding):
+    """The l1 bounds the overflow analysis reads from the realiser's sums (shared, keyed by the
+    exact ops) are bit for bit the ones it computes itself when nothing is shared."""
+    from coefc.analyse import linear, overflow
+    from coefc.analyse.limitcycles import error_interval
+    from coefc.realise import realise_channel
+
+    sos = signal.ellip(8, 0.1, 80, 0.2, output="sos")  # scipy as the designer of the test filter
+    d = ChannelDesign("lp", 48000, (SosBlock(sos),))
+    ar = Arithmetic(data=QFormat(1, 23), coef=QFormat(2, 22), acc_bits=56, rounding=rounding, scaling="l1")
+    linear._L1_BOUNDS.clear()
+    prog = realise_channel(d, ar)
+    models = linear.op_models(prog)
+    n = linear.response_length(models)
+    imps = linear.node_impulses(models, n)
+    c, r = error_interval(rounding)
+    last = max(m.index for m in models)
+    shared = overflow._shared_bounds(models, n, (abs(c) + r) * ar.data.lsb, last)
+    assert shared is not None and len(shared) == len(models) - 1
+    linear._L1_BOUNDS.clear()
+    fresh = overflow.internal_node_bounds(models, imps, n, rounding, ar.data.lsb)
+    assert shared == fresh  # exact equality, floats included

@@ -1492,10 +1492,35 @@ def analyse_limit_cycles(program: ChannelProgram, *, max_states: int = MAX_STATE
                 out.append(replace(res, at_output=_at_output(program, res)))
                 numbers.append(nsec)
             elif int(op.a[0]) != 0 or int(op.a[1]) != 0 or any(int(v) for v in op.a_lo):
-                res = analyse_section(op, i, ar, max_states=max_states, **kw)
+                res = _section_cached(op, i, ar, max_states, kw)
                 out.append(replace(res, at_output=_at_output(program, res)))
                 numbers.append(nsec)
     return LimitCycleAnalysis(tuple(out), tuple(numbers))
+
+
+_SECTION_CACHE: dict = {}
+
+
+def _section_cached(op: SectionOp, index: int, arith: Arithmetic, max_states: int, kw: dict) -> SectionLimitCycles:
+    """:func:`analyse_section` of *op*, computed once per process for each distinct section.
+
+    The verdicts of a (non-coupled) section read only its feedback words (``a``,
+    ``a_lo``), coefficient shift and structure, and the arithmetic: never its
+    numerator, which zero input does not reach.  So sections that realise their
+    feedback identically -- the two equal sections of a Linkwitz-Riley crossover, a
+    low-pass and a high-pass at one frequency, the same section in another channel or
+    another configuration of a sweep -- share one analysis; only ``op_index`` is the
+    section's own.  The key holds every input the analysis reads.
+    """
+    key = (tuple(int(v) for v in op.a), tuple(int(v) for v in op.a_lo), int(op.shift),
+           op.structure or arith.structure, arith, int(max_states), tuple(sorted(kw.items())))
+    hit = _SECTION_CACHE.get(key)
+    if hit is None:
+        hit = analyse_section(op, index, arith, max_states=max_states, **kw)
+        if len(_SECTION_CACHE) >= 4096:
+            _SECTION_CACHE.clear()
+        _SECTION_CACHE[key] = hit
+    return hit if hit.op_index == index else replace(hit, op_index=index)
 
 
 def cycle_outputs(op: SectionOp, res: SectionLimitCycles, arith: Arithmetic) -> list[int]:

@@ -407,6 +407,42 @@ def noise_impulses(models: list[OpModel], j: int, n: int) -> list[np.ndarray]:
     return [noise_impulse(models, j, n, s) for s in range(len(models[j].noise_paths))]
 
 
+_L1_BOUNDS: dict = {}
+
+
+def l1_key(m: OpModel) -> tuple | None:
+    """The exact inputs of one op's step in the l1 bound of :func:`l1_bound_terms` (``None``: not shared).
+
+    Ops with coupled states or rounded products are not shared (their bound has
+    further terms); the op's position is not part of the key.
+    """
+    if m.states or m.product_bound or m.expand != 1 or m.kind == "delay":
+        return None
+    return (m.b.tobytes(), m.a.tobytes(), int(m.k > 0),
+            tuple((np.asarray(nb, dtype=float).tobytes(), np.asarray(na, dtype=float).tobytes())
+                  for nb, na in m.noise_paths))
+
+
+def keep_l1_bound_terms(prefix: tuple, n: int, node_l1: float, path_l1: list[float]) -> None:
+    """Record the l1 terms of the node after the ops of *prefix* (their :func:`l1_key`), responses of length *n*.
+
+    *node_l1* is ``sum |h|`` of the node's impulse response from the channel input and
+    *path_l1* ``sum |g_j|`` of the path from every rounding so far to the node, in
+    the order the rounding ops come (each op's sources in :attr:`OpModel.noise_paths`
+    order): the realiser's l1 scaling computes exactly these for the ops it keeps,
+    and the overflow analysis's l1 promise (``coefc.analyse.overflow.internal_node_bounds``)
+    needs the same for the same ops, so it reads them instead of filtering again.
+    """
+    if len(_L1_BOUNDS) >= 4096:
+        _L1_BOUNDS.clear()
+    _L1_BOUNDS[(int(n), prefix)] = (float(node_l1), tuple(float(v) for v in path_l1))
+
+
+def l1_bound_terms(prefix: tuple, n: int) -> tuple[float, tuple[float, ...]] | None:
+    """What :func:`keep_l1_bound_terms` recorded for these ops and length (``None`` if nothing)."""
+    return _L1_BOUNDS.get((int(n), prefix))
+
+
 def chain_filter(models: list[OpModel], x: np.ndarray) -> np.ndarray:
     """Float64 output of the realised coefficients for input *x* (no rounding).
 

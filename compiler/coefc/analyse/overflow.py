@@ -45,7 +45,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..program import ChannelProgram
-from .linear import OpModel, _run, node_impulses, op_models, response_length
+from .linear import OpModel, _run, l1_bound_terms, l1_key, node_impulses, op_models, response_length
 
 
 @dataclass(frozen=True)
@@ -172,11 +172,14 @@ def internal_node_bounds(models: list[OpModel], imps: list[np.ndarray], n: int,
 
     c, r = error_interval(rounding)
     eps = (abs(c) + r) * lsb
+    last = max((m.index for m in models if m.kind != "delay"), default=-1)
+    shared = _shared_bounds(models, n, eps, last)
+    if shared is not None:
+        return shared
     unit = np.zeros(n)
     unit[0] = 1.0
     paths: list[np.ndarray] = []
     out = []
-    last = max((m.index for m in models if m.kind != "delay"), default=-1)
     prev = unit
     for m, h in zip(models, imps):
         for j, (sb, sa) in enumerate(m.states):
@@ -200,6 +203,32 @@ def internal_node_bounds(models: list[OpModel], imps: list[np.ndarray], n: int,
                 # never saturated, for any input (the largest positive value is the largest data word)
                 bound = min(bound, m.full_scale - lsb)
             out.append((m.index, bound, "output"))
+    return out
+
+
+def _shared_bounds(models: list[OpModel], n: int, eps: float, last: int) -> list | None:
+    """:func:`internal_node_bounds` from the l1 sums the realiser computed for the same ops, or ``None``.
+
+    The l1 realisation (``coefc.realise``) filters exactly these responses and paths
+    for the ops it keeps and records their sums (:func:`coefc.analyse.linear.keep_l1_bound_terms`,
+    keyed by every op's exact coefficients and the response length); each bound here is
+    the same expression of the same sums, so the figures are identical.  ``None`` when
+    any internal node was not recorded (another realisation, a delay first, coupled
+    sections, rounded products): then everything is filtered here.
+    """
+    prefix: tuple = ()
+    out = []
+    for m in models:
+        key = l1_key(m)
+        if key is None:
+            return None
+        prefix += (key,)
+        if m.index != last:
+            hit = l1_bound_terms(prefix, n)
+            if hit is None:
+                return None
+            node_l1, path_l1 = hit
+            out.append((m.index, node_l1 + sum(eps * v for v in path_l1), "output"))
     return out
 
 

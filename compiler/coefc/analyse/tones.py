@@ -269,43 +269,82 @@ def _standard_freqs(fs: float) -> list[tuple[float, tuple]]:
 
 # ------------------------------------------------------------------ measuring
 
+_TONE_CACHE: dict = {}
+_TONE_CACHE_SAMPLES = 1 << 23  # samples kept (at most 64 MiB): the windows and bases of a channel's tones
+_TONE_KEPT = [0]
+
+
+def _tone_cached(key: tuple, make):
+    """*make()* once per process for *key*: the tone windows, bases and input fits are pure functions
+    of the tone and the data word, and a sweep runs the same tones for every configuration."""
+    hit = _TONE_CACHE.get(key)
+    if hit is None:
+        hit = make()
+        size = sum(getattr(v, "size", 0) for v in hit)
+        if _TONE_KEPT[0] + size > _TONE_CACHE_SAMPLES:
+            _TONE_CACHE.clear()
+            _TONE_KEPT[0] = 0
+        _TONE_KEPT[0] += size
+        _TONE_CACHE[key] = hit
+    return hit
+
+
+def _basis(m: int, nn: int) -> tuple[np.ndarray, np.ndarray]:
+    """``cos(w n), sin(w n)`` of *m* periods in *nn* samples (read-only, shared)."""
+    def make():
+        w = 2.0 * np.pi * m * np.arange(nn) / nn
+        c, s = np.cos(w), np.sin(w)
+        c.setflags(write=False)
+        s.setflags(write=False)
+        return c, s
+
+    return _tone_cached(("basis", m, nn), make)
+
+
+def _fit(v, c, si):  # elementwise sums, not BLAS: a BLAS call may spin threads on a busy machine
+    nn = len(v)
+    dc = float(np.sum(v)) / nn
+    a = 2.0 / nn * float(np.sum(v * c))
+    b = 2.0 / nn * float(np.sum(v * si))
+    return dc, math.hypot(a, b), (a, b)
+
+
+def _window(ar, m: int, n: int, peak: float):
+    """One window of the tone quantised to the data word, and the input's fitted amplitude."""
+    def make():
+        s = np.sin(2.0 * np.pi * ((m * np.arange(n)) % n) / n)
+        if ar.is_float:
+            win = (peak * s).astype(np.float32)
+        else:
+            scale = float(1 << ar.data.frac_bits)
+            win = np.clip(np.round(peak * scale * s), ar.data.min_int, ar.data.max_int).astype(np.int64)
+        win.setflags(write=False)
+        # the measured window of the run is exactly this window (the tone is periodic in n)
+        _, ain, _ = _fit(win.astype(np.float64), *_basis(m, n))
+        return win, ain
+
+    fmt = None if ar.is_float else (ar.data.frac_bits, ar.data.min_int, ar.data.max_int)
+    return _tone_cached(("window", m, n, float(peak), fmt), make)
+
+
 def _run(program: ChannelProgram, f: float, m: int, n: int, settle: int, peak: float):
     """Run one tone; ``(in_amp, out_amp, dc, residual_power, overflow_events)`` in data units."""
     from ..simulate import simulate
 
     ar = program.arithmetic
     # one window of whole periods, quantised once; the settling run repeats it (the tone is periodic in n)
-    s = np.sin(2.0 * np.pi * ((m * np.arange(n)) % n) / n)
-    if ar.is_float:
-        win = (peak * s).astype(np.float32)
-        scale = 1.0
-    else:
-        scale = float(1 << ar.data.frac_bits)
-        win = np.clip(np.round(peak * scale * s), ar.data.min_int, ar.data.max_int).astype(np.int64)
+    win, ain = _window(ar, m, n, peak)
+    scale = 1.0 if ar.is_float else float(1 << ar.data.frac_bits)
     reps = -(-settle // n)
-    x = np.concatenate([np.tile(win, reps)[reps * n - settle:], win]) if settle else win
+    x = np.concatenate([np.tile(win, reps)[reps * n - settle:], win]) if settle else win.copy()
     tr = simulate(program, x, trace=True)
-    xw = x[settle:].astype(np.float64)
     # a multirate channel: the same m periods in the output window at the output rate
     # (n and settle are multiples of the decimation, see analyse_tones)
     ratio = rate_ratio(program.ops)
     n_out, s_out = int(n * ratio), int(settle * ratio)
     yw = tr.y[s_out:].astype(np.float64)
-
-    def basis(nn):
-        w = 2.0 * np.pi * m * np.arange(nn) / nn
-        return np.cos(w), np.sin(w)
-
-    def fit(v, c, si):  # elementwise sums, not BLAS: a BLAS call may spin threads on a busy machine
-        nn = len(v)
-        dc = float(np.sum(v)) / nn
-        a = 2.0 / nn * float(np.sum(v * c))
-        b = 2.0 / nn * float(np.sum(v * si))
-        return dc, math.hypot(a, b), (a, b)
-
-    _, ain, _ = fit(xw, *basis(n))
-    c, si = basis(n_out)
-    dc, aout, (a, b) = fit(yw, c, si)
+    c, si = _basis(m, n_out)
+    dc, aout, (a, b) = _fit(yw, c, si)
     res = yw - dc - a * c - b * si
     res_p = float(np.sum(res * res)) / n_out
     ovf = int(sum(tr.overflow_counts))

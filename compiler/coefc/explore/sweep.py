@@ -423,11 +423,14 @@ class Sweeper:
         Configurations are independent, so the results are the same whatever *jobs*
         is; each worker is a fork of this process (the float design and every cache
         filled so far are shared, not rebuilt), and the results come back into this
-        sweeper's cache.  Neighbouring configurations share a data word and with it
-        most of the section ordering and limit-cycle work, so each worker takes runs
-        of them.  Without ``fork`` (or with one job) they are evaluated here.
+        sweeper's cache.  Work is handed out in runs of configurations that share a
+        coefficient word (:func:`_dispatch_order`): they share every section's feedback
+        words and with them the costliest per-section analysis, the granular
+        limit-cycle search (kept per process, whatever the data word), while the
+        section ordering, which depends on the data word only, is cheap to repeat.
+        Without ``fork`` (or with one job) they are evaluated here, in that order too.
         """
-        todo = [c for c in dict.fromkeys(configs) if c not in self._cache]
+        todo = _dispatch_order(c for c in dict.fromkeys(configs) if c not in self._cache)
         jobs = max(1, min(int(jobs), len(todo)))
         done = len(configs) - len(todo)
         if jobs > 1 and "fork" in _mp_methods():
@@ -466,6 +469,17 @@ class Sweeper:
             else:
                 skipped.append(f"{cfg.label()}: build would refuse it: {r.refused}")
         return SweepResult(self.design.loaded.description.source, self.budget, tuple(results), tuple(skipped))
+
+
+def _dispatch_order(configs: Iterable[Config]) -> list[Config]:
+    """*configs* grouped by target, structure, accumulator and coefficient word, data word last.
+
+    The results do not depend on the order (every cache is keyed by all it reads);
+    the order only decides which configurations one worker process evaluates
+    together, and so how often a per-process cache hits.
+    """
+    return sorted(configs, key=lambda c: (c.target, c.structure, c.acc_bits or 0, c.coef_bits or 0,
+                                          c.data_bits or 0))
 
 
 def default_jobs() -> int:

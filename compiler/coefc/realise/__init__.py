@@ -381,7 +381,7 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
     failing ``l1_scaling`` check with the bits missing.
     """
     from ..analyse.limitcycles import error_interval
-    from ..analyse.linear import _run, op_models
+    from ..analyse.linear import _run, keep_l1_bound_terms, l1_key, op_models
 
     ar = arithmetic
     cen, rad = error_interval(ar.rounding)
@@ -399,6 +399,7 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
     # then share their scaling wherever the quantised coefficients do not force a lower one
     # (the per-op width search of coefc.explore.opwidths relies on this correspondence)
     factors = scaling.scale_factors(chain0, "l1", target, n)
+    prefix: tuple | None = ()  # l1_key of the ops kept so far (None: one of them is not shared)
     for (kind, op), c0 in zip(chain0, factors):
         c0 = _at_least_one_lsb(kind, op, c0, ar)
         c, first, best, fill = c0, None, None, 0
@@ -416,9 +417,11 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
                 pn.extend(_run(nb, na, unit) for nb, na in m.noise_paths)
             if m.product_bound:  # rounded products: their worst total, through 1/A(z), in units of eps
                 pn.append(_run(np.array([1.0]), m.noise_a, unit) * (m.product_bound / (abs(cen) + rad)))
-            roundoff = eps * sum(float(np.sum(np.abs(p))) for p in pn)
-            bound = float(np.sum(np.abs(hn))) + roundoff
-            state = (rop, g, trial_notes, hn, pn, bound)
+            pl1 = [float(np.sum(np.abs(p))) for p in pn]
+            roundoff = eps * sum(pl1)
+            hl1 = float(np.sum(np.abs(hn)))
+            bound = hl1 + roundoff
+            state = (rop, g, trial_notes, hn, pn, bound, m, hl1, pl1)
             first = first or state
             if not stable:
                 stop = "its quantised poles are not stable"
@@ -447,7 +450,12 @@ def _realise_l1(design, arithmetic: Arithmetic, delay: int, chain0, final0: floa
                 stop += ", so the design's factor was kept"
                 state = first
                 break
-        rop, g, trial_notes, h, paths, bound = state
+        rop, g, trial_notes, h, paths, bound, m, hl1, pl1 = state
+        # the overflow analysis's l1 promise needs these very sums for these ops (linear.l1_bound_terms)
+        key = l1_key(m)
+        prefix = None if prefix is None or key is None else prefix + (key,)
+        if prefix is not None:
+            keep_l1_bound_terms(prefix, n, hl1, pl1)
         notes.extend(trial_notes)
         if bound > maxv:
             over.append((len(ops), bound, stop))

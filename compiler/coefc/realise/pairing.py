@@ -102,7 +102,12 @@ def order_sections(pre, sections, post, norm: str, target: float, structure: str
     1. Sort the sections by pole radius, both ways; keep the direction with the
        lower analytic output noise (:func:`chain_noise`).
     2. For up to ``MAX_EXCHANGE`` sections, exchange pairs of sections while an
-       exchange lowers the analytic noise (at most three passes).
+       exchange lowers the analytic noise (at most three passes).  A trial order
+       is abandoned as soon as it provably cannot win: more thin numerators than
+       the best order, or a partial sum of its noise terms (each >= 0) already at
+       the best order's noise.  The candidates share
+       the responses of their common leading ops (:class:`scaling.PrefixMemo`).
+       The order chosen is the one the full evaluation of every trial would choose.
 
     With *coef_lsb* (the coefficient word's LSB), an order whose scaling leaves a
     numerator with fewer than 8 significant bits of that word loses to any order
@@ -118,8 +123,10 @@ def order_sections(pre, sections, post, norm: str, target: float, structure: str
     chain = list(pre) + [("sos", s) for s in sections] + list(post)
     n = scaling.response_length(chain)
 
-    def cost(secs):
-        return chain_cost(pre, secs, post, norm, target, structure, extra_gain, n, coef_lsb)
+    memo = scaling.PrefixMemo()  # the candidate orders share the responses of their common leading ops
+
+    def cost(secs, beat=None):
+        return chain_cost(pre, secs, post, norm, target, structure, extra_gain, n, coef_lsb, memo, beat)
 
     cands = {"descending": desc, "ascending": desc[::-1]}
     costs = {name: cost(secs) for name, secs in cands.items()}
@@ -132,7 +139,7 @@ def order_sections(pre, sections, post, norm: str, target: float, structure: str
                 for j in range(i + 1, len(best)):
                     trial = list(best)
                     trial[i], trial[j] = trial[j], trial[i]
-                    v = cost(trial)
+                    v = cost(trial, best_cost)  # (thin, inf) once a bound shows it cannot win
                     if v[0] < best_cost[0] or (v[0] == best_cost[0] and v[1] < best_cost[1] * (1 - 1e-9)):
                         best, best_cost, improved = trial, v, True
             if not improved:
@@ -146,37 +153,74 @@ MAX_EXCHANGE = 6
 
 
 def chain_cost(pre, sections, post, norm: str, target: float, structure: str, extra_gain: float = 1.0,
-               length: int | None = None, coef_lsb: float = 0.0) -> tuple[int, float]:
-    """(numerators with fewer than 8 significant bits, analytic output noise in LSB^2)."""
+               length: int | None = None, coef_lsb: float = 0.0,
+               memo: scaling.PrefixMemo | None = None, beat: tuple | None = None) -> tuple[int, float]:
+    """(numerators with fewer than 8 significant bits, analytic output noise in LSB^2).
+
+    *memo* shares the responses of common leading ops between calls (one ordering
+    search); the result is the same without it.  With *beat* ``= (thin, noise)`` of
+    an order to beat, the noise is ``inf`` when this order provably does not: more
+    thin numerators, or as many and a noise of at least ``noise * (1 - 1e-9)``.
+    """
     chain = list(pre) + [("sos", s) for s in sections] + list(post)
     n = length or scaling.response_length(chain)
-    peaks, noise = _scaled_cost(chain, norm, target, structure, extra_gain, n)
-    thin = 0
-    if coef_lsb > 0:
-        thin = sum(1 for v in peaks if v < 128 * coef_lsb)
-    return thin, noise
+    peaks, noise = _scaled_cost(chain, norm, target, structure, extra_gain, n, memo,
+                                lambda pk: _stop(pk, coef_lsb, beat))
+    return _thin(peaks, coef_lsb), noise
+
+
+def _thin(peaks, coef_lsb: float) -> int:
+    return sum(1 for v in peaks if v < 128 * coef_lsb) if coef_lsb > 0 else 0
+
+
+def _stop(peaks, coef_lsb: float, beat) -> float | None:
+    """The noise at or above which an order with these numerator peaks cannot beat *beat* (None: no bound)."""
+    if beat is None:
+        return None
+    thin = _thin(peaks, coef_lsb)
+    if thin > beat[0]:
+        return 0.0  # loses whatever its noise
+    if thin < beat[0]:
+        return None  # wins whatever its noise: evaluate it fully
+    return beat[1] * (1 - 1e-9)
 
 
 _COST_CACHE: dict = {}
+_LOWER: dict = {}
 
 
-def _scaled_cost(chain, norm: str, target: float, structure: str, extra_gain: float, n: int):
+def _scaled_cost(chain, norm: str, target: float, structure: str, extra_gain: float, n: int,
+                 memo: scaling.PrefixMemo | None = None, stop_at=None):
     """(largest |numerator coefficient| of every scaled section, analytic output noise).
 
     A pure function of its arguments, so it is kept per process by their exact
     values: a sweep over coefficient widths orders the same float sections for the
-    same data word (the same *target*) again and again.
+    same data word (the same *target*) again and again.  *stop_at(peaks)* may give a
+    noise level at which to stop summing (:func:`scaling.output_noise_lsb2`'s
+    *stop*): the noise is then ``inf``, and only that bound is kept (``_LOWER``).
     """
     key = (tuple((k, *(np.asarray(v, dtype=float).tobytes() for v in (op if k == "sos" else (op,))))
                  for k, op in chain), norm, float(target), structure, float(extra_gain), int(n))
     hit = _COST_CACHE.get(key)
     if hit is not None:
         return hit
-    f = scaling.scale_factors(chain, norm, target, n)
+    low = _LOWER.get(key)  # (peaks, a proven lower bound of the noise) of an earlier abandoned evaluation
+    if low is not None and stop_at is not None:
+        stop = stop_at(low[0])
+        if stop is not None and low[1] >= stop:
+            return low[0], float("inf")
+    f = scaling.scale_factors(chain, norm, target, n, memo)
     sc = [(k, scaling.scaled(k, op, c)) for (k, op), c in zip(chain, f)]
     g = extra_gain / float(np.prod(f))
     peaks = tuple(float(np.max(np.abs(op[0]))) for k, op in sc if k == "sos")
-    out = (peaks, scaling.output_noise_lsb2(sc, g, structure, True, n))
+    stop = stop_at(peaks) if stop_at is not None else None
+    noise = scaling.output_noise_lsb2(sc, g, structure, True, n, stop=stop)
+    if noise is None:  # provably no better than the order to beat: the noise is at least `stop`
+        if len(_LOWER) >= 8192:
+            _LOWER.clear()
+        _LOWER[key] = (peaks, stop)
+        return peaks, float("inf")
+    out = (peaks, noise)
     if len(_COST_CACHE) >= 8192:
         _COST_CACHE.clear()
     _COST_CACHE[key] = out

@@ -179,26 +179,76 @@ def energy(ops) -> float:
     return _impulse_energy(ops)
 
 
-def scale_factors(chain, p: str, target: float = 1.0, length: int | None = None) -> list[float]:
-    """One factor per op so that every op output has norm *target* (see module doc)."""
+#: samples of prefix responses one :class:`PrefixMemo` keeps (at most 64 MiB)
+MEMO_SAMPLES = 1 << 23
+
+
+class PrefixMemo:
+    """Node responses of chain prefixes, shared by the candidate orders of one ordering search.
+
+    The scale factor of an op depends only on the ops before it and on itself, so two
+    orders that begin with the same ops share those factors and the scaled response
+    after them exactly: the search (``pairing.order_sections``) passes one memo to
+    every evaluation and an exchange of sections i < j refilters only from op i on.
+    Keys are the identities of the ops (the memo lives as long as the search, which
+    holds the ops).
+    """
+
+    def __init__(self) -> None:
+        self.l1: dict = {}  # (length, op ids of the prefix) -> (scaled response, factors)
+        self.energy: dict = {}  # op ids of the prefix -> energy of the unscaled prefix
+        self.kept = 0
+
+    def keep_l1(self, key, h: np.ndarray, factors: list[float]) -> None:
+        if self.kept + len(h) <= MEMO_SAMPLES:
+            self.kept += len(h)
+            self.l1[key] = (h, list(factors))
+
+
+def scale_factors(chain, p: str, target: float = 1.0, length: int | None = None,
+                  memo: PrefixMemo | None = None) -> list[float]:
+    """One factor per op so that every op output has norm *target* (see module doc).
+
+    *memo* (:class:`PrefixMemo`) reuses what an earlier call computed for the same
+    leading ops; the factors are the same with or without it.
+    """
     if p == "linf":
         return _linf_factors(chain, target)
+    ids = tuple(id(op) for _, op in chain)
     if p == "l2":
         factors = []
         for i in range(len(chain)):
-            nv = np.sqrt(energy(chain[: i + 1])) * float(np.prod(factors))
+            if memo is None:
+                e = energy(chain[: i + 1])
+            else:
+                e = memo.energy.get(ids[: i + 1])
+                if e is None:
+                    e = memo.energy[ids[: i + 1]] = energy(chain[: i + 1])
+            nv = np.sqrt(e) * float(np.prod(factors))
             factors.append(target / nv if nv > 0 else 1.0)
         return factors
     n = length or response_length(chain)
-    h = np.zeros(n)
-    h[0] = 1.0
-    factors = []
-    for kind, op in chain:
+    start, factors = 0, []
+    h = None
+    if memo is not None:
+        for i in range(len(chain), 0, -1):  # the longest prefix already filtered
+            hit = memo.l1.get((n, ids[:i]))
+            if hit is not None:
+                h, factors = hit[0], list(hit[1])
+                start = i
+                break
+    if h is None:
+        h = np.zeros(n)
+        h[0] = 1.0
+    for i in range(start, len(chain)):
+        kind, op = chain[i]
         h = apply_op(kind, op, h)
         nv = norm(h, p)
         c = target / nv if nv > 0 else 1.0
         h = h * c
         factors.append(c)
+        if memo is not None and i < len(chain) - 1:
+            memo.keep_l1((n, ids[: i + 1]), h, factors)
     return factors
 
 
@@ -210,7 +260,7 @@ def scaled(kind: str, op, c: float):
 
 
 def output_noise_lsb2(chain, final_gain: float, structure: str = "df1", has_gain_op: bool = True,
-                      length: int | None = None) -> float:
+                      length: int | None = None, stop: float | None = None) -> float | None:
     """Analytic roundoff noise at the output, in data-LSB^2, of an already scaled chain.
 
     Each op rounds its output once (variance 1/12 LSB^2, white, independent); the
@@ -219,18 +269,34 @@ def output_noise_lsb2(chain, final_gain: float, structure: str = "df1", has_gain
     op and *final_gain*.  A final gain op adds one more source of 1/12.  The noise
     gains ``sum g[n]^2`` are computed exactly (discrete Lyapunov equation).
 
+    With *stop*, ``None`` is returned as soon as the partial sum of the terms shows
+    the total is at least *stop* (every term is >= 0; a relative margin of 1e-12
+    covers the rounding).  Otherwise the total is summed in op order, the same
+    value with or without *stop*.
+
     References
     ----------
     Jackson, IEEE Trans. Audio Electroacoust. AU-18(2), 1970: output noise spectrum
     ``N(w) = sigma0^2 sum_j k_j |G_j(w)|^2``.
     """
-    total = 0.0
-    for i, (kind, op) in enumerate(chain):
+    terms: list[float | None] = [None] * len(chain)
+    part = 1.0 / 12.0 if has_gain_op else 0.0
+    if stop is not None and part * (1.0 - 1e-12) >= stop:
+        return None
+    for i in range(len(chain)):
+        kind, op = chain[i]
         path = list(chain[i + 1:])
         if kind == "sos":
             num = [1.0, -1.0, 0.0] if STRUCTURE_TABLE[structure].error_feedback else [1.0, 0.0, 0.0]
             path = [("sos", (num, op[1]))] + path
-        total += energy(path) * final_gain * final_gain / 12.0
+        terms[i] = energy(path) * final_gain * final_gain / 12.0
+        if stop is not None:
+            part += terms[i]
+            if part * (1.0 - 1e-12) >= stop:
+                return None
+    total = 0.0
+    for t in terms:
+        total += t
     if has_gain_op:
         total += 1.0 / 12.0
     return total
