@@ -197,13 +197,15 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
     coefficients, df1ef-wide-fb 7 multiplies, 7 adds and 7 stored coefficients; a coupled
     section 8 multiplies, 5 adds and 8 coefficients); an FIR of N taps N multiplies and
     N - 1 adds,
-    folded ceil(N/2) multiplies and N - 1 adds; a gain one multiply; a delay none.
+    folded ceil(N/2) multiplies and N - 1 adds, where zero taps are skipped (no multiply,
+    add or stored word: a half-band filter's every other tap); a gain one multiply; a delay none.
     Coefficient bytes count the stored coefficient words (a folded FIR stores
     ceil(N/2)); state bytes the fields of the generated state structure before
     padding.  In a multirate channel the figures are per *input* sample, rounded
     up: a polyphase FIR decimating by M costs N/M multiplies per input sample
-    (folded ceil(N/2)/M), and an op after a rate change counts its work times its
-    rate over the input rate.
+    (folded ceil(N/2)/M), one interpolating by L costs N per input sample (each input
+    meets every tap once, in one of the L branches; adds N - L), and an op after a rate
+    change counts its work times its rate over the input rate.
     """
     from fractions import Fraction
 
@@ -214,13 +216,18 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
     mr, ar_ = Fraction(0), Fraction(0)  # multiplies and adds of ops at other rates, per input sample
     for op in program.ops:
         if isinstance(op, (PolyFirOp, RateOp)):
-            if isinstance(op, PolyFirOp):  # N products per output sample at the lower rate
+            if isinstance(op, PolyFirOp):  # the non-zero products per output sample at the lower rate
                 n = len(op.taps)
-                folded = op.symmetric and fixed and op.down > 1
-                low = per / op.down if op.down > 1 else per
-                mr += low * ((n + 1) // 2 if folded else n)
-                ar_ += low * (n - 1)
-                coefs += (n + 1) // 2 if folded else n
+                folded = op.symmetric and fixed and op.down > 1 and not program.arithmetic.product_shift
+                m_, a_, c_ = _fir_counts(op.taps, folded)
+                if op.down > 1:
+                    mr += per / op.down * m_
+                    ar_ += per / op.down * a_
+                else:  # interpolating: each input meets every non-zero tap once, in one of the L branches
+                    nz = sum(1 for t in op.taps if t)
+                    mr += per * nz
+                    ar_ += per * max(0, nz - op.up)
+                coefs += c_
                 state += 2 * n * data_bytes + 8
             else:
                 state += 4
@@ -241,9 +248,10 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
         elif isinstance(op, FirOp):
             n = len(op.taps)
             folded = op.symmetric and fixed and not program.arithmetic.product_shift
-            muls += (n + 1) // 2 if folded else n
-            adds += n - 1
-            coefs += (n + 1) // 2 if folded else n
+            m_, a_, c_ = _fir_counts(op.taps, folded)
+            muls += m_
+            adds += a_
+            coefs += c_
             state += 2 * n * data_bytes + 4
         elif isinstance(op, GainOp):
             muls += 1
@@ -259,6 +267,18 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
         adds += -(-ar_.numerator // ar_.denominator)
     return {"muls_per_sample": muls, "adds_per_sample": adds, "coef_bytes": coefs * coef_bytes,
             "state_bytes": state}
+
+
+def _fir_counts(taps, folded: bool) -> tuple[int, int, int]:
+    """(multiplies, adds, stored coefficients) of one output of an FIR, zero taps skipped: unfolded one
+    multiply per non-zero tap; folded one per non-zero pair and the non-zero middle tap (a pair's two
+    samples are added first); adds one fewer than the non-zero taps."""
+    n = len(taps)
+    nz = sum(1 for t in taps if t)
+    if not folded:
+        return nz, max(0, nz - 1), nz
+    stored = sum(1 for t in taps[:(n + 1) // 2] if t)
+    return stored, max(0, nz - 1), stored
 
 
 def cost_of(program: ChannelProgram) -> dict:
@@ -600,13 +620,21 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                     f"history z[p..p+{n - 1}] newest first, kept twice so it is contiguous"]
             fields = [(D, f"{f}_z", 2 * n, f"the last {n} inputs, twice"), ("uint32_t", f"{f}_p", 0,
                                                                            "position of the newest input")]
-            unroll = len(stored) <= UNROLL_TAPS
-            hlines = []
+            # zero taps (every other tap of a half-band filter) are skipped: no product, no table entry
+            live = [(j, c) for j, c in enumerate(stored[:n // 2] if folded else stored) if c]
+            middle = stored[-1] if folded and n % 2 else 0
+            unroll = len(live) <= UNROLL_TAPS
+            hlines, jx = [], "j"
             if not unroll:
-                hlines = [f"static const {ct} h[{len(stored)}] = {{ /* h[0] (newest) .. */"]
-                hlines += ["    " + ", ".join(_s(c, 64 if ct == "int64_t" else 32) for c in stored[j:j + 6]) + ","
-                           for j in range(0, len(stored), 6)]
+                hlines = [f"static const {ct} h[{len(live)}] = {{ /* the non-zero taps, newest first */"]
+                hlines += ["    " + ", ".join(_s(c, 64 if ct == "int64_t" else 32) for _, c in live[j:j + 6]) + ","
+                           for j in range(0, len(live), 6)]
                 hlines.append("};")
+                jx, olines = _tap_index([j for j, _ in live], "o")
+                hlines += olines
+                if len(live) < len(stored[:n // 2] if folded else stored):
+                    head.append(f"{len(live)} non-zero taps{' pairs' if folded else ''} of "
+                                f"{len(stored[:n // 2] if folded else stored)}; the zero taps are skipped")
             pre = hlines + [f"{D} *const z = s->{f}_z;", f"uint32_t p = s->{f}_p;"]
             post = [f"s->{f}_p = p;"]
             body = ([] if unroll else ["uint32_t j;"]) + [f"p = (p == 0u) ? {n - 1}u : p - 1u;", "z[p] = x;",
@@ -620,22 +648,21 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
 
             if folded and unroll:
                 body.append(f"{U} acc = 0u;")
-                for j, c in enumerate(stored[:n // 2]):
-                    if c:
-                        body.append(f"acc += {pair(_s(c, 64 if signed_pre or C == 64 else 32), f'{j}u')}; "
-                                    f"/* h[{j}] (x[n-{j}] + x[n-{n - 1 - j}]) */")
-                if n % 2 and stored[-1]:
-                    body.append(f"acc += {fx.prod(f'z[p + {n // 2}u]', stored[-1], C)}; /* the middle tap */")
+                for j, c in live:
+                    body.append(f"acc += {pair(_s(c, 64 if signed_pre or C == 64 else 32), f'{j}u')}; "
+                                f"/* h[{j}] (x[n-{j}] + x[n-{n - 1 - j}]) */")
+                if middle:
+                    body.append(f"acc += {fx.prod(f'z[p + {n // 2}u]', middle, C)}; /* the middle tap */")
             elif folded:
-                body += [f"{U} acc = 0u;", f"for (j = 0u; j < {n // 2}u; j++) {{",
-                         f"    acc += {pair('h[j]', 'j')}; /* h[j] (x[n-j] + x[n-{n - 1}+j]) */", "}"]
-                if n % 2:
-                    body.append(f"acc += {fx.prod(f'z[p + {n // 2}u]', stored[-1], C)}; /* the middle tap */")
+                body += [f"{U} acc = 0u;", f"for (j = 0u; j < {len(live)}u; j++) {{",
+                         f"    acc += {pair('h[j]', jx)}; /* h (x[n-i] + x[n-{n - 1}+i]), i = {jx} */", "}"]
+                if middle:
+                    body.append(f"acc += {fx.prod(f'z[p + {n // 2}u]', middle, C)}; /* the middle tap */")
             elif unroll:
-                body += fx.sum_lines("acc", C, [(1, c, f"z[p + {j}u]") for j, c in enumerate(stored)])
+                body += fx.sum_lines("acc", C, [(1, c, f"z[p + {j}u]") for j, c in live])
             else:
-                body += [f"{U} acc = 0u;", f"for (j = 0u; j < {n}u; j++) {{",
-                         f"    acc += {fx.prodv('z[p + j]', 'h[j]', C)};", "}"]
+                body += [f"{U} acc = 0u;", f"for (j = 0u; j < {len(live)}u; j++) {{",
+                         f"    acc += {fx.prodv(f'z[p + {jx}]', 'h[j]', C)};", "}"]
             body += fx.finish("acc", k, C, "y") + ["out[t] = y;"]
             if isinstance(op, PolyFirOp):
                 head, fields, pre, body, post = _decimating(op, f, head, fields, pre, body, post,
@@ -655,6 +682,21 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
         else:  # pragma: no cover - emit refuses first
             raise GeneratedCodeError(f"channel '{program.name}': op {i} has no generated code")
     return out
+
+
+def _tap_index(js: list[int], name: str) -> tuple[str, str]:
+    """The C expression of the *j*-th tap position in the list *js* (ascending) inside a loop over
+    ``j``, and the lines of the table it needs: ``j`` for consecutive taps, ``a + d*j`` for every
+    d-th tap (a half-band filter), otherwise a table of positions."""
+    if len(js) < 2 or all(js[i + 1] - js[i] == js[1] - js[0] for i in range(len(js) - 1)):
+        a, d = js[0] if js else 0, (js[1] - js[0]) if len(js) > 1 else 1
+        expr = "j" if d == 1 else f"{d}u * j"
+        return (expr if a == 0 else f"({a}u + {expr})"), []
+    t = "uint16_t" if js[-1] < (1 << 16) else "uint32_t"
+    lines = [f"static const {t} {name}[{len(js)}] = {{ /* positions of the non-zero taps */"]
+    lines += ["    " + ", ".join(f"{v}u" for v in js[i:i + 12]) + "," for i in range(0, len(js), 12)]
+    lines.append("};")
+    return f"{name}[j]", lines
 
 
 def _no_interpolation(program: ChannelProgram, op, i: int) -> None:
