@@ -203,6 +203,122 @@ def test_generated_code_decimates_bit_exact_at_both_rates(target_name, tmp_path)
         assert "MISMATCH" not in out and "runtime error" not in out, out
 
 
+def _halfband_ints(arith, n_taps, sh, seed=5):
+    """Integer taps of a half-band low-pass of n_taps = 4k + 3 taps (coefc.design.fir.halfband_taps)."""
+    from c_build import _coef
+    from coefc.design.fir import halfband_taps
+
+    return tuple(_coef(arith, float(t), sh) for t in halfband_taps(n_taps, 9000.0, 48000.0))
+
+
+def _interpolating_programs(arith, seed=4):
+    """Interpolating channels: a polyphase FIR by 2 and 3 (short branches written out, long ones as
+    loops), a half-band by 2 (zero taps skipped, long branches), a gain in front (the interpolation
+    then works in place in the output array), a bare zero insertion before a section, and an
+    interpolation by 2 followed by a decimation by 3 (rate 2/3)."""
+    from c_build import _coef, _section
+
+    rng = np.random.default_rng(seed)
+    sh = 1
+    taps = tuple(_coef(arith, t, sh) for t in rng.uniform(-0.4, 0.4, 23))
+    hb = _halfband_ints(arith, 43, sh)
+    irregular = tuple(0 if j % 3 == 1 or j in (4, 11) else t for j, t in enumerate(taps + taps))
+    return [
+        ChannelProgram("int2", 48000.0, arith, (PolyFirOp(taps[:11], sh, up=2),)),
+        ChannelProgram("int3", 48000.0, arith, (PolyFirOp(taps, sh, up=3), GainOp(_coef(arith, 1.5, sh), sh))),
+        ChannelProgram("hb2", 48000.0, arith, (GainOp(_coef(arith, 0.75, sh), sh),
+                                               PolyFirOp(hb, sh, up=2, symmetric=True))),
+        ChannelProgram("odd2", 48000.0, arith, (PolyFirOp(irregular, sh, up=2),)),
+        ChannelProgram("zeros2", 48000.0, arith, (RateOp(up=2), _section(rng, arith, "df1", 0))),
+        ChannelProgram("up2dn3", 48000.0, arith, (PolyFirOp(taps, sh, up=2), PolyFirOp(hb, sh, down=3))),
+        ChannelProgram("hbdec", 96000.0, arith, (PolyFirOp(hb, sh, down=2, symmetric=True),)),
+        ChannelProgram("odddec", 96000.0, arith, (PolyFirOp(irregular, sh, down=2),)),
+    ]
+
+
+@pytest.mark.parametrize("target_name", ["mcu16", "mcu32", "dsp24"])
+def test_generated_code_interpolates_bit_exact_at_both_rates(target_name, tmp_path):
+    # golden vectors: the input at the input rate, each channel's output at its own rate (n L / M),
+    # computed by the engine; the engine's interpolation integers equal the exact model (below); blocks of
+    # 1..64 times M, every other one in place (the interpolation runs backwards through the block)
+    from c_build import compilers, generated_files, m32_works, run_generated, ubsan_works
+    from coefc.targetspec import find_target
+    from test_codegen import _native
+
+    target = find_target(target_name)
+    progs = _interpolating_programs(target.arithmetic)
+    for p in progs:  # the golden vectors' source agrees with the exact model
+        x = np.random.default_rng(7).integers(-(1 << (p.arithmetic.data.width - 1)),
+                                              1 << (p.arithmetic.data.width - 1), size=60)
+        assert sim.simulate(p, x).tolist() == exact_model.run_program(p, x)[0], p.name
+    files = generated_files(progs, target_name, "irate", vectors=240)
+    c, h = files["irate.c"], files["irate.h"]
+    assert "polyphase FIR interpolating by 3" in c and "n = n * 2u;" in c and "for (t = n; t-- > 0u;)" in c
+    assert "IRATE_INT3_INTERPOLATION 3" in h and "IRATE_UP2DN3_DECIMATION 3" in h
+    assert "48000 Hz in, 96000 Hz out" in h and "out must have room for n * 2 samples" in h
+    assert "48000 Hz in, 32000 Hz out" in h and "n a multiple of 3" in h
+    # the half-band's zero taps are skipped: the decimator's folded loop runs over every other pair
+    assert "2u * j" in c and "11 non-zero taps pairs of 21" in c
+    for cc in compilers():
+        flags = ("-O1", "-fsanitize=undefined", "-fno-sanitize-recover=all") if ubsan_works(cc) else ("-O2",)
+        rc, out = run_generated(tmp_path / cc, [("irate", files)], _native(cc, *flags))
+        assert rc == 0, out
+        assert "MISMATCH" not in out and "runtime error" not in out and out.count(": ok") == 1, out
+        if m32_works(cc):
+            rc, out = run_generated(tmp_path / f"{cc}32", [("irate", files)], _native(cc, "-O2", "-m32"))
+            assert rc == 0, out
+
+
+def test_generated_interpolation_on_other_machines(tmp_path):
+    """32-bit ARM and big-endian s390x under qemu-user, Cortex-M4 bare metal (as tests/test_codegen.py)."""
+    from c_build import CROSS, generated_files, run_generated
+    from coefc.targetspec import find_target
+
+    files = generated_files(_interpolating_programs(find_target("mcu32").arithmetic), "mcu32", "xrate", vectors=120)
+    ran = 0
+    for platform in CROSS:
+        if platform.missing():
+            continue
+        rc, out = run_generated(tmp_path / platform.name.split()[0], [("xrate", files)], platform)
+        assert rc == 0, f"{platform.name}:\n{out}"
+        if platform.runner is not None:
+            assert out.count(": ok") == 1, out
+        ran += 1
+    if not ran:
+        pytest.skip("no cross compiler or emulator installed")
+
+
+def test_generated_code_catches_a_wrong_interpolated_golden_value(tmp_path):
+    from c_build import compilers, generated_files, run_generated
+    from coefc.targetspec import find_target
+
+    from test_codegen import _native
+
+    progs = _interpolating_programs(find_target("mcu32").arithmetic)[:1]
+    files = generated_files(progs, "mcu32", "ibad", vectors=120)
+    c = files["ibad.c"]
+    key = "ibad_int2_golden_out[240] = {\n    "
+    start = c.index(key) + len(key)
+    start = c.index(",", start) + 2  # the second output value: the odd phase
+    end = c.index(",", start)
+    v = int(c[start:end])
+    c = c[:start] + str(v + 1 if v < 0 else v - 1) + c[end:]
+    rc, out = run_generated(tmp_path, [("ibad", dict(files, **{"ibad.c": c}))], _native(compilers()[0], "-O2"))
+    assert "compile failed" not in out
+    assert rc != 0 and ": ok" not in out, out
+
+
+def test_float32_interpolation_code_is_refused_in_one_line():
+    from c_build import generated_files
+    from coefc.emit.codegen import GeneratedCodeError
+    from coefc.targetspec import find_target
+
+    ar = find_target("float32").arithmetic
+    prog = ChannelProgram("i", 48000.0, ar, (PolyFirOp((0.25, 0.5, 0.25), up=2),))
+    with pytest.raises(GeneratedCodeError, match="interpolates by 2.*fixed-point code does"):
+        generated_files([prog], "float32", "fint", vectors=16)
+
+
 def test_generated_code_catches_a_wrong_decimated_golden_value(tmp_path):
     from c_build import compilers, generated_files, run_generated
     from coefc.targetspec import find_target

@@ -120,7 +120,8 @@ class CNames:
                         "golden_out": "_golden_out", "check": "_check"}
     GLOBAL_MACROS = ("COEFC_H", "DATA_BITS", "DATA_FRAC_BITS", "COEF_BITS", "COEF_FRAC_BITS", "ACC_BITS",
                      "SAMPLE_RATE_HZ", "OVER_BUDGET", "N_CHANNELS", "GOLDEN_LEN", "GENERATED_CODE")
-    CHANNEL_MACROS = ("MULS_PER_SAMPLE", "ADDS_PER_SAMPLE", "COEF_BYTES", "STATE_BYTES", "SECTIONS", "DECIMATION")
+    CHANNEL_MACROS = ("MULS_PER_SAMPLE", "ADDS_PER_SAMPLE", "COEF_BYTES", "STATE_BYTES", "SECTIONS", "DECIMATION",
+                      "INTERPOLATION", "OUT_ROOM")
 
     def description(self) -> dict[str, str]:
         """The description's identifiers by field (``data_t``, ``selftest``, ``golden_in``)."""
@@ -603,8 +604,9 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                 body += t1 + t2 + ["s1 = n1 + s2;", "s2 = n2;", "out[t] = y;"]
             lines = pre + _loop(src, body, D) + post
             out.append(_OpCode(head + fx.product_note(), fields, lines))
+        elif isinstance(op, PolyFirOp) and op.up > 1:
+            out.append(_interpolating(fx, op, f, src, D))
         elif isinstance(op, (FirOp, PolyFirOp)):
-            _no_interpolation(program, op, i)
             taps = [int(v) for v in op.taps]
             n = len(taps)
             k = fx.k_of(op.shift)
@@ -630,7 +632,7 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                 hlines += ["    " + ", ".join(_s(c, 64 if ct == "int64_t" else 32) for _, c in live[j:j + 6]) + ","
                            for j in range(0, len(live), 6)]
                 hlines.append("};")
-                jx, olines = _tap_index([j for j, _ in live], "o")
+                jx, olines = _tap_index([j for j, _ in live], "hpos")
                 hlines += olines
                 if len(live) < len(stored[:n // 2] if folded else stored):
                     head.append(f"{len(live)} non-zero taps{' pairs' if folded else ''} of "
@@ -701,8 +703,64 @@ def _tap_index(js: list[int], name: str) -> tuple[str, str]:
 
 def _no_interpolation(program: ChannelProgram, op, i: int) -> None:
     if isinstance(op, PolyFirOp) and op.up > 1:
-        raise GeneratedCodeError(f"channel '{program.name}': op {i} interpolates by {op.up}, which generated code "
-                                 "does not write yet (decimation it does); simulate it with coefc run")
+        raise GeneratedCodeError(f"channel '{program.name}': op {i} interpolates by {op.up}, which generated "
+                                 "float32 code does not write yet (fixed-point code does); simulate it with coefc run")
+
+
+_BACKWARDS = ("the block is processed from its last input backwards, so in and out may be the same array: "
+              "output t*{L}+p is written after every input up to t is read")
+
+
+def _interpolating(fx: "_Fixed", op: PolyFirOp, f: str, src: str, D: str) -> _OpCode:
+    """A polyphase FIR interpolating by ``L = op.up`` (coefc.program's polyfir with ``M = 1``):
+    ``y[t*L + p] = fit(round(sum_j h[p + j*L] x[t - j]))``, the L branches of ``J = ceil(N/L)``
+    taps each computed once per input; zero taps are skipped.  The inputs ``x[t - j]`` come from
+    a window of the J newest inputs; the state keeps the J - 1 inputs before the block."""
+    L = op.up
+    taps = [int(v) for v in op.taps]
+    n = len(taps)
+    J = -(-n // L)
+    k = fx.k_of(op.shift)
+    C = _container(program=fx.p, k=k)
+    U = f"uint{C}_t"
+    head = [f"polyphase FIR interpolating by {L}, {n} taps in {L} branches of up to {J} (coefficient shift "
+            f"{op.shift}, rounding shift {k}, {C}-bit container)",
+            f"y[t*{L} + p] = fit(round(sum_j h[p + {L}j] x[t - j] / 2^{k})), p = 0 .. {L - 1}; "
+            f"{sum(1 for c in taps if c)} non-zero taps (zero taps skipped)",
+            _BACKWARDS.format(L=L)]
+    H = J - 1  # inputs kept from the previous block
+    fields = [(D, f"{f}_z", max(H, 1), f"the last {H} inputs, newest first" if H else "unused")]
+    lines = [f"{D} *const z = s->{f}_z;", "uint32_t j;"]
+    if H:
+        lines += [f"{D} nz[{H}]; /* the state after this block, saved before out is written */",
+                  f"for (j = 0u; j < {H}u; j++) {{",
+                  f"    nz[j] = ((size_t)j < n) ? {src}[n - 1u - j] : z[(size_t)j - n];", "}"]
+    else:
+        lines.append("(void)z;")
+    body = [f"{D} win[{J}]; /* x[t], x[t-1], .. x[t-{J - 1}] */", f"for (j = 0u; j < {J}u; j++) {{",
+            f"    win[j] = ((size_t)j <= t) ? {src}[t - j] : z[(size_t)j - t - 1u];", "}"]
+    tables: list[str] = []
+    for p in range(L):
+        live = [(j, taps[p + j * L]) for j in range(J) if p + j * L < n and taps[p + j * L]]
+        if len(live) <= UNROLL_TAPS:
+            inner = fx.sum_lines("acc", C, [(1, c, f"win[{j}u]") for j, c in live])
+        else:
+            ct = "int32_t" if all(-(1 << 31) <= c < (1 << 31) for _, c in live) else "int64_t"
+            tables += [f"static const {ct} h{p}[{len(live)}] = {{ /* branch {p}: its non-zero taps */"]
+            tables += ["    " + ", ".join(_s(c, 64 if ct == "int64_t" else 32) for _, c in live[i:i + 6]) + ","
+                       for i in range(0, len(live), 6)]
+            tables.append("};")
+            jx, olines = _tap_index([j for j, _ in live], f"hpos{p}")
+            tables += olines
+            inner = [f"{U} acc = 0u;", f"for (j = 0u; j < {len(live)}u; j++) {{",
+                     f"    acc += {fx.prodv(f'win[{jx}]', f'h{p}[j]', C)};", "}"]
+        inner += fx.finish("acc", k, C, "y") + [f"out[t * {L}u + {p}u] = y;"]
+        body += ["{", *_indent(inner, 4), "}"]
+    lines = tables + lines + [f"for (t = n; t-- > 0u;) {{", *_indent(body, 4), "}"]
+    if H:
+        lines += [f"for (j = 0u; j < {H}u; j++) {{", "    z[j] = nz[j];", "}"]
+    lines.append(f"n = n * {L}u; /* the block at the new rate */")
+    return _OpCode(head + fx.product_note(), fields, lines)
 
 
 def _decimating(op: PolyFirOp, f: str, head, fields, pre, body, post, pushed: int, y: str = "y"):
@@ -723,8 +781,13 @@ def _decimating(op: PolyFirOp, f: str, head, fields, pre, body, post, pushed: in
 
 def _rate_op(program: ChannelProgram, op: RateOp, f: str, src: str, D: str, i: int) -> _OpCode:
     if op.up > 1:
-        raise GeneratedCodeError(f"channel '{program.name}': op {i} inserts zeros (interpolation by {op.up}), which "
-                                 "generated code does not write yet; simulate it with coefc run")
+        L = op.up
+        zero = "0.0f" if D == "float" else "0"
+        body = [f"const {D} v = {src}[t];"] + [f"out[t * {L}u + {p}u] = {zero};" for p in range(L - 1, 0, -1)]
+        body.append(f"out[t * {L}u] = v;")
+        lines = [f"for (t = n; t-- > 0u;) {{", *_indent(body, 4), "}", f"n = n * {L}u; /* the block at the new rate */"]
+        return _OpCode([f"insert {L - 1} zeros after each sample (no image filter)", _BACKWARDS.format(L=L).replace(
+            "output t*{L}+p".format(L=L), f"output t*{L}+p")], [], lines)
     M = op.down
     fields = [("uint32_t", f"{f}_ph", 0, f"input phase 0 .. {M - 1}; a sample is kept at 0")]
     body = ["if (ph == 0u) {", "    out[o] = x;", "    o++;", "}", f"ph = (ph + 1u == {M}u) ? 0u : ph + 1u;"]
@@ -831,6 +894,29 @@ def _fields_sorted(ops: list[_OpCode]) -> list[dict]:
     return rows
 
 
+def interpolation(ops) -> int:
+    """The product of the ``up`` factors of a channel's ops (1: none)."""
+    m = 1
+    for op in ops:
+        if isinstance(op, (PolyFirOp, RateOp)):
+            m *= op.up
+    return m
+
+
+def _room(ops) -> int:
+    """The output array's room in input-block lengths: the largest rate ratio after any op, rounded
+    up (every op works in place in the output array; with blocks of a multiple of the decimation
+    every length is exact)."""
+    from fractions import Fraction
+
+    r, most = Fraction(1), Fraction(1)
+    for op in ops:
+        if isinstance(op, (PolyFirOp, RateOp)):
+            r *= Fraction(op.up, op.down)
+            most = max(most, r)
+    return -(-most.numerator // most.denominator)
+
+
 def _hz(v: float) -> str:
     return str(int(v)) if float(v).is_integer() else repr(float(v))
 
@@ -869,8 +955,11 @@ def render_kernel(*, programs, names: CNames, source: str, banner: list[str], he
             "uses_state": bool(fields),
             "ops": [{"comment": o.comment, "lines": o.lines} for o in ops],
             "golden_lines": _lines(golden_outs[i]) if golden_inputs else [],
-            # multirate: the decimation M (blocks of a multiple of M samples, n / M out) and the rates
+            # multirate: the decimation M (blocks of a multiple of M samples, n / M out), the
+            # interpolation L (n L / M out), the room the output array needs (n R samples) and the rates
             "decim": decimation(p.ops),
+            "interp": interpolation(p.ops),
+            "room": _room(p.ops),
             "golden_len": len(golden_outs[i]) if golden_inputs else 0,
             "rates": (f"{_hz(p.sample_rate_hz)} Hz in, {_hz(p.output_rate_hz)} Hz out"
                       if p.output_rate_hz != p.sample_rate_hz else ""),
