@@ -489,3 +489,122 @@ def test_l1_bound_of_a_polyphase_node_is_reached_on_a_kept_sample():
     bound = float(np.sum(np.abs(h))) * top
     assert abs(y[K // 2] - bound) <= 1.0 + 1e-9 * bound
     assert np.all(np.abs(y) <= bound + 1.0)
+
+
+# ---------------------------------------------------------------- half-band filters (method = "halfband")
+
+HB = """name = "hb"
+sample_rate_hz = {fs}
+
+[implementation]
+target = "{target}"
+scaling = "{scaling}"
+
+[[channel]]
+name = "c"
+stages = [
+  {stages}
+]
+"""
+FILTER = ('{{ kind = "fir-lowpass", method = "halfband", passband_hz = 20000, stopband_hz = 28000, '
+          'attenuation_db = {att} }},')
+
+
+def _hb(tmp_path, target="mcu32", scaling="l1", att=90, rate="decimate"):
+    import coefc
+
+    p = tmp_path / f"hb_{target}_{scaling}_{rate}.toml"
+    fir = FILTER.format(att=att).replace("{{", "{").replace("}}", "}")
+    rc = '{ kind = "%s", factor = 2 },' % rate
+    stages = f"{fir}\n  {rc}" if rate == "decimate" else f"{rc}\n  {fir}"
+    p.write_text(HB.format(target=target, scaling=scaling, fs=96000 if rate == "decimate" else 48000,
+                           stages=stages))
+    return coefc.load(p).design()
+
+
+@pytest.mark.parametrize("n_taps", [3, 7, 11, 23, 43, 75])
+def test_halfband_design_has_every_other_tap_zero_and_the_centre_one_half(n_taps):
+    # A half-band filter of N = 4k + 3 taps: h[c + 2m] = 0 for m != 0 and h[c] = 1/2, c = (N - 1)/2
+    # (Vaidyanathan 1993, sec. 4.6.1; from memory); hence H(f) + H(fs/2 - f) = 1 for the zero-phase
+    # amplitudes (the same source).
+    from coefc.design.fir import halfband_taps
+
+    h = halfband_taps(n_taps, 9000.0, 48000.0)
+    c = (n_taps - 1) // 2
+    zero = [j for j in range(n_taps) if (j - c) % 2 == 0 and j != c]
+    assert len(zero) == (n_taps - 3) // 2 and all(h[j] == 0.0 for j in zero)  # exactly, not nearly
+    assert h[c] == 0.5 and h[0] != 0.0 and np.array_equal(h, h[::-1])
+    w = np.linspace(0, np.pi, 257)
+    amp = lambda f: np.real(np.exp(1j * f[:, None] * (np.arange(n_taps) - c)) @ h)  # noqa: E731
+    assert np.allclose(amp(w) + amp(np.pi - w), 1.0, atol=1e-12)
+
+
+@pytest.mark.parametrize("n_taps", [11, 23])
+def test_halfband_trick_equals_a_direct_parks_mcclellan_design(n_taps):
+    # Reference: scipy.signal.remez of the full length with the symmetric bands [0, fp], [fs/2 - fp, fs/2]
+    # and equal weights is the same minimax half-band filter (Vaidyanathan and Nguyen 1987; from memory).
+    from scipy import signal
+    from coefc.design.fir import halfband_taps
+
+    fs, fp = 96000.0, 20000.0
+    direct = signal.remez(n_taps, [0, fp, fs / 2 - fp, fs / 2], [1, 0], fs=fs)
+    assert np.max(np.abs(halfband_taps(n_taps, fp, fs) - direct)) < 1e-9
+
+
+@pytest.mark.parametrize("target", ["mcu16", "mcu32", "dsp24"])
+@pytest.mark.parametrize("scaling", ["none", "l1"])
+def test_halfband_zero_taps_stay_exactly_zero_when_realised(tmp_path, target, scaling):
+    # quantisation keeps the zero taps zero (round(0) = 0 in every rounding mode) and the polyphase op
+    # keeps them; the cost figures count only the non-zero taps
+    from coefc.emit.codegen import cost_of
+
+    design = _hb(tmp_path, target, scaling, att=70 if target == "mcu16" else 90)
+    prog = design.realise().programs[0]
+    op = next(o for o in prog.ops if isinstance(o, PolyFirOp))
+    n, c = len(op.taps), (len(op.taps) - 1) // 2
+    assert n % 4 == 3 and op.down == 2
+    assert all(op.taps[j] == 0 for j in range(n) if (j - c) % 2 == 0 and j != c)
+    assert all(op.taps[j] != 0 for j in range(0, n, 2)) and op.taps[c] != 0
+    only = ChannelProgram("o", prog.sample_rate_hz, prog.arithmetic, (op,))
+    nonzero_pairs = (n + 1) // 4 + 1  # (k + 1) folded pairs and the centre tap, N = 4k + 3
+    assert cost_of(only)["muls_per_sample"] == -(-nonzero_pairs // 2)
+
+
+def test_halfband_decimation_matches_scipy_and_the_exact_model(tmp_path):
+    # float side: the realised taps through scipy.signal.upfirdn(h, x, down=2) and
+    # scipy.signal.resample_poly(x, 1, 2, window=h) (the reference library) equal the engine's output to
+    # within the output rounding; integer side: the engine equals tests/exact_model.py
+    from scipy import signal
+
+    prog = _hb(tmp_path, "mcu32", "none").realise().programs[0]
+    assert len(prog.ops) == 1
+    op = prog.ops[0]
+    fc = prog.arithmetic.final_shift(op.shift)
+    x = np.random.default_rng(3).integers(-(1 << 29), 1 << 29, size=400)
+    y = sim.simulate(prog, x)
+    assert y.tolist() == exact_model.run_program(prog, x)[0]
+    h = np.array(op.taps, dtype=float) / 2.0 ** fc
+    ref = signal.upfirdn(h, x.astype(float), down=2)[: len(y)]
+    assert np.max(np.abs(ref - y)) <= 0.5 + 1e-6
+    # scipy.signal.resample_poly(x, 1, 2, window=h) removes the filter's delay c = (N - 1)/2 (odd for
+    # N = 4k + 3) after padding h with one leading zero: its i-th output is the full-rate convolution at
+    # 2i + c, which is the engine's output (i + (c + 1)/2) for the input delayed by one sample
+    c = (len(h) - 1) // 2
+    y1 = sim.simulate(prog, np.concatenate([[0], x]))
+    rp = signal.resample_poly(x.astype(float), 1, 2, window=h)
+    m = len(y1) - (c + 1) // 2
+    assert m > 150
+    assert np.max(np.abs(rp[:m] - y1[(c + 1) // 2:])) <= 0.5 + 1e-6
+
+
+def test_halfband_interpolation_integers_equal_the_exact_model(tmp_path):
+    # interpolation by 2 with a half-band image filter (the gain 2 of zero insertion in its taps):
+    # the engine's integers equal the exact model's; every other tap of the op is still zero
+    prog = _hb(tmp_path, "mcu32", "l1", rate="interpolate").realise().programs[0]
+    x = np.random.default_rng(8).integers(-(1 << 31), 1 << 31, size=300)
+    y = sim.simulate(prog, x)
+    assert len(y) == 600
+    assert y.tolist() == exact_model.run_program(prog, x)[0]
+    op = next(o for o in prog.ops if isinstance(o, PolyFirOp))
+    c = (len(op.taps) - 1) // 2
+    assert op.up == 2 and all(op.taps[j] == 0 for j in range(len(op.taps)) if (j - c) % 2 == 0 and j != c)
