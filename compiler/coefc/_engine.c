@@ -223,7 +223,15 @@ static PyObject *py_fir(PyObject *self, PyObject *args)
     if (!idx) { PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&tb); return NULL; }
     const Py_ssize_t nnz = st[1];
     Py_BEGIN_ALLOW_THREADS
-    for (Py_ssize_t i = 0; i < n; i++) {
+    if (fast && nnz == nt) { /* no zero tap: the plain loop (no index table) */
+        for (Py_ssize_t i = 0; i < n; i++) {
+            Py_ssize_t m = i + 1 < nt ? i + 1 : nt;
+            int64_t s = 0;
+            const int64_t *xp = x + i;
+            for (Py_ssize_t j = 0; j < m; j++) s += t[j] * xp[-j];
+            y[i] = fit(rshift(afinish(s, &ar, &aovf), &ar), &ar, &ovf);
+        }
+    } else for (Py_ssize_t i = 0; i < n; i++) {
         int64_t acc;
         if (fast) {
             int64_t s = 0;
@@ -280,7 +288,18 @@ static PyObject *py_fir_rate(PyObject *self, PyObject *args)
         Py_ssize_t ph = r % up;                    /* the taps meeting a non-zero u sample: kk = ph mod up */
         Py_ssize_t q0 = st[ph], q1 = st[ph + 1];
         int64_t acc;
-        if (fast) {
+        if (fast && up == 1 && q1 == nt) { /* decimation, no zero tap: the plain FIR sum at the kept sample */
+            int64_t s = 0;
+            const int64_t *xp = x + r;
+            Py_ssize_t m = r + 1 < nt ? r + 1 : nt;
+            for (Py_ssize_t j = 0; j < m; j++) s += t[j] * xp[-j];
+            acc = afinish(s, &ar, &aovf);
+        } else if (fast && up == 1) { /* decimation: the non-zero taps' sum at the kept sample */
+            int64_t s = 0;
+            const int64_t *xp = x + r;
+            for (Py_ssize_t q = q0; q < q1 && idx[q] <= r; q++) s += t[idx[q]] * xp[-idx[q]];
+            acc = afinish(s, &ar, &aovf);
+        } else if (fast) {
             int64_t s = 0;
             for (Py_ssize_t q = q0; q < q1 && idx[q] <= r; q++) s += t[idx[q]] * x[(r - idx[q]) / up];
             acc = afinish(s, &ar, &aovf);
