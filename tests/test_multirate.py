@@ -223,6 +223,7 @@ def _interpolating_programs(arith, seed=4):
     taps = tuple(_coef(arith, t, sh) for t in rng.uniform(-0.4, 0.4, 23))
     hb = _halfband_ints(arith, 43, sh)
     irregular = tuple(0 if j % 3 == 1 or j in (4, 11) else t for j, t in enumerate(taps + taps))
+    sym21 = taps[:10] + (taps[10],) + taps[:10][::-1]
     return [
         ChannelProgram("int2", 48000.0, arith, (PolyFirOp(taps[:11], sh, up=2),)),
         ChannelProgram("int3", 48000.0, arith, (PolyFirOp(taps, sh, up=3), GainOp(_coef(arith, 1.5, sh), sh))),
@@ -232,6 +233,9 @@ def _interpolating_programs(arith, seed=4):
         ChannelProgram("zeros2", 48000.0, arith, (RateOp(up=2), _section(rng, arith, "df1", 0))),
         ChannelProgram("up2dn3", 48000.0, arith, (PolyFirOp(taps, sh, up=2), PolyFirOp(hb, sh, down=3))),
         ChannelProgram("hbdec", 96000.0, arith, (PolyFirOp(hb, sh, down=2, symmetric=True),)),
+        # short symmetric branches written out folded; by 3 the middle branch is symmetric with a middle tap
+        ChannelProgram("hb11", 48000.0, arith, (PolyFirOp(_halfband_ints(arith, 11, sh), sh, up=2, symmetric=True),)),
+        ChannelProgram("sym3", 48000.0, arith, (PolyFirOp(sym21, sh, up=3, symmetric=True),)),
         ChannelProgram("odddec", 96000.0, arith, (PolyFirOp(irregular, sh, down=2),)),
     ]
 
@@ -259,6 +263,8 @@ def test_generated_code_interpolates_bit_exact_at_both_rates(target_name, tmp_pa
     assert "48000 Hz in, 32000 Hz out" in h and "n a multiple of 3" in h
     # the half-band's zero taps are skipped: the decimator's folded loop runs over every other pair
     assert "2u * j" in c and "11 non-zero taps pairs of 21" in c
+    assert "branch 0: symmetric, 3 multiplies (pairs folded)" in c  # hb11: 6 taps, 3 pairs
+    assert "branch 1: symmetric, 4 multiplies (pairs folded)" in c  # sym3: 7 taps, 3 pairs and the middle
     for cc in compilers():
         flags = ("-O1", "-fsanitize=undefined", "-fno-sanitize-recover=all") if ubsan_works(cc) else ("-O2",)
         rc, out = run_generated(tmp_path / cc, [("irate", files)], _native(cc, *flags))

@@ -205,8 +205,9 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
     padding.  In a multirate channel the figures are per *input* sample, rounded
     up: a polyphase FIR decimating by M costs N/M multiplies per input sample
     (folded ceil(N/2)/M), one interpolating by L costs N per input sample (each input
-    meets every tap once, in one of the L branches; adds N - L), and an op after a rate
-    change counts its work times its rate over the input rate.
+    meets every tap once, in one of the L branches; adds N - L; a branch whose taps are
+    symmetric is folded), and an op after a rate change counts its work times its rate
+    over the input rate.
     """
     from fractions import Fraction
 
@@ -225,9 +226,12 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
                     mr += per / op.down * m_
                     ar_ += per / op.down * a_
                 else:  # interpolating: each input meets every non-zero tap once, in one of the L branches
-                    nz = sum(1 for t in op.taps if t)
-                    mr += per * nz
-                    ar_ += per * max(0, nz - op.up)
+                    c_ = 0
+                    for b in _branches(op.taps, op.up):
+                        bm, ba, bc = _fir_counts(b, fixed and _branch_folds(b, program.arithmetic.product_shift))
+                        mr += per * bm
+                        ar_ += per * ba
+                        c_ += bc
                 coefs += c_
                 state += 2 * n * data_bytes + 8
             else:
@@ -711,6 +715,17 @@ _BACKWARDS = ("the block is processed from its last input backwards, so in and o
               "output t*{L}+p is written after every input up to t is read")
 
 
+def _branches(taps, L: int) -> list[list]:
+    """The L polyphase branches of *taps*: branch p holds ``taps[p + j*L]``, j = 0, 1, ..."""
+    return [list(taps[p::L]) for p in range(L)]
+
+
+def _branch_folds(branch, product_shift: int) -> bool:
+    """A branch whose taps read the same backwards is folded (a pair's two samples added first);
+    rounded products do not fold."""
+    return not product_shift and len(branch) > 1 and list(branch) == list(branch)[::-1]
+
+
 def _interpolating(fx: "_Fixed", op: PolyFirOp, f: str, src: str, D: str) -> _OpCode:
     """A polyphase FIR interpolating by ``L = op.up`` (coefc.program's polyfir with ``M = 1``):
     ``y[t*L + p] = fit(round(sum_j h[p + j*L] x[t - j]))``, the L branches of ``J = ceil(N/L)``
@@ -740,20 +755,43 @@ def _interpolating(fx: "_Fixed", op: PolyFirOp, f: str, src: str, D: str) -> _Op
     body = [f"{D} win[{J}]; /* x[t], x[t-1], .. x[t-{J - 1}] */", f"for (j = 0u; j < {J}u; j++) {{",
             f"    win[j] = ((size_t)j <= t) ? {src}[t - j] : z[(size_t)j - t - 1u];", "}"]
     tables: list[str] = []
-    for p in range(L):
-        live = [(j, taps[p + j * L]) for j in range(J) if p + j * L < n and taps[p + j * L]]
-        if len(live) <= UNROLL_TAPS:
+    signed_pre = C == 64 and fx.d + 1 + fx.cb <= 64
+
+    def pair(hx: str, a: str, b: str) -> str:
+        if signed_pre:
+            return f"(uint64_t)((int64_t){hx} * ((int64_t)win[{a}] + (int64_t)win[{b}]))"
+        return f"({U}){hx} * (({U})win[{a}] + ({U})win[{b}])"
+
+    for p, branch in enumerate(_branches(taps, L)):
+        Jp = len(branch)
+        folded = _branch_folds(branch, fx.P)
+        live = [(j, c) for j, c in enumerate(branch[:Jp // 2] if folded else branch) if c]
+        middle = branch[Jp // 2] if folded and Jp % 2 else 0
+        lit = lambda c: _s(c, 64 if signed_pre or C == 64 else 32)  # noqa: E731
+        if folded:
+            inner = [f"/* branch {p}: symmetric, {len(live) + bool(middle)} multiplies (pairs folded) */",
+                     f"{U} acc = 0u;"]
+        if len(live) <= UNROLL_TAPS and folded:
+            inner += [f"acc += {pair(lit(c), f'{j}u', f'{Jp - 1 - j}u')};" for j, c in live]
+        elif len(live) <= UNROLL_TAPS:
             inner = fx.sum_lines("acc", C, [(1, c, f"win[{j}u]") for j, c in live])
         else:
             ct = "int32_t" if all(-(1 << 31) <= c < (1 << 31) for _, c in live) else "int64_t"
-            tables += [f"static const {ct} h{p}[{len(live)}] = {{ /* branch {p}: its non-zero taps */"]
+            tables += [f"static const {ct} h{p}[{len(live)}] = {{ /* branch {p}: its non-zero taps"
+                       f"{' (first half)' if folded else ''} */"]
             tables += ["    " + ", ".join(_s(c, 64 if ct == "int64_t" else 32) for _, c in live[i:i + 6]) + ","
                        for i in range(0, len(live), 6)]
             tables.append("};")
             jx, olines = _tap_index([j for j, _ in live], f"hpos{p}")
             tables += olines
-            inner = [f"{U} acc = 0u;", f"for (j = 0u; j < {len(live)}u; j++) {{",
-                     f"    acc += {fx.prodv(f'win[{jx}]', f'h{p}[j]', C)};", "}"]
+            if folded:
+                inner += [f"for (j = 0u; j < {len(live)}u; j++) {{",
+                          f"    acc += {pair(f'h{p}[j]', jx, f'{Jp - 1}u - {jx}')};", "}"]
+            else:
+                inner = [f"{U} acc = 0u;", f"for (j = 0u; j < {len(live)}u; j++) {{",
+                         f"    acc += {fx.prodv(f'win[{jx}]', f'h{p}[j]', C)};", "}"]
+        if middle:
+            inner.append(f"acc += {fx.prod(f'win[{Jp // 2}u]', middle, C)}; /* the middle tap */")
         inner += fx.finish("acc", k, C, "y") + [f"out[t * {L}u + {p}u] = y;"]
         body += ["{", *_indent(inner, 4), "}"]
     lines = tables + lines + [f"for (t = n; t-- > 0u;) {{", *_indent(body, 4), "}"]
