@@ -314,15 +314,26 @@ def test_generated_code_catches_a_wrong_interpolated_golden_value(tmp_path):
     assert rc != 0 and ": ok" not in out, out
 
 
-def test_float32_interpolation_code_is_refused_in_one_line():
-    from c_build import generated_files
-    from coefc.emit.codegen import GeneratedCodeError
+def test_float32_interpolation_code_is_bit_exact(tmp_path):
+    # float32: every product and sum rounded in the engine's order (coefc.program), bits compared
+    from c_build import _coef, compilers, generated_files, run_generated
     from coefc.targetspec import find_target
+    from test_codegen import _native
 
     ar = find_target("float32").arithmetic
-    prog = ChannelProgram("i", 48000.0, ar, (PolyFirOp((0.25, 0.5, 0.25), up=2),))
-    with pytest.raises(GeneratedCodeError, match="interpolates by 2.*fixed-point code does"):
-        generated_files([prog], "float32", "fint", vectors=16)
+    rng = np.random.default_rng(11)
+    taps = tuple(_coef(ar, t) for t in rng.uniform(-0.5, 0.5, 23))
+    hb = tuple(_coef(ar, float(t) * 2) for t in __import__("coefc.design.fir", fromlist=["x"]).halfband_taps(
+        43, 9000.0, 48000.0))
+    progs = [ChannelProgram("f2", 48000.0, ar, (PolyFirOp(taps[:7], up=2),)),
+             ChannelProgram("f3", 48000.0, ar, (GainOp(_coef(ar, 0.5), 0), PolyFirOp(taps, up=3))),
+             ChannelProgram("fhb", 48000.0, ar, (PolyFirOp(hb, up=2, symmetric=True),)),
+             ChannelProgram("fz", 48000.0, ar, (RateOp(up=2), PolyFirOp(taps, down=2)))]
+    files = generated_files(progs, "float32", "fint", vectors=120)
+    assert "polyphase FIR interpolating by 3, 23 taps in 3 branches (float32)" in files["fint.c"]
+    for cc in compilers():
+        rc, out = run_generated(tmp_path / cc, [("fint", files)], _native(cc, "-O2"))
+        assert rc == 0 and out.count(": ok") == 1, out
 
 
 def test_generated_code_catches_a_wrong_decimated_golden_value(tmp_path):

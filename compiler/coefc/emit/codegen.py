@@ -705,12 +705,6 @@ def _tap_index(js: list[int], name: str) -> tuple[str, str]:
     return f"{name}[j]", lines
 
 
-def _no_interpolation(program: ChannelProgram, op, i: int) -> None:
-    if isinstance(op, PolyFirOp) and op.up > 1:
-        raise GeneratedCodeError(f"channel '{program.name}': op {i} interpolates by {op.up}, which generated "
-                                 "float32 code does not write yet (fixed-point code does); simulate it with coefc run")
-
-
 _BACKWARDS = ("the block is processed from its last input backwards, so in and out may be the same array: "
               "output t*{L}+p is written after every input up to t is read")
 
@@ -743,17 +737,7 @@ def _interpolating(fx: "_Fixed", op: PolyFirOp, f: str, src: str, D: str) -> _Op
             f"y[t*{L} + p] = fit(round(sum_j h[p + {L}j] x[t - j] / 2^{k})), p = 0 .. {L - 1}; "
             f"{sum(1 for c in taps if c)} non-zero taps (zero taps skipped)",
             _BACKWARDS.format(L=L)]
-    H = J - 1  # inputs kept from the previous block
-    fields = [(D, f"{f}_z", max(H, 1), f"the last {H} inputs, newest first" if H else "unused")]
-    lines = [f"{D} *const z = s->{f}_z;", "uint32_t j;"]
-    if H:
-        lines += [f"{D} nz[{H}]; /* the state after this block, saved before out is written */",
-                  f"for (j = 0u; j < {H}u; j++) {{",
-                  f"    nz[j] = ((size_t)j < n) ? {src}[n - 1u - j] : z[(size_t)j - n];", "}"]
-    else:
-        lines.append("(void)z;")
-    body = [f"{D} win[{J}]; /* x[t], x[t-1], .. x[t-{J - 1}] */", f"for (j = 0u; j < {J}u; j++) {{",
-            f"    win[j] = ((size_t)j <= t) ? {src}[t - j] : z[(size_t)j - t - 1u];", "}"]
+    fields, lines, body, post = _window(f, src, D, J)
     tables: list[str] = []
     signed_pre = C == 64 and fx.d + 1 + fx.cb <= 64
 
@@ -794,11 +778,64 @@ def _interpolating(fx: "_Fixed", op: PolyFirOp, f: str, src: str, D: str) -> _Op
             inner.append(f"acc += {fx.prod(f'win[{Jp // 2}u]', middle, C)}; /* the middle tap */")
         inner += fx.finish("acc", k, C, "y") + [f"out[t * {L}u + {p}u] = y;"]
         body += ["{", *_indent(inner, 4), "}"]
-    lines = tables + lines + [f"for (t = n; t-- > 0u;) {{", *_indent(body, 4), "}"]
-    if H:
-        lines += [f"for (j = 0u; j < {H}u; j++) {{", "    z[j] = nz[j];", "}"]
+    lines = tables + lines + ["for (t = n; t-- > 0u;) {", *_indent(body, 4), "}"] + post
     lines.append(f"n = n * {L}u; /* the block at the new rate */")
     return _OpCode(head + fx.product_note(), fields, lines)
+
+
+def _window(f: str, src: str, D: str, J: int) -> tuple[list, list, list, list]:
+    """(fields, lines before the backwards loop, lines opening its body, lines after it) of an
+    interpolating op: the J - 1 inputs kept from the previous block (newest first), the state after
+    this block saved before ``out`` is written, and the window ``win`` of x[t] .. x[t - J + 1]."""
+    H = J - 1
+    fields = [(D, f"{f}_z", max(H, 1), f"the last {H} inputs, newest first" if H else "unused")]
+    pre = [f"{D} *const z = s->{f}_z;", "uint32_t j;"]
+    post = []
+    if H:
+        pre += [f"{D} nz[{H}]; /* the state after this block, saved before out is written */",
+                f"for (j = 0u; j < {H}u; j++) {{",
+                f"    nz[j] = ((size_t)j < n) ? {src}[n - 1u - j] : z[(size_t)j - n];", "}"]
+        post = [f"for (j = 0u; j < {H}u; j++) {{", "    z[j] = nz[j];", "}"]
+    else:
+        pre.append("(void)z;")
+    body = [f"{D} win[{J}]; /* x[t], x[t-1], .. x[t-{J - 1}] */", f"for (j = 0u; j < {J}u; j++) {{",
+            f"    win[j] = ((size_t)j <= t) ? {src}[t - j] : z[(size_t)j - t - 1u];", "}"]
+    return fields, pre, body, post
+
+
+def _interpolating_float(op: PolyFirOp, f: str, src: str) -> _OpCode:
+    """A float32 polyphase FIR interpolating by ``L``: output ``t L + p`` is ``acc = h[p] x[t]``, then
+    ``acc = acc + h[p + jL] x[t - j]`` for j = 1, 2, ... (every step rounded; the engine's order, the
+    plain fir's: inputs before the first are 0.0), run backwards through the block as the fixed-point
+    code."""
+    from .header import _float_literal as flt
+
+    L = op.up
+    taps = list(op.taps)
+    J = max(1, -(-len(taps) // L))
+    fields, pre, body, post = _window(f, src, "float", J)
+    tables: list[str] = []
+    for p, branch in enumerate(_branches(taps, L)):
+        if not branch:
+            inner = [f"out[t * {L}u + {p}u] = 0.0f; /* no tap in this branch */"]
+        elif len(branch) <= UNROLL_TAPS:
+            inner = [f"float acc = {flt(branch[0])} * win[0];", "float q;"]
+            for j, c in enumerate(branch[1:], 1):
+                inner += [f"q = {flt(c)} * win[{j}];", "acc = acc + q;"]
+            inner.append(f"out[t * {L}u + {p}u] = acc;")
+        else:
+            tables += [f"static const float h{p}[{len(branch)}] = {{ /* branch {p} */"]
+            tables += ["    " + ", ".join(flt(c) for c in branch[i:i + 4]) + "," for i in range(0, len(branch), 4)]
+            tables.append("};")
+            inner = [f"float acc = h{p}[0] * win[0];", f"for (j = 1u; j < {len(branch)}u; j++) {{",
+                     f"    const float q = h{p}[j] * win[j];", "    acc = acc + q;", "}",
+                     f"out[t * {L}u + {p}u] = acc;"]
+        body += ["{", *_indent(inner, 4), "}"]
+    head = [f"polyphase FIR interpolating by {L}, {len(taps)} taps in {L} branches (float32): y[t*{L} + p] = "
+            f"h[p] x[t] + h[p + {L}] x[t-1] + ... (each step rounded)", _BACKWARDS.format(L=L)]
+    lines = tables + pre + ["for (t = n; t-- > 0u;) {", *_indent(body, 4), "}"] + post
+    lines.append(f"n = n * {L}u; /* the block at the new rate */")
+    return _OpCode(head, fields, lines)
 
 
 def _decimating(op: PolyFirOp, f: str, head, fields, pre, body, post, pushed: int, y: str = "y"):
@@ -885,8 +922,9 @@ def _float_ops(program: ChannelProgram) -> list[_OpCode]:
             else:
                 raise GeneratedCodeError(f"channel '{program.name}': float32 has no {op.structure} sections")
             out.append(_OpCode(head, fields, pre + _loop(src, body, D) + post))
+        elif isinstance(op, PolyFirOp) and op.up > 1:
+            out.append(_interpolating_float(op, f, src))
         elif isinstance(op, (FirOp, PolyFirOp)):
-            _no_interpolation(program, op, i)
             taps = [flt(v) for v in op.taps]
             n = len(taps)
             head = [f"FIR, {n} taps: acc = t0 x[n]; acc += t_j x[n-j] for j = 1 .. {n - 1} (each step rounded); "
