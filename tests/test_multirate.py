@@ -625,3 +625,14 @@ def test_halfband_interpolation_integers_equal_the_exact_model(tmp_path):
     op = next(o for o in prog.ops if isinstance(o, PolyFirOp))
     c = (len(op.taps) - 1) // 2
     assert op.up == 2 and all(op.taps[j] == 0 for j in range(len(op.taps)) if (j - c) % 2 == 0 and j != c)
+
+
+def test_halfband_search_finds_the_shortest_length(tmp_path):
+    # the length found meets attenuation_db + margin_db measured on the dense grid and 4 taps fewer does not
+    from coefc.design.fir import halfband_taps, measure
+
+    d = _hb(tmp_path, "mcu32", "none", att=90)
+    n = d.channels[0].stages[0].taps
+    edges, passbands = [0, 20000, 28000, 48000], [True, False]
+    assert measure(halfband_taps(n, 20000.0, 96000.0), edges, passbands, 96000.0)[1] >= 90.5
+    assert measure(halfband_taps(n - 4, 20000.0, 96000.0), edges, passbands, 96000.0)[1] < 90.5

@@ -436,7 +436,10 @@ def _design_halfband(ctx: StageContext, wp: float, ws: float, att: float, margin
     need = f"{att:g} dB + {margin:g} dB margin" if margin else f"{att:g} dB"
 
     def trial(n_taps: int):
-        h = halfband_taps(n_taps, wp, fs)
+        try:
+            h = halfband_taps(n_taps, wp, fs)
+        except (ValueError, np.linalg.LinAlgError):
+            return None
         if not np.all(np.isfinite(h)):
             return None
         return (h, *measure(h, edges, passbands, fs))
@@ -456,12 +459,16 @@ def _design_halfband(ctx: StageContext, wp: float, ws: float, att: float, margin
             delta = min(delta, (10 ** (rp_req / 20) - 1) / (10 ** (rp_req / 20) + 1))
         est = kaiser_equiripple_estimate(delta, delta, edge - wp, fs)
         n = max(3, est - (est - 3) % 4)
+        if n > MAX_FIR_TAPS:
+            raise ctx.error(f"the requirements need about {est} taps, above the limit of {MAX_FIR_TAPS}; widen the "
+                            "transition band (lower passband_hz) or lower attenuation_db", "stopband_hz")
+        cap = min(MAX_FIR_TAPS, max(n + 64, n + n // 4))  # as for Kaiser designs: a quarter beyond the estimate
         t = trial(n)
         while not passes(t):
             n += 4
-            if n > MAX_FIR_TAPS:
-                raise ctx.error(f"no half-band design up to {MAX_FIR_TAPS} taps reaches {need}; widen the "
-                                "transition band (lower passband_hz) or lower attenuation_db", "attenuation_db")
+            if n > cap:
+                raise ctx.error(f"no half-band design up to {cap} taps reaches {need}; widen the transition band "
+                                "(lower passband_hz) or lower attenuation_db", "attenuation_db")
             t = trial(n)
         while n > 3:
             shorter = trial(n - 4)
