@@ -317,14 +317,14 @@ def test_generated_code_catches_a_wrong_interpolated_golden_value(tmp_path):
 def test_float32_interpolation_code_is_bit_exact(tmp_path):
     # float32: every product and sum rounded in the engine's order (coefc.program), bits compared
     from c_build import _coef, compilers, generated_files, run_generated
+    from coefc.design.fir import halfband_taps
     from coefc.targetspec import find_target
     from test_codegen import _native
 
     ar = find_target("float32").arithmetic
     rng = np.random.default_rng(11)
     taps = tuple(_coef(ar, t) for t in rng.uniform(-0.5, 0.5, 23))
-    hb = tuple(_coef(ar, float(t) * 2) for t in __import__("coefc.design.fir", fromlist=["x"]).halfband_taps(
-        43, 9000.0, 48000.0))
+    hb = tuple(_coef(ar, float(t) * 2) for t in halfband_taps(43, 9000.0, 48000.0))
     progs = [ChannelProgram("f2", 48000.0, ar, (PolyFirOp(taps[:7], up=2),)),
              ChannelProgram("f3", 48000.0, ar, (GainOp(_coef(ar, 0.5), 0), PolyFirOp(taps, up=3))),
              ChannelProgram("fhb", 48000.0, ar, (PolyFirOp(hb, up=2, symmetric=True),)),
