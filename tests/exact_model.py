@@ -153,7 +153,8 @@ class Model:
         k = self._k(shift)
         ys, no, na = [], 0, 0
         for n in range(len(x)):
-            total = sum(self.q(t, x[n - j]) for j, t in enumerate(taps) if n - j >= 0)
+            # zero taps (a half-band filter's every other tap) are skipped: q(0 * v) = 0 in every rounding mode
+            total = sum(self.q(t, x[n - j]) for j, t in enumerate(taps) if n - j >= 0 and t != 0)
             acc, w = self._acc(total)
             yn, _, bad = self._out(acc, k)
             ys.append(yn)
@@ -194,7 +195,8 @@ class Model:
     def polyfir(self, x, taps, shift, down, up):
         """The polyphase FIR of coefc.program's docstring, written as stated there: the input
         upsampled by *up* (zeros between), every product of the taps summed, the sum taken at
-        output index i from u[i*down - k]; no branch decomposition (that is the engine's business)."""
+        output index i from u[i*down - k]; no branch decomposition (that is the engine's business).
+        Zero taps (a half-band filter's every other tap) are skipped: a zero product adds nothing."""
         k = self.Fc - shift
         u = []
         for v in x:
@@ -202,7 +204,7 @@ class Model:
         n_out = -(-len(x) * up // down)
         ys, no, na = [], 0, 0
         for i in range(n_out):
-            total = sum(t * u[i * down - j] for j, t in enumerate(taps) if i * down - j >= 0)
+            total = sum(t * u[i * down - j] for j, t in enumerate(taps) if i * down - j >= 0 and t != 0)
             acc, w = self._acc(total)
             yn, _, bad = self._out(acc, k)
             ys.append(yn)

@@ -203,6 +203,139 @@ def test_generated_code_decimates_bit_exact_at_both_rates(target_name, tmp_path)
         assert "MISMATCH" not in out and "runtime error" not in out, out
 
 
+def _halfband_ints(arith, n_taps, sh, seed=5):
+    """Integer taps of a half-band low-pass of n_taps = 4k + 3 taps (coefc.design.fir.halfband_taps)."""
+    from c_build import _coef
+    from coefc.design.fir import halfband_taps
+
+    return tuple(_coef(arith, float(t), sh) for t in halfband_taps(n_taps, 9000.0, 48000.0))
+
+
+def _interpolating_programs(arith, seed=4):
+    """Interpolating channels: a polyphase FIR by 2 and 3 (short branches written out, long ones as
+    loops), a half-band by 2 (zero taps skipped, long branches), a gain in front (the interpolation
+    then works in place in the output array), a bare zero insertion before a section, and an
+    interpolation by 2 followed by a decimation by 3 (rate 2/3)."""
+    from c_build import _coef, _section
+
+    rng = np.random.default_rng(seed)
+    sh = 1
+    taps = tuple(_coef(arith, t, sh) for t in rng.uniform(-0.4, 0.4, 23))
+    hb = _halfband_ints(arith, 43, sh)
+    irregular = tuple(0 if j % 3 == 1 or j in (4, 11) else t for j, t in enumerate(taps + taps))
+    sym21 = taps[:10] + (taps[10],) + taps[:10][::-1]
+    return [
+        ChannelProgram("int2", 48000.0, arith, (PolyFirOp(taps[:11], sh, up=2),)),
+        ChannelProgram("int3", 48000.0, arith, (PolyFirOp(taps, sh, up=3), GainOp(_coef(arith, 1.5, sh), sh))),
+        ChannelProgram("hb2", 48000.0, arith, (GainOp(_coef(arith, 0.75, sh), sh),
+                                               PolyFirOp(hb, sh, up=2, symmetric=True))),
+        ChannelProgram("odd2", 48000.0, arith, (PolyFirOp(irregular, sh, up=2),)),
+        ChannelProgram("zeros2", 48000.0, arith, (RateOp(up=2), _section(rng, arith, "df1", 0))),
+        ChannelProgram("up2dn3", 48000.0, arith, (PolyFirOp(taps, sh, up=2), PolyFirOp(hb, sh, down=3))),
+        ChannelProgram("hbdec", 96000.0, arith, (PolyFirOp(hb, sh, down=2, symmetric=True),)),
+        # short symmetric branches written out folded; by 3 the middle branch is symmetric with a middle tap
+        ChannelProgram("hb11", 48000.0, arith, (PolyFirOp(_halfband_ints(arith, 11, sh), sh, up=2, symmetric=True),)),
+        ChannelProgram("sym3", 48000.0, arith, (PolyFirOp(sym21, sh, up=3, symmetric=True),)),
+        ChannelProgram("odddec", 96000.0, arith, (PolyFirOp(irregular, sh, down=2),)),
+    ]
+
+
+@pytest.mark.parametrize("target_name", ["mcu16", "mcu32", "dsp24"])
+def test_generated_code_interpolates_bit_exact_at_both_rates(target_name, tmp_path):
+    # golden vectors: the input at the input rate, each channel's output at its own rate (n L / M),
+    # computed by the engine; the engine's interpolation integers equal the exact model (below); blocks of
+    # 1..64 times M, every other one in place (the interpolation runs backwards through the block)
+    from c_build import compilers, generated_files, m32_works, run_generated, ubsan_works
+    from coefc.targetspec import find_target
+    from test_codegen import _native
+
+    target = find_target(target_name)
+    progs = _interpolating_programs(target.arithmetic)
+    for p in progs:  # the golden vectors' source agrees with the exact model
+        x = np.random.default_rng(7).integers(-(1 << (p.arithmetic.data.width - 1)),
+                                              1 << (p.arithmetic.data.width - 1), size=60)
+        assert sim.simulate(p, x).tolist() == exact_model.run_program(p, x)[0], p.name
+    files = generated_files(progs, target_name, "irate", vectors=240)
+    c, h = files["irate.c"], files["irate.h"]
+    assert "polyphase FIR interpolating by 3" in c and "n = n * 2u;" in c and "for (t = n; t-- > 0u;)" in c
+    assert "IRATE_INT3_INTERPOLATION 3" in h and "IRATE_UP2DN3_DECIMATION 3" in h
+    assert "48000 Hz in, 96000 Hz out" in h and "out must have room for n * 2 samples" in h
+    assert "48000 Hz in, 32000 Hz out" in h and "n a multiple of 3" in h
+    # the half-band's zero taps are skipped: the decimator's folded loop runs over every other pair
+    assert "2u * j" in c and "11 non-zero taps pairs of 21" in c
+    assert "branch 0: symmetric, 3 multiplies (pairs folded)" in c  # hb11: 6 taps, 3 pairs
+    assert "branch 1: symmetric, 4 multiplies (pairs folded)" in c  # sym3: 7 taps, 3 pairs and the middle
+    for cc in compilers():
+        flags = ("-O1", "-fsanitize=undefined", "-fno-sanitize-recover=all") if ubsan_works(cc) else ("-O2",)
+        rc, out = run_generated(tmp_path / cc, [("irate", files)], _native(cc, *flags))
+        assert rc == 0, out
+        assert "MISMATCH" not in out and "runtime error" not in out and out.count(": ok") == 1, out
+        if m32_works(cc):
+            rc, out = run_generated(tmp_path / f"{cc}32", [("irate", files)], _native(cc, "-O2", "-m32"))
+            assert rc == 0, out
+
+
+def test_generated_interpolation_on_other_machines(tmp_path):
+    """32-bit ARM and big-endian s390x under qemu-user, Cortex-M4 bare metal (as tests/test_codegen.py)."""
+    from c_build import CROSS, generated_files, run_generated
+    from coefc.targetspec import find_target
+
+    files = generated_files(_interpolating_programs(find_target("mcu32").arithmetic), "mcu32", "xrate", vectors=120)
+    ran = 0
+    for platform in CROSS:
+        if platform.missing():
+            continue
+        rc, out = run_generated(tmp_path / platform.name.split()[0], [("xrate", files)], platform)
+        assert rc == 0, f"{platform.name}:\n{out}"
+        if platform.runner is not None:
+            assert out.count(": ok") == 1, out
+        ran += 1
+    if not ran:
+        pytest.skip("no cross compiler or emulator installed")
+
+
+def test_generated_code_catches_a_wrong_interpolated_golden_value(tmp_path):
+    from c_build import compilers, generated_files, run_generated
+    from coefc.targetspec import find_target
+
+    from test_codegen import _native
+
+    progs = _interpolating_programs(find_target("mcu32").arithmetic)[:1]
+    files = generated_files(progs, "mcu32", "ibad", vectors=120)
+    c = files["ibad.c"]
+    key = "ibad_int2_golden_out[240] = {\n    "
+    start = c.index(key) + len(key)
+    start = c.index(",", start) + 2  # the second output value: the odd phase
+    end = c.index(",", start)
+    v = int(c[start:end])
+    c = c[:start] + str(v + 1 if v < 0 else v - 1) + c[end:]
+    rc, out = run_generated(tmp_path, [("ibad", dict(files, **{"ibad.c": c}))], _native(compilers()[0], "-O2"))
+    assert "compile failed" not in out
+    assert rc != 0 and ": ok" not in out, out
+
+
+def test_float32_interpolation_code_is_bit_exact(tmp_path):
+    # float32: every product and sum rounded in the engine's order (coefc.program), bits compared
+    from c_build import _coef, compilers, generated_files, run_generated
+    from coefc.design.fir import halfband_taps
+    from coefc.targetspec import find_target
+    from test_codegen import _native
+
+    ar = find_target("float32").arithmetic
+    rng = np.random.default_rng(11)
+    taps = tuple(_coef(ar, t) for t in rng.uniform(-0.5, 0.5, 23))
+    hb = tuple(_coef(ar, float(t) * 2) for t in halfband_taps(43, 9000.0, 48000.0))
+    progs = [ChannelProgram("f2", 48000.0, ar, (PolyFirOp(taps[:7], up=2),)),
+             ChannelProgram("f3", 48000.0, ar, (GainOp(_coef(ar, 0.5), 0), PolyFirOp(taps, up=3))),
+             ChannelProgram("fhb", 48000.0, ar, (PolyFirOp(hb, up=2, symmetric=True),)),
+             ChannelProgram("fz", 48000.0, ar, (RateOp(up=2), PolyFirOp(taps, down=2)))]
+    files = generated_files(progs, "float32", "fint", vectors=120)
+    assert "polyphase FIR interpolating by 3, 23 taps in 3 branches (float32)" in files["fint.c"]
+    for cc in compilers():
+        rc, out = run_generated(tmp_path / cc, [("fint", files)], _native(cc, "-O2"))
+        assert rc == 0 and out.count(": ok") == 1, out
+
+
 def test_generated_code_catches_a_wrong_decimated_golden_value(tmp_path):
     from c_build import compilers, generated_files, run_generated
     from coefc.targetspec import find_target
@@ -373,3 +506,133 @@ def test_l1_bound_of_a_polyphase_node_is_reached_on_a_kept_sample():
     bound = float(np.sum(np.abs(h))) * top
     assert abs(y[K // 2] - bound) <= 1.0 + 1e-9 * bound
     assert np.all(np.abs(y) <= bound + 1.0)
+
+
+# ---------------------------------------------------------------- half-band filters (method = "halfband")
+
+HB = """name = "hb"
+sample_rate_hz = {fs}
+
+[implementation]
+target = "{target}"
+scaling = "{scaling}"
+
+[[channel]]
+name = "c"
+stages = [
+  {stages}
+]
+"""
+FILTER = ('{{ kind = "fir-lowpass", method = "halfband", passband_hz = 20000, stopband_hz = 28000, '
+          'attenuation_db = {att} }},')
+
+
+def _hb(tmp_path, target="mcu32", scaling="l1", att=90, rate="decimate"):
+    import coefc
+
+    p = tmp_path / f"hb_{target}_{scaling}_{rate}.toml"
+    fir = FILTER.format(att=att).replace("{{", "{").replace("}}", "}")
+    rc = '{ kind = "%s", factor = 2 },' % rate
+    stages = f"{fir}\n  {rc}" if rate == "decimate" else f"{rc}\n  {fir}"
+    p.write_text(HB.format(target=target, scaling=scaling, fs=96000 if rate == "decimate" else 48000,
+                           stages=stages))
+    return coefc.load(p).design()
+
+
+@pytest.mark.parametrize("n_taps", [3, 7, 11, 23, 43, 75])
+def test_halfband_design_has_every_other_tap_zero_and_the_centre_one_half(n_taps):
+    # A half-band filter of N = 4k + 3 taps: h[c + 2m] = 0 for m != 0 and h[c] = 1/2, c = (N - 1)/2
+    # (Vaidyanathan 1993, sec. 4.6.1; from memory); hence H(f) + H(fs/2 - f) = 1 for the zero-phase
+    # amplitudes (the same source).
+    from coefc.design.fir import halfband_taps
+
+    h = halfband_taps(n_taps, 9000.0, 48000.0)
+    c = (n_taps - 1) // 2
+    zero = [j for j in range(n_taps) if (j - c) % 2 == 0 and j != c]
+    assert len(zero) == (n_taps - 3) // 2 and all(h[j] == 0.0 for j in zero)  # exactly, not nearly
+    assert h[c] == 0.5 and h[0] != 0.0 and np.array_equal(h, h[::-1])
+    w = np.linspace(0, np.pi, 257)
+    amp = lambda f: np.real(np.exp(1j * f[:, None] * (np.arange(n_taps) - c)) @ h)  # noqa: E731
+    assert np.allclose(amp(w) + amp(np.pi - w), 1.0, atol=1e-12)
+
+
+@pytest.mark.parametrize("n_taps", [11, 23])
+def test_halfband_trick_equals_a_direct_parks_mcclellan_design(n_taps):
+    # Reference: scipy.signal.remez of the full length with the symmetric bands [0, fp], [fs/2 - fp, fs/2]
+    # and equal weights is the same minimax half-band filter (Vaidyanathan and Nguyen 1987; from memory).
+    from scipy import signal
+    from coefc.design.fir import halfband_taps
+
+    fs, fp = 96000.0, 20000.0
+    direct = signal.remez(n_taps, [0, fp, fs / 2 - fp, fs / 2], [1, 0], fs=fs)
+    assert np.max(np.abs(halfband_taps(n_taps, fp, fs) - direct)) < 1e-9
+
+
+@pytest.mark.parametrize("target", ["mcu16", "mcu32", "dsp24"])
+@pytest.mark.parametrize("scaling", ["none", "l1"])
+def test_halfband_zero_taps_stay_exactly_zero_when_realised(tmp_path, target, scaling):
+    # quantisation keeps the zero taps zero (round(0) = 0 in every rounding mode) and the polyphase op
+    # keeps them; the cost figures count only the non-zero taps
+    from coefc.emit.codegen import cost_of
+
+    design = _hb(tmp_path, target, scaling, att=70 if target == "mcu16" else 90)
+    prog = design.realise().programs[0]
+    op = next(o for o in prog.ops if isinstance(o, PolyFirOp))
+    n, c = len(op.taps), (len(op.taps) - 1) // 2
+    assert n % 4 == 3 and op.down == 2
+    assert all(op.taps[j] == 0 for j in range(n) if (j - c) % 2 == 0 and j != c)
+    assert all(op.taps[j] != 0 for j in range(0, n, 2)) and op.taps[c] != 0
+    only = ChannelProgram("o", prog.sample_rate_hz, prog.arithmetic, (op,))
+    nonzero_pairs = (n + 1) // 4 + 1  # (k + 1) folded pairs and the centre tap, N = 4k + 3
+    assert cost_of(only)["muls_per_sample"] == -(-nonzero_pairs // 2)
+
+
+def test_halfband_decimation_matches_scipy_and_the_exact_model(tmp_path):
+    # float side: the realised taps through scipy.signal.upfirdn(h, x, down=2) and
+    # scipy.signal.resample_poly(x, 1, 2, window=h) (the reference library) equal the engine's output to
+    # within the output rounding; integer side: the engine equals tests/exact_model.py
+    from scipy import signal
+
+    prog = _hb(tmp_path, "mcu32", "none").realise().programs[0]
+    assert len(prog.ops) == 1
+    op = prog.ops[0]
+    fc = prog.arithmetic.final_shift(op.shift)
+    x = np.random.default_rng(3).integers(-(1 << 29), 1 << 29, size=400)
+    y = sim.simulate(prog, x)
+    assert y.tolist() == exact_model.run_program(prog, x)[0]
+    h = np.array(op.taps, dtype=float) / 2.0 ** fc
+    ref = signal.upfirdn(h, x.astype(float), down=2)[: len(y)]
+    assert np.max(np.abs(ref - y)) <= 0.5 + 1e-6
+    # scipy.signal.resample_poly(x, 1, 2, window=h) removes the filter's delay c = (N - 1)/2 (odd for
+    # N = 4k + 3) after padding h with one leading zero: its i-th output is the full-rate convolution at
+    # 2i + c, which is the engine's output (i + (c + 1)/2) for the input delayed by one sample
+    c = (len(h) - 1) // 2
+    y1 = sim.simulate(prog, np.concatenate([[0], x]))
+    rp = signal.resample_poly(x.astype(float), 1, 2, window=h)
+    m = len(y1) - (c + 1) // 2
+    assert m > 150
+    assert np.max(np.abs(rp[:m] - y1[(c + 1) // 2:])) <= 0.5 + 1e-6
+
+
+def test_halfband_interpolation_integers_equal_the_exact_model(tmp_path):
+    # interpolation by 2 with a half-band image filter (the gain 2 of zero insertion in its taps):
+    # the engine's integers equal the exact model's; every other tap of the op is still zero
+    prog = _hb(tmp_path, "mcu32", "l1", rate="interpolate").realise().programs[0]
+    x = np.random.default_rng(8).integers(-(1 << 31), 1 << 31, size=300)
+    y = sim.simulate(prog, x)
+    assert len(y) == 600
+    assert y.tolist() == exact_model.run_program(prog, x)[0]
+    op = next(o for o in prog.ops if isinstance(o, PolyFirOp))
+    c = (len(op.taps) - 1) // 2
+    assert op.up == 2 and all(op.taps[j] == 0 for j in range(len(op.taps)) if (j - c) % 2 == 0 and j != c)
+
+
+def test_halfband_search_finds_the_shortest_length(tmp_path):
+    # the length found meets attenuation_db + margin_db measured on the dense grid and 4 taps fewer does not
+    from coefc.design.fir import halfband_taps, measure
+
+    d = _hb(tmp_path, "mcu32", "none", att=90)
+    n = d.channels[0].stages[0].taps
+    edges, passbands = [0, 20000, 28000, 48000], [True, False]
+    assert measure(halfband_taps(n, 20000.0, 96000.0), edges, passbands, 96000.0)[1] >= 90.5
+    assert measure(halfband_taps(n - 4, 20000.0, 96000.0), edges, passbands, 96000.0)[1] < 90.5

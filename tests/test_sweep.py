@@ -374,3 +374,59 @@ def test_fewest_bits_is_the_exhaustive_grid_minimum(tmp_path, overflow, target, 
             # the shape a walk from the widest data word misses: that column never passes
             assert not any(q[0] == max(datas) for q in passing)
     assert found_any, "some channel must pass somewhere for this case to mean anything"
+
+
+HALFBAND_DECIMATOR = """
+name = "hbdec"
+sample_rate_hz = 96000
+
+[budget]
+stopband_attenuation_db = 70
+alias_attenuation_db = 70
+passband = [[0, 20000]]
+stopband = [[28000, 48000]]
+
+[[channel]]
+name = "c"
+stages = [
+  { kind = "fir-lowpass", method = "halfband", passband_hz = 20000, stopband_hz = 28000, attenuation_db = 80 },
+  { kind = "decimate", factor = 2 },
+]
+"""
+
+
+def test_op_widths_and_memory_cover_the_polyphase_fir(tmp_path):
+    # the op-width explorer treats a polyphase FIR's taps like an FIR's (it no longer skips them); the
+    # narrow taps written exactly in the wide format keep the half-band's zero taps zero; memory counts
+    # its non-zero stored taps only (every other tap of a half-band filter is zero, Vaidyanathan 1993,
+    # sec. 4.6.1; from memory)
+    from coefc.explore.opwidths import fewest_op_widths, hybrid
+    from coefc.explore.sweep import program_memory_bytes
+    from coefc.program import PolyFirOp
+    from coefc.targetspec import Overrides
+
+    p = tmp_path / "hb.toml"
+    p.write_text(HALFBAND_DECIMATOR)
+    d = coefc.load(p).design()
+    wide = d.realise("mcu32", Overrides(coef="Q2.30")).programs[0]
+    narrow = d.realise("mcu32", Overrides(coef="Q2.14")).programs[0]
+    i = next(k for k, op in enumerate(wide.ops) if isinstance(op, PolyFirOp))
+    h = hybrid(wide, narrow, i)
+    assert h is not None and isinstance(h.ops[i], PolyFirOp) and h.ops[i].down == 2
+    fc = wide.arithmetic.coef.frac_bits
+    got = np.array(h.ops[i].taps, float) * 2.0 ** (h.ops[i].shift - fc)
+    want = np.array(narrow.ops[i].taps, float) * 2.0 ** (narrow.ops[i].shift - narrow.arithmetic.coef.frac_bits)
+    assert np.array_equal(got, want)  # the same physical values, exactly
+    zeros = [j for j, t in enumerate(wide.ops[i].taps) if t == 0]
+    assert zeros and all(h.ops[i].taps[j] == 0 for j in zeros)
+    n = len(wide.ops[i].taps)
+    assert len(zeros) == (n - 3) // 2
+    # memory: (non-zero taps of the folded half) coefficient words + (N - 1) data words, 4 bytes each on mcu32
+    poly_only = type(wide)(wide.name, wide.sample_rate_hz, wide.arithmetic, (wide.ops[i],))
+    stored = sum(1 for t in wide.ops[i].taps[:(n + 1) // 2] if t)
+    assert stored == (n + 1) // 4 + 1
+    assert program_memory_bytes(poly_only) == 4 * stored + 4 * (n - 1)
+    sw = Sweeper(d, d.loaded.description.budget, options=AnalysisOptions(measure_noise=False))
+    widths = fewest_op_widths(sw, 0, "mcu32", "df1", 64, 32, range(8, 33, 4))
+    poly = [w for w in widths if w.kind == "polyphase-fir"]
+    assert len(poly) == 1 and poly[0].coef_bits is not None and 8 < poly[0].coef_bits <= 32

@@ -181,6 +181,30 @@ static int get_xy(PyObject *xo, PyObject *yo, Py_buffer *xb, Py_buffer *yb, char
 
 /* ------------------------------------------------------------ fixed-point ops */
 
+/* The indices of the non-zero taps, grouped by phase (index modulo up) and ascending within a
+   phase: phase p's are idx[start[p] .. start[p+1]-1].  Zero taps (every other tap of a half-band
+   filter, taps quantised to zero) are skipped: a zero product adds exactly zero to the sum.
+   Returns NULL (with a Python error set) when memory runs out; free both with PyMem_Free. */
+static Py_ssize_t *nonzero_taps(const int64_t *t, Py_ssize_t nt, Py_ssize_t up, Py_ssize_t **start)
+{
+    Py_ssize_t *idx = PyMem_Malloc(sizeof(Py_ssize_t) * (nt ? nt : 1));
+    Py_ssize_t *st = PyMem_Malloc(sizeof(Py_ssize_t) * (up + 1));
+    if (!idx || !st) {
+        PyMem_Free(idx); PyMem_Free(st);
+        PyErr_NoMemory();
+        return NULL;
+    }
+    Py_ssize_t q = 0;
+    for (Py_ssize_t p = 0; p < up; p++) {
+        st[p] = q;
+        for (Py_ssize_t kk = p; kk < nt; kk += up)
+            if (t[kk] != 0) idx[q++] = kk;
+    }
+    st[up] = q;
+    *start = st;
+    return idx;
+}
+
 static PyObject *py_fir(PyObject *self, PyObject *args)
 {
     PyObject *xo, *yo, *to;
@@ -197,30 +221,40 @@ static PyObject *py_fir(PyObject *self, PyObject *args)
     int64_t *y = (int64_t *)yb.buf;
     long long ovf = 0, aovf = 0;
     int fast = width <= 62 && sum_bound_ok(t, nt, width, 0);
+    Py_ssize_t *st, *idx = nonzero_taps(t, nt, 1, &st);
+    if (!idx) { PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&tb); return NULL; }
+    const Py_ssize_t nnz = st[1];
     Py_BEGIN_ALLOW_THREADS
-    for (Py_ssize_t i = 0; i < n; i++) {
-        Py_ssize_t m = i + 1 < nt ? i + 1 : nt;
-        int64_t acc;
-        if (fast) {
+    if (fast && nnz == nt) { /* no zero tap: the plain loop (no index table) */
+        for (Py_ssize_t i = 0; i < n; i++) {
+            Py_ssize_t m = i + 1 < nt ? i + 1 : nt;
             int64_t s = 0;
             const int64_t *xp = x + i;
             for (Py_ssize_t j = 0; j < m; j++) s += t[j] * xp[-j];
+            y[i] = fit(rshift(afinish(s, &ar, &aovf), &ar), &ar, &ovf);
+        }
+    } else for (Py_ssize_t i = 0; i < n; i++) {
+        int64_t acc;
+        if (fast) {
+            int64_t s = 0;
+            for (Py_ssize_t q = 0; q < nnz && idx[q] <= i; q++) s += t[idx[q]] * x[i - idx[q]];
             acc = afinish(s, &ar, &aovf);
         } else {
             wide_t w = {0, 0};
-            for (Py_ssize_t j = 0; j < m; j++) wadd(&w, t[j] * x[i - j]);
+            for (Py_ssize_t q = 0; q < nnz && idx[q] <= i; q++) wadd(&w, t[idx[q]] * x[i - idx[q]]);
             acc = wfinish(&w, &ar, &aovf);
         }
         y[i] = fit(rshift(acc, &ar), &ar, &ovf);
     }
     Py_END_ALLOW_THREADS
+    PyMem_Free(idx); PyMem_Free(st);
     PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&tb);
     return Py_BuildValue("LL", ovf, aovf);
 }
 
 /* polyphase FIR (coefc.program, "polyfir"): y[i] = fit(round(wrap(sum over k with L | (i*M - k),
    i*M - k >= 0 of t[k] * x[(i*M - k) / L]))), for i < ny; exactly one of M, L above 1 (or both 1).
-   Only the kept outputs (M > 1) and the non-zero products (L > 1) are computed. */
+   Only the kept outputs (M > 1), the non-zero products (L > 1) and the non-zero taps are computed. */
 static PyObject *py_fir_rate(PyObject *self, PyObject *args)
 {
     PyObject *xo, *yo, *to;
@@ -248,29 +282,38 @@ static PyObject *py_fir_rate(PyObject *self, PyObject *args)
     int64_t *y = (int64_t *)yb.buf;
     long long ovf = 0, aovf = 0;
     int fast = width <= 62 && sum_bound_ok(t, nt, width, 0);
+    Py_ssize_t *st, *idx = nonzero_taps(t, nt, up, &st);
+    if (!idx) { PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&tb); return NULL; }
     Py_BEGIN_ALLOW_THREADS
     for (Py_ssize_t i = 0; i < ny; i++) {
         Py_ssize_t r = i * (Py_ssize_t)down;       /* index into the upsampled input u */
-        Py_ssize_t k0 = r % up;                    /* first tap meeting a non-zero u sample */
+        Py_ssize_t ph = r % up;                    /* the taps meeting a non-zero u sample: kk = ph mod up */
+        Py_ssize_t q0 = st[ph], q1 = st[ph + 1];
         int64_t acc;
-        if (fast && up == 1) { /* decimation: the plain FIR sum at the kept sample */
+        if (fast && up == 1 && q1 == nt) { /* decimation, no zero tap: the plain FIR sum at the kept sample */
             int64_t s = 0;
             const int64_t *xp = x + r;
             Py_ssize_t m = r + 1 < nt ? r + 1 : nt;
             for (Py_ssize_t j = 0; j < m; j++) s += t[j] * xp[-j];
             acc = afinish(s, &ar, &aovf);
+        } else if (fast && up == 1) { /* decimation: the non-zero taps' sum at the kept sample */
+            int64_t s = 0;
+            const int64_t *xp = x + r;
+            for (Py_ssize_t q = q0; q < q1 && idx[q] <= r; q++) s += t[idx[q]] * xp[-idx[q]];
+            acc = afinish(s, &ar, &aovf);
         } else if (fast) {
             int64_t s = 0;
-            for (Py_ssize_t kk = k0; kk < nt && kk <= r; kk += up) s += t[kk] * x[(r - kk) / up];
+            for (Py_ssize_t q = q0; q < q1 && idx[q] <= r; q++) s += t[idx[q]] * x[(r - idx[q]) / up];
             acc = afinish(s, &ar, &aovf);
         } else {
             wide_t w = {0, 0};
-            for (Py_ssize_t kk = k0; kk < nt && kk <= r; kk += up) wadd(&w, t[kk] * x[(r - kk) / up]);
+            for (Py_ssize_t q = q0; q < q1 && idx[q] <= r; q++) wadd(&w, t[idx[q]] * x[(r - idx[q]) / up]);
             acc = wfinish(&w, &ar, &aovf);
         }
         y[i] = fit(rshift(acc, &ar), &ar, &ovf);
     }
     Py_END_ALLOW_THREADS
+    PyMem_Free(idx); PyMem_Free(st);
     PyBuffer_Release(&xb); PyBuffer_Release(&yb); PyBuffer_Release(&tb);
     return Py_BuildValue("LL", ovf, aovf);
 }

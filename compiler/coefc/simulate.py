@@ -274,17 +274,19 @@ def _run_float(op, x: np.ndarray, fast: bool):
 
 
 def _poly_float(op: PolyFirOp, x: np.ndarray) -> np.ndarray:
-    """float32 polyphase FIR: for each output, the products in increasing tap order (as the plain fir)."""
+    """float32 polyphase FIR: for each output, the products in increasing tap order, inputs before
+    the first one being 0.0 (as the plain fir: ``acc = t_k0 x; acc = acc + t_k x`` for the later k)."""
     f = np.float32
     t = [f(v) for v in op.taps]
     M, L = op.down, op.up
     y = np.empty(-(-len(x) * L // M), dtype=np.float32)
+    zero = f(0)
     with np.errstate(over="ignore", invalid="ignore"):
         for i in range(len(y)):
             r = i * M
             acc = None
-            for k in range(r % L, min(len(t) - 1, r) + 1, L):
-                p = t[k] * x[(r - k) // L]
+            for k in range(r % L, len(t), L):
+                p = t[k] * (x[(r - k) // L] if r >= k else zero)
                 acc = p if acc is None else acc + p
             y[i] = f(0) if acc is None else acc
     return y

@@ -108,7 +108,7 @@ IIR = _kinds("iir", None, ("lowpass", "highpass", "bandpass", "bandstop"), {
 
 # ------------------------------------------------------------------ coefc.design.fir
 
-FIR_METHODS = ("kaiser", "equiripple", "least-squares")
+FIR_METHODS = ("kaiser", "equiripple", "least-squares", "halfband")
 
 FIR = _kinds("fir", "design_fir", ("fir-lowpass", "fir-highpass", "fir-bandpass", "fir-bandstop"), {
     "method": Key("choice", choices=FIR_METHODS),

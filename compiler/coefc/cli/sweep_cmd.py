@@ -34,7 +34,7 @@ def sweep(
     scaling: options.Scaling = None,
     channel: options.Channel = None,
     fewest: Annotated[bool, typer.Option("--fewest-bits", help="Find the smallest passing widths per channel: the grid's minimum, cheapest points first.")] = False,
-    per_op: Annotated[bool, typer.Option("--per-op", help="With --fewest-bits: also the smallest coefficient width of each section, FIR and gain.")] = False,
+    per_op: Annotated[bool, typer.Option("--per-op", help="With --fewest-bits: also the smallest coefficient width of each section, FIR (also polyphase) and gain.")] = False,
     measure_noise: Annotated[bool, typer.Option("--measure-noise", help="Also measure noise with the bit-true engine (slower).")] = False,
     jobs: Annotated[Optional[int], typer.Option("--jobs", "-j", metavar="N", min=1, max=256, help="Evaluate configurations in N processes (default: the machine's cores).")] = None,
     json_out: options.JsonOut = None,

@@ -31,6 +31,18 @@ an error naming the stage.  A design of given ``taps`` must reach
     downward in each parity (the optimal minimax error does not grow with the
     length within a parity: a filter of N taps is one of N + 2 taps with zero
     end taps).  A length at which remez does not converge counts as failing.
+``halfband`` (``fir-lowpass`` only; for decimation or interpolation by 2)
+    a half-band filter: its transition band is centred at a quarter of the
+    sample rate, every other tap is exactly zero except the centre tap, which is
+    exactly 1/2, so a polyphase realisation by 2 skips half the products
+    (Vaidyanathan 1993, sec. 4.6).  Designed by the method of Vaidyanathan and
+    Nguyen: a one-band Parks-McClellan filter ``g`` of ``2k + 2`` taps with
+    passband ``[0, 2 passband_hz]`` (scipy.signal.remez) gives the filter
+    ``h[2m] = g[m] / 2``, ``h[2k + 1] = 1/2``, of ``N = 4k + 3`` taps (its end taps
+    are non-zero; ``4k + 1`` would waste two zero end taps).  Its passband and
+    stopband ripples are equal, its stopband begins at ``fs/2 - passband_hz``:
+    ``stopband_hz`` may not lie below that.  The shortest ``k`` meeting the
+    requirement is searched (upward from Kaiser's estimate, then downward).
 ``least-squares``
     weighted least squares (scipy.signal.firls, odd lengths); the same search.
     Its largest error is not guaranteed to fall with the length, so the length
@@ -46,6 +58,10 @@ function", Proc. IEEE ISCAS, 1974.
 J. H. McClellan & T. W. Parks, "A unified approach to the design of optimum FIR
 linear phase digital filters", IEEE Trans. Circuit Theory 20(6), 1973.
 T. W. Parks & C. S. Burrus, *Digital Filter Design*, Wiley 1987, ch. 3 (least squares).
+P. P. Vaidyanathan and T. Q. Nguyen, "A trick for the design of FIR half-band
+filters", IEEE Trans. Circuits Syst. 34(3), 1987 (from memory).
+P. P. Vaidyanathan, *Multirate Systems and Filter Banks*, Prentice-Hall, 1993,
+sec. 4.6.1 (half-band filters: every other coefficient zero; from memory).
 """
 
 from __future__ import annotations
@@ -221,6 +237,8 @@ def design_fir(ctx: StageContext) -> StageResult:
         return n + 1 if only_odd and n % 2 == 0 else n
 
     where = "method" if ctx.has("method") else "stopband_hz"
+    if method == "halfband":
+        return _design_halfband(ctx, wp, ws, att, margin, rp, rp_req, given)
     if method == "kaiser":
         a_k = target if rp_req is None else max(target, -20 * math.log10(delta_p))
         if band in ("lowpass", "highpass"):
@@ -361,7 +379,130 @@ def design_fir(ctx: StageContext) -> StageResult:
                        requirement=requirement)
 
 
-_METHOD_NAMES = {"kaiser": "Kaiser", "equiripple": "equiripple", "least-squares": "least-squares"}
+_METHOD_NAMES = {"kaiser": "Kaiser", "equiripple": "equiripple", "least-squares": "least-squares",
+                 "halfband": "half-band"}
+
+
+def halfband_taps(n_taps: int, passband_hz: float, fs: float) -> np.ndarray:
+    """The equiripple half-band low-pass of *n_taps* = 4k + 3 taps with passband edge *passband_hz*.
+
+    Every tap ``h[j]`` with ``j - (N - 1)/2`` even and non-zero is exactly 0.0, the
+    centre tap exactly 0.5, and ``H(f) + H(fs/2 - f) = 1`` (zero-phase amplitudes).
+
+    References
+    ----------
+    P. P. Vaidyanathan and T. Q. Nguyen, "A trick for the design of FIR half-band
+    filters", IEEE Trans. Circuits Syst. 34(3), 1987 (from memory).
+
+    Examples
+    --------
+    >>> h = halfband_taps(11, 10000.0, 48000.0)
+    >>> [float(v) for v in h[1::2]]
+    [0.0, 0.0, 0.5, 0.0, 0.0]
+    """
+    from scipy import signal
+
+    k = (n_taps - 3) // 4
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        g = signal.remez(2 * k + 2, [0.0, 2.0 * passband_hz / fs], [1.0], fs=1.0, maxiter=100)
+    h = np.zeros(n_taps)
+    h[0::2] = np.asarray(g, dtype=float) / 2.0
+    h[2 * k + 1] = 0.5
+    return h
+
+
+def _design_halfband(ctx: StageContext, wp: float, ws: float, att: float, margin: float, rp: float,
+                     rp_req: float | None, given: int | None) -> StageResult:
+    """``method = "halfband"``: see the module docstring."""
+    fs = ctx.fs
+    if ctx.kind != "fir-lowpass":
+        raise ctx.error(f"method = \"halfband\" designs low-passes only (fir-lowpass, for decimation or "
+                        f"interpolation by 2), not {ctx.kind}; use another method", "method")
+    if wp >= fs / 4:
+        raise ctx.error(f"a half-band filter's passband ends below a quarter of the sample rate ({fs / 4:g} Hz); "
+                        f"passband_hz = {wp:g} is not; lower it or use another method", "passband_hz")
+    edge = fs / 2 - wp
+    if ws < edge * (1 - 1e-12):
+        raise ctx.error(f"a half-band filter's stopband begins at fs/2 - passband_hz = {edge:g} Hz; stopband_hz = "
+                        f"{ws:g} lies below it; use stopband_hz = {edge:g} (or above), or another method",
+                        "stopband_hz")
+    if given is not None and given % 4 != 3:
+        lo = max(3, given - (given - 3) % 4)
+        raise ctx.error(f"a half-band filter has 4k + 3 taps (its end taps are then non-zero); use {lo} or "
+                        f"{lo + 4}, not {given}", "taps")
+    target = att + margin
+    edges, passbands = [0, wp, edge, fs / 2], [True, False]
+    need = f"{att:g} dB + {margin:g} dB margin" if margin else f"{att:g} dB"
+
+    def trial(n_taps: int):
+        try:
+            h = halfband_taps(n_taps, wp, fs)
+        except (ValueError, np.linalg.LinAlgError):
+            return None
+        if not np.all(np.isfinite(h)):
+            return None
+        return (h, *measure(h, edges, passbands, fs))
+
+    def passes(t) -> bool:
+        return t is not None and t[2] >= target and (rp_req is None or t[1] <= rp_req)
+
+    if given is not None:
+        t = trial(given)
+        if t is None:
+            raise ctx.error(f"the half-band design failed at {given} taps; change taps or remove it", "taps")
+        n = given
+        how = f"{n} taps (given)"
+    else:
+        delta = 10 ** (-target / 20)
+        if rp_req is not None:
+            delta = min(delta, (10 ** (rp_req / 20) - 1) / (10 ** (rp_req / 20) + 1))
+        est = kaiser_equiripple_estimate(delta, delta, edge - wp, fs)
+        n = max(3, est - (est - 3) % 4)
+        if n > MAX_FIR_TAPS:
+            raise ctx.error(f"the requirements need about {est} taps, above the limit of {MAX_FIR_TAPS}; widen the "
+                            "transition band (lower passband_hz) or lower attenuation_db", "stopband_hz")
+        cap = min(MAX_FIR_TAPS, max(n + 64, n + n // 4))  # as for Kaiser designs: a quarter beyond the estimate
+        t = trial(n)
+        while not passes(t):
+            n += 4
+            if n > cap:
+                raise ctx.error(f"no half-band design up to {cap} taps reaches {need}; widen the transition band "
+                                "(lower passband_hz) or lower attenuation_db", "attenuation_db")
+            t = trial(n)
+        while n > 3:
+            shorter = trial(n - 4)
+            if not passes(shorter):
+                break
+            n, t = n - 4, shorter
+        how = f"{n} taps (shortest meeting {need}; estimate {est})"
+    taps, dev, got = t
+    if given is not None and not (got >= att and (rp_req is None or dev <= rp_req)):
+        short = (f"{got:.2f} dB attenuation" if got < att else f"{dev:.4f} dB passband deviation")
+        raise ctx.error(f"with taps = {given} the half-band design reaches {short}, short of attenuation_db = {att:g}"
+                        + (f" / ripple_db = {rp_req:g}" if rp_req is not None else "")
+                        + f"; {_searched_length(ctx)}", "taps")
+    warns: list[str] = []
+    if given is not None and got < target:
+        warns.append(f"with taps = {given} the design reaches {got:.2f} dB, leaving {got - att:.2f} dB of the "
+                     f"{margin:g} dB margin_db for coefficient quantisation; give more taps or remove taps")
+    if n > MANY_TAPS:
+        warns.append(f"{n} taps is a long filter for an embedded target; consider a wider transition band "
+                     "or a multi-stage design")
+    nonzero = int(np.count_nonzero(taps))
+    text = (f"{ctx.kind} half-band (Parks-McClellan, Vaidyanathan-Nguyen), {how}, {nonzero} non-zero: passband "
+            f"{wp:g} Hz, stopband {edge:g} Hz, reaches {got:.2f} dB attenuation ({att:g} dB asked, margin "
+            f"{got - att:.2f} dB for quantisation), {dev:.4f} dB passband deviation")
+    requirement = {
+        "attenuation_db": float(att), "ripple_db": float(rp_req) if rp_req is not None else None,
+        "margin_db": float(margin), "design_attenuation_db": float(target),
+        "reached_attenuation_db": float(got), "reached_ripple_db": float(dev),
+        "margin_left_db": float(got - att),
+        "margin_kept_by": "given taps" if given is not None else "length",
+    }
+    return StageResult(blocks=(FirBlock(np.asarray(taps, dtype=float), label=text),), text=text,
+                       order=n - 1, taps=n, latency_samples=(n - 1) / 2, warnings=tuple(warns),
+                       requirement=requirement)
 
 
 def _searched_length(ctx: StageContext) -> str:

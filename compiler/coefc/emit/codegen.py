@@ -131,7 +131,8 @@ class CNames:
                         "golden_out": "_golden_out", "check": "_check"}
     GLOBAL_MACROS = ("COEFC_H", "DATA_BITS", "DATA_FRAC_BITS", "COEF_BITS", "COEF_FRAC_BITS", "ACC_BITS",
                      "SAMPLE_RATE_HZ", "OVER_BUDGET", "N_CHANNELS", "GOLDEN_LEN", "GENERATED_CODE")
-    CHANNEL_MACROS = ("MULS_PER_SAMPLE", "ADDS_PER_SAMPLE", "COEF_BYTES", "STATE_BYTES", "SECTIONS", "DECIMATION")
+    CHANNEL_MACROS = ("MULS_PER_SAMPLE", "ADDS_PER_SAMPLE", "COEF_BYTES", "STATE_BYTES", "SECTIONS", "DECIMATION",
+                      "INTERPOLATION", "OUT_ROOM")
 
     def description(self) -> dict[str, str]:
         """The description's identifiers by field (``data_t``, ``selftest``, ``golden_in``)."""
@@ -208,13 +209,16 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
     coefficients, df1ef-wide-fb 7 multiplies, 7 adds and 7 stored coefficients; a coupled
     section 8 multiplies, 5 adds and 8 coefficients); an FIR of N taps N multiplies and
     N - 1 adds,
-    folded ceil(N/2) multiplies and N - 1 adds; a gain one multiply; a delay none.
+    folded ceil(N/2) multiplies and N - 1 adds, where zero taps are skipped (no multiply,
+    add or stored word: a half-band filter's every other tap); a gain one multiply; a delay none.
     Coefficient bytes count the stored coefficient words (a folded FIR stores
     ceil(N/2)); state bytes the fields of the generated state structure before
     padding.  In a multirate channel the figures are per *input* sample, rounded
     up: a polyphase FIR decimating by M costs N/M multiplies per input sample
-    (folded ceil(N/2)/M), and an op after a rate change counts its work times its
-    rate over the input rate.  A CIC decimator of N stages by R costs N adds per input sample
+    (folded ceil(N/2)/M), one interpolating by L costs N per input sample (each input
+    meets every tap once, in one of the L branches; adds N - L; a branch whose taps are
+    symmetric is folded), and an op after a rate change counts its work times its rate
+    over the input rate.  A CIC decimator of N stages by R costs N adds per input sample
     (integrators) and N per output sample (combs), no multiply when its gain is a power of two
     (one per output sample otherwise): its state is 8 (N + N D) bytes of register and its phase.
     """
@@ -235,13 +239,21 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
             per = per / op.factor
             continue
         if isinstance(op, (PolyFirOp, RateOp)):
-            if isinstance(op, PolyFirOp):  # N products per output sample at the lower rate
+            if isinstance(op, PolyFirOp):  # the non-zero products per output sample at the lower rate
                 n = len(op.taps)
-                folded = op.symmetric and fixed and op.down > 1
-                low = per / op.down if op.down > 1 else per
-                mr += low * ((n + 1) // 2 if folded else n)
-                ar_ += low * (n - 1)
-                coefs += (n + 1) // 2 if folded else n
+                folded = op.symmetric and fixed and op.down > 1 and not program.arithmetic.product_shift
+                m_, a_, c_ = _fir_counts(op.taps, folded)
+                if op.down > 1:
+                    mr += per / op.down * m_
+                    ar_ += per / op.down * a_
+                else:  # interpolating: each input meets every non-zero tap once, in one of the L branches
+                    c_ = 0
+                    for b in _branches(op.taps, op.up):
+                        bm, ba, bc = _fir_counts(b, fixed and _branch_folds(b, program.arithmetic.product_shift))
+                        mr += per * bm
+                        ar_ += per * ba
+                        c_ += bc
+                coefs += c_
                 state += 2 * n * data_bytes + 8
             else:
                 state += 4
@@ -262,9 +274,10 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
         elif isinstance(op, FirOp):
             n = len(op.taps)
             folded = op.symmetric and fixed and not program.arithmetic.product_shift
-            muls += (n + 1) // 2 if folded else n
-            adds += n - 1
-            coefs += (n + 1) // 2 if folded else n
+            m_, a_, c_ = _fir_counts(op.taps, folded)
+            muls += m_
+            adds += a_
+            coefs += c_
             state += 2 * n * data_bytes + 4
         elif isinstance(op, GainOp):
             muls += 1
@@ -280,6 +293,18 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
         adds += -(-ar_.numerator // ar_.denominator)
     return {"muls_per_sample": muls, "adds_per_sample": adds, "coef_bytes": coefs * coef_bytes,
             "state_bytes": state}
+
+
+def _fir_counts(taps, folded: bool) -> tuple[int, int, int]:
+    """(multiplies, adds, stored coefficients) of one output of an FIR, zero taps skipped: unfolded one
+    multiply per non-zero tap; folded one per non-zero pair and the non-zero middle tap (a pair's two
+    samples are added first); adds one fewer than the non-zero taps."""
+    n = len(taps)
+    nz = sum(1 for t in taps if t)
+    if not folded:
+        return nz, max(0, nz - 1), nz
+    stored = sum(1 for t in taps[:(n + 1) // 2] if t)
+    return stored, max(0, nz - 1), stored
 
 
 def cost_of(program: ChannelProgram) -> dict:
@@ -705,8 +730,9 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                 body += t1 + t2 + ["s1 = n1;", "s2 = n2;", "out[t] = y;"]
             lines = pre + _loop(src, body, D) + post
             out.append(_OpCode(head + fx.product_note(), fields, lines))
+        elif isinstance(op, PolyFirOp) and op.up > 1:
+            out.append(_interpolating(fx, op, f, src, D))
         elif isinstance(op, (FirOp, PolyFirOp)):
-            _no_interpolation(program, op, i)
             taps = [int(v) for v in op.taps]
             n = len(taps)
             k = fx.k_of(op.shift)
@@ -722,13 +748,21 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                     f"history z[p..p+{n - 1}] newest first, kept twice so it is contiguous"]
             fields = [(D, f"{f}_z", 2 * n, f"the last {n} inputs, twice"), ("uint32_t", f"{f}_p", 0,
                                                                            "position of the newest input")]
-            unroll = len(stored) <= UNROLL_TAPS
-            hlines = []
+            # zero taps (every other tap of a half-band filter) are skipped: no product, no table entry
+            live = [(j, c) for j, c in enumerate(stored[:n // 2] if folded else stored) if c]
+            middle = stored[-1] if folded and n % 2 else 0
+            unroll = len(live) <= UNROLL_TAPS
+            hlines, jx = [], "j"
             if not unroll:
-                hlines = [f"static const {ct} h[{len(stored)}] = {{ /* h[0] (newest) .. */"]
-                hlines += ["    " + ", ".join(_s(c, 64 if ct == "int64_t" else 32) for c in stored[j:j + 6]) + ","
-                           for j in range(0, len(stored), 6)]
+                hlines = [f"static const {ct} h[{len(live)}] = {{ /* the non-zero taps, newest first */"]
+                hlines += ["    " + ", ".join(_s(c, 64 if ct == "int64_t" else 32) for _, c in live[j:j + 6]) + ","
+                           for j in range(0, len(live), 6)]
                 hlines.append("};")
+                jx, olines = _tap_index([j for j, _ in live], "hpos")
+                hlines += olines
+                if len(live) < len(stored[:n // 2] if folded else stored):
+                    head.append(f"{len(live)} non-zero taps{' pairs' if folded else ''} of "
+                                f"{len(stored[:n // 2] if folded else stored)}; the zero taps are skipped")
             pre = hlines + [f"{D} *const z = s->{f}_z;", f"uint32_t p = s->{f}_p;"]
             post = [f"s->{f}_p = p;"]
             body = ([] if unroll else ["uint32_t j;"]) + [f"p = (p == 0u) ? {n - 1}u : p - 1u;", "z[p] = x;",
@@ -742,22 +776,21 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
 
             if folded and unroll:
                 body.append(f"{U} acc = 0u;")
-                for j, c in enumerate(stored[:n // 2]):
-                    if c:
-                        body.append(f"acc += {pair(_s(c, 64 if signed_pre or C == 64 else 32), f'{j}u')}; "
-                                    f"/* h[{j}] (x[n-{j}] + x[n-{n - 1 - j}]) */")
-                if n % 2 and stored[-1]:
-                    body.append(f"acc += {fx.prod(f'z[p + {n // 2}u]', stored[-1], C)}; /* the middle tap */")
+                for j, c in live:
+                    body.append(f"acc += {pair(_s(c, 64 if signed_pre or C == 64 else 32), f'{j}u')}; "
+                                f"/* h[{j}] (x[n-{j}] + x[n-{n - 1 - j}]) */")
+                if middle:
+                    body.append(f"acc += {fx.prod(f'z[p + {n // 2}u]', middle, C)}; /* the middle tap */")
             elif folded:
-                body += [f"{U} acc = 0u;", f"for (j = 0u; j < {n // 2}u; j++) {{",
-                         f"    acc += {pair('h[j]', 'j')}; /* h[j] (x[n-j] + x[n-{n - 1}+j]) */", "}"]
-                if n % 2:
-                    body.append(f"acc += {fx.prod(f'z[p + {n // 2}u]', stored[-1], C)}; /* the middle tap */")
+                body += [f"{U} acc = 0u;", f"for (j = 0u; j < {len(live)}u; j++) {{",
+                         f"    acc += {pair('h[j]', jx)}; /* h (x[n-i] + x[n-{n - 1}+i]), i = {jx} */", "}"]
+                if middle:
+                    body.append(f"acc += {fx.prod(f'z[p + {n // 2}u]', middle, C)}; /* the middle tap */")
             elif unroll:
-                body += fx.sum_lines("acc", C, [(1, c, f"z[p + {j}u]") for j, c in enumerate(stored)])
+                body += fx.sum_lines("acc", C, [(1, c, f"z[p + {j}u]") for j, c in live])
             else:
-                body += [f"{U} acc = 0u;", f"for (j = 0u; j < {n}u; j++) {{",
-                         f"    acc += {fx.prodv('z[p + j]', 'h[j]', C)};", "}"]
+                body += [f"{U} acc = 0u;", f"for (j = 0u; j < {len(live)}u; j++) {{",
+                         f"    acc += {fx.prodv(f'z[p + {jx}]', 'h[j]', C)};", "}"]
             body += fx.finish("acc", k, C, "y") + ["out[t] = y;"]
             if isinstance(op, PolyFirOp):
                 head, fields, pre, body, post = _decimating(op, f, head, fields, pre, body, post,
@@ -781,10 +814,152 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
     return out
 
 
-def _no_interpolation(program: ChannelProgram, op, i: int) -> None:
-    if isinstance(op, PolyFirOp) and op.up > 1:
-        raise GeneratedCodeError(f"channel '{program.name}': op {i} interpolates by {op.up}, which generated code "
-                                 "does not write yet (decimation it does); simulate it with coefc run")
+def _tap_index(js: list[int], name: str) -> tuple[str, str]:
+    """The C expression of the *j*-th tap position in the list *js* (ascending) inside a loop over
+    ``j``, and the lines of the table it needs: ``j`` for consecutive taps, ``a + d*j`` for every
+    d-th tap (a half-band filter), otherwise a table of positions."""
+    if len(js) < 2 or all(js[i + 1] - js[i] == js[1] - js[0] for i in range(len(js) - 1)):
+        a, d = js[0] if js else 0, (js[1] - js[0]) if len(js) > 1 else 1
+        expr = "j" if d == 1 else f"{d}u * j"
+        return (expr if a == 0 else f"({a}u + {expr})"), []
+    t = "uint16_t" if js[-1] < (1 << 16) else "uint32_t"
+    lines = [f"static const {t} {name}[{len(js)}] = {{ /* positions of the non-zero taps */"]
+    lines += ["    " + ", ".join(f"{v}u" for v in js[i:i + 12]) + "," for i in range(0, len(js), 12)]
+    lines.append("};")
+    return f"{name}[j]", lines
+
+
+_BACKWARDS = ("the block is processed from its last input backwards, so in and out may be the same array: "
+              "output t*{L}+p is written after every input up to t is read")
+
+
+def _branches(taps, L: int) -> list[list]:
+    """The L polyphase branches of *taps*: branch p holds ``taps[p + j*L]``, j = 0, 1, ..."""
+    return [list(taps[p::L]) for p in range(L)]
+
+
+def _branch_folds(branch, product_shift: int) -> bool:
+    """A branch whose taps read the same backwards is folded (a pair's two samples added first);
+    rounded products do not fold."""
+    return not product_shift and len(branch) > 1 and list(branch) == list(branch)[::-1]
+
+
+def _interpolating(fx: "_Fixed", op: PolyFirOp, f: str, src: str, D: str) -> _OpCode:
+    """A polyphase FIR interpolating by ``L = op.up`` (coefc.program's polyfir with ``M = 1``):
+    ``y[t*L + p] = fit(round(sum_j h[p + j*L] x[t - j]))``, the L branches of ``J = ceil(N/L)``
+    taps each computed once per input; zero taps are skipped.  The inputs ``x[t - j]`` come from
+    a window of the J newest inputs; the state keeps the J - 1 inputs before the block."""
+    L = op.up
+    taps = [int(v) for v in op.taps]
+    n = len(taps)
+    J = -(-n // L)
+    k = fx.k_of(op.shift)
+    C = _container(program=fx.p, k=k)
+    U = f"uint{C}_t"
+    head = [f"polyphase FIR interpolating by {L}, {n} taps in {L} branches of up to {J} (coefficient shift "
+            f"{op.shift}, rounding shift {k}, {C}-bit container)",
+            f"y[t*{L} + p] = fit(round(sum_j h[p + {L}j] x[t - j] / 2^{k})), p = 0 .. {L - 1}; "
+            f"{sum(1 for c in taps if c)} non-zero taps (zero taps skipped)",
+            _BACKWARDS.format(L=L)]
+    fields, lines, body, post = _window(f, src, D, J)
+    tables: list[str] = []
+    signed_pre = C == 64 and fx.d + 1 + fx.cb <= 64
+
+    def pair(hx: str, a: str, b: str) -> str:
+        if signed_pre:
+            return f"(uint64_t)((int64_t){hx} * ((int64_t)win[{a}] + (int64_t)win[{b}]))"
+        return f"({U}){hx} * (({U})win[{a}] + ({U})win[{b}])"
+
+    for p, branch in enumerate(_branches(taps, L)):
+        Jp = len(branch)
+        folded = _branch_folds(branch, fx.P)
+        live = [(j, c) for j, c in enumerate(branch[:Jp // 2] if folded else branch) if c]
+        middle = branch[Jp // 2] if folded and Jp % 2 else 0
+        lit = lambda c: _s(c, 64 if signed_pre or C == 64 else 32)  # noqa: E731
+        if folded:
+            inner = [f"/* branch {p}: symmetric, {len(live) + bool(middle)} multiplies (pairs folded) */",
+                     f"{U} acc = 0u;"]
+        if len(live) <= UNROLL_TAPS and folded:
+            inner += [f"acc += {pair(lit(c), f'{j}u', f'{Jp - 1 - j}u')};" for j, c in live]
+        elif len(live) <= UNROLL_TAPS:
+            inner = fx.sum_lines("acc", C, [(1, c, f"win[{j}u]") for j, c in live])
+        else:
+            ct = "int32_t" if all(-(1 << 31) <= c < (1 << 31) for _, c in live) else "int64_t"
+            tables += [f"static const {ct} h{p}[{len(live)}] = {{ /* branch {p}: its non-zero taps"
+                       f"{' (first half)' if folded else ''} */"]
+            tables += ["    " + ", ".join(_s(c, 64 if ct == "int64_t" else 32) for _, c in live[i:i + 6]) + ","
+                       for i in range(0, len(live), 6)]
+            tables.append("};")
+            jx, olines = _tap_index([j for j, _ in live], f"hpos{p}")
+            tables += olines
+            if folded:
+                inner += [f"for (j = 0u; j < {len(live)}u; j++) {{",
+                          f"    acc += {pair(f'h{p}[j]', jx, f'{Jp - 1}u - {jx}')};", "}"]
+            else:
+                inner = [f"{U} acc = 0u;", f"for (j = 0u; j < {len(live)}u; j++) {{",
+                         f"    acc += {fx.prodv(f'win[{jx}]', f'h{p}[j]', C)};", "}"]
+        if middle:
+            inner.append(f"acc += {fx.prod(f'win[{Jp // 2}u]', middle, C)}; /* the middle tap */")
+        inner += fx.finish("acc", k, C, "y") + [f"out[t * {L}u + {p}u] = y;"]
+        body += ["{", *_indent(inner, 4), "}"]
+    lines = tables + lines + ["for (t = n; t-- > 0u;) {", *_indent(body, 4), "}"] + post
+    lines.append(f"n = n * {L}u; /* the block at the new rate */")
+    return _OpCode(head + fx.product_note(), fields, lines)
+
+
+def _window(f: str, src: str, D: str, J: int) -> tuple[list, list, list, list]:
+    """(fields, lines before the backwards loop, lines opening its body, lines after it) of an
+    interpolating op: the J - 1 inputs kept from the previous block (newest first), the state after
+    this block saved before ``out`` is written, and the window ``win`` of x[t] .. x[t - J + 1]."""
+    H = J - 1
+    fields = [(D, f"{f}_z", max(H, 1), f"the last {H} inputs, newest first" if H else "unused")]
+    pre = [f"{D} *const z = s->{f}_z;", "uint32_t j;"]
+    post = []
+    if H:
+        pre += [f"{D} nz[{H}]; /* the state after this block, saved before out is written */",
+                f"for (j = 0u; j < {H}u; j++) {{",
+                f"    nz[j] = ((size_t)j < n) ? {src}[n - 1u - j] : z[(size_t)j - n];", "}"]
+        post = [f"for (j = 0u; j < {H}u; j++) {{", "    z[j] = nz[j];", "}"]
+    else:
+        pre.append("(void)z;")
+    body = [f"{D} win[{J}]; /* x[t], x[t-1], .. x[t-{J - 1}] */", f"for (j = 0u; j < {J}u; j++) {{",
+            f"    win[j] = ((size_t)j <= t) ? {src}[t - j] : z[(size_t)j - t - 1u];", "}"]
+    return fields, pre, body, post
+
+
+def _interpolating_float(op: PolyFirOp, f: str, src: str) -> _OpCode:
+    """A float32 polyphase FIR interpolating by ``L``: output ``t L + p`` is ``acc = h[p] x[t]``, then
+    ``acc = acc + h[p + jL] x[t - j]`` for j = 1, 2, ... (every step rounded; the engine's order, the
+    plain fir's: inputs before the first are 0.0), run backwards through the block as the fixed-point
+    code."""
+    from .header import _float_literal as flt
+
+    L = op.up
+    taps = list(op.taps)
+    J = max(1, -(-len(taps) // L))
+    fields, pre, body, post = _window(f, src, "float", J)
+    tables: list[str] = []
+    for p, branch in enumerate(_branches(taps, L)):
+        if not branch:
+            inner = [f"out[t * {L}u + {p}u] = 0.0f; /* no tap in this branch */"]
+        elif len(branch) <= UNROLL_TAPS:
+            inner = [f"float acc = {flt(branch[0])} * win[0];", "float q;"]
+            for j, c in enumerate(branch[1:], 1):
+                inner += [f"q = {flt(c)} * win[{j}];", "acc = acc + q;"]
+            inner.append(f"out[t * {L}u + {p}u] = acc;")
+        else:
+            tables += [f"static const float h{p}[{len(branch)}] = {{ /* branch {p} */"]
+            tables += ["    " + ", ".join(flt(c) for c in branch[i:i + 4]) + "," for i in range(0, len(branch), 4)]
+            tables.append("};")
+            inner = [f"float acc = h{p}[0] * win[0];", f"for (j = 1u; j < {len(branch)}u; j++) {{",
+                     f"    const float q = h{p}[j] * win[j];", "    acc = acc + q;", "}",
+                     f"out[t * {L}u + {p}u] = acc;"]
+        body += ["{", *_indent(inner, 4), "}"]
+    head = [f"polyphase FIR interpolating by {L}, {len(taps)} taps in {L} branches (float32): y[t*{L} + p] = "
+            f"h[p] x[t] + h[p + {L}] x[t-1] + ... (each step rounded)", _BACKWARDS.format(L=L)]
+    lines = tables + pre + ["for (t = n; t-- > 0u;) {", *_indent(body, 4), "}"] + post
+    lines.append(f"n = n * {L}u; /* the block at the new rate */")
+    return _OpCode(head, fields, lines)
 
 
 def _decimating(op: PolyFirOp, f: str, head, fields, pre, body, post, pushed: int, y: str = "y"):
@@ -853,8 +1028,13 @@ def _cic_code(fx: "_Fixed", op: CicOp, f: str, src: str, D: str) -> _OpCode:
 
 def _rate_op(program: ChannelProgram, op: RateOp, f: str, src: str, D: str, i: int) -> _OpCode:
     if op.up > 1:
-        raise GeneratedCodeError(f"channel '{program.name}': op {i} inserts zeros (interpolation by {op.up}), which "
-                                 "generated code does not write yet; simulate it with coefc run")
+        L = op.up
+        zero = "0.0f" if D == "float" else "0"
+        body = [f"const {D} v = {src}[t];"] + [f"out[t * {L}u + {p}u] = {zero};" for p in range(L - 1, 0, -1)]
+        body.append(f"out[t * {L}u] = v;")
+        lines = [f"for (t = n; t-- > 0u;) {{", *_indent(body, 4), "}", f"n = n * {L}u; /* the block at the new rate */"]
+        return _OpCode([f"insert {L - 1} zeros after each sample (no image filter)", _BACKWARDS.format(L=L).replace(
+            "output t*{L}+p".format(L=L), f"output t*{L}+p")], [], lines)
     M = op.down
     fields = [("uint32_t", f"{f}_ph", 0, f"input phase 0 .. {M - 1}; a sample is kept at 0")]
     body = ["if (ph == 0u) {", "    out[o] = x;", "    o++;", "}", f"ph = (ph + 1u == {M}u) ? 0u : ph + 1u;"]
@@ -914,8 +1094,9 @@ def _float_ops(program: ChannelProgram) -> list[_OpCode]:
             else:
                 raise GeneratedCodeError(f"channel '{program.name}': float32 has no {op.structure} sections")
             out.append(_OpCode(head, fields, pre + _loop(src, body, D) + post))
+        elif isinstance(op, PolyFirOp) and op.up > 1:
+            out.append(_interpolating_float(op, f, src))
         elif isinstance(op, (FirOp, PolyFirOp)):
-            _no_interpolation(program, op, i)
             taps = [flt(v) for v in op.taps]
             n = len(taps)
             head = [f"FIR, {n} taps: acc = t0 x[n]; acc += t_j x[n-j] for j = 1 .. {n - 1} (each step rounded); "
@@ -961,6 +1142,29 @@ def _fields_sorted(ops: list[_OpCode]) -> list[dict]:
     return rows
 
 
+def interpolation(ops) -> int:
+    """The product of the ``up`` factors of a channel's ops (1: none)."""
+    m = 1
+    for op in ops:
+        if isinstance(op, (PolyFirOp, RateOp)):
+            m *= op.up
+    return m
+
+
+def _room(ops) -> int:
+    """The output array's room in input-block lengths: the largest rate ratio after any op, rounded
+    up (every op works in place in the output array; with blocks of a multiple of the decimation
+    every length is exact)."""
+    from fractions import Fraction
+
+    r, most = Fraction(1), Fraction(1)
+    for op in ops:
+        if isinstance(op, (PolyFirOp, RateOp)):
+            r *= Fraction(op.up, op.down)
+            most = max(most, r)
+    return -(-most.numerator // most.denominator)
+
+
 def _hz(v: float) -> str:
     return str(int(v)) if float(v).is_integer() else repr(float(v))
 
@@ -999,8 +1203,11 @@ def render_kernel(*, programs, names: CNames, source: str, banner: list[str], he
             "uses_state": bool(fields),
             "ops": [{"comment": o.comment, "lines": o.lines} for o in ops],
             "golden_lines": _lines(golden_outs[i]) if golden_inputs else [],
-            # multirate: the decimation M (blocks of a multiple of M samples, n / M out) and the rates
+            # multirate: the decimation M (blocks of a multiple of M samples, n / M out), the
+            # interpolation L (n L / M out), the room the output array needs (n R samples) and the rates
             "decim": decimation(p.ops),
+            "interp": interpolation(p.ops),
+            "room": _room(p.ops),
             "golden_len": len(golden_outs[i]) if golden_inputs else 0,
             "rates": (f"{_hz(p.sample_rate_hz)} Hz in, {_hz(p.output_rate_hz)} Hz out"
                       if p.output_rate_hz != p.sample_rate_hz else ""),

@@ -1,7 +1,7 @@
 """Coefficient word length per operation: a channel and ranges of widths in, the smallest width each op needs out.
 
 A channel realised with the widest coefficient word is the reference.  For one op
-(second-order section, FIR or gain) at a time, its coefficients are replaced by the
+(second-order section, FIR, polyphase FIR or gain) at a time, its coefficients are replaced by the
 ones the same realisation gets with a narrower coefficient word, written exactly in
 the wide format (a narrow integer ``C`` with ``Fn`` fractional bits is the wide
 integer ``C * 2^(Fw - Fn)``: the same physical value), and every other op keeps its
@@ -24,9 +24,9 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from ..program import ChannelProgram, FirOp, GainOp, SectionOp
+from ..program import ChannelProgram, FirOp, GainOp, PolyFirOp, SectionOp
 
-_COEF_OPS = (SectionOp, FirOp, GainOp)
+_COEF_OPS = (SectionOp, FirOp, PolyFirOp, GainOp)
 
 
 @dataclass(frozen=True)
@@ -34,7 +34,7 @@ class OpWidth:
     """The smallest coefficient width one op of a channel needs (``None``: none passed)."""
 
     op: int  # 1-based position in the program
-    kind: str  # "section", "fir", "gain"
+    kind: str  # "section", "fir", "polyphase-fir", "gain"
     coef_bits: int | None
     note: str = ""
 
@@ -45,7 +45,7 @@ class OpWidth:
 def _coefs(op) -> list[int]:
     if isinstance(op, SectionOp):
         return [*op.b, *op.a, *op.a_lo]
-    if isinstance(op, FirOp):
+    if isinstance(op, (FirOp, PolyFirOp)):
         return list(op.taps)
     return [op.coef]
 
@@ -53,7 +53,7 @@ def _coefs(op) -> list[int]:
 def _with_coefs(op, vals: list[int], shift: int):
     if isinstance(op, SectionOp):
         return replace(op, b=tuple(vals[:3]), a=tuple(vals[3:]), shift=shift)
-    if isinstance(op, FirOp):
+    if isinstance(op, (FirOp, PolyFirOp)):
         return replace(op, taps=tuple(vals), shift=shift)
     return replace(op, coef=vals[0], shift=shift)
 
@@ -146,4 +146,4 @@ def fewest_op_widths(sweeper, channel_index: int, target: str, structure: str, a
 
 
 def _kind(op) -> str:
-    return {SectionOp: "section", FirOp: "fir", GainOp: "gain"}[type(op)]
+    return {SectionOp: "section", FirOp: "fir", PolyFirOp: "polyphase-fir", GainOp: "gain"}[type(op)]

@@ -47,7 +47,7 @@ from dataclasses import dataclass, field
 
 from ..budget import CheckReport, run_check
 from ..errors import DescriptionError
-from ..program import ChannelProgram, DelayOp, FirOp, GainOp, SectionOp, STRUCTURE_TABLE
+from ..program import ChannelProgram, DelayOp, FirOp, GainOp, PolyFirOp, SectionOp, STRUCTURE_TABLE
 from ..qformat import QFormat
 from ..spec import Budget
 from ..targetspec import Overrides
@@ -240,8 +240,9 @@ def program_memory_bytes(program: ChannelProgram) -> int:
     """Coefficient plus state memory of a realised channel, in standard containers.
 
     DF1 keeps four data words per section, TDF2 two accumulator words, DF1 with error
-    feedback four data words and one error word; an FIR of N taps keeps N - 1 data
-    words; a delay of D samples D data words.
+    feedback four data words and one error word; an FIR of N taps (also a polyphase
+    one) keeps N - 1 data words and its non-zero taps (half of them when symmetric); a
+    delay of D samples D data words.
     """
     a = program.arithmetic
     if a.is_float:
@@ -254,9 +255,10 @@ def program_memory_bytes(program: ChannelProgram) -> int:
             total += 5 * cw
             st = STRUCTURE_TABLE[op.structure]
             total += st.data_states * dw + st.acc_states * aw
-        elif isinstance(op, FirOp):
+        elif isinstance(op, (FirOp, PolyFirOp)):  # zero taps (a half-band's every other tap) not stored
             n = len(op.taps)
-            total += (n + 1) // 2 * cw if op.symmetric else n * cw
+            half = op.taps[:(n + 1) // 2] if op.symmetric else op.taps
+            total += sum(1 for t in half if t) * cw
             total += (n - 1) * dw
         elif isinstance(op, GainOp):
             total += cw
