@@ -396,8 +396,17 @@ def measured_noise(program: ChannelProgram, *, samples: int = 1 << 15, seed: int
     # narrow-band noise (slow poles) needs a longer record for the same confidence:
     # at least 32 settling times, at most 2^18 samples
     samples = int(min(max(samples, 32 * settle), max(samples, 1 << 18)))
+    # a multirate channel: n and the settling time count samples of its single-rate model (the
+    # input rate times every interpolation factor), the record counts output samples; at least
+    # 2048 of them after settling, whatever the rate change
+    up = int(np.prod([m.up for m in models])) if models else 1
+    down = int(np.prod([m.down for m in models])) if models else 1
+    settle_out = -(-settle // down)
+    wanted = max(samples * up // down, 2048) if (up, down) != (1, 1) else samples
+    length = -(-(wanted + settle_out) * down // up)
+    length = -(-length // down) * down  # whole blocks of the decimation (coefc.program)
     rng = np.random.default_rng(seed)
-    u = rng.uniform(-1.0, 1.0, samples + settle)
+    u = rng.uniform(-1.0, 1.0, length)
     if ar.is_float:
         x = (u * peak).astype(np.float32)
         xin = x.astype(np.float64)
@@ -411,7 +420,7 @@ def measured_noise(program: ChannelProgram, *, samples: int = 1 << 15, seed: int
         y = np.asarray(tr.y, dtype=np.float64) / scale
     overflows = int(sum(int(c) for c in tr.overflow_counts)) + int(sum(int(c) for c in tr.acc_overflow_counts))
     ref = chain_filter(models, xin)
-    e = (y - ref)[settle:]
+    e = (y - ref)[settle_out:]
     power = float(np.mean(e ** 2))
     variance = float(np.var(e))
     rms_in = float(np.sqrt(np.mean(xin ** 2)))
@@ -429,5 +438,5 @@ def measured_noise(program: ChannelProgram, *, samples: int = 1 << 15, seed: int
                         "error model needs signals well above one LSB (Widrow, Kollar & Liu 1996)")
     if overflows:
         note = (note + "; " if note else "") + f"{overflows} overflow events during the noise run"
-    return MeasuredNoise(power, float(np.mean(e)), dbfs(variance), samples, peak, rms_in, min_rms, holds,
+    return MeasuredNoise(power, float(np.mean(e)), dbfs(variance), len(e), peak, rms_in, min_rms, holds,
                          overflows, note, variance, None if ar.is_float else ar.data.lsb)
