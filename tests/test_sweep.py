@@ -374,3 +374,21 @@ def test_fewest_bits_is_the_exhaustive_grid_minimum(tmp_path, overflow, target, 
             # the shape a walk from the widest data word misses: that column never passes
             assert not any(q[0] == max(datas) for q in passing)
     assert found_any, "some channel must pass somewhere for this case to mean anything"
+
+
+def test_hybrid_refuses_sections_with_low_words(tmp_path):
+    # double-word sections (df1-wide-fb, df1ef-wide-fb, df1ef-wide): the low words weigh 2^-(Wc - 1) of their own
+    # coefficient width, so no exact rewrite into another width is claimed (the op is left unjudged, never guessed)
+    from coefc.explore.opwidths import hybrid
+    from coefc.program import SectionOp
+    from coefc.targetspec import Overrides
+
+    p = tmp_path / "two.toml"
+    p.write_text(TWO_SECTIONS)
+    d = coefc.load(p).design()
+    for s in ("df1ef-wide-fb", "df1ef-wide"):
+        wide = d.realise("mcu16", Overrides(structure=s)).programs[0]
+        narrow = d.realise("mcu16", Overrides(structure=s, coef="Q2.10")).programs[0]
+        for i, op in enumerate(wide.ops):
+            if isinstance(op, SectionOp):
+                assert op.a_lo and hybrid(wide, narrow, i) is None
