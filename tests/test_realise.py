@@ -362,6 +362,17 @@ def test_auto_reaches_double_word_numerator_for_a_low_frequency_peaking_section(
     _, hh = signal.freqz(hi_only, aq, worN=w)
     gap = np.max(np.abs(20 * np.log10(np.abs(hq) / np.abs(hh))))
     assert gap > 1e-4  # the low words act on the response
+    # the JSON report gives the numerator's low words beside its high words (README, "JSON")
+    import json
+
+    from test_emit_cli import coefc
+
+    r = coefc("check", f, "--json", tmp_path / "r.json")
+    assert r.returncode == 0, r.stderr
+    sec = json.loads((tmp_path / "r.json").read_text())["channels"][0]["sections"][0]
+    assert sec["structure"] == "df1ef-wide"
+    assert (sec["b"], sec["b_lo"], sec["a"], sec["a_lo"]) == ([int(v) for v in op.b], [int(v) for v in op.b_lo],
+                                                              [int(v) for v in op.a], [int(v) for v in op.a_lo])
 
 
 @pytest.mark.parametrize("scaling", ["none", "l1", "l2"])
