@@ -147,6 +147,11 @@ def _section(rng, arith: Arithmetic, structure: str, shift: int) -> SectionOp:
         from coefc.realise.coefficients import split_feedback
 
         hi, lo, _ = split_feedback((1.0, a1, a2), arith.coef, shift)
+        if STRUCTURE_TABLE[structure].wide_numerator:  # df1ef-wide: the numerator in two words too
+            from coefc.realise.coefficients import split_numerator
+
+            bh, bl, _ = split_numerator(b, arith.coef, shift)
+            return SectionOp(bh, hi, shift, structure, a_lo=lo, b_lo=bl)
         return SectionOp(tuple(q(v) for v in b), hi, shift, structure, a_lo=lo)
     if STRUCTURE_TABLE[structure].state_space:
         # coupled: the rotation of the pole pair (alpha = r cos, beta = r sin), an output combination

@@ -102,17 +102,19 @@ class Model:
             s = [outs[1][0], outs[2][0]]
         return ys, no, na
 
-    def section(self, x, b, a, shift, structure, a_lo=(0, 0), coef_width=None):
+    def section(self, x, b, a, shift, structure, a_lo=(0, 0), coef_width=None, b_lo=(0, 0, 0)):
         """Returns (y, data overflow count, accumulator overflow count).
 
         ``df1-wide-fb``: *a* are the high feedback words, *a_lo* the low words of
         weight 2^-L, L = coef_width - 1 (coefc.program's docstring).  ``df1ef-wide-fb``:
         the same, plus the residual E of the previous accumulator (which holds the
-        floored low-product term), as in ``df1ef``.
+        floored low-product term), as in ``df1ef``.  ``df1ef-wide``: as ``df1ef-wide-fb``
+        with *b* the numerator's high words and *b_lo* its low words (same weight 2^-L);
+        their sum over x[n], x[n-1], x[n-2] is floored and added before E.
         """
         if structure == "coupled":
             return self.coupled(x, b, a, shift)
-        known = ("df1", "tdf2", "df1ef", "df1-wide-fb", "df1ef-wide-fb")  # the structures this model knows
+        known = ("df1", "tdf2", "df1ef", "df1-wide-fb", "df1ef-wide-fb", "df1ef-wide")  # the structures this model knows
         if structure not in known:
             raise NotImplementedError(f"exact model: no recurrence for structure '{structure}'")
         k = self._k(shift)
@@ -133,15 +135,18 @@ class Model:
             else:
                 total = (self.q(b0, xn) + self.q(b1, xh[0]) + self.q(b2, xh[1])
                          + self.q(-a1, yh[0]) + self.q(-a2, yh[1]))
-                if structure in ("df1ef", "df1ef-wide-fb"):
+                if structure in ("df1ef", "df1ef-wide-fb", "df1ef-wide"):
                     total += e
-                if structure in ("df1-wide-fb", "df1ef-wide-fb"):
+                if structure in ("df1-wide-fb", "df1ef-wide-fb", "df1ef-wide"):
                     p = a_lo[0] * yh[0] + a_lo[1] * yh[1]
                     total -= math.floor(Fraction(p, 2 ** (coef_width - 1)))
+                if structure == "df1ef-wide":
+                    qb = b_lo[0] * xn + b_lo[1] * xh[0] + b_lo[2] * xh[1]
+                    total += math.floor(Fraction(qb, 2 ** (coef_width - 1)))
                 acc, w = self._acc(total)
                 na += w
                 yn, v, bad = self._out(acc, k)
-                if structure in ("df1ef", "df1ef-wide-fb"):
+                if structure in ("df1ef", "df1ef-wide-fb", "df1ef-wide"):
                     e = acc - v * 2 ** k  # residual of the wrapped accumulator, before fitting
             no += bad
             ys.append(yn)
@@ -253,7 +258,8 @@ def run_program(program, x):
     for op in program.ops:
         if isinstance(op, SectionOp):
             r = m.section(cur, [int(v) for v in op.b], [int(v) for v in op.a], op.shift, op.structure,
-                          a_lo=[int(v) for v in op.a_lo] if op.a_lo else (0, 0), coef_width=ar.coef.width)
+                          a_lo=[int(v) for v in op.a_lo] if op.a_lo else (0, 0), coef_width=ar.coef.width,
+                          b_lo=[int(v) for v in op.b_lo] if op.b_lo else (0, 0, 0))
         elif isinstance(op, FirOp):
             r = m.fir(cur, [int(v) for v in op.taps], op.shift)
         elif isinstance(op, GainOp):

@@ -218,6 +218,70 @@ def test_cost_figures_of_error_feedback_with_double_word_feedback():
     assert body.index("const int32_t lq =") < body.index("acc -= (uint32_t)lq;") < body.index("e = (g & ")
 
 
+def test_cost_figures_of_double_word_numerator_and_feedback():
+    """df1ef-wide: per section the 5 products of df1, the 2 low feedback and the 3 low numerator products
+    (10 multiplies); 10 adds (the 7 of df1ef-wide-fb, 2 to sum the low numerator products and 1 to add their
+    floor); 10 stored coefficient words; state as df1ef-wide-fb (coefc.program's recurrence; counting as for df1,
+    common practice, no source)."""
+    target = find_target("mcu16")
+    files = generated_files(hand_programs(target.arithmetic, ("df1ef-wide",)), "mcu16", "demo")
+    h, c = files["demo.h"], files["demo.c"]
+    ident = c_identifier("sec_df1ef-wide", "channel", "x").upper()
+    assert f"#define DEMO_{ident}_MULS_PER_SAMPLE 30\n" in h  # three sections
+    assert f"#define DEMO_{ident}_ADDS_PER_SAMPLE 30\n" in h
+    assert f"#define DEMO_{ident}_COEF_BYTES 60\n" in h  # 30 words of 2 bytes
+    assert f"#define DEMO_{ident}_STATE_BYTES 36\n" in h  # 3 x (4 data words of 2 bytes + E of 4 bytes)
+    # both floored low sums are in the accumulator before E is added, and E is the residual of that accumulator
+    body = c[c.index("nq ="):]
+    assert body.index("acc += (uint32_t)nq;") < body.index("acc -= (uint32_t)lq;") < body.index("acc += e;") \
+        < body.index("e = w - (v << ")
+
+
+def _df1ef_wide_units():
+    """Hand-built df1ef-wide channels on mcu16, every rounding and overflow mode and a wrapping 24-bit accumulator."""
+    base = find_target("mcu16").arithmetic
+    out = []
+    for j, r in enumerate(ROUNDING_MODES):
+        for o in ("saturate", "wrap"):
+            name = f"w_{r.replace('-', '_')}_{o}"
+            out.append((name, generated_files(hand_programs(base.with_(rounding=r, overflow=o), ("df1ef-wide",),
+                                                            seed=40 + j), "mcu16", name)))
+    out.append(("w_narrow", generated_files(hand_programs(base.with_(acc_bits=24, overflow="wrap"), ("df1ef-wide",),
+                                                          seed=99), "mcu16", "w_narrow")))
+    return out
+
+
+def _wide_platforms():
+    out = []
+    for cc in compilers():
+        out.append(pytest.param(_native(cc, "-O2"), id=f"{cc}-O2"))
+        out.append(pytest.param(_native(cc, "-O1", "-fsanitize=undefined", "-fno-sanitize-recover=all"),
+                                id=f"{cc}-ubsan"))
+        out.append(pytest.param(_native(cc, "-O2", "-m32"), id=f"{cc}-m32"))
+    out += [pytest.param(p, id=p.name.split()[0]) for p in CROSS]
+    return out
+
+
+@pytest.mark.parametrize("platform", _wide_platforms())
+def test_df1ef_wide_generated_code_bit_exact(platform, tmp_path):
+    """df1ef-wide (double-word numerator and feedback, error feedback) in generated code equals the engine's
+    golden vectors on every platform here: gcc and clang natively, under UBSan and -m32, and the cross
+    platforms (skipped where their packages are missing)."""
+    if "-fsanitize=undefined" in platform.flags and not ubsan_works(platform.cc):
+        pytest.skip(f"{platform.cc} has no undefined-behaviour sanitizer runtime here")
+    if "-m32" in platform.flags and not m32_works(platform.cc):
+        pytest.skip(f"{platform.cc} cannot link -m32 programs here")
+    missing = platform.missing()
+    if missing:
+        pytest.skip(f"{platform.name}: {', '.join(missing)} not installed")
+    units = _df1ef_wide_units()
+    rc, out = run_generated(tmp_path, units, platform)
+    assert rc == 0, out
+    assert "runtime error" not in out and "MISMATCH" not in out
+    if platform.runner is not None:
+        assert out.count(": ok") == len(units), out
+
+
 def test_generated_names_that_collide_are_refused():
     """The one place that builds the C names refuses two channels that would
     define the same identifier (here: the same channel name twice)."""

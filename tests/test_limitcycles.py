@@ -380,6 +380,25 @@ def test_error_feedback_wide_search_matches_brute_force(seed):
         assert max(abs(v) for v in cycle_outputs(op, res, ar)) == res.amplitude_lsb
 
 
+@pytest.mark.parametrize("seed", range(2))
+def test_df1ef_wide_has_the_zero_input_verdicts_of_df1ef_wide_fb(seed):
+    # df1ef-wide's numerator acts on the input only (x = 0: Q = 0, floor(0) = 0; coefc.program), so its zero-input
+    # map is df1ef-wide-fb's: the same verdicts, and the brute force over every (y1, y2, E) agrees
+    from dataclasses import replace
+
+    rounding = ["add-half", "half-even", "truncate", "toward-zero"][seed]
+    ar = arith(data=(1, 9), coef=(2, 5), acc=24, rounding=rounding, structure="df1ef-wide-fb")
+    r = 0.96 if seed % 2 else 0.8
+    fb = wide_section(-2 * r * math.cos(0.05 + seed), r * r, ar)
+    wide = replace(fb, structure="df1ef-wide", b_lo=(15, -16, 3))
+    res_fb = analyse_section(fb, 0, ar)
+    res = analyse_section(wide, 0, ar.with_(structure="df1ef-wide"))
+    assert (res.status, res.amplitude_lsb, res.period, res.bound_lsb, res.exhaustive) == \
+        (res_fb.status, res_fb.amplitude_lsb, res_fb.period, res_fb.bound_lsb, res_fb.exhaustive)
+    assert res.overflow == res_fb.overflow
+    assert res.exhaustive and (res.amplitude_lsb or 0) == brute_force_ef_wide(fb, ar, int(res.bound_lsb) + 1)
+
+
 def test_error_feedback_wide_cycle_runs_in_the_engine():
     # a found df1ef-wide-fb cycle is a real zero-input behaviour of the bit-true engine: an input that puts the
     # section into the reported DC fixed point (a step, then zeros) leaves it there

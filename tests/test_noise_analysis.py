@@ -4,6 +4,7 @@ bit-true engine on every example description."""
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -292,6 +293,40 @@ def test_error_feedback_with_double_word_feedback_two_sources(rounding):
     # error feedback takes the rounding's share far below plain double-word feedback's
     plain = analytic_noise(_wide_section(-2 * r * math.cos(th), r * r, ar.with_(structure="df1-wide-fb"), 0.02))
     assert an.dbfs < plain.dbfs - 20
+@pytest.mark.parametrize("rounding", ["add-half", "truncate", "half-even", "toward-zero"])
+def test_double_word_numerator_floor_is_an_unshaped_source(rounding):
+    # df1ef-wide on 16-bit words: as df1ef-wide-fb, plus the floor of the low numerator products, an input-side
+    # source that E never carries (coefc.program's recurrence): the two floors reach the output through the
+    # unshaped 1/A(z) (checked against scipy.signal.lfilter, a reference library), with twice one floor's variance
+    # and opposite means that cancel (the linear model of Jackson 1970 applied to each quantiser, taken
+    # independent); the analytic noise against the bit-true engine
+    from scipy import signal
+
+    from coefc.realise.coefficients import split_numerator
+
+    ar = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 14), acc_bits=32, rounding=rounding, overflow="saturate",
+                    structure="df1ef-wide")
+    r, th = 0.99, 2 * math.pi * 300 / 48000
+    p = _wide_section(-2 * r * math.cos(th), r * r, ar, b0=0.02)
+    bh, bl, bad = split_numerator((0.02, -0.013, 0.007), ar.coef, 1)
+    assert not bad and all(bl)
+    p = ChannelProgram("t", 48000.0, ar, (replace(p.ops[0], b=bh, b_lo=bl),))
+    an = analytic_noise(p)
+    assert len(an.sources) == 2
+    rnd, flo = an.sources
+    a = np.array([1.0, *p.ops[0].a_phys(ar.coef)])
+    imp = np.zeros(200000)
+    imp[0] = 1.0
+    g_shaped, g_plain = signal.lfilter([1.0, -1.0], a, imp), signal.lfilter([1.0], a, imp)
+    assert rnd.power_gain == pytest.approx(float(np.dot(g_shaped, g_shaped)), rel=1e-6)
+    assert flo.power_gain == pytest.approx(float(np.dot(g_plain, g_plain)), rel=1e-6)
+    # each floor drops a fraction in [0, 1) of an accumulator LSB (2^-k output LSB, k = 14 - 1); two of them
+    assert flo.variance_lsb2 == pytest.approx(2 * (1 - 2.0 ** -30) / 12 * 2.0 ** -26, rel=1e-9)
+    assert flo.mean_lsb == 0.0
+    me = measured_noise(p, samples=1 << 16)
+    assert abs(an.dbfs - me.dbfs) < 1.0
+
+
 # rounded products ([arithmetic] product_shift): one source per rounded product, all at the
 # accumulator (Jackson 1970: rounding after every multiplication, k_j sources of q^2/12 at a
 # node [confirmed]); error feedback shapes only the final rounding.

@@ -309,6 +309,72 @@ def test_auto_reaches_error_feedback_with_double_word_feedback(tmp_path):
     assert analytic_noise(prog).dbfs <= -75
 
 
+def test_double_word_numerator_split_keeps_unit_zeros_and_its_error_bound():
+    # df1ef-wide: each numerator value as BH 2^L + BL, within half a step of the Fc - s + L fraction bits
+    # (coefc.program's docstring); zeros at z = +-1 stay exactly there (the split is of the exact integers)
+    from coefc.program import lo_bits
+    from coefc.realise.coefficients import split_numerator
+
+    fmt = QFormat(2, 14)
+    L = lo_bits(fmt)
+    rng = np.random.default_rng(3)
+    for _ in range(200):
+        b = rng.uniform(-1.9, 1.9, 3)
+        s = int(rng.integers(0, 3))
+        hi, lo, bad = split_numerator(b, fmt, s)
+        assert not bad and all(abs(v) <= 1 << (L - 1) for v in lo)
+        got = [(h + l * 2.0 ** -L) * 2.0 ** (s - fmt.frac_bits) for h, l in zip(hi, lo)]
+        assert np.max(np.abs(np.array(got) - b)) <= 2.0 ** -(fmt.frac_bits - s + L + 1) * (1 + 1e-9)
+    for b in ([0.3, -0.6, 0.3], [0.25, 0.5, 0.25], [0.7, 0.0, -0.7], [0.1234567, -0.2469134, 0.1234567]):
+        hi, lo, _ = split_numerator(b, fmt, 0)
+        t = [h * 2 ** L + l for h, l in zip(hi, lo)]
+        assert (t[0] - t[1] + t[2] == 0) or (t[0] + t[1] + t[2] == 0)
+
+
+def test_auto_reaches_double_word_numerator_for_a_low_frequency_peaking_section(tmp_path):
+    # an 85 Hz peaking section (Q 2, -4.5 dB) at 48 kHz on mcu16: its zeros at radius 0.998, rounded to 14 fraction
+    # bits, move the response by 2.4 dB in df1ef and df1ef-wide-fb and 0.032 dB in coupled (measured by coefc
+    # check); with a 0.01 dB limit auto must climb to df1ef-wide (numerator in two words: 7.5e-5 dB), the last
+    # candidate, and then meet it (the noise limit here is loose, -60 dBFS: this tests the choice, not a product)
+    from coefc.analyse.response import analyse_response
+    from coefc.api import load
+
+    f = tmp_path / "pk.toml"
+    f.write_text('name = "pk16"\nsample_rate_hz = 48000\n[implementation]\ntarget = "mcu16"\nstructure = "auto"\n'
+                 'scaling = "l1"\n[budget]\npassband_deviation_db = 0.01\noutput_noise_dbfs = -60\n'
+                 '[[channel]]\nname = "p"\n'
+                 'stages = [{ kind = "peaking", freq_hz = 85, q = 2.0, gain_db = -4.5 }]\n')
+    real = load(f).design().realise()
+    prog = real.programs[0]
+    assert [op.structure for op in prog.ops if isinstance(op, SectionOp)] == ["df1ef-wide"]
+    assert any("df1ef-wide chosen by auto" in n for n in prog.notes)
+    dev = analyse_response(real.design.channels[0], prog).passband_deviation_db
+    assert dev <= 0.01
+    # the realised section's response against the float design's, by scipy.signal.freqz (a reference library)
+    from coefc.program import section_transfer
+
+    op = prog.sections()[0]
+    bq, aq = section_transfer(op, prog.arithmetic.coef)
+    w = np.linspace(2 * np.pi * 20 / 48000, np.pi * 0.9, 2000)
+    _, hq = signal.freqz(bq, aq, worN=w)
+    k = 2.0 ** ((op.shift - prog.arithmetic.coef.frac_bits))
+    hi_only = [float(v) * k for v in op.b]
+    _, hh = signal.freqz(hi_only, aq, worN=w)
+    gap = np.max(np.abs(20 * np.log10(np.abs(hq) / np.abs(hh))))
+    assert gap > 1e-4  # the low words act on the response
+    # the JSON report gives the numerator's low words beside its high words (README, "JSON")
+    import json
+
+    from test_emit_cli import coefc
+
+    r = coefc("check", f, "--json", tmp_path / "r.json")
+    assert r.returncode == 0, r.stderr
+    sec = json.loads((tmp_path / "r.json").read_text())["channels"][0]["sections"][0]
+    assert sec["structure"] == "df1ef-wide"
+    assert (sec["b"], sec["b_lo"], sec["a"], sec["a_lo"]) == ([int(v) for v in op.b], [int(v) for v in op.b_lo],
+                                                              [int(v) for v in op.a], [int(v) for v in op.a_lo])
+
+
 @pytest.mark.parametrize("scaling", ["none", "l1", "l2"])
 def test_per_section_structures_are_an_argument_not_hidden_state(scaling):
     # structure = "auto" hands its per-section choice to the realiser as an argument; the

@@ -159,8 +159,11 @@ def _physical(prog):
             a = np.array([1.0, op.a[0] * sc, op.a[1] * sc])
             if op.a_lo:  # double-word feedback: the low words weigh 2^-(Wc - 1) of a high word
                 a[1:] += np.array(op.a_lo, dtype=float) * sc * 2.0 ** -(ar.coef.width - 1)
-            nb = [1.0, -1.0] if op.structure in ("df1ef", "df1ef-wide-fb") else [1.0]  # error feedback
-            out.append((np.array(op.b) * sc, a, nb))
+            nb = [1.0, -1.0] if op.structure in ("df1ef", "df1ef-wide-fb", "df1ef-wide") else [1.0]  # error feedback
+            bq = np.array(op.b, dtype=float)
+            if op.b_lo:  # double-word numerator (df1ef-wide): the same weight
+                bq = bq + np.array(op.b_lo, dtype=float) * 2.0 ** -(ar.coef.width - 1)
+            out.append((bq * sc, a, nb))
         elif isinstance(op, FirOp):
             out.append((np.array(op.taps) * 2.0 ** (op.shift - fc), np.array([1.0]), [1.0]))
         elif isinstance(op, GainOp):

@@ -54,6 +54,10 @@ def ops(draw, ar):
     shift = draw(st.integers(max(fc - 62, -4), fc - 1))
     if kind == "sos":
         c = [_word(draw, ar.coef) for _ in range(8)]
+        if STRUCTURE_TABLE[ar.structure].wide_numerator:  # df1ef-wide: low words of b as well
+            b_lo = tuple(_word(draw, ar.coef) for _ in range(3))
+            return SectionOp(b=tuple(c[:3]), a=tuple(c[3:5]), shift=shift, structure=ar.structure, a_lo=tuple(c[5:7]),
+                             b_lo=b_lo)
         if STRUCTURE_TABLE[ar.structure].wide_feedback:
             return SectionOp(b=tuple(c[:3]), a=tuple(c[3:5]), shift=shift, structure=ar.structure, a_lo=tuple(c[5:7]))
         return _sec(c, shift, ar.structure)
@@ -312,6 +316,50 @@ def test_error_feedback_wide_section_equals_exact_model_on_every_mode(rounding, 
         s2 = SectionOp(b=sec.b, a=sec.a, shift=1, structure=other, a_lo=lo if other == "df1-wide-fb" else ())
         y_other = sim.simulate(ChannelProgram("t", 48000, ar.with_(structure=other), (s2,)), small)
         assert not np.array_equal(y_other, y.y)
+
+
+EF_WIDE_NUM_SECS = (
+    # EF_WIDE_SECS with double-word numerators: low words at both ends of their range, and the floored low
+    # numerator products of a full-scale input
+    SectionOp(b=(300, -600, 300), a=(-32768, 16384), a_lo=(9000, -8999), b_lo=(16384, -16384, 777), shift=1,
+              structure="df1ef-wide"),
+    SectionOp(b=(16384, 0, -16384), a=(-32767, 16383), a_lo=(-16384, 16383), b_lo=(-16383, 5, 16383),
+              structure="df1ef-wide"),
+)
+
+
+@pytest.mark.parametrize("acc_bits", [32, 24])
+@pytest.mark.parametrize("rounding", ROUNDING_MODES)
+@pytest.mark.parametrize("overflow", OVERFLOW_MODES)
+def test_double_word_numerator_section_equals_exact_model_on_every_mode(rounding, overflow, acc_bits):
+    # df1ef-wide against the independent model (recurrence of coefc.program's docstring), 16-bit words, the
+    # compiled core and the exact Python path, saturating/wrapping inputs and a wrapping 24-bit accumulator
+    ar = Arithmetic(data=QFormat(1, 15), coef=QFormat(2, 14), acc_bits=acc_bits, rounding=rounding,
+                    overflow=overflow, structure="df1ef-wide")
+    x = np.tile(np.r_[np.full(40, 32767), np.full(40, -32768), np.arange(-200, 200, 5)], 4).astype(np.int64)
+    prog = ChannelProgram("t", 48000, ar, EF_WIDE_NUM_SECS)
+    assert sim._fast_ok(prog)
+    _compare(prog, x.tolist())
+    _compare(prog, x.tolist(), exact=True)
+    # the low numerator words act: without them (df1ef-wide-fb, same high words) the output differs, and with
+    # low words of zero df1ef-wide is df1ef-wide-fb sample for sample
+    fb = tuple(SectionOp(b=s.b, a=s.a, a_lo=s.a_lo, shift=s.shift, structure="df1ef-wide-fb") for s in EF_WIDE_NUM_SECS)
+    y_fb = sim.simulate(ChannelProgram("t", 48000, ar.with_(structure="df1ef-wide-fb"), fb), x)
+    assert not np.array_equal(y_fb, sim.simulate(prog, x))
+    zero = tuple(SectionOp(b=s.b, a=s.a, a_lo=s.a_lo, b_lo=(0, 0, 0), shift=s.shift, structure="df1ef-wide")
+                 for s in EF_WIDE_NUM_SECS)
+    assert np.array_equal(y_fb, sim.simulate(ChannelProgram("t", 48000, ar, zero), x))
+
+
+@pytest.mark.parametrize("rounding", ROUNDING_MODES)
+def test_double_word_numerator_beyond_64_bits_takes_the_exact_path(rounding):
+    ar = Arithmetic(data=QFormat(1, 31), coef=QFormat(2, 30), acc_bits=80, rounding=rounding, structure="df1ef-wide")
+    sec = SectionOp(b=(1 << 20, -(1 << 21), 1 << 20), a=(-(1 << 31), (1 << 30) - 1), a_lo=((1 << 30) - 7, 12345),
+                    b_lo=((1 << 30) - 1, -(1 << 30), 99), structure="df1ef-wide")
+    prog = ChannelProgram("t", 48000, ar, (sec,))
+    assert not sim._fast_ok(prog)
+    x = np.r_[np.full(30, (1 << 31) - 1), np.full(30, -(1 << 31)), np.zeros(40)].astype(np.int64)
+    _compare(prog, x.tolist())
 
 
 @pytest.mark.parametrize("rounding", ROUNDING_MODES)

@@ -430,3 +430,21 @@ def test_op_widths_and_memory_cover_the_polyphase_fir(tmp_path):
     widths = fewest_op_widths(sw, 0, "mcu32", "df1", 64, 32, range(8, 33, 4))
     poly = [w for w in widths if w.kind == "polyphase-fir"]
     assert len(poly) == 1 and poly[0].coef_bits is not None and 8 < poly[0].coef_bits <= 32
+
+
+def test_hybrid_refuses_sections_with_low_words(tmp_path):
+    # double-word sections (df1-wide-fb, df1ef-wide-fb, df1ef-wide): the low words weigh 2^-(Wc - 1) of their own
+    # coefficient width, so no exact rewrite into another width is claimed (the op is left unjudged, never guessed)
+    from coefc.explore.opwidths import hybrid
+    from coefc.program import SectionOp
+    from coefc.targetspec import Overrides
+
+    p = tmp_path / "two.toml"
+    p.write_text(TWO_SECTIONS)
+    d = coefc.load(p).design()
+    for s in ("df1ef-wide-fb", "df1ef-wide"):
+        wide = d.realise("mcu16", Overrides(structure=s)).programs[0]
+        narrow = d.realise("mcu16", Overrides(structure=s, coef="Q2.10")).programs[0]
+        for i, op in enumerate(wide.ops):
+            if isinstance(op, SectionOp):
+                assert op.a_lo and hybrid(wide, narrow, i) is None

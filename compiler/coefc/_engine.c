@@ -859,22 +859,24 @@ static PyObject *py_lanes(PyObject *self, PyObject *args)
     return PyBool_FromLong(lanes_on > 0);
 }
 
-/* ------------------------------------------------------------ df1-wide-fb, df1ef-wide-fb
- * sos_wide(x, y, B0, B1, B2, A1H, A2H, A1L, A2L, L, k, acc_bits, rounding, overflow, width[, ef])
+/* ------------------------------------------------------------ df1-wide-fb, df1ef-wide-fb, df1ef-wide
+ * sos_wide(x, y, B0, B1, B2, A1H, A2H, A1L, A2L, L, k, acc_bits, rounding, overflow, width[, ef[, B0L, B1L, B2L]])
  *     -> (ovf, acc_ovf)
  * DF1 with double-word feedback coefficients (coefc/program.py):
  *   P = A1L*y1 + A2L*y2;  acc = wrapA(B0 x + B1 x1 + B2 x2 - A1H y1 - A2H y2 - floor(P / 2^L) [+ E])
  * ef = 1 (df1ef-wide-fb): E, the residual acc - v 2^k of the previous sample's
  * accumulator (which holds the floored low products), is added; |E| < 2^k.
- * The caller guarantees that P is exact in int64 (coefficient and data words
+ * B0L, B1L, B2L (df1ef-wide: the numerator's low words, default 0):
+ *   Q = B0L*x + B1L*x1 + B2L*x2;  acc += floor(Q / 2^L)   (before E is added)
+ * The caller guarantees that P and Q are exact in int64 (coefficient and data words
  * together at most 63 bits wide); the sum of the accumulator is exact (wsum_t). */
 static PyObject *py_sos_wide(PyObject *self, PyObject *args)
 {
     PyObject *xo, *yo;
-    long long b0, b1, b2, a1, a2, l1, l2;
+    long long b0, b1, b2, a1, a2, l1, l2, m0 = 0, m1 = 0, m2 = 0;
     int L, k, acc_bits, rounding, overflow, width, ef = 0;
-    if (!PyArg_ParseTuple(args, "OOLLLLLLLiiiiii|p", &xo, &yo, &b0, &b1, &b2, &a1, &a2, &l1, &l2, &L, &k, &acc_bits,
-                          &rounding, &overflow, &width, &ef))
+    if (!PyArg_ParseTuple(args, "OOLLLLLLLiiiiii|pLLL", &xo, &yo, &b0, &b1, &b2, &a1, &a2, &l1, &l2, &L, &k, &acc_bits,
+                          &rounding, &overflow, &width, &ef, &m0, &m1, &m2))
         return NULL;
     arith_t ar;
     if (arith_init(&ar, k, acc_bits, rounding, overflow, width) < 0) return NULL;
@@ -886,6 +888,7 @@ static PyObject *py_sos_wide(PyObject *self, PyObject *args)
     int64_t *y = (int64_t *)yb.buf;
     long long ovf = 0, aovf = 0;
     int64_t x1 = 0, x2 = 0, y1 = 0, y2 = 0, e = 0;
+    const int wide_b = (m0 | m1 | m2) != 0;
     Py_BEGIN_ALLOW_THREADS
     for (Py_ssize_t i = 0; i < n; i++) {
         const int64_t in = x[i];
@@ -895,6 +898,10 @@ static PyObject *py_sos_wide(PyObject *self, PyObject *args)
         WS_INIT(w);
         WS_ADD(w, b0 * in); WS_ADD(w, b1 * x1); WS_ADD(w, b2 * x2);
         WS_ADD(w, -(a1 * y1)); WS_ADD(w, -(a2 * y2)); WS_ADD(w, -q);
+        if (wide_b) {
+            const int64_t pb = (int64_t)((uint64_t)(m0 * in) + (uint64_t)(m1 * x1) + (uint64_t)(m2 * x2));
+            WS_ADD(w, pb >> L);                                                  /* floor(Q / 2^L) */
+        }
         if (ef) WS_ADD(w, e);
         const int64_t acc = WS_FINISH(w, &ar, &aovf);
         const int64_t v = rshift(acc, &ar);
@@ -1721,7 +1728,8 @@ static PyMethodDef engine_methods[] = {
     {"sos_wide", py_sos_wide, METH_VARARGS,
      "sos_wide(x, y, B0, B1, B2, A1H, A2H, A1L, A2L, L, k, acc_bits, rounding, overflow, data_width[, ef])\n"
      "-> (ovf, acc_ovf): one df1-wide-fb section (double-word feedback coefficients);\n"
-     "ef = True (optional last argument): df1ef-wide-fb (with first-order error feedback)."},
+     "ef = True (optional): df1ef-wide-fb (with first-order error feedback);\n"
+     "B0L, B1L, B2L (optional, after ef): the numerator's low words (df1ef-wide)."},
     {"gain", py_gain, METH_VARARGS, "gain(x, y, C, k, acc_bits, rounding, overflow, data_width) -> (ovf, acc_ovf)"},
     {"sos_f32", py_sos_f32, METH_VARARGS, "sos_f32(x, y, b0, b1, b2, a1, a2, structure) -> None (float32)"},
     {"fir_f32", py_fir_f32, METH_VARARGS, "fir_f32(x, y, taps) -> None (float32)"},

@@ -685,6 +685,8 @@ def _sections(program) -> list[dict]:
                         "structure": op.structure})
             if op.a_lo:  # df1-wide-fb: the low feedback words (coefc.program)
                 out[-1]["a_lo"] = [int(c) for c in op.a_lo]
+            if op.b_lo:  # df1ef-wide: the low numerator words, same weight (coefc.program)
+                out[-1]["b_lo"] = [int(c) for c in op.b_lo]
             if len(out) in why:  # structure = "auto": why this section's structure was chosen
                 out[-1]["chosen"] = why[len(out)]
     return out

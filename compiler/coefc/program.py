@@ -103,6 +103,29 @@ Exact definitions shared by the engine, the C kernels and the noise analysis
            cannot carry it): a second, unshaped source at the rounding node, mean
            about 2^-k/2 and variance about 2^-2k/12 output LSB, through 1/A(z).
 
+    df1ef-wide  (df1ef-wide-fb with a double-word numerator too: every coefficient,
+           feedforward and feedback, is a high and a low word; L, AH, AL as for
+           df1-wide-fb, and likewise BH, BL with |BL| <= 2^(L-1), physical value
+           (BH + BL * 2^-L) * 2^(s - Fc); E the previous residual)
+           Q    = B0L*x[n] + B1L*x[n-1] + B2L*x[n-2]         (exact)
+           P    = A1L*y[n-1] + A2L*y[n-2]                    (exact)
+           acc  = wrapA(B0H*x[n] + B1H*x[n-1] + B2H*x[n-2] + floor(Q / 2^L)
+                        - A1H*y[n-1] - A2H*y[n-2] - floor(P / 2^L) + E)
+           v    = round_shift(acc, k)
+           E    = acc - v * 2^k                (the rounding residual, |E| < 2^k)
+           y[n] = fit_data(v)
+           Both low sums are floored (arithmetic shift right by L) exactly as the
+           feedback's of df1ef-wide-fb, and both floored integers are part of acc,
+           so E is the residual of that accumulator.  The numerator's floor drops a
+           fraction g in [0, 1) of an accumulator LSB (floor(Q/2^L) = Q/2^L - g): a
+           third error source, input-side like the feedback floor's (never in acc,
+           so E cannot carry it; unshaped, through 1/A(z)), mean about -2^-k/2 and
+           variance about 2^-2k/12 output LSB; the means of the two floors cancel.
+           The numerator then has Fc + L fraction bits, so zeros close to the unit
+           circle (a narrow low-frequency peaking or notch section) are placed 2^L
+           times more finely.  On zero input x = 0 the numerator adds nothing
+           (Q = 0, floor(0) = 0): the zero-input map is df1ef-wide-fb's.
+
     fir    acc  = wrapA(sum_k C_k * x[n-k]);   y[n] = fit_data(round_shift(acc, k))
            (folding symmetric taps gives the identical integer result)
     gain   acc  = wrapA(C * x[n]);             y[n] = fit_data(round_shift(acc, k))
@@ -253,6 +276,7 @@ class Structure:
     error_feedback: bool = False
     float32: bool = True
     wide_feedback: bool = False  # a1, a2 each in a high and a low coefficient word (df1-wide-fb)
+    wide_numerator: bool = False  # b0, b1, b2 each in a high and a low coefficient word too (df1ef-wide)
     multiplies: int = 5  # multiplies per sample of one second-order section (cost, structure = "auto")
     reference_kernel: bool = True  # the targets' reference kernels (operation table) run it; else generated code only
     state_space: bool = False  # b = (D, C1, C2, G), a = (A11, A12, A21, A22): see section_transfer
@@ -277,6 +301,9 @@ STRUCTURE_TABLE: dict[str, Structure] = {s.name: s for s in (
     Structure("df1ef-wide-fb", "direct form I with first-order error feedback and double-word feedback "
               "coefficients", 5, data_states=4, acc_states=1, error_feedback=True, float32=False,
               wide_feedback=True, multiplies=7, reference_kernel=False),
+    Structure("df1ef-wide", "direct form I with first-order error feedback and double-word numerator and "
+              "feedback coefficients", 6, data_states=4, acc_states=1, error_feedback=True, float32=False,
+              wide_feedback=True, wide_numerator=True, multiplies=10, reference_kernel=False),
 )}
 STRUCTURES = tuple(STRUCTURE_TABLE)
 SCALINGS = ("none", "l1", "l2", "linf")
@@ -335,9 +362,11 @@ class SectionOp:
     ``structure`` is a name of :data:`STRUCTURE_TABLE`; for ``coupled``
     ``b = (D, C1, C2, G)`` and ``a = (A11, A12, A21, A22)`` (the recurrence in the
     module docstring; :func:`section_transfer` gives the polynomials of any
-    section).  For ``df1-wide-fb`` and ``df1ef-wide-fb`` ``a`` holds the high words and ``a_lo`` the low
+    section).  For ``df1-wide-fb``, ``df1ef-wide-fb`` and ``df1ef-wide`` ``a`` holds the high words and ``a_lo`` the low
     words, of weight ``2^-L`` with ``L = Wc - 1`` (:func:`lo_bits`); an empty
     ``a_lo`` means low words of zero.  Other structures leave ``a_lo`` empty.
+    For ``df1ef-wide`` ``b`` holds the numerator's high words and ``b_lo`` its low
+    words (same weight ``2^-L``; empty: zero); every other structure leaves ``b_lo`` empty.
     Integers for fixed-point arithmetic, float32 values otherwise.
     """
 
@@ -346,6 +375,17 @@ class SectionOp:
     shift: int = 0
     structure: str = "df1"
     a_lo: tuple = ()
+    b_lo: tuple = ()
+
+    def b_phys(self, coef: "QFormat | None") -> tuple[float, float, float]:
+        """The physical numerator ``(b0, b1, b2)`` of a direct-form section, low words included."""
+        if coef is None:
+            return tuple(float(v) for v in self.b)
+        sc = 2.0 ** (self.shift - coef.frac_bits)
+        if not self.b_lo:
+            return tuple(float(v) * sc for v in self.b)
+        lo = 2.0 ** -lo_bits(coef)
+        return tuple((float(h) + float(l) * lo) * sc for h, l in zip(self.b, self.b_lo))
 
     def a_phys(self, coef: "QFormat | None") -> tuple[float, float]:
         """The physical feedback coefficients ``(a1, a2)``, low words included.
@@ -365,7 +405,7 @@ class SectionOp:
 
 
 def lo_bits(coef: QFormat) -> int:
-    """``L``, the weight ``2^-L`` of a low feedback word relative to its high word (``Wc - 1``)."""
+    """``L``, the weight ``2^-L`` of a low coefficient word relative to its high word (``Wc - 1``)."""
     return coef.width - 1
 
 
@@ -374,7 +414,8 @@ def section_transfer(op: "SectionOp", coef: "QFormat | int | None" = 0):
 
     For ``coupled`` the polynomials of its state-space form (module docstring):
     ``b = [D, D a1 + G C1, D a2 + G (C2 A21 - C1 A22)]``, ``a = [1, -(A11 + A22),
-    A11 A22 - A12 A21]``; for ``df1-wide-fb`` the feedback with its low words.
+    A11 A22 - A12 A21]``; for ``df1-wide-fb`` the feedback with its low words (and for
+    ``df1ef-wide`` the numerator with its low words too).
     *coef* is the coefficient format, or just its ``Fc`` (0 or ``None`` for float
     values; a section with low words needs the format).
 
@@ -385,10 +426,10 @@ def section_transfer(op: "SectionOp", coef: "QFormat | int | None" = 0):
     """
     frac_bits = coef.frac_bits if isinstance(coef, QFormat) else int(coef or 0)
     sc = 2.0 ** (op.shift - frac_bits)
-    if op.a_lo:
+    if op.a_lo or op.b_lo:
         if not isinstance(coef, QFormat):
-            raise ValueError("a section with low feedback words needs the coefficient format")
-        return [float(v) * sc for v in op.b], [1.0, *op.a_phys(coef)]
+            raise ValueError("a section with low coefficient words needs the coefficient format")
+        return list(op.b_phys(coef)), [1.0, *op.a_phys(coef)]
     if STRUCTURE_TABLE[op.structure].state_space:
         d, c1, c2, g = (float(v) * sc for v in op.b)
         a11, a12, a21, a22 = (float(v) * sc for v in op.a)

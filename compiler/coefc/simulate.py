@@ -2,7 +2,7 @@
 the output samples (and optionally every op's output and overflow counts) out.
 
 The arithmetic is exactly the one stated in :mod:`coefc.program` (df1, tdf2, df1ef,
-df1-wide-fb, df1ef-wide-fb and coupled sections, FIR, gain, delay; accumulators wrap modulo ``2^acc_bits``; rounding and
+df1-wide-fb, df1ef-wide-fb, df1ef-wide and coupled sections, FIR, gain, delay; accumulators wrap modulo ``2^acc_bits``; rounding and
 overflow by the program's arithmetic).  Input for fixed-point programs is an
 integer array of data words (any integer dtype; values must lie in the data
 word), output an int64 array; for float32 programs input and output are float32.
@@ -87,6 +87,11 @@ def _lo(op: SectionOp) -> tuple[int, int]:
     return (int(op.a_lo[0]), int(op.a_lo[1])) if op.a_lo else (0, 0)
 
 
+def _blo(op: SectionOp) -> tuple[int, int, int]:
+    """The numerator's low words (df1ef-wide; zero for every other structure)."""
+    return tuple(int(v) for v in op.b_lo) if op.b_lo else (0, 0, 0)
+
+
 def _k(program: ChannelProgram, op) -> int:
     """The accumulator's final right shift ``Fc - s - P`` (P = the product shift, usually 0)."""
     return program.arithmetic.final_shift(op.shift)
@@ -101,7 +106,7 @@ def _fast_ok(program: ChannelProgram) -> bool:
     if ar.acc_bits > 64 or ar.data.width + ar.coef.width > 64:
         return False
     if ar.data.width + ar.coef.width > 63 and any(_wide(op) for op in program.ops):
-        return False  # the low-word sum P of df1-wide-fb must be exact in int64
+        return False  # the low-word sums P (and Q of df1ef-wide) must be exact in int64
     lowest = 0 if ar.product_shift else 1
     return all(lowest <= _k(program, op) <= 62 for op in program.ops if not isinstance(op, (DelayOp, RateOp)))
 
@@ -189,7 +194,7 @@ def _run_fast(program: ChannelProgram, op, x: np.ndarray):
     if _wide(op):
         o, a = _engine.sos_wide(x, y, *[int(v) for v in op.b], *[int(v) for v in op.a], *_lo(op),
                                 lo_bits(ar.coef), _k(program, op), *common,
-                                STRUCTURE_TABLE[op.structure].error_feedback)
+                                STRUCTURE_TABLE[op.structure].error_feedback, *_blo(op))
     elif isinstance(op, SectionOp) and STRUCTURE_TABLE[op.structure].state_space:
         coefs = np.array([int(v) for v in (*op.b, *op.a)] + [_k(program, op)], dtype=np.int64)
         o, a = _engine.coupled(x, y, coefs, *common)
@@ -444,6 +449,7 @@ def _run_exact(program: ChannelProgram, op, x: np.ndarray):
         b0, b1, b2 = (int(v) for v in op.b)
         a1, a2 = (int(v) for v in op.a)
         l1, l2 = _lo(op)
+        m0, m1, m2 = _blo(op)
         wide, L = _wide(op), lo_bits(ar.coef)
         ef = STRUCTURE_TABLE[op.structure].error_feedback  # df1ef, df1ef-wide-fb
         x1 = x2 = y1 = y2 = 0
@@ -465,6 +471,7 @@ def _run_exact(program: ChannelProgram, op, x: np.ndarray):
                     exact += e
                 if wide:
                     exact -= (l1 * y1 + l2 * y2) >> L  # floor(P / 2^L)
+                    exact += (m0 * xn + m1 * x1 + m2 * x2) >> L  # floor(Q / 2^L) (df1ef-wide; else 0)
                 acc = acc_of(exact)
                 yn, v = out(acc)
                 if ef:

@@ -862,7 +862,8 @@ def ef_wide_bounds(a_phys, k: int, rounding: str) -> tuple[float, float, float] 
 def _analyse_ef_wide(op: SectionOp, index: int, arith: Arithmetic, *, sample_starts: int = 256,
                      sample_steps: int = 4096, seed: int = 1969, ef_work: int = 3_000_000,
                      overflow_starts: int = 256) -> SectionLimitCycles:
-    """Limit-cycle verdicts of a ``df1ef-wide-fb`` section.
+    """Limit-cycle verdicts of a ``df1ef-wide-fb`` section (and of a ``df1ef-wide`` one: the same
+    zero-input map, its numerator's low words acting on the input only).
 
     Granular: the bounds of :func:`ef_wide_bounds` (rigorous); inside them the
     exhaustive search over every output pair and every rounding residual of
@@ -1004,6 +1005,9 @@ def analyse_section(op: SectionOp, index: int, arith: Arithmetic, *, max_states:
     """
     st = STRUCTURE_TABLE[op.structure or arith.structure]
     if st.wide_feedback and st.error_feedback:
+        # df1ef-wide-fb, and df1ef-wide: its double-word numerator acts on the input only (x = 0 gives
+        # Q = 0, floor(0) = 0; coefc.program), so its zero-input map is df1ef-wide-fb's, word for word,
+        # and df1ef-wide-fb's verdicts (bounds, exhaustive search, overflow) are its verdicts
         return _analyse_ef_wide(op, index, arith, seed=seed, ef_work=ef_work, overflow_starts=overflow_starts)
     if st.wide_feedback:
         return _analyse_wide(op, index, arith, seed=seed)

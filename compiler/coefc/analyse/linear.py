@@ -27,6 +27,12 @@ Structures (the recurrences are those of :mod:`coefc.program`):
            whose transfer is the unshaped ``1/A(z)`` (``extra_noise_b = [1]``).  Near
            z = 1 that source, ``2^-k`` times smaller than the rounding, can dominate:
            ``1/A(z)`` has the large DC gain that ``1 - z^-1`` removes from the rounding.
+``df1ef-wide``  as ``df1ef-wide-fb`` with a double-word numerator: ``floor(Q / 2^L)``
+           of the numerator's low products drops a fraction ``g`` in ``[0, 1)``
+           too, an input-side source at the same node, never fed back (unshaped,
+           ``1/A(z)``), of the same variance and opposite mean (``-g``: the floored
+           term is added); taken independent of the feedback floor, the two add to
+           one unshaped source of twice the variance and mean about zero.
 ``coupled`` three rounding points (:mod:`coefc.program`): the output rounding reaches
            ``y`` directly (``E0 -> Y`` is 1); the rounding of state ``j`` enters
            ``s[n+1]`` and reaches ``y`` through ``C (zI - A)^-1 e_j``:
@@ -226,20 +232,27 @@ def _build_models(program: ChannelProgram) -> list[OpModel]:
             return OpModel(i, "section", b, a, one, one, k, fs_data, acc_fs(op.shift), op.structure,
                            extra_noise=extra, states=states, state_noise=snoise)
         elif isinstance(op, SectionOp):
-            b = np.array([phys(c, op.shift) for c in op.b])
+            b = np.array(op.b_phys(ar.coef)) if op.b_lo and not ar.is_float else \
+                np.array([phys(c, op.shift) for c in op.b])
             a = np.array([1.0] + list(op.a_phys(None if ar.is_float else ar.coef)))
             k, prods = drop(tuple(op.b) + tuple(op.a), op.shift)
             structure = op.structure or ar.structure
-            wide = not ar.is_float and STRUCTURE_TABLE[structure].wide_feedback and any(op.a_lo)
+            wide_a = not ar.is_float and STRUCTURE_TABLE[structure].wide_feedback and any(op.a_lo)
+            wide_b = not ar.is_float and STRUCTURE_TABLE[structure].wide_numerator and any(op.b_lo)
+            wide = wide_a or wide_b
             if wide:  # floor(P / 2^L) of df1-wide-fb is any integer: every bit of the rounding shift is dropped
                 k = effective_drop(tuple(op.b) + tuple(op.a) + (1,), fc - op.shift)
             nb = np.array([1.0, -1.0]) if STRUCTURE_TABLE[structure].error_feedback else one
             em = ev = 0.0
             if wide:
                 L, kk = lo_bits(ar.coef), fc - op.shift
-                em = 0.5 * (1.0 - 2.0 ** -L) * 2.0 ** -kk
-                ev = (1.0 - 2.0 ** (-2 * L)) / 12.0 * 2.0 ** (-2 * kk)
-            # df1ef-wide-fb: the floor is outside the fed-back residual, its error is not shaped
+                m1 = 0.5 * (1.0 - 2.0 ** -L) * 2.0 ** -kk
+                v1 = (1.0 - 2.0 ** (-2 * L)) / 12.0 * 2.0 ** (-2 * kk)
+                # the feedback floor enters acc as +f (it is subtracted), the numerator floor as -g
+                # (df1ef-wide, added): the means cancel, the variances add (taken independent)
+                em = (m1 if wide_a else 0.0) - (m1 if wide_b else 0.0)
+                ev = v1 * (int(wide_a) + int(wide_b))
+            # df1ef-wide-fb, df1ef-wide: the floors are outside the fed-back residual, their errors are not shaped
             xb = one if wide and STRUCTURE_TABLE[structure].error_feedback else None
             return OpModel(i, "section", b, a, nb, a, k, fs_data, acc_fs(op.shift), structure, extra_mean=em,
                            extra_var=ev, extra_noise_b=xb, product_noise=prods,

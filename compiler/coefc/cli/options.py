@@ -38,7 +38,7 @@ Coef = Annotated[Optional[str], typer.Option("--coef", metavar="Qm.n", help="Coe
 Acc = Annotated[Optional[int], typer.Option("--acc", metavar="BITS", help="Accumulator width in bits.")]
 Rounding = Annotated[Optional[str], typer.Option("--rounding", metavar="MODE", help="add-half|truncate|half-even|toward-zero")]
 Overflow = Annotated[Optional[str], typer.Option("--overflow", metavar="MODE", help="saturate or wrap.")]
-Structure = Annotated[Optional[str], typer.Option("--structure", metavar="NAME", help="df1, tdf2, df1ef (DF1 with error feedback), df1-wide-fb (double-word feedback coefficients), df1ef-wide-fb (error feedback and double-word feedback), coupled (coupled form of Rader and Gold) or auto (per section, the cheapest that meets the budget).")]
+Structure = Annotated[Optional[str], typer.Option("--structure", metavar="NAME", help="df1, tdf2, df1ef (DF1 with error feedback), df1-wide-fb (double-word feedback coefficients), df1ef-wide-fb (error feedback and double-word feedback), df1ef-wide (error feedback, double-word numerator and feedback), coupled (coupled form of Rader and Gold) or auto (per section, the cheapest that meets the budget).")]
 Scaling = Annotated[Optional[str], typer.Option("--scaling", metavar="NORM", help="Section scaling norm: none, l1, l2 or linf.")]
 def _channel_names(value: list[str] | None) -> list[str] | None:
     seen: set[str] = set()

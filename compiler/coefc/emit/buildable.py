@@ -264,6 +264,8 @@ def kernel_program(program: ChannelProgram, info: BuildInfo, target: Target,
             k = rshift(op.shift, what, True)
             if STRUCTURE_TABLE[op.structure].wide_feedback:  # generated code only (checked above)
                 values = list(values) + [int(v) for v in (op.a_lo or (0, 0))]
+            if STRUCTURE_TABLE[op.structure].wide_numerator:  # df1ef-wide: the numerator's low words too
+                values = list(values) + [int(v) for v in (op.b_lo or (0, 0, 0))]
             ops.append(KernelOp(op.structure.upper().replace("-", "_"), k, 1, words(values, what),
                                 STATE_WORDS[op.structure], f"{what}, {op.structure}, coefficient shift {op.shift}"))
         elif isinstance(op, FirOp):

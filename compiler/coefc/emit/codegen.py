@@ -206,7 +206,8 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
     Counts the products and the sums of products of the generated code
     (rounding and saturation steps not counted): a section 5 multiplies and
     4 adds (5 with error feedback; df1-wide-fb 7 multiplies, 6 adds and 7 stored
-    coefficients, df1ef-wide-fb 7 multiplies, 7 adds and 7 stored coefficients; a coupled
+    coefficients, df1ef-wide-fb 7 multiplies, 7 adds and 7 stored coefficients, df1ef-wide
+    10 multiplies, 10 adds and 10 stored coefficients; a coupled
     section 8 multiplies, 5 adds and 8 coefficients); an FIR of N taps N multiplies and
     N - 1 adds,
     folded ceil(N/2) multiplies and N - 1 adds, where zero taps are skipped (no multiply,
@@ -268,8 +269,8 @@ def channel_cost(program: ChannelProgram, coef_bytes: int, data_bytes: int) -> d
         elif isinstance(op, SectionOp):
             st = STRUCTURE_TABLE[op.structure]
             muls += st.multiplies
-            adds += (5 if st.error_feedback else 4) + (2 if st.wide_feedback else 0)
-            coefs += 5 + (2 if st.wide_feedback else 0)
+            adds += (5 if st.error_feedback else 4) + (2 if st.wide_feedback else 0) + (3 if st.wide_numerator else 0)
+            coefs += 5 + (2 if st.wide_feedback else 0) + (3 if st.wide_numerator else 0)
             state += _section_state_bytes(op, program, data_bytes)
         elif isinstance(op, FirOp):
             n = len(op.taps)
@@ -449,17 +450,33 @@ class _Fixed:
         strictly inside ``2^(Wc+Wd-2)``; it is formed in a signed word of
         ``Wc + Wd`` bits (32 or 64), biased to unsigned, shifted, and unbiased.
         """
+        return self._floored_low(acc, C, [("y1", l1), ("y2", l2)], L, "-", "lp", "lq",
+                                 "A1lo y[n-1] + A2lo y[n-2]")
+
+    def low_numerator(self, acc: str, C: int, m0: int, m1: int, m2: int, L: int) -> list[str]:
+        """``acc += floor((m0 x + m1 x1 + m2 x2) / 2^L)`` (df1ef-wide's low numerator words).
+
+        With ``|m| <= 2^(Wc-2)`` and ``|x| <= 2^(Wd-1)`` each product is at most
+        ``2^(Wc+Wd-3)`` and the sum Q of three lies strictly inside ``2^(Wc+Wd-1)``
+        (every partial sum too), so it is exact in the signed ``Wc + Wd``-bit word
+        (32 or 64) and the bias ``2^(W-1)`` keeps it in the unsigned range.
+        """
+        return self._floored_low(acc, C, [("x", m0), ("x1", m1), ("x2", m2)], L, "+", "np_", "nq",
+                                 "B0lo x[n] + B1lo x[n-1] + B2lo x[n-2]")
+
+    def _floored_low(self, acc: str, C: int, pairs, L: int, sign: str, p_name: str, q_name: str,
+                     what: str) -> list[str]:
         W = 32 if self.d + self.cb <= 32 else 64
         S, U = f"int{W}_t", f"uint{W}_t"
-        if l1 == 0 and l2 == 0:
+        prods = [f"({S}){v} * ({S}){_s(c, W)}" for v, c in pairs if c]
+        if not prods:
             return []
-        prods = [f"({S})y1 * ({S}){_s(l1, W)}" if l1 else None, f"({S})y2 * ({S}){_s(l2, W)}" if l2 else None]
-        p = " + ".join(t for t in prods if t)
+        p = " + ".join(prods)
         bias = 1 << (W - 1)
-        return [f"const {S} lp = {p}; /* A1lo y[n-1] + A2lo y[n-2], exact */",
-                f"const {S} lq = ({S})((({U})lp + {_u(bias, W)}) >> {L}) - ({S}){_u(bias >> L, W)}; "
-                f"/* floor(lp / 2^{L}) */",
-                f"{acc} -= (uint{C}_t)lq;"]
+        return [f"const {S} {p_name} = {p}; /* {what}, exact */",
+                f"const {S} {q_name} = ({S})((({U}){p_name} + {_u(bias, W)}) >> {L}) - ({S}){_u(bias >> L, W)}; "
+                f"/* floor({p_name} / 2^{L}) */",
+                f"{acc} {sign}= (uint{C}_t){q_name};"]
 
     # rounding and fitting ------------------------------------------------
     def finish(self, acc: str, k: int, C: int, y: str, residual: str | None = None,
@@ -681,9 +698,16 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                 if max(abs(A1L), abs(A2L)) > 1 << (L - 1):
                     raise GeneratedCodeError(f"section {n_sec}: low feedback word beyond 2^{L - 1}; realise again")
                 head[0] += f", low words a1 {A1L}, a2 {A2L} (weight 2^-{L})"
+            wide_b = STRUCTURE_TABLE[op.structure].wide_numerator
+            if wide_b:  # df1ef-wide: the numerator's low words
+                B0L, B1L, B2L = (int(v) for v in (op.b_lo or (0, 0, 0)))
+                if max(abs(B0L), abs(B1L), abs(B2L)) > 1 << (L - 1):
+                    raise GeneratedCodeError(f"section {n_sec}: low numerator word beyond 2^{L - 1}; realise again")
+                head[0] += f", low words b0 {B0L}, b1 {B1L}, b2 {B2L} (weight 2^-{L})"
             ef = STRUCTURE_TABLE[op.structure].error_feedback
             if op.structure in ("df1", "df1ef") or wide:
                 head.append("acc = b0 x[n] + b1 x[n-1] + b2 x[n-2] - a1 y[n-1] - a2 y[n-2]"
+                            + (f" + floor((b0lo x[n] + b1lo x[n-1] + b2lo x[n-2]) / 2^{L})" if wide_b else "")
                             + (f" - floor((a1lo y[n-1] + a2lo y[n-2]) / 2^{L})" if wide else "")
                             + (" + E" if ef else "")
                             + f"; y[n] = fit(round(acc / 2^{k}))"
@@ -706,6 +730,8 @@ def _fixed_ops(program: ChannelProgram, D: str) -> list[_OpCode]:
                     body += fx.finish("acc", k, C, "y", residual="e", narrow=narrow)
                 elif wide and ef:  # df1ef-wide-fb: E is the residual of the acc that holds the floored term
                     body += fx.sum_lines("acc", C, terms, start=start)
+                    if wide_b:  # df1ef-wide: the floored low numerator products, before E (coefc.program)
+                        body += fx.low_numerator("acc", C, B0L, B1L, B2L, L)
                     body += fx.low_products("acc", C, A1L, A2L, L)
                     body += fx.finish("acc", k, C, "y", residual="e", narrow=narrow)
                 elif wide:

@@ -32,7 +32,8 @@ section, df1          4  (x[n-1], x[n-2], y[n-1], y[n-2])
 section, tdf2         2  (S1, S2 at accumulator precision)
 section, df1ef        5  (as df1, then the previous rounding residual E)
 section, df1-wide-fb  generated code only (``build --kernel``); the reference
-                      kernels refuse it (coefc.emit.buildable)
+                      kernels refuse it (coefc.emit.buildable); likewise
+                      df1ef-wide-fb and df1ef-wide
 FIR of N taps         N + 1  (position of the newest sample, then N samples),
                       folded or not
 gain                  0

@@ -70,6 +70,8 @@ def hybrid(wide: ChannelProgram, narrow: ChannelProgram, index: int) -> ChannelP
     wo, no = wide.ops[index], narrow.ops[index] if index < len(narrow.ops) else None
     if no is None or type(wo) is not type(no) or len(_coefs(wo)) != len(_coefs(no)):
         return None
+    if isinstance(wo, SectionOp) and (wo.a_lo or wo.b_lo or no.a_lo or no.b_lo):
+        return None  # low words weigh 2^-(Wc - 1) of their width: no exact rewrite into another width here
     fw, fn = wide.arithmetic.coef.frac_bits, narrow.arithmetic.coef.frac_bits
     tol = 4.0 * 2.0 ** (no.shift - fn)
     if np.max(np.abs(_physical(wo, fw) - _physical(no, fn))) > tol:

@@ -319,6 +319,13 @@ def _fixed_op(kind, op, c: float, arithmetic: Arithmetic, notes: list, n_sec: in
                 notes.append(Note("saturated", f"section {n_sec}: a feedback coefficient does not fit {fmt} as a "
                                   f"high and a low word with a coefficient shift of {s}; clamped"))
             rop = replace(rop, a=hi, a_lo=lo)
+        if STRUCTURE_TABLE[arithmetic.structure].wide_numerator:
+            bh, bl, bad = coefficients.split_numerator(bs, fmt, s)
+            if bad:
+                notes.append(Note("saturated", f"section {n_sec}: a numerator coefficient does not fit {fmt} as a "
+                                  f"high and a low word with a coefficient shift of {s}; clamped"))
+            rop = replace(rop, b=bh, b_lo=bl)
+            return rop, coefficients.realised_gain(b, np.array(rop.b_phys(fmt)))
         phys = np.array(ints[:3], dtype=float) * 2.0 ** (s - fmt.frac_bits)
         return rop, coefficients.realised_gain(b, phys)
     taps = np.asarray(op, dtype=float)

@@ -117,13 +117,37 @@ def split_feedback(a, fmt: QFormat, s: int) -> tuple[tuple[int, int], tuple[int,
     audio", J. Audio Eng. Soc. 36(11), 1988 (double-precision feedback
     coefficients; from memory).
     """
+    return split_words((a[1], a[2]), fmt, s)
+
+
+def split_numerator(b, fmt: QFormat, s: int) -> tuple[tuple[int, ...], tuple[int, ...], bool]:
+    """High and low words of the numerator ``b[0], b[1], b[2]`` for ``df1ef-wide``.
+
+    The split of :func:`split_feedback` applied to the (already scaled) numerator
+    at coefficient shift *s*, after the zeros at z = -1 / +1 are placed exactly on
+    the double-word integers ``T`` (:func:`place_zeros`: ``B1 + B2`` and ``B0``
+    relations hold for ``T``, so the zeros stay exactly where the design put them).
+    Returns ``((B0H, B1H, B2H), (B0L, B1L, B2L), bad)``.
+    """
+    from ..program import lo_bits
+
+    L = lo_bits(fmt)
+    ts = [round(math.ldexp(float(v), fmt.frac_bits - s + L)) for v in b[:3]]
+    ts = place_zeros(ts, *zeros_at_unit_points(b))
+    return split_words(ts, fmt, s, exact=True)
+
+
+def split_words(values, fmt: QFormat, s: int, exact: bool = False) -> tuple[tuple[int, ...], tuple[int, ...], bool]:
+    """Each value as a high and a low coefficient word (:func:`split_feedback` states the rule).
+
+    *exact*: *values* are already the integers ``T`` (the value times ``2^(Fc - s + L)``)."""
     from ..program import lo_bits
 
     L = lo_bits(fmt)
     half = 1 << (L - 1)
     his, los, bad = [], [], False
-    for v in (a[1], a[2]):
-        t = round(math.ldexp(float(v), fmt.frac_bits - s + L))  # exact integer of the float's rounding
+    for v in values:
+        t = int(v) if exact else round(math.ldexp(float(v), fmt.frac_bits - s + L))  # exact integer of the rounding
         h = (t + half) >> L  # nearest (ties up); |t - h 2^L| <= 2^(L-1)
         if h > fmt.max_int or h < fmt.min_int:
             h = min(max(h, fmt.min_int), fmt.max_int)
