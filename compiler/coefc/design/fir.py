@@ -367,16 +367,8 @@ def design_fir(ctx: StageContext) -> StageResult:
     text = (f"{ctx.kind} {how}: passband {_show(wp)} Hz, stopband {_show(ws)} Hz, "
             f"reaches {got:.2f} dB attenuation ({att:g} dB asked, margin {got - att:.2f} dB for quantisation), "
             f"{dev:.4f} dB passband deviation")
-    requirement = {
-        "attenuation_db": float(att), "ripple_db": float(rp_req) if rp_req is not None else None,
-        "margin_db": float(margin), "design_attenuation_db": float(target),
-        "reached_attenuation_db": float(got), "reached_ripple_db": float(dev),
-        "margin_left_db": float(got - att),
-        "margin_kept_by": "given taps" if given is not None else "length",
-    }
-    return StageResult(blocks=(FirBlock(np.asarray(taps, dtype=float), label=text),), text=text,
-                       order=n - 1, taps=n, latency_samples=(n - 1) / 2, warnings=tuple(warns),
-                       requirement=requirement)
+    return _fir_result(taps, text, warns, att=att, rp_req=rp_req, margin=margin, target=target, got=got, dev=dev,
+                       given=given)
 
 
 _METHOD_NAMES = {"kaiser": "Kaiser", "equiripple": "equiripple", "least-squares": "least-squares",
@@ -493,6 +485,15 @@ def _design_halfband(ctx: StageContext, wp: float, ws: float, att: float, margin
     text = (f"{ctx.kind} half-band (Parks-McClellan, Vaidyanathan-Nguyen), {how}, {nonzero} non-zero: passband "
             f"{wp:g} Hz, stopband {edge:g} Hz, reaches {got:.2f} dB attenuation ({att:g} dB asked, margin "
             f"{got - att:.2f} dB for quantisation), {dev:.4f} dB passband deviation")
+    return _fir_result(taps, text, warns, att=att, rp_req=rp_req, margin=margin, target=target, got=got, dev=dev,
+                       given=given)
+
+
+def _fir_result(taps, text: str, warns: list[str], *, att, rp_req, margin, target, got, dev,
+                given) -> StageResult:
+    """A linear-phase FIR stage: its block, text, warnings and the requirement record (what was asked,
+    what the design reached, what is left for coefficient quantisation)."""
+    n = len(taps)
     requirement = {
         "attenuation_db": float(att), "ripple_db": float(rp_req) if rp_req is not None else None,
         "margin_db": float(margin), "design_attenuation_db": float(target),
