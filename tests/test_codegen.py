@@ -231,10 +231,11 @@ def test_cost_figures_of_double_word_numerator_and_feedback():
     assert f"#define DEMO_{ident}_ADDS_PER_SAMPLE 30\n" in h
     assert f"#define DEMO_{ident}_COEF_BYTES 60\n" in h  # 30 words of 2 bytes
     assert f"#define DEMO_{ident}_STATE_BYTES 36\n" in h  # 3 x (4 data words of 2 bytes + E of 4 bytes)
-    # both floored low sums are in the accumulator before E is added, and E is the residual of that accumulator
-    body = c[c.index("nq ="):]
-    assert body.index("acc += (uint32_t)nq;") < body.index("acc -= (uint32_t)lq;") < body.index("acc += e;") \
-        < body.index("e = w - (v << ")
+    # the sum starts from E, both low sums are floored on their own and added, and E is the residual of that
+    # accumulator (sums modulo the container: the order of the adds is free)
+    body = c[c.index("uint32_t acc = e;"):]
+    assert body.index("const int32_t nq =") < body.index("acc += (uint32_t)nq;") \
+        < body.index("acc -= (uint32_t)lq;") < body.index("e = (g & ")
 
 
 def _df1ef_wide_units():
