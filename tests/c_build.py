@@ -284,6 +284,18 @@ CROSS = (
 )
 
 
+def off_by_one_golden(c: str, array: str, index: int = 0) -> str:
+    """Generated C text *c* with value *index* of the golden array that starts ``array = {``
+    moved one LSB towards zero (a self test must then fail)."""
+    head = f"{array} = {{\n    "
+    start = c.index(head) + len(head)
+    for _ in range(index):
+        start = c.index(",", start) + 2
+    end = c.index(",", start)
+    v = int(c[start:end])
+    return c[:start] + str(v + 1 if v < 0 else v - 1) + c[end:]
+
+
 def generated_files(programs, target_name: str, name: str, vectors: int = 256) -> dict[str, str]:
     """{file name: text} of generated code (OUT.h, OUT.c) for hand-built programs."""
     real = fake_realisation(programs, target_name, name=name, source=f"{name}.toml")

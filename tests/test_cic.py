@@ -339,18 +339,13 @@ def test_generated_code_runs_the_cic_bit_exact(target_name, tmp_path):
 
 
 def test_generated_cic_catches_a_wrong_golden_value(tmp_path):
-    from c_build import compilers, generated_files, run_generated
+    from c_build import compilers, generated_files, off_by_one_golden, run_generated
     from coefc.targetspec import find_target
     from test_codegen import _native
 
     progs = _cic_programs(find_target("mcu32").arithmetic)[:1]
     files = generated_files(progs, "mcu32", "cbad", vectors=240)
-    c = files["cbad.c"]
-    head = "cbad_cic4_golden_out[60] = {\n    "
-    start = c.index(head) + len(head)
-    end = c.index(",", start)
-    v = int(c[start:end])
-    c = c[:start] + str(v + 1 if v < 0 else v - 1) + c[end:]
+    c = off_by_one_golden(files["cbad.c"], "cbad_cic4_golden_out[60]")
     rc, out = run_generated(tmp_path, [("cbad", dict(files, **{"cbad.c": c}))], _native(compilers()[0], "-O2"))
     assert "compile failed" not in out
     assert rc != 0 and ": ok" not in out, out

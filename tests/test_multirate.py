@@ -295,20 +295,14 @@ def test_generated_interpolation_on_other_machines(tmp_path):
 
 
 def test_generated_code_catches_a_wrong_interpolated_golden_value(tmp_path):
-    from c_build import compilers, generated_files, run_generated
+    from c_build import compilers, generated_files, off_by_one_golden, run_generated
     from coefc.targetspec import find_target
 
     from test_codegen import _native
 
     progs = _interpolating_programs(find_target("mcu32").arithmetic)[:1]
     files = generated_files(progs, "mcu32", "ibad", vectors=120)
-    c = files["ibad.c"]
-    key = "ibad_int2_golden_out[240] = {\n    "
-    start = c.index(key) + len(key)
-    start = c.index(",", start) + 2  # the second output value: the odd phase
-    end = c.index(",", start)
-    v = int(c[start:end])
-    c = c[:start] + str(v + 1 if v < 0 else v - 1) + c[end:]
+    c = off_by_one_golden(files["ibad.c"], "ibad_int2_golden_out[240]", 1)  # the second output: the odd phase
     rc, out = run_generated(tmp_path, [("ibad", dict(files, **{"ibad.c": c}))], _native(compilers()[0], "-O2"))
     assert "compile failed" not in out
     assert rc != 0 and ": ok" not in out, out
@@ -337,18 +331,14 @@ def test_float32_interpolation_code_is_bit_exact(tmp_path):
 
 
 def test_generated_code_catches_a_wrong_decimated_golden_value(tmp_path):
-    from c_build import compilers, generated_files, run_generated
+    from c_build import compilers, generated_files, off_by_one_golden, run_generated
     from coefc.targetspec import find_target
     from test_codegen import _native
 
     progs = _multirate_programs(find_target("mcu32").arithmetic)[:1]
     files = generated_files(progs, "mcu32", "mbad", vectors=240)
     # change the first golden output value of the channel (80 = 240 / 3 outputs) by one LSB
-    c = files["mbad.c"]
-    start = c.index("mbad_dec3_golden_out[80] = {\n    ") + len("mbad_dec3_golden_out[80] = {\n    ")
-    end = c.index(",", start)
-    v = int(c[start:end])
-    c = c[:start] + str(v + 1 if v < 0 else v - 1) + c[end:]
+    c = off_by_one_golden(files["mbad.c"], "mbad_dec3_golden_out[80]")
     rc, out = run_generated(tmp_path, [("mbad", dict(files, **{"mbad.c": c}))], _native(compilers()[0], "-O2"))
     assert "compile failed" not in out
     assert rc != 0 and ": ok" not in out, out
